@@ -1,0 +1,204 @@
+"""The event table: one row per detected event, sorted by time.
+
+Each event stores its peak in microvolts (signed) and in multiples of its channel's
+noise sigma, so counts and masks for any threshold at or above the table's floor come
+from a look-up, without re-reading the recording.
+"""
+
+from __future__ import annotations
+
+import csv
+import os
+from dataclasses import dataclass, field
+from pathlib import Path
+
+import h5py
+import numpy as np
+
+from .errors import RigsideError
+
+COLUMNS = {
+    "sample": np.int64,
+    "channel": np.int32,
+    "group": np.int32,
+    "amplitude_uv": np.float32,
+    "amplitude_sigma": np.float32,
+    "artefact": np.bool_,
+}
+
+
+@dataclass
+class EventTable:
+    """Detected events and the context needed to interpret them.
+
+    Attributes
+    ----------
+    sample, channel, group, amplitude_uv, amplitude_sigma, artefact
+        One entry per event. ``amplitude_uv`` is the signed peak of the filtered trace,
+        ``amplitude_sigma`` its magnitude divided by the channel's noise sigma.
+    rate_hz, n_samples
+        Sampling rate and length of the recording.
+    sigma_uv
+        Robust noise sigma per channel (microvolts).
+    floor_sigma
+        Events were kept down to this many sigma; look-ups below it are not exact.
+    polarity
+        "negative", "positive" or "both".
+    """
+
+    sample: np.ndarray
+    channel: np.ndarray
+    group: np.ndarray
+    amplitude_uv: np.ndarray
+    amplitude_sigma: np.ndarray
+    artefact: np.ndarray
+    rate_hz: float
+    n_samples: int
+    sigma_uv: np.ndarray
+    floor_sigma: float
+    polarity: str = "negative"
+    _by_channel: dict = field(default_factory=dict, repr=False, compare=False)
+
+    def __post_init__(self) -> None:
+        for name, dtype in COLUMNS.items():
+            setattr(self, name, np.ascontiguousarray(getattr(self, name), dtype=dtype))
+        self.sigma_uv = np.asarray(self.sigma_uv, dtype=np.float64)
+        n = len(self.sample)
+        if any(len(getattr(self, c)) != n for c in COLUMNS):
+            raise RigsideError("event columns must all have the same length, got "
+                               + ", ".join(f"{c}={len(getattr(self, c))}" for c in COLUMNS))
+
+    def __len__(self) -> int:
+        return len(self.sample)
+
+    @property
+    def n_channels(self) -> int:
+        return len(self.sigma_uv)
+
+    @property
+    def time_s(self) -> np.ndarray:
+        """Event times in seconds."""
+        return self.sample / self.rate_hz
+
+    @property
+    def duration_s(self) -> float:
+        return self.n_samples / self.rate_hz
+
+    def thresholds_sigma(self, threshold_sigma=None, threshold_uv=None) -> np.ndarray:
+        """Per-channel threshold in sigma units, from a sigma multiple or microvolts.
+
+        Either argument may be a scalar or one value per channel. Channels whose
+        sigma is zero (dead) get an infinite threshold.
+        """
+        if (threshold_sigma is None) == (threshold_uv is None):
+            raise RigsideError("threshold must be given either in sigma or in microvolts, got "
+                               f"sigma={threshold_sigma!r}, uV={threshold_uv!r}")
+        if threshold_sigma is not None:
+            return np.broadcast_to(np.asarray(threshold_sigma, dtype=np.float64),
+                                   (self.n_channels,)).copy()
+        uv = np.broadcast_to(np.asarray(threshold_uv, dtype=np.float64), (self.n_channels,))
+        with np.errstate(divide="ignore", invalid="ignore"):
+            out = np.where(self.sigma_uv > 0, uv / np.where(self.sigma_uv > 0, self.sigma_uv, 1), np.inf)
+        return out
+
+    def mask(self, threshold_sigma=None, threshold_uv=None, include_artefacts: bool = False) -> np.ndarray:
+        """Boolean mask of events at or above the threshold (per channel if an array)."""
+        thr = self.thresholds_sigma(threshold_sigma, threshold_uv).astype(np.float32)
+        keep = self.amplitude_sigma >= thr[self.channel]
+        if not include_artefacts:
+            keep &= ~self.artefact
+        return keep
+
+    def _sorted_amplitudes(self, channel: int) -> np.ndarray:
+        if not self._by_channel:
+            ok = ~self.artefact
+            order = np.lexsort((self.amplitude_sigma[ok], self.channel[ok]))
+            ch = self.channel[ok][order]
+            amp = self.amplitude_sigma[ok][order]
+            edges = np.searchsorted(ch, np.arange(self.n_channels + 1))
+            for c in range(self.n_channels):
+                self._by_channel[c] = amp[edges[c]:edges[c + 1]]
+        return self._by_channel[channel]
+
+    def counts(self, threshold_sigma=None, threshold_uv=None) -> np.ndarray:
+        """Non-artefact event count per channel at the threshold (sorted look-up)."""
+        thr = self.thresholds_sigma(threshold_sigma, threshold_uv).astype(np.float32)
+        out = np.empty(self.n_channels, dtype=np.int64)
+        for c in range(self.n_channels):
+            amps = self._sorted_amplitudes(c)
+            out[c] = len(amps) - np.searchsorted(amps, thr[c], side="left")
+        return out
+
+    def count_curve(self, channel: int, thresholds_sigma: np.ndarray) -> np.ndarray:
+        """Non-artefact event counts on one channel for many thresholds (sigma)."""
+        amps = self._sorted_amplitudes(channel)
+        t = np.asarray(thresholds_sigma, dtype=np.float32)
+        return len(amps) - np.searchsorted(amps, t, side="left")
+
+    def subset(self, keep: np.ndarray) -> "EventTable":
+        """A new table holding the rows selected by a mask or index array."""
+        cols = {c: getattr(self, c)[keep] for c in COLUMNS}
+        return EventTable(**cols, rate_hz=self.rate_hz, n_samples=self.n_samples,
+                          sigma_uv=self.sigma_uv.copy(), floor_sigma=self.floor_sigma,
+                          polarity=self.polarity)
+
+    # ---- files -------------------------------------------------------------------------
+    def write_csv(self, path: str | Path) -> None:
+        """Write ``sample,time_s,channel,group,amplitude_uv,amplitude_sigma,artefact`` atomically."""
+        path = Path(path)
+        tmp = path.with_name(path.name + ".part")
+        with open(tmp, "w", newline="") as fh:
+            w = csv.writer(fh)
+            w.writerow(["sample", "time_s", "channel", "group", "amplitude_uv", "amplitude_sigma", "artefact"])
+            t = self.time_s
+            for i in range(len(self)):
+                w.writerow([int(self.sample[i]), f"{t[i]:.6f}", int(self.channel[i]), int(self.group[i]),
+                            f"{self.amplitude_uv[i]:.3f}", f"{self.amplitude_sigma[i]:.4f}",
+                            int(self.artefact[i])])
+            fh.flush()
+            os.fsync(fh.fileno())
+        os.replace(tmp, path)
+
+    def write_h5(self, path: str | Path, group: str = "events") -> None:
+        """Write the table into an HDF5 group (own layout: one dataset per column)."""
+        path = Path(path)
+        tmp = path.with_name(path.name + ".part")
+        with h5py.File(tmp, "w") as f:
+            self.to_h5_group(f.create_group(group))
+        os.replace(tmp, path)
+
+    def to_h5_group(self, g: h5py.Group) -> None:
+        """Store columns and context in an open HDF5 group."""
+        for c in COLUMNS:
+            g.create_dataset(c, data=getattr(self, c), compression="gzip", compression_opts=1,
+                             shuffle=True) if len(self) else g.create_dataset(c, data=getattr(self, c))
+        g.create_dataset("sigma_uv", data=self.sigma_uv)
+        g.attrs.update(rate_hz=self.rate_hz, n_samples=self.n_samples,
+                       floor_sigma=self.floor_sigma, polarity=self.polarity)
+
+    @classmethod
+    def from_h5_group(cls, g: h5py.Group) -> "EventTable":
+        """Read a table stored by :meth:`to_h5_group`, checking every column."""
+        missing = [c for c in (*COLUMNS, "sigma_uv") if c not in g]
+        if missing:
+            raise RigsideError(f"event group must hold datasets {', '.join(COLUMNS)}, sigma_uv; "
+                               f"missing {', '.join(missing)}")
+        cols = {c: np.asarray(g[c][()]) for c in COLUMNS}
+        t = cls(**cols, rate_hz=float(g.attrs["rate_hz"]), n_samples=int(g.attrs["n_samples"]),
+                sigma_uv=np.asarray(g["sigma_uv"][()]), floor_sigma=float(g.attrs["floor_sigma"]),
+                polarity=str(g.attrs["polarity"]))
+        if len(t) and (np.any(np.diff(t.sample) < 0) or t.sample[0] < 0 or t.sample[-1] >= t.n_samples
+                       or t.channel.min() < 0 or t.channel.max() >= t.n_channels):
+            raise RigsideError("event table must hold time-sorted samples inside the recording and "
+                               "valid channels, got values out of range")
+        return t
+
+    @classmethod
+    def read_h5(cls, path: str | Path, group: str = "events") -> "EventTable":
+        try:
+            with h5py.File(path, "r") as f:
+                if group not in f:
+                    raise RigsideError(f"HDF5 file must hold an '{group}' group, got {str(path)!r}")
+                return cls.from_h5_group(f[group])
+        except OSError as exc:
+            raise RigsideError(f"event file must be a readable HDF5 file, got {str(path)!r}: {exc}") from None

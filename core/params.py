@@ -1,0 +1,212 @@
+"""Parameter dataclasses, validated in one place, with TOML load and save.
+
+Every validation error has the same shape: "<what> must be <rule>, got <value>".
+"""
+
+from __future__ import annotations
+
+import dataclasses
+import math
+import tomllib
+from dataclasses import dataclass, field, fields
+from pathlib import Path
+from typing import Any
+
+import tomli_w
+
+from .errors import ParamError
+
+POLARITIES = ("negative", "positive", "both")
+
+
+def _require(ok: bool, message: str) -> None:
+    if not ok:
+        raise ParamError(message)
+
+
+def _finite(name: str, value: float) -> None:
+    _require(isinstance(value, (int, float)) and math.isfinite(value),
+             f"{name} must be a finite number, got {value!r}")
+
+
+@dataclass
+class FilterParams:
+    """Zero-phase Butterworth band-pass and optional common median reference."""
+
+    low_hz: float = 300.0
+    high_hz: float = 6000.0
+    order: int = 3
+    common_reference: bool = False
+
+    def validate(self, rate_hz: float | None = None) -> None:
+        _finite("band low edge", self.low_hz)
+        _finite("band high edge", self.high_hz)
+        _require(self.low_hz > 0, f"band low edge must be above 0 Hz, got {self.low_hz:g} Hz")
+        _require(self.high_hz > self.low_hz,
+                 f"band high edge must be above the low edge ({self.low_hz:g} Hz), got {self.high_hz:g} Hz")
+        _require(isinstance(self.order, int) and 1 <= self.order <= 8,
+                 f"filter order must be an integer from 1 to 8, got {self.order!r}")
+        if rate_hz is not None:
+            nyq = rate_hz / 2
+            _require(self.high_hz < nyq,
+                     f"band high edge must be below Nyquist ({nyq:g} Hz), got {self.high_hz:g} Hz")
+
+
+@dataclass
+class NoiseParams:
+    """Robust noise estimate from windows sampled across the whole file."""
+
+    n_windows: int = 40
+    window_s: float = 0.5
+    seed: int = 0
+
+    def validate(self) -> None:
+        _require(isinstance(self.n_windows, int) and self.n_windows >= 1,
+                 f"noise window count must be an integer of at least 1, got {self.n_windows!r}")
+        _finite("noise window length", self.window_s)
+        _require(self.window_s > 0, f"noise window length must be above 0 s, got {self.window_s:g} s")
+
+
+@dataclass
+class DetectParams:
+    """Threshold detection.
+
+    ``threshold_sigma`` is used unless ``threshold_uv`` is set. ``floor_sigma`` is the
+    lowest threshold kept in the event table so that any higher threshold is a look-up;
+    ``None`` means "the detection threshold itself".
+    """
+
+    threshold_sigma: float = 4.5
+    threshold_uv: float | None = None
+    polarity: str = "negative"
+    dead_time_ms: float = 1.0
+    floor_sigma: float | None = None
+    artefact_channel_fraction: float = 0.5
+    artefact_sigma: float = 5.0
+    artefact_window_ms: float = 0.5
+
+    def validate(self) -> None:
+        _finite("threshold", self.threshold_sigma)
+        _require(self.threshold_sigma > 0,
+                 f"threshold must be above 0 sigma, got {self.threshold_sigma:g}")
+        if self.threshold_uv is not None:
+            _finite("threshold in microvolts", self.threshold_uv)
+            _require(self.threshold_uv > 0,
+                     f"threshold in microvolts must be above 0 uV, got {self.threshold_uv:g} uV")
+        _require(self.polarity in POLARITIES,
+                 f"polarity must be one of {', '.join(POLARITIES)}, got {self.polarity!r}")
+        _finite("dead time", self.dead_time_ms)
+        _require(0 <= self.dead_time_ms <= 100,
+                 f"dead time must be between 0 and 100 ms, got {self.dead_time_ms:g} ms")
+        if self.floor_sigma is not None:
+            _finite("look-up floor", self.floor_sigma)
+            _require(self.floor_sigma > 0,
+                     f"look-up floor must be above 0 sigma, got {self.floor_sigma:g}")
+        _finite("artefact channel fraction", self.artefact_channel_fraction)
+        _require(0 < self.artefact_channel_fraction <= 1,
+                 f"artefact channel fraction must be in (0, 1], got {self.artefact_channel_fraction:g}")
+        _finite("artefact level", self.artefact_sigma)
+        _require(self.artefact_sigma > 0,
+                 f"artefact level must be above 0 sigma, got {self.artefact_sigma:g}")
+        _finite("artefact window", self.artefact_window_ms)
+        _require(self.artefact_window_ms >= 0,
+                 f"artefact window must be at least 0 ms, got {self.artefact_window_ms:g} ms")
+
+
+@dataclass
+class SnippetParams:
+    """Waveform windows around each event, and the features computed from them."""
+
+    before_ms: float = 0.6
+    after_ms: float = 1.0
+    n_pcs: int = 3
+    pca_fit_events: int = 20000
+    seed: int = 0
+
+    def validate(self) -> None:
+        _finite("snippet start", self.before_ms)
+        _finite("snippet end", self.after_ms)
+        _require(self.before_ms >= 0, f"snippet start must be at least 0 ms, got {self.before_ms:g} ms")
+        _require(self.after_ms > 0, f"snippet end must be above 0 ms, got {self.after_ms:g} ms")
+        _require(self.before_ms + self.after_ms <= 20,
+                 f"snippet length must be at most 20 ms, got {self.before_ms + self.after_ms:g} ms")
+        _require(isinstance(self.n_pcs, int) and 1 <= self.n_pcs <= 20,
+                 f"number of principal components must be an integer from 1 to 20, got {self.n_pcs!r}")
+        _require(isinstance(self.pca_fit_events, int) and self.pca_fit_events >= 10,
+                 f"PCA fit sample must be an integer of at least 10, got {self.pca_fit_events!r}")
+
+
+@dataclass
+class RunParams:
+    """Streaming: chunk length and worker threads."""
+
+    chunk_s: float = 1.0
+    workers: int = 2
+
+    def validate(self) -> None:
+        _finite("chunk length", self.chunk_s)
+        _require(0.01 <= self.chunk_s <= 60,
+                 f"chunk length must be between 0.01 and 60 s, got {self.chunk_s:g} s")
+        _require(isinstance(self.workers, int) and 1 <= self.workers <= 64,
+                 f"worker count must be an integer from 1 to 64, got {self.workers!r}")
+
+
+@dataclass
+class Params:
+    """All pipeline parameters; the unit of TOML load and save."""
+
+    filter: FilterParams = field(default_factory=FilterParams)
+    noise: NoiseParams = field(default_factory=NoiseParams)
+    detect: DetectParams = field(default_factory=DetectParams)
+    snippets: SnippetParams = field(default_factory=SnippetParams)
+    run: RunParams = field(default_factory=RunParams)
+
+    def validate(self, rate_hz: float | None = None) -> None:
+        """Validate every section; ``rate_hz`` enables the Nyquist check."""
+        self.filter.validate(rate_hz)
+        self.noise.validate()
+        self.detect.validate()
+        self.snippets.validate()
+        self.run.validate()
+
+    def to_dict(self) -> dict[str, Any]:
+        """Plain nested dict (``None`` values dropped, as TOML has no null)."""
+        return {f.name: {k: v for k, v in dataclasses.asdict(getattr(self, f.name)).items()
+                         if v is not None}
+                for f in fields(self)}
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> "Params":
+        """Build from a nested dict, refusing unknown sections and keys."""
+        out = cls()
+        for section, values in data.items():
+            _require(section in {f.name for f in fields(cls)},
+                     f"parameter section must be one of {', '.join(f.name for f in fields(cls))}, "
+                     f"got [{section}]")
+            _require(isinstance(values, dict),
+                     f"parameter section [{section}] must be a table, got {values!r}")
+            target = getattr(out, section)
+            known = {f.name: f for f in fields(target)}
+            for key, value in values.items():
+                _require(key in known, f"parameter [{section}] {key} must be one of "
+                                       f"{', '.join(known)}, got an unknown key")
+                default = getattr(type(target)(), key)
+                if isinstance(default, float) and isinstance(value, int) and not isinstance(value, bool):
+                    value = float(value)
+                setattr(target, key, value)
+        return out
+
+    def save_toml(self, path: str | Path) -> None:
+        """Write the parameters as TOML."""
+        Path(path).write_text(tomli_w.dumps(self.to_dict()))
+
+    @classmethod
+    def load_toml(cls, path: str | Path) -> "Params":
+        """Read parameters from a TOML file; missing keys keep their defaults."""
+        try:
+            data = tomllib.loads(Path(path).read_text())
+        except FileNotFoundError:
+            raise ParamError(f"parameter file must exist, got {str(path)!r}") from None
+        except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
+            raise ParamError(f"parameter file must be valid TOML, got {str(path)!r}: {exc}") from None
+        return cls.from_dict(data)
