@@ -1,0 +1,1 @@
+"""rigside's desktop window (PySide6 + pyqtgraph) and command line."""

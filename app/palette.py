@@ -1,0 +1,57 @@
+"""Colours and pens shared by the panels.
+
+The hues are the Okabe & Ito (2008) set, chosen to stay distinct under the common forms of
+colour-blindness; meaning never rests on hue alone (markers and lines also differ in shape
+or dash).
+"""
+
+from __future__ import annotations
+
+import pyqtgraph as pg
+from PySide6.QtCore import Qt
+
+BLACK = (0, 0, 0)
+ORANGE = (230, 159, 0)
+SKY = (86, 180, 233)
+GREEN = (0, 158, 115)
+YELLOW = (240, 228, 66)
+BLUE = (0, 114, 178)
+VERMILLION = (213, 94, 0)
+PURPLE = (204, 121, 167)
+GREY = (120, 120, 120)
+
+BACKGROUND = "w"
+FOREGROUND = (30, 30, 30)
+
+TRACE = (40, 40, 60)
+TRACE_SELECTED = BLUE
+EVENT = VERMILLION
+ARTEFACT = GREY
+THRESHOLD = ORANGE
+NOISE_BAND = (*SKY, 60)
+NOISE_CURVE = GREY
+HITS = GREEN
+MISSES = PURPLE
+FALSE_ALARMS = VERMILLION
+
+
+def setup_pyqtgraph() -> None:
+    """Global pyqtgraph options: light background, antialiasing off for speed."""
+    pg.setConfigOptions(background=BACKGROUND, foreground=FOREGROUND, antialias=False,
+                        useNumba=False)
+
+
+def pen(colour, width: float = 1.0, dash: bool = False, dot: bool = False):
+    style = Qt.PenStyle.DashLine if dash else Qt.PenStyle.DotLine if dot else Qt.PenStyle.SolidLine
+    p = pg.mkPen(colour, width=width, style=style)
+    p.setCosmetic(True)
+    return p
+
+
+def style_plot(plot: pg.PlotItem, x_label: str, y_label: str) -> None:
+    """Axis labels with units and readable tick fonts."""
+    plot.setLabel("bottom", x_label)
+    plot.setLabel("left", y_label)
+    plot.showGrid(x=True, y=True, alpha=0.15)
+    for name in ("bottom", "left"):
+        plot.getAxis(name).setTextPen(FOREGROUND)

@@ -1,0 +1,1 @@
+"""Dockable panels of the workbench window, one module per panel."""

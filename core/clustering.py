@@ -1,0 +1,243 @@
+"""First-pass clustering of event features, one channel group at a time.
+
+Each group's features are standardised (z-scores from a fitted subsample) and modelled by a
+Gaussian mixture with full covariances (scikit-learn ``GaussianMixture``). The number of
+components is the one with the lowest Bayesian information criterion (Schwarz 1978) over
+``k_min..k_max``, searched upwards and stopped after ``patience`` successive values of k that
+do not improve it; ``k`` may also be forced. The mixture is fitted on a random subsample of at
+most ``fit_events`` events and then assigns every event of the group, so the cost per group is
+bounded whatever the recording length. All randomness comes from ``seed`` and the group
+number, so a run is reproducible.
+
+Artefact events are not clustered: they get the unit id :data:`NO_UNIT` (-1), meaning "in no
+unit". Unit ids are positive, unique across groups, and numbered group by group; inside a
+group, clusters are numbered by decreasing mean peak magnitude.
+"""
+
+from __future__ import annotations
+
+import math
+import warnings
+from dataclasses import asdict, dataclass, fields
+from typing import Any
+
+import numpy as np
+from sklearn.exceptions import ConvergenceWarning
+from sklearn.mixture import GaussianMixture
+
+from .errors import ParamError, RigsideError
+from .progress import CancelFn, ProgressFn, check, report
+
+NO_UNIT = -1
+"""Unit id of events that belong to no unit (artefacts, or events moved out of every unit)."""
+
+MIN_EVENTS_PER_COMPONENT = 10
+"""A fit never uses more components than one per this many fitted events."""
+
+
+@dataclass
+class ClusterParams:
+    """Settings of the first-pass clustering (all validated by :meth:`validate`).
+
+    Attributes
+    ----------
+    k
+        Forced number of clusters per group; ``None`` chooses it by BIC.
+    k_min, k_max
+        Range of cluster counts tried by the BIC search.
+    patience
+        Stop the search after this many successive k without a lower BIC.
+    fit_events
+        Largest number of events of one group used to fit the mixture.
+    max_iter, tol
+        EM iteration limit and convergence tolerance (scikit-learn meaning).
+    seed
+        Seed of the subsample and of the mixture initialisation.
+    """
+
+    k: int | None = None
+    k_min: int = 1
+    k_max: int = 8
+    patience: int = 2
+    fit_events: int = 8000
+    max_iter: int = 200
+    tol: float = 1e-3
+    seed: int = 0
+
+    def validate(self) -> None:
+        """Raise :class:`ParamError` for any value out of range."""
+        def integer(name: str, value: Any, low: int, high: int) -> None:
+            if not (isinstance(value, int) and not isinstance(value, bool) and low <= value <= high):
+                raise ParamError(f"{name} must be an integer from {low} to {high}, got {value!r}")
+
+        if self.k is not None:
+            integer("forced cluster count", self.k, 1, 64)
+        integer("smallest cluster count", self.k_min, 1, 64)
+        integer("largest cluster count", self.k_max, self.k_min, 64)
+        integer("search patience", self.patience, 1, 64)
+        integer("clustering fit sample", self.fit_events, 100, 10_000_000)
+        integer("EM iteration limit", self.max_iter, 1, 100_000)
+        integer("clustering seed", self.seed, 0, 2**32 - 1)
+        if not (isinstance(self.tol, (int, float)) and math.isfinite(self.tol) and self.tol > 0):
+            raise ParamError(f"EM tolerance must be a finite number above 0, got {self.tol!r}")
+
+    def to_dict(self) -> dict[str, Any]:
+        """Plain dict (``k`` omitted when ``None``)."""
+        return {k: v for k, v in asdict(self).items() if v is not None}
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> "ClusterParams":
+        """Build from a dict, refusing unknown keys, then validate."""
+        if not isinstance(data, dict):
+            raise ParamError(f"clustering parameters must be a table, got {data!r}")
+        known = {f.name for f in fields(cls)}
+        unknown = sorted(set(data) - known)
+        if unknown:
+            raise ParamError(f"clustering parameter must be one of {', '.join(sorted(known))}, "
+                             f"got {', '.join(unknown)}")
+        out = cls(**data)
+        if isinstance(out.tol, int) and not isinstance(out.tol, bool):
+            out.tol = float(out.tol)
+        out.validate()
+        return out
+
+
+def _standardise(x: np.ndarray, fit_rows: np.ndarray) -> np.ndarray:
+    """z-scores from the fit rows' mean and sd; constant columns are dropped."""
+    ref = x[fit_rows].astype(np.float64)
+    mean = ref.mean(axis=0)
+    sd = ref.std(axis=0)
+    keep = sd > 1e-12 * np.maximum(1.0, np.abs(mean))
+    return ((x[:, keep] - mean[keep]) / sd[keep]).astype(np.float64)
+
+
+def _fit(x: np.ndarray, k: int, params: ClusterParams, random_state: int) -> GaussianMixture:
+    gm = GaussianMixture(n_components=k, covariance_type="full", max_iter=params.max_iter,
+                         tol=params.tol, reg_covar=1e-6, random_state=random_state)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ConvergenceWarning)
+        gm.fit(x)
+    return gm
+
+
+def cluster_features(features: np.ndarray, params: ClusterParams, stream: int = 0,
+                     k: int | None = None) -> np.ndarray:
+    """Cluster one set of events (one channel group, or one unit being split).
+
+    Parameters
+    ----------
+    features
+        Feature matrix, events x features, finite values.
+    params
+        Clustering settings; ``k`` (argument) overrides ``params.k``.
+    stream
+        Extra seed component (the group number), so groups draw independent subsamples.
+    k
+        Forced cluster count, or ``None`` to use ``params.k`` or the BIC search.
+
+    Returns
+    -------
+    np.ndarray
+        Cluster index per event (int32, 0..n_clusters-1, every index used), numbered in the
+        order of the fitted mixture's components after empty ones are removed.
+    """
+    x = np.asarray(features)
+    n = len(x)
+    if n == 0:
+        return np.zeros(0, dtype=np.int32)
+    if x.ndim != 2:
+        raise RigsideError(f"feature matrix must be 2-D (events x features), got shape {x.shape}")
+    if not np.isfinite(x).all():
+        bad = int((~np.isfinite(x)).any(axis=1).sum())
+        raise RigsideError(f"features must be finite to be clustered, got {bad} events with NaN or Inf")
+    rng = np.random.default_rng([params.seed, stream])
+    fit_rows = np.sort(rng.choice(n, params.fit_events, replace=False)) if n > params.fit_events \
+        else np.arange(n)
+    z = _standardise(x, fit_rows)
+    n_fit = len(fit_rows)
+    k_cap = max(1, n_fit // MIN_EVENTS_PER_COMPONENT)
+    forced = k if k is not None else params.k
+    if z.shape[1] == 0:
+        return np.zeros(n, dtype=np.int32)
+    random_state = int(rng.integers(0, 2**31 - 1))
+    zf = z[fit_rows]
+    if forced is not None:
+        best = _fit(zf, min(int(forced), n_fit), params, random_state)
+    else:
+        best, best_bic, worse = None, np.inf, 0
+        for kk in range(params.k_min, min(params.k_max, k_cap) + 1):
+            gm = _fit(zf, kk, params, random_state)
+            bic = gm.bic(zf)
+            if bic < best_bic:
+                best, best_bic, worse = gm, bic, 0
+            else:
+                worse += 1
+                if worse >= params.patience:
+                    break
+        if best is None:
+            best = _fit(zf, 1, params, random_state)
+    labels = best.predict(z)
+    _, dense = np.unique(labels, return_inverse=True)
+    return dense.astype(np.int32)
+
+
+def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np.ndarray,
+                           amplitude_uv: np.ndarray, params: ClusterParams,
+                           groups: list[int] | None = None, first_id: int = 1,
+                           progress: ProgressFn = None, cancel: CancelFn = None
+                           ) -> tuple[np.ndarray, dict[int, int]]:
+    """Cluster every channel group and number the clusters as units.
+
+    Parameters
+    ----------
+    group, artefact, amplitude_uv
+        Per-event channel group, artefact flag and signed peak (from the event table).
+    features
+        Feature matrix, events x features.
+    params
+        Clustering settings (validated here).
+    groups
+        Groups to cluster (default: every group present); events of other groups get
+        :data:`NO_UNIT` in the returned array.
+    first_id
+        Id of the first new unit.
+    progress, cancel
+        Progress callback and cancel check (one step per group).
+
+    Returns
+    -------
+    assignments, unit_group
+        Unit id per event (int32) and the channel group of every new unit id.
+    """
+    params.validate()
+    group = np.asarray(group)
+    n = len(group)
+    if features.ndim != 2 or len(features) != n or len(artefact) != n or len(amplitude_uv) != n:
+        raise RigsideError(f"features and event columns must have one row per event ({n}), got "
+                           f"features {features.shape}, artefact {len(artefact)}, "
+                           f"amplitude {len(amplitude_uv)}")
+    todo = sorted(int(g) for g in np.unique(group)) if groups is None else sorted(set(groups))
+    out = np.full(n, NO_UNIT, dtype=np.int32)
+    unit_group: dict[int, int] = {}
+    next_id = first_id
+    order = np.argsort(group, kind="stable")
+    bounds = np.searchsorted(group[order], [todo, np.add(todo, 1)]) if todo else np.zeros((2, 0), int)
+    for i, g in enumerate(todo):
+        check(cancel)
+        report(progress, i / max(1, len(todo)), f"clustering group {g}")
+        rows = order[bounds[0, i]:bounds[1, i]]
+        rows = rows[~artefact[rows]]
+        if len(rows) == 0:
+            continue
+        labels = cluster_features(features[rows], params, stream=g)
+        n_clusters = int(labels.max()) + 1
+        magnitude = np.bincount(labels, np.abs(amplitude_uv[rows].astype(np.float64)), n_clusters)
+        magnitude /= np.bincount(labels, minlength=n_clusters)
+        rank = np.empty(n_clusters, dtype=np.int32)
+        rank[np.argsort(-magnitude, kind="stable")] = np.arange(n_clusters, dtype=np.int32)
+        out[rows] = next_id + rank[labels]
+        for r in range(n_clusters):
+            unit_group[next_id + r] = g
+        next_id += n_clusters
+    report(progress, 1.0, "clustering done")
+    return out, unit_group

@@ -1,0 +1,459 @@
+"""Curation operations on a :class:`core.sorting.Sorting`, each exactly undoable.
+
+Every operation is an object with ``do(sorting)`` / ``undo(sorting)``, a ``text`` for menus
+(e.g. "Merge units 3, 5"), and ``to_record()`` / ``from_record()`` for the journal. The first
+``do`` (or an explicit ``prepare``, which may run on a worker thread) computes a
+:class:`core.sorting.Delta` holding only the changed events and unit records; ``undo``
+writes the old values back and a later ``do`` (redo) writes the new ones again, so both are
+bitwise exact and cost time in proportion to the events changed.
+
+Rules kept by every operation: an event only joins units of its own channel group; a unit
+that keeps its id keeps its label and note; new units are "unreviewed"; new ids come from
+the sorting's counter, so replaying the same operations gives the same ids.
+"""
+
+from __future__ import annotations
+
+import base64
+import zlib
+from typing import Any, ClassVar
+
+import numpy as np
+
+from .clustering import NO_UNIT, ClusterParams, cluster_features, first_pass_assignments
+from .errors import ParamError
+from .polygon import points_in_polygon, check_polygon
+from .progress import CancelFn, ProgressFn
+from .sorting import LABELS, CurationError, Delta, Sorting, Unit
+
+MAX_NOTE_CHARS = 20_000
+
+
+def encode_indices(index: np.ndarray) -> str:
+    """Sorted unique event indices as text: zlib-compressed little-endian int64 steps, base64."""
+    steps = np.diff(np.asarray(index, dtype=np.int64), prepend=0).astype("<i8")
+    return base64.b64encode(zlib.compress(steps.tobytes(), 6)).decode("ascii")
+
+
+def decode_indices(text: str, n_events: int) -> np.ndarray:
+    """Inverse of :func:`encode_indices`, refusing anything that is not sorted indices below ``n_events``."""
+    if not isinstance(text, str):
+        raise CurationError(f"event list must be encoded text, got {type(text).__name__}")
+    try:
+        packed = base64.b64decode(text.encode("ascii"), validate=True)
+        d = zlib.decompressobj()
+        raw = d.decompress(packed, 8 * n_events + 8)
+        if d.unconsumed_tail or not d.eof:
+            raise CurationError(f"event list must hold at most {n_events} events, got more or a truncated list")
+    except (ValueError, zlib.error) as exc:
+        raise CurationError(f"event list must be base64 zlib data, got undecodable text ({exc})") from None
+    if len(raw) % 8:
+        raise CurationError(f"event list must hold whole 8-byte steps, got {len(raw)} bytes")
+    idx = np.cumsum(np.frombuffer(raw, dtype="<i8").astype(np.int64))
+    _check_events(idx, n_events)
+    return idx
+
+
+def _check_events(idx: np.ndarray, n_events: int) -> None:
+    if len(idx) == 0:
+        raise CurationError("event selection must hold at least one event, got none")
+    if idx[0] < 0 or idx[-1] >= n_events or (len(idx) > 1 and np.any(np.diff(idx) <= 0)):
+        raise CurationError(f"event selection must hold distinct indices from 0 to {n_events - 1}, "
+                            f"got values from {int(idx.min())} to {int(idx.max())}")
+
+
+def _as_int(value: Any, what: str) -> int:
+    if isinstance(value, bool) or not isinstance(value, (int, np.integer)):
+        raise CurationError(f"{what} must be an integer, got {value!r}")
+    return int(value)
+
+
+def _delta(sorting: Sorting, rows: np.ndarray, new_ids: np.ndarray, units_after: dict[int, Unit | None],
+           created: tuple[int, ...] = ()) -> Delta:
+    """A delta holding only the events whose unit really changes."""
+    rows = np.asarray(rows, dtype=np.int64)
+    new_ids = np.broadcast_to(np.asarray(new_ids, dtype=np.int32), rows.shape)
+    old = sorting.assignments[rows]
+    moved = old != new_ids
+    order = np.argsort(rows[moved], kind="stable")
+    current = sorting.units
+    return Delta(index=rows[moved][order], before=old[moved][order], after=new_ids[moved][order].copy(),
+                 units_before={u: current.get(u) for u in units_after}, units_after=dict(units_after),
+                 next_id_before=sorting.next_id, next_id_after=sorting.next_id + len(created),
+                 created=created)
+
+
+class Operation:
+    """Base of all curation operations (see the module docstring)."""
+
+    kind: ClassVar[str] = ""
+
+    def __init__(self) -> None:
+        self._delta: Delta | None = None
+        self._prepared_at = -1
+        self._final = False
+        self._expected_created: tuple[int, ...] | None = None
+        self.journal_seq: int | None = None
+
+    @property
+    def text(self) -> str:
+        raise NotImplementedError
+
+    def _compute(self, sorting: Sorting) -> Delta:
+        raise NotImplementedError
+
+    def _params(self) -> dict[str, Any]:
+        raise NotImplementedError
+
+    def prepare(self, sorting: Sorting) -> Delta:
+        """Compute the change against the sorting's current state (no change applied)."""
+        if self._delta is None or (not self._final and self._prepared_at != sorting.revision):
+            delta = self._compute(sorting)
+            if self._expected_created is not None and delta.created != self._expected_created:
+                raise CurationError(f"replayed operation '{self.text}' must create units "
+                                    f"{list(self._expected_created)}, got {list(delta.created)}")
+            self._delta, self._prepared_at = delta, sorting.revision
+        return self._delta
+
+    def do(self, sorting: Sorting) -> None:
+        """Apply (first time: compute then apply; later: reapply the same change)."""
+        delta = self.prepare(sorting)
+        self._final = True
+        sorting.apply(delta, forward=True)
+
+    def undo(self, sorting: Sorting) -> None:
+        """Restore exactly the state before :meth:`do`."""
+        if not self._final:
+            raise CurationError(f"operation '{self.text}' must be done before it is undone")
+        sorting.apply(self._delta, forward=False)
+
+    @property
+    def created(self) -> tuple[int, ...]:
+        """Ids of the units this operation creates (known once prepared)."""
+        return self._delta.created if self._delta is not None else ()
+
+    def to_record(self) -> dict[str, Any]:
+        """Parameters for the journal (JSON-ready)."""
+        rec = {"op": self.kind, **self._params()}
+        if self._final:
+            rec["created"] = list(self._delta.created)
+        return rec
+
+    @classmethod
+    def from_record(cls, rec: dict[str, Any]) -> "Operation":
+        """Rebuild from :meth:`to_record` output (checked; :class:`CurationError` if malformed)."""
+        try:
+            op = cls._from_params({k: v for k, v in rec.items() if k not in ("op", "created")})
+        except (TypeError, KeyError) as exc:
+            raise CurationError(f"journal record of '{cls.kind}' must hold exactly its parameters, "
+                                f"got a problem with {exc}") from None
+        if "created" in rec:
+            created = rec["created"]
+            if not isinstance(created, list):
+                raise CurationError(f"created units must be a list, got {created!r}")
+            op._expected_created = tuple(_as_int(u, "created unit id") for u in created)
+        return op
+
+    @classmethod
+    def _from_params(cls, p: dict[str, Any]) -> "Operation":
+        return cls(**p)
+
+
+class ClusterGroups(Operation):
+    """Cluster channel groups afresh (all groups: the first pass), replacing their units."""
+
+    kind = "cluster_groups"
+
+    def __init__(self, params: ClusterParams | None = None, groups: list[int] | None = None,
+                 progress: ProgressFn = None, cancel: CancelFn = None) -> None:
+        super().__init__()
+        self.params = params or ClusterParams()
+        self.params.validate()
+        self.groups = None if groups is None else sorted({_as_int(g, "group") for g in groups})
+        self.progress, self.cancel = progress, cancel
+
+    @property
+    def text(self) -> str:
+        if self.groups is None:
+            return "First-pass clustering"
+        k = f" into {self.params.k}" if self.params.k is not None else ""
+        return f"Recluster group{'s' if len(self.groups) > 1 else ''} {', '.join(map(str, self.groups))}{k}"
+
+    def _compute(self, sorting: Sorting) -> Delta:
+        d = sorting.data
+        new, unit_group = first_pass_assignments(d.group, d.artefact, d.features, d.amplitude_uv,
+                                                 self.params, self.groups, sorting.next_id,
+                                                 self.progress, self.cancel)
+        todo = np.unique(d.group) if self.groups is None else np.asarray(self.groups)
+        rows = np.flatnonzero(np.isin(d.group, todo))
+        units_after: dict[int, Unit | None] = {u: None for u, rec in sorting.units.items()
+                                               if rec.group in set(todo.tolist())}
+        units_after.update({u: Unit(group=g) for u, g in unit_group.items()})
+        return _delta(sorting, rows, new[rows], units_after, tuple(sorted(unit_group)))
+
+    def _params(self) -> dict[str, Any]:
+        return {"params": self.params.to_dict(), "groups": self.groups}
+
+    @classmethod
+    def _from_params(cls, p: dict[str, Any]) -> "ClusterGroups":
+        try:
+            params = ClusterParams.from_dict(p.pop("params"))
+        except ParamError as exc:
+            raise CurationError(str(exc)) from None
+        groups = p.pop("groups")
+        if groups is not None and not isinstance(groups, list):
+            raise CurationError(f"groups must be a list or null, got {groups!r}")
+        if p:
+            raise TypeError(f"unexpected keys {sorted(p)}")
+        return cls(params, groups)
+
+
+class SplitByPolygon(Operation):
+    """Events of a unit inside a polygon drawn on two axes go to a new unit."""
+
+    kind = "split_polygon"
+
+    def __init__(self, unit: int, x_axis: str, y_axis: str, vertices: list[list[float]]) -> None:
+        super().__init__()
+        self.unit = _as_int(unit, "unit")
+        self.x_axis, self.y_axis = str(x_axis), str(y_axis)
+        self.vertices = check_polygon(vertices)
+
+    @property
+    def text(self) -> str:
+        return f"Split unit {self.unit} by polygon"
+
+    def _compute(self, sorting: Sorting) -> Delta:
+        rec = sorting.unit(self.unit)
+        idx = sorting.events_of(self.unit)
+        inside = points_in_polygon(sorting.data.axis_values(self.x_axis, idx),
+                                   sorting.data.axis_values(self.y_axis, idx), self.vertices)
+        n_in = int(inside.sum())
+        if n_in == 0 or n_in == len(idx):
+            raise CurationError(f"polygon must enclose some but not all events of unit {self.unit}, "
+                                f"got {n_in} of {len(idx)}")
+        new = sorting.next_id
+        return _delta(sorting, idx[inside], new, {new: Unit(group=rec.group)}, (new,))
+
+    def _params(self) -> dict[str, Any]:
+        return {"unit": self.unit, "x_axis": self.x_axis, "y_axis": self.y_axis,
+                "vertices": self.vertices.tolist()}
+
+
+class MergeUnits(Operation):
+    """Several units of one group become the one with the smallest id.
+
+    The merged unit keeps its label if all merged units share it, else becomes "unreviewed";
+    the distinct non-empty notes are joined with " | ".
+    """
+
+    kind = "merge"
+
+    def __init__(self, units: list[int]) -> None:
+        super().__init__()
+        if not isinstance(units, (list, tuple)):
+            raise CurationError(f"units to merge must be a list, got {units!r}")
+        self.units = sorted({_as_int(u, "unit") for u in units})
+        if len(self.units) < 2:
+            raise CurationError(f"units to merge must be at least two distinct units, got {self.units}")
+
+    @property
+    def text(self) -> str:
+        return f"Merge units {', '.join(map(str, self.units))}"
+
+    def _compute(self, sorting: Sorting) -> Delta:
+        recs = [sorting.unit(u) for u in self.units]
+        groups = sorted({r.group for r in recs})
+        if len(groups) > 1:
+            raise CurationError(f"units to merge must belong to one channel group, got groups "
+                                f"{', '.join(map(str, groups))}")
+        target, others = self.units[0], self.units[1:]
+        labels = {r.label for r in recs}
+        notes = list(dict.fromkeys(r.note for r in recs if r.note))
+        merged = Unit(group=groups[0], label=labels.pop() if len(labels) == 1 else "unreviewed",
+                      note=" | ".join(notes))
+        rows = np.concatenate([sorting.events_of(u) for u in others])
+        units_after: dict[int, Unit | None] = {target: merged, **{u: None for u in others}}
+        return _delta(sorting, rows, target, units_after)
+
+    def _params(self) -> dict[str, Any]:
+        return {"units": self.units}
+
+
+class MoveEvents(Operation):
+    """Selected events go to an existing unit, a new unit (``target=None``) or no unit (-1)."""
+
+    kind = "move_events"
+
+    def __init__(self, events: np.ndarray | None, target: int | None, *, encoded: str | None = None) -> None:
+        super().__init__()
+        self.target = None if target is None else _as_int(target, "target unit")
+        self._encoded = encoded
+        self.events = None if events is None else np.unique(np.asarray(events, dtype=np.int64))
+        if self.events is None and encoded is None:
+            raise CurationError("events to move must be given, got none")
+
+    @property
+    def text(self) -> str:
+        n = len(self.events) if self.events is not None else "selected"
+        dest = ("a new unit" if self.target is None else "no unit" if self.target == NO_UNIT
+                else f"unit {self.target}")
+        return f"Move {n} events to {dest}"
+
+    def _compute(self, sorting: Sorting) -> Delta:
+        n = len(sorting.data)
+        if self.events is None:
+            self.events = decode_indices(self._encoded, n)
+        _check_events(self.events, n)
+        groups = np.unique(sorting.data.group[self.events])
+        if self.target == NO_UNIT:
+            return _delta(sorting, self.events, NO_UNIT, {}) if self._changes(sorting) else self._none()
+        if len(groups) != 1:
+            raise CurationError(f"events to move must come from one channel group, got groups "
+                                f"{', '.join(map(str, groups[:8]))}")
+        group = int(groups[0])
+        if self.target is None:
+            new = sorting.next_id
+            return _delta(sorting, self.events, new, {new: Unit(group=group)}, (new,))
+        rec = sorting.unit(self.target)
+        if rec.group != group:
+            raise CurationError(f"target unit must belong to the events' group {group}, got unit "
+                                f"{self.target} of group {rec.group}")
+        return _delta(sorting, self.events, self.target, {}) if self._changes(sorting) else self._none()
+
+    def _changes(self, sorting: Sorting) -> bool:
+        return bool(np.any(sorting.assignments[self.events] != self.target))
+
+    def _none(self):
+        raise CurationError(f"events to move must not all be in unit {self.target} already, "
+                            f"got {len(self.events)} events there")
+
+    def _params(self) -> dict[str, Any]:
+        enc = self._encoded if self.events is None else encode_indices(self.events)
+        return {"events": enc, "target": self.target}
+
+    @classmethod
+    def _from_params(cls, p: dict[str, Any]) -> "MoveEvents":
+        target, encoded = p.pop("target"), p.pop("events")
+        if p:
+            raise TypeError(f"unexpected keys {sorted(p)}")
+        return cls(None, target, encoded=encoded)
+
+
+class ReclusterUnit(Operation):
+    """Cluster one unit's events again into ``k`` parts (``None``: chosen by BIC).
+
+    The part with the largest mean peak magnitude keeps the unit's id; the others are new.
+    """
+
+    kind = "recluster"
+
+    def __init__(self, unit: int, k: int | None = None, params: ClusterParams | None = None) -> None:
+        super().__init__()
+        self.unit = _as_int(unit, "unit")
+        if k is not None and (_as_int(k, "part count") < 2):
+            raise CurationError(f"part count must be at least 2, got {k}")
+        self.k = k
+        self.params = params or ClusterParams()
+        self.params.validate()
+
+    @property
+    def text(self) -> str:
+        return f"Recluster unit {self.unit}" + (f" into {self.k}" if self.k else "")
+
+    def _compute(self, sorting: Sorting) -> Delta:
+        rec = sorting.unit(self.unit)
+        idx = sorting.events_of(self.unit)
+        labels = cluster_features(sorting.data.features[idx], self.params, stream=self.unit, k=self.k)
+        n_parts = int(labels.max()) + 1 if len(labels) else 0
+        if n_parts < 2:
+            raise CurationError(f"unit {self.unit} must fall into at least 2 parts to be reclustered, "
+                                f"got {n_parts}")
+        mag = np.bincount(labels, np.abs(sorting.data.amplitude_uv[idx].astype(np.float64)), n_parts)
+        mag /= np.bincount(labels, minlength=n_parts)
+        rank = np.empty(n_parts, dtype=np.int64)
+        rank[np.argsort(-mag, kind="stable")] = np.arange(n_parts)
+        new_ids = sorting.next_id + np.arange(n_parts - 1)
+        ids = np.concatenate([[self.unit], new_ids]).astype(np.int32)
+        created = tuple(int(u) for u in new_ids)
+        return _delta(sorting, idx, ids[rank[labels]], {u: Unit(group=rec.group) for u in created}, created)
+
+    def _params(self) -> dict[str, Any]:
+        return {"unit": self.unit, "k": self.k, "params": self.params.to_dict()}
+
+    @classmethod
+    def _from_params(cls, p: dict[str, Any]) -> "ReclusterUnit":
+        try:
+            params = ClusterParams.from_dict(p.pop("params"))
+        except ParamError as exc:
+            raise CurationError(str(exc)) from None
+        return cls(params=params, **p)
+
+
+class Relabel(Operation):
+    """Give units a label (units already carrying it are left out)."""
+
+    kind = "relabel"
+
+    def __init__(self, units: list[int], label: str) -> None:
+        super().__init__()
+        if not isinstance(units, (list, tuple)) or not units:
+            raise CurationError(f"units to label must be a non-empty list, got {units!r}")
+        self.units = sorted({_as_int(u, "unit") for u in units})
+        if label not in LABELS:
+            raise CurationError(f"unit label must be one of {', '.join(LABELS)}, got {label!r}")
+        self.label = label
+
+    @property
+    def text(self) -> str:
+        s = "s" if len(self.units) > 1 else ""
+        return f"Label unit{s} {', '.join(map(str, self.units))} as {self.label}"
+
+    def _compute(self, sorting: Sorting) -> Delta:
+        after = {u: sorting.with_unit(u, label=self.label) for u in self.units
+                 if sorting.unit(u).label != self.label}
+        if not after:
+            raise CurationError(f"label must differ from the units' current label, got {self.label!r}")
+        return _delta(sorting, np.zeros(0, np.int64), np.zeros(0, np.int32), after)
+
+    def _params(self) -> dict[str, Any]:
+        return {"units": self.units, "label": self.label}
+
+
+class SetNote(Operation):
+    """Replace a unit's free-text note."""
+
+    kind = "note"
+
+    def __init__(self, unit: int, note: str) -> None:
+        super().__init__()
+        self.unit = _as_int(unit, "unit")
+        if not isinstance(note, str) or len(note) > MAX_NOTE_CHARS:
+            raise CurationError(f"note must be text of at most {MAX_NOTE_CHARS} characters, got "
+                                f"{type(note).__name__} of length {len(note) if isinstance(note, str) else '-'}")
+        self.note = note
+
+    @property
+    def text(self) -> str:
+        return f"Note on unit {self.unit}"
+
+    def _compute(self, sorting: Sorting) -> Delta:
+        if sorting.unit(self.unit).note == self.note:
+            raise CurationError(f"note must differ from the current note of unit {self.unit}, got the same text")
+        return _delta(sorting, np.zeros(0, np.int64), np.zeros(0, np.int32),
+                      {self.unit: sorting.with_unit(self.unit, note=self.note)})
+
+    def _params(self) -> dict[str, Any]:
+        return {"unit": self.unit, "note": self.note}
+
+
+OPERATIONS: dict[str, type[Operation]] = {c.kind: c for c in (
+    ClusterGroups, SplitByPolygon, MergeUnits, MoveEvents, ReclusterUnit, Relabel, SetNote)}
+
+
+def operation_from_record(rec: Any) -> Operation:
+    """Rebuild any operation from its journal record (:class:`CurationError` if malformed)."""
+    if not isinstance(rec, dict) or rec.get("op") not in OPERATIONS:
+        raise CurationError(f"journal record must name one of the operations {', '.join(OPERATIONS)}, "
+                            f"got {str(rec)[:80]!r}")
+    return OPERATIONS[rec["op"]].from_record(rec)

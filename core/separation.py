@@ -1,0 +1,254 @@
+"""Cluster separation in feature space: isolation distance and L-ratio.
+
+Both rest on the squared Mahalanobis distance of every event outside a unit from the unit's
+own mean, under the unit's own covariance::
+
+    D^2_i = (x_i - mu_C)^T Sigma_C^-1 (x_i - mu_C)
+
+- Isolation distance (Harris et al. 2001, Neuron 32:141-149): the n_C-th smallest D^2 among
+  the events outside the unit, n_C the number of events inside it. Undefined when fewer events
+  lie outside than inside.
+- L-ratio (Schmitzer-Torbert et al. 2005, Neuroscience 131:1-11): L = sum over outside events
+  of the chi-square survival function of D^2 with as many degrees of freedom as features;
+  L-ratio = L / n_C. Undefined when no event lies outside.
+
+The covariance is the sample covariance with the n - 1 normalisation (``np.cov`` default).
+Both assume a unit's events form a Gaussian cloud in feature space.
+"""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numba
+import numpy as np
+from scipy.linalg import solve_triangular
+
+from .errors import RigsideError
+from .metric_inputs import MetricValue, undefined
+
+_SINGULAR_RCOND = 1e-10
+"""Smallest eigenvalue ratio (min / max) of a usable covariance matrix."""
+
+
+@numba.njit(cache=True, nogil=True)
+def _chi2_sf(x, df):
+    """Chi-square survival function for an integer number of degrees of freedom.
+
+    Closed forms (Abramowitz & Stegun 26.4.4-5): with y = x/2, even df = 2m gives
+    exp(-y) * sum_{i<m} y^i / i!; odd df = 2m+1 gives erfc(sqrt(y)) plus
+    exp(-y) * sum_{i=1..m} y^(i-1/2) / Gamma(i+1/2). Terms are Poisson-like weights (at
+    most 1), summed directly while exp(-y) is representable and in logs beyond.
+    """
+    if x <= 0.0:
+        return 1.0
+    y = 0.5 * x
+    m = df // 2
+    if df % 2 == 0:
+        total = 0.0
+        if y < 700.0:
+            term = math.exp(-y)
+            for i in range(m):
+                if i > 0:
+                    term *= y / i
+                total += term
+        else:
+            ly = math.log(y)
+            for i in range(m):
+                total += math.exp(-y + i * ly - math.lgamma(i + 1.0))
+        return min(total, 1.0)
+    total = math.erfc(math.sqrt(y))
+    if m == 0:
+        return total
+    if y < 700.0:
+        term = math.exp(-y) * math.sqrt(y) / math.gamma(1.5)
+        for i in range(1, m + 1):
+            if i > 1:
+                term *= y / (i - 0.5)
+            total += term
+    else:
+        ly = math.log(y)
+        for i in range(1, m + 1):
+            total += math.exp(-y + (i - 0.5) * ly - math.lgamma(i + 0.5))
+    return min(total, 1.0)
+
+
+@numba.njit(cache=True, nogil=True)
+def _outside_distances(y, offset, in_unit, n_out):
+    """Squared norms of the whitened outside rows and their summed chi-square tail."""
+    n, d = y.shape
+    d2 = np.empty(n_out)
+    lsum = 0.0
+    k = 0
+    for i in range(n):
+        if in_unit[i]:
+            continue
+        s = 0.0
+        for j in range(d):
+            v = y[i, j] - offset[j]
+            s += v * v
+        d2[k] = s
+        lsum += _chi2_sf(s, d)
+        k += 1
+    return d2, lsum
+
+
+@numba.njit(cache=True, nogil=True)
+def _chi2_sf_flat(x, df):
+    out = np.empty(x.size)
+    for i in range(x.size):
+        out[i] = _chi2_sf(x[i], df)
+    return out
+
+
+def chi2_sf(x: np.ndarray, df: int) -> np.ndarray:
+    """Chi-square survival function for integer ``df`` >= 1 (closed form, compiled).
+
+    Parameters
+    ----------
+    x
+        Values (any shape); values at or below 0 give 1.
+    df
+        Degrees of freedom, a positive integer.
+
+    Returns
+    -------
+    numpy.ndarray
+        P(X > x) for X chi-square with ``df`` degrees of freedom, shaped like ``x``.
+    """
+    x = np.asarray(x, dtype=np.float64)
+    return _chi2_sf_flat(np.ascontiguousarray(x).ravel(), int(df)).reshape(x.shape)
+
+
+@dataclass(frozen=True)
+class Separation:
+    """Isolation distance and L-ratio of one unit, from one pass over the distances.
+
+    Attributes
+    ----------
+    isolation_distance, l_ratio
+        Value with reason (NaN and a reason when undefined).
+    n_inside, n_outside, n_features
+        Events inside and outside the unit, and the feature-space dimension.
+    """
+
+    isolation_distance: MetricValue
+    l_ratio: MetricValue
+    n_inside: int
+    n_outside: int
+    n_features: int
+
+
+def _checked(features, in_unit) -> tuple[np.ndarray, np.ndarray]:
+    x = np.asarray(features, dtype=np.float64)
+    if x.ndim == 1:
+        x = x[:, None]
+    if x.ndim != 2:
+        raise RigsideError(f"features must be a 2-D array (events x features), got shape {x.shape}")
+    mask = np.asarray(in_unit)
+    if mask.dtype != np.bool_ or mask.shape != (len(x),):
+        raise RigsideError(f"unit mask must be a boolean array with one entry per event ({len(x)}), "
+                           f"got dtype {mask.dtype} and shape {mask.shape}")
+    if not np.all(np.isfinite(x)):
+        raise RigsideError(f"features must hold finite numbers, got "
+                           f"{int(np.count_nonzero(~np.isfinite(x)))} NaN or infinite values")
+    return x, mask
+
+
+def separation_of_checked(x: np.ndarray, in_unit: np.ndarray) -> Separation:
+    """:func:`cluster_separation` for arrays already checked (float64 2-D, boolean mask)."""
+    n_in = int(np.count_nonzero(in_unit))
+    n_out = len(x) - n_in
+    d = x.shape[1]
+
+    def both_undefined(reason: str) -> Separation:
+        return Separation(undefined(reason), undefined(reason), n_in, n_out, d)
+
+    if n_in <= d:
+        return both_undefined(f"the unit has {n_in} events; a covariance over {d} features "
+                              f"needs at least {d + 1}")
+    inside = x[in_unit]
+    mu = inside.mean(axis=0)
+    cov = np.atleast_2d(np.cov(inside, rowvar=False))
+    eig = np.linalg.eigvalsh(cov)
+    if not eig[-1] > 0 or eig[0] <= eig[-1] * _SINGULAR_RCOND:
+        return both_undefined("the unit's feature covariance is singular (its events lie on a "
+                              "lower-dimensional subspace)")
+    if n_out == 0:
+        return both_undefined("no events lie outside the unit in its feature space")
+    chol = np.linalg.cholesky(cov)
+    whiten = solve_triangular(chol, np.eye(d), lower=True)
+    y = x @ whiten.T
+    d2, lsum = _outside_distances(np.ascontiguousarray(y), whiten @ mu, in_unit, n_out)
+    lr = MetricValue(lsum / n_in)
+    if n_out < n_in:
+        iso = undefined(f"fewer events outside the unit ({n_out}) than inside ({n_in})")
+    else:
+        iso = MetricValue(float(np.partition(d2, n_in - 1)[n_in - 1]))
+    return Separation(iso, lr, n_in, n_out, d)
+
+
+def cluster_separation(features: np.ndarray, in_unit: np.ndarray) -> Separation:
+    """Isolation distance and L-ratio of the events in ``in_unit`` against all other events.
+
+    Parameters
+    ----------
+    features
+        Events x features (e.g. principal components of the waveforms of one channel group).
+    in_unit
+        Boolean mask, True for the unit's events.
+
+    Returns
+    -------
+    Separation
+        Both metrics with reasons. The unit's covariance uses the n - 1 normalisation
+        (``np.cov`` default). Undefined (NaN with a reason) when the unit has no more events
+        than features, its covariance is singular, or (isolation distance) fewer events lie
+        outside than inside, or (L-ratio) none lie outside.
+    """
+    x, mask = _checked(features, in_unit)
+    return separation_of_checked(x, mask)
+
+
+def isolation_distance(features: np.ndarray, in_unit: np.ndarray) -> MetricValue:
+    """Isolation distance (Harris et al. 2001): the n_C-th smallest squared Mahalanobis
+    distance, from the unit's mean under its covariance (n - 1 normalisation), among the
+    events outside the unit.
+
+    Parameters
+    ----------
+    features
+        Events x features.
+    in_unit
+        Boolean mask of the unit's events.
+
+    Returns
+    -------
+    MetricValue
+        ``value`` in squared-distance units (larger: better isolated), or NaN with ``reason``
+        when fewer events lie outside than inside, the covariance is singular, or the unit has
+        too few events.
+    """
+    return cluster_separation(features, in_unit).isolation_distance
+
+
+def l_ratio(features: np.ndarray, in_unit: np.ndarray) -> MetricValue:
+    """L-ratio (Schmitzer-Torbert et al. 2005): the sum over outside events of the chi-square
+    survival function (df = number of features) of their squared Mahalanobis distance from the
+    unit, divided by the unit's event count. Covariance with the n - 1 normalisation.
+
+    Parameters
+    ----------
+    features
+        Events x features.
+    in_unit
+        Boolean mask of the unit's events.
+
+    Returns
+    -------
+    MetricValue
+        ``value`` (smaller: better isolated), or NaN with ``reason`` when no event lies outside,
+        the covariance is singular, or the unit has too few events.
+    """
+    return cluster_separation(features, in_unit).l_ratio

@@ -1,0 +1,110 @@
+"""Waveform snippets: filtered windows around events on their group's channels."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .filtering import BandPass
+from .params import SnippetParams
+from .progress import CancelFn, check
+
+MAX_SPAN = 1 << 18  # longest single filtered read when gathering snippets (samples)
+
+
+def snippet_window(params: SnippetParams, rate_hz: float) -> tuple[int, int]:
+    """Samples before and after the peak sample (the window is ``[-before, after)``)."""
+    params.validate()
+    return int(round(params.before_ms * rate_hz / 1000)), max(1, int(round(params.after_ms * rate_hz / 1000)))
+
+
+def snippet_times_ms(params: SnippetParams, rate_hz: float) -> np.ndarray:
+    """Time of each snippet sample relative to the peak, in milliseconds."""
+    before, after = snippet_window(params, rate_hz)
+    return np.arange(-before, after) * 1000.0 / rate_hz
+
+
+def extract_snippets(bandpass: BandPass, samples: np.ndarray, channels: np.ndarray,
+                     params: SnippetParams, cancel: CancelFn = None) -> np.ndarray:
+    """Filtered snippets around peak samples, on the given channels.
+
+    Parameters
+    ----------
+    bandpass
+        Band-pass bound to the recording.
+    samples
+        Peak samples, sorted ascending.
+    channels
+        Channels to cut (usually the events' group).
+    params
+        Window before and after the peak.
+    cancel
+        Cancel check, called between reads.
+
+    Returns
+    -------
+    numpy.ndarray
+        float32 ``(len(samples), before + after, len(channels))`` in microvolts. Windows that
+        run past the file's ends are zero-padded there.
+    """
+    samples = np.asarray(samples, dtype=np.int64)
+    channels = np.asarray(channels, dtype=np.int64)
+    if len(samples) > 1 and np.any(np.diff(samples) < 0):
+        raise ValueError("snippet samples must be sorted, got unsorted samples")
+    n_total = bandpass.recording.n_samples
+    before, after = snippet_window(params, bandpass.recording.rate_hz)
+    length = before + after
+    out = np.zeros((len(samples), length, len(channels)), dtype=np.float32)
+    if not len(samples):
+        return out
+    # merge events into spans: a new read starts where the gap is wider than two margins
+    gap = np.diff(samples) > 2 * bandpass.margin + length
+    starts = np.concatenate([[0], np.flatnonzero(gap) + 1])
+    ends = np.concatenate([starts[1:], [len(samples)]])
+    offs = np.arange(-before, after)
+    for a, b in zip(starts, ends):
+        i = a
+        while i < b:
+            check(cancel)
+            j = i + int(np.searchsorted(samples[i:b], samples[i] + MAX_SPAN, side="left"))
+            j = max(j, i + 1)
+            lo = max(0, int(samples[i]) - before)
+            hi = min(n_total, int(samples[j - 1]) + after)
+            y = bandpass.read(lo, hi, channels)
+            idx = samples[i:j, None] + offs[None, :] - lo
+            valid = (idx >= 0) & (idx < hi - lo)
+            out[i:j] = np.where(valid[..., None], y[np.clip(idx, 0, hi - lo - 1)], 0.0)
+            i = j
+    return out
+
+
+def event_snippets(recording, events, params, index: np.ndarray, bandpass: BandPass | None = None,
+                   cancel: CancelFn = None) -> tuple[np.ndarray, np.ndarray]:
+    """Snippets of chosen events, which must all belong to one channel group.
+
+    Parameters
+    ----------
+    recording
+        The recording the events came from.
+    events
+        The :class:`~core.events.EventTable`.
+    params
+        Full :class:`~core.params.Params` (filter and snippet sections are used).
+    index
+        Indices of the events to cut (any order; the result follows it).
+
+    Returns
+    -------
+    snippets, channels
+        float32 ``(len(index), samples, channels)`` and the group's channel indices.
+    """
+    index = np.asarray(index, dtype=np.int64)
+    groups = np.unique(events.group[index])
+    if len(groups) > 1:
+        raise ValueError(f"snippet events must come from one channel group, got groups {groups.tolist()}")
+    channels = recording.groups[int(groups[0])] if len(groups) else recording.groups[0]
+    bp = bandpass or BandPass(recording, params.filter)
+    order = np.argsort(events.sample[index], kind="stable")
+    snips = extract_snippets(bp, events.sample[index][order], channels, params.snippets, cancel)
+    out = np.empty_like(snips)
+    out[order] = snips
+    return out, channels
