@@ -34,7 +34,8 @@ def fsync_file(path: str | Path) -> None:
         os.close(fd)
 
 
-def atomic_write(path: str | Path, write: Callable[[Path], None], tmp_suffix: str = ".tmp") -> Path:
+def atomic_write(path: str | Path, write: Callable[[Path], None], tmp_suffix: str = ".tmp",
+                 before_replace: Callable[[], None] | None = None) -> Path:
     """Write ``path`` atomically.
 
     Parameters
@@ -45,6 +46,9 @@ def atomic_write(path: str | Path, write: Callable[[Path], None], tmp_suffix: st
         Called with the temporary path; must create and close that file.
     tmp_suffix
         Appended to the file name for the temporary file.
+    before_replace
+        Called after the temporary file is complete and durable, just before the rename
+        (e.g. to keep the previous file as a backup).
 
     Returns
     -------
@@ -57,6 +61,8 @@ def atomic_write(path: str | Path, write: Callable[[Path], None], tmp_suffix: st
     try:
         write(tmp)
         fsync_file(tmp)
+        if before_replace is not None:
+            before_replace()
         os.replace(tmp, path)
     except BaseException:
         tmp.unlink(missing_ok=True)

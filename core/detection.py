@@ -8,8 +8,9 @@ this definition does not depend on the threshold, the events at any threshold ab
 floor are exactly the stored events whose amplitude reaches it: counts for a new
 threshold are a sorted look-up, never a new pass over the file.
 
-Artefacts: samples where at least a given fraction of all live channels exceed a level
-(in sigma, either sign) mark every event within a window of them as an artefact.
+Artefacts: samples where at least a given fraction of all live channels, and more channels
+than the largest group holds, exceed a level (in sigma, either sign) mark every event within
+a window of them as an artefact.
 """
 
 from __future__ import annotations
@@ -176,7 +177,9 @@ def detect_block(y: np.ndarray, first_sample: int, lo: int, hi: int, sigma_uv: n
     with np.errstate(divide="ignore"):
         inv = np.where(sigma_uv > 0, 1.0 / np.where(sigma_uv > 0, sigma_uv, 1.0), 0.0).astype(np.float32)
     live = int(np.count_nonzero(inv))
-    art_count = max(1, int(np.ceil(artefact_fraction * live)))
+    # a spike can reach every channel of its own group: an artefact must reach more channels
+    # than the largest group holds (so recordings with one group have no artefact rule)
+    art_count = max(int(np.ceil(artefact_fraction * live)), max(len(g) for g in groups) + 1)
     gch = np.concatenate(groups).astype(np.int64)
     goff = np.concatenate([[0], np.cumsum([len(g) for g in groups])]).astype(np.int64)
     t, c, g, a, s, art = _detect_block(np.ascontiguousarray(y, dtype=np.float32), inv,

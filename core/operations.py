@@ -1,11 +1,8 @@
 """Curation operations on a :class:`core.sorting.Sorting`, each exactly undoable.
 
 Every operation is an object with ``do(sorting)`` / ``undo(sorting)``, a ``text`` for menus
-(e.g. "Merge units 3, 5"), and ``to_record()`` / ``from_record()`` for the journal. The first
-``do`` (or an explicit ``prepare``, which may run on a worker thread) computes a
-:class:`core.sorting.Delta` holding only the changed events and unit records; ``undo``
-writes the old values back and a later ``do`` (redo) writes the new ones again, so both are
-bitwise exact and cost time in proportion to the events changed.
+(e.g. "Merge units 3, 5"), and ``to_record()`` / ``from_record()`` for the journal (see
+:mod:`core.operation_base` for the mechanism).
 
 Rules kept by every operation: an event only joins units of its own channel group; a unit
 that keeps its id keeps its label and note; new units are "unreviewed"; new ids come from
@@ -14,149 +11,17 @@ the sorting's counter, so replaying the same operations gives the same ids.
 
 from __future__ import annotations
 
-import base64
-import zlib
-from typing import Any, ClassVar
+from typing import Any
 
 import numpy as np
 
 from .clustering import NO_UNIT, ClusterParams, cluster_features, first_pass_assignments
 from .errors import ParamError
-from .polygon import points_in_polygon, check_polygon
+from .operation_base import (MAX_NOTE_CHARS, Operation, as_int, check_events, decode_indices, encode_indices,
+                             make_delta)
+from .polygon import check_polygon, points_in_polygon
 from .progress import CancelFn, ProgressFn
 from .sorting import LABELS, CurationError, Delta, Sorting, Unit
-
-MAX_NOTE_CHARS = 20_000
-
-
-def encode_indices(index: np.ndarray) -> str:
-    """Sorted unique event indices as text: zlib-compressed little-endian int64 steps, base64."""
-    steps = np.diff(np.asarray(index, dtype=np.int64), prepend=0).astype("<i8")
-    return base64.b64encode(zlib.compress(steps.tobytes(), 6)).decode("ascii")
-
-
-def decode_indices(text: str, n_events: int) -> np.ndarray:
-    """Inverse of :func:`encode_indices`, refusing anything that is not sorted indices below ``n_events``."""
-    if not isinstance(text, str):
-        raise CurationError(f"event list must be encoded text, got {type(text).__name__}")
-    try:
-        packed = base64.b64decode(text.encode("ascii"), validate=True)
-        d = zlib.decompressobj()
-        raw = d.decompress(packed, 8 * n_events + 8)
-        if d.unconsumed_tail or not d.eof:
-            raise CurationError(f"event list must hold at most {n_events} events, got more or a truncated list")
-    except (ValueError, zlib.error) as exc:
-        raise CurationError(f"event list must be base64 zlib data, got undecodable text ({exc})") from None
-    if len(raw) % 8:
-        raise CurationError(f"event list must hold whole 8-byte steps, got {len(raw)} bytes")
-    idx = np.cumsum(np.frombuffer(raw, dtype="<i8").astype(np.int64))
-    _check_events(idx, n_events)
-    return idx
-
-
-def _check_events(idx: np.ndarray, n_events: int) -> None:
-    if len(idx) == 0:
-        raise CurationError("event selection must hold at least one event, got none")
-    if idx[0] < 0 or idx[-1] >= n_events or (len(idx) > 1 and np.any(np.diff(idx) <= 0)):
-        raise CurationError(f"event selection must hold distinct indices from 0 to {n_events - 1}, "
-                            f"got values from {int(idx.min())} to {int(idx.max())}")
-
-
-def _as_int(value: Any, what: str) -> int:
-    if isinstance(value, bool) or not isinstance(value, (int, np.integer)):
-        raise CurationError(f"{what} must be an integer, got {value!r}")
-    return int(value)
-
-
-def _delta(sorting: Sorting, rows: np.ndarray, new_ids: np.ndarray, units_after: dict[int, Unit | None],
-           created: tuple[int, ...] = ()) -> Delta:
-    """A delta holding only the events whose unit really changes."""
-    rows = np.asarray(rows, dtype=np.int64)
-    new_ids = np.broadcast_to(np.asarray(new_ids, dtype=np.int32), rows.shape)
-    old = sorting.assignments[rows]
-    moved = old != new_ids
-    order = np.argsort(rows[moved], kind="stable")
-    current = sorting.units
-    return Delta(index=rows[moved][order], before=old[moved][order], after=new_ids[moved][order].copy(),
-                 units_before={u: current.get(u) for u in units_after}, units_after=dict(units_after),
-                 next_id_before=sorting.next_id, next_id_after=sorting.next_id + len(created),
-                 created=created)
-
-
-class Operation:
-    """Base of all curation operations (see the module docstring)."""
-
-    kind: ClassVar[str] = ""
-
-    def __init__(self) -> None:
-        self._delta: Delta | None = None
-        self._prepared_at = -1
-        self._final = False
-        self._expected_created: tuple[int, ...] | None = None
-        self.journal_seq: int | None = None
-
-    @property
-    def text(self) -> str:
-        raise NotImplementedError
-
-    def _compute(self, sorting: Sorting) -> Delta:
-        raise NotImplementedError
-
-    def _params(self) -> dict[str, Any]:
-        raise NotImplementedError
-
-    def prepare(self, sorting: Sorting) -> Delta:
-        """Compute the change against the sorting's current state (no change applied)."""
-        if self._delta is None or (not self._final and self._prepared_at != sorting.revision):
-            delta = self._compute(sorting)
-            if self._expected_created is not None and delta.created != self._expected_created:
-                raise CurationError(f"replayed operation '{self.text}' must create units "
-                                    f"{list(self._expected_created)}, got {list(delta.created)}")
-            self._delta, self._prepared_at = delta, sorting.revision
-        return self._delta
-
-    def do(self, sorting: Sorting) -> None:
-        """Apply (first time: compute then apply; later: reapply the same change)."""
-        delta = self.prepare(sorting)
-        self._final = True
-        sorting.apply(delta, forward=True)
-
-    def undo(self, sorting: Sorting) -> None:
-        """Restore exactly the state before :meth:`do`."""
-        if not self._final:
-            raise CurationError(f"operation '{self.text}' must be done before it is undone")
-        sorting.apply(self._delta, forward=False)
-
-    @property
-    def created(self) -> tuple[int, ...]:
-        """Ids of the units this operation creates (known once prepared)."""
-        return self._delta.created if self._delta is not None else ()
-
-    def to_record(self) -> dict[str, Any]:
-        """Parameters for the journal (JSON-ready)."""
-        rec = {"op": self.kind, **self._params()}
-        if self._final:
-            rec["created"] = list(self._delta.created)
-        return rec
-
-    @classmethod
-    def from_record(cls, rec: dict[str, Any]) -> "Operation":
-        """Rebuild from :meth:`to_record` output (checked; :class:`CurationError` if malformed)."""
-        try:
-            op = cls._from_params({k: v for k, v in rec.items() if k not in ("op", "created")})
-        except (TypeError, KeyError) as exc:
-            raise CurationError(f"journal record of '{cls.kind}' must hold exactly its parameters, "
-                                f"got a problem with {exc}") from None
-        if "created" in rec:
-            created = rec["created"]
-            if not isinstance(created, list):
-                raise CurationError(f"created units must be a list, got {created!r}")
-            op._expected_created = tuple(_as_int(u, "created unit id") for u in created)
-        return op
-
-    @classmethod
-    def _from_params(cls, p: dict[str, Any]) -> "Operation":
-        return cls(**p)
 
 
 class ClusterGroups(Operation):
@@ -169,7 +34,7 @@ class ClusterGroups(Operation):
         super().__init__()
         self.params = params or ClusterParams()
         self.params.validate()
-        self.groups = None if groups is None else sorted({_as_int(g, "group") for g in groups})
+        self.groups = None if groups is None else sorted({as_int(g, "group") for g in groups})
         self.progress, self.cancel = progress, cancel
 
     @property
@@ -189,7 +54,7 @@ class ClusterGroups(Operation):
         units_after: dict[int, Unit | None] = {u: None for u, rec in sorting.units.items()
                                                if rec.group in set(todo.tolist())}
         units_after.update({u: Unit(group=g) for u, g in unit_group.items()})
-        return _delta(sorting, rows, new[rows], units_after, tuple(sorted(unit_group)))
+        return make_delta(sorting, rows, new[rows], units_after, tuple(sorted(unit_group)))
 
     def _params(self) -> dict[str, Any]:
         return {"params": self.params.to_dict(), "groups": self.groups}
@@ -215,7 +80,7 @@ class SplitByPolygon(Operation):
 
     def __init__(self, unit: int, x_axis: str, y_axis: str, vertices: list[list[float]]) -> None:
         super().__init__()
-        self.unit = _as_int(unit, "unit")
+        self.unit = as_int(unit, "unit")
         self.x_axis, self.y_axis = str(x_axis), str(y_axis)
         self.vertices = check_polygon(vertices)
 
@@ -233,7 +98,7 @@ class SplitByPolygon(Operation):
             raise CurationError(f"polygon must enclose some but not all events of unit {self.unit}, "
                                 f"got {n_in} of {len(idx)}")
         new = sorting.next_id
-        return _delta(sorting, idx[inside], new, {new: Unit(group=rec.group)}, (new,))
+        return make_delta(sorting, idx[inside], new, {new: Unit(group=rec.group)}, (new,))
 
     def _params(self) -> dict[str, Any]:
         return {"unit": self.unit, "x_axis": self.x_axis, "y_axis": self.y_axis,
@@ -253,7 +118,7 @@ class MergeUnits(Operation):
         super().__init__()
         if not isinstance(units, (list, tuple)):
             raise CurationError(f"units to merge must be a list, got {units!r}")
-        self.units = sorted({_as_int(u, "unit") for u in units})
+        self.units = sorted({as_int(u, "unit") for u in units})
         if len(self.units) < 2:
             raise CurationError(f"units to merge must be at least two distinct units, got {self.units}")
 
@@ -274,7 +139,7 @@ class MergeUnits(Operation):
                       note=" | ".join(notes))
         rows = np.concatenate([sorting.events_of(u) for u in others])
         units_after: dict[int, Unit | None] = {target: merged, **{u: None for u in others}}
-        return _delta(sorting, rows, target, units_after)
+        return make_delta(sorting, rows, target, units_after)
 
     def _params(self) -> dict[str, Any]:
         return {"units": self.units}
@@ -287,7 +152,7 @@ class MoveEvents(Operation):
 
     def __init__(self, events: np.ndarray | None, target: int | None, *, encoded: str | None = None) -> None:
         super().__init__()
-        self.target = None if target is None else _as_int(target, "target unit")
+        self.target = None if target is None else as_int(target, "target unit")
         self._encoded = encoded
         self.events = None if events is None else np.unique(np.asarray(events, dtype=np.int64))
         if self.events is None and encoded is None:
@@ -304,22 +169,22 @@ class MoveEvents(Operation):
         n = len(sorting.data)
         if self.events is None:
             self.events = decode_indices(self._encoded, n)
-        _check_events(self.events, n)
+        check_events(self.events, n)
         groups = np.unique(sorting.data.group[self.events])
         if self.target == NO_UNIT:
-            return _delta(sorting, self.events, NO_UNIT, {}) if self._changes(sorting) else self._none()
+            return make_delta(sorting, self.events, NO_UNIT, {}) if self._changes(sorting) else self._none()
         if len(groups) != 1:
             raise CurationError(f"events to move must come from one channel group, got groups "
                                 f"{', '.join(map(str, groups[:8]))}")
         group = int(groups[0])
         if self.target is None:
             new = sorting.next_id
-            return _delta(sorting, self.events, new, {new: Unit(group=group)}, (new,))
+            return make_delta(sorting, self.events, new, {new: Unit(group=group)}, (new,))
         rec = sorting.unit(self.target)
         if rec.group != group:
             raise CurationError(f"target unit must belong to the events' group {group}, got unit "
                                 f"{self.target} of group {rec.group}")
-        return _delta(sorting, self.events, self.target, {}) if self._changes(sorting) else self._none()
+        return make_delta(sorting, self.events, self.target, {}) if self._changes(sorting) else self._none()
 
     def _changes(self, sorting: Sorting) -> bool:
         return bool(np.any(sorting.assignments[self.events] != self.target))
@@ -350,8 +215,8 @@ class ReclusterUnit(Operation):
 
     def __init__(self, unit: int, k: int | None = None, params: ClusterParams | None = None) -> None:
         super().__init__()
-        self.unit = _as_int(unit, "unit")
-        if k is not None and (_as_int(k, "part count") < 2):
+        self.unit = as_int(unit, "unit")
+        if k is not None and (as_int(k, "part count") < 2):
             raise CurationError(f"part count must be at least 2, got {k}")
         self.k = k
         self.params = params or ClusterParams()
@@ -376,7 +241,7 @@ class ReclusterUnit(Operation):
         new_ids = sorting.next_id + np.arange(n_parts - 1)
         ids = np.concatenate([[self.unit], new_ids]).astype(np.int32)
         created = tuple(int(u) for u in new_ids)
-        return _delta(sorting, idx, ids[rank[labels]], {u: Unit(group=rec.group) for u in created}, created)
+        return make_delta(sorting, idx, ids[rank[labels]], {u: Unit(group=rec.group) for u in created}, created)
 
     def _params(self) -> dict[str, Any]:
         return {"unit": self.unit, "k": self.k, "params": self.params.to_dict()}
@@ -399,7 +264,7 @@ class Relabel(Operation):
         super().__init__()
         if not isinstance(units, (list, tuple)) or not units:
             raise CurationError(f"units to label must be a non-empty list, got {units!r}")
-        self.units = sorted({_as_int(u, "unit") for u in units})
+        self.units = sorted({as_int(u, "unit") for u in units})
         if label not in LABELS:
             raise CurationError(f"unit label must be one of {', '.join(LABELS)}, got {label!r}")
         self.label = label
@@ -414,7 +279,7 @@ class Relabel(Operation):
                  if sorting.unit(u).label != self.label}
         if not after:
             raise CurationError(f"label must differ from the units' current label, got {self.label!r}")
-        return _delta(sorting, np.zeros(0, np.int64), np.zeros(0, np.int32), after)
+        return make_delta(sorting, np.zeros(0, np.int64), np.zeros(0, np.int32), after)
 
     def _params(self) -> dict[str, Any]:
         return {"units": self.units, "label": self.label}
@@ -427,7 +292,7 @@ class SetNote(Operation):
 
     def __init__(self, unit: int, note: str) -> None:
         super().__init__()
-        self.unit = _as_int(unit, "unit")
+        self.unit = as_int(unit, "unit")
         if not isinstance(note, str) or len(note) > MAX_NOTE_CHARS:
             raise CurationError(f"note must be text of at most {MAX_NOTE_CHARS} characters, got "
                                 f"{type(note).__name__} of length {len(note) if isinstance(note, str) else '-'}")
@@ -440,7 +305,7 @@ class SetNote(Operation):
     def _compute(self, sorting: Sorting) -> Delta:
         if sorting.unit(self.unit).note == self.note:
             raise CurationError(f"note must differ from the current note of unit {self.unit}, got the same text")
-        return _delta(sorting, np.zeros(0, np.int64), np.zeros(0, np.int32),
+        return make_delta(sorting, np.zeros(0, np.int64), np.zeros(0, np.int32),
                       {self.unit: sorting.with_unit(self.unit, note=self.note)})
 
     def _params(self) -> dict[str, Any]:

@@ -23,7 +23,6 @@ from dataclasses import dataclass
 
 import numba
 import numpy as np
-from scipy.linalg import solve_triangular
 
 from .errors import RigsideError
 from .metric_inputs import MetricValue, undefined
@@ -75,19 +74,28 @@ def _chi2_sf(x, df):
 
 
 @numba.njit(cache=True, nogil=True)
-def _outside_distances(y, offset, in_unit, n_out):
-    """Squared norms of the whitened outside rows and their summed chi-square tail."""
-    n, d = y.shape
+def _outside_distances(x, mu, whiten, in_unit, n_out):
+    """Squared Mahalanobis distances of the outside rows and their summed chi-square tail.
+
+    ``whiten`` is the inverse of the lower Cholesky factor of the unit's covariance (lower
+    triangular), so D^2 = |whiten @ (x - mu)|^2.
+    """
+    n, d = x.shape
     d2 = np.empty(n_out)
+    v = np.empty(d)
     lsum = 0.0
     k = 0
     for i in range(n):
         if in_unit[i]:
             continue
-        s = 0.0
         for j in range(d):
-            v = y[i, j] - offset[j]
-            s += v * v
+            v[j] = x[i, j] - mu[j]
+        s = 0.0
+        for r in range(d):
+            y = 0.0
+            for c in range(r + 1):
+                y += whiten[r, c] * v[c]
+            s += y * y
         d2[k] = s
         lsum += _chi2_sf(s, d)
         k += 1
@@ -177,10 +185,8 @@ def separation_of_checked(x: np.ndarray, in_unit: np.ndarray) -> Separation:
                               "lower-dimensional subspace)")
     if n_out == 0:
         return both_undefined("no events lie outside the unit in its feature space")
-    chol = np.linalg.cholesky(cov)
-    whiten = solve_triangular(chol, np.eye(d), lower=True)
-    y = x @ whiten.T
-    d2, lsum = _outside_distances(np.ascontiguousarray(y), whiten @ mu, in_unit, n_out)
+    whiten = np.tril(np.linalg.inv(np.linalg.cholesky(cov)))
+    d2, lsum = _outside_distances(np.ascontiguousarray(x), mu, whiten, in_unit, n_out)
     lr = MetricValue(lsum / n_in)
     if n_out < n_in:
         iso = undefined(f"fewer events outside the unit ({n_out}) than inside ({n_in})")

@@ -1,0 +1,49 @@
+"""The ``rigside`` command line. Imports Qt only for the window commands."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+from core import __version__
+from core.errors import RigsideError
+from core.progress import Cancelled
+
+EXIT_OK, EXIT_FAILURE, EXIT_INPUT, EXIT_CANCELLED = 0, 1, 2, 130
+COMMAND_MODULES = ("cmd_detect", "cmd_window")
+
+
+def build_parser() -> argparse.ArgumentParser:
+    """The argument parser with every command registered."""
+    p = argparse.ArgumentParser(prog="rigside", description="From raw extracellular recordings to curated, "
+                                "quality-scored spike trains. Run without a command to open the window.")
+    p.add_argument("--version", action="version", version=f"rigside {__version__}")
+    sub = p.add_subparsers(dest="command", metavar="COMMAND")
+    import importlib
+    for name in COMMAND_MODULES:
+        importlib.import_module(f"app.{name}").register(sub)
+    return p
+
+
+def main(argv: list[str] | None = None) -> int:
+    """Run a command; returns the exit code (0 ok, 1 failure, 2 input error, 130 cancelled)."""
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if args.command is None:
+        from .cmd_window import run_window_command
+        return run_window_command(None)
+    try:
+        return int(args.func(args) or 0)
+    except RigsideError as exc:
+        print(f"rigside {args.command}: error: {exc}", file=sys.stderr)
+        return EXIT_INPUT
+    except (FileNotFoundError, PermissionError, IsADirectoryError) as exc:
+        print(f"rigside {args.command}: error: {exc.strerror or exc}: {exc.filename}", file=sys.stderr)
+        return EXIT_INPUT
+    except (Cancelled, KeyboardInterrupt):
+        print(f"rigside {args.command}: cancelled", file=sys.stderr)
+        return EXIT_CANCELLED
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,397 @@
+"""Session files: one HDF5 file of our own layout holding a whole sorting session.
+
+Layout (format version 1)::
+
+    /                 attrs format="rigside session", format_version, program_version,
+                      saved_utc, checksum (SHA-256 of everything else, see core.h5safe)
+    /recording        attrs path, size, fingerprint, description (JSON)
+    /params           attrs json (Params.to_dict() as JSON)
+    /events           the event table (EventTable.to_h5_group)
+    /features/values  float32 events x features;   attrs names (JSON list)
+    /sorting/assignments  int32 unit id per event (-1: in no unit)
+    /sorting/unit_id, unit_group (int32), unit_label (uint8, index into LABELS)
+    /sorting/notes    UTF-8 JSON list of one note per unit (uint8 dataset); attrs next_id
+    /journal/lines    UTF-8 JSON lines (uint8 dataset)
+
+No pickled or executable content is written or accepted. Saving is atomic: ``NAME.tmp`` is
+written, flushed, fsynced and renamed over ``NAME``; the previous ``NAME`` (if it verifies)
+becomes ``NAME.bak`` first, by a hard link where possible. ``NAME.autosave.h5`` is written
+the same way by :func:`save_autosave`. :func:`find_states` and :func:`recover` pick the
+newest consistent state among the main file, the autosave and the backup.
+"""
+
+from __future__ import annotations
+
+import json
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+from types import SimpleNamespace
+
+import h5py
+import numpy as np
+
+from . import __version__
+from .atomic import atomic_copy_bytes, atomic_write, fsync_dir
+from .errors import RigsideError, SessionError
+from .events import COLUMNS, EventTable
+from .h5safe import CHECKSUM_ATTR, array, attr, read_verified, text, write_text
+from .journal import Journal, utc_now
+from .params import Params
+from .recording import Recording
+from .sorting import LABELS, Sorting, SortingData, Unit
+
+FORMAT = "rigside session"
+FORMAT_VERSION = 1
+
+
+class RecordingMoved(SessionError):
+    """The session's recording is not at its recorded path; ask the user where it is and
+    load again with ``recording_path_override``."""
+
+    def __init__(self, recorded_path: str, session_path: str) -> None:
+        self.recorded_path, self.session_path = recorded_path, session_path
+        super().__init__(f"recording of session {session_path!r} must exist at its recorded path, got no "
+                         f"file at {recorded_path!r} (moved or renamed?)")
+
+
+class RecordingChanged(SessionError):
+    """The file at the recording path differs from the one the session was made from."""
+
+
+@dataclass
+class RecordingRef:
+    """Where the raw recording is and how to recognise it."""
+
+    path: str
+    size: int
+    fingerprint: str
+    description: dict = field(default_factory=dict)
+
+    @classmethod
+    def from_recording(cls, recording: Recording) -> "RecordingRef":
+        p = Path(recording.path).resolve()
+        return cls(str(p), p.stat().st_size, recording.fingerprint(), recording.describe())
+
+
+@dataclass
+class Session:
+    """Everything a session file holds (``source`` is the file it was read from, if any)."""
+
+    recording: RecordingRef
+    params: Params
+    events: EventTable
+    sorting: Sorting
+    program_version: str = __version__
+    saved_utc: str = ""
+    source: Path | None = None
+
+
+def backup_path(path: str | Path) -> Path:
+    return Path(str(path) + ".bak")
+
+
+def autosave_path(path: str | Path) -> Path:
+    p = Path(path)
+    return p.with_name(p.name + ".autosave.h5")
+
+
+def file_fingerprint(path: str | Path) -> str:
+    """The fingerprint :meth:`Recording.fingerprint` gives for the file at ``path``."""
+    return Recording.fingerprint(SimpleNamespace(path=Path(path)))
+
+
+# ---- writing -------------------------------------------------------------------------------
+def _write(tmp: Path, s: Session, saved_utc: str) -> None:
+    sorting = s.sorting
+    with h5py.File(tmp, "w") as f:
+        f.attrs.update(format=FORMAT, format_version=FORMAT_VERSION, program_version=__version__,
+                       saved_utc=saved_utc)
+        rec = f.create_group("recording")
+        rec.attrs.update(path=s.recording.path, size=np.int64(s.recording.size),
+                         fingerprint=s.recording.fingerprint,
+                         description=json.dumps(s.recording.description, allow_nan=False))
+        f.create_group("params").attrs["json"] = json.dumps(s.params.to_dict(), allow_nan=False)
+        s.events.to_h5_group(f.create_group("events"))
+        feat = f.create_group("features")
+        feat.create_dataset("values", data=sorting.data.features)
+        feat.attrs["names"] = json.dumps(list(sorting.data.feature_names))
+        g = f.create_group("sorting")
+        g.create_dataset("assignments", data=sorting.assignments)
+        units = sorting.units
+        g.create_dataset("unit_id", data=np.array(list(units), dtype=np.int32))
+        g.create_dataset("unit_group", data=np.array([u.group for u in units.values()], dtype=np.int32))
+        g.create_dataset("unit_label", data=np.array([LABELS.index(u.label) for u in units.values()],
+                                                     dtype=np.uint8))
+        write_text(g, "notes", json.dumps([u.note for u in units.values()]))
+        g.attrs["next_id"] = np.int64(sorting.next_id)
+        write_text(f.create_group("journal"), "lines", sorting.journal.to_text())
+        f.flush()
+        _, digest = read_verified(f, tmp)
+        f.attrs[CHECKSUM_ATTR] = digest
+
+
+def _save(path: Path, session: Session, keep_backup: bool) -> Path:
+    saved_utc = utc_now()
+
+    def rotate() -> None:
+        if keep_backup and path.exists():
+            try:
+                verify_session_file(path)
+            except SessionError:
+                return          # never let a damaged main file replace the good backup
+            atomic_copy_bytes(path, backup_path(path))
+
+    atomic_write(path, lambda tmp: _write(tmp, session, saved_utc), before_replace=rotate)
+    session.saved_utc = saved_utc
+    return path
+
+
+def save_session(path: str | Path, session: Session) -> Path:
+    """Save atomically, keeping the previous good file as ``NAME.bak``.
+
+    The autosave file, now older than the saved state, is removed.
+    """
+    path = Path(path)
+    _save(path, session, keep_backup=True)
+    autosave_path(path).unlink(missing_ok=True)
+    session.source = path
+    return path
+
+
+def save_autosave(path: str | Path, session: Session) -> Path:
+    """Write ``NAME.autosave.h5`` atomically (no backup kept); returns its path."""
+    return _save(autosave_path(path), session, keep_backup=False)
+
+
+class Autosaver:
+    """Autosave after changes, at most once per ``interval_s``.
+
+    Connect :meth:`mark_changed` to ``sorting.changed`` and call :meth:`save_if_due` from a
+    timer (or after each step); :meth:`mark_saved` after a main save.
+    """
+
+    def __init__(self, path: str | Path, interval_s: float = 30.0, clock=time.monotonic) -> None:
+        self.path, self.interval_s, self.clock = Path(path), float(interval_s), clock
+        self.dirty = False
+        self._last = -float("inf")
+
+    def mark_changed(self, *_) -> None:
+        self.dirty = True
+
+    def mark_saved(self) -> None:
+        self.dirty = False
+
+    def save_if_due(self, session: Session, force: bool = False) -> Path | None:
+        """Write the autosave file if there are unsaved changes and the interval has passed."""
+        now = self.clock()
+        if not self.dirty or (not force and now - self._last < self.interval_s):
+            return None
+        out = save_autosave(self.path, session)
+        self.dirty, self._last = False, now
+        return out
+
+
+# ---- reading -------------------------------------------------------------------------------
+def _open(path: Path) -> tuple[h5py.File, dict, str]:
+    if not path.exists():
+        raise SessionError(f"session file must exist, got no file at {str(path)!r}")
+    try:
+        f = h5py.File(path, "r")
+    except OSError as exc:
+        raise SessionError(f"session file must be a readable HDF5 file, got {str(path)!r} "
+                           f"(truncated, corrupted or another type: {exc})") from None
+    try:
+        fmt = attr(f, "format", str, "")
+        if fmt != FORMAT:
+            raise SessionError(f"session file must have format {FORMAT!r}, got {fmt!r}")
+        version = attr(f, "format_version", int, "")
+        if not 1 <= version <= FORMAT_VERSION:
+            raise SessionError(f"session format version must be from 1 to {FORMAT_VERSION}, got {version} "
+                               f"(saved by rigside {f.attrs.get('program_version', '?')}; update rigside)")
+        data, digest = read_verified(f, path)
+        if digest != attr(f, CHECKSUM_ATTR, str, ""):
+            raise SessionError(f"session file must match its checksum, got different content in "
+                               f"{str(path)!r} (corrupted)")
+    except BaseException:
+        f.close()
+        raise
+    return f, data, digest
+
+
+def verify_session_file(path: str | Path) -> str:
+    """Check format and checksum of a session file; returns its save time (UTC ISO)."""
+    try:
+        f, _, _ = _open(Path(path))
+    except (OSError, KeyError, ValueError, TypeError, MemoryError) as exc:
+        if isinstance(exc, SessionError):
+            raise
+        raise SessionError(f"session file must be a valid rigside session, got {str(path)!r}: {exc}") from None
+    with f:
+        return attr(f, "saved_utc", str, "")
+
+
+def _check_recording(ref: RecordingRef, session_path: Path, override: str | Path | None) -> RecordingRef:
+    target = Path(override) if override is not None else Path(ref.path)
+    if not target.is_file():
+        if override is not None:
+            raise SessionError(f"recording path must be an existing file, got {str(target)!r}")
+        raise RecordingMoved(ref.path, str(session_path))
+    size = target.stat().st_size
+    if size != ref.size:
+        raise RecordingChanged(f"recording {str(target)!r} must be the file this session was made from "
+                               f"({ref.size} bytes), got {size} bytes (changed)")
+    fp = file_fingerprint(target)
+    if fp != ref.fingerprint:
+        raise RecordingChanged(f"recording {str(target)!r} must be the file this session was made from "
+                               f"(fingerprint {ref.fingerprint}), got fingerprint {fp} (changed content)")
+    return RecordingRef(str(target.resolve()), size, fp, ref.description)
+
+
+def _interpret(f: h5py.File, data: dict, path: Path) -> tuple[RecordingRef, Session]:
+    g = f["recording"] if "recording" in f else None
+    if g is None:
+        raise SessionError("session group recording must be present, got none")
+    try:
+        desc = json.loads(attr(g, "description", str, "recording"))
+        params = Params.from_dict(json.loads(attr(f["params"], "json", str, "params")))
+        names = json.loads(attr(f["features"], "names", str, "features"))
+        notes = json.loads(text(data, "sorting/notes"))
+    except (KeyError, json.JSONDecodeError) as exc:
+        raise SessionError(f"session must hold the recording, parameters, features and notes as JSON, "
+                           f"got {exc}") from None
+    except RigsideError as exc:
+        raise SessionError(f"session parameters must be valid, got: {exc}") from None
+    ref = RecordingRef(attr(g, "path", str, "recording"), attr(g, "size", int, "recording"),
+                       attr(g, "fingerprint", str, "recording"), desc if isinstance(desc, dict) else {})
+    for c, dt in COLUMNS.items():
+        array(data, f"events/{c}", np.dtype(dt).str, 1)
+    array(data, "events/sigma_uv", "f8", 1)
+    ev = f["events"]
+    for a, kind in (("rate_hz", float), ("n_samples", int), ("floor_sigma", float), ("polarity", str)):
+        attr(ev, a, kind, "events")
+    events = EventTable.from_h5_group(ev)
+    if not (events.rate_hz > 0 and events.n_samples > 0 and np.all(events.group >= 0)):
+        raise SessionError(f"event table must have a positive rate, length and groups, got rate "
+                           f"{events.rate_hz}, {events.n_samples} samples")
+    values = array(data, "features/values", "f4", 2)
+    assign = array(data, "sorting/assignments", "i4", 1)
+    ids = array(data, "sorting/unit_id", "i4", 1)
+    groups = array(data, "sorting/unit_group", "i4", 1)
+    labels = array(data, "sorting/unit_label", "u1", 1)
+    if not (isinstance(names, list) and all(isinstance(n, str) for n in names)
+            and isinstance(notes, list) and all(isinstance(n, str) for n in notes)):
+        raise SessionError("feature names and notes must be lists of text, got other values")
+    m = len(ids)
+    if len(values) != len(events) or len(assign) != len(events) or not (
+            len(groups) == len(labels) == len(notes) == m) or len(np.unique(ids)) != m:
+        raise SessionError(f"session arrays must agree in length ({len(events)} events, {m} units), got "
+                           f"features {values.shape}, assignments {assign.shape}, unit columns "
+                           f"{len(groups)}/{len(labels)}/{len(notes)} with unique ids")
+    if m and labels.max() >= len(LABELS):
+        raise SessionError(f"unit label codes must be below {len(LABELS)}, got {int(labels.max())}")
+    units = {int(u): Unit(int(gr), LABELS[int(la)], note) for u, gr, la, note in zip(ids, groups, labels, notes)}
+    journal = Journal.from_text(text(data, "journal/lines"))
+    sorting = Sorting(SortingData.from_events(events, values, names), assign, units,
+                      attr(f["sorting"], "next_id", int, "sorting"), journal)
+    session = Session(ref, params, events, sorting, attr(f, "program_version", str, ""),
+                      attr(f, "saved_utc", str, ""), path)
+    return ref, session
+
+
+def load_session(path: str | Path, recording_path_override: str | Path | None = None,
+                 check_recording: bool = True) -> Session:
+    """Open a session file, verify it, and check its recording before anything is computed.
+
+    Parameters
+    ----------
+    path
+        Session file.
+    recording_path_override
+        New location of a moved recording (its size and fingerprint must match).
+    check_recording
+        Set False to open a session without its recording (e.g. to export spike times).
+
+    Raises
+    ------
+    SessionError
+        Missing, truncated, corrupted, hostile or inconsistent file (the message says which,
+        and names the backup when one exists).
+    RecordingMoved
+        The recording is not at its recorded path (ask for it, then pass the override).
+    RecordingChanged
+        The file at the recording path is not the one the session was made from.
+    """
+    path = Path(path)
+    try:
+        f, data, _ = _open(path)
+        with f:
+            ref, session = _interpret(f, data, path)
+    except SessionError as exc:
+        raise _with_alternatives(exc, path) from None
+    except (OSError, KeyError, ValueError, TypeError, MemoryError, UnicodeDecodeError) as exc:
+        raise _with_alternatives(SessionError(f"session file must be a valid rigside session, got "
+                                              f"{str(path)!r}: {type(exc).__name__}: {exc}"), path) from None
+    if check_recording:
+        session.recording = _check_recording(ref, path, recording_path_override)
+    return session
+
+
+def _with_alternatives(exc: SessionError, path: Path) -> SessionError:
+    others = [str(p) for p in (autosave_path(path), backup_path(path)) if p.exists()]
+    if not others or isinstance(exc, (RecordingMoved, RecordingChanged)):
+        return exc
+    return SessionError(f"{exc}; other saved states exist: {', '.join(others)} (use recovery)")
+
+
+# ---- recovery -------------------------------------------------------------------------------
+@dataclass
+class SavedState:
+    """One candidate file: its kind ("main", "autosave", "backup"), save time, or the error."""
+
+    path: Path
+    kind: str
+    saved_utc: str | None
+    error: str | None
+
+
+def find_states(path: str | Path) -> list[SavedState]:
+    """Every existing state of a session, valid ones first, newest first."""
+    out = []
+    for kind, p in (("main", Path(path)), ("autosave", autosave_path(path)), ("backup", backup_path(path))):
+        if not p.exists():
+            continue
+        try:
+            out.append(SavedState(p, kind, verify_session_file(p), None))
+        except SessionError as exc:
+            out.append(SavedState(p, kind, None, str(exc)))
+    valid = sorted((s for s in out if s.error is None), key=lambda s: s.saved_utc, reverse=True)
+    return valid + [s for s in out if s.error is not None]
+
+
+def recover(path: str | Path, **load_options) -> Session:
+    """Load the newest consistent state among main file, autosave and backup.
+
+    ``load_options`` go to :func:`load_session`. Raises :class:`SessionError` listing every
+    candidate's problem when none can be loaded.
+    """
+    problems = []
+    for state in find_states(path):
+        if state.error is not None:
+            problems.append(f"{state.kind}: {state.error}")
+            continue
+        try:
+            return load_session(state.path, **load_options)
+        except (RecordingMoved, RecordingChanged):
+            raise
+        except SessionError as exc:
+            problems.append(f"{state.kind}: {exc}")
+    raise SessionError(f"session {str(path)!r} must have at least one consistent saved state, got "
+                       + ("; ".join(problems) if problems else "no files"))
+
+
+def remove_stale_temporaries(path: str | Path) -> None:
+    """Delete ``.tmp`` files left by a save that was killed (they are never read)."""
+    for p in (Path(path), autosave_path(path), backup_path(path)):
+        p.with_name(p.name + ".tmp").unlink(missing_ok=True)
+    fsync_dir(Path(path).parent)

@@ -1,0 +1,128 @@
+"""Writing the per-unit quality table to CSV, and flagging units against limits.
+
+CSV layout (our own): comment lines starting with ``#`` first — a title, the caution that
+quality numbers are estimates, the metric settings, and one line per column giving its
+meaning and unit — then a header row of column names and one row per unit. Numbers are
+written with 6 significant digits, undefined ones as ``nan``. Readers that skip ``#``
+lines (``numpy.genfromtxt``, ``pandas.read_csv(comment="#")``) load it directly.
+"""
+
+from __future__ import annotations
+
+import csv
+import math
+from dataclasses import asdict, dataclass
+from pathlib import Path
+
+import numpy as np
+
+from .atomic import atomic_write
+from .errors import ParamError, RigsideError
+from .unit_table import CAUTION, COLUMNS, INT_COLUMNS, MetricParams
+
+
+@dataclass(frozen=True)
+class Limit:
+    """A limit on one column: ``kind`` "max" flags values above ``value``, "min" below it."""
+
+    column: str
+    kind: str
+    value: float
+
+    def __post_init__(self) -> None:
+        if self.column not in COLUMNS or self.column.endswith("_reason") or self.column in INT_COLUMNS:
+            raise ParamError(f"limit column must be a metric column of the unit table, got {self.column!r}")
+        if self.kind not in ("max", "min"):
+            raise ParamError(f"limit kind must be max or min, got {self.kind!r}")
+        if not math.isfinite(self.value):
+            raise ParamError(f"limit value must be a finite number, got {self.value!r}")
+
+    @property
+    def name(self) -> str:
+        return f"{self.column} {'>' if self.kind == 'max' else '<'} {self.value:g}"
+
+
+DEFAULT_LIMITS = (
+    Limit("contamination", "max", 0.10),        # common practice, no source
+    Limit("isolation_distance", "min", 20.0),   # common practice, no source [memory]
+    Limit("l_ratio", "max", 0.05),              # common practice, no source [memory]
+    Limit("presence_ratio", "min", 0.9),        # common practice, no source
+    Limit("missed_fraction", "max", 0.10),      # common practice, no source
+)
+"""Default limits; every one is a convention of the trade, not a law. Change them freely."""
+
+
+def flag_units(table: dict[str, np.ndarray], limits=DEFAULT_LIMITS) -> dict[str, np.ndarray]:
+    """Per-unit flags: which units lie beyond each limit.
+
+    Parameters
+    ----------
+    table
+        A table from :func:`core.unit_table.unit_metrics_table`.
+    limits
+        :class:`Limit` objects.
+
+    Returns
+    -------
+    dict of str to numpy.ndarray
+        For each limit (key :attr:`Limit.name`), a boolean array, True for units beyond the
+        limit or whose metric is undefined (an undefined number cannot show that a unit
+        passes); key ``"any"`` is True for units flagged by at least one limit.
+    """
+    n = len(table["unit"])
+    flags: dict[str, np.ndarray] = {}
+    for lim in limits:
+        v = np.asarray(table[lim.column], dtype=np.float64)
+        beyond = v > lim.value if lim.kind == "max" else v < lim.value
+        flags[lim.name] = beyond | np.isnan(v)
+    flags["any"] = np.logical_or.reduce(list(flags.values())) if flags else np.zeros(n, dtype=bool)
+    return flags
+
+
+def _cell(column: str, value) -> str:
+    if column.endswith("_reason"):
+        return str(value)
+    if column in INT_COLUMNS:
+        return str(int(value))
+    return "nan" if math.isnan(value) else f"{float(value):.6g}"
+
+
+def write_unit_table_csv(table: dict[str, np.ndarray], path: str | Path,
+                         params: MetricParams | None = None) -> Path:
+    """Write the unit table to ``path`` atomically (temporary file, fsync, rename).
+
+    Parameters
+    ----------
+    table
+        A table from :func:`core.unit_table.unit_metrics_table`.
+    path
+        Target CSV file.
+    params
+        The settings the table was computed with, written into the header (defaults if None).
+
+    Returns
+    -------
+    Path
+        The written file.
+    """
+    missing = [c for c in COLUMNS if c not in table]
+    if missing:
+        raise RigsideError(f"unit table must hold every column, got none for {', '.join(missing)}")
+    n = len(table["unit"])
+    if any(len(table[c]) != n for c in COLUMNS):
+        raise RigsideError("unit table columns must all have one row per unit, got differing lengths")
+    settings = ", ".join(f"{k} = {v:g}" for k, v in asdict(params or MetricParams()).items())
+
+    def write(tmp: Path) -> None:
+        with open(tmp, "w", newline="", encoding="utf-8") as fh:
+            fh.write("# rigside unit quality table\n")
+            fh.write(f"# {CAUTION}\n")
+            fh.write(f"# settings: {settings}\n")
+            for name, meaning in COLUMNS.items():
+                fh.write(f"# {name}: {meaning}\n")
+            w = csv.writer(fh)
+            w.writerow(list(COLUMNS))
+            for i in range(n):
+                w.writerow([_cell(c, table[c][i]) for c in COLUMNS])
+
+    return atomic_write(path, write)
