@@ -14,6 +14,8 @@ from typing import Any, Callable
 
 import numpy as np
 
+from core.rice import sampled_crossing_rate
+
 UNITS = ("sigma", "uv")
 SCOPES = ("all", "channel")
 
@@ -25,7 +27,7 @@ class Signal:
         self._slots: list[Callable[[], Callable | None]] = []
 
     def connect(self, fn: Callable) -> None:
-        if hasattr(fn, "__self__"):
+        if hasattr(fn, "__self__") and hasattr(fn, "__func__"):
             ref = weakref.WeakMethod(fn)
         else:
             ref = (lambda f=fn: f)
@@ -53,6 +55,14 @@ class Analysis:
     truth: Any = None
     sos: np.ndarray | None = None
     extras: dict = field(default_factory=dict)
+
+
+def noise_rate_grid(sos: np.ndarray, rate_hz: float, polarity: str) -> tuple[np.ndarray, np.ndarray]:
+    """Thresholds (sigma) and log expected noise-only event rates, for interpolation."""
+    ks = np.linspace(0.25, 12.0, 471)
+    rate = sampled_crossing_rate(sos, rate_hz, ks) * (2.0 if polarity == "both" else 1.0)
+    rate = np.maximum(rate, 1e-300)
+    return ks, np.log(rate)
 
 
 class Workbench:
@@ -110,6 +120,8 @@ class Workbench:
     def set_events(self, noise, events) -> None:
         self.analysis.noise = noise
         self.analysis.events = events
+        self.analysis.extras["noise_grid"] = noise_rate_grid(self.analysis.sos, self.recording.rate_hz,
+                                                             events.polarity)
         self.analysis.features = None
         self.events_changed.emit()
         self.thresholds_changed.emit(True)
@@ -196,6 +208,8 @@ class Workbench:
     def threshold_value(self, channel: int | None = None) -> float:
         """The threshold of a channel (default: the selected one) in the current unit."""
         c = self.channel if channel is None else int(channel)
+        if c >= len(self.thresholds_sigma):
+            return float("nan")
         k = float(self.thresholds_sigma[c])
         if self.unit == "sigma":
             return k
@@ -232,6 +246,20 @@ class Workbench:
         """Raise (positive) or lower the selected threshold by steps of 0.1 sigma or 1 uV."""
         step = 0.1 if self.unit == "sigma" else 1.0
         self.set_threshold(round(self.threshold_value() + step * factor_steps, 6), final=True)
+
+    def noise_rates(self, k_sigma) -> np.ndarray:
+        """Expected noise-only events per second at ``k_sigma`` (per channel or any array).
+
+        Interpolated (in log rate) from the sampled-data crossing rate computed once for the
+        recording's filter; doubled when both polarities are detected.
+        """
+        grid = self.analysis.extras.get("noise_grid")
+        k = np.asarray(k_sigma, dtype=np.float64)
+        if grid is None:
+            return np.full(k.shape, np.nan)
+        ks, log_rate = grid
+        out = np.exp(np.interp(np.where(np.isfinite(k), k, ks[-1]), ks, log_rate))
+        return np.where(np.isfinite(k), out, 0.0)
 
     def mask(self) -> np.ndarray | None:
         """Events at the current thresholds (artefacts excluded), or None."""

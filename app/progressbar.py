@@ -14,18 +14,23 @@ class TextProgress:
         self.stream = stream or sys.stderr
         self._last = 0.0
         self._message = ""
+        self._step = -1
 
     def __call__(self, fraction: float, message: str = "") -> None:
         if not self.enabled:
             return
+        tty = self.stream.isatty()
         now = time.monotonic()
-        if now - self._last < 0.1 and fraction < 1.0 and message == self._message:
+        if tty and now - self._last < 0.1 and fraction < 1.0 and message == self._message:
             return
-        self._last, self._message = now, message
+        step = int(fraction * 10)
+        if not tty and step == self._step and message == self._message:
+            return  # logs get one line per tenth, not a stream of carriage returns
+        self._last, self._message, self._step = now, message, step
         width = 30
         filled = int(round(fraction * width))
-        end = "\n" if fraction >= 1.0 and not self.stream.isatty() else ""
-        self.stream.write(f"\r[{'#' * filled}{'.' * (width - filled)}] {fraction * 100:5.1f}% {message:<24}{end}")
+        bar = f"[{'#' * filled}{'.' * (width - filled)}] {fraction * 100:5.1f}% {message}"
+        self.stream.write(f"\r{bar:<60}" if tty else bar + "\n")
         self.stream.flush()
 
     def close(self) -> None:

@@ -94,6 +94,8 @@ def visible_envelope(block: Block, start: int, stop: int, step: int) -> tuple[np
     i1 = min(len(block.lo), -(-(stop - block.start) // block.step))
     factor = max(1, step // block.step)
     i0 = (i0 // factor) * factor
+    if i1 <= i0:
+        return np.zeros(0), np.zeros((0, block.lo.shape[1]), dtype=np.float32)
     lo, hi = block.lo[i0:i1], block.hi[i0:i1]
     x0 = block.start + i0 * block.step
     if factor == 1 and block.step == 1:

@@ -11,12 +11,21 @@ from __future__ import annotations
 import sys
 import threading
 import traceback
+import weakref
 from typing import Any, Callable
 
 from PySide6.QtCore import QObject, QThread, Signal
 
 from core.errors import RigsideError
 from core.progress import Cancelled
+
+
+_JOBS: "weakref.WeakSet[Job]" = weakref.WeakSet()
+
+
+def running_jobs() -> list["Job"]:
+    """Jobs whose thread is still running (tests use it to catch leaked threads)."""
+    return [j for j in list(_JOBS) if j.isRunning()]
 
 
 class Job(QThread):
@@ -33,6 +42,7 @@ class Job(QThread):
         self.label = label
         self._fn, self._args, self._kwargs = fn, args, kwargs
         self._stop = threading.Event()
+        _JOBS.add(self)
 
     def cancel(self) -> None:
         self._stop.set()

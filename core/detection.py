@@ -35,19 +35,47 @@ class BlockEvents:
     artefact: np.ndarray
 
 
+@numba.njit(nogil=True, cache=True, fastmath=True)
+def _envelopes(y, inv_sigma, polarity, group_channels, group_offsets, art_level, art_count):
+    """One pass over the block: per group and sample, the largest polarity-signed amplitude
+    in sigma and the channel holding it; and the running count of artefact samples (enough
+    live channels beyond the artefact level, either sign)."""
+    n, nc = y.shape
+    n_groups = len(group_offsets) - 1
+    env = np.empty((n_groups, n), dtype=np.float32)
+    arg = np.empty((n_groups, n), dtype=np.int32)
+    art_cum = np.zeros(n + 1, dtype=np.int64)
+    zr = np.empty(nc, dtype=np.float32)
+    sign = np.float32(-1.0) if polarity == 0 else np.float32(1.0)
+    for t in range(n):
+        row = y[t]
+        cnt = 0
+        for c in range(nc):
+            v = row[c] * inv_sigma[c]
+            a = abs(v)
+            cnt += 1 if a >= art_level and inv_sigma[c] > 0 else 0
+            zr[c] = a if polarity == 2 else v * sign
+        art_cum[t + 1] = art_cum[t] + (1 if cnt >= art_count else 0)
+        for g in range(n_groups):
+            bc = group_channels[group_offsets[g]]
+            best = zr[bc]
+            for k in range(group_offsets[g] + 1, group_offsets[g + 1]):
+                c = group_channels[k]
+                if zr[c] > best:
+                    best = zr[c]
+                    bc = c
+            env[g, t] = best
+            arg[g, t] = bc
+    return env, arg, art_cum
+
+
 @numba.njit(nogil=True, cache=True)
 def _detect_block(y, inv_sigma, polarity, group_channels, group_offsets, floor, dead,
                   lo, hi, art_level, art_count, art_window):
     n, nc = y.shape
     n_groups = len(group_offsets) - 1
-    # artefact samples: count of live channels beyond art_level (either sign)
-    art_cum = np.zeros(n + 1, dtype=np.int64)
-    for t in range(n):
-        cnt = 0
-        for c in range(nc):
-            if abs(y[t, c]) * inv_sigma[c] >= art_level and inv_sigma[c] > 0:
-                cnt += 1
-        art_cum[t + 1] = art_cum[t] + (1 if cnt >= art_count else 0)
+    envs, args, art_cum = _envelopes(y, inv_sigma, polarity, group_channels, group_offsets,
+                                     art_level, art_count)
     cap = 1024
     out_t = np.empty(cap, dtype=np.int64)
     out_c = np.empty(cap, dtype=np.int32)
@@ -56,26 +84,9 @@ def _detect_block(y, inv_sigma, polarity, group_channels, group_offsets, floor, 
     out_s = np.empty(cap, dtype=np.float32)
     out_art = np.empty(cap, dtype=np.bool_)
     m = 0
-    env = np.empty(n, dtype=np.float32)
-    arg = np.empty(n, dtype=np.int32)
     for g in range(n_groups):
-        a0, a1 = group_offsets[g], group_offsets[g + 1]
-        for t in range(n):
-            best = np.float32(-1.0)
-            bc = group_channels[a0]
-            for k in range(a0, a1):
-                c = group_channels[k]
-                v = y[t, c]
-                if polarity == 0:
-                    v = -v
-                elif polarity == 2:
-                    v = abs(v)
-                v = v * inv_sigma[c]
-                if v > best:
-                    best = v
-                    bc = c
-            env[t] = best
-            arg[t] = bc
+        env = envs[g]
+        arg = args[g]
         for t in range(lo, hi):
             e = env[t]
             if e < floor:

@@ -48,7 +48,7 @@ def settle_samples(sos: np.ndarray, tolerance: float = 1e-9) -> int:
 
 
 @numba.njit(nogil=True, cache=True, fastmath=True)
-def _sosfiltfilt_time_major(x, sos):
+def _sosfiltfilt_time_major(x, sos, gain, offset):
     # float32 state keeps the inner loop over channels vectorised (about 2.5x faster than
     # float64 here); the result differs from float64 filtering by ~2e-5 of the signal's SD.
     n, nc = x.shape
@@ -61,10 +61,11 @@ def _sosfiltfilt_time_major(x, sos):
         z2[:] = 0
         for step in range(n):
             t = step if direction == 0 else n - 1 - step
-            src = x[t] if direction == 0 else y[t]
             out = y[t]
-            for c in range(nc):
-                out[c] = src[c]
+            if direction == 0:
+                src = x[t]
+                for c in range(nc):
+                    out[c] = np.float32(src[c]) * gain + offset
             for s in range(ns):
                 b0 = np.float32(sos[s, 0])
                 b1 = np.float32(sos[s, 1])
@@ -82,10 +83,16 @@ def _sosfiltfilt_time_major(x, sos):
     return y
 
 
-def filtfilt(x: np.ndarray, sos: np.ndarray) -> np.ndarray:
-    """Forward-backward filter a (samples x channels) block from zero initial state."""
-    x = np.ascontiguousarray(x, dtype=np.float32)
-    return _sosfiltfilt_time_major(x, np.ascontiguousarray(sos, dtype=np.float64))
+def filtfilt(x: np.ndarray, sos: np.ndarray, gain: float = 1.0, offset: float = 0.0) -> np.ndarray:
+    """Forward-backward filter a (samples x channels) block from zero initial state.
+
+    ``x`` may hold stored integers: ``x * gain + offset`` is filtered (float32 result).
+    """
+    if x.dtype not in (np.int16, np.uint16, np.int32, np.float32):
+        x = x.astype(np.float32)
+    x = np.ascontiguousarray(x)
+    return _sosfiltfilt_time_major(x, np.ascontiguousarray(sos, dtype=np.float64),
+                                   np.float32(gain), np.float32(offset))
 
 
 def common_median_reference(x: np.ndarray, groups: list[np.ndarray]) -> np.ndarray:
@@ -125,11 +132,15 @@ class BandPass:
         m = self.margin
         lo, hi = max(0, start - m), min(rec.n_samples, stop + m)
         use_all = self.params.common_reference
-        block = rec.read(lo, hi, None if use_all else channels)
-        pad_left = min(m - (start - lo), len(block) - 1) if start - lo < m else 0
-        pad_right = min(m - (hi - stop), len(block) - 1) if hi - stop < m else 0
-        padded = _odd_extend(block, pad_left, pad_right)
-        y = filtfilt(padded, self.sos)
+        sel = None if use_all else channels
+        stored = rec.read_stored(lo, hi, sel)
+        rec.check_finite(stored, lo, sel)
+        pad_left = min(m - (start - lo), len(stored) - 1) if start - lo < m else 0
+        pad_right = min(m - (hi - stop), len(stored) - 1) if hi - stop < m else 0
+        if pad_left or pad_right:  # only at the file's ends
+            y = filtfilt(_odd_extend(rec.scale(stored), pad_left, pad_right), self.sos)
+        else:
+            y = filtfilt(stored, self.sos, rec.layout.gain_uv, rec.layout.offset_uv)
         off = pad_left + (start - lo)
         y = y[off:off + (stop - start)]
         if use_all:

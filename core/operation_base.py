@@ -14,7 +14,7 @@ from typing import Any, ClassVar
 
 import numpy as np
 
-from .sorting import CurationError, Delta, Sorting, Unit
+from .sorting import MAX_UNIT_ID, CurationError, Delta, Sorting, Unit
 
 MAX_NOTE_CHARS = 20_000
 
@@ -61,6 +61,8 @@ def as_int(value: Any, what: str) -> int:
 def make_delta(sorting: Sorting, rows: np.ndarray, new_ids: np.ndarray, units_after: dict[int, Unit | None],
            created: tuple[int, ...] = ()) -> Delta:
     """A delta holding only the events whose unit really changes."""
+    if sorting.next_id + len(created) > MAX_UNIT_ID + 1:
+        raise CurationError(f"unit ids must stay below {MAX_UNIT_ID + 1}, got a request for {len(created)} more")
     rows = np.asarray(rows, dtype=np.int64)
     new_ids = np.broadcast_to(np.asarray(new_ids, dtype=np.int32), rows.shape)
     old = sorting.assignments[rows]

@@ -57,7 +57,7 @@ class NoiseParams:
     """Robust noise estimate from windows sampled across the whole file."""
 
     n_windows: int = 40
-    window_s: float = 0.5
+    window_s: float = 0.25
     seed: int = 0
 
     def validate(self) -> None:

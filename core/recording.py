@@ -25,6 +25,7 @@ from __future__ import annotations
 
 import hashlib
 import math
+import mmap
 import tomllib
 from dataclasses import dataclass
 from pathlib import Path
@@ -90,7 +91,7 @@ def groups_of_size(n_channels: int, size: int) -> list[list[int]]:
 
 
 class Recording:
-    """Interface of every reader. Subclasses set the attributes and implement ``_read``."""
+    """Interface of every reader. Subclasses set the attributes and implement ``read_stored``."""
 
     path: Path
     n_samples: int
@@ -122,15 +123,31 @@ class Recording:
         start, stop = int(start), int(stop)
         if not 0 <= start <= stop <= self.n_samples:
             raise RecordingError(f"read range must lie within 0..{self.n_samples} samples, got {start}..{stop}")
-        out = self._read(start, stop, channels)
-        if self.float_data and out.size and not np.isfinite(out).all():
-            bad = np.argwhere(~np.isfinite(out))[0]
-            raise RecordingError(f"recording must hold finite values, got NaN or Inf at sample "
-                                 f"{start + int(bad[0])}, channel {int(bad[1]) if channels is None else int(channels[bad[1]])}")
+        stored = self.read_stored(start, stop, channels)
+        self.check_finite(stored, start, channels)
+        return self.scale(stored)
+
+    def read_stored(self, start: int, stop: int, channels: np.ndarray | None = None) -> np.ndarray:
+        """Samples ``[start, stop)`` as stored (no gain applied); may be a read-only view."""
+        raise NotImplementedError
+
+    def scale(self, stored: np.ndarray) -> np.ndarray:
+        """Stored values to microvolts (float32 copy)."""
+        out = np.array(stored, dtype=np.float32)
+        out *= np.float32(self.layout.gain_uv)
+        if self.layout.offset_uv:
+            out += np.float32(self.layout.offset_uv)
         return out
 
-    def _read(self, start: int, stop: int, channels: np.ndarray | None) -> np.ndarray:
-        raise NotImplementedError
+    def check_finite(self, stored: np.ndarray, start: int, channels: np.ndarray | None) -> None:
+        """Raise if float data holds NaN or Inf (integer data cannot)."""
+        if self.float_data and stored.size and not np.isfinite(stored).all():
+            bad = np.argwhere(~np.isfinite(stored))[0]
+            raise RecordingError(f"recording must hold finite values, got NaN or Inf at sample "
+                                 f"{start + int(bad[0])}, channel {int(bad[1]) if channels is None else int(channels[bad[1]])}")
+
+    def release(self, start: int, stop: int) -> None:
+        """Hint that samples ``[start, stop)`` will not be needed again soon."""
 
     def fingerprint(self) -> str:
         """Size plus a SHA-256 of three 1 MiB blocks (start, middle, end) of the file."""
@@ -187,13 +204,24 @@ class RawRecording(Recording):
                               offset=layout.header_bytes, shape=(self.n_samples, self.n_channels))
         self._init_groups(layout.groups, layout.group_names)
 
-    def _read(self, start, stop, channels):
+    def read_stored(self, start, stop, channels=None):
         block = self._map[start:stop] if channels is None else self._map[start:stop, channels]
-        out = block.astype(np.float32)
-        out *= np.float32(self.layout.gain_uv)
-        if self.layout.offset_uv:
-            out += np.float32(self.layout.offset_uv)
-        return out
+        return np.asarray(block)
+
+    def release(self, start: int, stop: int) -> None:
+        """Drop the pages of ``[start, stop)`` from this process's resident set (they stay in the
+        page cache), so streaming a long file keeps resident memory flat."""
+        mm = getattr(self._map, "_mmap", None)
+        if mm is None or not hasattr(mm, "madvise"):
+            return
+        frame = self.n_channels * self._map.dtype.itemsize
+        page = mmap.PAGESIZE
+        skip = self.layout.header_bytes % mmap.ALLOCATIONGRANULARITY  # where the map begins
+        a = skip + start * frame
+        b = skip + stop * frame
+        a0, b0 = (a + page - 1) // page * page, b // page * page
+        if b0 > a0:
+            mm.madvise(mmap.MADV_DONTNEED, a0, b0 - a0)
 
     def close(self) -> None:
         mm = getattr(self._map, "_mmap", None)
@@ -255,15 +283,9 @@ class HDF5Recording(Recording):
             groups = [np.flatnonzero(cg == g).tolist() for g in np.unique(cg)]
         self._init_groups(groups, None)
 
-    def _read(self, start, stop, channels):
+    def read_stored(self, start, stop, channels=None):
         block = self._ds[start:stop]
-        if channels is not None:
-            block = block[:, channels]
-        out = block.astype(np.float32)
-        out *= np.float32(self.layout.gain_uv)
-        if self.layout.offset_uv:
-            out += np.float32(self.layout.offset_uv)
-        return out
+        return block if channels is None else block[:, channels]
 
     def close(self) -> None:
         self._file.close()

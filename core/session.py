@@ -33,7 +33,7 @@ import numpy as np
 
 from . import __version__
 from .atomic import atomic_copy_bytes, atomic_write, fsync_dir
-from .errors import RigsideError, SessionError
+from .errors import ParamError, SessionError
 from .events import COLUMNS, EventTable
 from .h5safe import CHECKSUM_ATTR, array, attr, read_verified, text, write_text
 from .journal import Journal, utc_now
@@ -104,7 +104,7 @@ def file_fingerprint(path: str | Path) -> str:
 # ---- writing -------------------------------------------------------------------------------
 def _write(tmp: Path, s: Session, saved_utc: str) -> None:
     sorting = s.sorting
-    with h5py.File(tmp, "w") as f:
+    with h5py.File(tmp, "w", libver=("v110", "latest")) as f:
         f.attrs.update(format=FORMAT, format_version=FORMAT_VERSION, program_version=__version__,
                        saved_utc=saved_utc)
         rec = f.create_group("recording")
@@ -254,13 +254,15 @@ def _interpret(f: h5py.File, data: dict, path: Path) -> tuple[RecordingRef, Sess
         raise SessionError("session group recording must be present, got none")
     try:
         desc = json.loads(attr(g, "description", str, "recording"))
-        params = Params.from_dict(json.loads(attr(f["params"], "json", str, "params")))
+        params_dict = json.loads(attr(f["params"], "json", str, "params"))
         names = json.loads(attr(f["features"], "names", str, "features"))
         notes = json.loads(text(data, "sorting/notes"))
     except (KeyError, json.JSONDecodeError) as exc:
         raise SessionError(f"session must hold the recording, parameters, features and notes as JSON, "
                            f"got {exc}") from None
-    except RigsideError as exc:
+    try:
+        params = Params.from_dict(params_dict)
+    except (ParamError, AttributeError, TypeError) as exc:
         raise SessionError(f"session parameters must be valid, got: {exc}") from None
     ref = RecordingRef(attr(g, "path", str, "recording"), attr(g, "size", int, "recording"),
                        attr(g, "fingerprint", str, "recording"), desc if isinstance(desc, dict) else {})

@@ -20,6 +20,9 @@ from .events import EventTable
 LABELS = ("single unit", "multi-unit", "reject", "unreviewed")
 """Allowed unit labels."""
 
+MAX_UNIT_ID = 2**31 - 2
+"""Unit ids are int32 and positive."""
+
 AXIS_TIME = "event:time_s"
 AXIS_AMPLITUDE = "event:amplitude_uv"
 FEATURE_AXIS_PREFIX = "feature:"
@@ -64,8 +67,12 @@ class Unit:
     note: str = ""
 
     def __post_init__(self) -> None:
+        if isinstance(self.group, bool) or not isinstance(self.group, (int, np.integer)) or self.group < 0:
+            raise CurationError(f"unit group must be a non-negative integer, got {self.group!r}")
         if self.label not in LABELS:
             raise CurationError(f"unit label must be one of {', '.join(LABELS)}, got {self.label!r}")
+        if not isinstance(self.note, str):
+            raise CurationError(f"unit note must be text, got {type(self.note).__name__}")
 
 
 @dataclass(frozen=True)
@@ -222,37 +229,36 @@ class Sorting:
     def counts(self) -> dict[int, int]:
         """Event count of every unit."""
         ids = np.asarray(self.unit_ids(), dtype=np.int64)
-        if len(ids) == 0:
-            return {}
-        c = np.bincount(self._assign[self._assign >= 0], minlength=int(ids.max()) + 1)
-        return {int(u): int(c[u]) for u in ids}
+        assigned = self._assign[self._assign != NO_UNIT]
+        c = np.bincount(np.searchsorted(ids, assigned), minlength=len(ids)) if len(ids) else []
+        return {int(u): int(n) for u, n in zip(ids, c)}
 
     def validate(self) -> None:
         """Check that ids are known, belong to their unit's group, and the id counter is ahead."""
         if len(self._assign) != len(self.data):
             raise CurationError(f"assignments must have one entry per event ({len(self.data)}), "
                                 f"got {len(self._assign)}")
-        ids = np.unique(self._assign)
-        unknown = [int(u) for u in ids if u != NO_UNIT and int(u) not in self._units]
-        if unknown:
-            raise CurationError(f"assigned unit ids must be in the unit table, got unknown ids {unknown[:10]}")
-        if self._units and max(self._units) >= self.next_id or min(self._units, default=1) < 1:
-            raise CurationError(f"unit ids must lie from 1 to below the next id {self.next_id}, got "
-                                f"{min(self._units)}..{max(self._units)}")
+        if not 1 <= self.next_id <= MAX_UNIT_ID + 1:
+            raise CurationError(f"next unit id must be from 1 to {MAX_UNIT_ID + 1}, got {self.next_id}")
         for u, rec in self._units.items():
-            if not isinstance(rec, Unit):
-                raise CurationError(f"unit table entries must be units, got {type(rec).__name__}")
-        assigned = self._assign != NO_UNIT
-        if assigned.any():
-            groups = np.array([self._units[int(u)].group for u in ids if u != NO_UNIT], dtype=np.int64)
-            lookup = np.zeros(int(ids.max()) + 1, dtype=np.int64)
-            lookup[ids[ids != NO_UNIT]] = groups
-            wrong = lookup[self._assign[assigned]] != self.data.group[assigned]
-            if wrong.any():
-                first = int(np.flatnonzero(assigned)[np.argmax(wrong)])
-                raise CurationError(f"events must belong to units of their own channel group, got event "
-                                    f"{first} of group {int(self.data.group[first])} in unit "
-                                    f"{int(self._assign[first])}")
+            if not isinstance(rec, Unit) or not 1 <= u < self.next_id:
+                raise CurationError(f"unit table must map ids from 1 to below {self.next_id} to units, "
+                                    f"got {u!r}: {type(rec).__name__}")
+        ids = np.asarray(self.unit_ids(), dtype=np.int64)
+        groups = np.asarray([self._units[int(u)].group for u in ids], dtype=np.int64)
+        rows = np.flatnonzero(self._assign != NO_UNIT)
+        assigned = self._assign[rows]
+        pos = np.minimum(np.searchsorted(ids, assigned), max(len(ids) - 1, 0))
+        known = ids[pos] == assigned if len(ids) else np.zeros(len(rows), bool)
+        if not known.all():
+            raise CurationError(f"assigned unit ids must be in the unit table, got unknown ids "
+                                f"{np.unique(assigned[~known])[:10].tolist()}")
+        wrong = groups[pos] != self.data.group[rows]
+        if wrong.any():
+            first = int(rows[np.argmax(wrong)])
+            raise CurationError(f"events must belong to units of their own channel group, got event "
+                                f"{first} of group {int(self.data.group[first])} in unit "
+                                f"{int(self._assign[first])}")
 
     def state_equal(self, other: "Sorting") -> bool:
         """Same assignments (bitwise), unit table and id counter."""

@@ -12,6 +12,7 @@ import math
 from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
+import numba
 import numpy as np
 
 from .clustering import NO_UNIT
@@ -140,12 +141,39 @@ class _Inputs:
             self.features = f
 
 
+@numba.njit(cache=True, nogil=True)
+def _counting_order(codes, n_codes):
+    """Stable order of the events by code (a counting sort): indices of code 0 first, ..."""
+    starts = np.zeros(n_codes + 1, dtype=np.int64)
+    for c in codes:
+        starts[c + 1] += 1
+    for c in range(n_codes):
+        starts[c + 1] += starts[c]
+    fill = starts[:-1].copy()
+    order = np.empty(len(codes), dtype=np.int64)
+    for i in range(len(codes)):
+        order[fill[codes[i]]] = i
+        fill[codes[i]] += 1
+    return order, starts
+
+
+def _split_by_key(keys: np.ndarray) -> tuple[np.ndarray, list[np.ndarray]]:
+    """Distinct keys (sorted) and the ascending event indices holding each."""
+    ids = np.unique(keys)
+    if len(ids) and int(ids[-1]) - int(ids[0]) <= 4 * len(keys):   # small id range: a look-up table
+        table = np.zeros(int(ids[-1]) - int(ids[0]) + 1, dtype=np.int64)
+        table[ids - ids[0]] = np.arange(len(ids))
+        codes = table[keys - ids[0]]
+    else:
+        codes = np.searchsorted(ids, keys)
+    order, starts = _counting_order(codes, len(ids))
+    return ids, [order[starts[i]:starts[i + 1]] for i in range(len(ids))]
+
+
 def _unit_rows(inp: _Inputs, only_units) -> tuple[np.ndarray, list[np.ndarray]]:
     """Unit ids (sorted) and the time-sorted event indices of each."""
     if only_units is None:
-        order = np.argsort(inp.units, kind="stable")
-        ids, starts = np.unique(inp.units[order], return_index=True)
-        rows = np.split(order, starts[1:]) if len(ids) else []
+        ids, rows = _split_by_key(inp.units)
         keep = ids != NO_UNIT
         return ids[keep], [r for r, k in zip(rows, keep) if k]
     ids = np.unique(np.asarray(only_units, dtype=np.int64))
@@ -170,9 +198,8 @@ class _GroupSpace:
         self._inp = inp
         self._cache: dict[int, tuple[np.ndarray, np.ndarray]] = {}
         if only_groups is None:
-            order = np.argsort(inp.groups, kind="stable")
-            gids, starts = np.unique(inp.groups[order], return_index=True)
-            self._index = dict(zip(gids.tolist(), np.split(order, starts[1:])))
+            gids, rows = _split_by_key(inp.groups)
+            self._index = dict(zip(gids.tolist(), rows))
         else:
             self._index = {g: np.flatnonzero(inp.groups == g) for g in only_groups}
 

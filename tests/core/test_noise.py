@@ -49,9 +49,9 @@ def test_windows_sample_the_whole_file(tmp_path):
     b = gaussian(150000, 1, 30.0, seed=2)
     rec = write_raw(tmp_path / "r.bin", np.concatenate([a, b]))
     est = estimate_noise(rec, Params())
-    first, second = est.window_start_s < 5, est.window_start_s >= 5
+    first, second = est.window_start_s < 4.7, est.window_start_s >= 5  # windows of 0.25 s
     low, high = est.window_sigma_uv[first, 0].mean(), est.window_sigma_uv[second, 0].mean()
-    assert first.sum() >= 10 and second.sum() >= 10
+    assert first.sum() >= 8 and second.sum() >= 8
     assert high / low == pytest.approx(3.0, rel=0.05)
     assert low * 1.2 < est.sigma_uv[0] < high / 1.2
 

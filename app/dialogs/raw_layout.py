@@ -1,0 +1,71 @@
+"""Ask how to read a raw binary file that has no metadata file beside it."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from PySide6.QtWidgets import (QComboBox, QDialog, QDialogButtonBox, QDoubleSpinBox, QFormLayout, QLabel,
+                               QSpinBox, QVBoxLayout)
+
+from core.recording import DTYPES, META_SUFFIX, Layout, groups_of_size
+
+
+class RawLayoutDialog(QDialog):
+    """Channels, sampling rate, sample type, gain, offset, header and group size."""
+
+    def __init__(self, path: str | Path, parent=None):
+        super().__init__(parent)
+        self.setWindowTitle("How is this file laid out?")
+        p = Path(path)
+        size = p.stat().st_size if p.exists() else 0
+        note = QLabel(f"<b>{p.name}</b> ({size:,} bytes) has no metadata file "
+                      f"(<tt>{p.stem}{META_SUFFIX}</tt>) beside it. Describe the interleaved samples:")
+        note.setWordWrap(True)
+        self.channels = QSpinBox()
+        self.channels.setRange(1, 4096)
+        self.channels.setValue(16)
+        self.rate = QDoubleSpinBox()
+        self.rate.setRange(100.0, 1e6)
+        self.rate.setDecimals(1)
+        self.rate.setValue(30000.0)
+        self.rate.setSuffix(" Hz")
+        self.dtype = QComboBox()
+        self.dtype.addItems(list(DTYPES))
+        self.gain = QDoubleSpinBox()
+        self.gain.setRange(-1e6, 1e6)
+        self.gain.setDecimals(6)
+        self.gain.setValue(0.195)
+        self.gain.setSuffix(" µV per unit")
+        self.offset = QDoubleSpinBox()
+        self.offset.setRange(-1e9, 1e9)
+        self.offset.setSuffix(" µV")
+        self.header = QSpinBox()
+        self.header.setRange(0, 1 << 30)
+        self.header.setSuffix(" bytes")
+        self.group_size = QSpinBox()
+        self.group_size.setRange(1, 4096)
+        self.group_size.setValue(4)
+        self.group_size.setToolTip("Consecutive channels that see the same spikes (e.g. 4 for 4-wire bundles)")
+        form = QFormLayout()
+        form.addRow("Channels:", self.channels)
+        form.addRow("Sampling rate:", self.rate)
+        form.addRow("Sample type:", self.dtype)
+        form.addRow("Gain:", self.gain)
+        form.addRow("Offset:", self.offset)
+        form.addRow("Header to skip:", self.header)
+        form.addRow("Channels per group:", self.group_size)
+        buttons = QDialogButtonBox(QDialogButtonBox.StandardButton.Open | QDialogButtonBox.StandardButton.Cancel)
+        buttons.accepted.connect(self.accept)
+        buttons.rejected.connect(self.reject)
+        lay = QVBoxLayout(self)
+        lay.addWidget(note)
+        lay.addLayout(form)
+        lay.addWidget(buttons)
+
+    def layout_value(self) -> Layout:
+        """The layout as entered (validated when the recording is opened)."""
+        n = self.channels.value()
+        return Layout(channels=n, rate_hz=float(self.rate.value()), dtype=self.dtype.currentText(),
+                      gain_uv=float(self.gain.value()), offset_uv=float(self.offset.value()),
+                      header_bytes=int(self.header.value()),
+                      groups=groups_of_size(n, min(self.group_size.value(), n)))

@@ -1,0 +1,35 @@
+"""A table of the window's keyboard shortcuts, built from its actions."""
+
+from __future__ import annotations
+
+from PySide6.QtWidgets import (QDialog, QDialogButtonBox, QHeaderView, QTableWidget, QTableWidgetItem,
+                               QVBoxLayout)
+
+
+class ShortcutsDialog(QDialog):
+    """Lists (action, keys) for every action that has a shortcut."""
+
+    def __init__(self, actions, parent=None):
+        super().__init__(parent)
+        self.setWindowTitle("Keyboard shortcuts")
+        rows = [(a.text().replace("&", "").rstrip("…").rstrip("."),
+                 ", ".join(k.toString() for k in a.shortcuts()))
+                for a in actions if a.shortcuts()]
+        self.table = QTableWidget(len(rows), 2)
+        self.table.setHorizontalHeaderLabels(["Action", "Keys"])
+        self.table.verticalHeader().setVisible(False)
+        for i, (name, keys) in enumerate(rows):
+            self.table.setItem(i, 0, QTableWidgetItem(name))
+            self.table.setItem(i, 1, QTableWidgetItem(keys))
+        self.table.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
+        self.table.setEditTriggers(QTableWidget.EditTrigger.NoEditTriggers)
+        buttons = QDialogButtonBox(QDialogButtonBox.StandardButton.Close)
+        buttons.rejected.connect(self.reject)
+        lay = QVBoxLayout(self)
+        lay.addWidget(self.table)
+        lay.addWidget(buttons)
+        self.resize(460, 520)
+
+    def rows(self) -> list[tuple[str, str]]:
+        return [(self.table.item(i, 0).text(), self.table.item(i, 1).text())
+                for i in range(self.table.rowCount())]

@@ -1,0 +1,336 @@
+"""The workbench window: a frame that assembles panels in docks around the traces."""
+
+from __future__ import annotations
+
+import os
+import sys
+import traceback
+from pathlib import Path
+
+import h5py
+import numpy as np
+from PySide6.QtCore import QByteArray, QEventLoop, QSettings, Qt, QTimer
+from PySide6.QtWidgets import (QApplication, QDockWidget, QFileDialog, QLabel, QMainWindow, QMessageBox,
+                               QPushButton, QStackedWidget, QVBoxLayout, QWidget)
+
+from core.errors import RigsideError
+from core.filtering import design_bandpass
+from core.params import Params
+from core.recording import RawRecording, metadata_path, open_recording
+from . import jobs, palette
+from .dialogs.raw_layout import RawLayoutDialog
+from .model import Workbench
+from .panels.base import Panel
+from .panels.count_curve import CountCurvePanel
+from .panels.features import FeaturePanel
+from .panels.rate_strip import RateStripPanel
+from .panels.threshold import ThresholdPanel
+from .panels.traces import TracePanel
+from .task_status import TaskStatus
+from .window_actions import build_actions
+from .workers import Runner
+
+VERSION = "0.1.0"
+LAYOUT_VERSION = 1
+MAX_RECENT = 8
+ANALYSIS_LABEL = "Detecting events"
+
+
+def demo_path() -> Path:
+    """The bundled synthetic demo recording (with ground truth beside it)."""
+    return Path(__file__).resolve().parent.parent / "sample_data" / "demo.bin"
+
+
+def settings() -> QSettings:
+    """Where the window keeps recent files and its layout (tests point QSettings elsewhere)."""
+    return QSettings(QSettings.Format.IniFormat, QSettings.Scope.UserScope, "rigside", "workbench")
+
+
+class MainWindow(QMainWindow):
+    """Traces in the middle, panels in docks; ``add_panel`` is how new panels join."""
+
+    def __init__(self, interactive: bool = True):
+        super().__init__()
+        palette.setup_pyqtgraph()
+        self.setObjectName("rigside_workbench")
+        self.setWindowTitle("rigside")
+        self.interactive = interactive
+        self.bench = Workbench()
+        self.runner = Runner(self)
+        self.panels: dict[str, Panel] = {}
+        self.docks: dict[str, QDockWidget] = {}
+        self.last_error: tuple[str, str] | None = None
+        self.messages: list[QMessageBox] = []
+        self.analysis_outcome = "none"
+
+        self.traces = TracePanel(self.bench, self.runner)
+        self.panels["traces"] = self.traces
+        self.central = QStackedWidget()
+        self.central.addWidget(self._start_page())
+        self.central.addWidget(self.traces)
+        self.setCentralWidget(self.central)
+        self.setCorner(Qt.Corner.BottomRightCorner, Qt.DockWidgetArea.RightDockWidgetArea)
+        self.setCorner(Qt.Corner.TopRightCorner, Qt.DockWidgetArea.RightDockWidgetArea)
+        self.setDockNestingEnabled(True)
+
+        threshold = self.add_panel(ThresholdPanel(self.bench, self.runner), Qt.DockWidgetArea.RightDockWidgetArea)
+        curve = self.add_panel(CountCurvePanel(self.bench, self.runner), Qt.DockWidgetArea.RightDockWidgetArea)
+        self.splitDockWidget(threshold, curve, Qt.Orientation.Vertical)
+        strip = self.add_panel(RateStripPanel(self.bench, self.runner), Qt.DockWidgetArea.BottomDockWidgetArea)
+        from .panels.waveforms import WaveformPanel
+        wave = self.add_panel(WaveformPanel(self.bench, self.runner), Qt.DockWidgetArea.BottomDockWidgetArea)
+        feat = self.add_panel(FeaturePanel(self.bench, self.runner), Qt.DockWidgetArea.BottomDockWidgetArea)
+        self.splitDockWidget(strip, wave, Qt.Orientation.Vertical)
+        self.splitDockWidget(wave, feat, Qt.Orientation.Horizontal)
+        self.resize(1600, 1000)
+        self.resizeDocks([threshold, curve], [480, 420], Qt.Orientation.Vertical)
+        self.resizeDocks([threshold], [560], Qt.Orientation.Horizontal)
+        self.resizeDocks([strip, wave], [120, 300], Qt.Orientation.Vertical)
+        self._default_state = self.saveState(LAYOUT_VERSION)
+
+        self.task_status = TaskStatus(self.runner)
+        self.statusBar().addPermanentWidget(self.task_status)
+        self.runner.finished.connect(self._on_finished)
+        self.runner.error.connect(lambda label, msg: self.show_error(f"{label} failed", msg))
+        self.actions_by_name = build_actions(self)
+        self._restore_layout()
+
+    # ---- frame --------------------------------------------------------------------------
+    def add_panel(self, panel: Panel, area: Qt.DockWidgetArea, tab_with: QDockWidget | None = None) -> QDockWidget:
+        """Place a panel in a dock (tabbed with ``tab_with`` if given) and list it in View > Panels."""
+        dock = QDockWidget(panel.title, self)
+        dock.setObjectName(f"dock_{panel.panel_id}")
+        dock.setWidget(panel)
+        dock.setFeatures(QDockWidget.DockWidgetFeature.DockWidgetMovable
+                         | QDockWidget.DockWidgetFeature.DockWidgetClosable
+                         | QDockWidget.DockWidgetFeature.DockWidgetFloatable)
+        self.addDockWidget(area, dock)
+        if tab_with is not None:
+            self.tabifyDockWidget(tab_with, dock)
+        self.panels[panel.panel_id] = panel
+        self.docks[panel.panel_id] = dock
+        if hasattr(self, "panels_menu"):
+            self.panels_menu.addAction(dock.toggleViewAction())
+        return dock
+
+    def _start_page(self) -> QWidget:
+        page = QWidget()
+        title = QLabel("<h2>rigside: threshold workbench</h2>"
+                       "<p>Open a recording to see its filtered traces, drag the detection threshold and "
+                       "watch counts, rates and markers follow.</p>"
+                       "<p>The demo is a synthetic 16-channel recording with known units: it shows hits, "
+                       "misses and false alarms as the threshold moves.</p>")
+        title.setWordWrap(True)
+        title.setAlignment(Qt.AlignmentFlag.AlignCenter)
+        open_button = QPushButton("Open a recording…")
+        open_button.clicked.connect(self.choose_file)
+        demo_button = QPushButton("Open the demo recording")
+        demo_button.clicked.connect(self.open_demo)
+        lay = QVBoxLayout(page)
+        lay.addStretch(1)
+        lay.addWidget(title)
+        for b in (open_button, demo_button):
+            b.setMinimumHeight(36)
+            lay.addWidget(b, 0, Qt.AlignmentFlag.AlignHCenter)
+        lay.addStretch(2)
+        return page
+
+    def _restore_layout(self) -> None:
+        s = settings()
+        geometry = s.value("window/geometry")
+        state = s.value("window/state")
+        if isinstance(geometry, QByteArray):
+            self.restoreGeometry(geometry)
+        if isinstance(state, QByteArray):
+            self.restoreState(state, LAYOUT_VERSION)
+
+    def save_layout(self) -> None:
+        s = settings()
+        s.setValue("window/geometry", self.saveGeometry())
+        s.setValue("window/state", self.saveState(LAYOUT_VERSION))
+        s.sync()
+
+    def reset_layout(self) -> None:
+        self.restoreState(self._default_state, LAYOUT_VERSION)
+        for dock in self.docks.values():
+            dock.setVisible(True)
+
+    def closeEvent(self, event) -> None:
+        self.runner.shutdown()
+        self.save_layout()
+        for box in self.messages:
+            box.close()
+        rec = self.bench.recording
+        if rec is not None:
+            rec.close()
+        super().closeEvent(event)
+
+    def show_error(self, title: str, message: str) -> QMessageBox:
+        """A readable, non-blocking message box (never a traceback)."""
+        self.last_error = (title, message)
+        self.statusBar().showMessage(f"{title}: {message}", 15000)
+        box = QMessageBox(QMessageBox.Icon.Warning, title, message, QMessageBox.StandardButton.Ok, self)
+        box.setWindowModality(Qt.WindowModality.WindowModal)
+        box.finished.connect(lambda *_: self.messages.remove(box) if box in self.messages else None)
+        self.messages.append(box)
+        if self.interactive:
+            box.open()
+        return box
+
+    # ---- recent files ---------------------------------------------------------------------
+    def recent_files(self) -> list[str]:
+        value = settings().value("recent_files", [])
+        if isinstance(value, str):
+            value = [value]
+        return [str(v) for v in (value or [])]
+
+    def _remember(self, path: str) -> None:
+        files = [path] + [f for f in self.recent_files() if f != path]
+        s = settings()
+        s.setValue("recent_files", files[:MAX_RECENT])
+        s.sync()
+        self.rebuild_recent_menu()
+
+    def rebuild_recent_menu(self) -> None:
+        menu = self.recent_menu
+        menu.clear()
+        files = self.recent_files()
+        for f in files:
+            menu.addAction(f, lambda f=f: self.open_path(f))
+        menu.setEnabled(bool(files))
+
+    # ---- opening ----------------------------------------------------------------------------
+    def choose_file(self) -> None:
+        start = self.recent_files()[0] if self.recent_files() else str(Path.home())
+        path, _ = QFileDialog.getOpenFileName(self, "Open a recording", str(Path(start).parent),
+                                              "Recordings (*.bin *.dat *.raw *.h5 *.hdf5);;All files (*)")
+        if path:
+            self.open_path(path)
+
+    def open_demo(self) -> bool:
+        return self.open_path(str(demo_path()))
+
+    def open_path(self, path: str, options: dict | None = None) -> bool:
+        """Open a recording and start the long work; False (with a message) if it cannot be opened."""
+        try:
+            rec = self._open(path, options or {})
+            if rec is None:
+                return False
+            params = Params()
+            sos = design_bandpass(params.filter, rec.rate_hz)
+        except (RigsideError, OSError) as exc:
+            self.show_error("Cannot open the recording", str(exc))
+            return False
+        self.runner.shutdown()
+        old = self.bench.recording
+        if old is not None:
+            old.close()
+        self.bench.set_recording(rec, params, sos)
+        self.central.setCurrentWidget(self.traces)
+        self.setWindowTitle(f"rigside — {Path(path).name}")
+        self._remember(str(Path(path).resolve()))
+        self.start_detection()
+        return True
+
+    def _open(self, path: str, options: dict):
+        p = Path(path)
+        has_layout = options.get("channels") is not None and options.get("rate_hz") is not None
+        if (p.is_file() and p.stat().st_size > 0 and not h5py.is_hdf5(p) and metadata_path(p) is None
+                and not has_layout):
+            if not self.interactive:
+                return open_recording(p, **options)  # raises the missing-metadata message
+            dialog = RawLayoutDialog(p, self)
+            if dialog.exec() != RawLayoutDialog.DialogCode.Accepted:
+                return None
+            return RawRecording(p, dialog.layout_value())
+        return open_recording(p, **options)
+
+    def start_detection(self) -> None:
+        """Noise and detection down to the look-up floor (or the lowest threshold, if lower)."""
+        b = self.bench
+        rec, params = b.recording, b.analysis.params
+        if rec is None:
+            return
+        finite = b.thresholds_sigma[np.isfinite(b.thresholds_sigma)]
+        lowest = float(finite.min()) if len(finite) else params.detect.threshold_sigma
+        params.detect.floor_sigma = min(jobs.LOOKUP_FLOOR_SIGMA, lowest)
+        self.analysis_outcome = "running"
+        self.runner.submit("analysis", ANALYSIS_LABEL, jobs.analyse, rec, params, rec.truth_path(),
+                           on_done=self._on_analysis)
+
+    def _on_finished(self, label: str, outcome: str) -> None:
+        if (label == ANALYSIS_LABEL and outcome != "done" and self.analysis_outcome == "running"
+                and not self.runner.busy("analysis")):
+            self.analysis_outcome = outcome
+            if outcome == "cancelled":
+                self.statusBar().showMessage("Detection cancelled. Press F5 to detect again.", 15000)
+
+    def _on_analysis(self, result) -> None:
+        noise, events, truth = result
+        b = self.bench
+        b.set_events(noise, events)
+        if truth is not None:
+            b.set_truth(truth)
+        self.analysis_outcome = "done"
+        n_bad = len(noise.bad)
+        self.statusBar().showMessage(f"{len(events):,} events stored down to {events.floor_sigma:.2f} σ"
+                                     + (f"; {n_bad} channel(s) flagged bad" if n_bad else ""), 15000)
+        self.runner.submit("features", "Computing features", jobs.features, b.recording, events,
+                           b.analysis.params, on_done=b.set_features)
+
+    # ---- waiting (screenshots, tests) --------------------------------------------------------
+    def wait_idle(self, timeout_s: float = 600.0) -> bool:
+        """Run the event loop until no job is left (True) or the timeout passes (False)."""
+        loop = QEventLoop()
+        timer = QTimer(singleShot=True, interval=int(timeout_s * 1000))
+        timer.timeout.connect(loop.quit)
+        poll = QTimer(interval=20)
+        poll.timeout.connect(lambda: None if self.runner.busy() else loop.quit())
+        timer.start()
+        poll.start()
+        if self.runner.busy():
+            loop.exec()
+        poll.stop()
+        QApplication.processEvents()
+        return not self.runner.busy()
+
+
+def _excepthook(kind, value, tb) -> None:
+    traceback.print_exception(kind, value, tb, file=sys.stderr)
+    app = QApplication.instance()
+    win = next((w for w in app.topLevelWidgets() if isinstance(w, MainWindow)), None) if app else None
+    if win is not None:
+        win.show_error("Something went wrong", f"{kind.__name__}: {value}")
+
+
+def run_window(path: str | None, *, screenshot: str | None = None, recording_options: dict | None = None,
+               demo: bool = False) -> int:
+    """Open the window (on ``path``, or the demo); with ``screenshot``, render to a PNG and exit."""
+    if screenshot:
+        os.environ["QT_QPA_PLATFORM"] = "offscreen"
+    app = QApplication.instance() or QApplication(sys.argv[:1])
+    app.setApplicationName("rigside")
+    win = MainWindow(interactive=not screenshot)
+    target = str(demo_path()) if demo else path
+    if screenshot:
+        from .screenshot import capture
+        win.resize(1600, 1000)
+        win.show()
+        code = 0
+        if target is not None:
+            if not win.open_path(target, recording_options):
+                print(f"rigside: {win.last_error[1]}", file=sys.stderr)
+                code = 2
+            elif not win.wait_idle() or win.analysis_outcome != "done" or win.last_error:
+                print(f"rigside: {win.last_error[1] if win.last_error else 'loading did not finish'}",
+                      file=sys.stderr)
+                code = 1
+        if code == 0:
+            capture(win, screenshot)
+        win.close()
+        return code
+    sys.excepthook = _excepthook
+    win.show()
+    if target is not None:
+        QTimer.singleShot(0, lambda: win.open_path(target, recording_options))
+    return app.exec()

@@ -1,0 +1,179 @@
+"""Workbench speed: one threshold change with a million events, and scrolling 32 traces.
+
+Prints, measured in the same run:
+- the time to update counts, table, markers, count-curve mark and rate strip for one
+  threshold change (preview during a drag, and commit), against a naive re-detection of
+  the whole recording at the new threshold (target: within one 60 Hz frame, 16 ms);
+- the frame time for scrolling a 32-channel trace view (read the new samples, filter,
+  reduce, draw, paint), at 1 s and at 20 s wide, against drawing every sample of the
+  same slice without envelopes (target: 30 frames per second or better).
+
+Run: python bench/bench_workbench.py [--seconds 60] [--events 1000000]
+"""
+
+from __future__ import annotations
+
+import argparse
+import os
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+
+os.environ.setdefault("QT_QPA_PLATFORM", "offscreen")
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
+
+from PySide6.QtCore import QSettings  # noqa: E402
+from PySide6.QtWidgets import QApplication  # noqa: E402
+
+from core.events import EventTable  # noqa: E402
+from core.noise import estimate_noise  # noqa: E402
+from core.params import Params  # noqa: E402
+from core.pipeline import detect  # noqa: E402
+from core.recording import open_recording  # noqa: E402
+
+RATE = 30000.0
+CHANNELS = 32
+
+
+def write_recording(folder: Path, seconds: float) -> Path:
+    """Gaussian noise (about 10 uV) with spikes, int16, 32 channels in groups of 4."""
+    path = folder / "bench.bin"
+    n = int(seconds * RATE)
+    rng = np.random.default_rng(0)
+    with open(path, "wb") as fh:
+        for start in range(0, n, int(RATE) * 5):
+            m = min(int(RATE) * 5, n - start)
+            block = rng.normal(0, 50, size=(m, CHANNELS))
+            spikes = rng.integers(0, m - 40, size=int(m / RATE * 40 * CHANNELS))
+            block[spikes[:, None] + np.arange(30), rng.integers(0, CHANNELS, len(spikes))[:, None]] -= \
+                600 * np.hanning(30)
+            block.astype(np.int16).tofile(fh)
+    groups = "".join(f"[[group]]\nname = \"shank {g}\"\nchannels = {list(range(4 * g, 4 * g + 4))}\n"
+                     for g in range(CHANNELS // 4))
+    (folder / "bench.rigside.toml").write_text(
+        f"[recording]\nchannels = {CHANNELS}\nrate_hz = {RATE}\ngain_uv = 0.195\n{groups}")
+    return path
+
+
+def synthetic_events(rec, sigma_uv: np.ndarray, n: int) -> EventTable:
+    """A million events spread over the recording, amplitudes from 3 sigma upward."""
+    rng = np.random.default_rng(1)
+    channel = rng.integers(0, rec.n_channels, n)
+    k = 3.0 + rng.exponential(1.5, n)
+    return EventTable(sample=np.sort(rng.integers(0, rec.n_samples, n)), channel=channel,
+                      group=rec.channel_group[channel], amplitude_uv=(-k * sigma_uv[channel]).astype(np.float32),
+                      amplitude_sigma=k.astype(np.float32), artefact=rng.random(n) < 0.005,
+                      rate_hz=rec.rate_hz, n_samples=rec.n_samples, sigma_uv=sigma_uv, floor_sigma=3.0)
+
+
+def timed(fn, repeats: int) -> np.ndarray:
+    out = np.empty(repeats)
+    for i in range(repeats):
+        t = time.perf_counter()
+        fn(i)
+        out[i] = time.perf_counter() - t
+    return out * 1000.0
+
+
+def summary(ms: np.ndarray) -> str:
+    return f"median {np.median(ms):7.2f} ms, p95 {np.percentile(ms, 95):7.2f} ms"
+
+
+def main() -> int:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--seconds", type=float, default=60.0)
+    ap.add_argument("--events", type=int, default=1_000_000)
+    args = ap.parse_args()
+    tmp = tempfile.TemporaryDirectory()
+    folder = Path(tmp.name)
+    QSettings.setDefaultFormat(QSettings.Format.IniFormat)
+    QSettings.setPath(QSettings.Format.IniFormat, QSettings.Scope.UserScope, str(folder / "settings"))
+    app = QApplication.instance() or QApplication([])
+    from app.window import MainWindow
+
+    path = write_recording(folder, args.seconds)
+    rec = open_recording(path)
+    params = Params()
+    noise = estimate_noise(rec, params)
+    events = synthetic_events(rec, noise.sigma_uv, args.events)
+    print(f"recording: {args.seconds:g} s x {CHANNELS} channels at {RATE:g} Hz; "
+          f"{len(events):,} events in the table")
+
+    win = MainWindow(interactive=False)
+    win.resize(1600, 1000)
+    win.show()
+    win.open_path(str(path))
+    win.runner.shutdown()
+    bench = win.bench
+    bench.set_events(noise, events)
+    win.runner.shutdown()
+    bench.show_channels(range(CHANNELS), "all channels")
+    bench.set_view(10.0, 11.0)
+    app.processEvents()
+    win.runner.shutdown()
+
+    # ---- one threshold change --------------------------------------------------------
+    ks = 3.5 + 3.0 * (0.5 + 0.5 * np.sin(np.arange(200) * 0.1))
+    preview = timed(lambda i: bench.set_threshold(float(ks[i]), final=False), len(ks))
+    trace_view = win.traces.plot.viewport()
+    preview_paint = timed(lambda i: (bench.set_threshold(float(ks[i] + 0.05), final=False),
+                                     trace_view.repaint()), 60)
+    commit = timed(lambda i: bench.set_threshold(float(ks[i]), final=True), 20)
+    win.runner.shutdown()
+    p = Params()
+    p.detect.threshold_sigma = 4.5
+    naive = timed(lambda i: detect(rec, p, noise=noise), 2)
+    marks = len(win.traces.marker_times())
+    print("\nthreshold change (1e6 events; counts, table, markers, curve mark, rate strip)")
+    print(f"  preview during drag      {summary(preview)}")
+    print(f"  preview + paint traces   {summary(preview_paint)}   ({marks} markers visible)")
+    print(f"  commit on release        {summary(commit)}   (waveform cut runs in the background)")
+    print(f"  naive re-detection       {summary(naive)}")
+    print(f"  ratio naive / preview    {np.median(naive) / np.median(preview):9.0f} x   "
+          f"(target preview < 16 ms: {'met' if np.median(preview) < 16 else 'NOT met'})")
+
+    # ---- scrolling --------------------------------------------------------------------
+    print("\nscrolling the 32-channel trace view (set range, read, filter, reduce, draw, paint)")
+    for width in (1.0, 20.0):
+        start = 5.0
+        steps = 60
+        dt = width / 30.0
+
+        def frame(i, width=width, start=start):
+            t0 = start + i * dt
+            bench.set_view(t0, t0 + width)
+            trace_view.repaint()
+
+        frames = timed(frame, steps)
+        win.runner.shutdown()
+        traces = win.traces
+
+        def naive_frame(i, width=width, start=start):
+            t0 = start + i * dt
+            a, z = int(t0 * RATE), int((t0 + width) * RATE)
+            y = traces._bandpass.read(a, z, np.arange(CHANNELS))
+            n = z - a
+            x = np.tile(np.arange(a, z) / RATE, CHANNELS)
+            yy = (y + traces.offsets[None, :]).T.ravel()
+            connect = np.ones(n * CHANNELS, dtype=bool)
+            connect[n - 1::n] = False
+            traces.curve.setData(x, yy, connect=connect)
+            trace_view.repaint()
+
+        naive_frames = timed(naive_frame, 6 if width > 5 else 20)
+        fps = 1000.0 / np.median(frames)
+        print(f"  {width:4g} s wide: {summary(frames)} -> {fps:5.1f} fps "
+              f"(target >= 30: {'met' if fps >= 30 else 'NOT met'}); every sample drawn: "
+              f"{summary(naive_frames)}; ratio {np.median(naive_frames) / np.median(frames):5.1f} x")
+        bench.set_view(start, start + width)
+    win.close()
+    rec.close()
+    tmp.cleanup()
+    return 0
+
+
+if __name__ == "__main__":
+    raise SystemExit(main())

@@ -1,0 +1,117 @@
+"""Fixtures for window tests: temporary settings, cached demo analysis, leak checks."""
+
+from __future__ import annotations
+
+import gc
+import threading
+
+import numpy as np
+import psutil
+import pytest
+from PySide6.QtCore import QSettings
+from PySide6.QtWidgets import QApplication, QWidget
+
+from app import jobs
+from app.window import MainWindow, demo_path
+from app.workers import running_jobs
+from core.params import Params
+from core.recording import open_recording
+
+_CACHE: dict = {}
+
+
+@pytest.fixture(autouse=True)
+def temporary_settings(tmp_path, qapp):
+    """Every test keeps window settings in its own folder, never the user's."""
+    QSettings.setDefaultFormat(QSettings.Format.IniFormat)
+    QSettings.setPath(QSettings.Format.IniFormat, QSettings.Scope.UserScope, str(tmp_path / "settings"))
+    yield
+
+
+def _threads() -> list[str]:
+    """Names of the process's threads, leaving out Qt's self-expiring global pool."""
+    names = []
+    for t in psutil.Process().threads():
+        try:
+            with open(f"/proc/self/task/{t.id}/comm") as fh:
+                name = fh.read().strip()
+        except OSError:
+            continue
+        if name != "Thread (pooled)":
+            names.append(name)
+    return sorted(names)
+
+
+@pytest.fixture(scope="session", autouse=True)
+def qt_started(qapp):
+    """Show one widget so that Qt's own lasting threads exist before any leak baseline."""
+    w = QWidget()
+    w.show()
+    QApplication.processEvents()
+    w.close()
+    yield
+
+
+@pytest.fixture(autouse=True)
+def no_leaks(qapp, qt_started):
+    """Fail a test that leaves a visible window, a running job or another thread behind."""
+    before = _threads()
+    python_before = {t.ident for t in threading.enumerate()}
+    yield
+    for _ in range(3):
+        QApplication.processEvents()
+        gc.collect()
+    visible = [w for w in QApplication.topLevelWidgets() if w.isVisible()]
+    assert not visible, f"test left windows open: {[type(w).__name__ for w in visible]}"
+    assert not running_jobs(), "test left background jobs running"
+    # dummy entries only record that a Qt thread once ran Python code; the OS count covers them
+    extra = [t.name for t in threading.enumerate()
+             if t.ident not in python_before and not isinstance(t, threading._DummyThread)]
+    assert not extra, f"test left Python threads running: {extra}"
+    after = _threads()
+    assert len(after) <= len(before), f"test left threads running: {before} before, {after} after"
+
+
+def demo_analysis():
+    """Noise, events, truth and features of the demo, computed once per session."""
+    if not _CACHE:
+        rec = open_recording(demo_path())
+        params = Params()
+        params.detect.floor_sigma = jobs.LOOKUP_FLOOR_SIGMA
+        noise, events, truth = jobs.analyse(rec, params, rec.truth_path())
+        feats = jobs.features(rec, events, params)
+        rec.close()
+        _CACHE.update(noise=noise, events=events, truth=truth, features=feats)
+    return _CACHE
+
+
+@pytest.fixture
+def window(qtbot):
+    """A shown, empty workbench window, closed (and its jobs stopped) after the test."""
+    win = MainWindow()
+    qtbot.addWidget(win)
+    win.show()
+    yield win
+    win.close()
+
+
+@pytest.fixture
+def demo_window(window, monkeypatch):
+    """The window with the demo open, its long steps answered from the session cache."""
+    cache = demo_analysis()
+    monkeypatch.setattr(jobs, "analyse", lambda *a, progress=None, cancel=None:
+                        (cache["noise"], cache["events"], cache["truth"]))
+    monkeypatch.setattr(jobs, "features", lambda *a, progress=None, cancel=None: cache["features"])
+    assert window.open_demo()
+    assert window.wait_idle(60)
+    assert window.bench.events is cache["events"]
+    return window
+
+
+def visible_passing_times(win, thresholds_sigma) -> np.ndarray:
+    """What the core says should be marked in the trace view at these thresholds."""
+    ev = win.bench.events
+    a, z = win.traces.visible_samples()
+    keep = ev.mask(threshold_sigma=thresholds_sigma)
+    keep &= (ev.sample >= a) & (ev.sample < z) & np.isin(ev.channel, win.bench.shown_channels)
+    return ev.sample[keep] / ev.rate_hz

@@ -1,0 +1,19 @@
+"""Import guard: makes Qt, pyqtgraph and app unimportable, to prove the core runs without them.
+
+Used by tests/test_boundaries.py, which runs the core tests in a subprocess with this guard.
+"""
+
+import importlib.abc
+import sys
+
+BLOCKED = ("PySide6", "shiboken6", "pyqtgraph", "app")
+
+
+class _Refuse(importlib.abc.MetaPathFinder):
+    def find_spec(self, name, path=None, target=None):
+        if name.split(".")[0] in BLOCKED:
+            raise ImportError(f"{name} is blocked: the core must run without Qt")
+        return None
+
+
+sys.meta_path.insert(0, _Refuse())

@@ -1,0 +1,108 @@
+import numpy as np
+import pytest
+from sklearn.metrics import adjusted_rand_score
+
+from core.clustering import NO_UNIT, ClusterParams, cluster_features, first_pass_assignments
+from core.errors import ParamError, RigsideError
+from core.first_pass import first_pass
+from core.progress import Cancelled
+
+from .sorting_data import make_events
+
+
+def _best_jaccard(truth: np.ndarray, found: np.ndarray) -> dict[int, float]:
+    """For every true cluster, the best Jaccard index |A & B| / |A | B| over found units (Jaccard 1912)."""
+    out = {}
+    for t in np.unique(truth[truth >= 0]):
+        a = truth == t
+        out[int(t)] = max(np.sum(a & (found == u)) / np.sum(a | (found == u)) for u in np.unique(found[a]))
+    return out
+
+
+def test_well_separated_clusters_are_found_per_group():
+    events, x, names, truth = make_events(n=6000, n_groups=3, clusters=3, seed=1)
+    assign, unit_group = first_pass_assignments(events.group, events.artefact, x, events.amplitude_uv,
+                                                ClusterParams(seed=4))
+    # ground truth: 3 clusters per group, found by BIC without being told
+    assert len(unit_group) == 9
+    assert sorted(unit_group.values()) == [0, 0, 0, 1, 1, 1, 2, 2, 2]
+    assert np.all(assign[events.artefact] == NO_UNIT)
+    assert np.all(assign[~events.artefact] >= 1)
+    # reference measure: scikit-learn's adjusted Rand index (Hubert & Arabie 1985)
+    ok = ~events.artefact
+    assert adjusted_rand_score(truth[ok], assign[ok]) > 0.99
+    assert min(_best_jaccard(truth, assign).values()) > 0.99
+
+
+def test_unit_ids_are_unique_across_groups_and_ordered_by_peak_magnitude():
+    events, x, names, truth = make_events(n=4000, n_groups=2, clusters=3, seed=2)
+    assign, unit_group = first_pass_assignments(events.group, events.artefact, x, events.amplitude_uv,
+                                                ClusterParams(seed=0))
+    assert sorted(unit_group) == list(range(1, 7))
+    for g in (0, 1):
+        ids = sorted(u for u, gg in unit_group.items() if gg == g)
+        mags = [np.abs(events.amplitude_uv[assign == u]).mean() for u in ids]
+        assert mags == sorted(mags, reverse=True)
+        assert np.all(events.group[np.isin(assign, ids)] == g)
+
+
+def test_same_seed_same_result_and_forced_k():
+    events, x, names, truth = make_events(n=3000, n_groups=1, clusters=3, seed=3)
+    p = ClusterParams(seed=7, fit_events=500)
+    a1 = cluster_features(x, p)
+    a2 = cluster_features(x, p)
+    assert np.array_equal(a1, a2)
+    forced = cluster_features(x, p, k=5)
+    assert forced.max() + 1 == 5
+    assert cluster_features(x, ClusterParams(k=1)).max() == 0
+
+
+def test_subsampled_fit_still_labels_every_event_correctly():
+    events, x, names, truth = make_events(n=20000, n_groups=1, clusters=4, seed=5)
+    labels = cluster_features(x, ClusterParams(fit_events=800, seed=1))
+    ok = truth >= 0
+    assert labels.max() + 1 == 4
+    assert adjusted_rand_score(truth[ok], labels[ok]) > 0.99
+
+
+def test_groups_subset_and_first_id():
+    events, x, names, truth = make_events(n=3000, n_groups=3, clusters=2, seed=6)
+    assign, unit_group = first_pass_assignments(events.group, events.artefact, x, events.amplitude_uv,
+                                                ClusterParams(), groups=[1], first_id=40)
+    assert set(unit_group) == {40, 41} and set(unit_group.values()) == {1}
+    assert np.all(assign[events.group != 1] == NO_UNIT)
+
+
+def test_bad_inputs_are_refused_with_specific_messages():
+    events, x, names, truth = make_events(n=500, n_groups=1, clusters=2, seed=7)
+    bad = x.copy()
+    bad[3, 1] = np.nan
+    with pytest.raises(RigsideError, match="features must be finite"):
+        cluster_features(bad, ClusterParams())
+    with pytest.raises(ParamError, match="largest cluster count must be an integer from 3"):
+        ClusterParams(k_min=3, k_max=2).validate()
+    with pytest.raises(ParamError, match="clustering parameter must be one of"):
+        ClusterParams.from_dict({"kk": 3})
+    with pytest.raises(RigsideError, match="one row per event"):
+        first_pass_assignments(events.group, events.artefact, x[:-1], events.amplitude_uv, ClusterParams())
+
+
+def test_progress_and_cancel():
+    events, x, names, truth = make_events(n=1500, n_groups=3, clusters=2, seed=8)
+    seen = []
+    first_pass_assignments(events.group, events.artefact, x, events.amplitude_uv, ClusterParams(),
+                           progress=lambda f, m: seen.append(f))
+    assert seen[0] == 0.0 and seen[-1] == 1.0 and seen == sorted(seen)
+    with pytest.raises(Cancelled):
+        first_pass_assignments(events.group, events.artefact, x, events.amplitude_uv, ClusterParams(),
+                               cancel=lambda: True)
+
+
+def test_first_pass_entry_point_opens_the_journal():
+    events, x, names, truth = make_events(n=2000, n_groups=2, clusters=2, seed=9)
+    s = first_pass(events, x, seed=11, feature_names=names)
+    assert len(s.journal) == 1
+    entry = s.journal.entries[0]
+    assert entry["action"] == "do" and entry["op"]["op"] == "cluster_groups"
+    assert entry["op"]["params"]["seed"] == 11 and entry["op"]["created"] == s.unit_ids()
+    assert all(u.label == "unreviewed" for u in s.units.values())

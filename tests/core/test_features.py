@@ -1,0 +1,88 @@
+import numpy as np
+import pytest
+from sklearn.decomposition import PCA
+
+from core.features import compute_features, shape_features
+from core.filtering import BandPass
+from core.params import Params
+from core.pipeline import detect
+from core.snippets import event_snippets, extract_snippets, snippet_times_ms, snippet_window
+
+from .helpers import gaussian, write_raw
+
+FS = 30000.0
+
+
+@pytest.fixture(scope="module")
+def rec_events(tmp_path_factory):
+    rng = np.random.default_rng(2)
+    x = gaussian(int(4 * FS), 4, sigma=8.0, seed=21)
+    tt = np.arange(-30, 45) / FS * 1000
+    a = -np.exp(-tt ** 2 / (2 * 0.15 ** 2)) + 0.4 * np.exp(-(tt - 0.5) ** 2 / (2 * 0.25 ** 2))
+    b = -np.exp(-tt ** 2 / (2 * 0.3 ** 2)) + 0.2 * np.exp(-(tt - 0.8) ** 2 / (2 * 0.3 ** 2))
+    times = np.sort(rng.choice(np.arange(200, len(x) - 200, 150), 400, replace=False))
+    which = rng.integers(0, 2, len(times))
+    for t0, u in zip(times, which):
+        w = (a if u == 0 else b) * 120
+        x[t0 - 30:t0 + 45] += np.outer(w, [1.0, 0.5, 0.3, 0.2] if u == 0 else [0.3, 1.0, 0.5, 0.2]).astype(np.float32)
+    rec = write_raw(tmp_path_factory.mktemp("f") / "f.bin", x, groups=[[0, 1, 2, 3]])
+    return rec, detect(rec, Params())
+
+
+def test_snippets_are_aligned_to_the_peak(rec_events):
+    rec, ev = rec_events
+    p = Params()
+    idx = np.flatnonzero(ev.mask(threshold_sigma=6))[:50]
+    snips, channels = event_snippets(rec, ev, p, idx)
+    before, after = snippet_window(p.snippets, FS)
+    assert snips.shape == (50, before + after, 4) and channels.tolist() == [0, 1, 2, 3]
+    col = ev.channel[idx]
+    np.testing.assert_allclose(snips[np.arange(50), before, col], ev.amplitude_uv[idx], rtol=1e-4, atol=1e-3)
+    t = snippet_times_ms(p.snippets, FS)
+    assert t[before] == 0 and t[0] == pytest.approx(-0.6, abs=0.04)
+
+
+def test_snippet_order_follows_the_index(rec_events):
+    rec, ev = rec_events
+    idx = np.array([30, 5, 17])
+    s, _ = event_snippets(rec, ev, Params(), idx)
+    one, _ = event_snippets(rec, ev, Params(), np.array([5]))
+    np.testing.assert_array_equal(s[1], one[0])
+
+
+def test_snippets_at_file_edges_are_zero_padded(rec_events):
+    rec, _ = rec_events
+    bp = BandPass(rec, Params().filter)
+    s = extract_snippets(bp, np.array([0, rec.n_samples - 1]), np.array([0]), Params().snippets)
+    before, _ = snippet_window(Params().snippets, FS)
+    assert np.all(s[0, :before] == 0) and np.all(s[1, before + 1:] == 0)
+
+
+def test_pca_matches_scikit_learn_on_the_same_snippets(rec_events):
+    rec, ev = rec_events
+    p = Params()
+    p.snippets.pca_fit_events = 100000  # fit on every event, as the reference does
+    f = compute_features(rec, ev, p)
+    snips, _ = event_snippets(rec, ev, p, np.arange(len(ev)))
+    # reference implementation: scikit-learn PCA on the flattened snippets; signs of
+    # components are arbitrary, so compare absolute scores
+    ref = PCA(n_components=3).fit_transform(snips.reshape(len(ev), -1))
+    np.testing.assert_allclose(np.abs(f.values[:, :3]), np.abs(ref), rtol=1e-3, atol=1e-2)
+    assert f.names == ["PC1", "PC2", "PC3", "peak_uv", "width_ms", "energy_uv2"]
+
+
+def test_two_waveforms_separate_in_pc_space_and_width(rec_events):
+    rec, ev = rec_events
+    f = compute_features(rec, ev, Params())
+    keep = ev.mask(threshold_sigma=8)
+    width = f.column("width_ms")[keep]
+    # narrow (0.5 ms rebound) and wide (0.8 ms rebound) waveforms: widths form two groups
+    assert np.sum(np.abs(width - 0.5) < 0.1) > 50 and np.sum(np.abs(width - 0.8) < 0.15) > 50
+
+
+def test_shape_features_on_a_known_trace():
+    snips = np.zeros((1, 10, 2), np.float32)
+    snips[0, 3, 1] = -50
+    snips[0, 7, 1] = 20
+    out = shape_features(snips, np.array([1]), before=3, rate_hz=10000.0)
+    assert out[0, 0] == -50 and out[0, 1] == pytest.approx(0.4) and out[0, 2] == pytest.approx((2500 + 400) / 20)
