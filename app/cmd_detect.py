@@ -4,15 +4,15 @@ from __future__ import annotations
 
 import argparse
 import json
-import os
 from pathlib import Path
 
 import numpy as np
 
 from core import __version__
+from core.atomic import atomic_write
 from core.errors import ParamError
 from core.noise import estimate_noise
-from core.pipeline import detect, thresholds_sigma
+from core.pipeline import NOISE_SHARE, detect, thresholds_sigma
 from core.synth import write_synth
 
 from .cli_common import add_param_options, add_recording_options, check_output, open_from_args, params_from_args
@@ -52,7 +52,7 @@ def run_detect(args: argparse.Namespace) -> int:
     params.validate(rec.rate_hz)
     bar = TextProgress(not args.quiet)
     try:
-        noise = estimate_noise(rec, params)
+        noise = estimate_noise(rec, params, progress=lambda f, m: bar(f * NOISE_SHARE, m))
         events = detect(rec, params, progress=bar, noise=noise)
     finally:
         bar.close()
@@ -83,12 +83,7 @@ def write_summary(path: Path, rec, params, events, noise) -> None:
                       "events": int(counts[c]), "rate_hz": float(counts[c] / rec.duration_s),
                       "flag": noise.bad.get(c)} for c in range(rec.n_channels)],
     }
-    tmp = path.with_name(path.name + ".part")
-    with open(tmp, "w") as fh:
-        json.dump(doc, fh, indent=2)
-        fh.flush()
-        os.fsync(fh.fileno())
-    os.replace(tmp, path)
+    atomic_write(path, lambda tmp: tmp.write_text(json.dumps(doc, indent=2)))
 
 
 def run_synth(args: argparse.Namespace) -> int:

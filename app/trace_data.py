@@ -40,11 +40,12 @@ class Block:
 
 
 def step_for(n_visible: int, pixels: int) -> int:
-    """Power-of-two run length so that about two points fall on each pixel."""
+    """Power-of-two run length of at least one pixel's worth of samples (one min and one
+    max per run, so two to four points per pixel), or 1 when samples are sparse."""
     per_pixel = n_visible / max(1, pixels)
     if per_pixel < 2:
         return 1
-    return 1 << int(np.floor(np.log2(per_pixel)))
+    return 1 << int(np.ceil(np.log2(per_pixel)))
 
 
 def load_block(recording: Recording, bandpass: BandPass, start: int, stop: int, step: int,
@@ -103,8 +104,9 @@ def visible_envelope(block: Block, start: int, stop: int, step: int) -> tuple[np
     if factor > 1:
         n = len(lo) // factor
         rest = len(lo) - n * factor
-        lo_b = lo[:n * factor].reshape(n, factor, -1).min(axis=1)
-        hi_b = hi[:n * factor].reshape(n, factor, -1).max(axis=1)
+        nc = lo.shape[1]
+        lo_b = lo[:n * factor].reshape(n, factor, nc).min(axis=1)
+        hi_b = hi[:n * factor].reshape(n, factor, nc).max(axis=1)
         if rest:
             lo_b = np.vstack([lo_b, lo[n * factor:].min(axis=0, keepdims=True)])
             hi_b = np.vstack([hi_b, hi[n * factor:].max(axis=0, keepdims=True)])

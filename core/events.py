@@ -8,13 +8,13 @@ from a look-up, without re-reading the recording.
 from __future__ import annotations
 
 import csv
-import os
 from dataclasses import dataclass, field
 from pathlib import Path
 
 import h5py
 import numpy as np
 
+from .atomic import atomic_write
 from .errors import RigsideError
 
 COLUMNS = {
@@ -145,27 +145,22 @@ class EventTable:
     # ---- files -------------------------------------------------------------------------
     def write_csv(self, path: str | Path) -> None:
         """Write ``sample,time_s,channel,group,amplitude_uv,amplitude_sigma,artefact`` atomically."""
-        path = Path(path)
-        tmp = path.with_name(path.name + ".part")
-        with open(tmp, "w", newline="") as fh:
-            w = csv.writer(fh)
-            w.writerow(["sample", "time_s", "channel", "group", "amplitude_uv", "amplitude_sigma", "artefact"])
-            t = self.time_s
-            for i in range(len(self)):
-                w.writerow([int(self.sample[i]), f"{t[i]:.6f}", int(self.channel[i]), int(self.group[i]),
-                            f"{self.amplitude_uv[i]:.3f}", f"{self.amplitude_sigma[i]:.4f}",
-                            int(self.artefact[i])])
-            fh.flush()
-            os.fsync(fh.fileno())
-        os.replace(tmp, path)
+        def write(tmp: Path) -> None:
+            with open(tmp, "w", newline="") as fh:
+                w = csv.writer(fh)
+                w.writerow(["sample", "time_s", "channel", "group", "amplitude_uv", "amplitude_sigma", "artefact"])
+                w.writerows(zip(self.sample.tolist(), (f"{t:.6f}" for t in self.time_s),
+                                self.channel.tolist(), self.group.tolist(),
+                                (f"{a:.3f}" for a in self.amplitude_uv), (f"{a:.4f}" for a in self.amplitude_sigma),
+                                self.artefact.astype(int).tolist()))
+        atomic_write(path, write)
 
     def write_h5(self, path: str | Path, group: str = "events") -> None:
         """Write the table into an HDF5 group (own layout: one dataset per column)."""
-        path = Path(path)
-        tmp = path.with_name(path.name + ".part")
-        with h5py.File(tmp, "w") as f:
-            self.to_h5_group(f.create_group(group))
-        os.replace(tmp, path)
+        def write(tmp: Path) -> None:
+            with h5py.File(tmp, "w") as f:
+                self.to_h5_group(f.create_group(group))
+        atomic_write(path, write)
 
     def to_h5_group(self, g: h5py.Group) -> None:
         """Store columns and context in an open HDF5 group."""

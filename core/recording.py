@@ -33,6 +33,7 @@ from pathlib import Path
 import h5py
 import numpy as np
 
+from .atomic import atomic_write
 from .errors import RecordingError
 
 DTYPES = ("int16", "uint16", "int32", "float32")
@@ -353,8 +354,7 @@ def write_metadata(path: str | Path, layout: Layout) -> Path:
         name = (layout.group_names or [])[i] if layout.group_names and i < len(layout.group_names) else f"group {i + 1}"
         lines += ["", "[[group]]", f'name = "{name}"', f"channels = {list(map(int, g))}"]
     meta = Path(path).with_name(Path(path).stem + META_SUFFIX)
-    meta.write_text("\n".join(lines) + "\n")
-    return meta
+    return atomic_write(meta, lambda tmp: tmp.write_text("\n".join(lines) + "\n"))
 
 
 def open_recording(path: str | Path, *, channels: int | None = None, rate_hz: float | None = None,

@@ -11,13 +11,13 @@ of any length stream to disk. Invented data, for the demo and ground-truth tests
 from __future__ import annotations
 
 import csv
-import os
 from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
 from scipy import signal
 
+from .atomic import atomic_write
 from .progress import CancelFn, ProgressFn, check, report
 from .recording import Layout, groups_of_size, write_metadata
 
@@ -229,13 +229,11 @@ def write_synth(out: str | Path, seconds: float = 60.0, channels: int = 16, seed
     """
     out = Path(out)
     sc = make_scenario(seconds, channels, seed, rate_hz)
-    tmp = out.with_name(out.name + ".part")
-    with open(tmp, "wb") as fh:
-        for _, x in render(sc, progress=progress, cancel=cancel):
-            np.clip(np.round(x / GAIN_UV), -32768, 32767).astype("<i2").tofile(fh)
-        fh.flush()
-        os.fsync(fh.fileno())
-    os.replace(tmp, out)
+    def write(tmp: Path) -> None:
+        with open(tmp, "wb") as fh:
+            for _, x in render(sc, progress=progress, cancel=cancel):
+                np.clip(np.round(x / GAIN_UV), -32768, 32767).astype("<i2").tofile(fh)
+    atomic_write(out, write)
     write_metadata(out, Layout(channels=channels, rate_hz=float(rate_hz), dtype="int16", gain_uv=GAIN_UV,
                                groups=sc.groups, group_names=[f"bundle {chr(65 + i)}" if i < 26 else f"bundle {i + 1}"
                                                               for i in range(len(sc.groups))]))
