@@ -55,3 +55,13 @@ def style_plot(plot: pg.PlotItem, x_label: str, y_label: str) -> None:
     plot.showGrid(x=True, y=True, alpha=0.15)
     for name in ("bottom", "left"):
         plot.getAxis(name).setTextPen(FOREGROUND)
+
+
+def hex_colour(colour) -> str:
+    return "#%02x%02x%02x" % tuple(colour[:3])
+
+
+def key(items: list[tuple[str, tuple, str]]) -> str:
+    """A one-line legend in rich text: (line glyph, colour, label) per item."""
+    return " &nbsp; ".join(f"<span style='color:{hex_colour(c)}; font-weight:bold'>{glyph}</span> {label}"
+                           for glyph, c, label in items)

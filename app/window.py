@@ -85,7 +85,7 @@ class MainWindow(QMainWindow):
         self.resize(1600, 1000)
         self.resizeDocks([threshold, curve], [480, 420], Qt.Orientation.Vertical)
         self.resizeDocks([threshold], [560], Qt.Orientation.Horizontal)
-        self.resizeDocks([strip, wave], [120, 300], Qt.Orientation.Vertical)
+        self.resizeDocks([strip, wave], [170, 330], Qt.Orientation.Vertical)
         self._default_state = self.saveState(LAYOUT_VERSION)
 
         self.task_status = TaskStatus(self.runner)

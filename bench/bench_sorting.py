@@ -89,7 +89,7 @@ def bench_detect(n_events: int, cluster_wall: float) -> None:
     n = int(events.mask(threshold_sigma=params.detect.threshold_sigma).sum())
     scaled = wall * n_events / max(n, 1)
     print(f"detection: 60 s, 16 channels, {n} events in {wall:.2f} s -> scaled to {n_events} events: "
-          f"{scaled:.1f} s ({n_events / n * 60 / 60:.0f} min of such a recording)")
+          f"{scaled:.1f} s ({n_events / max(n, 1):.0f} min of such a recording)")
     print(f"ratio first pass / detection for the same events: {cluster_wall / scaled:.2f}")
 
 

@@ -137,6 +137,32 @@ class SnippetParams:
 
 
 @dataclass
+class MetricParams:
+    """Settings of the per-unit quality metrics."""
+
+    refractory_ms: float = 1.5
+    censored_ms: float = 0.0
+    presence_bin_s: float = 60.0
+    presence_min_bins: int = 10
+    missed_min_events: int = 20
+
+    def validate(self) -> None:
+        _finite("refractory period", self.refractory_ms)
+        _require(self.refractory_ms > 0, f"refractory period must be above 0 ms, got {self.refractory_ms:g} ms")
+        _finite("censored period", self.censored_ms)
+        _require(self.censored_ms >= 0, f"censored period must be at least 0 ms, got {self.censored_ms:g} ms")
+        _require(self.censored_ms < self.refractory_ms,
+                 f"censored period must be shorter than the refractory period ({self.refractory_ms:g} ms), "
+                 f"got {self.censored_ms:g} ms")
+        _finite("presence bin", self.presence_bin_s)
+        _require(self.presence_bin_s > 0, f"presence bin must be above 0 s, got {self.presence_bin_s:g} s")
+        for name, v in (("presence minimum bin count", self.presence_min_bins),
+                        ("missed-spike minimum event count", self.missed_min_events)):
+            _require(isinstance(v, int) and not isinstance(v, bool) and v >= 1,
+                     f"{name} must be an integer of at least 1, got {v!r}")
+
+
+@dataclass
 class RunParams:
     """Streaming: chunk length and worker threads."""
 
@@ -159,6 +185,7 @@ class Params:
     noise: NoiseParams = field(default_factory=NoiseParams)
     detect: DetectParams = field(default_factory=DetectParams)
     snippets: SnippetParams = field(default_factory=SnippetParams)
+    metrics: MetricParams = field(default_factory=MetricParams)
     run: RunParams = field(default_factory=RunParams)
 
     def validate(self, rate_hz: float | None = None) -> None:
@@ -167,6 +194,7 @@ class Params:
         self.noise.validate()
         self.detect.validate()
         self.snippets.validate()
+        self.metrics.validate()
         self.run.validate()
 
     def to_dict(self) -> dict[str, Any]:

@@ -17,6 +17,7 @@ import numpy as np
 
 from .clustering import NO_UNIT
 from .errors import ParamError, RigsideError
+from .params import MetricParams
 from .metric_inputs import positive, same_length, spike_times
 from .metrics import (amplitude_drift, cv_isi, isi_violations, missed_fraction, presence_ratio,
                       snr)
@@ -61,30 +62,6 @@ COLUMNS: dict[str, str] = {
     "amplitude_drift_reason": "why the amplitude drift is undefined",
 }
 INT_COLUMNS = frozenset({"unit", "group", "main_channel", "n_events", "isi_violations"})
-
-
-@dataclass
-class MetricParams:
-    """Settings of the quality metrics."""
-
-    refractory_ms: float = 1.5
-    censored_ms: float = 0.0
-    presence_bin_s: float = 60.0
-    presence_min_bins: int = 10
-    missed_min_events: int = 20
-
-    def validate(self) -> None:
-        """Raise :class:`~core.errors.ParamError` for an out-of-range setting."""
-        positive("refractory period", self.refractory_ms, unit="ms")
-        positive("censored period", self.censored_ms, unit="ms", allow_zero=True)
-        if self.censored_ms >= self.refractory_ms:
-            raise ParamError(f"censored period must be shorter than the refractory period "
-                             f"({self.refractory_ms:g} ms), got {self.censored_ms:g} ms")
-        positive("presence bin", self.presence_bin_s)
-        for name, v in (("presence minimum bin count", self.presence_min_bins),
-                        ("missed-spike minimum event count", self.missed_min_events)):
-            if not isinstance(v, int) or v < 1:
-                raise ParamError(f"{name} must be an integer of at least 1, got {v!r}")
 
 
 def _int_column(x, name: str, n: int) -> np.ndarray:

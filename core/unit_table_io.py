@@ -80,7 +80,7 @@ def flag_units(table: dict[str, np.ndarray], limits=DEFAULT_LIMITS) -> dict[str,
 
 
 def _cell(column: str, value) -> str:
-    if column.endswith("_reason"):
+    if column.endswith("_reason") or column not in COLUMNS:
         return str(value)
     if column in INT_COLUMNS:
         return str(int(value))
@@ -94,7 +94,8 @@ def write_unit_table_csv(table: dict[str, np.ndarray], path: str | Path,
     Parameters
     ----------
     table
-        A table from :func:`core.unit_table.unit_metrics_table`.
+        A table from :func:`core.unit_table.unit_metrics_table`; columns beyond
+        :data:`~core.unit_table.COLUMNS` (e.g. ``label``) are written after them as text.
     path
         Target CSV file.
     params
@@ -112,6 +113,7 @@ def write_unit_table_csv(table: dict[str, np.ndarray], path: str | Path,
     if any(len(table[c]) != n for c in COLUMNS):
         raise RigsideError("unit table columns must all have one row per unit, got differing lengths")
     settings = ", ".join(f"{k} = {v:g}" for k, v in asdict(params or MetricParams()).items())
+    columns = list(COLUMNS) + [c for c in table if c not in COLUMNS]
 
     def write(tmp: Path) -> None:
         with open(tmp, "w", newline="", encoding="utf-8") as fh:
@@ -121,8 +123,8 @@ def write_unit_table_csv(table: dict[str, np.ndarray], path: str | Path,
             for name, meaning in COLUMNS.items():
                 fh.write(f"# {name}: {meaning}\n")
             w = csv.writer(fh)
-            w.writerow(list(COLUMNS))
+            w.writerow(columns)
             for i in range(n):
-                w.writerow([_cell(c, table[c][i]) for c in COLUMNS])
+                w.writerow([_cell(c, table[c][i]) for c in columns])
 
     return atomic_write(path, write)

@@ -37,8 +37,6 @@ class CountCurvePanel(Panel):
         self.rate_plot.setLogMode(x=False, y=True)
         self.rate_plot.setMenuEnabled(False)
         self.rate_plot.hideButtons()
-        self.legend = self.rate_plot.addLegend(offset=(10, -10), labelTextColor=palette.FOREGROUND,
-                                               brush=(255, 255, 255, 200))
         self.observed = self.rate_plot.plot([], [], pen=palette.pen(palette.BLUE, 2.5), name="detected events")
         self.sampled = self.rate_plot.plot([], [], pen=palette.pen(palette.BLACK, 1.5, dash=True),
                                            name="noise only (sampled data)")
@@ -55,9 +53,6 @@ class CountCurvePanel(Panel):
         self.truth_plot.setMenuEnabled(False)
         self.truth_plot.hideButtons()
         palette.style_plot(self.truth_plot, "threshold (× noise σ)", "true spikes / events")
-        self.truth_legend = self.truth_plot.addLegend(labelTextColor=palette.FOREGROUND,
-                                                      brush=(255, 255, 255, 200))
-        self.truth_legend.anchor(itemPos=(1, 0.5), parentPos=(1, 0.5), offset=(-10, 0))
         self.hits = self.truth_plot.plot([], [], pen=palette.pen(palette.HITS, 2.5), name="hits")
         self.misses = self.truth_plot.plot([], [], pen=palette.pen(palette.MISSES, 2.5, dash=True),
                                            name="misses")
@@ -68,9 +63,17 @@ class CountCurvePanel(Panel):
         self.truth_plot.setVisible(False)
         self.note = QLabel("")
         self.note.setWordWrap(True)
+        self.key = QLabel(palette.key([("━━", palette.BLUE, "detected events"),
+                                       ("╍╍", palette.BLACK, "noise only, sampled data"),
+                                       ("┈┈", palette.GREY, "noise only, Rice (continuous)")]))
+        self.truth_key = QLabel(palette.key([("━━", palette.HITS, "hits"), ("╍╍", palette.MISSES, "misses"),
+                                             ("┈┈", palette.FALSE_ALARMS, "false alarms")]))
+        self.truth_key.setVisible(False)
         lay = QVBoxLayout(self)
         lay.setContentsMargins(2, 2, 2, 2)
+        lay.addWidget(self.key)
         lay.addWidget(self.layout_widget, 1)
+        lay.addWidget(self.truth_key)
         lay.addWidget(self.note)
 
     # ---- data -----------------------------------------------------------------------------
@@ -89,6 +92,7 @@ class CountCurvePanel(Panel):
         for item in (self.observed, self.sampled, self.continuous, self.hits, self.misses, self.false_alarms):
             item.setData([], [])
         self.truth_plot.setVisible(False)
+        self.truth_key.setVisible(False)
         self.note.setText("")
 
     def _on_selection(self) -> None:
@@ -117,8 +121,8 @@ class CountCurvePanel(Panel):
         self.rate_plot.setXRange(x[0], x[-1], padding=0.02)
         unit = "× noise σ" if b.unit == "sigma" else "µV"
         palette.style_plot(self.rate_plot, f"threshold on ch {c} ({unit})", "events / s (log)")
-        self.note.setText(f"ch {c}: detected events per second against the threshold; below the dashed "
-                          "curve's level, noise alone would give as many crossings.")
+        self.note.setText(f"ch {c}: where the detected curve meets the dashed one, noise alone would "
+                          "give as many crossings (Gaussian noise through this filter assumed).")
         self._on_thresholds(True)
         self._draw_scores()
 
@@ -152,6 +156,7 @@ class CountCurvePanel(Panel):
         truth, ev = b.analysis.truth, b.events
         if truth is None or ev is None:
             self.truth_plot.setVisible(False)
+            self.truth_key.setVisible(False)
             return
         k = np.linspace(ev.floor_sigma, ev.floor_sigma + 9.0, 46)
         chans = b.group_channels
@@ -167,6 +172,7 @@ class CountCurvePanel(Panel):
         if s is None or self.bench.analysis.truth is None:
             return
         self.truth_plot.setVisible(True)
+        self.truth_key.setVisible(True)
         self.hits.setData(s.thresholds_sigma, s.hits)
         self.misses.setData(s.thresholds_sigma, s.misses)
         self.false_alarms.setData(s.thresholds_sigma, s.false_alarms)

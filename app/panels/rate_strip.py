@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 import pyqtgraph as pg
-from PySide6.QtWidgets import QVBoxLayout
+from PySide6.QtWidgets import QLabel, QVBoxLayout
 
 from .. import palette
 from .base import Panel
@@ -37,8 +37,6 @@ class RateStripPanel(Panel):
         pi.setMouseEnabled(x=False, y=False)
         palette.style_plot(pi, "time (s)", "events / s")
         pi.getAxis("left").setWidth(56)
-        self.legend = pi.addLegend(offset=(-10, 5), labelTextColor=palette.FOREGROUND, brush=(255, 255, 255, 200),
-                                   colCount=2)
         self.rate = pg.PlotCurveItem(pen=palette.pen(palette.BLUE, 1.5),
                                      name="events, shown channels")
         self.artefacts = pg.PlotCurveItem(pen=palette.pen(palette.ARTEFACT, 1.5, dash=True),
@@ -51,9 +49,14 @@ class RateStripPanel(Panel):
         pi.addItem(self.region, ignoreBounds=True)
         self.region.sigRegionChangeFinished.connect(self._on_region)
         self.plot.scene().sigMouseClicked.connect(self._on_click)
+        self.key = QLabel(palette.key([("━━", palette.BLUE, "events/s, shown channels"),
+                                       ("╍╍", palette.ARTEFACT, "artefacts/s, all channels")])
+                          + " &nbsp; · click, or drag the shaded window, to move the traces there")
+        self.plot.setMinimumHeight(90)
         lay = QVBoxLayout(self)
         lay.setContentsMargins(2, 2, 2, 2)
-        lay.addWidget(self.plot)
+        lay.addWidget(self.plot, 1)
+        lay.addWidget(self.key)
         bench.events_changed.connect(self._on_events)
         bench.thresholds_changed.connect(self._on_thresholds)
         bench.selection_changed.connect(self._draw)

@@ -75,7 +75,7 @@ class ChannelTable(QAbstractTableModel):
         if col == 6:
             return "" if c >= len(self.counts) else f"{self.counts[c] / rec.duration_s:.2f}"
         if col == 7:
-            return "" if c >= len(self.noise_rate) else f"{self.noise_rate[c]:.3g}"
+            return "" if c >= len(self.noise_rate) else f"{self.noise_rate[c]:.2g}"
         noise = b.analysis.noise
         return "" if noise is None else noise.bad.get(c, "")
 
@@ -183,6 +183,7 @@ class ThresholdPanel(Panel):
                                 "Rice's formula).")
         self._on_thresholds()
         self.table.resizeColumnsToContents()
+        self.table.setColumnWidth(7, max(self.table.columnWidth(7), self.fontMetrics().horizontalAdvance("0.00088") + 16))
 
     def _on_thresholds(self, final: bool = True) -> None:
         b = self.bench

@@ -11,10 +11,13 @@ from PySide6.QtWidgets import (QCheckBox, QComboBox, QGraphicsRectItem, QHBoxLay
 from core.filtering import BandPass
 from .. import palette
 from ..bindings import CheckBinding
+from ..channel_text import channel_list, parse_channels
 from ..trace_data import Block, load_block, step_for, visible_envelope
 from .base import Panel
+from .event_marks import EventMarks
 
 SYNC_LIMIT = 3_000_000   # samples x channels loaded on the GUI thread; more goes to a job
+LANE_SIGMAS = 20.0        # lane height in noise sigmas of the filtered signal
 SPAN_LIMIT = 60_000_000  # samples x channels the view may show at once
 NICE = np.array([1, 2, 5, 10, 20, 50, 100, 200, 500, 1000, 2000, 5000, 10000], dtype=float)
 
@@ -75,8 +78,7 @@ class TracePanel(Panel):
         self.curve = pg.PlotCurveItem(pen=palette.pen(palette.TRACE), skipFiniteCheck=True)
         self.selected_curve = pg.PlotCurveItem(pen=palette.pen(palette.TRACE_SELECTED), skipFiniteCheck=True)
         self.threshold_lines = pg.PlotCurveItem(pen=palette.pen(palette.THRESHOLD, 1.5, dash=True))
-        self.markers = pg.PlotCurveItem(pen=palette.pen(palette.EVENT, 2.5), connect="pairs")
-        self.artefact_markers = pg.PlotCurveItem(pen=palette.pen(palette.ARTEFACT, 2.5), connect="pairs")
+        self.marks = EventMarks()
         self.handle = pg.InfiniteLine(angle=0, movable=True, pen=palette.pen(palette.THRESHOLD, 3),
                                       hoverPen=palette.pen(palette.VERMILLION, 4), label="",
                                       labelOpts={"position": 0.04, "color": palette.FOREGROUND,
@@ -85,7 +87,7 @@ class TracePanel(Panel):
         self.scale_bar = pg.PlotCurveItem(pen=palette.pen(palette.BLACK, 3))
         self.scale_text = pg.TextItem("", color=palette.FOREGROUND, anchor=(1, 0.5), fill=(255, 255, 255, 220))
         for item in (self.curve, self.selected_curve, self.threshold_lines,
-                     self.artefact_markers, self.markers, self.scale_bar):
+                     *self.marks.items(), self.scale_bar):
             pi.addItem(item)
         pi.addItem(self.scale_text, ignoreBounds=True)
         pi.addItem(self.handle, ignoreBounds=True)
@@ -110,7 +112,7 @@ class TracePanel(Panel):
         self.show_combo.clear()
         for i, name in enumerate(rec.group_names):
             chans = rec.groups[i]
-            self.show_combo.addItem(f"{name} (ch {_channel_list(chans)})", ("group", i))
+            self.show_combo.addItem(f"{name} (ch {channel_list(chans)})", ("group", i))
         self.show_combo.addItem(f"All channels ({rec.n_channels})", ("all", None))
         self.show_combo.addItem("Choose channels…", ("choose", None))
         self.vb.setLimits(xMin=0.0, xMax=rec.duration_s, minXRange=min(0.005, rec.duration_s))
@@ -131,7 +133,7 @@ class TracePanel(Panel):
                 except ValueError as exc:
                     self.window().show_error("Channels not understood", str(exc))
                     return
-                self.bench.show_channels(chans, f"channels {_channel_list(chans)}")
+                self.bench.show_channels(chans, f"channels {channel_list(chans)}")
 
     def _on_selection(self) -> None:
         b = self.bench
@@ -171,6 +173,7 @@ class TracePanel(Panel):
 
     def _on_raw(self) -> None:
         self.block = None
+        self._layout_lanes()
         self.refresh()
 
     def _on_range_changed(self, _vb, rng) -> None:
@@ -182,8 +185,10 @@ class TracePanel(Panel):
         b = self.bench
         shown = b.shown_channels
         sigma = b.sigma_uv
-        if sigma is not None and np.any(sigma[shown] > 0):
-            base = 14.0 * float(np.median(sigma[shown][sigma[shown] > 0]))
+        if b.show_raw:
+            base = self._raw_spread()
+        elif sigma is not None and np.any(sigma[shown] > 0):
+            base = LANE_SIGMAS * float(np.median(sigma[shown][sigma[shown] > 0]))
         else:
             base = 100.0
         self.spacing = base / self.gain
@@ -196,6 +201,20 @@ class TracePanel(Panel):
         self._draw_threshold_lines()
         self._update_handle()
 
+    def _raw_spread(self) -> float:
+        """Lane height for the raw signal: median over channels of the 0.5-99.5 % range of
+        short stretches spread over the visible window (so slow drift counts too)."""
+        rec = self.bench.recording
+        a, z = self.visible_samples()
+        n = min(z - a, int(0.05 * rec.rate_hz))
+        if n < 2:
+            return 100.0
+        starts = np.linspace(a, z - n, 8).astype(np.int64)
+        x = np.concatenate([rec.read(int(s), int(s) + n, self.bench.shown_channels) for s in starts])
+        lo, hi = np.percentile(x, [0.5, 99.5], axis=0)
+        spread = float(np.median(hi - lo))
+        return 1.1 * spread if spread > 0 else 100.0
+
     def _draw_bands(self) -> None:
         """A light band of plus/minus one noise sigma around each trace's baseline."""
         pi = self.plot.getPlotItem()
@@ -203,7 +222,7 @@ class TracePanel(Panel):
             pi.removeItem(item)
         self.bands = []
         sigma = self.bench.sigma_uv
-        if sigma is None:
+        if sigma is None or self.bench.show_raw:
             return
         duration = self.bench.recording.duration_s
         brush = pg.mkBrush(*palette.NOISE_BAND)
@@ -234,7 +253,7 @@ class TracePanel(Panel):
     def _draw_threshold_lines(self) -> None:
         b = self.bench
         sigma = b.sigma_uv
-        if sigma is None or b.recording is None:
+        if sigma is None or b.recording is None or b.show_raw:
             self.threshold_lines.setData([], [])
             return
         shown = b.shown_channels
@@ -250,7 +269,8 @@ class TracePanel(Panel):
     def _update_handle(self) -> None:
         b = self.bench
         sigma = b.sigma_uv
-        if sigma is None or b.recording is None or self.lane[b.channel] < 0 or sigma[b.channel] <= 0:
+        if (sigma is None or b.recording is None or b.show_raw or self.lane[b.channel] < 0
+                or sigma[b.channel] <= 0):
             self.handle.setVisible(False)
             return
         lane = int(self.lane[b.channel])
@@ -380,69 +400,18 @@ class TracePanel(Panel):
             self.selected_curve.setData(t, shown[:, lane])
 
     def _draw_markers(self) -> None:
-        b = self.bench
-        ev = b.events
-        if ev is None or b.recording is None or not len(self.offsets):
-            self.markers.setData([], [])
-            self.artefact_markers.setData([], [])
-            return
-        a, z = self.visible_samples()
-        i0, i1 = np.searchsorted(ev.sample, [a, z])
-        ch = ev.channel[i0:i1]
-        lane = self.lane[ch]
-        amp_sigma = ev.amplitude_sigma[i0:i1]
-        passing = (lane >= 0) & (amp_sigma >= b.thresholds_sigma[ch].astype(np.float32))
-        art = ev.artefact[i0:i1]
-        t = ev.sample[i0:i1] / ev.rate_hz
-        for item, keep in ((self.markers, passing & ~art), (self.artefact_markers, passing & art)):
-            amp = ev.amplitude_uv[i0:i1][keep]
-            base = self.offsets[lane[keep]] + amp
-            direction = np.where(amp < 0, -1.0, 1.0)
-            y = np.empty(2 * len(base))
-            y[0::2] = base + direction * 0.08 * self.spacing
-            y[1::2] = base + direction * 0.3 * self.spacing
-            item.setData(np.repeat(t[keep], 2), y, connect="pairs")
+        a, z = self.visible_samples() if self.bench.recording is not None else (0, 0)
+        self.marks.draw(self.bench, self.offsets, self.lane, self.spacing, a, z, max(200, int(self.vb.width())))
 
     def marker_times(self) -> np.ndarray:
-        """Times (s) of the event markers drawn now (one per marked event)."""
-        x, _ = self.markers.getData()
-        return np.zeros(0) if x is None else np.asarray(x[0::2])
+        """Times (s) of the event markers drawn now (one per marked event unless dense)."""
+        return self.marks.times()
 
     def _draw_scale_bar(self) -> None:
         t0, t1 = self.bench.view
         length = float(NICE[np.searchsorted(NICE, 0.5 * self.spacing) - 1]) if self.spacing > 2 else 1.0
         x = t1 - 0.015 * (t1 - t0)
-        top = 0.45 * self.spacing
+        top = 0.3 * self.spacing
         self.scale_bar.setData([x, x], [top, top - length])
         self.scale_text.setText(f"{length:g} µV")
         self.scale_text.setPos(x - 0.005 * (t1 - t0), top - length / 2)
-
-
-def _channel_list(chans) -> str:
-    """Compact text for a channel list: 0-3, 8, 12-13."""
-    chans = sorted(int(c) for c in chans)
-    parts, i = [], 0
-    while i < len(chans):
-        j = i
-        while j + 1 < len(chans) and chans[j + 1] == chans[j] + 1:
-            j += 1
-        parts.append(str(chans[i]) if i == j else f"{chans[i]}-{chans[j]}")
-        i = j + 1
-    return ", ".join(parts)
-
-
-def parse_channels(text: str, n_channels: int) -> list[int]:
-    """Channels from text such as "0-3, 8"; each must lie in 0..n_channels-1."""
-    out: list[int] = []
-    for part in filter(None, (p.strip() for p in text.replace(";", ",").split(","))):
-        lo, _, hi = part.partition("-")
-        try:
-            a, b = int(lo), int(hi or lo)
-        except ValueError:
-            raise ValueError(f"channels must be numbers or ranges like 0-3, got {part!r}") from None
-        if not (0 <= a <= b < n_channels):
-            raise ValueError(f"channels must lie in 0..{n_channels - 1}, got {part!r}")
-        out.extend(range(a, b + 1))
-    if not out:
-        raise ValueError(f"channels must name at least one channel, got {text!r}")
-    return out

@@ -52,6 +52,20 @@ def qt_started(qapp):
     yield
 
 
+# the offscreen platform cannot resize native windows to hints; nothing of ours is wrong then
+KNOWN_QT_MESSAGES = ("This plugin does not support propagateSizeHints()",)
+
+
+@pytest.fixture(autouse=True)
+def no_qt_warnings(qtlog):
+    """Fail a test on any Qt warning or error other than the offscreen platform's known one."""
+    yield
+    bad = [r.message for r in qtlog.records
+           if r.type.name in ("QtWarningMsg", "QtCriticalMsg", "QtFatalMsg")
+           and not r.message.startswith(KNOWN_QT_MESSAGES)]
+    assert not bad, f"Qt reported: {bad}"
+
+
 @pytest.fixture(autouse=True)
 def no_leaks(qapp, qt_started):
     """Fail a test that leaves a visible window, a running job or another thread behind."""

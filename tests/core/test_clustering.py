@@ -2,7 +2,7 @@ import numpy as np
 import pytest
 from sklearn.metrics import adjusted_rand_score
 
-from core.clustering import NO_UNIT, ClusterParams, cluster_features, first_pass_assignments
+from core.clustering import NO_UNIT, ClusterParams, cluster_features, first_pass_assignments, merge_components
 from core.errors import ParamError, RigsideError
 from core.first_pass import first_pass
 from core.progress import Cancelled
@@ -106,3 +106,25 @@ def test_first_pass_entry_point_opens_the_journal():
     assert entry["action"] == "do" and entry["op"]["op"] == "cluster_groups"
     assert entry["op"]["params"]["seed"] == 11 and entry["op"]["created"] == s.unit_ids()
     assert all(u.label == "unreviewed" for u in s.units.values())
+
+
+def test_components_of_one_curved_cluster_are_merged():
+    # two arcs ("bananas") far apart: BIC spends many Gaussian components on each arc, and
+    # merging by misclassification probability (Hennig 2010) [memory] joins them back
+    rng = np.random.default_rng(0)
+    t = rng.uniform(0, np.pi, 6000)
+    x = np.column_stack([6 * np.cos(t), 6 * np.sin(t)]) + rng.normal(0, 0.5, (6000, 2))
+    x[3000:, 1] -= 20
+    truth = np.repeat([0, 1], 3000)
+    unmerged = cluster_features(x.astype(np.float32), ClusterParams(seed=1, merge_overlap=1.0))
+    merged = cluster_features(x.astype(np.float32), ClusterParams(seed=1))
+    assert unmerged.max() + 1 > 2
+    assert merged.max() + 1 == 2
+    assert adjusted_rand_score(truth, merged) == 1.0
+
+
+def test_merge_components_by_hand():
+    # two components that share half their events are merged; a third, apart, is kept
+    tau = np.array([[0.5, 0.5, 0.0]] * 10 + [[0.0, 0.0, 1.0]] * 10)
+    assert merge_components(tau, 0.02) == [[0, 1], [2]]
+    assert merge_components(tau, 1.0) == [[0], [1], [2]]

@@ -1,0 +1,58 @@
+"""`rigside metrics`: the per-unit quality table of a session, headless."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+
+from core.features import Features
+from core.pipeline import thresholds_sigma
+from core.session import load_session
+from core.unit_table import CAUTION, unit_metrics_for_events
+from core.unit_table_io import DEFAULT_LIMITS, flag_units, write_unit_table_csv
+
+from .cli_common import check_output
+from .progressbar import TextProgress
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    p = sub.add_parser("metrics", help="write the quality numbers of every unit of a session",
+                       description="Compute per-unit quality numbers (rate, refractory violations and "
+                                   "contamination, isolation distance, L-ratio, SNR, missed fraction, "
+                                   "presence ratio, amplitude drift) and write one CSV row per unit. "
+                                   + CAUTION)
+    p.add_argument("session", help="session file (.h5) made by `rigside sort` or the window")
+    p.add_argument("--out", required=True, metavar="METRICS.csv", help="CSV file to write")
+    p.add_argument("--refractory-ms", type=float, help="refractory period (default from the session, 1.5 ms)")
+    p.add_argument("--censored-ms", type=float,
+                   help="censored period (default: the detection dead time, since shorter intervals cannot be seen)")
+    p.add_argument("--quiet", action="store_true", help="no progress bar")
+    p.set_defaults(func=run_metrics)
+
+
+def run_metrics(args: argparse.Namespace) -> int:
+    out = check_output(args.out, args.session, suffixes=(".csv",))
+    session = load_session(args.session, check_recording=False)
+    params = session.params
+    mp = params.metrics
+    if args.refractory_ms is not None:
+        mp.refractory_ms = args.refractory_ms
+    mp.censored_ms = args.censored_ms if args.censored_ms is not None else \
+        min(params.detect.dead_time_ms, 0.99 * mp.refractory_ms)
+    mp.validate()
+    events, sorting = session.events, session.sorting
+    features = Features(sorting.data.features, list(sorting.data.feature_names))
+    bar = TextProgress(not args.quiet)
+    try:
+        table = unit_metrics_for_events(events, sorting.assignments, features,
+                                        thresholds_sigma(params, events.sigma_uv), mp, progress=bar)
+    finally:
+        bar.close()
+    labels = {u: sorting.unit(u).label for u in table["unit"].tolist()}
+    table["label"] = [labels[u] for u in table["unit"].tolist()]
+    write_unit_table_csv(table, out, mp)
+    flags = flag_units(table, DEFAULT_LIMITS)
+    flagged = sorted({int(u) for name, f in flags.items() for u, bad in zip(table["unit"], f) if bad})
+    print(f"{len(table['unit'])} units -> {out}; beyond a limit: {', '.join(map(str, flagged)) or 'none'}")
+    print(CAUTION, file=sys.stderr)
+    return 0

@@ -1,0 +1,73 @@
+"""`rigside sort` and `rigside export`."""
+
+from __future__ import annotations
+
+import argparse
+from pathlib import Path
+
+from core.clustering import ClusterParams
+from core.errors import ParamError
+from core.export import export_units
+from core.session import load_session
+from core.sort_run import run_sort
+
+from .cli_common import add_param_options, add_recording_options, check_output, open_from_args, params_from_args
+from .progressbar import TextProgress
+
+
+def register(sub: argparse._SubParsersAction) -> None:
+    p = sub.add_parser("sort", help="detect, compute features and cluster into units, headless",
+                       description="Run detection, waveform features and first-pass clustering per channel "
+                                   "group, and save everything in a session file for curation.")
+    p.add_argument("recording", help="recording file")
+    p.add_argument("--session", required=True, metavar="OUT.h5", help="session file to write")
+    p.add_argument("--clusters", type=int, metavar="K", help="force K clusters per group (default: chosen by BIC)")
+    p.add_argument("--seed", type=int, default=0, help="clustering seed (default 0)")
+    p.add_argument("--resume", action="store_true", help="continue an interrupted run from its checkpoint")
+    add_recording_options(p)
+    add_param_options(p)
+    p.set_defaults(func=run_sort_command)
+
+    e = sub.add_parser("export", help="write spike times per unit and a 1 ms binned spike matrix",
+                       description="Write spike times per unit (units.csv with unit,label,time_s and one "
+                                   ".npy file per unit) and a binned spike matrix (HDF5) from a session.")
+    e.add_argument("session", help="session file")
+    e.add_argument("--out", required=True, metavar="DIR", help="folder to write (created if missing)")
+    e.add_argument("--bin-ms", type=float, default=1.0, help="bin width of the spike matrix (default 1 ms)")
+    e.add_argument("--quiet", action="store_true", help="no progress bar")
+    e.set_defaults(func=run_export_command)
+
+
+def run_sort_command(args: argparse.Namespace) -> int:
+    check_output(args.session, args.recording, suffixes=(".h5", ".hdf5"))
+    params = params_from_args(args)
+    cluster = ClusterParams(k=args.clusters, seed=args.seed)
+    cluster.validate()
+    rec = open_from_args(args)
+    bar = TextProgress(not args.quiet)
+    try:
+        session = run_sort(rec, params, args.session, cluster, resume=args.resume, progress=bar)
+    finally:
+        bar.close()
+        rec.close()
+    n_units = len(session.sorting.units)
+    print(f"{len(session.events)} events, {n_units} units in {len(rec.groups)} groups -> {args.session}")
+    return 0
+
+
+def run_export_command(args: argparse.Namespace) -> int:
+    out = Path(args.out)
+    if out.exists() and not out.is_dir():
+        raise ParamError(f"export target must be a folder, got the file {str(out)!r}")
+    if not out.parent.exists():
+        raise ParamError(f"export folder's parent must exist, got {str(out.parent)!r}")
+    out.mkdir(exist_ok=True)
+    session = load_session(args.session, check_recording=False)
+    bar = TextProgress(not args.quiet)
+    try:
+        written = export_units(session, out, bin_ms=args.bin_ms, progress=bar)
+    finally:
+        bar.close()
+    n = sum(len(v) for v in written.values())
+    print(f"{n} files -> {out}")
+    return 0

@@ -1,0 +1,122 @@
+"""Headless sorting run: detection, features, first-pass clustering, session — resumable.
+
+After each long stage the run writes a checkpoint beside the session
+(``NAME.checkpoint.h5``: the event table, the features once computed, the parameters and
+the recording's fingerprint). A resumed run reuses the stages whose checkpoint matches
+the same recording and the same parameters, and starts over otherwise.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import h5py
+import numpy as np
+
+from .atomic import atomic_write
+from .clustering import ClusterParams
+from .errors import RigsideError
+from .events import EventTable
+from .features import Features, compute_features
+from .first_pass import first_pass
+from .params import Params
+from .pipeline import detect
+from .progress import CancelFn, ProgressFn, report
+from .recording import Recording
+from .session import RecordingRef, Session, save_session
+
+STAGE_SHARES = (0.45, 0.35, 0.2)  # detection, features, clustering: shares of the progress bar
+
+
+def checkpoint_path(session_path: str | Path) -> Path:
+    p = Path(session_path)
+    return p.with_name(p.name + ".checkpoint.h5")
+
+
+def _key(recording: Recording, params: Params) -> str:
+    """What a checkpoint must match: the recording's fingerprint and every parameter."""
+    return json.dumps({"fingerprint": recording.fingerprint(), "params": params.to_dict()}, sort_keys=True)
+
+
+def _write_checkpoint(path: Path, key: str, events: EventTable, features: Features | None) -> None:
+    def write(tmp: Path) -> None:
+        with h5py.File(tmp, "w") as f:
+            f.attrs["key"] = key
+            events.to_h5_group(f.create_group("events"))
+            if features is not None:
+                f.create_dataset("features", data=features.values)
+                f.attrs["feature_names"] = json.dumps(features.names)
+    atomic_write(path, write)
+
+
+def _read_checkpoint(path: Path, key: str) -> tuple[EventTable | None, Features | None]:
+    """Events and features of a matching checkpoint; (None, None) when absent or stale."""
+    if not path.exists():
+        return None, None
+    try:
+        with h5py.File(path, "r") as f:
+            if f.attrs.get("key") != key:
+                return None, None
+            events = EventTable.from_h5_group(f["events"])
+            features = None
+            if "features" in f:
+                values = np.asarray(f["features"][()], dtype=np.float32)
+                names = json.loads(f.attrs["feature_names"])
+                if values.shape != (len(events), len(names)):
+                    return events, None
+                features = Features(values, names)
+            return events, features
+    except (OSError, KeyError, ValueError, RigsideError):
+        return None, None  # a damaged checkpoint only costs recomputation
+
+
+def run_sort(recording: Recording, params: Params, session_path: str | Path, cluster: ClusterParams | None = None,
+             resume: bool = False, progress: ProgressFn = None, cancel: CancelFn = None) -> Session:
+    """Detect, compute features, cluster every group, and save the session.
+
+    Parameters
+    ----------
+    recording
+        The recording (read-only).
+    params
+        Pipeline parameters; events at the detection threshold are sorted.
+    session_path
+        Session file to write (atomically; the previous one is kept as a backup).
+    cluster
+        First-pass clustering settings.
+    resume
+        Reuse the stages saved in a matching checkpoint of an interrupted run.
+    progress, cancel
+        Progress callback and cancel check.
+
+    Returns
+    -------
+    Session
+        The saved session.
+    """
+    params.validate(recording.rate_hz)
+    ckpt = checkpoint_path(session_path)
+    key = _key(recording, params)
+    events, features = _read_checkpoint(ckpt, key) if resume else (None, None)
+    a, b, _ = STAGE_SHARES
+    if events is None:
+        table = detect(recording, params, progress=lambda f, m: report(progress, a * f, m), cancel=cancel)
+        d = params.detect
+        keep = table.mask(threshold_sigma=None if d.threshold_uv is not None else d.threshold_sigma,
+                          threshold_uv=d.threshold_uv, include_artefacts=True)
+        events = table.subset(keep)
+        _write_checkpoint(ckpt, key, events, None)
+    report(progress, a, "events ready")
+    if features is None:
+        features = compute_features(recording, events, params, cancel=cancel,
+                                    progress=lambda f, m: report(progress, a + b * f, m))
+        _write_checkpoint(ckpt, key, events, features)
+    report(progress, a + b, "features ready")
+    sorting = first_pass(events, features, cluster, cancel=cancel,
+                         progress=lambda f, m: report(progress, a + b + (1 - a - b) * f, m))
+    session = Session(RecordingRef.from_recording(recording), params, events, sorting)
+    save_session(session_path, session)
+    ckpt.unlink(missing_ok=True)
+    report(progress, 1.0, "session saved")
+    return session
