@@ -10,7 +10,7 @@ from core.errors import RigsideError
 from core.progress import Cancelled
 
 EXIT_OK, EXIT_FAILURE, EXIT_INPUT, EXIT_CANCELLED = 0, 1, 2, 130
-COMMAND_MODULES = ("cmd_detect", "cmd_sort", "cmd_metrics", "cmd_window")
+COMMAND_MODULES = ("cmd_detect", "cmd_sort", "cmd_metrics", "cmd_audit", "cmd_window")
 
 
 def build_parser() -> argparse.ArgumentParser:

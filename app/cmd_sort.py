@@ -5,7 +5,6 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from core.clustering import ClusterParams
 from core.errors import ParamError
 from core.export import export_units
 from core.session import load_session
@@ -22,7 +21,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("recording", help="recording file")
     p.add_argument("--session", required=True, metavar="OUT.h5", help="session file to write")
     p.add_argument("--clusters", type=int, metavar="K", help="force K clusters per group (default: chosen by BIC)")
-    p.add_argument("--seed", type=int, default=0, help="clustering seed (default 0)")
+    p.add_argument("--seed", type=int, help="clustering seed (default 0)")
     p.add_argument("--resume", action="store_true", help="continue an interrupted run from its checkpoint")
     add_recording_options(p)
     add_param_options(p)
@@ -41,12 +40,15 @@ def register(sub: argparse._SubParsersAction) -> None:
 def run_sort_command(args: argparse.Namespace) -> int:
     check_output(args.session, args.recording, suffixes=(".h5", ".hdf5"))
     params = params_from_args(args)
-    cluster = ClusterParams(k=args.clusters, seed=args.seed)
-    cluster.validate()
+    if args.clusters is not None:
+        params.cluster.k = args.clusters
+    if args.seed is not None:
+        params.cluster.seed = args.seed
+    params.cluster.validate()
     rec = open_from_args(args)
     bar = TextProgress(not args.quiet)
     try:
-        session = run_sort(rec, params, args.session, cluster, resume=args.resume, progress=bar)
+        session = run_sort(rec, params, args.session, resume=args.resume, progress=bar)
     finally:
         bar.close()
         rec.close()

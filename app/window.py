@@ -26,6 +26,7 @@ from .panels.features import FeaturePanel
 from .panels.rate_strip import RateStripPanel
 from .panels.threshold import ThresholdPanel
 from .panels.traces import TracePanel
+from .panels.waveforms import WaveformPanel
 from .task_status import TaskStatus
 from .window_actions import build_actions
 from .workers import Runner
@@ -50,6 +51,8 @@ class MainWindow(QMainWindow):
     """Traces in the middle, panels in docks; ``add_panel`` is how new panels join."""
 
     def __init__(self, interactive: bool = True):
+        """``interactive=False`` (screenshots): no dialogs, and the saved layout and recent
+        files are neither used nor changed, so renders are reproducible."""
         super().__init__()
         palette.setup_pyqtgraph()
         self.setObjectName("rigside_workbench")
@@ -77,7 +80,6 @@ class MainWindow(QMainWindow):
         curve = self.add_panel(CountCurvePanel(self.bench, self.runner), Qt.DockWidgetArea.RightDockWidgetArea)
         self.splitDockWidget(threshold, curve, Qt.Orientation.Vertical)
         strip = self.add_panel(RateStripPanel(self.bench, self.runner), Qt.DockWidgetArea.BottomDockWidgetArea)
-        from .panels.waveforms import WaveformPanel
         wave = self.add_panel(WaveformPanel(self.bench, self.runner), Qt.DockWidgetArea.BottomDockWidgetArea)
         feat = self.add_panel(FeaturePanel(self.bench, self.runner), Qt.DockWidgetArea.BottomDockWidgetArea)
         self.splitDockWidget(strip, wave, Qt.Orientation.Vertical)
@@ -93,7 +95,8 @@ class MainWindow(QMainWindow):
         self.runner.finished.connect(self._on_finished)
         self.runner.error.connect(lambda label, msg: self.show_error(f"{label} failed", msg))
         self.actions_by_name = build_actions(self)
-        self._restore_layout()
+        if interactive:
+            self._restore_layout()
 
     # ---- frame --------------------------------------------------------------------------
     def add_panel(self, panel: Panel, area: Qt.DockWidgetArea, tab_with: QDockWidget | None = None) -> QDockWidget:
@@ -157,7 +160,8 @@ class MainWindow(QMainWindow):
 
     def closeEvent(self, event) -> None:
         self.runner.shutdown()
-        self.save_layout()
+        if self.interactive:
+            self.save_layout()
         for box in self.messages:
             box.close()
         rec = self.bench.recording
@@ -185,6 +189,8 @@ class MainWindow(QMainWindow):
         return [str(v) for v in (value or [])]
 
     def _remember(self, path: str) -> None:
+        if not self.interactive:
+            return
         files = [path] + [f for f in self.recent_files() if f != path]
         s = settings()
         s.setValue("recent_files", files[:MAX_RECENT])
@@ -225,7 +231,11 @@ class MainWindow(QMainWindow):
         old = self.bench.recording
         if old is not None:
             old.close()
-        self.bench.set_recording(rec, params, sos)
+        try:
+            self.bench.set_recording(rec, params, sos)
+        except RigsideError as exc:  # e.g. samples that cannot be read where the view starts
+            self.show_error("Cannot show the recording", str(exc))
+            return False
         self.central.setCurrentWidget(self.traces)
         self.setWindowTitle(f"rigside — {Path(path).name}")
         self._remember(str(Path(path).resolve()))
@@ -281,16 +291,15 @@ class MainWindow(QMainWindow):
     # ---- waiting (screenshots, tests) --------------------------------------------------------
     def wait_idle(self, timeout_s: float = 600.0) -> bool:
         """Run the event loop until no job is left (True) or the timeout passes (False)."""
-        loop = QEventLoop()
-        timer = QTimer(singleShot=True, interval=int(timeout_s * 1000))
-        timer.timeout.connect(loop.quit)
-        poll = QTimer(interval=20)
-        poll.timeout.connect(lambda: None if self.runner.busy() else loop.quit())
-        timer.start()
-        poll.start()
         if self.runner.busy():
+            loop = QEventLoop()
+            timer = QTimer(singleShot=True, interval=int(timeout_s * 1000))
+            timer.timeout.connect(loop.quit)
+            self.runner.idle.connect(loop.quit)
+            timer.start()
             loop.exec()
-        poll.stop()
+            timer.stop()
+            self.runner.idle.disconnect(loop.quit)
         QApplication.processEvents()
         return not self.runner.busy()
 

@@ -37,7 +37,7 @@ def build_actions(win) -> dict[str, QAction]:
     win.recent_menu = file_menu.addMenu("Open &recent")
     win.rebuild_recent_menu()
     file_menu.addSeparator()
-    act("quit", "&Quit", win.close, [QKeySequence.StandardKey.Quit], menu=file_menu)
+    act("quit", "&Quit", win.close, ["Ctrl+Q"], menu=file_menu)
 
     view = bar.addMenu("&View")
     act("next_group", "Next channel group", lambda: bench.show_group(bench.group + 1),

@@ -9,7 +9,9 @@ Prints, from one run:
    same number of events;
 2. one polygon split and one merge on a unit of 10^5 events (in the 10^6-event sorting):
    time of do, undo and redo, and the memory one undo step keeps, against a full-copy undo
-   (save the whole assignment array before each step, restore it on undo).
+   (save the whole assignment array before each step, restore it on undo);
+3. saving (atomic, with backup), autosaving and loading (checksum verified) a session of that
+   sorting, against writing the same arrays with numpy.save (no checksum, not atomic).
 
     python bench/bench_sorting.py [--events 1000000] [--detect]
 """
@@ -29,7 +31,7 @@ sys.path.insert(0, str(ROOT))
 
 from core.clustering import ClusterParams, cluster_features, first_pass_assignments  # noqa: E402
 from core.journal import UndoStack  # noqa: E402
-from core.operations import MergeUnits, SplitByPolygon  # noqa: E402
+from core.operations import MergeUnits, ReclusterUnit, SplitByPolygon  # noqa: E402
 from core.sorting import AXIS_TIME, Sorting, SortingData, Unit  # noqa: E402
 
 GROUPS = 16
@@ -153,6 +155,42 @@ def bench_steps(data: SortingData, big: int) -> None:
               f"             undo memory {b_kept / 1e6:5.2f} MB")
         print(f"  ratios full-copy / ours: undo memory {b_kept / kept:.1f}x, "
               f"undo time {b_undo / t_undo:.2f}x, do time {b_do / t_do:.2f}x")
+    op = ReclusterUnit(1, k=3)
+    t_prep, _ = timed(op.prepare, s)
+    t_do, t_undo, t_redo, kept = step_times(s, op)
+    print(f"  recluster into 3   prepare (clustering, worker thread) {1e3 * t_prep:6.1f} ms; then do "
+          f"{1e3 * t_do:6.1f} ms, undo {1e3 * t_undo:6.1f} ms, redo {1e3 * t_redo:6.1f} ms")
+
+
+def bench_session(data: SortingData, sorting: Sorting) -> None:
+    from core.events import EventTable
+    from core.params import Params
+    from core.session import RecordingRef, Session, load_session, save_autosave, save_session
+
+    n = len(data)
+    rate = 30000.0
+    events = EventTable(sample=np.round(data.time_s * rate).astype(np.int64), channel=data.group,
+                        group=data.group, amplitude_uv=data.amplitude_uv, amplitude_sigma=np.full(n, 6.0),
+                        artefact=data.artefact, rate_hz=rate, n_samples=int(3601 * rate),
+                        sigma_uv=np.ones(GROUPS), floor_sigma=4.0)
+    work = Path(tempfile.mkdtemp(prefix="rigside-bench-session-"))
+    session = Session(RecordingRef(str(work / "none.bin"), 0, "0:0", {}), Params(), events, sorting)
+    path = work / "s.h5"
+    save_session(path, session)
+    t_save, _ = timed(save_session, path, session)
+    t_auto, _ = timed(save_autosave, path, session)
+    t_load, _ = timed(load_session, path, check_recording=False)
+
+    def plain() -> None:
+        for name, a in (("f", data.features), ("a", sorting.assignments), ("s", events.sample),
+                        ("m", events.amplitude_uv), ("g", events.group)):
+            np.save(work / f"{name}.npy", a)
+
+    t_plain, _ = timed(plain)
+    size = path.stat().st_size / 1e6
+    print(f"session of {n} events ({size:.0f} MB): save {t_save:.2f} s (with backup), autosave {t_auto:.2f} s, "
+          f"load {t_load:.2f} s; plain numpy.save of the main arrays {t_plain:.2f} s")
+    print(f"ratio save / plain numpy.save: {t_save / t_plain:.1f}x")
 
 
 def main() -> None:
@@ -165,7 +203,9 @@ def main() -> None:
     wall = bench_first_pass(data, ClusterParams(seed=1))
     if a.detect:
         bench_detect(a.events, wall)
-    bench_steps(data, min(a.unit, int(np.sum(data.group == 0)) - 1))
+    big = min(a.unit, int(np.sum(data.group == 0)) - 1)
+    bench_steps(data, big)
+    bench_session(data, make_sorting(data, big))
 
 
 if __name__ == "__main__":

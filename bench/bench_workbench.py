@@ -6,7 +6,9 @@ Prints, measured in the same run:
   the whole recording at the new threshold (target: within one 60 Hz frame, 16 ms);
 - the frame time for scrolling a 32-channel trace view (read the new samples, filter,
   reduce, draw, paint), at 1 s and at 20 s wide, against drawing every sample of the
-  same slice without envelopes (target: 30 frames per second or better).
+  same slice without envelopes (target: 30 frames per second or better);
+- the redraw of the feature view with a million events in one group (density image),
+  against drawing them as plain points.
 
 Run: python bench/bench_workbench.py [--seconds 60] [--events 1000000]
 """
@@ -29,6 +31,7 @@ from PySide6.QtCore import QSettings  # noqa: E402
 from PySide6.QtWidgets import QApplication  # noqa: E402
 
 from core.events import EventTable  # noqa: E402
+from core.features import Features  # noqa: E402
 from core.noise import estimate_noise  # noqa: E402
 from core.params import Params  # noqa: E402
 from core.pipeline import detect  # noqa: E402
@@ -169,6 +172,34 @@ def main() -> int:
               f"(target >= 30: {'met' if fps >= 30 else 'NOT met'}); every sample drawn: "
               f"{summary(naive_frames)}; ratio {np.median(naive_frames) / np.median(frames):5.1f} x")
         bench.set_view(start, start + width)
+
+    # ---- features of a million events in one group ----------------------------------------
+    print("\nfeature view, 1e6 events in the selected group (density image), against plain points")
+    one = synthetic_events(rec, noise.sigma_uv, args.events)
+    one.channel[:] = one.channel % 4
+    one.group[:] = 0
+    rng = np.random.default_rng(2)
+    feats = Features(rng.normal(size=(len(one), 6)).astype(np.float32),
+                     ["PC1", "PC2", "PC3", "peak_uv", "width_ms", "energy_uv2"])
+    bench.set_events(noise, one)
+    win.runner.shutdown()
+    bench.select_channel(0)
+    bench.set_threshold(3.0)
+    bench.set_features(feats)
+    win.runner.shutdown()
+    panel = win.panels["features"]
+    view = panel.plot.viewport()
+    redraw = timed(lambda i: (panel.y_combo.setCurrentIndex(1 + i % 4), view.repaint()), 8)
+
+    def plain_points(i):
+        x, y = feats.values[:, 0], feats.values[:, 1 + i % 4]
+        panel.scatter.setData(x, y)
+        view.repaint()
+
+    plain = timed(plain_points, 1)
+    panel.scatter.setData([], [])
+    print(f"  density redraw           {summary(redraw)}   ({panel.n_shown:,} events, mode {panel.mode})")
+    print(f"  plain scatter of all     {summary(plain)}   ratio {np.median(plain) / np.median(redraw):5.1f} x")
     win.close()
     rec.close()
     tmp.cleanup()

@@ -16,7 +16,7 @@ their own contamination), so an audit bounds disagreement, not the truth.
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -34,11 +34,11 @@ from .progress import CancelFn, ProgressFn, check, report
 from .recording import Recording
 from .sorting import Sorting
 from .spike_import import SpikeTrains
-from .audit_imported import (Placement, WaveformSummary, imported_quality, metric_thresholds, place_units,
-                             summarise, unit_waveforms)
+from .audit_imported import Placement, WaveformSummary, place_units, summarise, unit_waveforms
+from .audit_quality import imported_quality, metric_thresholds
 from .audit_table import audit_rows
 from .snippets import snippet_times_ms
-from .unit_table import MetricParams, unit_metrics_for_events
+from .unit_table import unit_metrics_for_events
 
 CAUTION = ("Both the false-positive and the miss estimates are measured against freshly sorted units, "
            "which make errors of their own; they estimate disagreement, not ground truth.")
@@ -59,15 +59,14 @@ class AuditSettings:
         ``spread_over`` (two or more such units suggest a merge).
     weak_agreement
         A best match below this agreement is noted as weak.
-    metric_params
-        Settings of the quality metrics.
+
+    The quality metrics use the ``metrics`` section of the fresh units' parameters.
     """
 
     tolerance_ms: float = 0.5
     waveform_spikes: int = 64
     spread_share: float = 0.1
     weak_agreement: float = 0.5
-    metric_params: MetricParams = field(default_factory=MetricParams)
 
     def validate(self) -> None:
         """Raise :class:`~core.errors.ParamError` for an out-of-range setting."""
@@ -79,7 +78,6 @@ class AuditSettings:
         for name, v in (("spread share", self.spread_share), ("weak agreement", self.weak_agreement)):
             if not (isinstance(v, (int, float)) and 0 < v <= 1):
                 raise ParamError(f"{name} must be a number in (0, 1], got {v!r}")
-        self.metric_params.validate()
 
 
 @dataclass
@@ -107,11 +105,13 @@ def first_pass_units(recording: Recording, params: Params, cluster_params: Clust
                      progress: ProgressFn = None, cancel: CancelFn = None) -> FreshUnits:
     """Fresh units without a session: detect, compute features and cluster every group.
 
-    Events below the detection threshold (when the look-up floor is lower) and artefacts are
-    left out; the sorting is the unreviewed first pass of :func:`core.first_pass.first_pass`.
+    The same events as ``rigside sort`` keeps (at the detection threshold, artefacts in no
+    unit); the sorting is the unreviewed first pass of :func:`core.first_pass.first_pass`.
+    Nothing is written.
     """
     events = detect(recording, params, cancel=cancel, progress=lambda f, m: report(progress, 0.5 * f, m))
-    events = events.subset(events.mask(threshold_sigma=thresholds_sigma(params, events.sigma_uv)))
+    events = events.subset(events.mask(threshold_sigma=thresholds_sigma(params, events.sigma_uv),
+                                       include_artefacts=True))
     feats = compute_features(recording, events, params, cancel=cancel,
                              progress=lambda f, m: report(progress, 0.5 + 0.3 * f, m))
     sorting = first_pass(events, feats, cluster_params, cancel=cancel,
@@ -250,11 +250,13 @@ def run_audit(recording: Recording, spikes: SpikeTrains, fresh: FreshUnits,
     n_fresh = np.bincount(np.searchsorted(fresh_ids, sorting.assignments[assigned]), minlength=len(fresh_ids))
     agreement = jaccard(matches, n_imp, n_fresh)
     quality, amplitude = imported_quality(recording, params, spikes, placements, events, free,
-                                          settings.metric_params, cancel=cancel,
+                                          params.metrics, cancel=cancel,
                                           progress=lambda f, m: report(progress, 0.2 + 0.65 * f, m))
-    best = np.where(matches.max(axis=1, initial=0) > 0, agreement.argmax(axis=1) if len(fresh_ids) else 0, -1)
+    best = np.full(len(imp_ids), -1)                # column of the best match, -1: none shares a spike
+    if len(fresh_ids):
+        best = np.where(matches.max(axis=1) > 0, agreement.argmax(axis=1), -1)
     best_ids = np.unique(fresh_ids[best[best >= 0]])
-    fresh_table = _fresh_quality(fresh, best_ids, settings, cancel)
+    fresh_table = _fresh_quality(fresh, best_ids, cancel)
     fresh_waves = {}
     for u in best_ids:
         check(cancel)
@@ -269,12 +271,11 @@ def run_audit(recording: Recording, spikes: SpikeTrains, fresh: FreshUnits,
                        placements, fresh_waves, amplitude)
 
 
-def _fresh_quality(fresh: FreshUnits, unit_ids: np.ndarray, settings: AuditSettings,
-                   cancel: CancelFn) -> dict[str, np.ndarray]:
+def _fresh_quality(fresh: FreshUnits, unit_ids: np.ndarray, cancel: CancelFn) -> dict[str, np.ndarray]:
     data = fresh.sorting.data
     feats = Features(np.asarray(data.features), list(data.feature_names))
     has_pcs = any(n.startswith("PC") for n in feats.names)
     return unit_metrics_for_events(fresh.events, fresh.sorting.assignments, feats if has_pcs else None,
                                    metric_thresholds(fresh.params, fresh.events.sigma_uv),
-                                   settings.metric_params, cancel=cancel,
+                                   fresh.params.metrics, cancel=cancel,
                                    only_units=np.asarray(unit_ids, dtype=np.int64))

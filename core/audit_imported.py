@@ -1,13 +1,8 @@
-"""Imported units seen through the raw data: where each one lives, its waveforms, and the
-same quality numbers as curated units.
+"""Imported units seen through the raw data: where each one lives and its waveforms.
 
 A unit's main channel is the channel whose mean waveform (over a spread-out subsample of its
 spikes, cut at the imported times) reaches the largest extremum of the detection polarity
 within the matching tolerance of the spike time; its channel group is that channel's group.
-Quality numbers come from :func:`core.unit_table.unit_metrics_for_events` on a combined event
-set per group: the imported spikes (on their unit's main channel) plus the re-detected
-events no imported unit claims, all with features from one PCA fit
-(:func:`core.features.compute_features`).
 """
 
 from __future__ import annotations
@@ -16,17 +11,15 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .clustering import NO_UNIT
-from .events import EventTable
-from .features import compute_features
 from .filtering import BandPass
 from .params import Params
-from .pipeline import thresholds_sigma
 from .progress import CancelFn, ProgressFn, check, report
 from .recording import Recording
 from .snippets import extract_snippets, snippet_times_ms, snippet_window
 from .spike_import import SpikeTrains
-from .unit_table import MetricParams, unit_metrics_for_events
+
+BATCH_VALUES = 25_000_000
+"""Most snippet values (float32) held at once while placing units (100 MB)."""
 
 
 @dataclass
@@ -102,6 +95,19 @@ def unit_waveforms(bandpass: BandPass, samples: np.ndarray, channels: np.ndarray
     return extract_snippets(bandpass, pick, channels, params.snippets, cancel)
 
 
+def _place(snips: np.ndarray, recording: Recording, polarity: str, lo: int, hi: int, before: int,
+           times_ms: np.ndarray) -> Placement:
+    mean = snips.astype(np.float64).mean(axis=0)
+    peaks = extremum(mean[lo:hi], polarity)
+    main = int(np.argmax(np.abs(peaks)))
+    seg = mean[lo:hi, main]
+    lag = int(np.argmin(seg) if peaks[main] < 0 else np.argmax(seg))
+    group = int(recording.channel_group[main])
+    chans = recording.groups[group]
+    return Placement(main, group, (lo + lag - before) * 1000.0 / recording.rate_hz,
+                     summarise(snips[:, :, chans], chans, times_ms))
+
+
 def place_units(recording: Recording, bandpass: BandPass, params: Params, spikes: SpikeTrains,
                 tolerance_s: float, n_waveforms: int, progress: ProgressFn = None,
                 cancel: CancelFn = None) -> dict[int, Placement]:
@@ -124,91 +130,24 @@ def place_units(recording: Recording, bandpass: BandPass, params: Params, spikes
     times_ms = snippet_times_ms(params.snippets, recording.rate_hz)
     w = int(round(tolerance_s * recording.rate_hz))
     lo, hi = max(0, before - w), min(len(times_ms), before + w + 1)
-    all_channels = np.arange(recording.n_channels)
     ids, starts = spikes.bounds()
+    # the subsample of every unit, cut on all channels in batches of bounded memory (spans of
+    # nearby spikes of different units are then filtered once)
+    picks = [starts[k] + spread_subsample(starts[k + 1] - starts[k], n_waveforms) for k in range(len(ids))]
+    per_batch = max(1, BATCH_VALUES // (len(times_ms) * recording.n_channels * n_waveforms))
     out: dict[int, Placement] = {}
-    for k, u in enumerate(ids):
+    for b0 in range(0, len(ids), per_batch):
         check(cancel)
-        samples = to_samples(spikes.times_s[starts[k]:starts[k + 1]], recording.rate_hz, recording.n_samples)
-        snips = unit_waveforms(bandpass, samples, all_channels, params, n_waveforms, cancel)
-        mean = snips.astype(np.float64).mean(axis=0)
-        peaks = extremum(mean[lo:hi], params.detect.polarity)
-        main = int(np.argmax(np.abs(peaks)))
-        seg = mean[lo:hi, main]
-        lag = int(np.argmin(seg) if peaks[main] < 0 else np.argmax(seg))
-        group = int(recording.channel_group[main])
-        chans = recording.groups[group]
-        out[int(u)] = Placement(main, group, (lo + lag - before) * 1000.0 / recording.rate_hz,
-                                summarise(snips[:, :, chans], chans, times_ms))
-        report(progress, (k + 1) / len(ids), f"locating imported unit {u}")
+        rows = np.concatenate(picks[b0:b0 + per_batch])
+        samples = to_samples(spikes.times_s[rows], recording.rate_hz, recording.n_samples)
+        order = np.argsort(samples, kind="stable")
+        snips = np.empty((len(rows), len(times_ms), recording.n_channels), dtype=np.float32)
+        snips[order] = extract_snippets(bandpass, samples[order], np.arange(recording.n_channels),
+                                        params.snippets, cancel)
+        at = 0
+        for k in range(b0, min(b0 + per_batch, len(ids))):
+            mine = snips[at:at + len(picks[k])]
+            at += len(picks[k])
+            out[int(ids[k])] = _place(mine, recording, params.detect.polarity, lo, hi, before, times_ms)
+        report(progress, min(b0 + per_batch, len(ids)) / len(ids), "locating imported units")
     return out
-
-
-def metric_thresholds(params: Params, sigma_uv: np.ndarray) -> np.ndarray:
-    """Per-channel detection threshold (sigma) for the metrics; dead channels (infinite
-    threshold in microvolt mode) get the largest float, as they hold no events."""
-    thr = thresholds_sigma(params, sigma_uv)
-    return np.where(np.isfinite(thr), thr, np.finfo(np.float64).max)
-
-
-def imported_quality(recording: Recording, params: Params, spikes: SpikeTrains,
-                     placements: dict[int, Placement], events: EventTable, free: np.ndarray,
-                     metric_params: MetricParams | None = None, progress: ProgressFn = None,
-                     cancel: CancelFn = None) -> tuple[dict[str, np.ndarray], np.ndarray]:
-    """Quality table of the imported units and the amplitude of every imported spike.
-
-    Parameters
-    ----------
-    recording, params
-        Raw data and pipeline parameters.
-    spikes
-        Imported trains; ``placements`` from :func:`place_units`.
-    events
-        Re-detected events (their noise sigma and table context are used).
-    free
-        Indices of re-detected events no imported unit claims; those in the imported units'
-        groups count as events outside every unit for isolation distance and L-ratio.
-    metric_params
-        Settings of the quality metrics.
-
-    Returns
-    -------
-    table, amplitude_uv
-        Columns of :data:`core.unit_table.COLUMNS`, one row per imported unit (ascending id),
-        and the filtered value on the unit's main channel at each imported spike (uV, in
-        the order of ``spikes``).
-    """
-    ids, starts = spikes.bounds()
-    counts = np.diff(starts)
-    code = np.repeat(np.arange(len(ids)), counts)           # imported ids may be any integer
-    main = np.array([placements[int(u)].main_channel for u in ids], dtype=np.int64)
-    group = np.array([placements[int(u)].group for u in ids], dtype=np.int64)
-    free = np.asarray(free, dtype=np.int64)
-    free = free[np.isin(events.group[free], group)]
-    n_imp = len(spikes)
-    sample = np.concatenate([to_samples(spikes.times_s, recording.rate_hz, recording.n_samples),
-                             events.sample[free]])
-    channel = np.concatenate([main[code], events.channel[free]])
-    grp = np.concatenate([group[code], events.group[free]])
-    unit = np.concatenate([code, np.full(len(free), NO_UNIT)])
-    order = np.argsort(sample, kind="stable")
-    n = len(sample)
-    base = dict(rate_hz=recording.rate_hz, n_samples=recording.n_samples, sigma_uv=events.sigma_uv,
-                floor_sigma=events.floor_sigma, polarity=events.polarity)
-    blank = EventTable(sample[order], channel[order], grp[order], np.zeros(n), np.zeros(n),
-                       np.zeros(n, bool), **base)
-    feats = compute_features(recording, blank, params, cancel=cancel,
-                             progress=lambda f, m: report(progress, 0.7 * f, m))
-    amp = feats.column("peak_uv").astype(np.float64)
-    sigma = events.sigma_uv[channel[order]]
-    amp_sigma = np.where(sigma > 0, np.abs(amp) / np.where(sigma > 0, sigma, 1.0), 0.0)
-    table = EventTable(sample[order], channel[order], grp[order], amp, amp_sigma, np.zeros(n, bool), **base)
-    rows = unit_metrics_for_events(table, unit[order], feats, metric_thresholds(params, events.sigma_uv),
-                                   metric_params, cancel=cancel,
-                                   progress=lambda f, m: report(progress, 0.7 + 0.3 * f, m))
-    rows["unit"] = ids[rows["unit"]]
-    amplitude = np.empty(n_imp)
-    inverse = np.empty(n, dtype=np.int64)
-    inverse[order] = np.arange(n)
-    amplitude[:] = amp[inverse[:n_imp]]
-    return rows, amplitude

@@ -142,7 +142,7 @@ def write_audit_csv(result, path: str | Path, caution: str) -> Path:
     n = len(t["unit"])
     s = result.settings
     settings = ", ".join([f"tolerance_ms = {s.tolerance_ms:g}", f"spread_share = {s.spread_share:g}"]
-                         + [f"{k} = {v:g}" for k, v in asdict(s.metric_params).items()])
+                         + [f"{k} = {v:g}" for k, v in asdict(result.fresh.params.metrics).items()])
 
     def write(tmp: Path) -> None:
         with open(tmp, "w", newline="", encoding="utf-8") as fh:

@@ -24,17 +24,15 @@ group, clusters are numbered by decreasing mean peak magnitude.
 
 from __future__ import annotations
 
-import math
 import warnings
-from dataclasses import asdict, dataclass, fields
-from typing import Any
 
 import numpy as np
 from sklearn.exceptions import ConvergenceWarning
 from sklearn.mixture import GaussianMixture
 from threadpoolctl import threadpool_limits
 
-from .errors import ParamError, RigsideError
+from .errors import RigsideError
+from .params import ClusterParams
 from .progress import CancelFn, ProgressFn, check, report
 
 NO_UNIT = -1
@@ -42,81 +40,6 @@ NO_UNIT = -1
 
 MIN_EVENTS_PER_COMPONENT = 10
 """A fit never uses more components than one per this many fitted events."""
-
-
-@dataclass
-class ClusterParams:
-    """Settings of the first-pass clustering (all validated by :meth:`validate`).
-
-    Attributes
-    ----------
-    k
-        Forced number of clusters per group; ``None`` chooses it by BIC.
-    k_min, k_max
-        Range of cluster counts tried by the BIC search.
-    patience
-        Stop the search after this many successive k without a lower BIC.
-    fit_events
-        Largest number of events of one group used to fit the mixture.
-    max_iter, tol
-        EM iteration limit and convergence tolerance (scikit-learn meaning).
-    merge_overlap
-        Components are merged while their estimated misclassification probability exceeds
-        this (0..1; 1 never merges).
-    seed
-        Seed of the subsample and of the mixture initialisation.
-    """
-
-    k: int | None = None
-    k_min: int = 1
-    k_max: int = 8
-    patience: int = 2
-    fit_events: int = 8000
-    max_iter: int = 200
-    tol: float = 1e-3
-    merge_overlap: float = 0.02
-    seed: int = 0
-
-    def validate(self) -> None:
-        """Raise :class:`ParamError` for any value out of range."""
-        def integer(name: str, value: Any, low: int, high: int) -> None:
-            if not (isinstance(value, int) and not isinstance(value, bool) and low <= value <= high):
-                raise ParamError(f"{name} must be an integer from {low} to {high}, got {value!r}")
-
-        if self.k is not None:
-            integer("forced cluster count", self.k, 1, 64)
-        integer("smallest cluster count", self.k_min, 1, 64)
-        integer("largest cluster count", self.k_max, self.k_min, 64)
-        integer("search patience", self.patience, 1, 64)
-        integer("clustering fit sample", self.fit_events, 100, 10_000_000)
-        integer("EM iteration limit", self.max_iter, 1, 100_000)
-        integer("clustering seed", self.seed, 0, 2**32 - 1)
-        if not (isinstance(self.tol, (int, float)) and math.isfinite(self.tol) and self.tol > 0):
-            raise ParamError(f"EM tolerance must be a finite number above 0, got {self.tol!r}")
-        if not (isinstance(self.merge_overlap, (int, float)) and 0 <= self.merge_overlap <= 1):
-            raise ParamError(f"merge overlap must be a number from 0 to 1, got {self.merge_overlap!r}")
-
-    def to_dict(self) -> dict[str, Any]:
-        """Plain dict (``k`` omitted when ``None``)."""
-        return {k: v for k, v in asdict(self).items() if v is not None}
-
-    @classmethod
-    def from_dict(cls, data: dict[str, Any]) -> "ClusterParams":
-        """Build from a dict, refusing unknown keys, then validate."""
-        if not isinstance(data, dict):
-            raise ParamError(f"clustering parameters must be a table, got {data!r}")
-        known = {f.name for f in fields(cls)}
-        unknown = sorted(set(data) - known)
-        if unknown:
-            raise ParamError(f"clustering parameter must be one of {', '.join(sorted(known))}, "
-                             f"got {', '.join(unknown)}")
-        out = cls(**data)
-        for name in ("tol", "merge_overlap"):
-            value = getattr(out, name)
-            if isinstance(value, int) and not isinstance(value, bool):
-                setattr(out, name, float(value))
-        out.validate()
-        return out
 
 
 def _standardise(x: np.ndarray, fit_rows: np.ndarray) -> np.ndarray:
@@ -242,7 +165,7 @@ def _cluster(features: np.ndarray, params: ClusterParams, stream: int, k: int | 
         if best is None:
             best = _fit(zf, 1, params, random_state)
     merged = merge_components(best.predict_proba(zf), params.merge_overlap) if forced is None \
-        else [[k] for k in range(best.n_components)]
+        else [[c] for c in range(best.n_components)]
     tau = best.predict_proba(z)
     labels = np.column_stack([tau[:, c].sum(axis=1) for c in merged]).argmax(axis=1)
     _, dense = np.unique(labels, return_inverse=True)

@@ -1,7 +1,9 @@
 """Features of each event: PCA scores of its group's waveforms and shape measures.
 
-PCA (scikit-learn) is fitted per channel group on a seeded random subset of the group's
-snippets (all channels of the group concatenated), then applied to every event.
+Snippets are first aligned to the sub-sample position of their peak (see
+:func:`core.snippets.align_subsample`). PCA (scikit-learn) is fitted per channel group on a
+seeded random subset of the group's snippets (all channels of the group concatenated), then
+applied to every event.
 Shape features, on the event's own channel: signed peak (uV), trough-to-peak width (ms:
 from the peak to the largest excursion of the opposite sign after it) and energy (mean
 squared amplitude over the window and the group's channels, uV^2).
@@ -19,7 +21,7 @@ from .filtering import BandPass
 from .params import Params
 from .progress import CancelFn, ProgressFn, check, report
 from .recording import Recording
-from .snippets import extract_snippets, snippet_window
+from .snippets import align_subsample, extract_snippets, snippet_window
 
 BATCH = 50000
 
@@ -95,13 +97,15 @@ def compute_features(recording: Recording, events: EventTable, params: Params, p
         own_col = np.searchsorted(channels, events.channel[idx_all[rows]]) if np.all(np.diff(channels) > 0) \
             else np.array([int(np.flatnonzero(channels == c)[0]) for c in events.channel[idx_all[rows]]])
         fit = np.sort(rng.choice(len(rows), size=min(len(rows), sp.pca_fit_events), replace=False))
-        fit_snips = extract_snippets(bp, events.sample[idx_all[rows[fit]]], channels, sp, cancel)
+        fit_snips = align_subsample(extract_snippets(bp, events.sample[idx_all[rows[fit]]], channels, sp, cancel, pad=1),
+                                    own_col[fit], before)
         n_comp = min(sp.n_pcs, fit_snips.shape[1] * fit_snips.shape[2], len(fit))
         pca = PCA(n_components=n_comp, random_state=sp.seed).fit(fit_snips.reshape(len(fit), -1)) if n_comp >= 1 and len(fit) > n_comp else None
         for b0 in range(0, len(rows), BATCH):
             check(cancel)
             part = rows[b0:b0 + BATCH]
-            snips = extract_snippets(bp, events.sample[idx_all[part]], channels, sp, cancel)
+            snips = align_subsample(extract_snippets(bp, events.sample[idx_all[part]], channels, sp, cancel, pad=1),
+                                    own_col[b0:b0 + BATCH], before)
             if pca is not None:
                 out[part, :n_comp] = pca.transform(snips.reshape(len(part), -1))
             out[part, sp.n_pcs:] = shape_features(snips, own_col[b0:b0 + BATCH], before, recording.rate_hz)

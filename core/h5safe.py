@@ -27,6 +27,10 @@ MAX_EXPANSION = 64
 CHECKSUM_ATTR = "checksum"
 
 
+def _join(where: str, name: str) -> str:
+    return f"{where.rstrip('/')}/{name}"
+
+
 def _hash_attr(h, name: str, value: Any, where: str) -> None:
     h.update(b"A" + name.encode("utf-8") + b"\0")
     if isinstance(value, bytes):
@@ -36,7 +40,7 @@ def _hash_attr(h, name: str, value: Any, where: str) -> None:
         return
     arr = np.asarray(value)
     if arr.dtype.kind not in "biuf" or arr.dtype.names is not None or arr.size > 4096:
-        raise SessionError(f"session attribute {where}/{name} must be text or a small numeric value, "
+        raise SessionError(f"session attribute {_join(where, name)} must be text or a small numeric value, "
                            f"got {arr.dtype} of size {arr.size}")
     h.update(b"n" + arr.dtype.str.encode() + repr(arr.shape).encode() + arr.tobytes())
 
@@ -48,7 +52,7 @@ def _hash_attrs(h, obj, where: str, skip: tuple[str, ...] = ()) -> None:
         try:
             value = obj.attrs[name]
         except (OSError, TypeError, ValueError) as exc:
-            raise SessionError(f"session attribute {where}/{name} must be readable, got {exc}") from None
+            raise SessionError(f"session attribute {_join(where, name)} must be readable, got {exc}") from None
         _hash_attr(h, name, value, where)
 
 
@@ -65,7 +69,7 @@ def _members(g: h5py.Group, where: str) -> list[tuple[str, Any]]:
     for name in sorted(g):
         link = g.get(name, getlink=True)
         if not isinstance(link, h5py.HardLink):
-            raise SessionError(f"session object {where}/{name} must be stored in the file, got a "
+            raise SessionError(f"session object {_join(where, name)} must be stored in the file, got a "
                                f"{type(link).__name__}")
         out.append((name, g[name]))
     return out
@@ -90,10 +94,10 @@ def read_verified(f: h5py.File, path: str | Path) -> tuple[dict[str, np.ndarray]
     while stack:
         where, g, depth = stack.pop(0)
         h.update(b"G" + where.encode("utf-8") + b"\0")
-        _hash_attrs(h, g, where or "/", skip=(CHECKSUM_ATTR,) if not where else ())
+        _hash_attrs(h, g, where, skip=(CHECKSUM_ATTR,) if not where else ())
         for name, obj in _members(g, where):
             n_objects += 1
-            full = f"{where}/{name}" if where else name
+            full = _join(where, name) if where else name
             if n_objects > MAX_OBJECTS or depth >= MAX_DEPTH:
                 raise SessionError(f"session file must hold at most {MAX_OBJECTS} objects nested at most "
                                    f"{MAX_DEPTH} deep, got more at {full}")
@@ -123,14 +127,14 @@ def read_verified(f: h5py.File, path: str | Path) -> tuple[dict[str, np.ndarray]
 def attr(obj, name: str, kind: type, where: str):
     """A typed attribute: ``str``, ``int`` or ``float`` (finite), else :class:`SessionError`."""
     if name not in obj.attrs:
-        raise SessionError(f"session attribute {where}/{name} must be present, got none")
+        raise SessionError(f"session attribute {_join(where, name)} must be present, got none")
     v = obj.attrs[name]
     if kind is str:
         if isinstance(v, bytes):
             try:
                 v = v.decode("utf-8")
             except UnicodeDecodeError:
-                raise SessionError(f"session attribute {where}/{name} must be UTF-8 text, got bytes") from None
+                raise SessionError(f"session attribute {_join(where, name)} must be UTF-8 text, got bytes") from None
         if isinstance(v, str):
             return v
     elif kind is int:
@@ -140,7 +144,7 @@ def attr(obj, name: str, kind: type, where: str):
         if isinstance(v, (int, float, np.integer, np.floating)) and not isinstance(v, (bool, np.bool_)) \
                 and math.isfinite(float(v)):
             return float(v)
-    raise SessionError(f"session attribute {where}/{name} must be {kind.__name__}, got {str(v)[:40]!r}")
+    raise SessionError(f"session attribute {_join(where, name)} must be {kind.__name__}, got {str(v)[:40]!r}")
 
 
 def array(data: dict[str, np.ndarray], name: str, dtype: str, ndim: int) -> np.ndarray:

@@ -80,7 +80,11 @@ class Journal:
 
 
 class UndoStack:
-    """Undo/redo over a sorting, recording every step in ``sorting.journal``."""
+    """Undo/redo over a sorting, recording every step in ``sorting.journal``.
+
+    Use either the primitives :meth:`apply` / :meth:`revert` / :meth:`reapply` (when another
+    stack, e.g. Qt's, keeps the order) or :meth:`push` / :meth:`undo` / :meth:`redo`, not both.
+    """
 
     def __init__(self, sorting: Sorting) -> None:
         self.sorting = sorting
@@ -105,11 +109,13 @@ class UndoStack:
 
     # ---- a plain stack for headless use -----------------------------------------------------
     def push(self, op) -> None:
+        """Do a new step; the redo history is dropped."""
         self.apply(op)
         self._done.append(op)
         self._undone.clear()
 
     def undo(self) -> None:
+        """Undo the last done step."""
         if not self._done:
             raise CurationError("undo needs a step to undo, got none")
         op = self._done.pop()
@@ -117,6 +123,7 @@ class UndoStack:
         self._undone.append(op)
 
     def redo(self) -> None:
+        """Redo the last undone step."""
         if not self._undone:
             raise CurationError("redo needs an undone step, got none")
         op = self._undone.pop()
@@ -125,10 +132,12 @@ class UndoStack:
 
     @property
     def undo_text(self) -> str | None:
+        """Menu text of the step :meth:`undo` would undo, if any."""
         return self._done[-1].text if self._done else None
 
     @property
     def redo_text(self) -> str | None:
+        """Menu text of the step :meth:`redo` would redo, if any."""
         return self._undone[-1].text if self._undone else None
 
 
@@ -166,3 +175,10 @@ def replay(entries: Iterable[dict[str, Any]], sorting: Sorting, progress=None, c
             stack.redo()
     report(progress, 1.0, "replay done")
     return sorting
+
+
+def replay_matches(sorting: Sorting, progress=None, cancel=None) -> bool:
+    """Whether replaying ``sorting.journal`` from scratch reproduces ``sorting`` exactly."""
+    fresh = Sorting(sorting.data)
+    replay(sorting.journal.entries, fresh, progress, cancel)
+    return fresh.state_equal(sorting)

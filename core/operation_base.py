@@ -45,6 +45,7 @@ def decode_indices(text: str, n_events: int) -> np.ndarray:
 
 
 def check_events(idx: np.ndarray, n_events: int) -> None:
+    """Refuse an event selection that is empty, unsorted, repeated or out of range."""
     if len(idx) == 0:
         raise CurationError("event selection must hold at least one event, got none")
     if idx[0] < 0 or idx[-1] >= n_events or (len(idx) > 1 and np.any(np.diff(idx) <= 0)):
@@ -53,13 +54,14 @@ def check_events(idx: np.ndarray, n_events: int) -> None:
 
 
 def as_int(value: Any, what: str) -> int:
+    """An integer parameter (bool, float and text refused, as journals may be hostile)."""
     if isinstance(value, bool) or not isinstance(value, (int, np.integer)):
         raise CurationError(f"{what} must be an integer, got {value!r}")
     return int(value)
 
 
 def make_delta(sorting: Sorting, rows: np.ndarray, new_ids: np.ndarray, units_after: dict[int, Unit | None],
-           created: tuple[int, ...] = ()) -> Delta:
+               created: tuple[int, ...] = ()) -> Delta:
     """A delta holding only the events whose unit really changes."""
     if sorting.next_id + len(created) > MAX_UNIT_ID + 1:
         raise CurationError(f"unit ids must stay below {MAX_UNIT_ID + 1}, got a request for {len(created)} more")
@@ -89,6 +91,7 @@ class Operation:
 
     @property
     def text(self) -> str:
+        """Menu text, e.g. "Merge units 3, 5"."""
         raise NotImplementedError
 
     def _compute(self, sorting: Sorting) -> Delta:

@@ -32,8 +32,7 @@ class ClusterGroups(Operation):
     def __init__(self, params: ClusterParams | None = None, groups: list[int] | None = None,
                  progress: ProgressFn = None, cancel: CancelFn = None) -> None:
         super().__init__()
-        self.params = params or ClusterParams()
-        self.params.validate()
+        self.params = ClusterParams.from_dict((params or ClusterParams()).to_dict())
         self.groups = None if groups is None else sorted({as_int(g, "group") for g in groups})
         self.progress, self.cancel = progress, cancel
 
@@ -171,27 +170,19 @@ class MoveEvents(Operation):
             self.events = decode_indices(self._encoded, n)
         check_events(self.events, n)
         groups = np.unique(sorting.data.group[self.events])
-        if self.target == NO_UNIT:
-            return make_delta(sorting, self.events, NO_UNIT, {}) if self._changes(sorting) else self._none()
-        if len(groups) != 1:
+        if self.target != NO_UNIT and len(groups) != 1:
             raise CurationError(f"events to move must come from one channel group, got groups "
                                 f"{', '.join(map(str, groups[:8]))}")
-        group = int(groups[0])
         if self.target is None:
             new = sorting.next_id
-            return make_delta(sorting, self.events, new, {new: Unit(group=group)}, (new,))
-        rec = sorting.unit(self.target)
-        if rec.group != group:
-            raise CurationError(f"target unit must belong to the events' group {group}, got unit "
-                                f"{self.target} of group {rec.group}")
-        return make_delta(sorting, self.events, self.target, {}) if self._changes(sorting) else self._none()
-
-    def _changes(self, sorting: Sorting) -> bool:
-        return bool(np.any(sorting.assignments[self.events] != self.target))
-
-    def _none(self):
-        raise CurationError(f"events to move must not all be in unit {self.target} already, "
-                            f"got {len(self.events)} events there")
+            return make_delta(sorting, self.events, new, {new: Unit(group=int(groups[0]))}, (new,))
+        if self.target != NO_UNIT and sorting.unit(self.target).group != groups[0]:
+            raise CurationError(f"target unit must belong to the events' group {groups[0]}, got unit "
+                                f"{self.target} of group {sorting.unit(self.target).group}")
+        if np.all(sorting.assignments[self.events] == self.target):
+            raise CurationError(f"events to move must not all be in unit {self.target} already, "
+                                f"got {len(self.events)} events there")
+        return make_delta(sorting, self.events, self.target, {})
 
     def _params(self) -> dict[str, Any]:
         enc = self._encoded if self.events is None else encode_indices(self.events)
@@ -219,8 +210,7 @@ class ReclusterUnit(Operation):
         if k is not None and (as_int(k, "part count") < 2):
             raise CurationError(f"part count must be at least 2, got {k}")
         self.k = k
-        self.params = params or ClusterParams()
-        self.params.validate()
+        self.params = ClusterParams.from_dict((params or ClusterParams()).to_dict())
 
     @property
     def text(self) -> str:

@@ -8,7 +8,7 @@ from __future__ import annotations
 import dataclasses
 import math
 import tomllib
-from dataclasses import dataclass, field, fields
+from dataclasses import asdict, dataclass, field, fields
 from pathlib import Path
 from typing import Any
 
@@ -163,6 +163,81 @@ class MetricParams:
 
 
 @dataclass
+class ClusterParams:
+    """Settings of the first-pass clustering (all validated by :meth:`validate`).
+
+    Attributes
+    ----------
+    k
+        Forced number of clusters per group; ``None`` chooses it by BIC.
+    k_min, k_max
+        Range of cluster counts tried by the BIC search.
+    patience
+        Stop the search after this many successive k without a lower BIC.
+    fit_events
+        Largest number of events of one group used to fit the mixture.
+    max_iter, tol
+        EM iteration limit and convergence tolerance (scikit-learn meaning).
+    merge_overlap
+        Components are merged while their estimated misclassification probability exceeds
+        this (0..1; 1 never merges).
+    seed
+        Seed of the subsample and of the mixture initialisation.
+    """
+
+    k: int | None = None
+    k_min: int = 1
+    k_max: int = 8
+    patience: int = 2
+    fit_events: int = 8000
+    max_iter: int = 200
+    tol: float = 1e-3
+    merge_overlap: float = 0.02
+    seed: int = 0
+
+    def validate(self) -> None:
+        """Raise :class:`ParamError` for any value out of range."""
+        def integer(name: str, value: Any, low: int, high: int) -> None:
+            if not (isinstance(value, int) and not isinstance(value, bool) and low <= value <= high):
+                raise ParamError(f"{name} must be an integer from {low} to {high}, got {value!r}")
+
+        if self.k is not None:
+            integer("forced cluster count", self.k, 1, 64)
+        integer("smallest cluster count", self.k_min, 1, 64)
+        integer("largest cluster count", self.k_max, self.k_min, 64)
+        integer("search patience", self.patience, 1, 64)
+        integer("clustering fit sample", self.fit_events, 100, 10_000_000)
+        integer("EM iteration limit", self.max_iter, 1, 100_000)
+        integer("clustering seed", self.seed, 0, 2**32 - 1)
+        if not (isinstance(self.tol, (int, float)) and math.isfinite(self.tol) and self.tol > 0):
+            raise ParamError(f"EM tolerance must be a finite number above 0, got {self.tol!r}")
+        if not (isinstance(self.merge_overlap, (int, float)) and 0 <= self.merge_overlap <= 1):
+            raise ParamError(f"merge overlap must be a number from 0 to 1, got {self.merge_overlap!r}")
+
+    def to_dict(self) -> dict[str, Any]:
+        """Plain dict (``k`` omitted when ``None``)."""
+        return {k: v for k, v in asdict(self).items() if v is not None}
+
+    @classmethod
+    def from_dict(cls, data: dict[str, Any]) -> "ClusterParams":
+        """Build from a dict, refusing unknown keys, then validate."""
+        if not isinstance(data, dict):
+            raise ParamError(f"clustering parameters must be a table, got {data!r}")
+        known = {f.name for f in fields(cls)}
+        unknown = sorted(set(data) - known)
+        if unknown:
+            raise ParamError(f"clustering parameter must be one of {', '.join(sorted(known))}, "
+                             f"got {', '.join(unknown)}")
+        out = cls(**data)
+        for name in ("tol", "merge_overlap"):
+            value = getattr(out, name)
+            if isinstance(value, int) and not isinstance(value, bool):
+                setattr(out, name, float(value))
+        out.validate()
+        return out
+
+
+@dataclass
 class RunParams:
     """Streaming: chunk length and worker threads."""
 
@@ -185,6 +260,7 @@ class Params:
     noise: NoiseParams = field(default_factory=NoiseParams)
     detect: DetectParams = field(default_factory=DetectParams)
     snippets: SnippetParams = field(default_factory=SnippetParams)
+    cluster: ClusterParams = field(default_factory=ClusterParams)
     metrics: MetricParams = field(default_factory=MetricParams)
     run: RunParams = field(default_factory=RunParams)
 
@@ -194,6 +270,7 @@ class Params:
         self.noise.validate()
         self.detect.validate()
         self.snippets.validate()
+        self.cluster.validate()
         self.metrics.validate()
         self.run.validate()
 

@@ -138,7 +138,7 @@ def _unit_section(result: AuditResult, i: int) -> str:
     facts = "".join(f"<tr><th>{escape(c)}</th><td class='t'>{_value(row[c])}</td></tr>" for c in DETAIL)
     t_fresh = result.fresh.train(best)[0] if best is not None else None
     plots = _waveforms(result.placements[unit].waveform, result.fresh_waveforms.get(best))
-    plots += _isi(result.imported_train(unit)[0], t_fresh, result.settings.metric_params.refractory_ms)
+    plots += _isi(result.imported_train(unit)[0], t_fresh, result.fresh.params.metrics.refractory_ms)
     plots += _amplitudes(result, unit, best)
     match = f"best fresh match: unit {best}" if best is not None else "no fresh unit shares its spikes"
     return (f'<div class="unit" id="u{unit}"><h3>Imported unit {unit} ({match})</h3>'

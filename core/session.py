@@ -16,15 +16,14 @@ Layout (format version 1)::
 No pickled or executable content is written or accepted. Saving is atomic: ``NAME.tmp`` is
 written, flushed, fsynced and renamed over ``NAME``; the previous ``NAME`` (if it verifies)
 becomes ``NAME.bak`` first, by a hard link where possible. ``NAME.autosave.h5`` is written
-the same way by :func:`save_autosave`. :func:`find_states` and :func:`recover` pick the
-newest consistent state among the main file, the autosave and the backup.
+the same way by :func:`save_autosave`; :mod:`core.session_recovery` finds the newest
+consistent state among the main file, the autosave and the backup.
 """
 
 from __future__ import annotations
 
 import json
-import time
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from pathlib import Path
 from types import SimpleNamespace
 
@@ -32,7 +31,7 @@ import h5py
 import numpy as np
 
 from . import __version__
-from .atomic import atomic_copy_bytes, atomic_write, fsync_dir
+from .atomic import atomic_copy_bytes, atomic_write
 from .errors import ParamError, SessionError
 from .events import COLUMNS, EventTable
 from .h5safe import CHECKSUM_ATTR, array, attr, read_verified, text, write_text
@@ -70,6 +69,7 @@ class RecordingRef:
 
     @classmethod
     def from_recording(cls, recording: Recording) -> "RecordingRef":
+        """Reference to an open recording (absolute path, size, fingerprint, description)."""
         p = Path(recording.path).resolve()
         return cls(str(p), p.stat().st_size, recording.fingerprint(), recording.describe())
 
@@ -87,11 +87,18 @@ class Session:
     source: Path | None = None
 
 
+def snapshot(session: Session) -> Session:
+    """A copy of the session whose sorting no longer changes (for saving off the GUI thread)."""
+    return replace(session, recording=replace(session.recording), sorting=session.sorting.copy())
+
+
 def backup_path(path: str | Path) -> Path:
+    """``NAME.bak``: the previous good main file."""
     return Path(str(path) + ".bak")
 
 
 def autosave_path(path: str | Path) -> Path:
+    """``NAME.autosave.h5``: the state written by :func:`save_autosave`."""
     p = Path(path)
     return p.with_name(p.name + ".autosave.h5")
 
@@ -162,34 +169,6 @@ def save_session(path: str | Path, session: Session) -> Path:
 def save_autosave(path: str | Path, session: Session) -> Path:
     """Write ``NAME.autosave.h5`` atomically (no backup kept); returns its path."""
     return _save(autosave_path(path), session, keep_backup=False)
-
-
-class Autosaver:
-    """Autosave after changes, at most once per ``interval_s``.
-
-    Connect :meth:`mark_changed` to ``sorting.changed`` and call :meth:`save_if_due` from a
-    timer (or after each step); :meth:`mark_saved` after a main save.
-    """
-
-    def __init__(self, path: str | Path, interval_s: float = 30.0, clock=time.monotonic) -> None:
-        self.path, self.interval_s, self.clock = Path(path), float(interval_s), clock
-        self.dirty = False
-        self._last = -float("inf")
-
-    def mark_changed(self, *_) -> None:
-        self.dirty = True
-
-    def mark_saved(self) -> None:
-        self.dirty = False
-
-    def save_if_due(self, session: Session, force: bool = False) -> Path | None:
-        """Write the autosave file if there are unsaved changes and the interval has passed."""
-        now = self.clock()
-        if not self.dirty or (not force and now - self._last < self.interval_s):
-            return None
-        out = save_autosave(self.path, session)
-        self.dirty, self._last = False, now
-        return out
 
 
 # ---- reading -------------------------------------------------------------------------------
@@ -264,8 +243,10 @@ def _interpret(f: h5py.File, data: dict, path: Path) -> tuple[RecordingRef, Sess
         params = Params.from_dict(params_dict)
     except (ParamError, AttributeError, TypeError) as exc:
         raise SessionError(f"session parameters must be valid, got: {exc}") from None
+    if not isinstance(desc, dict):
+        raise SessionError(f"session recording description must be a JSON object, got {str(desc)[:40]!r}")
     ref = RecordingRef(attr(g, "path", str, "recording"), attr(g, "size", int, "recording"),
-                       attr(g, "fingerprint", str, "recording"), desc if isinstance(desc, dict) else {})
+                       attr(g, "fingerprint", str, "recording"), desc)
     for c, dt in COLUMNS.items():
         array(data, f"events/{c}", np.dtype(dt).str, 1)
     array(data, "events/sigma_uv", "f8", 1)
@@ -344,56 +325,3 @@ def _with_alternatives(exc: SessionError, path: Path) -> SessionError:
     if not others or isinstance(exc, (RecordingMoved, RecordingChanged)):
         return exc
     return SessionError(f"{exc}; other saved states exist: {', '.join(others)} (use recovery)")
-
-
-# ---- recovery -------------------------------------------------------------------------------
-@dataclass
-class SavedState:
-    """One candidate file: its kind ("main", "autosave", "backup"), save time, or the error."""
-
-    path: Path
-    kind: str
-    saved_utc: str | None
-    error: str | None
-
-
-def find_states(path: str | Path) -> list[SavedState]:
-    """Every existing state of a session, valid ones first, newest first."""
-    out = []
-    for kind, p in (("main", Path(path)), ("autosave", autosave_path(path)), ("backup", backup_path(path))):
-        if not p.exists():
-            continue
-        try:
-            out.append(SavedState(p, kind, verify_session_file(p), None))
-        except SessionError as exc:
-            out.append(SavedState(p, kind, None, str(exc)))
-    valid = sorted((s for s in out if s.error is None), key=lambda s: s.saved_utc, reverse=True)
-    return valid + [s for s in out if s.error is not None]
-
-
-def recover(path: str | Path, **load_options) -> Session:
-    """Load the newest consistent state among main file, autosave and backup.
-
-    ``load_options`` go to :func:`load_session`. Raises :class:`SessionError` listing every
-    candidate's problem when none can be loaded.
-    """
-    problems = []
-    for state in find_states(path):
-        if state.error is not None:
-            problems.append(f"{state.kind}: {state.error}")
-            continue
-        try:
-            return load_session(state.path, **load_options)
-        except (RecordingMoved, RecordingChanged):
-            raise
-        except SessionError as exc:
-            problems.append(f"{state.kind}: {exc}")
-    raise SessionError(f"session {str(path)!r} must have at least one consistent saved state, got "
-                       + ("; ".join(problems) if problems else "no files"))
-
-
-def remove_stale_temporaries(path: str | Path) -> None:
-    """Delete ``.tmp`` files left by a save that was killed (they are never read)."""
-    for p in (Path(path), autosave_path(path), backup_path(path)):
-        p.with_name(p.name + ".tmp").unlink(missing_ok=True)
-    fsync_dir(Path(path).parent)

@@ -15,7 +15,6 @@ import h5py
 import numpy as np
 
 from .atomic import atomic_write
-from .clustering import ClusterParams
 from .errors import RigsideError
 from .events import EventTable
 from .features import Features, compute_features
@@ -71,7 +70,7 @@ def _read_checkpoint(path: Path, key: str) -> tuple[EventTable | None, Features 
         return None, None  # a damaged checkpoint only costs recomputation
 
 
-def run_sort(recording: Recording, params: Params, session_path: str | Path, cluster: ClusterParams | None = None,
+def run_sort(recording: Recording, params: Params, session_path: str | Path,
              resume: bool = False, progress: ProgressFn = None, cancel: CancelFn = None) -> Session:
     """Detect, compute features, cluster every group, and save the session.
 
@@ -80,11 +79,10 @@ def run_sort(recording: Recording, params: Params, session_path: str | Path, clu
     recording
         The recording (read-only).
     params
-        Pipeline parameters; events at the detection threshold are sorted.
+        Pipeline parameters (``params.cluster`` for the first pass); events at the
+        detection threshold are sorted.
     session_path
         Session file to write (atomically; the previous one is kept as a backup).
-    cluster
-        First-pass clustering settings.
     resume
         Reuse the stages saved in a matching checkpoint of an interrupted run.
     progress, cancel
@@ -113,7 +111,7 @@ def run_sort(recording: Recording, params: Params, session_path: str | Path, clu
                                     progress=lambda f, m: report(progress, a + b * f, m))
         _write_checkpoint(ckpt, key, events, features)
     report(progress, a + b, "features ready")
-    sorting = first_pass(events, features, cluster, cancel=cancel,
+    sorting = first_pass(events, features, params.cluster, cancel=cancel,
                          progress=lambda f, m: report(progress, a + b + (1 - a - b) * f, m))
     session = Session(RecordingRef.from_recording(recording), params, events, sorting)
     save_session(session_path, session)

@@ -43,14 +43,20 @@ class Signal:
         self._slots: list[weakref.ref] = []
 
     def connect(self, callback: Callable) -> None:
-        ref = weakref.WeakMethod(callback) if hasattr(callback, "__self__") else weakref.ref(callback)
+        """Call ``callback`` on every emit, as long as it lives (connecting twice is a no-op)."""
+        try:
+            ref = weakref.WeakMethod(callback) if hasattr(callback, "__func__") else weakref.ref(callback)
+        except TypeError:
+            raise TypeError(f"callback must be a function or bound method, got {callback!r}") from None
         if all(r() != callback for r in self._slots):
             self._slots.append(ref)
 
     def disconnect(self, callback: Callable) -> None:
+        """Stop calling ``callback``."""
         self._slots = [r for r in self._slots if r() is not None and r() != callback]
 
     def emit(self, *args) -> None:
+        """Call every live callback with ``args``, in connection order."""
         live = [(r, r()) for r in self._slots]
         self._slots = [r for r, f in live if f is not None]
         for _, f in live:
@@ -86,6 +92,7 @@ class Change:
 
     @property
     def touched(self) -> frozenset[int]:
+        """Every unit id whose events, record or existence changed."""
         return self.added | self.removed | self.members | self.edited
 
 
@@ -185,7 +192,7 @@ class Sorting:
         n = len(data)
         self._assign = (np.full(n, NO_UNIT, dtype=np.int32) if assignments is None
                         else np.array(assignments, dtype=np.int32))
-        self._units: dict[int, Unit] = dict(sorted((units or {}).items()))
+        self._units: dict[int, Unit] = dict(sorted((int(u), rec) for u, rec in (units or {}).items()))
         self.next_id = int(next_id)
         self.journal = journal if journal is not None else Journal()
         self.changed = Signal()
@@ -214,6 +221,7 @@ class Sorting:
             raise CurationError(f"unit must be one of the current units, got {unit_id!r}") from None
 
     def unit_ids(self) -> list[int]:
+        """Ids of the current units, increasing."""
         return sorted(self._units)
 
     def events_of(self, unit_id: int) -> np.ndarray:
@@ -260,6 +268,11 @@ class Sorting:
                                 f"{first} of group {int(self.data.group[first])} in unit "
                                 f"{int(self._assign[first])}")
 
+    def copy(self) -> "Sorting":
+        """An independent copy (same read-only data; assignments, units and journal copied),
+        e.g. for saving on a worker thread while curation goes on."""
+        return Sorting(self.data, self._assign, self._units, self.next_id, type(self.journal)(self.journal.entries))
+
     def state_equal(self, other: "Sorting") -> bool:
         """Same assignments (bitwise), unit table and id counter."""
         return (np.array_equal(self._assign, other._assign) and self._assign.dtype == other._assign.dtype
@@ -272,6 +285,11 @@ class Sorting:
         old_values = delta.before if forward else delta.after
         units_new = delta.units_after if forward else delta.units_before
         units_old = delta.units_before if forward else delta.units_after
+        next_old = delta.next_id_before if forward else delta.next_id_after
+        if (not np.array_equal(self._assign[delta.index], old_values) or self.next_id != next_old
+                or any(self._units.get(u) != rec for u, rec in units_old.items())):
+            raise CurationError("sorting must be in the state the step was computed for, got another "
+                                "state (steps applied out of order?)")
         self._assign[delta.index] = values
         for u, rec in units_new.items():
             if rec is None:

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QMessageBox, QWidget
 
 CAUTIONS = (
@@ -23,7 +24,7 @@ def about_text(version: str) -> str:
 def show_about(parent: QWidget, version: str) -> QMessageBox:
     box = QMessageBox(parent)
     box.setWindowTitle("About rigside")
-    box.setTextFormat(box.textFormat().RichText)
+    box.setTextFormat(Qt.TextFormat.RichText)
     box.setText(about_text(version))
     box.setIcon(QMessageBox.Icon.Information)
     box.open()

@@ -4,6 +4,8 @@ from __future__ import annotations
 
 from pathlib import Path
 
+import numpy as np
+
 from PySide6.QtWidgets import (QComboBox, QDialog, QDialogButtonBox, QDoubleSpinBox, QFormLayout, QLabel,
                                QSpinBox, QVBoxLayout)
 
@@ -54,13 +56,34 @@ class RawLayoutDialog(QDialog):
         form.addRow("Offset:", self.offset)
         form.addRow("Header to skip:", self.header)
         form.addRow("Channels per group:", self.group_size)
+        self.implied = QLabel("")
+        self.implied.setWordWrap(True)
+        self._size = size
+        for w in (self.channels, self.header):
+            w.valueChanged.connect(self._update_implied)
+        self.rate.valueChanged.connect(self._update_implied)
+        self.dtype.currentTextChanged.connect(self._update_implied)
         buttons = QDialogButtonBox(QDialogButtonBox.StandardButton.Open | QDialogButtonBox.StandardButton.Cancel)
         buttons.accepted.connect(self.accept)
         buttons.rejected.connect(self.reject)
         lay = QVBoxLayout(self)
         lay.addWidget(note)
         lay.addLayout(form)
+        lay.addWidget(self.implied)
         lay.addWidget(buttons)
+        self._update_implied()
+
+    def _update_implied(self, *_) -> None:
+        """Say what the entered layout makes of the file: its length, or why it cannot fit."""
+        frame = np.dtype(self.dtype.currentText()).itemsize * self.channels.value()
+        body = self._size - self.header.value()
+        if body <= 0 or body % frame:
+            self.implied.setText(f"<span style='color:#d55e00'>{max(body, 0):,} bytes after the header are "
+                                 f"not a whole number of {frame}-byte frames: check channels, type and "
+                                 "header.</span>")
+        else:
+            seconds = body // frame / self.rate.value()
+            self.implied.setText(f"That makes {body // frame:,} samples per channel, {seconds:,.2f} s.")
 
     def layout_value(self) -> Layout:
         """The layout as entered (validated when the recording is opened)."""

@@ -18,6 +18,7 @@ class ShortcutsDialog(QDialog):
         self.table = QTableWidget(len(rows), 2)
         self.table.setHorizontalHeaderLabels(["Action", "Keys"])
         self.table.verticalHeader().setVisible(False)
+        self.table.verticalHeader().setDefaultSectionSize(22)
         for i, (name, keys) in enumerate(rows):
             self.table.setItem(i, 0, QTableWidgetItem(name))
             self.table.setItem(i, 1, QTableWidgetItem(keys))

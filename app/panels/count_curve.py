@@ -122,7 +122,8 @@ class CountCurvePanel(Panel):
         unit = "× noise σ" if b.unit == "sigma" else "µV"
         palette.style_plot(self.rate_plot, f"threshold on ch {c} ({unit})", "events / s (log)")
         self.note.setText(f"ch {c}: where the detected curve meets the dashed one, noise alone would "
-                          "give as many crossings (Gaussian noise through this filter assumed).")
+                          "give as many crossings (Gaussian noise through this filter assumed). Each event "
+                          "counts once, on the group channel where it peaks.")
         self._on_thresholds(True)
         self._draw_scores()
 

@@ -74,6 +74,7 @@ class TracePanel(Panel):
         pi.getAxis("left").setWidth(56)
         self.vb = pi.getViewBox()
         self.vb.setDefaultPadding(0.0)
+        self.vb.disableAutoRange()
         self.bands: list[QGraphicsRectItem] = []
         self.curve = pg.PlotCurveItem(pen=palette.pen(palette.TRACE), skipFiniteCheck=True)
         self.selected_curve = pg.PlotCurveItem(pen=palette.pen(palette.TRACE_SELECTED), skipFiniteCheck=True)
@@ -152,7 +153,7 @@ class TracePanel(Panel):
         t0, t1 = b.view
         if t1 - t0 > max_span:
             b.set_view(t0, t0 + max_span)
-        self.refresh()
+        self._on_view(*b.view)
 
     def _on_events(self) -> None:
         self._layout_lanes()

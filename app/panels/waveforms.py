@@ -92,6 +92,8 @@ class WaveformPanel(Panel):
         pi = self.plot.getPlotItem()
         lo_all, hi_all = 0.0, 0.0
         ticks = []
+        roomy = self.plot.width() / max(1, len(cols)) > 110
+        marks = (-0.5, 0.0, 0.5, 1.0) if roomy else (0.0,)
         for j, col in enumerate(cols):
             x = t + j * step
             data = snips[:, :, col]
@@ -107,7 +109,7 @@ class WaveformPanel(Panel):
             self._bands.append(band)
             lo_all = min(lo_all, float(np.percentile(data, 0.5)))
             hi_all = max(hi_all, float(np.percentile(data, 99.5)))
-            ticks += [(j * step + v, f"{v:g}") for v in (-0.5, 0.0, 0.5, 1.0) if t[0] <= v <= t[-1]]
+            ticks += [(j * step + v, f"{v:g}") for v in marks if t[0] <= v <= t[-1]]
         x = np.concatenate(xs)
         y = np.concatenate(ys)
         connect = np.ones(len(x), dtype=bool)
@@ -118,8 +120,10 @@ class WaveformPanel(Panel):
         self.mean.setData(np.concatenate(mean_x), np.concatenate(means), connect="finite")
         for j, col in enumerate(cols):
             c = int(self.channels[col])
-            bold = " (selected)" if c == b.channel else ""
-            label = pg.TextItem(f"ch {c}{bold}", color=palette.FOREGROUND, anchor=(0.5, 0))
+            colour = palette.hex_colour(palette.BLUE if c == b.channel else palette.FOREGROUND)
+            weight = "bold" if c == b.channel else "normal"
+            label = pg.TextItem(html=f"<span style='color:{colour}; font-weight:{weight}'>ch {c}</span>",
+                                anchor=(0.5, 0))
             label.setPos(j * step + 0.5 * (t[0] + t[-1]), hi_all * 1.15)
             pi.addItem(label)
             self._labels.append(label)
@@ -128,7 +132,8 @@ class WaveformPanel(Panel):
         pi.setXRange(t[0], t[0] + step * len(cols) - span * GAP_FRACTION, padding=0.02)
         g = int(rec.channel_group[b.channel])
         self.status.setText(f"{rec.group_names[g]}: {n} of {self.n_events:,} events at the current "
-                            "threshold (random subset), mean (thick) and ± 1 SD (band).")
+                            f"threshold (random subset), mean (thick) and ± 1 SD (band); ch {b.channel} "
+                            "(selected) in bold.")
 
 
 def _columns(channels: np.ndarray, selected: int) -> list[int]:

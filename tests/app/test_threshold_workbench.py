@@ -135,7 +135,7 @@ def test_keys_move_threshold_group_and_view(demo_window, qtbot):
     win.shortcuts_dialog.close()
 
 
-def test_below_the_floor_offers_detection_again(demo_window):
+def test_below_the_floor_offers_detection_again(demo_window, monkeypatch):
     win = demo_window
     ev = win.bench.events
     win.bench.set_threshold(ev.floor_sigma - 0.5)
@@ -143,3 +143,68 @@ def test_below_the_floor_offers_detection_again(demo_window):
     panel = win.panels["threshold"]
     assert not panel.redetect.isHidden()
     assert "below the stored floor" in panel.summary.text()
+    monkeypatch.undo()  # the real detection from here on
+    panel.redetect.click()
+    assert win.wait_idle(120)
+    new = win.bench.events
+    assert new is not ev and abs(new.floor_sigma - (ev.floor_sigma - 0.5)) < 1e-9
+    assert not win.bench.below_floor() and panel.redetect.isHidden()
+    # the stored events above the old floor are the same events (a look-up, not a new definition)
+    np.testing.assert_array_equal(new.counts(threshold_sigma=ev.floor_sigma), ev.counts(threshold_sigma=ev.floor_sigma))
+    c = win.bench.channel
+    assert f"<b>{int(new.counts(threshold_sigma=ev.floor_sigma - 0.5)[c]):,}</b> events" in panel.summary.text()
+
+
+def test_raw_view_hides_threshold_drawing_and_rescales(demo_window):
+    win = demo_window
+    traces = win.traces
+    filtered_spacing = traces.spacing
+    win.actions_by_name["raw"].trigger()
+    assert win.bench.show_raw and traces.raw_box.isChecked()
+    assert traces.block.raw and not traces.handle.isVisible()
+    x, _ = traces.threshold_lines.getData()
+    assert x is None or len(x) == 0
+    assert traces.spacing != filtered_spacing
+    _, y = traces.curve.getData()
+    assert np.all(np.isfinite(y))
+    win.actions_by_name["raw"].trigger()
+    assert traces.handle.isVisible() and abs(traces.spacing - filtered_spacing) < 1e-9
+    win.actions_by_name["taller"].trigger()
+    assert traces.spacing < filtered_spacing
+
+
+def test_a_threshold_above_every_event_empties_the_views(demo_window):
+    win = demo_window
+    win.bench.set_threshold(90.0)
+    assert win.wait_idle(30)
+    assert len(win.traces.marker_times()) == 0
+    assert int(win.bench.counts().sum()) == 0
+    assert "no events at this threshold" in win.panels["waveforms"].status.text()
+    assert win.panels["features"].n_shown == 0
+
+
+def test_scrolling_reads_only_around_the_visible_window(demo_window, monkeypatch):
+    win = demo_window
+    rec = win.bench.recording
+    spans = []
+    original = rec.read_stored
+
+    def logged(start, stop, channels=None):
+        spans.append((start, stop))
+        return original(start, stop, channels)
+
+    monkeypatch.setattr(rec, "read_stored", logged)
+    width = 0.1
+    for i in range(40):
+        t0 = 0.5 + i * width / 4
+        win.bench.set_view(t0, t0 + width)
+    last = t0 + width
+    assert win.wait_idle(30)
+    assert spans, "scrolling must read new samples"
+    margin = win.traces._bandpass.margin
+    longest = max(b - a for a, b in spans)
+    # the visible window plus one window on each side, the filter's margins and run alignment
+    assert longest <= 3 * width * rec.rate_hz + 2 * margin + 64
+    # nothing far from the stretch scrolled over was read
+    assert min(a for a, _ in spans) >= (0.5 - width) * rec.rate_hz - margin - 64
+    assert max(b for _, b in spans) <= (last + 2 * width) * rec.rate_hz + margin + 64

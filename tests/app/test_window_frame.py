@@ -72,10 +72,13 @@ def test_raw_file_without_metadata_asks_for_its_layout(window, tmp_path, monkeyp
     write_noise(raw, 0.5, 6, meta=False)
 
     def fill_in(dialog):
+        dialog.channels.setValue(7)
+        assert "not a whole number of 14-byte frames" in dialog.implied.text()
         dialog.channels.setValue(6)
         dialog.rate.setValue(30000.0)
         dialog.dtype.setCurrentText("int16")
         dialog.group_size.setValue(3)
+        assert "15,000 samples per channel, 0.50 s" in dialog.implied.text()
         return QDialog.DialogCode.Accepted
 
     monkeypatch.setattr(RawLayoutDialog, "exec", fill_in)

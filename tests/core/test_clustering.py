@@ -128,3 +128,11 @@ def test_merge_components_by_hand():
     tau = np.array([[0.5, 0.5, 0.0]] * 10 + [[0.0, 0.0, 1.0]] * 10)
     assert merge_components(tau, 0.02) == [[0, 1], [2]]
     assert merge_components(tau, 1.0) == [[0], [1], [2]]
+
+
+def test_tiny_inputs_give_one_cluster():
+    x = np.random.default_rng(0).normal(size=(3, 4)).astype(np.float32)
+    assert cluster_features(x, ClusterParams()).tolist() == [0, 0, 0]
+    assert cluster_features(x[:1], ClusterParams(), k=2).tolist() == [0]
+    assert cluster_features(np.ones((5, 2), np.float32), ClusterParams()).tolist() == [0] * 5
+    assert len(cluster_features(np.zeros((0, 2), np.float32), ClusterParams())) == 0

@@ -6,7 +6,7 @@ from core.features import compute_features, shape_features
 from core.filtering import BandPass
 from core.params import Params
 from core.pipeline import detect
-from core.snippets import event_snippets, extract_snippets, snippet_times_ms, snippet_window
+from core.snippets import align_subsample, event_snippets, extract_snippets, snippet_times_ms, snippet_window
 
 from .helpers import gaussian, write_raw
 
@@ -63,8 +63,10 @@ def test_pca_matches_scikit_learn_on_the_same_snippets(rec_events):
     p = Params()
     p.snippets.pca_fit_events = 100000  # fit on every event, as the reference does
     f = compute_features(rec, ev, p)
-    snips, _ = event_snippets(rec, ev, p, np.arange(len(ev)))
-    # reference implementation: scikit-learn PCA on the flattened snippets; signs of
+    bp = BandPass(rec, p.filter)
+    padded = extract_snippets(bp, ev.sample, rec.groups[0], p.snippets, pad=1)
+    snips = align_subsample(padded, ev.channel, snippet_window(p.snippets, FS)[0])
+    # reference implementation: scikit-learn PCA on the flattened aligned snippets; signs of
     # components are arbitrary, so compare absolute scores
     ref = PCA(n_components=3).fit_transform(snips.reshape(len(ev), -1))
     np.testing.assert_allclose(np.abs(f.values[:, :3]), np.abs(ref), rtol=1e-3, atol=1e-2)
@@ -86,3 +88,17 @@ def test_shape_features_on_a_known_trace():
     snips[0, 7, 1] = 20
     out = shape_features(snips, np.array([1]), before=3, rate_hz=10000.0)
     assert out[0, 0] == -50 and out[0, 1] == pytest.approx(0.4) and out[0, 2] == pytest.approx((2500 + 400) / 20)
+
+
+def test_subsample_alignment_recovers_a_known_shift():
+    # a parabola-shaped peak placed between samples: after alignment its maximum sits on the
+    # peak sample and neighbours are symmetric (linear interpolation, parabolic vertex)
+    t = np.arange(-5, 6, dtype=np.float64)
+    shift = 0.3
+    trace = -(10 - (t - shift) ** 2)
+    padded = np.stack([trace, 0.5 * trace], axis=1)[None].astype(np.float32)
+    out = align_subsample(padded, np.array([0]), before=4)
+    k = 4
+    assert out.shape == (1, 9, 2)
+    assert out[0, k - 1, 0] == pytest.approx(out[0, k + 1, 0], abs=0.15)
+    np.testing.assert_allclose(out[0, :, 1], 0.5 * out[0, :, 0], rtol=1e-6)

@@ -1,5 +1,7 @@
 import os
 import signal
+import subprocess
+import sys
 import time
 from pathlib import Path
 
@@ -9,12 +11,13 @@ import pytest
 
 from core.errors import SessionError
 from core.h5safe import read_verified
-from core.journal import Journal, UndoStack, replay
+from core.journal import Journal, UndoStack, replay, replay_matches
 from core.operations import MergeUnits, MoveEvents, Relabel, SetNote
 from core.params import Params
-from core.session import (Autosaver, RecordingChanged, RecordingMoved, RecordingRef, Session, autosave_path,
-                          backup_path, file_fingerprint, find_states, load_session, recover,
-                          remove_stale_temporaries, save_autosave, save_session, verify_session_file)
+from core.session import (RecordingChanged, RecordingMoved, RecordingRef, Session, autosave_path, backup_path,
+                          file_fingerprint, load_session, save_autosave, save_session, snapshot,
+                          verify_session_file)
+from core.session_recovery import Autosaver, find_states, recover, remove_stale_temporaries
 from core.first_pass import first_pass
 from core.sorting import Sorting
 
@@ -74,6 +77,9 @@ def test_journal_replay_reproduces_the_saved_assignments(made, tmp_path):
     back = load_session(save_session(tmp_path / "a.h5", copy_session(s)))
     replayed = replay(back.sorting.journal.entries, Sorting(back.sorting.data))
     assert replayed.state_equal(back.sorting)
+    assert replay_matches(back.sorting)
+    UndoStack(back.sorting).push(SetNote(back.sorting.unit_ids()[0], "kept"))
+    assert replay_matches(back.sorting)
 
 
 def test_second_save_keeps_the_first_as_backup(made, tmp_path):
@@ -321,3 +327,24 @@ def test_sigkill_during_saves_never_loses_the_last_completed_state(made, tmp_pat
         last_done = on_disk
     assert last_done >= 25
     assert mid_save >= 1        # some kills did land in the middle of writing a file
+
+
+def test_a_snapshot_saves_the_state_it_was_taken_in(made, tmp_path):
+    raw, s = made
+    live = copy_session(s)
+    frozen = snapshot(live)
+    UndoStack(live.sorting).push(SetNote(live.sorting.unit_ids()[0], "after the snapshot"))
+    back = load_session(save_session(tmp_path / "a.h5", frozen))
+    assert back.sorting.state_equal(s.sorting) and not back.sorting.state_equal(live.sorting)
+
+
+def test_replay_in_a_fresh_process_reproduces_the_saved_assignments(made, tmp_path):
+    raw, s = made
+    p = save_session(tmp_path / "a.h5", copy_session(s))
+    code = ("import sys; from core.session import load_session; from core.journal import replay_matches; "
+            "s = load_session(sys.argv[1], check_recording=False); print(replay_matches(s.sorting))")
+    root = Path(__file__).resolve().parents[2]
+    out = subprocess.run([sys.executable, "-c", code, str(p)], cwd=root, capture_output=True, text=True,
+                         timeout=120, env={**os.environ, "OMP_NUM_THREADS": "2"})
+    assert out.returncode == 0, out.stderr
+    assert out.stdout.strip() == "True"

@@ -311,3 +311,15 @@ def test_a_prepared_step_is_recomputed_if_the_sorting_changed_meanwhile(base):
     stack.undo()
     stack.undo()
     assert same(s, snapshot(fresh(base)[0]))
+
+
+def test_steps_applied_out_of_order_are_refused(base):
+    s, stack = fresh(base)
+    u0, u1 = unit_of_cluster(base, s, 0), unit_of_cluster(base, s, 1)
+    first, second = MoveEvents(s.events_of(u0)[:5], None), MoveEvents(s.events_of(u1)[:5], None)
+    stack.apply(first)
+    stack.apply(second)
+    before = snapshot(s)
+    with pytest.raises(CurationError, match="state the step was computed for"):
+        first.undo(s)                      # the later step must be undone first
+    assert same(s, before)

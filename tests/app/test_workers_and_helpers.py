@@ -1,0 +1,104 @@
+"""The job runner (newest request wins, cancel, failures as messages) and small helpers."""
+
+from __future__ import annotations
+
+import threading
+
+import numpy as np
+import pytest
+
+from app.channel_text import channel_list, parse_channels
+from app.model import Workbench
+from app.trace_data import Block, step_for, visible_envelope
+from app.workers import Runner
+from core.errors import RecordingError
+from core.progress import check, report
+
+
+def slow_sum(values, gate: threading.Event, progress=None, cancel=None):
+    """Waits for ``gate`` (checking for cancel), then reports and returns the sum."""
+    while not gate.wait(0.005):
+        check(cancel)
+    report(progress, 0.5, "adding")
+    return sum(values)
+
+
+def failing(progress=None, cancel=None):
+    raise RecordingError("recording file must exist, got 'x.bin'")
+
+
+def crashing(progress=None, cancel=None):
+    return 1 / 0
+
+
+def test_newer_request_replaces_older(qtbot):
+    runner = Runner()
+    got = []
+    first_gate, second_gate = threading.Event(), threading.Event()
+    runner.submit("slot", "first", slow_sum, [1, 2], first_gate, on_done=got.append)
+    runner.submit("slot", "second", slow_sum, [3, 4], second_gate, on_done=got.append)
+    first_gate.set()
+    second_gate.set()
+    with qtbot.waitSignal(runner.idle, timeout=10000):
+        pass
+    assert got == [7]
+    assert not runner.busy()
+
+
+def test_cancel_and_failures_are_reported(qtbot):
+    runner = Runner()
+    outcomes, errors = [], []
+    runner.finished.connect(lambda label, outcome: outcomes.append((label, outcome)))
+    runner.error.connect(lambda label, message: errors.append((label, message)))
+    gate = threading.Event()
+    runner.submit("a", "waiting", slow_sum, [1], gate, on_done=lambda r: pytest.fail("cancelled job returned"))
+    runner.cancel("a")
+    with qtbot.waitSignal(runner.idle, timeout=10000):
+        pass
+    runner.submit("b", "bad file", failing)
+    with qtbot.waitSignal(runner.idle, timeout=10000):
+        pass
+    runner.submit("c", "bug", crashing)
+    with qtbot.waitSignal(runner.idle, timeout=10000):
+        pass
+    assert ("waiting", "cancelled") in outcomes
+    assert ("bad file", "recording file must exist, got 'x.bin'") in errors
+    assert any(label == "bug" and "internal error (ZeroDivisionError)" in msg for label, msg in errors)
+    runner.shutdown()
+
+
+def test_channel_text_round_trip():
+    assert channel_list([0, 1, 2, 3, 8, 12, 13]) == "0-3, 8, 12-13"
+    assert parse_channels("0-3, 8; 12-13", 16) == [0, 1, 2, 3, 8, 12, 13]
+    with pytest.raises(ValueError, match="must lie in 0..15"):
+        parse_channels("14-16", 16)
+    with pytest.raises(ValueError, match="numbers or ranges"):
+        parse_channels("a-b", 16)
+
+
+def test_envelope_keeps_every_extreme():
+    rng = np.random.default_rng(0)
+    x = rng.normal(size=(10_000, 3)).astype(np.float32)
+    lo = x[:8192].reshape(1024, 8, 3).min(axis=1)
+    hi = x[:8192].reshape(1024, 8, 3).max(axis=1)
+    block = Block(0, 8, (0, 1, 2), False, lo, hi)
+    pos, values = visible_envelope(block, 1000, 5000, 32)
+    # runs of 32 samples: min and max of each, interleaved
+    first = x[992:1024]
+    np.testing.assert_allclose(values[0], first.min(axis=0))
+    np.testing.assert_allclose(values[1], first.max(axis=0))
+    assert pos[0] == 992
+    assert values.min() == x[992:5024].min() and values.max() == x[992:5024].max()
+    assert step_for(1000, 1000) == 1 and step_for(30000, 1000) == 32
+
+
+def test_model_emits_only_on_change():
+    bench = Workbench()
+    seen = []
+    bench.view_changed.connect(lambda a, b: seen.append((a, b)))
+    bench.set_view(0.0, 1.0)
+    bench.set_view(0.0, 2.0)
+    bench.set_view(0.0, 2.0)
+    assert seen == [(0.0, 2.0)]
+    with pytest.raises(ValueError, match="threshold unit must be one of"):
+        bench.set_unit("volts")
