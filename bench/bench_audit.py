@@ -28,10 +28,12 @@ from scipy import signal
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
-from core.audit import FreshUnits, run_audit  # noqa: E402
+from core.audit import CAUTION, FreshUnits, run_audit  # noqa: E402
+from core.audit_table import write_audit_csv  # noqa: E402
 from core.filtering import design_bandpass  # noqa: E402
 from core.params import Params  # noqa: E402
 from core.recording import open_recording  # noqa: E402
+from core.report import write_audit_report  # noqa: E402
 from core.session import load_session  # noqa: E402
 from core.sort_run import run_sort  # noqa: E402
 from core.spike_import import finish  # noqa: E402
@@ -103,10 +105,16 @@ def main() -> None:
     t0 = time.perf_counter()
     result = run_audit(rec, spikes, fresh)
     ours = time.perf_counter() - t0
+    t0 = time.perf_counter()
+    write_audit_csv(result, args.workdir / "bench_audit.csv", CAUTION)
+    write_audit_report(result, args.workdir / "bench_audit.html")
+    files = time.perf_counter() - t0
     base = baseline(rec, spikes, fresh)
     print(f"recording: {rec.duration_s:g} s, {rec.n_channels} channels; session: {len(session.events)} events, "
           f"{len(fresh.sorting.units)} units; imported: {len(result.imported_ids)} units, {len(spikes)} spikes")
     print(f"audit: {ours:.2f} s (target < 10 s); baseline: {base:.2f} s; ratio baseline/ours: {base / ours:.2f}")
+    size = (args.workdir / "bench_audit.html").stat().st_size / 1e6
+    print(f"table + report: {files:.2f} s ({files / ours:.2f} x the audit), report {size:.1f} MB")
 
 
 if __name__ == "__main__":
