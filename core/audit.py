@@ -35,7 +35,7 @@ from .recording import Recording
 from .sorting import Sorting
 from .spike_import import SpikeTrains
 from .audit_imported import Placement, WaveformSummary, place_units, summarise, unit_waveforms
-from .audit_quality import imported_quality, metric_thresholds
+from .audit_quality import SEPARATION_EVENTS, imported_quality, metric_thresholds
 from .audit_table import audit_rows
 from .snippets import snippet_times_ms
 from .unit_table import unit_metrics_for_events
@@ -59,6 +59,9 @@ class AuditSettings:
         ``spread_over`` (two or more such units suggest a merge).
     weak_agreement
         A best match below this agreement is noted as weak.
+    separation_events
+        Most events per channel group for isolation distance and L-ratio; beyond it they come
+        from evenly spread time windows (see :mod:`core.audit_quality`).
 
     The quality metrics use the ``metrics`` section of the fresh units' parameters.
     """
@@ -67,6 +70,7 @@ class AuditSettings:
     waveform_spikes: int = 64
     spread_share: float = 0.1
     weak_agreement: float = 0.5
+    separation_events: int = SEPARATION_EVENTS
 
     def validate(self) -> None:
         """Raise :class:`~core.errors.ParamError` for an out-of-range setting."""
@@ -75,6 +79,9 @@ class AuditSettings:
             raise ParamError(f"matching tolerance must be at most 5 ms, got {self.tolerance_ms:g} ms")
         if not isinstance(self.waveform_spikes, int) or not 1 <= self.waveform_spikes <= 10000:
             raise ParamError(f"waveform spike count must be an integer from 1 to 10000, got {self.waveform_spikes!r}")
+        if not isinstance(self.separation_events, int) or self.separation_events < 100:
+            raise ParamError(f"separation event count must be an integer of at least 100, got "
+                             f"{self.separation_events!r}")
         for name, v in (("spread share", self.spread_share), ("weak agreement", self.weak_agreement)):
             if not (isinstance(v, (int, float)) and 0 < v <= 1):
                 raise ParamError(f"{name} must be a number in (0, 1], got {v!r}")
@@ -251,7 +258,8 @@ def run_audit(recording: Recording, spikes: SpikeTrains, fresh: FreshUnits,
     agreement = jaccard(matches, n_imp, n_fresh)
     quality, amplitude = imported_quality(recording, params, spikes, placements, events, free,
                                           params.metrics, cancel=cancel,
-                                          progress=lambda f, m: report(progress, 0.2 + 0.65 * f, m))
+                                          progress=lambda f, m: report(progress, 0.2 + 0.65 * f, m),
+                                          separation_events=settings.separation_events)
     best = np.full(len(imp_ids), -1)                # column of the best match, -1: none shares a spike
     if len(fresh_ids):
         best = np.where(matches.max(axis=1) > 0, agreement.argmax(axis=1), -1)

@@ -20,7 +20,20 @@ NORMAL_MAD = 0.6744897501960817  # Phi^-1(0.75)
 
 def robust_sigma(x: np.ndarray, axis: int = 0) -> np.ndarray:
     """median(|x|) / Phi^-1(0.75) along ``axis`` (Quian Quiroga et al. 2004)."""
-    return np.median(np.abs(x), axis=axis) / NORMAL_MAD
+    return fast_median(np.abs(x), axis=axis) / NORMAL_MAD
+
+
+def fast_median(a: np.ndarray, axis: int = 0) -> np.ndarray:
+    """The median along ``axis`` (as ``np.median``) from a single-element partition, which
+    is several times faster than ``np.median``'s two-element one for even lengths."""
+    a = np.moveaxis(np.asarray(a), axis, -1)
+    n = a.shape[-1]
+    k = n // 2
+    part = np.partition(a, k, axis=-1)
+    upper = part[..., k].astype(np.float64)
+    if n % 2:
+        return upper
+    return 0.5 * (upper + part[..., :k].max(axis=-1))
 
 
 @dataclass
@@ -87,9 +100,9 @@ def estimate_noise(recording: Recording, params: Params, progress: ProgressFn = 
         clipped += _clip_fraction(raw)
         y = pooled[:, i * w:(i + 1) * w]
         np.abs(bp.read(int(s), int(s) + w).T, out=y)
-        per_window[i] = np.median(y, axis=1) / NORMAL_MAD
+        per_window[i] = fast_median(y, axis=1) / NORMAL_MAD
         report(progress, (i + 1) / len(starts), "measuring noise")
-    sigma = np.median(pooled, axis=1).astype(np.float64) / NORMAL_MAD
+    sigma = fast_median(pooled, axis=1) / NORMAL_MAD
     return NoiseEstimate(sigma_uv=sigma, window_start_s=starts / recording.rate_hz,
                          window_sigma_uv=per_window, bad=flag_bad(sigma, clipped / len(starts)))
 

@@ -80,6 +80,7 @@ def detect(recording: Recording, params: Params, progress: ProgressFn = None, ca
     def work(start: int, stop: int) -> BlockEvents:
         lo, hi = max(0, start - ctx), min(recording.n_samples, stop + ctx)
         y = bp.read(lo, hi)
+        recording.release(lo, hi)
         return detect_block(y, lo, start - lo, stop - lo, sigma, recording.groups, d.polarity, floor,
                             dead, d.artefact_sigma, d.artefact_channel_fraction, art_w)
 

@@ -19,8 +19,8 @@ class EventMarks:
     a small image instead."""
 
     def __init__(self) -> None:
-        self.events = pg.PlotCurveItem(pen=palette.pen(palette.EVENT, 2.5), connect="pairs")
-        self.artefacts = pg.PlotCurveItem(pen=palette.pen(palette.ARTEFACT, 2.5), connect="pairs")
+        self.events = pg.PlotCurveItem(pen=palette.pen(palette.EVENT, 2), connect="pairs")
+        self.artefacts = pg.PlotCurveItem(pen=palette.pen(palette.ARTEFACT, 2), connect="pairs")
         self.rug = pg.ImageItem(axisOrder="row-major")
         self.rug.setVisible(False)
         self.rug_pixels = np.zeros((0, 0), dtype=bool)

@@ -78,7 +78,7 @@ class TracePanel(Panel):
         self.bands: list[QGraphicsRectItem] = []
         self.curve = pg.PlotCurveItem(pen=palette.pen(palette.TRACE), skipFiniteCheck=True)
         self.selected_curve = pg.PlotCurveItem(pen=palette.pen(palette.TRACE_SELECTED), skipFiniteCheck=True)
-        self.threshold_lines = pg.PlotCurveItem(pen=palette.pen(palette.THRESHOLD, 1.5, dash=True))
+        self.threshold_lines = pg.PlotCurveItem(pen=palette.pen(palette.THRESHOLD, 1, dash=True))
         self.marks = EventMarks()
         self.handle = pg.InfiniteLine(angle=0, movable=True, pen=palette.pen(palette.THRESHOLD, 3),
                                       hoverPen=palette.pen(palette.VERMILLION, 4), label="",
@@ -263,7 +263,8 @@ class TracePanel(Panel):
         ys = np.concatenate([self._level(lanes, thr_uv, s) for s in self._signs()])
         ys = np.where(np.isfinite(ys), ys, np.nan)
         y = np.repeat(ys, 2)
-        x = np.tile([0.0, b.recording.duration_s], len(ys))
+        # only across the visible window: dashing a line far longer than the view is slow
+        x = np.tile(list(b.view), len(ys))
         keep = np.isfinite(y)
         self.threshold_lines.setData(x[keep], y[keep], connect="pairs")
 
@@ -354,6 +355,7 @@ class TracePanel(Panel):
                 and not self._pending_covers(a, z, chans, step):
             self._request(lo, hi, blk.step, chans)
         self._draw_traces(a, z, step)
+        self._draw_threshold_lines()
         self._draw_markers()
         self._draw_scale_bar()
         self.info.setText(f"{b.shown_label} · selected ch {b.channel} · "

@@ -158,6 +158,20 @@ def test_pair_view_report_and_csv(world, audited, tmp_path):
     assert len([line for line in lines if not line.startswith("#")]) == len(res.imported_ids) + 1
 
 
+def test_separation_from_time_windows_matches_all_events(world, audited):
+    rec, truth, fresh, trains = world
+    spikes, full = audited
+    sampled = run_audit(rec, spikes, fresh, AuditSettings(separation_events=1500))
+    # a uniform sample of a group's events keeps a unit's share and the distance quantile, so
+    # isolation distance and L-ratio stay close (the groups here hold about twice as many)
+    for u in full.imported_ids:
+        a, b = full.row(int(u)), sampled.row(int(u))
+        assert a["n_events"] == b["n_events"] and a["contamination"] == b["contamination"] or np.isnan(a["contamination"])
+        if len(trains[int(u)]) >= 150 and not np.isnan(a["isolation_distance"]):
+            assert b["isolation_distance"] == pytest.approx(a["isolation_distance"], rel=0.15)
+            assert b["l_ratio"] == pytest.approx(a["l_ratio"], abs=0.05)
+
+
 def test_bad_inputs(world, tmp_path):
     rec, truth, fresh, trains = world
     late = finish(np.array([1.0, rec.duration_s + 1]), np.array([1, 1]), "late.csv")

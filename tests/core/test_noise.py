@@ -13,6 +13,14 @@ def test_constant_is_the_normal_quartile():
     assert NORMAL_MAD == pytest.approx(stats.norm.ppf(0.75), abs=1e-15)
 
 
+@pytest.mark.parametrize("n", [7, 8, 1000, 1001])
+def test_fast_median_equals_numpy_median(n):
+    from core.noise import fast_median
+    x = np.random.default_rng(n).normal(size=(3, n)).astype(np.float32)
+    np.testing.assert_allclose(fast_median(x, axis=1), np.median(x, axis=1), rtol=1e-6)
+    np.testing.assert_allclose(fast_median(x.T, axis=0), np.median(x, axis=1), rtol=1e-6)
+
+
 def test_matches_scipy_mad_on_gaussian_noise():
     x = gaussian(200000, 3, sigma=7.0, seed=5)
     # reference implementation: scipy.stats.median_abs_deviation(scale='normal');
