@@ -9,7 +9,7 @@ the scope (all channels or one) only say how the next edit is read and how value
 from __future__ import annotations
 
 import weakref
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Any, Callable
 
 import numpy as np
@@ -34,11 +34,9 @@ class Signal:
         self._slots.append(ref)
 
     def emit(self, *args: Any) -> None:
-        alive = []
         for ref in list(self._slots):
             fn = ref()
             if fn is not None:
-                alive.append(ref)
                 fn(*args)
         self._slots = [r for r in self._slots if r() is not None]
 
@@ -54,7 +52,7 @@ class Analysis:
     features: Any = None
     truth: Any = None
     sos: np.ndarray | None = None
-    extras: dict = field(default_factory=dict)
+    noise_grid: tuple[np.ndarray, np.ndarray] | None = None
 
 
 def noise_rate_grid(sos: np.ndarray, rate_hz: float, polarity: str) -> tuple[np.ndarray, np.ndarray]:
@@ -120,7 +118,7 @@ class Workbench:
     def set_events(self, noise, events) -> None:
         self.analysis.noise = noise
         self.analysis.events = events
-        self.analysis.extras["noise_grid"] = noise_rate_grid(self.analysis.sos, self.recording.rate_hz,
+        self.analysis.noise_grid = noise_rate_grid(self.analysis.sos, self.recording.rate_hz,
                                                              events.polarity)
         self.analysis.features = None
         self.events_changed.emit()
@@ -130,9 +128,8 @@ class Workbench:
         self.analysis.features = features
         self.features_changed.emit()
 
-    def set_truth(self, truth, scores: dict | None = None) -> None:
+    def set_truth(self, truth) -> None:
         self.analysis.truth = truth
-        self.analysis.extras["scores"] = scores
         self.truth_changed.emit()
 
     # ---- selection ----------------------------------------------------------------
@@ -253,7 +250,7 @@ class Workbench:
         Interpolated (in log rate) from the sampled-data crossing rate computed once for the
         recording's filter; doubled when both polarities are detected.
         """
-        grid = self.analysis.extras.get("noise_grid")
+        grid = self.analysis.noise_grid
         k = np.asarray(k_sigma, dtype=np.float64)
         if grid is None:
             return np.full(k.shape, np.nan)

@@ -6,6 +6,7 @@ import os
 import sys
 import traceback
 from pathlib import Path
+from typing import Callable, Sequence
 
 import h5py
 import numpy as np
@@ -28,6 +29,7 @@ from .panels.threshold import ThresholdPanel
 from .panels.traces import TracePanel
 from .panels.waveforms import WaveformPanel
 from .task_status import TaskStatus
+from .units_frame import install_units
 from .window_actions import build_actions
 from .workers import Runner
 
@@ -35,6 +37,9 @@ VERSION = "0.1.0"
 LAYOUT_VERSION = 1
 MAX_RECENT = 8
 ANALYSIS_LABEL = "Detecting events"
+
+EXTENSIONS: tuple[Callable[["MainWindow"], object], ...] = (install_units,)
+"""Installers run on every new window: each adds its panels, menus and actions."""
 
 
 def demo_path() -> Path:
@@ -50,9 +55,13 @@ def settings() -> QSettings:
 class MainWindow(QMainWindow):
     """Traces in the middle, panels in docks; ``add_panel`` is how new panels join."""
 
-    def __init__(self, interactive: bool = True):
+    def __init__(self, interactive: bool = True, extensions: Sequence[Callable] | None = None):
         """``interactive=False`` (screenshots): no dialogs, and the saved layout and recent
-        files are neither used nor changed, so renders are reproducible."""
+        files are neither used nor changed, so renders are reproducible.
+
+        ``extensions`` (default :data:`EXTENSIONS`) are called with the window after its own
+        panels and menus exist and before the saved layout is restored; each adds its panels
+        (``add_panel``), menus and actions, so their docks take part in the layout."""
         super().__init__()
         palette.setup_pyqtgraph()
         self.setObjectName("rigside_workbench")
@@ -88,13 +97,14 @@ class MainWindow(QMainWindow):
         self.resizeDocks([threshold, curve], [480, 420], Qt.Orientation.Vertical)
         self.resizeDocks([threshold], [560], Qt.Orientation.Horizontal)
         self.resizeDocks([strip, wave], [170, 330], Qt.Orientation.Vertical)
-        self._default_state = self.saveState(LAYOUT_VERSION)
 
         self.task_status = TaskStatus(self.runner)
         self.statusBar().addPermanentWidget(self.task_status)
         self.runner.finished.connect(self._on_finished)
         self.runner.error.connect(lambda label, msg: self.show_error(f"{label} failed", msg))
         self.actions_by_name = build_actions(self)
+        self.extensions = [install(self) for install in (EXTENSIONS if extensions is None else extensions)]
+        self._default_state = self.saveState(LAYOUT_VERSION)
         if interactive:
             self._restore_layout()
 

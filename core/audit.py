@@ -16,20 +16,19 @@ their own contamination), so an audit bounds disagreement, not the truth.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
 import numpy as np
 
 from .clustering import NO_UNIT, ClusterParams
 from .errors import ParamError, RigsideError
 from .events import EventTable
-from .features import Features, compute_features
+from .features import Features
 from .filtering import BandPass
-from .first_pass import first_pass
 from .matching import agreement_matrix, jaccard, match_times
 from .metric_inputs import positive
 from .params import Params
-from .pipeline import detect, thresholds_sigma
+from .pipeline import thresholds_sigma
 from .progress import CancelFn, ProgressFn, check, report
 from .recording import Recording
 from .sorting import Sorting
@@ -38,6 +37,7 @@ from .audit_imported import Placement, WaveformSummary, place_units, summarise, 
 from .audit_quality import SEPARATION_EVENTS, imported_quality, metric_thresholds
 from .audit_table import audit_rows
 from .snippets import snippet_times_ms
+from .sort_run import sort_recording
 from .unit_table import unit_metrics_for_events
 
 CAUTION = ("Both the false-positive and the miss estimates are measured against freshly sorted units, "
@@ -116,13 +116,9 @@ def first_pass_units(recording: Recording, params: Params, cluster_params: Clust
     unit); the sorting is the unreviewed first pass of :func:`core.first_pass.first_pass`.
     Nothing is written.
     """
-    events = detect(recording, params, cancel=cancel, progress=lambda f, m: report(progress, 0.5 * f, m))
-    events = events.subset(events.mask(threshold_sigma=thresholds_sigma(params, events.sigma_uv),
-                                       include_artefacts=True))
-    feats = compute_features(recording, events, params, cancel=cancel,
-                             progress=lambda f, m: report(progress, 0.5 + 0.3 * f, m))
-    sorting = first_pass(events, feats, cluster_params, cancel=cancel,
-                         progress=lambda f, m: report(progress, 0.8 + 0.2 * f, m))
+    if cluster_params is not None:
+        params = replace(params, cluster=cluster_params)
+    events, sorting = sort_recording(recording, params, progress=progress, cancel=cancel)
     return FreshUnits(events, sorting, params, "first-pass clustering of re-detected events")
 
 
@@ -179,6 +175,13 @@ class AuditResult:
         """Id of the fresh unit agreeing best with an imported unit, or None."""
         b = int(self.table["best_match"][self._index(unit)])
         return None if b == NO_UNIT else b
+
+    def fresh_quality(self, unit: int) -> dict:
+        """Quality numbers of a fresh unit that is some imported unit's best match."""
+        i = int(np.searchsorted(self.fresh_table["unit"], unit))
+        if i >= len(self.fresh_table["unit"]) or self.fresh_table["unit"][i] != unit:
+            raise RigsideError(f"unit must be the best match of an imported unit, got {unit!r}")
+        return {k: v[i].item() if hasattr(v[i], "item") else v[i] for k, v in self.fresh_table.items()}
 
     def imported_train(self, unit: int) -> tuple[np.ndarray, np.ndarray]:
         """Times (s) and main-channel amplitudes (uV) of one imported unit."""

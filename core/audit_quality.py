@@ -15,7 +15,8 @@ reads contiguous.
 
 from __future__ import annotations
 
-from concurrent.futures import ThreadPoolExecutor
+from collections import deque
+from concurrent.futures import Future, ThreadPoolExecutor
 
 import numpy as np
 
@@ -25,7 +26,7 @@ from .features import compute_features
 from .filtering import BandPass
 from .params import MetricParams, Params
 from .pipeline import chunk_bounds, thresholds_sigma
-from .progress import CancelFn, ProgressFn, check, report
+from .progress import CancelFn, Cancelled, ProgressFn, check, report
 from .recording import Recording
 from .spike_import import SpikeTrains
 from .unit_table import unit_metrics_for_events, unit_metrics_table
@@ -66,9 +67,22 @@ def values_at(bandpass: BandPass, samples: np.ndarray, channels: np.ndarray, chu
         out[a:b] = y[samples[a:b] - samples[a], np.searchsorted(chans, channels[a:b])]
 
     with ThreadPoolExecutor(max_workers=workers) as pool:
-        for done, _ in enumerate(pool.map(work, range(len(bounds)))):
-            check(cancel)
-            report(progress, (done + 1) / len(bounds), "reading amplitudes")
+        pending: deque[Future] = deque()
+        try:
+            for k in range(len(bounds)):
+                check(cancel)
+                pending.append(pool.submit(work, k))
+                if len(pending) >= 2 * workers:
+                    pending.popleft().result()
+                    report(progress, (k + 1 - len(pending)) / len(bounds), "reading amplitudes")
+            while pending:
+                check(cancel)
+                pending.popleft().result()
+        except Cancelled:
+            for f in pending:
+                f.cancel()
+            raise
+    report(progress, 1.0, "reading amplitudes")
     return out
 
 

@@ -43,6 +43,14 @@ AUDIT_COLUMNS: dict[str, str] = {
     "quality_flags": "quality limits the unit is beyond (or whose metric is undefined)",
 }
 QUALITY_PART = {k: v for k, v in QUALITY_COLUMNS.items() if k != "unit"}
+QUALITY_PART.update({
+    "group": "channel group of the main channel (the unit is compared with the events there)",
+    "main_channel": "channel where the unit's mean waveform reaches its largest extremum near the "
+                    "imported times (every spike is measured there)",
+    "isolation_distance": QUALITY_COLUMNS["isolation_distance"] + "; from time windows when the group "
+                          "holds many events",
+    "l_ratio": QUALITY_COLUMNS["l_ratio"] + "; from time windows when the group holds many events",
+})
 ALL_COLUMNS = {**AUDIT_COLUMNS, **QUALITY_PART}
 TEXT_COLUMNS = frozenset({"best_match_label", "miss_estimate_reason", "spread_over", "notes", "quality_flags"})
 

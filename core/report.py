@@ -135,7 +135,10 @@ def _unit_section(result: AuditResult, i: int) -> str:
     unit = int(result.imported_ids[i])
     best = _best(result, i)
     row = result.row(unit)
-    facts = "".join(f"<tr><th>{escape(c)}</th><td class='t'>{_value(row[c])}</td></tr>" for c in DETAIL)
+    other = result.fresh_quality(best) if best is not None else {}
+    facts = "<tr><th></th><th>imported unit</th><th>best fresh match</th></tr>" + "".join(
+        f"<tr><th>{escape(c)}</th><td class='t'>{_value(row[c])}</td>"
+        f"<td class='t'>{_value(other[c]) if c in other else ''}</td></tr>" for c in DETAIL)
     t_fresh = result.fresh.train(best)[0] if best is not None else None
     plots = _waveforms(result.placements[unit].waveform, result.fresh_waveforms.get(best))
     plots += _isi(result.imported_train(unit)[0], t_fresh, result.fresh.params.metrics.refractory_ms)

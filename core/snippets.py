@@ -9,6 +9,7 @@ from .params import SnippetParams
 from .progress import CancelFn, check
 
 MAX_SPAN = 1 << 18  # longest single filtered read when gathering snippets (samples)
+JOIN_GAP = 4096     # extra gap (samples) still read in one go: filtering it costs less than a new read
 
 
 def snippet_window(params: SnippetParams, rate_hz: float) -> tuple[int, int]:
@@ -59,8 +60,9 @@ def extract_snippets(bandpass: BandPass, samples: np.ndarray, channels: np.ndarr
     out = np.zeros((len(samples), length, len(channels)), dtype=np.float32)
     if not len(samples):
         return out
-    # merge events into spans: a new read starts where the gap is wider than two margins
-    gap = np.diff(samples) > 2 * bandpass.margin + length
+    # merge events into spans: a new read starts where the gap is wider than two filter
+    # margins plus JOIN_GAP (each read pays for its margins and a fixed overhead)
+    gap = np.diff(samples) > 2 * bandpass.margin + length + JOIN_GAP
     starts = np.concatenate([[0], np.flatnonzero(gap) + 1])
     ends = np.concatenate([starts[1:], [len(samples)]])
     offs = np.arange(-before, after)

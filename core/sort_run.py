@@ -20,10 +20,11 @@ from .events import EventTable
 from .features import Features, compute_features
 from .first_pass import first_pass
 from .params import Params
-from .pipeline import detect
+from .pipeline import detect, thresholds_sigma
 from .progress import CancelFn, ProgressFn, report
 from .recording import Recording
 from .session import RecordingRef, Session, save_session
+from .sorting import Sorting
 
 STAGE_SHARES = (0.45, 0.35, 0.2)  # detection, features, clustering: shares of the progress bar
 
@@ -70,49 +71,58 @@ def _read_checkpoint(path: Path, key: str) -> tuple[EventTable | None, Features 
         return None, None  # a damaged checkpoint only costs recomputation
 
 
-def run_sort(recording: Recording, params: Params, session_path: str | Path,
-             resume: bool = False, progress: ProgressFn = None, cancel: CancelFn = None) -> Session:
-    """Detect, compute features, cluster every group, and save the session.
+def sort_recording(recording: Recording, params: Params, checkpoint: Path | None = None,
+                   resume: bool = False, progress: ProgressFn = None,
+                   cancel: CancelFn = None) -> tuple[EventTable, Sorting]:
+    """Detect, compute features and cluster every group, in memory.
 
     Parameters
     ----------
     recording
         The recording (read-only).
     params
-        Pipeline parameters (``params.cluster`` for the first pass); events at the
-        detection threshold are sorted.
-    session_path
-        Session file to write (atomically; the previous one is kept as a backup).
+        Pipeline parameters (``params.cluster`` for the first pass). The events kept are
+        those at the detection threshold, artefacts included (they go to no unit).
+    checkpoint
+        File to save the events and features in after each long stage (none if ``None``).
     resume
-        Reuse the stages saved in a matching checkpoint of an interrupted run.
+        Reuse the stages saved in a matching ``checkpoint``.
     progress, cancel
         Progress callback and cancel check.
 
     Returns
     -------
-    Session
-        The saved session.
+    events, sorting
+        The event table and its unreviewed first-pass sorting.
     """
     params.validate(recording.rate_hz)
-    ckpt = checkpoint_path(session_path)
-    key = _key(recording, params)
-    events, features = _read_checkpoint(ckpt, key) if resume else (None, None)
+    key = _key(recording, params) if checkpoint is not None else ""
+    events, features = _read_checkpoint(checkpoint, key) if checkpoint is not None and resume else (None, None)
     a, b, _ = STAGE_SHARES
     if events is None:
         table = detect(recording, params, progress=lambda f, m: report(progress, a * f, m), cancel=cancel)
-        d = params.detect
-        keep = table.mask(threshold_sigma=None if d.threshold_uv is not None else d.threshold_sigma,
-                          threshold_uv=d.threshold_uv, include_artefacts=True)
-        events = table.subset(keep)
-        _write_checkpoint(ckpt, key, events, None)
+        events = table.subset(table.mask(threshold_sigma=thresholds_sigma(params, table.sigma_uv),
+                                         include_artefacts=True))
+        if checkpoint is not None:
+            _write_checkpoint(checkpoint, key, events, None)
     report(progress, a, "events ready")
     if features is None:
         features = compute_features(recording, events, params, cancel=cancel,
                                     progress=lambda f, m: report(progress, a + b * f, m))
-        _write_checkpoint(ckpt, key, events, features)
+        if checkpoint is not None:
+            _write_checkpoint(checkpoint, key, events, features)
     report(progress, a + b, "features ready")
     sorting = first_pass(events, features, params.cluster, cancel=cancel,
                          progress=lambda f, m: report(progress, a + b + (1 - a - b) * f, m))
+    return events, sorting
+
+
+def run_sort(recording: Recording, params: Params, session_path: str | Path, resume: bool = False,
+             progress: ProgressFn = None, cancel: CancelFn = None) -> Session:
+    """:func:`sort_recording` with a checkpoint beside ``session_path``, then save the session
+    (atomically; the previous file is kept as a backup) and remove the checkpoint."""
+    ckpt = checkpoint_path(session_path)
+    events, sorting = sort_recording(recording, params, ckpt, resume, progress, cancel)
     session = Session(RecordingRef.from_recording(recording), params, events, sorting)
     save_session(session_path, session)
     ckpt.unlink(missing_ok=True)

@@ -54,7 +54,7 @@ def _first_bad_line(lines: list[str], first: int, cols: dict[str, int]) -> str |
 def read_csv(path: Path, rate_hz: float | None) -> tuple[np.ndarray, np.ndarray]:
     """CSV with a header row naming ``unit`` and one time column; ``#`` lines are comments."""
     try:
-        text = path.read_text(encoding="utf-8")
+        text = path.read_text(encoding="utf-8-sig")       # a leading byte-order mark is dropped
     except UnicodeDecodeError as exc:
         raise SpikeFileError(f"{path.name} must be UTF-8 text, got undecodable bytes at byte {exc.start}") from None
     lines = text.splitlines()

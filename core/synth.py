@@ -78,6 +78,8 @@ def _spike_train(rng: np.random.Generator, rate: float, duration: float, kind: s
             times.extend(s + np.concatenate([[0], np.cumsum(isi)]))
             scales.extend(0.85 ** np.arange(k))
         t, sc = np.asarray(times), np.asarray(scales)
+        inside = t < duration  # a burst starting near the end must not run past it
+        t, sc = t[inside], sc[inside]
     else:
         n = rng.poisson(rate * duration * 1.2) + 10
         isi = REFRACTORY_S + rng.exponential(max(1 / rate - REFRACTORY_S, 1e-4), n)

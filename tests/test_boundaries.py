@@ -16,7 +16,7 @@ def test_import_linter_contract():
 
 def test_core_tests_pass_with_qt_unimportable():
     code = ("import sys, tests.block_qt, pytest; "
-            "sys.exit(pytest.main(['tests/core', '-q', '-x', '-p', 'no:pytest-qt', '-p', 'no:cacheprovider']))")
+            "sys.exit(pytest.main(['tests/core', '-x', '-p', 'no:pytest-qt', '-p', 'no:cacheprovider']))")
     r = subprocess.run([sys.executable, "-c", code], cwd=ROOT, capture_output=True, text=True)
     assert r.returncode == 0, r.stdout[-3000:] + r.stderr[-3000:]
     assert " passed" in r.stdout

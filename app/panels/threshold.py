@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 import numpy as np
-from PySide6.QtCore import QAbstractTableModel, QModelIndex, QSignalBlocker, Qt
+from PySide6.QtCore import QAbstractTableModel, QModelIndex, QSignalBlocker, Qt, QTimer
 from PySide6.QtGui import QColor, QFont
 from PySide6.QtWidgets import (QAbstractItemView, QComboBox, QDoubleSpinBox, QFormLayout, QHBoxLayout,
                                QHeaderView, QLabel, QPushButton, QTableView, QVBoxLayout)
@@ -11,6 +11,7 @@ from PySide6.QtWidgets import (QAbstractItemView, QComboBox, QDoubleSpinBox, QFo
 from ..bindings import ComboBinding, SpinBinding
 from .base import Panel
 
+TABLE_INTERVAL_MS = 50
 COLUMNS = ("ch", "group", "σ (µV)", "thr (σ)", "thr (µV)", "events", "events/s", "noise/s", "flag")
 COLUMN_TIPS = ("channel", "channel group", "robust noise sigma of the filtered signal (µV)",
                "threshold in multiples of the channel's noise sigma", "threshold in microvolts",
@@ -107,6 +108,7 @@ class ThresholdPanel(Panel):
 
     def _build(self) -> None:
         b = self.bench
+        self._table_timer = QTimer(self, singleShot=True, interval=TABLE_INTERVAL_MS, timeout=self._refresh_table)
         self.value = QDoubleSpinBox()
         self.value.setKeyboardTracking(False)
         self.value.setDecimals(2)
@@ -186,15 +188,26 @@ class ThresholdPanel(Panel):
         self.table.setColumnWidth(7, max(self.table.columnWidth(7), self.fontMetrics().horizontalAdvance("0.00088") + 16))
 
     def _on_thresholds(self, final: bool = True) -> None:
+        """The summary follows every move; during a drag the table is redrawn at most every
+        TABLE_INTERVAL_MS (repainting every cell costs a few ms), and at once on release."""
         b = self.bench
-        rec = b.recording
-        if rec is None:
+        if b.recording is None:
             return
         counts = b.counts()
-        noise_rate = b.noise_rates(b.thresholds_sigma) if b.events is not None else np.zeros(0)
-        self.table_model.refresh(counts, noise_rate)
+        if final:
+            self._table_timer.stop()
+            self._refresh_table()
+        elif not self._table_timer.isActive():
+            self._table_timer.start()
         self.redetect.setVisible(b.below_floor())
         self.summary.setText(self.summary_text(counts))
+
+    def _refresh_table(self) -> None:
+        b = self.bench
+        if b.recording is None:
+            return
+        noise_rate = b.noise_rates(b.thresholds_sigma) if b.events is not None else np.zeros(0)
+        self.table_model.refresh(b.counts(), noise_rate)
 
     def summary_text(self, counts: np.ndarray | None) -> str:
         b = self.bench

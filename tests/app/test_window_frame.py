@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 import pytest
+from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QDialog
 
 from app.dialogs.about import about_text
@@ -198,3 +199,30 @@ def test_run_window_screenshot_entry_point(tmp_path, qapp):
     assert rgb.shape[0] >= 900 and distinct_colours(rgb) > 50
     assert run_window(str(tmp_path / "nothing.bin"), screenshot=str(tmp_path / "x.png")) == 2
     assert not (tmp_path / "x.png").exists()
+
+
+def test_extensions_add_docks_that_join_the_saved_layout(qtbot):
+    from app.panels.base import Panel
+
+    class Notes(Panel):
+        panel_id = "notes"
+        title = "Notes"
+
+    def install(win):
+        return win.add_panel(Notes(win.bench, win.runner), Qt.DockWidgetArea.BottomDockWidgetArea,
+                             tab_with=win.docks["features"])
+
+    first = MainWindow(extensions=[install])
+    qtbot.addWidget(first)
+    first.show()
+    assert "notes" in first.panels and first.extensions[0] is first.docks["notes"]
+    assert first.docks["notes"].toggleViewAction() in first.panels_menu.actions()
+    first.docks["notes"].setVisible(False)
+    first.close()
+    second = MainWindow(extensions=[install])
+    qtbot.addWidget(second)
+    second.show()
+    assert not second.docks["notes"].isVisible()
+    second.reset_layout()
+    assert second.docks["notes"].isVisible()
+    second.close()

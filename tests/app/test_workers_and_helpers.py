@@ -8,10 +8,13 @@ import numpy as np
 import pytest
 
 from app.channel_text import channel_list, parse_channels
-from app.model import Workbench
+from app.model import Analysis, Workbench, noise_rate_grid
 from app.trace_data import Block, step_for, visible_envelope
 from app.workers import Runner
 from core.errors import RecordingError
+from core.filtering import design_bandpass
+from core.params import FilterParams
+from core.rice import sampled_crossing_rate
 from core.progress import check, report
 
 
@@ -102,3 +105,19 @@ def test_model_emits_only_on_change():
     assert seen == [(0.0, 2.0)]
     with pytest.raises(ValueError, match="threshold unit must be one of"):
         bench.set_unit("volts")
+
+
+def test_noise_only_rates_follow_the_sampled_rice_form():
+    """Rice (1944/45), sampled-data form; check values from ../shared/CHECKS.md section 3:
+    forward-backward order-3 Butterworth 300-6000 Hz at 30 kHz gives 30.82 /s at 3 sigma and
+    0.828 /s at 4 sigma (the continuous form overstates them: 37.37 and 1.128 /s)."""
+    sos = design_bandpass(FilterParams(low_hz=300.0, high_hz=6000.0, order=3), 30000.0)
+    bench = Workbench()
+    bench.analysis = Analysis(sos=sos)
+    bench.analysis.noise_grid = noise_rate_grid(sos, 30000.0, "negative")
+    rates = bench.noise_rates(np.array([3.0, 4.0, 4.37]))
+    np.testing.assert_allclose(rates[:2], [30.82, 0.828], rtol=0.005)
+    np.testing.assert_allclose(rates[2], sampled_crossing_rate(sos, 30000.0, 4.37), rtol=0.005)
+    both = noise_rate_grid(sos, 30000.0, "both")
+    np.testing.assert_allclose(np.exp(both[1]) / np.exp(bench.analysis.noise_grid[1]), 2.0)
+    assert bench.noise_rates(np.array([np.inf]))[0] == 0.0

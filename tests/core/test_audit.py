@@ -146,6 +146,8 @@ def test_pair_view_report_and_csv(world, audited, tmp_path):
     window = view.spikes_between(2.0, 4.0)
     assert np.all((window["imported"][0] >= 2.0) & (window["imported"][0] < 4.0))
     assert pair_view(res, u).imported.waveforms.shape[0] == 0
+    best = res.best_match(u)
+    assert res.fresh_quality(best)["n_events"] == len(fresh.train(best)[0]) == len(view.fresh.times_s)
     html = audit_report_html(res)
     assert html.count('class="unit"') == len(res.imported_ids) and CAUTION in html
     assert "http" not in html.replace("http://www.w3.org/2000/svg", "") and "<script" not in html
@@ -166,7 +168,8 @@ def test_separation_from_time_windows_matches_all_events(world, audited):
     # isolation distance and L-ratio stay close (the groups here hold about twice as many)
     for u in full.imported_ids:
         a, b = full.row(int(u)), sampled.row(int(u))
-        assert a["n_events"] == b["n_events"] and a["contamination"] == b["contamination"] or np.isnan(a["contamination"])
+        assert a["n_events"] == b["n_events"] and a["isi_violations"] == b["isi_violations"]
+        assert a["snr"] == b["snr"]                       # every other number uses all events
         if len(trains[int(u)]) >= 150 and not np.isnan(a["isolation_distance"]):
             assert b["isolation_distance"] == pytest.approx(a["isolation_distance"], rel=0.15)
             assert b["l_ratio"] == pytest.approx(a["l_ratio"], abs=0.05)

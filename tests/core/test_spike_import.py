@@ -1,6 +1,7 @@
 """Importing spike trains: every layout read back exactly, bad and hostile files refused with
 clear messages (invented data)."""
 
+import zipfile
 from datetime import datetime, timezone
 
 import h5py
@@ -33,6 +34,12 @@ def test_csv_seconds_comments_and_extra_columns(tmp_path):
     expect(s)
     assert s.unit_ids.tolist() == [1, 3, 7] and s.source == "a.csv"
     np.testing.assert_allclose(s.train(3), [0.10, 0.25])
+
+
+def test_csv_with_byte_order_mark_and_crlf(tmp_path):
+    rows = "".join(f"{u},{t}\r\n" for u, t in zip(UNITS, TIMES))
+    (tmp_path / "a.csv").write_bytes(("\ufeffunit,time_s\r\n" + rows).encode("utf-8"))
+    expect(load_spikes(tmp_path / "a.csv"))
 
 
 def test_csv_samples_and_milliseconds(tmp_path):
@@ -188,6 +195,14 @@ def test_npz_hostile_and_broken(tmp_path):
     (tmp_path / "cut.npz").write_bytes(raw[:len(raw) // 2])
     with pytest.raises(SpikeFileError, match="readable .npz"):
         load_spikes(tmp_path / "cut.npz")
+    # a member whose header claims 10^12 values (8 TB) in a file of a few hundred bytes
+    np.save(tmp_path / "t.npy", np.zeros(4))
+    raw = (tmp_path / "t.npy").read_bytes().replace(b"(4,)", b"(1000000000000,)")
+    with zipfile.ZipFile(tmp_path / "bomb.npz", "w") as zf:
+        zf.writestr("unit.npy", raw)
+        zf.writestr("time_s.npy", (tmp_path / "t.npy").read_bytes())
+    with pytest.raises(SpikeFileError, match="fit its size"):
+        load_spikes(tmp_path / "bomb.npz")
     np.savez(tmp_path / "rate.npz", unit=np.array([1]), sample=np.array([5]), rate_hz=np.array([-3.0]))
     with pytest.raises(SpikeFileError, match="rate_hz"):
         load_spikes(tmp_path / "rate.npz")

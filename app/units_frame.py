@@ -1,0 +1,190 @@
+"""Adds the unit work to the window: panels in docks, the Units and Edit menus, session items.
+
+``install_units(window)`` is the only entry point; it sets ``window.units`` (the
+:class:`~app.sorting_controller.SortingController`, whose ``files`` is the
+:class:`~app.session_flow.SessionFlow`) and ``window.unit_panels``.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+from typing import Callable
+
+from PySide6.QtCore import Qt
+from PySide6.QtGui import QAction, QKeySequence
+from PySide6.QtWidgets import QDialog, QMenu
+
+from core.errors import RigsideError
+from core.sorting import LABELS
+from .dialogs.unit_dialogs import ClusterDialog, LimitsDialog, NoteDialog, PartsDialog, spin_count
+from .panels.unit_plane import ClusterPlanePanel
+from .panels.unit_plots import UnitPlotsPanel
+from .panels.units import UnitListPanel
+from .session_flow import SessionFlow
+from .sorting_controller import SortingController
+
+UNIT_LIST_WIDTH = 700
+UNIT_PLOTS_HEIGHT = 560
+LABEL_KEYS = ("Alt+1", "Alt+2", "Alt+3", "Alt+4")
+
+
+def install_units(window) -> SortingController:
+    """Create the controller, the unit panels, menus and shortcuts on ``window``."""
+    from .window import settings
+
+    ctl = SortingController(window)
+    ctl.files = SessionFlow(ctl, Path(settings().fileName()).parent / "autosave")
+    window.units = ctl
+    bench, runner = window.bench, window.runner
+    right, bottom = Qt.DockWidgetArea.RightDockWidgetArea, Qt.DockWidgetArea.BottomDockWidgetArea
+    unit_list = UnitListPanel(bench, runner, ctl)
+    plots = UnitPlotsPanel(bench, runner, ctl)
+    plane = ClusterPlanePanel(bench, runner, ctl)
+    docks = [window.add_panel(unit_list, right, tab_with=window.docks.get("threshold")),
+             window.add_panel(plots, bottom, tab_with=window.docks.get("waveforms")),
+             window.add_panel(plane, bottom, tab_with=window.docks.get("features"))]
+    window.unit_panels = {"list": unit_list, "plots": plots, "plane": plane}
+
+    sized = []
+
+    def show_unit_docks() -> None:
+        if ctl.sorting is None:
+            return
+        for d in docks:
+            d.show()
+            d.raise_()
+        if not sized:   # room for the units the first time there are some; later the user's layout stays
+            sized.append(True)
+            window.resizeDocks([docks[0]], [UNIT_LIST_WIDTH], Qt.Orientation.Horizontal)
+            window.resizeDocks([docks[1]], [UNIT_PLOTS_HEIGHT], Qt.Orientation.Vertical)
+    ctl.sorting_replaced.connect(show_unit_docks)
+    _build_menus(window, ctl, unit_list, plane)
+    return ctl
+
+
+def _build_menus(win, ctl: SortingController, unit_list: UnitListPanel, plane: ClusterPlanePanel) -> None:
+    actions = win.actions_by_name
+    bar = win.menuBar()
+
+    def menu_holding(name: str) -> QMenu | None:
+        a = actions.get(name)
+        return next((m for m in bar.findChildren(QMenu) if a is not None and a in m.actions()), None)
+
+    def act(name: str, text: str, slot: Callable, keys=(), tip: str = "", menu=None, before=None) -> QAction:
+        a = QAction(text, win)
+        a.setShortcuts([QKeySequence(k) for k in keys])
+        if tip:
+            a.setStatusTip(tip)
+            a.setToolTip(tip)
+        a.triggered.connect(lambda *_: slot())
+        win.addAction(a)
+        if menu is not None:
+            menu.insertAction(before, a) if before is not None else menu.addAction(a)
+        actions[name] = a
+        return a
+
+    files = ctl.files
+    file_menu = menu_holding("quit")
+    quit_action = actions.get("quit")
+    if file_menu is not None:
+        act("open_session", "Open a &session…", files.choose_and_open, ["Ctrl+Shift+O"], menu=file_menu,
+            before=quit_action)
+        act("save_session", "&Save the session", files.save, [QKeySequence.StandardKey.Save], menu=file_menu,
+            before=quit_action)
+        act("save_session_as", "Save the session &as…", files.save_as, ["Ctrl+Shift+S"], menu=file_menu,
+            before=quit_action)
+        file_menu.insertSeparator(quit_action)
+
+    edit = QMenu("&Edit", win)
+    view_menu = menu_holding("zoom_in")
+    bar.insertMenu(view_menu.menuAction(), edit) if view_menu is not None else bar.addMenu(edit)
+    undo = act("undo", "Undo", ctl.undo, [QKeySequence.StandardKey.Undo], menu=edit)
+    redo = act("redo", "Redo", ctl.redo, [QKeySequence.StandardKey.Redo, "Ctrl+Y"], menu=edit)
+    stack = ctl.undo_stack
+    for a, can, text_changed, word in ((undo, stack.canUndoChanged, stack.undoTextChanged, "Undo"),
+                                       (redo, stack.canRedoChanged, stack.redoTextChanged, "Redo")):
+        a.setEnabled(False)
+        can.connect(a.setEnabled)
+        text_changed.connect(lambda t, a=a, w=word: a.setText(f"{w}: {t}" if t else w))
+
+    units = QMenu("&Units", win)
+    help_menu = menu_holding("about")
+    bar.insertMenu(help_menu.menuAction(), units) if help_menu is not None else bar.addMenu(units)
+
+    def need(n: int, what: str) -> list[int] | None:
+        sel = ctl.selection
+        if len(sel) < n:
+            win.show_error(f"Cannot {what}", f"{what} needs {n} selected unit{'s' if n > 1 else ''}, got {len(sel)}")
+            return None
+        return sel
+
+    def cluster() -> None:
+        can_limit = False
+        try:
+            events, _, _ = ctl.current_detection()
+            can_limit = ctl.same_events(events)
+        except RigsideError:  # ctl.cluster below shows the message
+            pass
+        if win.interactive:
+            dialog = ClusterDialog(ctl.group_name(int(win.bench.group)), can_limit, win)
+            if dialog.exec() != QDialog.DialogCode.Accepted:
+                return
+            groups = [int(win.bench.group)] if dialog.only_group.isChecked() else None
+            ctl.cluster(spin_count(dialog.k), groups)
+        else:
+            ctl.cluster()
+
+    def recluster() -> None:
+        sel = need(1, "recluster a unit")
+        if sel:
+            dialog = PartsDialog(sel[0], win)
+            if dialog.exec() == QDialog.DialogCode.Accepted:
+                ctl.recluster(sel[0], spin_count(dialog.k))
+
+    def note() -> None:
+        sel = need(1, "write a note")
+        if sel:
+            dialog = NoteDialog(sel[0], ctl.sorting.unit(sel[0]).note, win)
+            if dialog.exec() == QDialog.DialogCode.Accepted:
+                ctl.set_note(sel[0], dialog.text.toPlainText())
+
+    def limits() -> None:
+        dialog = LimitsDialog(ctl.limits, win)
+        if dialog.exec() == QDialog.DialogCode.Accepted:
+            ctl.limits = dialog.values()
+            unit_list.set_limits_text()
+            ctl.metrics_changed.emit()
+
+    def step_unit(step: int) -> None:
+        view = unit_list.table
+        n = unit_list.proxy.rowCount()
+        if n == 0:
+            return
+        current = view.currentIndex().row() if view.currentIndex().isValid() else -1
+        unit_list.select_rows([(current + step) % n])
+        view.setCurrentIndex(unit_list.proxy.index((current + step) % n, 0))
+
+    act("cluster", "&Cluster the detection…", cluster, ["Ctrl+K"], menu=units,
+        tip="First pass: a Gaussian mixture per channel group on the events at the current threshold")
+    units.addSeparator()
+    context = [
+        act("split_outline", "Split the selected unit by an &outline", lambda: plane.start_outline("split"),
+            ["Ctrl+D"], menu=units, tip="Draw in the cluster plane around the events that leave the unit"),
+        act("choose_outline", "Choose &events by an outline", lambda: plane.start_outline("choose"),
+            ["Ctrl+E"], menu=units),
+        act("merge", "&Merge the selected units",
+            lambda: (sel := need(2, "merge")) and ctl.merge(sel), ["Ctrl+M"], menu=units),
+        act("recluster", "&Recluster the selected unit…", recluster, ["Ctrl+Shift+K"], menu=units),
+        act("note", "&Note on the selected unit…", note, ["Ctrl+Shift+N"], menu=units),
+    ]
+    label_menu = units.addMenu("&Label the selected units")
+    for label, keys in zip(LABELS, LABEL_KEYS):
+        context.append(act(f"label_{label}", f"as {label}",
+                           lambda label=label: (sel := need(1, "label")) and ctl.relabel(sel, label),
+                           [keys], menu=label_menu))
+    units.addSeparator()
+    act("next_unit", "Select the next unit in the list", lambda: step_unit(1), ["Alt+Down"], menu=units)
+    act("previous_unit", "Select the previous unit in the list", lambda: step_unit(-1), ["Alt+Up"], menu=units)
+    act("limits", "Quality &limits…", limits, menu=units)
+    for a in context:
+        unit_list.table.addAction(a)
