@@ -15,6 +15,7 @@ from pathlib import Path
 
 from PySide6.QtCore import QEvent, QObject, QTimer
 from PySide6.QtWidgets import QApplication, QFileDialog, QMessageBox
+from shiboken6 import isValid
 
 from core.errors import RigsideError, SessionError
 from core.session import RecordingChanged, RecordingMoved, autosave_path, load_session, save_session, snapshot
@@ -76,7 +77,8 @@ class SessionFlow(QObject):
         self.timer.start()
         controller.sorting_replaced.connect(self._on_replaced)
         controller.units_changed.connect(self._on_changed)
-        controller.undo_stack.cleanChanged.connect(lambda *_: self.update_title())
+        self.clean = True
+        controller.undo_stack.cleanChanged.connect(self._on_clean)
         self.window.bench.recording_changed.connect(self._on_recording_changed)
         self.window.installEventFilter(self)
 
@@ -117,12 +119,17 @@ class SessionFlow(QObject):
             self.autosaver.mark_changed()
         self.update_title()
 
+    def _on_clean(self, clean: bool) -> None:
+        self.clean = bool(clean)
+        if isValid(self.window):      # the stack also says so while the window is being destroyed
+            self.update_title()
+
     def update_title(self) -> None:
         s = self.ctl.session
         if s is None:
             return
         name = self.path.name if self.path is not None else "unsaved units"
-        dirty = "" if self.ctl.undo_stack.isClean() and self.path is not None and not self.recovered else " *"
+        dirty = "" if self.clean and self.path is not None and not self.recovered else " *"
         rec = Path(s.recording.path).name
         self.window.setWindowTitle(f"rigside — {rec} — {name}{dirty}")
 

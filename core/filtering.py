@@ -16,6 +16,7 @@ import numba
 import numpy as np
 from scipy import signal
 
+from .errors import RecordingError
 from .params import FilterParams
 from .recording import Recording
 
@@ -122,9 +123,10 @@ class BandPass:
         self.params = params
         self.sos = design_bandpass(params, recording.rate_hz)
         self.margin = settle_samples(self.sos)
-        if recording.n_samples < 2:
-            from .errors import RecordingError
-            raise RecordingError(f"recording must hold at least 2 samples to filter, got {recording.n_samples}")
+        if recording.n_samples < self.margin:
+            raise RecordingError(
+                f"recording must be at least {self.margin} samples ({1000 * self.margin / recording.rate_hz:.1f} ms) "
+                f"long for a {params.low_hz:g}-{params.high_hz:g} Hz band-pass to settle, got {recording.n_samples}")
 
     def read(self, start: int, stop: int, channels: np.ndarray | None = None) -> np.ndarray:
         """Filtered microvolts for samples ``[start, stop)``, float32 (samples x channels)."""

@@ -244,15 +244,24 @@ class HDF5Recording(Recording):
             raise RecordingError(f"recording file must exist, got {str(path)!r}") from None
         except OSError as exc:
             raise RecordingError(f"HDF5 recording must be a readable HDF5 file, got {str(path)!r}: {exc}") from None
+        try:
+            self._setup(dataset, rate_hz, gain_uv, groups)
+        except RecordingError:
+            self._file.close()
+            raise
+        except (OSError, RuntimeError, KeyError, ValueError, TypeError) as exc:
+            self._file.close()
+            raise RecordingError(f"HDF5 recording must be a readable HDF5 file, got {str(path)!r}: {exc}") from None
+
+    def _setup(self, dataset, rate_hz, gain_uv, groups) -> None:
+        path = self.path
         name = dataset or _first_2d_dataset(self._file)
         if name is None or name not in self._file or not isinstance(self._file[name], h5py.Dataset):
-            self._file.close()
             raise RecordingError(f"HDF5 recording must hold a 2-D dataset (samples x channels), "
                                  f"got none named {dataset!r} in {str(path)!r}" if dataset else
                                  f"HDF5 recording must hold a 2-D dataset (samples x channels), got none in {str(path)!r}")
         self._ds = self._file[name]
         if self._ds.ndim != 2 or self._ds.dtype.kind not in "iuf":
-            self._file.close()
             raise RecordingError(f"HDF5 recording dataset must be 2-D numeric (samples x channels), "
                                  f"got shape {self._ds.shape} of {self._ds.dtype}")
         attrs = self._ds.attrs
@@ -261,31 +270,27 @@ class HDF5Recording(Recording):
                         dtype="float32", gain_uv=float(gain_uv if gain_uv is not None else attrs.get("gain_uv", 1.0)),
                         offset_uv=float(attrs.get("offset_uv", 0.0)))
         if rate is None:
-            self._file.close()
             raise RecordingError(f"HDF5 recording must carry a 'rate_hz' attribute (or give --rate), got none in {str(path)!r}")
-        try:
-            layout.validate()
-        except RecordingError:
-            self._file.close()
-            raise
+        layout.validate()
         self.layout = layout
         self.n_samples, self.n_channels = (int(s) for s in self._ds.shape)
         if self.n_samples == 0:
-            self._file.close()
             raise RecordingError(f"HDF5 recording must hold at least one sample, got 0 in {str(path)!r}")
         self.rate_hz = layout.rate_hz
         self.float_data = self._ds.dtype.kind == "f"
         if groups is None and "channel_group" in attrs:
             cg = np.asarray(attrs["channel_group"]).astype(int)
             if cg.shape != (self.n_channels,):
-                self._file.close()
                 raise RecordingError(f"attribute channel_group must hold one group per channel ({self.n_channels}), "
                                      f"got shape {cg.shape}")
             groups = [np.flatnonzero(cg == g).tolist() for g in np.unique(cg)]
         self._init_groups(groups, None)
 
     def read_stored(self, start, stop, channels=None):
-        block = self._ds[start:stop]
+        try:
+            block = self._ds[start:stop]
+        except (OSError, RuntimeError) as exc:
+            raise RecordingError(f"HDF5 recording must be readable at samples {start}..{stop}, got {exc}") from None
         return block if channels is None else block[:, channels]
 
     def close(self) -> None:

@@ -2,6 +2,8 @@
 
 from __future__ import annotations
 
+import threading
+
 import numpy as np
 import pytest
 from PySide6.QtCore import Qt
@@ -11,7 +13,7 @@ from app.dialogs.about import about_text
 from app.dialogs.raw_layout import RawLayoutDialog
 from app.screenshot import capture, colour_share, distinct_colours, pixels
 from app.window import MainWindow, run_window
-from app import palette
+from app import jobs, palette
 
 
 def write_noise(path, seconds: float, channels: int, rate: float = 30000.0, meta: bool = True) -> None:
@@ -48,24 +50,32 @@ def test_a_bad_file_shows_a_message_and_the_window_stays_usable(window, tmp_path
     assert window.analysis_outcome == "done"
 
 
-def test_cancel_a_running_detection(window, tmp_path, qtbot):
+def test_cancel_a_running_detection(window, tmp_path, qtbot, monkeypatch):
     rec = tmp_path / "long.bin"
     write_noise(rec, 30.0, 8)
-    with qtbot.waitSignal(window.runner.progressed, timeout=30000):
-        assert window.open_path(str(rec))
-    assert window.runner.busy("analysis")
-    window.task_status.cancel_button.click()
-    assert window.wait_idle(30)
-    assert window.analysis_outcome == "cancelled"
-    assert window.bench.events is None
-    assert "cancelled" in window.statusBar().currentMessage()
-    # detection can be started again and finishes
-    window.start_detection()
-    with qtbot.waitSignal(window.runner.progressed, timeout=30000):
-        pass
-    window.runner.cancel("analysis")
-    assert window.wait_idle(30)
-    assert window.analysis_outcome == "cancelled"
+    gate = threading.Event()
+    real = jobs.analyse
+
+    def held(*args, progress=None, cancel=None):
+        def report_and_hold(fraction, message):
+            progress(fraction, message)
+            gate.wait(20)  # the job waits at each report until the test has pressed cancel
+
+        return real(*args, progress=report_and_hold, cancel=cancel)
+
+    monkeypatch.setattr(jobs, "analyse", held)
+    for start in (lambda: window.open_path(str(rec)), window.start_detection):
+        gate.clear()
+        with qtbot.waitSignal(window.runner.progressed, timeout=30000):
+            start()
+        assert window.runner.busy("analysis") and window.task_status.cancel_button.isVisible()
+        window.task_status.cancel_button.click()
+        gate.set()
+        assert window.wait_idle(30)
+        assert window.analysis_outcome == "cancelled"
+        assert window.bench.events is None
+        assert "cancelled" in window.statusBar().currentMessage()
+        assert not window.task_status.cancel_button.isVisible()
 
 
 def test_raw_file_without_metadata_asks_for_its_layout(window, tmp_path, monkeypatch):

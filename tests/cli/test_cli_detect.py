@@ -63,6 +63,7 @@ def test_raw_options_without_metadata(tmp_path):
     (b"\x00" * 8000, ["--channels", "4", "--rate", "30000", "--dead-time-ms", "500"], "dead time"),
     (b"\x00" * 8000, ["--channels", "4", "--rate", "30000", "--dtype", "float32", "--group-size", "0"], "group size"),
     (b"\x00" * 8000, [], "metadata file"),
+    (b"\x00" * 800, ["--channels", "4", "--rate", "30000"], "band-pass to settle"),
 ])
 def test_bad_input_exit_2_with_message_and_nothing_written(tmp_path, capsys, make, args, msg):
     rec = tmp_path / "r.bin"

@@ -72,7 +72,11 @@ def test_common_reference_removes_shared_signal(tmp_path):
     assert referenced.std() < 0.3 * plain.std()
 
 
-def test_very_short_recording(tmp_path):
+def test_recording_shorter_than_the_filter_needs(tmp_path):
+    from core.errors import RecordingError
     rec = write_raw(tmp_path / "r.bin", gaussian(50, 2))
-    y = BandPass(rec, FilterParams()).read(0, 50)
-    assert y.shape == (50, 2) and np.isfinite(y).all()
+    with pytest.raises(RecordingError, match="long for a 300-6000 Hz band-pass to settle, got 50"):
+        BandPass(rec, FilterParams())
+    rec = write_raw(tmp_path / "s.bin", gaussian(800, 2))
+    y = BandPass(rec, FilterParams()).read(0, 800)
+    assert y.shape == (800, 2) and np.isfinite(y).all()

@@ -128,3 +128,26 @@ def test_read_range_checked(tmp_path):
     rec = write_raw(tmp_path / "r.bin", np.zeros((10, 1), np.int16))
     with pytest.raises(RecordingError, match="read range"):
         rec.read(5, 11)
+
+
+def test_truncated_and_hostile_hdf5(tmp_path):
+    data = np.zeros((5000, 4), np.int16)
+    with h5py.File(tmp_path / "r.h5", "w") as f:
+        f.create_dataset("x", data=data).attrs["rate_hz"] = 30000.0
+    raw = (tmp_path / "r.h5").read_bytes()
+    (tmp_path / "cut.h5").write_bytes(raw[: len(raw) // 3])
+    with pytest.raises(RecordingError, match="readable HDF5|2-D dataset"):
+        open_recording(tmp_path / "cut.h5").read(0, 5000)
+    with h5py.File(tmp_path / "text.h5", "w") as f:
+        f.create_dataset("x", data=np.array([[b"a", b"b"]] * 10)).attrs["rate_hz"] = 30000.0
+    with pytest.raises(RecordingError, match="numeric"):
+        open_recording(tmp_path / "text.h5")
+    with h5py.File(tmp_path / "cg.h5", "w") as f:
+        ds = f.create_dataset("x", data=data)
+        ds.attrs.update(rate_hz=30000.0, channel_group=[0, 1])
+    with pytest.raises(RecordingError, match="one group per channel"):
+        open_recording(tmp_path / "cg.h5")
+    with h5py.File(tmp_path / "rate.h5", "w") as f:
+        f.create_dataset("x", data=data).attrs["rate_hz"] = float("nan")
+    with pytest.raises(RecordingError, match="sampling rate"):
+        open_recording(tmp_path / "rate.h5")
