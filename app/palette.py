@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import pyqtgraph as pg
 from PySide6.QtCore import Qt
+from PySide6.QtWidgets import QGraphicsItem
 
 BLACK = (0, 0, 0)
 ORANGE = (230, 159, 0)
@@ -54,7 +55,11 @@ def style_plot(plot: pg.PlotItem, x_label: str, y_label: str) -> None:
     plot.setLabel("left", y_label)
     plot.showGrid(x=True, y=True, alpha=0.15)
     for name in ("bottom", "left"):
-        plot.getAxis(name).setTextPen(FOREGROUND)
+        axis = plot.getAxis(name)
+        axis.setTextPen(FOREGROUND)
+        # painted once into a pixmap until its range changes: a moving line elsewhere in the
+        # plot then costs a blit, not a redraw of every tick label
+        axis.setCacheMode(QGraphicsItem.CacheMode.DeviceCoordinateCache)
 
 
 def hex_colour(colour) -> str:

@@ -21,6 +21,8 @@ from core.errors import RigsideError, SessionError
 from core.session import RecordingChanged, RecordingMoved, autosave_path, load_session, save_session, snapshot
 from core.session_recovery import Autosaver, find_states
 
+from .cli_common import check_output
+
 AUTOSAVE_INTERVAL_S = 5.0
 AUTOSAVE_CHECK_MS = 1500
 FILE_SLOT = "session_file"
@@ -49,6 +51,12 @@ def _autosave_job(autosaver: Autosaver, session, force: bool, progress=None, can
         raise SessionError(f"autosave file must be writable, got {exc}") from None
 
 
+def default_name(session) -> Path:
+    """Suggested session file: beside the recording, never the recording itself."""
+    rec = Path(session.recording.path)
+    return rec.with_name(rec.stem + ".session.h5")
+
+
 def untitled_path(folder: Path, recording) -> Path:
     """Where a never-saved session of ``recording`` autosaves (``<this>.autosave.h5``)."""
     stem = "".join(c if c.isalnum() or c in "-_" else "_" for c in Path(recording.path).stem)[:60]
@@ -68,6 +76,8 @@ class SessionFlow(QObject):
         self.autosaver: Autosaver | None = None
         self.recovered = False
         self._file_job = None
+        self._written: tuple[object, int] | None = None   # (sorting, revision) last sent to disk
+        self._last_autosave = -float("inf")
         self._pending_open = False
         self._incoming_path: Path | None = None
         self.ask = self._ask
@@ -75,6 +85,7 @@ class SessionFlow(QObject):
         self.timer = QTimer(self, interval=AUTOSAVE_CHECK_MS)
         self.timer.timeout.connect(self.autosave_if_due)
         self.timer.start()
+        controller.replacing.connect(self.save_now_if_dirty)
         controller.sorting_replaced.connect(self._on_replaced)
         controller.units_changed.connect(self._on_changed)
         self.clean = True
@@ -141,26 +152,34 @@ class SessionFlow(QObject):
 
     # ---- autosave ----------------------------------------------------------------------------
     def autosave_if_due(self, force: bool = False) -> bool:
-        """Start an autosave when there are unsaved changes and the interval has passed."""
+        """Start an autosave (off the GUI thread) when there are unsaved changes and the
+        autosaver's interval has passed since the last one."""
         s, saver = self.ctl.session, self.autosaver
-        if s is None or saver is None or not saver.dirty or self.window.runner.busy(FILE_SLOT):
+        if s is None or saver is None or self.window.runner.busy(FILE_SLOT):
             return False
-        revision = s.sorting.revision
+        self._remark(s, saver)
+        now = saver.clock()
+        if not saver.dirty or (not force and now - self._last_autosave < saver.interval_s):
+            return False
+        self._last_autosave = now
+        self._written = (s.sorting, s.sorting.revision)
         self._file_job = weakref.ref(self.window.runner.submit(
-            FILE_SLOT, "Autosaving", _autosave_job, saver, snapshot(s), force,
-            on_done=lambda out: self._autosaved(saver, s, revision, out)))
+            FILE_SLOT, "Autosaving", _autosave_job, saver, snapshot(s), True,
+            on_done=lambda out: self.window.statusBar().showMessage(f"Autosaved to {out.name}", 4000)))
         return True
 
-    def _autosaved(self, saver: Autosaver, session, revision: int, out) -> None:
-        if out is not None and session.sorting.revision != revision:
-            saver.mark_changed()   # changed while the snapshot was written
-        if out is not None:
-            self.window.statusBar().showMessage(f"Autosaved to {out.name}", 4000)
+    def _remark(self, session, saver: Autosaver) -> None:
+        """Mark changes made while the last snapshot was being written (the writer cleared the flag)."""
+        if self._written is not None and self._written[0] is session.sorting \
+                and self._written[1] != session.sorting.revision:
+            saver.mark_changed()
 
     def save_now_if_dirty(self) -> None:
-        """Write the autosave at once (closing the window or another recording)."""
+        """Write the autosave at once (closing the window, replacing the session)."""
         s, saver = self.ctl.session, self.autosaver
         self._wait_file_job()
+        if s is not None and saver is not None:
+            self._remark(s, saver)
         if s is not None and saver is not None and saver.dirty:
             try:
                 _autosave_job(saver, snapshot(s), True)
@@ -177,8 +196,7 @@ class SessionFlow(QObject):
         if s is not None and rec is not None and Path(rec.path).resolve() == Path(s.recording.path).resolve():
             return
         if s is not None:
-            self.save_now_if_dirty()
-            self.ctl.attach(None)
+            self.ctl.attach(None)         # its unsaved changes go to its autosave first
         if rec is not None and not self._pending_open:
             QTimer.singleShot(0, lambda r=rec: self._offer_untitled(r))
 
@@ -200,13 +218,17 @@ class SessionFlow(QObject):
             self.window.show_error("Nothing to save", "saving needs units, got none (cluster first)")
             return False
         if path is None:
-            path = self.path or self.pick_file("Save the session", str(Path(s.recording.path).with_suffix(".h5")),
-                                               SESSION_FILTER, save=True)
+            path = self.path or self.pick_file("Save the session", str(default_name(s)), SESSION_FILTER, save=True)
         if not path:
             return False
-        path = Path(path)
+        try:
+            path = check_output(path, s.recording.path, suffixes=(".h5",))
+        except RigsideError as exc:
+            self.window.show_error("Cannot save the session", str(exc))
+            return False
         self._wait_file_job()
         index, revision, old_autosave = self.ctl.undo_stack.index(), s.sorting.revision, self.autosave_file
+        self._written = (s.sorting, revision)
         self._file_job = weakref.ref(self.window.runner.submit(
             FILE_SLOT, "Saving the session", _save_job, path, snapshot(s),
             on_done=lambda out: self._saved(s, out, index, revision, old_autosave)))
@@ -216,7 +238,7 @@ class SessionFlow(QObject):
         s = self.ctl.session
         if s is None:
             return self.save()
-        start = str(self.path or Path(s.recording.path).with_suffix(".h5"))
+        start = str(self.path or default_name(s))
         path = self.pick_file("Save the session as", start, SESSION_FILTER, save=True)
         return self.save(path) if path else False
 

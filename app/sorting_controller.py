@@ -72,11 +72,13 @@ def _metrics_job(events, assignments, features, threshold, mp, units, progress=N
 class SortingController(QObject):
     """The window's sorting session and everything done to it.
 
-    Qt signals: ``sorting_replaced()`` (a new sorting, or none), ``units_changed(change)``
+    Qt signals: ``replacing()`` just before the held session is let go, ``sorting_replaced()``
+    (a new sorting, or none), ``units_changed(change)``
     after every step, undo or redo (a :class:`core.sorting.Change`), ``metrics_changed()``,
     ``selection_changed()`` (units), ``events_selected()`` (events chosen by an outline).
     """
 
+    replacing = Signal()
     sorting_replaced = Signal()
     units_changed = Signal(object)
     metrics_changed = Signal()
@@ -95,7 +97,7 @@ class SortingController(QObject):
         self.limits = list(DEFAULT_LIMITS)
         self.selection: list[int] = []
         self.selected_events = np.zeros(0, dtype=np.int64)
-        self._stale: set[int] = set()
+        self._stale: dict[int, int] = {}   # unit -> sorting revision when its numbers went stale
 
     # ---- reading ----------------------------------------------------------------------------
     @property
@@ -144,18 +146,20 @@ class SortingController(QObject):
         """Hold ``session`` (or nothing): a fresh undo history, selection and quality numbers."""
         old = self.sorting
         if old is not None:
+            self.replacing.emit()
             old.changed.disconnect(self._on_sorting_changed)
         self.runner.cancel(METRICS_SLOT)
         self.undo_stack.clear()
         self.session = session
         self.metrics = {}
+        self._stale = {}
         self.selection = []
         self.selected_events = np.zeros(0, dtype=np.int64)
         self._core_stack = None
         if session is not None:
             session.sorting.changed.connect(self._on_sorting_changed)
             self._core_stack = UndoStack(session.sorting)
-            self._stale = set(session.sorting.unit_ids())
+            self._stale = {u: session.sorting.revision for u in session.sorting.unit_ids()}
             self._refresh_metrics()
         self.sorting_replaced.emit()
         self.selection_changed.emit()
@@ -328,7 +332,9 @@ class SortingController(QObject):
         units = self.sorting.units
         for u in change.removed:
             self.metrics.pop(u, None)
-        self._stale |= {u for u in change.touched if u != NO_UNIT and u in units}
+        for u in change.members | change.added:     # labels and notes leave the numbers as they are
+            if u != NO_UNIT and u in units:
+                self._stale[u] = self.sorting.revision
         if len(self.selected_events):
             self.select_events(np.zeros(0, dtype=np.int64))
         if any(u not in units for u in self.selection):
@@ -343,7 +349,7 @@ class SortingController(QObject):
             return
         counts = sorting.counts()
         for u in [u for u in self._stale if counts.get(u, 0) == 0]:
-            self._stale.discard(u)
+            del self._stale[u]
             self.metrics.pop(u, None)
         if not self._stale:
             self.metrics_changed.emit()
@@ -362,6 +368,7 @@ class SortingController(QObject):
         for i, u in enumerate(table["unit"].tolist()):
             if u in units:
                 self.metrics[u] = {c: v[i] for c, v in table.items()}
-        if sorting.revision == revision:
-            self._stale -= set(table["unit"].tolist())
+        for u in table["unit"].tolist():
+            if self._stale.get(u, revision + 1) <= revision:
+                del self._stale[u]
         self.metrics_changed.emit()

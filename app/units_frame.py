@@ -23,7 +23,7 @@ from .panels.units import UnitListPanel
 from .session_flow import SessionFlow
 from .sorting_controller import SortingController
 
-UNIT_LIST_WIDTH = 700
+UNIT_LIST_WIDTH = 740
 UNIT_PLOTS_HEIGHT = 560
 LABEL_KEYS = ("Alt+1", "Alt+2", "Alt+3", "Alt+4")
 
@@ -99,7 +99,7 @@ def _build_menus(win, ctl: SortingController, unit_list: UnitListPanel, plane: C
     view_menu = menu_holding("zoom_in")
     bar.insertMenu(view_menu.menuAction(), edit) if view_menu is not None else bar.addMenu(edit)
     undo = act("undo", "Undo", ctl.undo, [QKeySequence.StandardKey.Undo], menu=edit)
-    redo = act("redo", "Redo", ctl.redo, [QKeySequence.StandardKey.Redo, "Ctrl+Y"], menu=edit)
+    redo = act("redo", "Redo", ctl.redo, [QKeySequence.StandardKey.Redo], menu=edit)
     stack = ctl.undo_stack
     for a, can, text_changed, word in ((undo, stack.canUndoChanged, stack.undoTextChanged, "Undo"),
                                        (redo, stack.canRedoChanged, stack.redoTextChanged, "Redo")):

@@ -29,6 +29,7 @@ from .panels.threshold import ThresholdPanel
 from .panels.traces import TracePanel
 from .panels.waveforms import WaveformPanel
 from .task_status import TaskStatus
+from .audit_frame import install_audit
 from .units_frame import install_units
 from .window_actions import build_actions
 from .workers import Runner
@@ -38,7 +39,7 @@ LAYOUT_VERSION = 1
 MAX_RECENT = 8
 ANALYSIS_LABEL = "Detecting events"
 
-EXTENSIONS: tuple[Callable[["MainWindow"], object], ...] = (install_units,)
+EXTENSIONS: tuple[Callable[["MainWindow"], object], ...] = (install_units, install_audit)
 """Installers run on every new window: each adds its panels, menus and actions."""
 
 
@@ -104,6 +105,8 @@ class MainWindow(QMainWindow):
         self.runner.error.connect(lambda label, msg: self.show_error(f"{label} failed", msg))
         self.actions_by_name = build_actions(self)
         self.extensions = [install(self) for install in (EXTENSIONS if extensions is None else extensions)]
+        for pid in ("threshold", "waveforms", "features"):  # the workbench's own tabs show first
+            self.docks[pid].raise_()
         self._default_state = self.saveState(LAYOUT_VERSION)
         if interactive:
             self._restore_layout()

@@ -50,11 +50,12 @@ class CorrelogramView(UnitView):
         for u in units:
             counts, edges = autocorrelogram(self.unit_times(u), bin_s, window_s)
             pa.addItem(step_curve(edges, counts, self.ctl.unit_colour(u), 1e3))
-        pa.setTitle("auto (shaded: ± refractory)", size="9pt")
+        pa.setTitle("auto", size="9pt")
         pc = self.cross.getPlotItem()
         if len(units) < 2:
-            pc.setTitle("cross: select two units", size="9pt")
-            self.status.setText(f"Bins of {bin_s * 1e3:g} ms up to ±{window_s * 1e3:g} ms.")
+            pc.setTitle("cross: select 2 units", size="9pt")
+            self.status.setText(f"Bins of {bin_s * 1e3:g} ms up to ±{window_s * 1e3:g} ms; shaded in auto: ± refractory "
+                                f"period.")
             return
         a, b = units[0], units[1]
         counts, edges = crosscorrelogram(self.unit_times(a), self.unit_times(b), bin_s, window_s)
@@ -62,6 +63,7 @@ class CorrelogramView(UnitView):
         pc.addItem(pg.PlotCurveItem(edges * 1e3, counts.astype(float), stepMode="center", fillLevel=0,
                                     brush=pg.mkBrush(*palette.GREY, 90), pen=palette.pen(palette.BLACK, 1.4)))
         pc.addItem(pg.InfiniteLine(0, angle=90, pen=palette.pen(palette.GREY, dash=True)))
-        pc.setTitle(f"cross: A = unit {a}, B = unit {b}", size="9pt")
-        self.status.setText(f"Bins of {bin_s * 1e3:g} ms up to ±{window_s * 1e3:g} ms. A dip at zero lag in the "
-                            f"cross-correlogram suggests one neuron split in two (a merge question).")
+        pc.setTitle(f"cross: A {a}, B {b}", size="9pt")
+        self.status.setText(f"Bins of {bin_s * 1e3:g} ms up to ±{window_s * 1e3:g} ms; shaded in auto: ± refractory "
+                            f"period. A dip at zero lag in the cross-correlogram suggests one neuron split in "
+                            f"two (a merge question).")

@@ -28,14 +28,14 @@ COLUMN_SPECS = (
     ("group", "group", 1, "", "channel group"),
     ("label", "label", 1, "", "single unit, multi-unit, reject or unreviewed"),
     ("events", "n_events", 1, "d", COLUMNS["n_events"]),
-    ("rate (Hz)", "rate_hz", 1, ".2f", COLUMNS["rate_hz"]),
-    ("contam. (%)", "contamination", 100, ".1f", COLUMNS["contamination"]),
+    ("rate Hz", "rate_hz", 1, ".2f", COLUMNS["rate_hz"]),
+    ("contam. %", "contamination", 100, ".1f", COLUMNS["contamination"]),
     ("iso. dist.", "isolation_distance", 1, ".1f", COLUMNS["isolation_distance"]),
     ("L-ratio", "l_ratio", 1, ".3g", COLUMNS["l_ratio"]),
     ("SNR", "snr", 1, ".1f", COLUMNS["snr"]),
-    ("missed (%)", "missed_fraction", 100, ".1f", COLUMNS["missed_fraction"]),
-    ("presence (%)", "presence_ratio", 100, ".0f", COLUMNS["presence_ratio"]),
-    ("drift (%)", "amplitude_change_fraction", 100, "+.1f", COLUMNS["amplitude_change_fraction"]),
+    ("missed %", "missed_fraction", 100, ".1f", COLUMNS["missed_fraction"]),
+    ("present %", "presence_ratio", 100, ".0f", COLUMNS["presence_ratio"]),
+    ("drift %", "amplitude_change_fraction", 100, "+.1f", COLUMNS["amplitude_change_fraction"]),
     ("note", "note", 1, "", "free-text note"),
 )
 METRIC_KEYS = tuple(spec[1] for spec in COLUMN_SPECS[5:12])
@@ -228,9 +228,12 @@ class UnitListPanel(Panel):
             return
         labels = [rec.label for rec in s.units.values()]
         done = sum(1 for u in s.units if u in self.ctl.metrics)
-        self.summary.setText(f"{len(labels)} units ({labels.count('single unit')} single, "
-                             f"{labels.count('multi-unit')} multi-unit, {labels.count('reject')} rejected, "
-                             f"{labels.count('unreviewed')} unreviewed); quality numbers for {done}.")
+        d = self.ctl.session.params.detect
+        made_at = f"{d.threshold_sigma:g} σ" if d.threshold_uv is None else f"{d.threshold_uv:g} µV"
+        self.summary.setText(f"{len(labels)} units from {len(s.data):,} events at {made_at} "
+                             f"({labels.count('single unit')} single, {labels.count('multi-unit')} multi-unit, "
+                             f"{labels.count('reject')} rejected, {labels.count('unreviewed')} unreviewed); "
+                             f"quality numbers for {done}.")
 
     def _on_table_selection(self, *_) -> None:
         if self._syncing:

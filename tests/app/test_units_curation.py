@@ -6,11 +6,13 @@ import math
 
 import numpy as np
 from PySide6.QtCore import Qt
+from PySide6.QtGui import QKeySequence
 
+from app.dialogs.unit_dialogs import ClusterDialog, LimitsDialog, PartsDialog, spin_count
 from app.panels.units import COLUMN_SPECS
 from core.clustering import NO_UNIT
 from core.sorting import AXIS_AMPLITUDE, AXIS_TIME, LABELS
-from core.unit_table_io import DEFAULT_LIMITS
+from core.unit_table_io import DEFAULT_LIMITS, Limit
 from tests.app.units_helpers import biggest_unit, click_data, cluster_demo, rectangle
 
 
@@ -54,6 +56,13 @@ def test_first_pass_fills_the_unit_list_with_quality_numbers_and_marks(demo_wind
                 assert reason == "" or reason in model._tooltip(r, lim.column)
     assert marked > 0, "the demo has small units whose numbers cross the default limits"
     assert "estimates" in win.unit_panels["list"].caution.text()
+    # limits are configurable: a demanding SNR limit marks every unit with an SNR
+    ctl.limits = [Limit("snr", "min", 1000.0)]
+    ctl.metrics_changed.emit()
+    snr = [model.text(r, column("snr")) for r in range(model.rowCount())]
+    assert all(t.startswith("! ") for t in snr if t != "—") and not all(t == "—" for t in snr)
+    ctl.limits = list(DEFAULT_LIMITS)
+    ctl.metrics_changed.emit()
     # sorting by a number puts undefined values last, in both directions
     panel = win.unit_panels["list"]
     c = column("isolation_distance")
@@ -106,6 +115,8 @@ def test_outline_split_in_the_cluster_plane_with_undo_and_redo(demo_window, qtbo
     assert new in list_units(win) and ctl.selection == [unit, new]
     undo, redo = win.actions_by_name["undo"], win.actions_by_name["redo"]
     assert undo.text() == f"Undo: Split unit {unit} by polygon" and undo.isEnabled()
+    assert QKeySequence(QKeySequence.StandardKey.Undo) in undo.shortcuts()
+    assert QKeySequence(QKeySequence.StandardKey.Redo) in redo.shortcuts()
     after = s.assignments.copy()
     undo.trigger()
     assert np.array_equal(s.assignments, before) and new not in list_units(win)
@@ -195,3 +206,21 @@ def test_recluster_one_unit_off_the_gui_thread(demo_window):
     assert win.actions_by_name["undo"].text() == "Undo: First-pass clustering"
     ctl.undo()
     assert np.array_equal(s.assignments, before)
+
+
+def test_unit_dialogs_return_what_was_entered(qtbot):
+    limits = LimitsDialog(list(DEFAULT_LIMITS))
+    qtbot.addWidget(limits)
+    limits.spins[0].setValue(0.2)
+    assert limits.values()[0] == Limit(DEFAULT_LIMITS[0].column, DEFAULT_LIMITS[0].kind, 0.2)
+    assert limits.values()[1:] == list(DEFAULT_LIMITS[1:])
+    cluster = ClusterDialog("bundle A", can_limit=False)
+    qtbot.addWidget(cluster)
+    assert spin_count(cluster.k) is None and cluster.k.text() == "automatic (BIC)"
+    cluster.k.setValue(3)
+    assert spin_count(cluster.k) == 3 and not cluster.only_group.isEnabled()
+    parts = PartsDialog(7)
+    qtbot.addWidget(parts)
+    assert spin_count(parts.k) is None
+    parts.k.setValue(2)
+    assert spin_count(parts.k) == 2

@@ -5,6 +5,7 @@ from __future__ import annotations
 import shutil
 
 import numpy as np
+from PySide6.QtCore import Qt
 
 from app import session_flow
 from app.screenshot import capture, colour_share, pixels
@@ -67,6 +68,11 @@ def test_quality_plots_show_the_selected_units(demo_window, qtbot, tmp_path):
         assert snips.shape[0] == min(counts[u], wf.per_unit.value())
         assert list(channels) == list(win.bench.recording.groups[group])
         assert np.abs(snips).max() > 0
+    # one colour per selected unit: the unit list's swatch and the plots use the same
+    model = win.unit_panels["list"].model
+    for u, colour in zip(pair, SELECTION_COLOURS):
+        swatch = model.data(model.index(model.row_of(u), 0), Qt.ItemDataRole.DecorationRole)
+        assert (swatch.red(), swatch.green(), swatch.blue()) == colour
     # the selection colours appear in the plots
     image = pixels(capture(plots, str(tmp_path / "plots.png")))
     for colour in SELECTION_COLOURS[:2]:
@@ -82,6 +88,8 @@ def test_save_then_reopen_the_session(demo_window, tmp_path):
     cluster_demo(win)
     unit = biggest_unit(ctl)
     assert ctl.relabel([unit], "single unit")
+    assert not ctl.files.save(win.bench.recording.path)     # never over the raw recording
+    assert "must end in .h5" in win.last_error[1]
     path = tmp_path / "curated.h5"
     assert ctl.files.save(path)
     assert win.wait_idle(60)
@@ -177,3 +185,27 @@ def test_moved_recording_is_asked_for_and_changed_one_is_refused(demo_window, tm
     title, message = win.last_error
     assert title == "The recording has changed" and "changed" in message
     assert ctl.sorting is None
+
+
+def test_a_damaged_session_file_offers_its_backup(demo_window, tmp_path):
+    win = demo_window
+    ctl = win.units
+    cluster_demo(win)
+    path = tmp_path / "kept.h5"
+    ctl.files.save(path)
+    assert win.wait_idle(60)
+    first = ctl.sorting.copy()
+    assert ctl.relabel([biggest_unit(ctl)], "multi-unit")
+    ctl.files.save(path)                       # the first save becomes the backup
+    assert win.wait_idle(60)
+    size = path.stat().st_size
+    with open(path, "r+b") as fh:              # damage the main file
+        fh.seek(size // 2)
+        fh.write(b"\xff" * 64)
+    questions = []
+    ctl.files.ask = lambda title, text: questions.append(text) or True
+    assert ctl.files.open(path)
+    assert win.wait_idle(60)
+    assert questions and "cannot be read" in questions[0] and "backup" in questions[0]
+    assert ctl.sorting.state_equal(first)
+    assert ctl.files.recovered
