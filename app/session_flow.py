@@ -183,6 +183,7 @@ class SessionFlow(QObject):
         if s is not None and saver is not None and saver.dirty:
             try:
                 _autosave_job(saver, snapshot(s), True)
+                self._written = (s.sorting, s.sorting.revision)
             except RigsideError as exc:
                 self.window.show_error("Autosave failed", str(exc))
 

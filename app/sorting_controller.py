@@ -115,6 +115,24 @@ class SortingController(QObject):
         except ValueError:
             return None
 
+    def selected_rows_in(self, events) -> dict[int, np.ndarray]:
+        """Rows of another event table (e.g. the workbench's, stored down to its look-up floor)
+        holding each selected unit's events, matched by sample and channel; for views that
+        colour the selected units' events."""
+        if self.sorting is None or events is None:
+            return {}
+        n_ch = max(int(events.channel.max(initial=0)), int(self.events.channel.max(initial=0))) + 1
+        keys = events.sample.astype(np.int64) * n_ch + events.channel
+        order = np.argsort(keys, kind="stable")
+        out = {}
+        for u in self.selection:
+            idx = self.sorting.events_of(u)
+            mine = self.events.sample[idx].astype(np.int64) * n_ch + self.events.channel[idx]
+            pos = np.minimum(np.searchsorted(keys, mine, sorter=order), len(keys) - 1)
+            found = order[pos][keys[order[pos]] == mine] if len(keys) else np.zeros(0, dtype=np.int64)
+            out[u] = np.sort(found)
+        return out
+
     def group_name(self, group: int) -> str:
         names = self.session.recording.description.get("group_names") if self.session else None
         return names[group] if isinstance(names, list) and 0 <= group < len(names) else f"group {group + 1}"

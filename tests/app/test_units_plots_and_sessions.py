@@ -3,13 +3,16 @@
 from __future__ import annotations
 
 import shutil
+from pathlib import Path
 
 import numpy as np
 from PySide6.QtCore import Qt
 
 from app import session_flow
+from app.window import MainWindow, demo_path, settings
 from app.screenshot import capture, colour_share, pixels
 from app.sorting_controller import SELECTION_COLOURS
+from core.journal import replay_matches
 from core.session import autosave_path
 from tests.app.units_helpers import biggest_unit, cluster_demo
 
@@ -73,6 +76,12 @@ def test_quality_plots_show_the_selected_units(demo_window, qtbot, tmp_path):
     for u, colour in zip(pair, SELECTION_COLOURS):
         swatch = model.data(model.index(model.row_of(u), 0), Qt.ItemDataRole.DecorationRole)
         assert (swatch.red(), swatch.green(), swatch.blue()) == colour
+    # other views can find the selected units' events in the workbench's own event table
+    rows = ctl.selected_rows_in(win.bench.events)
+    for u in pair:
+        mine = s.events_of(u)
+        assert len(rows[u]) == len(mine)
+        assert np.array_equal(np.sort(win.bench.events.sample[rows[u]]), np.sort(ctl.events.sample[mine]))
     # the selection colours appear in the plots
     image = pixels(capture(plots, str(tmp_path / "plots.png")))
     for colour in SELECTION_COLOURS[:2]:
@@ -106,7 +115,6 @@ def test_save_then_reopen_the_session(demo_window, tmp_path):
     assert sorted(ctl.metrics) == sorted(u for u, n in ctl.sorting.counts().items() if n > 0)
     assert win.unit_panels["list"].model.rowCount() == len(saved.units)
     # the replayed journal gives the same units
-    from core.journal import replay_matches
     assert replay_matches(ctl.sorting)
 
 
@@ -143,7 +151,6 @@ def test_a_corrupted_session_is_refused_with_a_message(window, tmp_path):
 
 
 def _copied_demo(tmp_path):
-    from app.window import demo_path
     src = demo_path()
     folder = tmp_path / "rec"
     folder.mkdir()
@@ -209,3 +216,29 @@ def test_a_damaged_session_file_offers_its_backup(demo_window, tmp_path):
     assert questions and "cannot be read" in questions[0] and "backup" in questions[0]
     assert ctl.sorting.state_equal(first)
     assert ctl.files.recovered
+
+
+def test_units_never_saved_are_offered_when_their_recording_opens_again(demo_window, qtbot):
+    win = demo_window
+    ctl = win.units
+    cluster_demo(win)
+    assert ctl.relabel([biggest_unit(ctl)], "single unit")
+    assert ctl.files.path is None and ctl.files.autosave_if_due(force=True)
+    assert win.wait_idle(60)
+    kept = ctl.sorting.copy()
+    autosaved = ctl.files.autosave_file
+    assert autosaved.exists() and autosaved.parent.parent == Path(settings().fileName()).parent
+    win.close()                      # as after a crash: the units were never saved as a session
+    second = MainWindow()
+    qtbot.addWidget(second)
+    second.show()
+    questions = []
+    second.units.files.ask = lambda title, text: questions.append(title) or True
+    try:
+        assert second.open_demo()
+        assert second.wait_idle(60) and second.wait_idle(60)
+        assert questions == ["Unsaved units found"]
+        assert second.units.sorting is not None and second.units.sorting.state_equal(kept)
+        assert second.units.files.path is None
+    finally:
+        second.close()
