@@ -11,31 +11,37 @@ from core.progress import Cancelled
 
 EXIT_OK, EXIT_FAILURE, EXIT_INPUT, EXIT_CANCELLED = 0, 1, 2, 130
 COMMAND_MODULES = ("cmd_detect", "cmd_sort", "cmd_metrics", "cmd_audit", "cmd_window")
+COMMAND_HOME = {"detect": "cmd_detect", "synth": "cmd_detect", "sort": "cmd_sort", "export": "cmd_sort",
+                "metrics": "cmd_metrics", "audit": "cmd_audit", "open": "cmd_window", "demo": "cmd_window"}
+"""Module registering each command: running one command imports only its module (start-up time)."""
 
 
-def build_parser() -> argparse.ArgumentParser:
-    """The argument parser with every command registered."""
+def build_parser(command: str | None = None) -> argparse.ArgumentParser:
+    """The argument parser with every command registered (or only ``command``'s module)."""
     p = argparse.ArgumentParser(prog="rigside", description="From raw extracellular recordings to curated, "
                                 "quality-scored spike trains. Run without a command to open the window.")
     p.add_argument("--version", action="version", version=f"rigside {__version__}")
     sub = p.add_subparsers(dest="command", metavar="COMMAND")
     import importlib
-    for name in COMMAND_MODULES:
+    modules = (COMMAND_HOME[command],) if command in COMMAND_HOME else COMMAND_MODULES
+    for name in dict.fromkeys(modules):
         importlib.import_module(f"app.{name}").register(sub)
     return p
 
 
 def main(argv: list[str] | None = None) -> int:
     """Run a command; returns the exit code (0 ok, 1 failure, 2 input error, 130 cancelled)."""
-    parser = build_parser()
+    argv = sys.argv[1:] if argv is None else list(argv)
+    first = next((a for a in argv if not a.startswith("-")), None)
+    parser = build_parser(first)
     args = parser.parse_args(argv)
-    if args.command is None:
-        from .cmd_window import run_window_command
-        return run_window_command(None)
     try:
+        if args.command is None:
+            from .cmd_window import run_window_command
+            return run_window_command(None)
         return int(args.func(args) or 0)
     except RigsideError as exc:
-        print(f"rigside {args.command}: error: {exc}", file=sys.stderr)
+        print(f"rigside {args.command or ''}: error: {exc}".replace(" :", ":"), file=sys.stderr)
         return EXIT_INPUT
     except (FileNotFoundError, PermissionError, IsADirectoryError) as exc:
         print(f"rigside {args.command}: error: {exc.strerror or exc}: {exc.filename}", file=sys.stderr)

@@ -3,6 +3,10 @@
 from __future__ import annotations
 
 import argparse
+import os
+import sys
+
+from core.errors import RigsideError
 
 from .cli_common import add_recording_options, recording_options
 
@@ -22,5 +26,13 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 def run_window_command(path: str | None, screenshot: str | None = None, options: dict | None = None,
                        demo: bool = False) -> int:
+    """Open the window; render offscreen when only a screenshot is wanted and there is no display."""
+    headless = (sys.platform.startswith("linux") and not os.environ.get("DISPLAY")
+                and not os.environ.get("WAYLAND_DISPLAY") and not os.environ.get("QT_QPA_PLATFORM"))
+    if headless and screenshot:
+        os.environ["QT_QPA_PLATFORM"] = "offscreen"
+    elif headless:
+        raise RigsideError("the window needs a display, got none (no DISPLAY or WAYLAND_DISPLAY): run it in a "
+                           "desktop session, under `xvfb-run`, or with --screenshot OUT.png")
     from .window import run_window
     return run_window(path, screenshot=screenshot, recording_options=options, demo=demo)

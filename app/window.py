@@ -175,7 +175,7 @@ class MainWindow(QMainWindow):
         self.runner.shutdown()
         if self.interactive:
             self.save_layout()
-        for box in self.messages:
+        for box in list(self.messages):  # closing a box removes it from the list
             box.close()
         rec = self.bench.recording
         if rec is not None:
