@@ -10,13 +10,15 @@ from pathlib import Path
 from typing import Callable
 
 from PySide6.QtCore import Qt
-from PySide6.QtGui import QAction, QKeySequence
+from PySide6.QtGui import QAction
 from PySide6.QtWidgets import QDialog, QFileDialog, QMenu
 
 from core.errors import RigsideError
 from .audit_controller import SPIKE_FILES, AuditController, ImportChoices
 from .dialogs.audit_import import AuditImportDialog
+from .panels.audit_pair import TRACE_KEY, trace_rows
 from .panels.audit_view import AuditPanel
+from .window_actions import add_action
 
 AUDIT_HEIGHT = 620
 
@@ -64,6 +66,15 @@ def install_audit(window) -> AuditController:
         if path:
             ctl.export(kind, path)
 
+    def sync_trace(*_) -> None:
+        """The chosen pair's spike rows on the trace view while the audit view is open."""
+        if ctl.pair is not None and dock.toggleViewAction().isChecked():
+            window.traces.set_spike_rows(TRACE_KEY, trace_rows(ctl.pair))
+        else:
+            window.traces.clear_spike_rows(TRACE_KEY)
+
+    ctl.pair_changed.connect(sync_trace)
+    dock.toggleViewAction().toggled.connect(sync_trace)
     panel.import_button.clicked.connect(choose_and_start)
     panel.report_button.clicked.connect(lambda: save("report"))
     panel.table_button.clicked.connect(lambda: save("table"))
@@ -80,14 +91,7 @@ def _build_menu(win, ctl: AuditController, choose: Callable, save: Callable, sho
     bar.insertMenu(help_menu.menuAction(), menu) if help_menu is not None else bar.addMenu(menu)
 
     def act(name: str, text: str, slot: Callable, keys=(), tip: str = "") -> QAction:
-        a = QAction(text, win)
-        a.setShortcuts([QKeySequence(k) for k in keys])
-        a.setStatusTip(tip)
-        a.triggered.connect(lambda *_: slot())
-        win.addAction(a)
-        menu.addAction(a)
-        win.actions_by_name[name] = a
-        return a
+        return add_action(win, win.actions_by_name, name, text, slot, keys, tip, menu)
 
     act("audit_import", "&Import earlier spike times and audit them…", choose, ["Ctrl+Shift+I"],
         "Check an earlier sorting (CSV, NumPy, HDF5 or NWB) against a fresh look at the open recording")

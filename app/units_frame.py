@@ -22,6 +22,7 @@ from .panels.unit_plots import UnitPlotsPanel
 from .panels.units import UnitListPanel
 from .session_flow import SessionFlow
 from .sorting_controller import SortingController
+from .window_actions import add_action
 
 UNIT_LIST_WIDTH = 740
 UNIT_PLOTS_HEIGHT = 560
@@ -71,17 +72,7 @@ def _build_menus(win, ctl: SortingController, unit_list: UnitListPanel, plane: C
         return next((m for m in bar.findChildren(QMenu) if a is not None and a in m.actions()), None)
 
     def act(name: str, text: str, slot: Callable, keys=(), tip: str = "", menu=None, before=None) -> QAction:
-        a = QAction(text, win)
-        a.setShortcuts([QKeySequence(k) for k in keys])
-        if tip:
-            a.setStatusTip(tip)
-            a.setToolTip(tip)
-        a.triggered.connect(lambda *_: slot())
-        win.addAction(a)
-        if menu is not None:
-            menu.insertAction(before, a) if before is not None else menu.addAction(a)
-        actions[name] = a
-        return a
+        return add_action(win, actions, name, text, slot, keys, tip, menu, before)
 
     files = ctl.files
     file_menu = menu_holding("quit")

@@ -12,23 +12,30 @@ from .dialogs.shortcuts import ShortcutsDialog
 ZOOM_STEP = 1.5
 
 
+def add_action(win, actions: dict[str, QAction], name: str, text: str, slot: Callable, keys=(), tip: str = "",
+               menu=None, before: QAction | None = None) -> QAction:
+    """Create an action on ``win`` with shortcuts and a tip, list it in ``actions`` under ``name``,
+    and put it in ``menu`` (before the action ``before`` if given)."""
+    a = QAction(text, win)
+    a.setShortcuts([QKeySequence(k) for k in keys])
+    if tip:
+        a.setStatusTip(tip)
+        a.setToolTip(tip)
+    a.triggered.connect(lambda *_: slot())
+    win.addAction(a)
+    if menu is not None:
+        menu.insertAction(before, a) if before is not None else menu.addAction(a)
+    actions[name] = a
+    return a
+
+
 def build_actions(win) -> dict[str, QAction]:
     """Create the menus on ``win`` and return its actions by name."""
     bench = win.bench
     actions: dict[str, QAction] = {}
 
     def act(name: str, text: str, slot: Callable, keys=(), tip: str = "", menu=None) -> QAction:
-        a = QAction(text, win)
-        a.setShortcuts([QKeySequence(k) for k in keys])
-        if tip:
-            a.setStatusTip(tip)
-            a.setToolTip(tip)
-        a.triggered.connect(lambda *_: slot())
-        win.addAction(a)
-        if menu is not None:
-            menu.addAction(a)
-        actions[name] = a
-        return a
+        return add_action(win, actions, name, text, slot, keys, tip, menu)
 
     bar = win.menuBar()
     file_menu = bar.addMenu("&File")

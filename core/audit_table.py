@@ -7,18 +7,16 @@ imported unit. Undefined numbers are written ``nan``; an absent best match is le
 
 from __future__ import annotations
 
-import csv
 import math
 from dataclasses import asdict
 from pathlib import Path
 
 import numpy as np
 
-from .atomic import atomic_write
 from .clustering import NO_UNIT
 from .unit_table import CAUTION as QUALITY_CAUTION
 from .unit_table import COLUMNS as QUALITY_COLUMNS
-from .unit_table_io import flag_units
+from .unit_table_io import flag_units, write_described_csv
 
 AUDIT_COLUMNS: dict[str, str] = {
     "unit": "imported unit id",
@@ -147,21 +145,10 @@ def write_audit_csv(result, path: str | Path, caution: str) -> Path:
         The audit caution written into the header (with the quality-number caution).
     """
     t = result.table
-    n = len(t["unit"])
     s = result.settings
     settings = ", ".join([f"tolerance_ms = {s.tolerance_ms:g}", f"spread_share = {s.spread_share:g}"]
                          + [f"{k} = {v:g}" for k, v in asdict(result.fresh.params.metrics).items()])
-
-    def write(tmp: Path) -> None:
-        with open(tmp, "w", newline="", encoding="utf-8") as fh:
-            fh.write("# rigside audit of an imported sorting\n")
-            fh.write(f"# imported: {result.spikes.source}; compared with: {result.fresh.source}\n")
-            fh.write(f"# {caution}\n# {QUALITY_CAUTION}\n# settings: {settings}\n")
-            for name, meaning in ALL_COLUMNS.items():
-                fh.write(f"# {name}: {meaning}\n")
-            w = csv.writer(fh)
-            w.writerow(list(ALL_COLUMNS))
-            for i in range(n):
-                w.writerow([_cell(c, t[c][i]) for c in ALL_COLUMNS])
-
-    return atomic_write(path, write)
+    header = ["rigside audit of an imported sorting",
+              f"imported: {result.spikes.source}; compared with: {result.fresh.source}",
+              caution, QUALITY_CAUTION, f"settings: {settings}"]
+    return write_described_csv(path, header, ALL_COLUMNS, list(ALL_COLUMNS), t, _cell)

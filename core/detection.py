@@ -109,12 +109,12 @@ def _detect_block(y, inv_sigma, polarity, group_channels, group_offsets, floor, 
                 continue
             if m == cap:
                 cap *= 2
-                out_t = _grow_i8(out_t, cap)
-                out_c = _grow_i4(out_c, cap)
-                out_g = _grow_i4(out_g, cap)
-                out_a = _grow_f4(out_a, cap)
-                out_s = _grow_f4(out_s, cap)
-                out_art = _grow_b(out_art, cap)
+                out_t = _grow(out_t, cap)
+                out_c = _grow(out_c, cap)
+                out_g = _grow(out_g, cap)
+                out_a = _grow(out_a, cap)
+                out_s = _grow(out_s, cap)
+                out_art = _grow(out_art, cap)
             c = arg[t]
             out_t[m] = t
             out_c[m] = c
@@ -129,29 +129,8 @@ def _detect_block(y, inv_sigma, polarity, group_channels, group_offsets, floor, 
 
 
 @numba.njit(cache=True)
-def _grow_i8(a, cap):
-    b = np.empty(cap, dtype=np.int64)
-    b[:len(a)] = a
-    return b
-
-
-@numba.njit(cache=True)
-def _grow_i4(a, cap):
-    b = np.empty(cap, dtype=np.int32)
-    b[:len(a)] = a
-    return b
-
-
-@numba.njit(cache=True)
-def _grow_f4(a, cap):
-    b = np.empty(cap, dtype=np.float32)
-    b[:len(a)] = a
-    return b
-
-
-@numba.njit(cache=True)
-def _grow_b(a, cap):
-    b = np.empty(cap, dtype=np.bool_)
+def _grow(a, cap):
+    b = np.empty(cap, dtype=a.dtype)
     b[:len(a)] = a
     return b
 

@@ -114,17 +114,41 @@ def write_unit_table_csv(table: dict[str, np.ndarray], path: str | Path,
         raise RigsideError("unit table columns must all have one row per unit, got differing lengths")
     settings = ", ".join(f"{k} = {v:g}" for k, v in asdict(params or MetricParams()).items())
     columns = list(COLUMNS) + [c for c in table if c not in COLUMNS]
+    return write_described_csv(path, ["rigside unit quality table", CAUTION, f"settings: {settings}"],
+                               COLUMNS, columns, table, _cell)
+
+
+def write_described_csv(path: str | Path, header: list[str], meanings: dict[str, str], columns: list[str],
+                        table: dict, cell) -> Path:
+    """Write a table as CSV atomically, after ``#`` lines: the ``header`` lines, then one line
+    per described column giving its meaning and unit.
+
+    Parameters
+    ----------
+    path
+        Target file.
+    header
+        Free text lines (title, cautions, settings).
+    meanings
+        Column name -> meaning and unit.
+    columns
+        Columns to write, in order (every one a key of ``table``).
+    table
+        Column name -> sequence of values, one per row.
+    cell
+        ``cell(column, value) -> str`` formats one value.
+    """
+    n = len(table[columns[0]]) if columns else 0
 
     def write(tmp: Path) -> None:
         with open(tmp, "w", newline="", encoding="utf-8") as fh:
-            fh.write("# rigside unit quality table\n")
-            fh.write(f"# {CAUTION}\n")
-            fh.write(f"# settings: {settings}\n")
-            for name, meaning in COLUMNS.items():
+            for line in header:
+                fh.write(f"# {line}\n")
+            for name, meaning in meanings.items():
                 fh.write(f"# {name}: {meaning}\n")
             w = csv.writer(fh)
             w.writerow(columns)
             for i in range(n):
-                w.writerow([_cell(c, table[c][i]) for c in columns])
+                w.writerow([cell(c, table[c][i]) for c in columns])
 
     return atomic_write(path, write)

@@ -1,10 +1,11 @@
 """One imported unit beside its best fresh match: waveforms per channel, ISI histograms,
-amplitude over time and both spike rasters along the trace view's time window.
+amplitude over time, and (through :func:`trace_rows`) both spike rasters on the trace view.
 
 Every plot draws the two sides the same way, so a glance tells them apart without relying on
 hue: the imported unit in blue (solid lines, filled dots), the fresh unit in orange (dashed
 lines, rings); spikes that only one side holds get their own symbol (a cross: imported only,
-a possible false positive; a triangle: fresh only, a possible miss).
+a possible false positive; a triangle: fresh only, a possible miss). On the trace view each
+side has a row of ticks, one per shared spike, with those symbols for the spikes it alone holds.
 """
 
 from __future__ import annotations
@@ -23,6 +24,7 @@ MAX_BLOCKS = 8          # channels drawn side by side at most (those with the la
 GAP_FRACTION = 0.25     # gap between channel blocks, as a share of the snippet length
 TICK_MS = 0.5           # tick spacing inside each channel block
 SIDES = ("imported", "fresh")
+TRACE_KEY = "audit"     # the trace view's spike rows set by the audit
 # (symbol, size, filled) of a side's spikes that the other side shares, and of those it alone holds
 SYMBOLS = {("imported", True): ("o", 5, True), ("imported", False): ("x", 10, True),
            ("fresh", True): ("o", 9, False), ("fresh", False): ("t", 10, True)}
@@ -44,7 +46,21 @@ def key_text(pair: PairView | None) -> str:
     imp = f"imported unit {pair.imported.unit}" if pair else "imported unit"
     fresh = f"fresh unit {pair.fresh.unit}" if pair and pair.fresh else "fresh unit"
     return palette.key([("● ——", IMPORTED, f"{imp}, spike shared"), ("✕", IMPORTED, "imported only (possible false positive)"),
-                        ("○ - -", FRESH, f"{fresh}, spike shared"), ("▲", FRESH, "fresh only (possible miss)")])
+                        ("○ - -", FRESH, f"{fresh}, spike shared"), ("▼", FRESH, "fresh only (possible miss)")]) + " &nbsp; (trace view: a tick per shared spike)"
+
+
+def sides_of(pair: PairView | None) -> list[tuple[str, UnitView]]:
+    """The pair's sides that exist, as (name, side)."""
+    if pair is None:
+        return []
+    return [(name, side) for name, side in (("imported", pair.imported), ("fresh", pair.fresh)) if side is not None]
+
+
+def trace_rows(pair: PairView | None) -> list[tuple]:
+    """Rows for :meth:`app.panels.traces.TracePanel.set_spike_rows`: each side's spikes, those
+    the other side lacks flagged and drawn with the side's symbol for them."""
+    return [(f"{name} {side.unit}", side.times_s, ~side.shared, colour_of(name), SYMBOLS[(name, False)][0])
+            for name, side in sides_of(pair)]
 
 
 def shown_channels(pair: PairView) -> np.ndarray:
@@ -62,9 +78,8 @@ def shown_channels(pair: PairView) -> np.ndarray:
 
 
 class AuditPairPlots(QWidget):
-    """The four pair plots. After :meth:`show_pair`, ``wave_curves``, ``isi_curves``,
-    ``amp_items`` and ``raster_items`` (keyed by side, and by shared for the scatters) hold
-    exactly what is drawn."""
+    """The three pair plots. After :meth:`show_pair`, ``wave_curves``, ``isi_curves`` and
+    ``amp_items`` (keyed by side, and by shared for the scatters) hold exactly what is drawn."""
 
     def __init__(self, bench, parent: QWidget | None = None):
         super().__init__(parent)
@@ -78,13 +93,6 @@ class AuditPairPlots(QWidget):
         self.waveforms = make_plot("time from spike (ms), one block per channel", "filtered signal (µV)")
         self.isi = make_plot("interval between consecutive spikes (ms); grey: refractory window", "intervals (count)")
         self.amplitude = make_plot("time in the recording (s)", "amplitude (µV)")
-        self.raster = make_plot("time in the recording (s), the trace view's window", "")
-        self.raster.setMaximumHeight(130)
-        self.raster.setMinimumHeight(110)
-        rv = self.raster.getPlotItem()
-        rv.setMouseEnabled(x=False, y=False)     # follows the trace view (move that, or use the buttons)
-        rv.getAxis("left").setWidth(90)
-        rv.setYRange(-0.7, 1.7, padding=0)
         self.refractory = pg.LinearRegionItem(movable=False, brush=pg.mkBrush(*palette.GREY, 50),
                                               pen=palette.pen(palette.GREY))
         self.refractory.setZValue(-10)
@@ -92,10 +100,8 @@ class AuditPairPlots(QWidget):
         self.wave_channels = np.zeros(0, dtype=np.int64)
         self.isi_curves: dict[str, pg.PlotCurveItem] = {}
         self.amp_items = {k: scatter(*k) for k in SYMBOLS}
-        self.raster_items = {k: scatter(*k) for k in SYMBOLS}
         for k in SYMBOLS:
             self.amplitude.addItem(self.amp_items[k])
-            self.raster.addItem(self.raster_items[k])
         self.note = QLabel("")
         self.note.setWordWrap(True)
 
@@ -125,10 +131,8 @@ class AuditPairPlots(QWidget):
         lay.addWidget(self.header)
         lay.addWidget(self.key)
         lay.addLayout(grid, 1)
-        lay.addWidget(self.raster)
         lay.addLayout(nav)
         lay.addWidget(self.note)
-        bench.view_changed.connect(self._on_view)
         self.show_pair(None)
 
     # ---- drawing ----------------------------------------------------------------------------
@@ -144,13 +148,9 @@ class AuditPairPlots(QWidget):
         self._draw_waveforms()
         self._draw_isi(refractory_ms)
         self._draw_amplitudes()
-        self._draw_raster()
 
     def _sides(self) -> list[tuple[str, UnitView]]:
-        p = self.pair
-        if p is None:
-            return []
-        return [(name, side) for name, side in (("imported", p.imported), ("fresh", p.fresh)) if side is not None]
+        return sides_of(self.pair)
 
     def _draw_waveforms(self) -> None:
         pi = self.waveforms.getPlotItem()
@@ -224,27 +224,7 @@ class AuditPairPlots(QWidget):
         if self.pair is not None:
             self.amplitude.getPlotItem().setXRange(0.0, self.bench.recording.duration_s, padding=0.01)
 
-    def _draw_raster(self) -> None:
-        for item in self.raster_items.values():
-            item.setData([], [])
-        pi = self.raster.getPlotItem()
-        rows = [(1.0, f"imported {self.pair.imported.unit}" if self.pair else "imported"),
-                (0.0, f"fresh {self.pair.fresh.unit}" if self.pair and self.pair.fresh else "fresh (none)")]
-        pi.getAxis("left").setTicks([rows, []])
-        t0, t1 = self.bench.view
-        pi.setXRange(t0, t1, padding=0)
-        if self.pair is None:
-            return
-        for name, (times, shared) in self.pair.spikes_between(t0, t1).items():
-            y = 1.0 if name == "imported" else 0.0
-            for s in (True, False):
-                keep = shared == s
-                self.raster_items[(name, s)].setData(times[keep], np.full(int(keep.sum()), y))
-
-    # ---- the trace view's window --------------------------------------------------------------
-    def _on_view(self, t0: float, t1: float) -> None:
-        self._draw_raster()
-
+    # ---- the trace view ---------------------------------------------------------------------
     def show_on_trace(self) -> None:
         """Show the imported unit's channel group in the trace view."""
         if self.group is not None and self.bench.recording is not None:

@@ -15,10 +15,12 @@ from ..channel_text import channel_list, parse_channels
 from ..trace_data import Block, load_block, step_for, visible_envelope
 from .base import Panel
 from .event_marks import EventMarks
+from .spike_rows import SpikeRows
 
 SYNC_LIMIT = 3_000_000   # samples x channels loaded on the GUI thread; more goes to a job
 LANE_SIGMAS = 20.0        # lane height in noise sigmas of the filtered signal
 SPAN_LIMIT = 60_000_000  # samples x channels the view may show at once
+AXIS_WIDTH = 56            # left axis (channel names) width in pixels, wider for long row labels
 NICE = np.array([1, 2, 5, 10, 20, 50, 100, 200, 500, 1000, 2000, 5000, 10000], dtype=float)
 
 
@@ -71,7 +73,7 @@ class TracePanel(Panel):
         pi.hideButtons()
         palette.style_plot(pi, "time (s)", "")
         pi.showGrid(x=True, y=False, alpha=0.15)
-        pi.getAxis("left").setWidth(56)
+        pi.getAxis("left").setWidth(AXIS_WIDTH)
         self.vb = pi.getViewBox()
         self.vb.setDefaultPadding(0.0)
         self.vb.disableAutoRange()
@@ -80,6 +82,7 @@ class TracePanel(Panel):
         self.selected_curve = pg.PlotCurveItem(pen=palette.pen(palette.TRACE_SELECTED), skipFiniteCheck=True)
         self.threshold_lines = pg.PlotCurveItem(pen=palette.pen(palette.THRESHOLD, 1, dash=True))
         self.marks = EventMarks()
+        self.rows = SpikeRows(pi)
         self.handle = pg.InfiniteLine(angle=0, movable=True, pen=palette.pen(palette.THRESHOLD, 3),
                                       hoverPen=palette.pen(palette.VERMILLION, 4), label="",
                                       labelOpts={"position": 0.04, "color": palette.FOREGROUND,
@@ -97,7 +100,7 @@ class TracePanel(Panel):
         self.handle.sigPositionChangeFinished.connect(self._on_handle_released)
         self.vb.sigXRangeChanged.connect(self._on_range_changed)
         self.plot.scene().sigMouseClicked.connect(self._on_click)
-        self._resize_timer = QTimer(self, singleShot=True, interval=50, timeout=self.refresh)
+        self._resize_timer = QTimer(self, singleShot=True, interval=50, timeout=self._on_resized)
         self.vb.sigResized.connect(self._resize_timer.start)
 
         lay = QVBoxLayout(self)
@@ -194,10 +197,13 @@ class TracePanel(Panel):
             base = 100.0
         self.spacing = base / self.gain
         self.offsets = -np.arange(len(shown)) * self.spacing
-        pi = self.plot.getPlotItem()
-        self.vb.setYRange(self.offsets[-1] - 0.6 * self.spacing, 0.6 * self.spacing, padding=0)
+        axis = self.plot.getPlotItem().getAxis("left")
+        lo, hi = self.offsets[-1] - 0.6 * self.spacing, 0.6 * self.spacing
+        band = self.rows.layout(hi, hi - lo, self.vb.height())
+        self.vb.setYRange(lo, hi + band, padding=0)
         names = [(float(o), f"ch {c}") for o, c in zip(self.offsets, shown)]
-        pi.getAxis("left").setTicks([names, []])
+        axis.setTicks([names + self.rows.ticks(), []])
+        axis.setWidth(max(AXIS_WIDTH, self.rows.label_width(axis.style["tickFont"] or axis.font()) + 12))
         self._draw_bands()
         self._draw_threshold_lines()
         self._update_handle()
@@ -317,6 +323,8 @@ class TracePanel(Panel):
         if not self.vb.sceneBoundingRect().contains(pos):
             return
         y = self.vb.mapSceneToView(pos).y()
+        if y > self.rows.base:      # the band of spike rows, above the lanes
+            return
         lane = int(np.clip(round(-y / self.spacing), 0, len(self.offsets) - 1))
         self.bench.select_channel(int(self.bench.shown_channels[lane]))
 
@@ -357,6 +365,7 @@ class TracePanel(Panel):
         self._draw_traces(a, z, step)
         self._draw_threshold_lines()
         self._draw_markers()
+        self.rows.draw(*b.view)
         self._draw_scale_bar()
         self.info.setText(f"{b.shown_label} · selected ch {b.channel} · "
                           f"{'raw' if b.show_raw else 'filtered'} · {b.view[1] - b.view[0]:.3g} s shown")
@@ -405,6 +414,30 @@ class TracePanel(Panel):
     def _draw_markers(self) -> None:
         a, z = self.visible_samples() if self.bench.recording is not None else (0, 0)
         self.marks.draw(self.bench, self.offsets, self.lane, self.spacing, a, z, max(200, int(self.vb.width())))
+
+    def set_spike_rows(self, key: str, rows) -> None:
+        """Draw spike trains in a band above the traces, replacing those set before under ``key``.
+
+        Each row is ``(label, times_s, flags or None, colour, symbol)``: a tick per spike in
+        ``colour``, and ``symbol`` (a pyqtgraph symbol name) with a guide line down through the
+        traces for the spikes where ``flags`` is True. Rows of different keys stack top-down.
+        """
+        self._rows_changed(self.rows.set(key, rows))
+
+    def clear_spike_rows(self, key: str) -> None:
+        """Remove the rows set under ``key``."""
+        self._rows_changed(self.rows.clear(key))
+
+    def _rows_changed(self, relayout: bool) -> None:
+        if self.bench.recording is not None and len(self.offsets):
+            if relayout:
+                self._layout_lanes()
+            self.rows.draw(*self.bench.view)
+
+    def _on_resized(self) -> None:
+        if self.rows.count() and self.bench.recording is not None and len(self.offsets):
+            self._layout_lanes()       # the rows keep their height on screen
+        self.refresh()
 
     def marker_times(self) -> np.ndarray:
         """Times (s) of the event markers drawn now (one per marked event unless dense)."""
