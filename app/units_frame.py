@@ -59,6 +59,13 @@ def install_units(window) -> SortingController:
             window.resizeDocks([docks[0]], [UNIT_LIST_WIDTH], Qt.Orientation.Horizontal)
             window.resizeDocks([docks[1]], [UNIT_PLOTS_HEIGHT], Qt.Orientation.Vertical)
     ctl.sorting_replaced.connect(show_unit_docks)
+
+    def colour_selected_events(*_: object) -> None:
+        """Selected units' events in one colour each in the workbench's own views too."""
+        rows = ctl.selected_rows_in(bench.events)
+        window.panels["features"].highlight([(r, ctl.unit_colour(u)) for u, r in rows.items()])
+    for signal in (ctl.selection_changed, ctl.units_changed, ctl.sorting_replaced):
+        signal.connect(colour_selected_events)
     _build_menus(window, ctl, unit_list, plane)
     return ctl
 

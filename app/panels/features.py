@@ -59,8 +59,11 @@ class FeaturePanel(Panel):
         cmap = pg.colormap.get("cividis")
         cmap.reverse()
         self.image.setLookupTable(cmap.getLookupTable(nPts=256))
+        self.chosen = pg.ScatterPlotItem(size=5, pen=None)
+        self.highlights: list[tuple[np.ndarray, tuple]] = []
         pi.addItem(self.image)
         pi.addItem(self.scatter)
+        pi.addItem(self.chosen)
         self.status = QLabel("Features appear when they have been computed.")
         self.status.setWordWrap(True)
         lay = QVBoxLayout(self)
@@ -73,7 +76,14 @@ class FeaturePanel(Panel):
         bench.thresholds_changed.connect(lambda final: final and self._draw())
         bench.recording_changed.connect(self._clear)
 
+    def highlight(self, rows_and_colours: list[tuple[np.ndarray, tuple]]) -> None:
+        """Draw these events (rows of the workbench's event table) on top, one colour per set
+        (used to show selected units in one colour each)."""
+        self.highlights = [(np.asarray(r, dtype=np.int64), c) for r, c in rows_and_colours]
+        self._draw()
+
     def _clear(self) -> None:
+        self.chosen.setData([], [])
         self.scatter.setData([], [])
         self.image.clear()
         self.mode = "none"
@@ -127,11 +137,25 @@ class FeaturePanel(Panel):
             tr.scale((xr[1] - xr[0]) / DENSITY_BINS, (yr[1] - yr[0]) / DENSITY_BINS)
             self.image.setTransform(tr)
             self.image.setVisible(True)
+        self._draw_highlights(xn, yn, keep)
         pi.setXRange(*xr, padding=0)
         pi.setYRange(*yr, padding=0)
         name = b.recording.group_names[g]
         how = "points" if self.mode == "points" else "density (log count per cell)"
         self.status.setText(f"{name}: {len(keep):,} events at the current threshold, shown as {how}.")
+
+
+    def _draw_highlights(self, xn: str, yn: str, shown: np.ndarray) -> None:
+        xs, ys, brushes = [], [], []
+        for rows, colour in self.highlights:
+            rows = rows[np.isin(rows, shown)]
+            xs.append(self.column(xn)[rows])
+            ys.append(self.column(yn)[rows])
+            brushes += [pg.mkBrush(*colour[:3], 230)] * len(rows)
+        if brushes:
+            self.chosen.setData(np.concatenate(xs), np.concatenate(ys), brush=brushes)
+        else:
+            self.chosen.setData([], [])
 
 
 def _label(name: str) -> str:

@@ -16,7 +16,7 @@ from PySide6.QtWidgets import QDialog, QFileDialog
 from app.audit_controller import AUDIT_LABEL
 from app.dialogs.audit_import import AuditImportDialog
 from app.screenshot import capture, colour_share, pixels
-from app.panels.audit_pair import FRESH, IMPORTED, shown_channels
+from app.panels.audit_pair import FRESH, IMPORTED, TRACE_KEY, shown_channels
 from app.panels.audit_view import TABLE_SPECS
 from app.window import demo_path
 from core.audit_views import PairView, UnitView, pair_view
@@ -78,11 +78,22 @@ def check_pair_plots(win, unit: int) -> None:
         assert len(pieces) == len(blocks)
         for k, piece in zip(blocks, pieces):
             np.testing.assert_allclose(piece, mean[:, k], rtol=1e-6, atol=1e-4)
+    check_trace_rows(win, pv)
+
+
+def check_trace_rows(win, pv) -> None:
+    """Both sides' spikes in the trace view's window are on the trace: ticks for the shared
+    ones, the side's own symbol for those it alone holds."""
     t0, t1 = win.bench.view
-    for name, (times, shared) in pv.spikes_between(t0, t1).items():
-        for s in (True, False):
-            x, _ = plots.raster_items[(name, s)].getData()
-            np.testing.assert_array_equal(x, times[shared == s])
+    inside = pv.spikes_between(t0, t1)
+    drawn = win.traces.rows.drawn(TRACE_KEY)
+    assert len(drawn) == len(inside)
+    for (ticks, alone), name in zip(drawn, ("imported", "fresh")):
+        times, shared = inside[name]
+        np.testing.assert_array_equal(ticks, times[shared])
+        np.testing.assert_array_equal(alone, times[~shared])
+    labels = [label for _, label in win.traces.rows.ticks()]
+    assert labels == [f"imported {pv.imported.unit}"] + ([f"fresh {pv.fresh.unit}"] if pv.fresh else [])
 
 
 def test_audit_against_the_session_shows_each_pair_as_the_core_computes_it(demo_window, qtbot, tmp_path):
@@ -121,6 +132,25 @@ def test_audit_against_the_session_shows_each_pair_as_the_core_computes_it(demo_
     assert t0 == 0.0 or t0 == pytest.approx(expected - span / 2)
     assert t0 <= expected <= t1
     check_pair_plots(win, unit)
+    win.bench.set_view(0.0, win.bench.recording.duration_s)            # the rows follow the trace view
+    check_trace_rows(win, win.audit.pair)
+    win.bench.set_view(t0, t1)
+
+    # the rows stay while the audit view is tabbed behind another, and go when it closes
+    dock = win.docks["audit"]
+    win.docks["waveforms"].raise_()
+    qtbot.waitUntil(lambda: not dock.isVisible(), timeout=5000)
+    assert win.traces.rows.count() == 2
+    dock.hide()
+    assert win.traces.rows.count() == 0
+    win.actions_by_name["audit_show"].trigger()
+    check_trace_rows(win, win.audit.pair)
+    panel.table.clearSelection()                                       # no unit chosen: no rows
+    assert win.audit.pair is None and win.traces.rows.count() == 0
+    panel.select_unit(unit)
+    qtbot.waitUntil(lambda: win.audit.pair is not None, timeout=30000)
+    assert win.wait_idle(30)
+    check_trace_rows(win, win.audit.pair)
 
     # exports: the CSV has one row per imported unit, the report is one HTML file
     assert win.audit.export("table", tmp_path / "audit.csv")

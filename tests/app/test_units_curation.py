@@ -224,3 +224,25 @@ def test_unit_dialogs_return_what_was_entered(qtbot):
     assert spin_count(parts.k) is None
     parts.k.setValue(2)
     assert spin_count(parts.k) == 2
+
+
+def test_selected_units_are_coloured_in_the_feature_view(demo_window):
+    win = demo_window
+    ctl = win.units
+    cluster_demo(win)
+    shown_group = int(win.bench.recording.channel_group[win.bench.channel])
+    counts = ctl.sorting.counts()
+    u = max((v for v, rec in ctl.sorting.units.items() if rec.group == shown_group), key=counts.get)
+    ctl.set_selection([u])
+    feats = win.panels["features"]
+    rows = ctl.selected_rows_in(win.bench.events)[u]
+    # the highlighted points are the unit's events shown in the panel (its group, at the threshold)
+    ev = win.bench.events
+    visible = rows[(ev.group[rows] == shown_group) & win.bench.mask()[rows]]
+    x, y = feats.chosen.getData()
+    assert len(x) == len(visible) > 0
+    np.testing.assert_allclose(np.sort(x), np.sort(feats.column(feats.x_combo.currentText())[visible]))
+    colour = feats.chosen.data["brush"][0].color()
+    assert (colour.red(), colour.green(), colour.blue()) == tuple(ctl.unit_colour(u)[:3])
+    ctl.set_selection([])
+    assert len(feats.chosen.getData()[0]) == 0
