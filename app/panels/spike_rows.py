@@ -14,6 +14,7 @@ from dataclasses import dataclass
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtGui import QFont, QFontMetrics
+from PySide6.QtWidgets import QGraphicsRectItem
 
 from .. import palette
 
@@ -23,6 +24,7 @@ FLAG_SIZE = 11         # size of a flagged spike's symbol (pixels)
 GUIDE_LIMIT = 150      # flagged spikes in view up to which guide lines run through the traces
 GUIDE_ALPHA = 110
 MIN_BAND_SHARE = 0.35  # the band never takes more than this share of the plot's height
+BACKDROP = (236, 238, 242)   # the band's fill, setting it apart from the traces
 
 
 @dataclass
@@ -83,6 +85,12 @@ class SpikeRows:
         self.pitch = 0.0      # row height in data units
         self.base = 0.0       # y of the band's lower edge
         self.floor = 0.0      # y down to which guide lines run
+        self.backdrop = QGraphicsRectItem()
+        self.backdrop.setPen(pg.mkPen(None))
+        self.backdrop.setBrush(pg.mkBrush(*BACKDROP))
+        self.backdrop.setZValue(-20)
+        self.backdrop.setVisible(False)
+        plot.addItem(self.backdrop, ignoreBounds=True)
 
     def count(self) -> int:
         return sum(len(r) for r in self.rows.values())
@@ -143,6 +151,8 @@ class SpikeRows:
 
     def draw(self, t0: float, t1: float) -> None:
         """Draw the spikes of every row in ``[t0, t1)``."""
+        self.backdrop.setVisible(self.count() > 0)
+        self.backdrop.setRect(t0, self.base, t1 - t0, self.count() * self.pitch)
         ys = iter(self.centres())
         half = 0.5 * TICK_SHARE * self.pitch
         for key, rows in self.rows.items():

@@ -145,11 +145,12 @@ class TracePanel(Panel):
         shown = b.shown_channels
         self.lane = np.full(rec.n_channels, -1, dtype=np.int64)
         self.lane[shown] = np.arange(len(shown))
-        idx = self.show_combo.findData(("group", b.group))
-        if b.shown_label == rec.group_names[b.group] and idx >= 0:
-            self.show_combo.setCurrentIndex(idx)
+        # item data are Python tuples, which QComboBox.findData compares by identity
+        choices = [self.show_combo.itemData(i) for i in range(self.show_combo.count())]
+        if b.shown_label == rec.group_names[b.group] and ("group", b.group) in choices:
+            self.show_combo.setCurrentIndex(choices.index(("group", b.group)))
         elif len(shown) == rec.n_channels:
-            self.show_combo.setCurrentIndex(self.show_combo.findData(("all", None)))
+            self.show_combo.setCurrentIndex(choices.index(("all", None)))
         max_span = max(0.01, min(rec.duration_s, SPAN_LIMIT / (rec.rate_hz * len(shown))))
         self.vb.setLimits(maxXRange=max_span)
         self._layout_lanes()

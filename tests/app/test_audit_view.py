@@ -11,7 +11,7 @@ from dataclasses import replace
 import numpy as np
 import pytest
 from PySide6.QtCore import Qt
-from PySide6.QtWidgets import QDialog, QFileDialog
+from PySide6.QtWidgets import QDialog, QFileDialog, QTabBar
 
 from app.audit_controller import AUDIT_LABEL
 from app.dialogs.audit_import import AuditImportDialog
@@ -138,10 +138,10 @@ def test_audit_against_the_session_shows_each_pair_as_the_core_computes_it(demo_
 
     # the rows stay while the audit view is tabbed behind another, and go when it closes
     dock = win.docks["audit"]
-    win.docks["waveforms"].raise_()
-    qtbot.waitUntil(lambda: not dock.isVisible(), timeout=5000)
+    bar = next(b for b in win.findChildren(QTabBar) if dock.windowTitle() in [b.tabText(i) for i in range(b.count())])
+    bar.setCurrentIndex([bar.tabText(i) for i in range(bar.count())].index(win.docks["waveforms"].windowTitle()))
     assert win.traces.rows.count() == 2
-    dock.hide()
+    dock.close()
     assert win.traces.rows.count() == 0
     win.actions_by_name["audit_show"].trigger()
     check_trace_rows(win, win.audit.pair)

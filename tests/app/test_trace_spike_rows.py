@@ -86,3 +86,14 @@ def test_rows_are_checked(demo_window):
     with pytest.raises(ValueError, match="finite"):
         traces.set_spike_rows("x", [("a", np.array([0.1, np.nan]), None, palette.BLUE, "o")])
     assert traces.rows.count() == 0
+
+
+def test_the_show_choice_follows_the_shown_group(demo_window):
+    win = demo_window
+    combo, rec = win.traces.show_combo, win.bench.recording
+    for g in reversed(range(len(rec.groups))):
+        win.bench.show_group(g)
+        assert combo.currentData() == ("group", g)
+        assert combo.currentText().startswith(rec.group_names[g])
+    win.bench.show_channels(range(rec.n_channels), "all channels")
+    assert combo.currentData() == ("all", None)
