@@ -63,7 +63,9 @@ def install_units(window) -> SortingController:
     def colour_selected_events(*_: object) -> None:
         """Selected units' events in one colour each in the workbench's own views too."""
         rows = ctl.selected_rows_in(bench.events)
-        window.panels["features"].highlight([(r, ctl.unit_colour(u)) for u, r in rows.items()])
+        sets = [(r, ctl.unit_colour(u)) for u, r in rows.items()]
+        for name in ("features", "traces"):
+            window.panels[name].highlight(sets)
     for signal in (ctl.selection_changed, ctl.units_changed, ctl.sorting_replaced):
         signal.connect(colour_selected_events)
     _build_menus(window, ctl, unit_list, plane)

@@ -14,7 +14,8 @@ RUG_ROWS = 10             # image rows per trace lane for the dense marks
 
 class EventMarks:
     """Ticks at the top of each channel's lane, at the peak time of each event at or above
-    the channel's threshold (vermillion; grey for artefacts). When more events are in view
+    the channel's threshold (vermillion; grey for artefacts); events of highlighted sets
+    (selected units) get a triangle in their set's colour under the tick. When more events are in view
     than can be told apart, one mark per screen pixel and channel is drawn in that row as
     a small image instead."""
 
@@ -25,9 +26,11 @@ class EventMarks:
         self.rug.setVisible(False)
         self.rug_pixels = np.zeros((0, 0), dtype=bool)
         self.dense = False
+        self.chosen = pg.ScatterPlotItem(size=9, symbol="t", pen=pg.mkPen(palette.BLACK, width=0.5))
+        self.highlights: list[tuple[np.ndarray, tuple]] = []
 
     def items(self) -> tuple:
-        return self.artefacts, self.events, self.rug
+        return self.artefacts, self.events, self.rug, self.chosen
 
     def times(self) -> np.ndarray:
         """Times (s) of the event ticks drawn now."""
@@ -37,6 +40,7 @@ class EventMarks:
     def clear(self) -> None:
         self.events.setData([], [])
         self.artefacts.setData([], [])
+        self.chosen.setData([], [])
         self.rug.setVisible(False)
 
     def draw(self, bench, offsets: np.ndarray, lane: np.ndarray, spacing: float, a: int, z: int,
@@ -57,6 +61,7 @@ class EventMarks:
         if self.dense:
             self.events.setData([], [])
             self.artefacts.setData([], [])
+            self.chosen.setData([], [])
             self._draw_rug(ev.sample[i0:i1], lanes, passing & ~art, passing & art, offsets, spacing,
                            a, z, width, ev.rate_hz)
             return
@@ -67,6 +72,21 @@ class EventMarks:
             y[0::2] = top
             y[1::2] = top - MARK_LENGTH * spacing
             item.setData(np.repeat(ev.sample[i0 + idx] / ev.rate_hz, 2), y, connect="pairs")
+        self._draw_chosen(ev, lane, offsets, spacing, i0, i1)
+
+    def _draw_chosen(self, ev, lane, offsets, spacing, i0: int, i1: int) -> None:
+        """A marker in the unit's colour under the tick of each event of a selected unit."""
+        xs, ys, brushes = [], [], []
+        for rows, colour in self.highlights:
+            rows = rows[(rows >= i0) & (rows < i1)]
+            rows = rows[lane[ev.channel[rows]] >= 0]
+            xs.append(ev.sample[rows] / ev.rate_hz)
+            ys.append(offsets[lane[ev.channel[rows]]] + (MARK_TOP - MARK_LENGTH) * spacing)
+            brushes += [pg.mkBrush(*colour[:3])] * len(rows)
+        if brushes:
+            self.chosen.setData(np.concatenate(xs), np.concatenate(ys), brush=brushes)
+        else:
+            self.chosen.setData([], [])
 
     def _draw_rug(self, samples, lanes, events, artefacts, offsets, spacing, a, z, width, rate) -> None:
         n = len(offsets)

@@ -416,6 +416,11 @@ class TracePanel(Panel):
         a, z = self.visible_samples() if self.bench.recording is not None else (0, 0)
         self.marks.draw(self.bench, self.offsets, self.lane, self.spacing, a, z, max(200, int(self.vb.width())))
 
+    def highlight(self, rows_and_colours) -> None:
+        """Mark these events (rows of the event table) in one colour per set (selected units)."""
+        self.marks.highlights = [(np.asarray(r, dtype=np.int64), c) for r, c in rows_and_colours]
+        self._draw_markers()
+
     def set_spike_rows(self, key: str, rows) -> None:
         """Draw spike trains in a band above the traces, replacing those set before under ``key``.
 

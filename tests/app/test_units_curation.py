@@ -226,7 +226,7 @@ def test_unit_dialogs_return_what_was_entered(qtbot):
     assert spin_count(parts.k) == 2
 
 
-def test_selected_units_are_coloured_in_the_feature_view(demo_window):
+def test_selected_units_are_coloured_in_the_feature_and_trace_views(demo_window):
     win = demo_window
     ctl = win.units
     cluster_demo(win)
@@ -244,5 +244,14 @@ def test_selected_units_are_coloured_in_the_feature_view(demo_window):
     np.testing.assert_allclose(np.sort(x), np.sort(feats.column(feats.x_combo.currentText())[visible]))
     colour = feats.chosen.data["brush"][0].color()
     assert (colour.red(), colour.green(), colour.blue()) == tuple(ctl.unit_colour(u)[:3])
+    # the trace view marks the unit's events inside the visible window, in the same colour
+    marks = win.traces.marks
+    a, z = win.traces.visible_samples()
+    in_view = rows[(ev.sample[rows] >= a) & (ev.sample[rows] < z) & (win.traces.lane[ev.channel[rows]] >= 0)]
+    tx, _ = marks.chosen.getData()
+    np.testing.assert_allclose(np.sort(tx), np.sort(ev.sample[in_view] / ev.rate_hz))
+    assert len(tx) > 0
+    c = marks.chosen.data["brush"][0].color()
+    assert (c.red(), c.green(), c.blue()) == tuple(ctl.unit_colour(u)[:3])
     ctl.set_selection([])
-    assert len(feats.chosen.getData()[0]) == 0
+    assert len(feats.chosen.getData()[0]) == 0 and len(marks.chosen.getData()[0]) == 0
