@@ -24,6 +24,14 @@ from .progress import CancelFn, ProgressFn
 from .sorting import LABELS, CurationError, Delta, Sorting, Unit
 
 
+
+def _cluster_params(data: Any) -> ClusterParams:
+    """Clustering settings from a journal record; bad values are a refused step."""
+    try:
+        return ClusterParams.from_dict(data)
+    except ParamError as exc:
+        raise CurationError(str(exc)) from None
+
 class ClusterGroups(Operation):
     """Cluster channel groups afresh (all groups: the first pass), replacing their units."""
 
@@ -60,10 +68,7 @@ class ClusterGroups(Operation):
 
     @classmethod
     def _from_params(cls, p: dict[str, Any]) -> "ClusterGroups":
-        try:
-            params = ClusterParams.from_dict(p.pop("params"))
-        except ParamError as exc:
-            raise CurationError(str(exc)) from None
+        params = _cluster_params(p.pop("params"))
         groups = p.pop("groups")
         if groups is not None and not isinstance(groups, list):
             raise CurationError(f"groups must be a list or null, got {groups!r}")
@@ -238,10 +243,7 @@ class ReclusterUnit(Operation):
 
     @classmethod
     def _from_params(cls, p: dict[str, Any]) -> "ReclusterUnit":
-        try:
-            params = ClusterParams.from_dict(p.pop("params"))
-        except ParamError as exc:
-            raise CurationError(str(exc)) from None
+        params = _cluster_params(p.pop("params"))
         return cls(params=params, **p)
 
 
