@@ -10,8 +10,8 @@ from core.errors import RigsideError
 from core.progress import Cancelled
 
 EXIT_OK, EXIT_FAILURE, EXIT_INPUT, EXIT_CANCELLED = 0, 1, 2, 130
-COMMAND_MODULES = ("cmd_detect", "cmd_sort", "cmd_metrics", "cmd_audit", "cmd_window")
-COMMAND_HOME = {"detect": "cmd_detect", "synth": "cmd_detect", "sort": "cmd_sort", "export": "cmd_sort",
+COMMAND_MODULES = ("cmd_detect", "cmd_batch", "cmd_sort", "cmd_metrics", "cmd_audit", "cmd_window")
+COMMAND_HOME = {"detect": "cmd_detect", "synth": "cmd_detect", "batch": "cmd_batch", "sort": "cmd_sort", "export": "cmd_sort",
                 "metrics": "cmd_metrics", "audit": "cmd_audit", "open": "cmd_window", "demo": "cmd_window"}
 """Module registering each command: running one command imports only its module (start-up time)."""
 

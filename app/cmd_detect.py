@@ -3,16 +3,9 @@
 from __future__ import annotations
 
 import argparse
-import json
-from pathlib import Path
 
-import numpy as np
-
-from core import __version__
-from core.atomic import atomic_write
+from core.detect_run import detect_to_files
 from core.errors import ParamError
-from core.noise import estimate_noise
-from core.pipeline import NOISE_SHARE, detect, thresholds_sigma
 from core.synth import write_synth
 
 from .cli_common import add_param_options, add_recording_options, check_output, open_from_args, params_from_args
@@ -49,41 +42,14 @@ def run_detect(args: argparse.Namespace) -> int:
         check_output(args.summary, args.recording, suffixes=(".json",))
     params = params_from_args(args)
     rec = open_from_args(args)
-    params.validate(rec.rate_hz)
     bar = TextProgress(not args.quiet)
     try:
-        noise = estimate_noise(rec, params, progress=lambda f, m: bar(f * NOISE_SHARE, m))
-        events = detect(rec, params, progress=bar, noise=noise)
+        events = detect_to_files(rec, params, out, args.summary, args.keep_artefacts, progress=bar)
     finally:
         bar.close()
         rec.close()
-    keep = events.mask(threshold_sigma=None if params.detect.threshold_uv is not None else params.detect.threshold_sigma,
-                       threshold_uv=params.detect.threshold_uv, include_artefacts=args.keep_artefacts)
-    chosen = events.subset(keep)
-    if out.suffix.lower() == ".csv":
-        chosen.write_csv(out)
-    else:
-        chosen.write_h5(out)
-    if args.summary:
-        write_summary(Path(args.summary), rec, params, events, noise)
-    print(f"{int(keep.sum())} events on {rec.n_channels} channels in {rec.duration_s:.2f} s -> {out}")
+    print(f"{len(events)} events on {rec.n_channels} channels in {rec.duration_s:.2f} s -> {out}")
     return 0
-
-
-def write_summary(path: Path, rec, params, events, noise) -> None:
-    """JSON summary: parameters, duration, rate and per-channel noise, threshold and counts."""
-    thr = thresholds_sigma(params, events.sigma_uv)
-    counts = events.counts(threshold_sigma=np.where(np.isfinite(thr), thr, np.inf))
-    doc = {
-        "program": "rigside", "version": __version__, "recording": rec.describe(),
-        "parameters": params.to_dict(), "duration_s": rec.duration_s, "rate_hz": rec.rate_hz,
-        "artefact_events": int((events.artefact & events.mask(threshold_sigma=thr, include_artefacts=True)).sum()),
-        "channels": [{"channel": c, "group": int(rec.channel_group[c]), "noise_uv": float(events.sigma_uv[c]),
-                      "threshold_uv": float(thr[c] * events.sigma_uv[c]) if np.isfinite(thr[c]) and events.sigma_uv[c] > 0 else None,
-                      "events": int(counts[c]), "rate_hz": float(counts[c] / rec.duration_s),
-                      "flag": noise.bad.get(c)} for c in range(rec.n_channels)],
-    }
-    atomic_write(path, lambda tmp: tmp.write_text(json.dumps(doc, indent=2)))
 
 
 def run_synth(args: argparse.Namespace) -> int:
