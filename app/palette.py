@@ -62,6 +62,16 @@ def style_plot(plot: pg.PlotItem, x_label: str, y_label: str) -> None:
         axis.setCacheMode(QGraphicsItem.CacheMode.DeviceCoordinateCache)
 
 
+def make_plot(x_label: str = "", y_label: str = "") -> pg.PlotWidget:
+    """A plot widget without pyqtgraph's context menu and auto-range button, styled and labelled."""
+    w = pg.PlotWidget()
+    pi = w.getPlotItem()
+    pi.setMenuEnabled(False)
+    pi.hideButtons()
+    style_plot(pi, x_label, y_label)
+    return w
+
+
 def hex_colour(colour) -> str:
     return "#%02x%02x%02x" % tuple(colour[:3])
 

@@ -17,7 +17,7 @@ from PySide6.QtWidgets import QGridLayout, QHBoxLayout, QLabel, QPushButton, QVB
 
 from core.audit_views import PairView, UnitView
 from .. import palette
-from .unit_view_base import make_plot, step_curve
+from .unit_view_base import step_curve
 
 IMPORTED, FRESH = palette.BLUE, palette.ORANGE
 MAX_BLOCKS = 8          # channels drawn side by side at most (those with the largest waveforms)
@@ -90,9 +90,9 @@ class AuditPairPlots(QWidget):
         self.header.setWordWrap(True)
         self.header.setTextFormat(Qt.TextFormat.RichText)
         self.key = QLabel(key_text(None))
-        self.waveforms = make_plot("time from spike (ms), one block per channel", "filtered signal (µV)")
-        self.isi = make_plot("interval between consecutive spikes (ms); grey: refractory window", "intervals (count)")
-        self.amplitude = make_plot("time in the recording (s)", "amplitude (µV)")
+        self.waveforms = palette.make_plot("time from spike (ms), one block per channel", "filtered signal (µV)")
+        self.isi = palette.make_plot("interval between consecutive spikes (ms); grey: refractory window", "intervals (count)")
+        self.amplitude = palette.make_plot("time in the recording (s)", "amplitude (µV)")
         self.refractory = pg.LinearRegionItem(movable=False, brush=pg.mkBrush(*palette.GREY, 50),
                                               pen=palette.pen(palette.GREY))
         self.refractory.setZValue(-10)

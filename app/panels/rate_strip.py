@@ -30,12 +30,9 @@ class RateStripPanel(Panel):
         self._bin_of_event = np.zeros(0, dtype=np.int64)
         self.bin_s = 1.0
         self._placing = False
-        self.plot = pg.PlotWidget()
+        self.plot = palette.make_plot("time (s)", "events / s")
         pi = self.plot.getPlotItem()
-        pi.setMenuEnabled(False)
-        pi.hideButtons()
         pi.setMouseEnabled(x=False, y=False)
-        palette.style_plot(pi, "time (s)", "events / s")
         pi.getAxis("left").setWidth(56)
         self.rate = pg.PlotCurveItem(pen=palette.pen(palette.BLUE, 1.5),
                                      name="events, shown channels")

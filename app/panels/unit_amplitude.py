@@ -6,7 +6,7 @@ import numpy as np
 import pyqtgraph as pg
 
 from .. import palette
-from .unit_view_base import UnitView, make_plot
+from .unit_view_base import UnitView
 
 POINT_LIMIT = 30_000
 """More events than this per unit are drawn as an even subsample."""
@@ -17,7 +17,7 @@ class AmplitudeView(UnitView):
 
     def __init__(self, controller, parent=None):
         super().__init__(controller, parent)
-        self.plot = make_plot("time (s)", "peak (µV)")
+        self.plot = palette.make_plot("time (s)", "peak (µV)")
         self.finish_layout(self.plot)
         self.thresholds_uv: dict[int, float] = {}
         self.n_points = 0

@@ -7,7 +7,7 @@ from PySide6.QtWidgets import QHBoxLayout
 
 from core.correlograms import autocorrelogram, crosscorrelogram
 from .. import palette
-from .unit_view_base import UnitView, make_plot, spin, step_curve
+from .unit_view_base import UnitView, spin, step_curve
 
 
 class CorrelogramView(UnitView):
@@ -18,8 +18,8 @@ class CorrelogramView(UnitView):
         self.bin_ms = self.add_control("bin", spin(1.0, 0.1, 50, 0.5, " ms", 1, "correlogram bin width"))
         self.window_ms = self.add_control("window ±", spin(50, 2, 1000, 10, " ms", 0,
                                                            "largest lag shown (rounded to whole bins)"))
-        self.auto = make_plot("lag (ms)", "pairs (count)")
-        self.cross = make_plot("lag of B after A (ms)", "pairs (count)")
+        self.auto = palette.make_plot("lag (ms)", "pairs (count)")
+        self.cross = palette.make_plot("lag of B after A (ms)", "pairs (count)")
         pair = QHBoxLayout()
         pair.addWidget(self.auto, 1)
         pair.addWidget(self.cross, 1)

@@ -7,7 +7,7 @@ import pyqtgraph as pg
 from core.correlograms import isi_histogram
 from core.metrics import isi_violations
 from .. import palette
-from .unit_view_base import UnitView, make_plot, spin, step_curve
+from .unit_view_base import UnitView, spin, step_curve
 
 
 class IsiView(UnitView):
@@ -17,7 +17,7 @@ class IsiView(UnitView):
         super().__init__(controller, parent)
         self.bin_ms = self.add_control("bin", spin(0.5, 0.05, 50, 0.25, " ms", 2, "histogram bin width"))
         self.max_ms = self.add_control("up to", spin(50, 2, 2000, 10, " ms", 0, "longest interval shown"))
-        self.plot = make_plot("interval between consecutive spikes (ms)", "intervals (count)")
+        self.plot = palette.make_plot("interval between consecutive spikes (ms)", "intervals (count)")
         self.region = pg.LinearRegionItem(movable=False, brush=pg.mkBrush(*palette.GREY, 60),
                                           pen=palette.pen(palette.GREY))
         self.region.setZValue(-10)

@@ -70,10 +70,8 @@ class ClusterPlanePanel(Panel):
         for w in (self.split_button, self.choose_button, self.move_button):
             tools.addWidget(w)
         tools.addStretch(1)
-        self.plot = pg.PlotWidget()
+        self.plot = palette.make_plot()
         pi = self.plot.getPlotItem()
-        pi.setMenuEnabled(False)
-        pi.hideButtons()
         self.background = pg.ScatterPlotItem(size=3, pen=None, brush=pg.mkBrush(*palette.GREY, 70))
         self.chosen = pg.ScatterPlotItem(size=9, pen=palette.pen(palette.BLACK, 1.2), brush=None, symbol="o")
         self.chosen.setZValue(20)

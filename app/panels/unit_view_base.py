@@ -16,15 +16,6 @@ MAX_SHOWN = 6
 """At most this many selected units are drawn (the first ones selected)."""
 
 
-def make_plot(x_label: str, y_label: str) -> pg.PlotWidget:
-    w = pg.PlotWidget()
-    pi = w.getPlotItem()
-    pi.setMenuEnabled(False)
-    pi.hideButtons()
-    palette.style_plot(pi, x_label, y_label)
-    return w
-
-
 def spin(value: float, low: float, high: float, step: float, suffix: str, decimals: int = 1,
          tip: str = "") -> QDoubleSpinBox:
     s = QDoubleSpinBox()

@@ -10,7 +10,7 @@ from PySide6.QtWidgets import QSpinBox
 
 from core.snippets import event_snippets, snippet_times_ms
 from .. import palette
-from .unit_view_base import UnitView, make_plot
+from .unit_view_base import UnitView
 
 MAX_UNITS = 4
 MAX_CHANNELS = 8
@@ -39,7 +39,7 @@ class UnitWaveformView(UnitView):
         self.per_unit.setKeyboardTracking(False)
         self.per_unit.valueChanged.connect(self.refresh)
         self.add_control("events", self.per_unit)
-        self.plot = make_plot("time from peak (ms), one block per channel", "signal (µV)")
+        self.plot = palette.make_plot("time from peak (ms), one block per channel", "signal (µV)")
         self.finish_layout(self.plot)
         self.snippets: dict[int, tuple[np.ndarray, np.ndarray]] = {}
 

@@ -24,11 +24,8 @@ class WaveformPanel(Panel):
         self.snippets = None
         self.channels = np.zeros(0, dtype=np.int64)
         self.n_events = 0
-        self.plot = pg.PlotWidget()
+        self.plot = palette.make_plot("time from peak (ms), one block per channel", "µV")
         pi = self.plot.getPlotItem()
-        pi.setMenuEnabled(False)
-        pi.hideButtons()
-        palette.style_plot(pi, "time from peak (ms), one block per channel", "µV")
         self.overlay = pg.PlotCurveItem(pen=palette.pen((*palette.SKY, 90)), skipFiniteCheck=True)
         pi.addItem(self.overlay)
         self._bands: list[pg.FillBetweenItem] = []
