@@ -202,7 +202,9 @@ class TracePanel(Panel):
         lo, hi = self.offsets[-1] - 0.6 * self.spacing, 0.6 * self.spacing
         band = self.rows.layout(hi, hi - lo, self.vb.height())
         self.vb.setYRange(lo, hi + band, padding=0)
-        names = [(float(o), f"ch {c}") for o, c in zip(self.offsets, shown)]
+        out = {} if b.events is None else b.events.excluded
+        names = [(float(o), f"ch {c}" + (f" · {out[int(c)]}, left out" if int(c) in out else ""))
+                 for o, c in zip(self.offsets, shown)]
         axis.setTicks([names + self.rows.ticks(), []])
         axis.setWidth(max(AXIS_WIDTH, self.rows.label_width(axis.style["tickFont"] or axis.font()) + 12))
         self._draw_bands()
