@@ -414,6 +414,12 @@ class TracePanel(Panel):
         if lane >= 0:
             self.selected_curve.setData(t, shown[:, lane])
 
+    def clear_traces(self) -> None:
+        """Draw no samples (the recording cannot be shown)."""
+        self.block = None
+        self.curve.setData([], [])
+        self.selected_curve.setData([], [])
+
     def _draw_markers(self) -> None:
         a, z = self.visible_samples() if self.bench.recording is not None else (0, 0)
         self.marks.draw(self.bench, self.offsets, self.lane, self.spacing, a, z, max(200, int(self.vb.width())))
