@@ -5,11 +5,13 @@ from __future__ import annotations
 import argparse
 import sys
 
+import numpy as np
+
 from core.features import Features
 from core.pipeline import thresholds_sigma
 from core.session import load_session
 from core.unit_table import CAUTION, unit_metrics_for_events
-from core.unit_table_io import DEFAULT_LIMITS, flag_units, write_unit_table_csv
+from core.unit_table_io import DEFAULT_LIMITS, flag_units, undefined_units, write_unit_table_csv
 
 from .cli_common import check_output
 from .progressbar import TextProgress
@@ -51,8 +53,9 @@ def run_metrics(args: argparse.Namespace) -> int:
     labels = {u: sorting.unit(u).label for u in table["unit"].tolist()}
     table["label"] = [labels[u] for u in table["unit"].tolist()]
     write_unit_table_csv(table, out, mp)
-    flags = flag_units(table, DEFAULT_LIMITS)
-    flagged = sorted({int(u) for name, f in flags.items() for u, bad in zip(table["unit"], f) if bad})
-    print(f"{len(table['unit'])} units -> {out}; beyond a limit: {', '.join(map(str, flagged)) or 'none'}")
+    flagged = table["unit"][flag_units(table, DEFAULT_LIMITS)["any"]]
+    undefined = table["unit"][np.logical_or.reduce(list(undefined_units(table, DEFAULT_LIMITS).values()))]
+    print(f"{len(table['unit'])} units -> {out}; beyond a limit: {', '.join(map(str, flagged)) or 'none'}"
+          + (f"; a limited number undefined (not checked): {', '.join(map(str, undefined))}" if len(undefined) else ""))
     print(CAUTION, file=sys.stderr)
     return 0

@@ -154,7 +154,7 @@ class SortingController(QObject):
         table["unit"] = np.array(ids)
         out: dict[int, set[str]] = {u: set() for u in ids}
         for lim in self.limits:
-            beyond = flag_units(table, [lim])[lim.name] & np.isfinite(table[lim.column])
+            beyond = flag_units(table, [lim])[lim.name]
             for u in np.asarray(ids)[beyond]:
                 out[int(u)].add(lim.column)
         return out

@@ -71,7 +71,7 @@ def cell(row: dict, key: str, scale: float, fmt: str) -> SortItem:
         item.setToolTip(f"{row['shared_spikes']} shared of its {row['best_match_spikes']} spikes")
         return item
     if key == "notes":
-        parts = [p for p in (row["notes"], f"beyond limits: {row['quality_flags']}" if row["quality_flags"] else "") if p]
+        parts = [p for p in (row["notes"], f"quality: {row['quality_flags']}" if row["quality_flags"] else "") if p]
         item = SortItem("; ".join(parts), float(len(parts)))
         item.setToolTip("; ".join(parts))
         return item
