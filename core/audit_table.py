@@ -14,6 +14,7 @@ from pathlib import Path
 import numpy as np
 
 from .clustering import NO_UNIT
+from .params import censored_note, metric_settings
 from .unit_table import CAUTION as QUALITY_CAUTION
 from .unit_table import COLUMNS as QUALITY_COLUMNS
 from .unit_table_io import quality_flag_text, write_described_csv
@@ -145,9 +146,10 @@ def write_audit_csv(result, path: str | Path, caution: str) -> Path:
     """
     t = result.table
     s = result.settings
+    mp = metric_settings(result.fresh.params)
     settings = ", ".join([f"tolerance_ms = {s.tolerance_ms:g}", f"spread_share = {s.spread_share:g}"]
-                         + [f"{k} = {v:g}" for k, v in asdict(result.fresh.params.metrics).items()])
+                         + [f"{k} = {v:g}" for k, v in asdict(mp).items()])
     header = ["rigside audit of an imported sorting",
               f"imported: {result.spikes.source}; compared with: {result.fresh.source}",
-              caution, QUALITY_CAUTION, f"settings: {settings}"]
+              caution, QUALITY_CAUTION, f"settings: {settings}", censored_note(mp)]
     return write_described_csv(path, header, ALL_COLUMNS, list(ALL_COLUMNS), t, _cell)

@@ -18,6 +18,7 @@ import numpy as np
 
 from .atomic import atomic_write
 from .errors import ParamError, RigsideError
+from .params import censored_note
 from .unit_table import CAUTION, COLUMNS, INT_COLUMNS, MetricParams
 
 
@@ -141,7 +142,8 @@ def write_unit_table_csv(table: dict[str, np.ndarray], path: str | Path,
         raise RigsideError("unit table columns must all have one row per unit, got differing lengths")
     settings = ", ".join(f"{k} = {v:g}" for k, v in asdict(params or MetricParams()).items())
     columns = list(COLUMNS) + [c for c in table if c not in COLUMNS]
-    return write_described_csv(path, ["rigside unit quality table", CAUTION, f"settings: {settings}"],
+    header = ["rigside unit quality table", CAUTION, f"settings: {settings}", censored_note(params or MetricParams())]
+    return write_described_csv(path, header,
                                COLUMNS, columns, table, _cell)
 
 
