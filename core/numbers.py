@@ -12,7 +12,7 @@ FLOOR = 1e-4
 """Magnitudes below this (and above 0) are shown as "< 0.0001"."""
 
 
-def format_number(x: float | None, digits: int = 3, floor: float = FLOOR) -> str:
+def format_number(x: float | None, digits: int = 3, floor: float = FLOOR, signed: bool = False) -> str:
     """Text for one number: ``digits`` significant digits, "< 0.0001" below the floor,
     thousands separated above 1000, "undefined" for NaN or None.
 
@@ -24,6 +24,8 @@ def format_number(x: float | None, digits: int = 3, floor: float = FLOOR) -> str
         Significant digits (at least 1).
     floor
         Smallest magnitude shown as a number.
+    signed
+        Put "+" before positive values (changes, drifts).
 
     Returns
     -------
@@ -41,7 +43,8 @@ def format_number(x: float | None, digits: int = 3, floor: float = FLOOR) -> str
     if a < floor:
         return f"< {floor:g}" if x > 0 else f"> -{floor:g}"
     if a >= 1000:
-        return f"{x:,.0f}"
+        return f"{x:+,.0f}" if signed else f"{x:,.0f}"
     decimals = max(0, digits - 1 - math.floor(math.log10(a)))
     text = f"{x:.{decimals}f}"
-    return text.rstrip("0").rstrip(".") if "." in text else text
+    text = text.rstrip("0").rstrip(".") if "." in text else text
+    return f"+{text}" if signed and x > 0 else text

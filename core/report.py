@@ -8,7 +8,6 @@ ISI histograms and amplitude over time.
 
 from __future__ import annotations
 
-import math
 from html import escape
 from pathlib import Path
 
@@ -20,6 +19,7 @@ from .audit import CAUTION, AuditResult
 from .audit_imported import WaveformSummary
 from .correlograms import isi_histogram
 from .journal import utc_now
+from .numbers import format_number
 from .params import censored_note, metric_settings
 from .svg_plot import Axes, auto_axes, heatmap
 from .unit_table import CAUTION as QUALITY_CAUTION
@@ -41,7 +41,7 @@ margin:0 4px 0 12px;vertical-align:middle}"""
 
 def _value(v) -> str:
     if isinstance(v, (float, np.floating)):
-        return "" if math.isnan(v) else f"{v:.3g}"
+        return format_number(float(v))
     return escape(str(v))
 
 

@@ -16,6 +16,7 @@ from PySide6.QtGui import QBrush, QColor, QFont
 from PySide6.QtWidgets import QAbstractItemView, QHeaderView, QLabel, QTableView, QVBoxLayout
 
 from core.unit_table import CAUTION, COLUMNS
+from core.numbers import format_number
 from core.unit_table_io import reason_column
 from .. import palette
 from .base import Panel
@@ -102,7 +103,8 @@ class UnitTableModel(QAbstractTableModel):
             return value
         if isinstance(value, float) and not math.isfinite(value):
             return "—"
-        body = format(value * scale, fmt) if fmt else str(value)
+        body = str(int(value)) if fmt == "d" else format_number(value * scale, signed=fmt.startswith("+")) \
+            if fmt else str(value)
         return ("! " + body) if self.flagged(row, key) else body
 
     def data(self, index, role=Qt.ItemDataRole.DisplayRole):

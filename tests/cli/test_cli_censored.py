@@ -43,3 +43,7 @@ def test_metrics_and_audit_agree_on_contamination(tmp_path, capsys):
     note = "censored period 1 ms (the detection dead time unless set)"
     assert any(note in c for c in m_comments) and any(note in c for c in a_comments)
     assert note in (d / "r.html").read_text(encoding="utf-8")
+    # numbers a person reads carry no exponent (the CSV data columns keep full precision)
+    import re
+    text = re.sub(r"<svg.*?</svg>", "", (d / "r.html").read_text(encoding="utf-8"), flags=re.S)
+    assert not re.search(r"\d(\.\d+)?e[-+]\d", text)
