@@ -6,6 +6,7 @@ import argparse
 
 from core.detect_run import detect_to_files
 from core.errors import ParamError
+from core.noise import exclusion_notes
 from core.synth import write_synth
 
 from .cli_common import add_param_options, add_recording_options, check_output, open_from_args, params_from_args
@@ -44,11 +45,15 @@ def run_detect(args: argparse.Namespace) -> int:
     rec = open_from_args(args)
     bar = TextProgress(not args.quiet)
     try:
-        events = detect_to_files(rec, params, out, args.summary, args.keep_artefacts, progress=bar)
+        done = detect_to_files(rec, params, out, args.summary, args.keep_artefacts, progress=bar)
     finally:
         bar.close()
         rec.close()
-    print(f"{len(events)} events on {rec.n_channels} channels in {rec.duration_s:.2f} s -> {out}")
+    why = (f" ({done.artefacts_left_out:,} artefacts left out; --keep-artefacts writes them)"
+           if done.artefacts_left_out else "")
+    print(f"{len(done.events):,} events{why} on {rec.n_channels} channels in {rec.duration_s:.2f} s -> {out}")
+    for note in exclusion_notes(rec.groups, rec.group_names, done.events.excluded):
+        print(f"note: {note}")
     return 0
 
 

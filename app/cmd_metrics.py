@@ -5,11 +5,14 @@ from __future__ import annotations
 import argparse
 import sys
 
+import numpy as np
+
 from core.features import Features
+from core.params import censored_note, metric_settings
 from core.pipeline import thresholds_sigma
 from core.session import load_session
 from core.unit_table import CAUTION, unit_metrics_for_events
-from core.unit_table_io import DEFAULT_LIMITS, flag_units, write_unit_table_csv
+from core.unit_table_io import DEFAULT_LIMITS, flag_units, undefined_units, write_unit_table_csv
 
 from .cli_common import check_output
 from .progressbar import TextProgress
@@ -25,7 +28,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--out", required=True, metavar="METRICS.csv", help="CSV file to write")
     p.add_argument("--refractory-ms", type=float, help="refractory period (default from the session, 1.5 ms)")
     p.add_argument("--censored-ms", type=float,
-                   help="censored period (default: the detection dead time, since shorter intervals cannot be seen)")
+                   help="censored period (default: the session's, else the detection dead time, since shorter "
+                        "intervals cannot be seen)")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(func=run_metrics)
 
@@ -34,12 +38,9 @@ def run_metrics(args: argparse.Namespace) -> int:
     out = check_output(args.out, args.session, suffixes=(".csv",))
     session = load_session(args.session, check_recording=False)
     params = session.params
-    mp = params.metrics
     if args.refractory_ms is not None:
-        mp.refractory_ms = args.refractory_ms
-    mp.censored_ms = args.censored_ms if args.censored_ms is not None else \
-        min(params.detect.dead_time_ms, 0.99 * mp.refractory_ms)
-    mp.validate()
+        params.metrics.refractory_ms = args.refractory_ms
+    mp = metric_settings(params, args.censored_ms)
     events, sorting = session.events, session.sorting
     features = Features(sorting.data.features, list(sorting.data.feature_names))
     bar = TextProgress(not args.quiet)
@@ -51,8 +52,10 @@ def run_metrics(args: argparse.Namespace) -> int:
     labels = {u: sorting.unit(u).label for u in table["unit"].tolist()}
     table["label"] = [labels[u] for u in table["unit"].tolist()]
     write_unit_table_csv(table, out, mp)
-    flags = flag_units(table, DEFAULT_LIMITS)
-    flagged = sorted({int(u) for name, f in flags.items() for u, bad in zip(table["unit"], f) if bad})
-    print(f"{len(table['unit'])} units -> {out}; beyond a limit: {', '.join(map(str, flagged)) or 'none'}")
+    flagged = table["unit"][flag_units(table, DEFAULT_LIMITS)["any"]]
+    undefined = table["unit"][np.logical_or.reduce(list(undefined_units(table, DEFAULT_LIMITS).values()))]
+    print(f"{len(table['unit'])} units -> {out}; beyond a limit: {', '.join(map(str, flagged)) or 'none'}"
+          + (f"; a limited number undefined (not checked): {', '.join(map(str, undefined))}" if len(undefined) else ""))
+    print(censored_note(mp))
     print(CAUTION, file=sys.stderr)
     return 0

@@ -7,6 +7,7 @@ from pathlib import Path
 
 from core.errors import ParamError
 from core.export import export_units
+from core.noise import exclusion_notes
 from core.session import load_session
 from core.sort_run import run_sort
 
@@ -53,7 +54,12 @@ def run_sort_command(args: argparse.Namespace) -> int:
         bar.close()
         rec.close()
     n_units = len(session.sorting.units)
-    print(f"{len(session.events)} events, {n_units} units in {len(rec.groups)} groups -> {args.session}")
+    ev = session.events
+    n_art = int(ev.artefact.sum())
+    why = f" ({n_art:,} artefacts kept for sorting, in no unit)" if n_art else ""
+    print(f"{len(ev):,} events{why}, {n_units} units in {len(rec.groups)} groups -> {args.session}")
+    for note in exclusion_notes(rec.groups, rec.group_names, ev.excluded):
+        print(f"note: {note}")
     return 0
 
 

@@ -34,11 +34,19 @@ class Signal:
         self._slots.append(ref)
 
     def emit(self, *args: Any) -> None:
+        """Call every callback; the first error is raised after all have run, so that one
+        failing panel never leaves the others showing the previous state."""
+        first: Exception | None = None
         for ref in list(self._slots):
             fn = ref()
             if fn is not None:
-                fn(*args)
+                try:
+                    fn(*args)
+                except Exception as exc:  # re-raised below, once every callback has run
+                    first = first or exc
         self._slots = [r for r in self._slots if r() is not None]
+        if first is not None:
+            raise first
 
 
 @dataclass

@@ -8,7 +8,6 @@ quality numbers of the touched units only are recomputed off the GUI thread. Fil
 
 from __future__ import annotations
 
-from dataclasses import replace
 
 import numpy as np
 from PySide6.QtCore import QObject, Signal
@@ -21,7 +20,7 @@ from core.first_pass import first_pass
 from core.journal import UndoStack
 from core.operations import (ClusterGroups, MergeUnits, MoveEvents, ReclusterUnit, Relabel, SetNote,
                              SplitByPolygon)
-from core.params import Params
+from core.params import Params, metric_settings
 from core.pipeline import thresholds_sigma
 from core.session import RecordingRef, Session
 from core.unit_table import unit_metrics_for_events
@@ -37,16 +36,6 @@ SELECTION_COLOURS = (palette.BLUE, palette.VERMILLION, palette.GREEN, palette.OR
 SLOW_STEPS = (ClusterGroups, ReclusterUnit)
 CURATION_SLOT = "curation"
 METRICS_SLOT = "unit_metrics"
-
-
-def metric_params(params: Params):
-    """The session's metric settings, the censored period defaulting to the detection dead time
-    (shorter intervals cannot be seen), as the headless metrics command does."""
-    mp = replace(params.metrics)
-    if mp.censored_ms == 0.0:
-        mp.censored_ms = min(params.detect.dead_time_ms, 0.99 * mp.refractory_ms)
-    mp.validate()
-    return mp
 
 
 def _first_pass_job(events, features, cluster_params, progress=None, cancel=None):
@@ -142,7 +131,7 @@ class SortingController(QObject):
         return thresholds_sigma(self.session.params, self.events.sigma_uv)
 
     def metric_settings(self):
-        return metric_params(self.session.params)
+        return metric_settings(self.session.params)
 
     def flags(self) -> dict[int, set[str]]:
         """For each unit with quality numbers, the columns beyond their limits (undefined
@@ -154,7 +143,7 @@ class SortingController(QObject):
         table["unit"] = np.array(ids)
         out: dict[int, set[str]] = {u: set() for u in ids}
         for lim in self.limits:
-            beyond = flag_units(table, [lim])[lim.name] & np.isfinite(table[lim.column])
+            beyond = flag_units(table, [lim])[lim.name]
             for u in np.asarray(ids)[beyond]:
                 out[int(u)].add(lim.column)
         return out

@@ -247,6 +247,9 @@ class MainWindow(QMainWindow):
         try:
             self.bench.set_recording(rec, params, sos)
         except RigsideError as exc:  # e.g. samples that cannot be read where the view starts
+            self.setWindowTitle(f"rigside — {Path(path).name} — cannot be shown")
+            self.traces.clear_traces()
+            self._show_failed(f"This recording cannot be shown: {exc}")
             self.show_error("Cannot show the recording", str(exc))
             return False
         self.central.setCurrentWidget(self.traces)
@@ -287,6 +290,16 @@ class MainWindow(QMainWindow):
             self.analysis_outcome = outcome
             if outcome == "cancelled":
                 self.statusBar().showMessage("Detection cancelled. Press F5 to detect again.", 15000)
+                self.panels["threshold"].show_state("Detection cancelled. Press F5 to detect again.")
+            else:
+                mine = self.last_error is not None and self.last_error[0] == f"{ANALYSIS_LABEL} failed"
+                reason = self.last_error[1] if mine else "see the message"
+                self.panels["threshold"].show_state(f"Detection failed: {reason}")
+
+    def _show_failed(self, text: str) -> None:
+        """No detection for the current recording: say so where the counts would be."""
+        self.analysis_outcome = "failed"
+        self.panels["threshold"].show_state(text)
 
     def _on_analysis(self, result) -> None:
         noise, events, truth = result

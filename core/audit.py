@@ -27,7 +27,7 @@ from .features import Features
 from .filtering import BandPass
 from .matching import agreement_matrix, jaccard, match_times
 from .metric_inputs import positive
-from .params import Params
+from .params import Params, metric_settings
 from .pipeline import thresholds_sigma
 from .progress import CancelFn, ProgressFn, check, report
 from .recording import Recording
@@ -260,7 +260,7 @@ def run_audit(recording: Recording, spikes: SpikeTrains, fresh: FreshUnits,
     n_fresh = np.bincount(np.searchsorted(fresh_ids, sorting.assignments[assigned]), minlength=len(fresh_ids))
     agreement = jaccard(matches, n_imp, n_fresh)
     quality, amplitude = imported_quality(recording, params, spikes, placements, events, free,
-                                          params.metrics, cancel=cancel,
+                                          metric_settings(params), cancel=cancel,
                                           progress=lambda f, m: report(progress, 0.2 + 0.65 * f, m),
                                           separation_events=settings.separation_events)
     best = np.full(len(imp_ids), -1)                # column of the best match, -1: none shares a spike
@@ -288,5 +288,5 @@ def _fresh_quality(fresh: FreshUnits, unit_ids: np.ndarray, cancel: CancelFn) ->
     has_pcs = any(n.startswith("PC") for n in feats.names)
     return unit_metrics_for_events(fresh.events, fresh.sorting.assignments, feats if has_pcs else None,
                                    metric_thresholds(fresh.params, fresh.events.sigma_uv),
-                                   fresh.params.metrics, cancel=cancel,
+                                   metric_settings(fresh.params), cancel=cancel,
                                    only_units=np.asarray(unit_ids, dtype=np.int64))

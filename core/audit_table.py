@@ -14,9 +14,10 @@ from pathlib import Path
 import numpy as np
 
 from .clustering import NO_UNIT
+from .params import censored_note, metric_settings
 from .unit_table import CAUTION as QUALITY_CAUTION
 from .unit_table import COLUMNS as QUALITY_COLUMNS
-from .unit_table_io import flag_units, write_described_csv
+from .unit_table_io import quality_flag_text, write_described_csv
 
 AUDIT_COLUMNS: dict[str, str] = {
     "unit": "imported unit id",
@@ -38,7 +39,8 @@ AUDIT_COLUMNS: dict[str, str] = {
     "spread_over": "fresh units holding at least the spread share of the unit's spikes (share in "
                    "brackets); two or more suggest merged units",
     "notes": "findings worth a look",
-    "quality_flags": "quality limits the unit is beyond (or whose metric is undefined)",
+    "quality_flags": "quality limits the unit is beyond, and limited numbers that are undefined "
+                     "(\"undefined: <reason>\", never counted as beyond)",
 }
 QUALITY_PART = {k: v for k, v in QUALITY_COLUMNS.items() if k != "unit"}
 QUALITY_PART.update({
@@ -93,9 +95,7 @@ def audit_rows(imp_ids, fresh_ids, matches, agreement, best, n_imp, n_fresh, sup
         notes.append(_notes(i, big, has, best, t, is_best_of, imp_ids, fresh_ids, settings))
     t["spread_over"] = np.array(spread, dtype=object)
     t["notes"] = np.array(notes, dtype=object)
-    flags = flag_units(quality)
-    names = [k for k in flags if k != "any"]
-    t["quality_flags"] = np.array(["; ".join(n for n in names if flags[n][i]) for i in range(m)], dtype=object)
+    t["quality_flags"] = np.array(quality_flag_text(quality), dtype=object)
     for k in QUALITY_PART:
         t[k] = quality[k]
     return t
@@ -146,9 +146,10 @@ def write_audit_csv(result, path: str | Path, caution: str) -> Path:
     """
     t = result.table
     s = result.settings
+    mp = metric_settings(result.fresh.params)
     settings = ", ".join([f"tolerance_ms = {s.tolerance_ms:g}", f"spread_share = {s.spread_share:g}"]
-                         + [f"{k} = {v:g}" for k, v in asdict(result.fresh.params.metrics).items()])
+                         + [f"{k} = {v:g}" for k, v in asdict(mp).items()])
     header = ["rigside audit of an imported sorting",
               f"imported: {result.spikes.source}; compared with: {result.fresh.source}",
-              caution, QUALITY_CAUTION, f"settings: {settings}"]
+              caution, QUALITY_CAUTION, f"settings: {settings}", censored_note(mp)]
     return write_described_csv(path, header, ALL_COLUMNS, list(ALL_COLUMNS), t, _cell)

@@ -41,9 +41,9 @@ def run_one(path: str, out_dir: str, params: Params, layout: dict, fmt: str = "c
     try:
         rec = open_recording(path, **layout)
         try:
-            events = detect_to_files(rec, params, Path(out_dir) / f"{stem}.events.{fmt}",
-                                     Path(out_dir) / f"{stem}.summary.json")
-            return BatchOutcome(str(path), "done", len(events), rec.duration_s, time.perf_counter() - start)
+            done = detect_to_files(rec, params, Path(out_dir) / f"{stem}.events.{fmt}",
+                                   Path(out_dir) / f"{stem}.summary.json")
+            return BatchOutcome(str(path), "done", len(done.events), rec.duration_s, time.perf_counter() - start)
         finally:
             rec.close()
     except (RigsideError, OSError) as exc:

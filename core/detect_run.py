@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
@@ -10,16 +11,24 @@ import numpy as np
 from . import __version__
 from .atomic import atomic_write
 from .events import EventTable
-from .noise import NoiseEstimate, estimate_noise
+from .noise import NoiseEstimate, estimate_noise, exclusion_notes, groups_without_usable_channel
 from .params import Params
 from .pipeline import NOISE_SHARE, detect, thresholds_sigma
 from .progress import CancelFn, ProgressFn, report
 from .recording import Recording
 
 
+@dataclass(frozen=True)
+class DetectOutput:
+    """What a detection run wrote: the events, and the artefacts at the threshold left out."""
+
+    events: EventTable
+    artefacts_left_out: int
+
+
 def detect_to_files(recording: Recording, params: Params, out: str | Path, summary: str | Path | None = None,
                     keep_artefacts: bool = False, progress: ProgressFn = None,
-                    cancel: CancelFn = None) -> EventTable:
+                    cancel: CancelFn = None) -> DetectOutput:
     """Detect events and write those at the threshold to ``out`` (.csv or .h5), and a summary.
 
     Parameters
@@ -37,13 +46,15 @@ def detect_to_files(recording: Recording, params: Params, out: str | Path, summa
 
     Returns
     -------
-    EventTable
-        The events written.
+    DetectOutput
+        The events written and how many artefact events at the threshold were left out
+        (0 with ``keep_artefacts``).
     """
     params.validate(recording.rate_hz)
     noise = estimate_noise(recording, params, cancel=cancel, progress=lambda f, m: report(progress, f * NOISE_SHARE, m))
     events = detect(recording, params, progress=progress, cancel=cancel, noise=noise)
     thr = thresholds_sigma(params, events.sigma_uv)
+    at_threshold = events.mask(threshold_sigma=thr, include_artefacts=True)
     chosen = events.subset(events.mask(threshold_sigma=thr, include_artefacts=keep_artefacts))
     if Path(out).suffix.lower() == ".csv":
         chosen.write_csv(out)
@@ -51,7 +62,7 @@ def detect_to_files(recording: Recording, params: Params, out: str | Path, summa
         chosen.write_h5(out)
     if summary is not None:
         write_summary(Path(summary), recording, params, events, noise)
-    return chosen
+    return DetectOutput(chosen, int(at_threshold.sum()) - len(chosen))
 
 
 def write_summary(path: Path, rec: Recording, params: Params, events: EventTable, noise: NoiseEstimate) -> None:
@@ -65,6 +76,11 @@ def write_summary(path: Path, rec: Recording, params: Params, events: EventTable
         "channels": [{"channel": c, "group": int(rec.channel_group[c]), "noise_uv": float(events.sigma_uv[c]),
                       "threshold_uv": float(thr[c] * events.sigma_uv[c]) if np.isfinite(thr[c]) and events.sigma_uv[c] > 0 else None,
                       "events": int(counts[c]), "rate_hz": float(counts[c] / rec.duration_s),
-                      "flag": noise.bad.get(c)} for c in range(rec.n_channels)],
+                      "flag": noise.bad.get(c), "excluded": c in events.excluded}
+                     for c in range(rec.n_channels)],
+        "excluded_channels": [{"channel": c, "flag": r} for c, r in sorted(events.excluded.items())],
+        "skipped_groups": [{"group": gi, "name": rec.group_names[gi], "note": "no usable channel"}
+                           for gi in groups_without_usable_channel(rec.groups, events.excluded)],
+        "notes": exclusion_notes(rec.groups, rec.group_names, events.excluded),
     }
     atomic_write(path, lambda tmp: tmp.write_text(json.dumps(doc, indent=2)))

@@ -151,9 +151,10 @@ def detect_block(y: np.ndarray, first_sample: int, lo: int, hi: int, sigma_uv: n
     lo, hi
         The block's own range (indices into ``y``).
     sigma_uv
-        Noise sigma per channel; zero marks a dead channel (never detected).
+        Noise sigma per channel; zero marks a dead channel (never detected, and out of its
+        group's envelope and of the artefact rule).
     groups
-        Channel index arrays, one per group.
+        Channel index arrays, one per group; a group with no live channel has no events.
     polarity, floor_sigma, dead_samples
         Detection polarity, the lowest amplitude kept (sigma) and the dead time (samples).
     artefact_sigma, artefact_fraction, artefact_window
@@ -170,10 +171,17 @@ def detect_block(y: np.ndarray, first_sample: int, lo: int, hi: int, sigma_uv: n
     # a spike can reach every channel of its own group: an artefact must reach more channels
     # than the largest group holds (so recordings with one group have no artefact rule)
     art_count = max(int(np.ceil(artefact_fraction * live)), max(len(g) for g in groups) + 1)
-    gch = np.concatenate(groups).astype(np.int64)
-    goff = np.concatenate([[0], np.cumsum([len(g) for g in groups])]).astype(np.int64)
+    live_groups = [(gi, g[inv[g] > 0]) for gi, g in enumerate(groups)]
+    live_groups = [(gi, g) for gi, g in live_groups if len(g)]
+    if not live_groups:
+        empty = np.empty(0)
+        return BlockEvents(empty.astype(np.int64), empty.astype(np.int32), empty.astype(np.int32),
+                           empty.astype(np.float32), empty.astype(np.float32), empty.astype(np.bool_))
+    group_index = np.array([gi for gi, _ in live_groups], dtype=np.int32)
+    gch = np.concatenate([g for _, g in live_groups]).astype(np.int64)
+    goff = np.concatenate([[0], np.cumsum([len(g) for _, g in live_groups])]).astype(np.int64)
     t, c, g, a, s, art = _detect_block(np.ascontiguousarray(y, dtype=np.float32), inv,
                                        POLARITY_CODE[polarity], gch, goff, np.float32(floor_sigma),
                                        int(dead_samples), int(lo), int(hi), np.float32(artefact_sigma),
                                        art_count, int(artefact_window))
-    return BlockEvents(t + first_sample, c, g, a, s, art)
+    return BlockEvents(t + first_sample, c, group_index[g], a, s, art)

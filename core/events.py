@@ -8,6 +8,7 @@ from a look-up, without re-reading the recording.
 from __future__ import annotations
 
 import csv
+import json
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -44,6 +45,8 @@ class EventTable:
         Events were kept down to this many sigma; look-ups below it are not exact.
     polarity
         "negative", "positive" or "both".
+    excluded
+        Channel -> flag ("dead", "saturated") for channels left out of detection.
     """
 
     sample: np.ndarray
@@ -57,12 +60,14 @@ class EventTable:
     sigma_uv: np.ndarray
     floor_sigma: float
     polarity: str = "negative"
+    excluded: dict[int, str] = field(default_factory=dict)
     _by_channel: dict = field(default_factory=dict, repr=False, compare=False)
 
     def __post_init__(self) -> None:
         for name, dtype in COLUMNS.items():
             setattr(self, name, np.ascontiguousarray(getattr(self, name), dtype=dtype))
         self.sigma_uv = np.asarray(self.sigma_uv, dtype=np.float64)
+        self.excluded = {int(c): str(r) for c, r in self.excluded.items()}
         n = len(self.sample)
         if any(len(getattr(self, c)) != n for c in COLUMNS):
             raise RigsideError("event columns must all have the same length, got "
@@ -140,7 +145,7 @@ class EventTable:
         cols = {c: getattr(self, c)[keep] for c in COLUMNS}
         return EventTable(**cols, rate_hz=self.rate_hz, n_samples=self.n_samples,
                           sigma_uv=self.sigma_uv.copy(), floor_sigma=self.floor_sigma,
-                          polarity=self.polarity)
+                          polarity=self.polarity, excluded=dict(self.excluded))
 
     # ---- files -------------------------------------------------------------------------
     def write_csv(self, path: str | Path) -> None:
@@ -169,7 +174,8 @@ class EventTable:
                              shuffle=True) if len(self) else g.create_dataset(c, data=getattr(self, c))
         g.create_dataset("sigma_uv", data=self.sigma_uv)
         g.attrs.update(rate_hz=self.rate_hz, n_samples=self.n_samples,
-                       floor_sigma=self.floor_sigma, polarity=self.polarity)
+                       floor_sigma=self.floor_sigma, polarity=self.polarity,
+                       excluded_channels=json.dumps({str(c): r for c, r in self.excluded.items()}))
 
     @classmethod
     def from_h5_group(cls, g: h5py.Group) -> "EventTable":
@@ -181,7 +187,7 @@ class EventTable:
         cols = {c: np.asarray(g[c][()]) for c in COLUMNS}
         t = cls(**cols, rate_hz=float(g.attrs["rate_hz"]), n_samples=int(g.attrs["n_samples"]),
                 sigma_uv=np.asarray(g["sigma_uv"][()]), floor_sigma=float(g.attrs["floor_sigma"]),
-                polarity=str(g.attrs["polarity"]))
+                polarity=str(g.attrs["polarity"]), excluded=_read_excluded(g, len(g["sigma_uv"])))
         if len(t) and (np.any(np.diff(t.sample) < 0) or t.sample[0] < 0 or t.sample[-1] >= t.n_samples
                        or t.channel.min() < 0 or t.channel.max() >= t.n_channels):
             raise RigsideError("event table must hold time-sorted samples inside the recording and "
@@ -197,3 +203,18 @@ class EventTable:
                 return cls.from_h5_group(f[group])
         except OSError as exc:
             raise RigsideError(f"event file must be a readable HDF5 file, got {str(path)!r}: {exc}") from None
+
+
+def _read_excluded(g: h5py.Group, n_channels: int) -> dict[int, str]:
+    """The stored excluded channels (none in files written before they were recorded)."""
+    text = g.attrs.get("excluded_channels", "{}")
+    try:
+        doc = json.loads(text)
+        if not all(isinstance(r, str) for r in doc.values()):
+            raise TypeError
+        out = {int(c): r for c, r in doc.items()}
+    except (TypeError, ValueError, AttributeError, RecursionError):
+        raise RigsideError(f"excluded channels must be a JSON object of channel: flag, got {str(text)[:40]!r}") from None
+    if any(not 0 <= c < n_channels for c in out):
+        raise RigsideError(f"excluded channels must lie in 0..{n_channels - 1}, got {sorted(out)}")
+    return out

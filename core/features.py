@@ -2,8 +2,8 @@
 
 Snippets are first aligned to the sub-sample position of their peak (see
 :func:`core.snippets.align_subsample`). PCA (scikit-learn) is fitted per channel group on a
-seeded random subset of the group's snippets (all channels of the group concatenated), then
-applied to every event.
+seeded random subset of the group's snippets (all usable channels of the group concatenated:
+channels flagged dead or saturated are left out), then applied to every event.
 Shape features, on the event's own channel: signed peak (uV), trough-to-peak width (ms:
 from the peak to the largest excursion of the opposite sign after it) and energy (mean
 squared amplitude over the window and the group's channels, uV^2).
@@ -59,6 +59,11 @@ def shape_features(snips: np.ndarray, own: np.ndarray, before: int, rate_hz: flo
     return np.column_stack([peak, width, energy]).astype(np.float32)
 
 
+def usable_channels(channels: np.ndarray, excluded: dict[int, str]) -> np.ndarray:
+    """The channels of a group that are not excluded (dead or saturated)."""
+    return np.asarray([c for c in channels if int(c) not in excluded], dtype=np.int64)
+
+
 def compute_features(recording: Recording, events: EventTable, params: Params, progress: ProgressFn = None,
                      cancel: CancelFn = None, index: np.ndarray | None = None) -> Features:
     """PCA and shape features for every event (or the events in ``index``).
@@ -93,7 +98,7 @@ def compute_features(recording: Recording, events: EventTable, params: Params, p
     for g in groups:
         rows = np.flatnonzero(events.group[idx_all] == g)
         rows = rows[np.argsort(events.sample[idx_all[rows]], kind="stable")]
-        channels = recording.groups[int(g)]
+        channels = usable_channels(recording.groups[int(g)], events.excluded)
         own_col = np.searchsorted(channels, events.channel[idx_all[rows]]) if np.all(np.diff(channels) > 0) \
             else np.array([int(np.flatnonzero(channels == c)[0]) for c in events.channel[idx_all[rows]]])
         fit = np.sort(rng.choice(len(rows), size=min(len(rows), sp.pca_fit_events), replace=False))

@@ -16,6 +16,8 @@ from .progress import CancelFn, ProgressFn, check, report
 from .recording import Recording
 
 NORMAL_MAD = 0.6744897501960817  # Phi^-1(0.75)
+EXCLUDED_FLAGS = ("dead", "saturated")
+"""Flags whose channels take no part in detection, features or clustering ("noisy" ones do)."""
 
 
 def robust_sigma(x: np.ndarray, axis: int = 0) -> np.ndarray:
@@ -55,6 +57,11 @@ class NoiseEstimate:
     window_start_s: np.ndarray
     window_sigma_uv: np.ndarray
     bad: dict[int, str] = field(default_factory=dict)
+
+    @property
+    def excluded(self) -> dict[int, str]:
+        """Channel -> reason for the flagged channels left out of detection (dead, saturated)."""
+        return {c: r for c, r in self.bad.items() if r in EXCLUDED_FLAGS}
 
 
 def window_starts(n_samples: int, window: int, n_windows: int, seed: int) -> np.ndarray:
@@ -128,3 +135,20 @@ def flag_bad(sigma_uv: np.ndarray, rail_fraction: np.ndarray, noisy_factor: floa
         elif med > 0 and s > noisy_factor * med:
             bad[c] = "noisy"
     return bad
+
+
+def groups_without_usable_channel(groups: list[np.ndarray], excluded: dict[int, str]) -> list[int]:
+    """Indices of the channel groups whose every channel is excluded (they are skipped)."""
+    return [gi for gi, g in enumerate(groups) if all(int(c) in excluded for c in g)]
+
+
+def exclusion_notes(groups: list[np.ndarray], group_names: list[str], excluded: dict[int, str]) -> list[str]:
+    """One sentence per excluded channel kind and per skipped group, for summaries."""
+    notes = []
+    for reason in EXCLUDED_FLAGS:
+        chans = sorted(c for c, r in excluded.items() if r == reason)
+        if chans:
+            notes.append(f"{reason} channel(s) {', '.join(map(str, chans))} left out of detection and sorting")
+    for gi in groups_without_usable_channel(groups, excluded):
+        notes.append(f"{group_names[gi]} skipped: no usable channel")
+    return notes

@@ -8,13 +8,14 @@ from __future__ import annotations
 import dataclasses
 import math
 import tomllib
-from dataclasses import asdict, dataclass, field, fields
+from dataclasses import asdict, dataclass, field, fields, replace
 from pathlib import Path
 from typing import Any
 
 import tomli_w
 
 from .errors import ParamError
+from .numbers import format_number
 
 POLARITIES = ("negative", "positive", "both")
 
@@ -142,6 +143,7 @@ class MetricParams:
 
     refractory_ms: float = 1.5
     censored_ms: float = 0.0
+    """0 (the default) means "the detection dead time": see :func:`metric_settings`."""
     presence_bin_s: float = 60.0
     presence_min_bins: int = 10
     missed_min_events: int = 20
@@ -315,3 +317,37 @@ class Params:
         except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
             raise ParamError(f"parameter file must be valid TOML, got {str(path)!r}: {exc}") from None
         return cls.from_dict(data)
+
+
+def metric_settings(params: Params, censored_ms: float | None = None) -> MetricParams:
+    """The metric settings every command and the window use, with the one censored-period rule.
+
+    The censored period is ``censored_ms`` when given; otherwise ``params.metrics.censored_ms``
+    when set (above 0); otherwise the detection dead time, since intervals shorter than it cannot
+    be seen (kept below the refractory period).
+
+    Parameters
+    ----------
+    params
+        All parameters (``metrics`` and ``detect.dead_time_ms`` are used).
+    censored_ms
+        An explicit censored period (e.g. from the command line); 0 is then taken as 0.
+
+    Returns
+    -------
+    MetricParams
+        A validated copy.
+    """
+    mp = replace(params.metrics)
+    if censored_ms is not None:
+        mp.censored_ms = censored_ms
+    elif mp.censored_ms == 0.0:
+        mp.censored_ms = min(params.detect.dead_time_ms, 0.99 * mp.refractory_ms)
+    mp.validate()
+    return mp
+
+
+def censored_note(mp: MetricParams) -> str:
+    """The sentence every output carries about the censored period used."""
+    return (f"censored period {format_number(mp.censored_ms)} ms (the detection dead time unless set); "
+            f"refractory period {format_number(mp.refractory_ms)} ms")

@@ -60,6 +60,7 @@ def detect(recording: Recording, params: Params, progress: ProgressFn = None, ca
     -------
     EventTable
         Every event down to the look-up floor (see :func:`lookup_floor`), sorted by time.
+        Channels flagged dead or saturated (``NoiseEstimate.excluded``) hold no events.
         ``EventTable.mask`` with the detection threshold selects the detected events.
     """
     params.validate(recording.rate_hz)
@@ -68,6 +69,9 @@ def detect(recording: Recording, params: Params, progress: ProgressFn = None, ca
         noise = estimate_noise(recording, params, cancel=cancel, bandpass=bp,
                                progress=lambda f, m: report(progress, f * NOISE_SHARE, m))
     sigma = np.asarray(noise.sigma_uv, dtype=np.float64)
+    excluded = noise.excluded
+    live_sigma = sigma.copy()
+    live_sigma[list(excluded)] = 0.0  # a zero sigma keeps a channel out of detection
     floor = lookup_floor(params, sigma)
     d = params.detect
     rate = recording.rate_hz
@@ -81,7 +85,7 @@ def detect(recording: Recording, params: Params, progress: ProgressFn = None, ca
         lo, hi = max(0, start - ctx), min(recording.n_samples, stop + ctx)
         y = bp.read(lo, hi)
         recording.release(lo, hi)
-        return detect_block(y, lo, start - lo, stop - lo, sigma, recording.groups, d.polarity, floor,
+        return detect_block(y, lo, start - lo, stop - lo, live_sigma, recording.groups, d.polarity, floor,
                             dead, d.artefact_sigma, d.artefact_channel_fraction, art_w)
 
     parts: list[BlockEvents] = []
@@ -103,14 +107,14 @@ def detect(recording: Recording, params: Params, progress: ProgressFn = None, ca
             for f in pending:
                 f.cancel()
             raise
-    return _assemble(parts, recording, sigma, floor, d.polarity)
+    return _assemble(parts, recording, sigma, floor, d.polarity, excluded)
 
 
 def _assemble(parts: list[BlockEvents], recording: Recording, sigma: np.ndarray, floor: float,
-              polarity: str) -> EventTable:
+              polarity: str, excluded: dict[int, str]) -> EventTable:
     cols = {name: np.concatenate([getattr(p, name) for p in parts]) if parts else np.empty(0)
             for name in ("sample", "channel", "group", "amplitude_uv", "amplitude_sigma", "artefact")}
     order = np.lexsort((cols["group"], cols["sample"]))
     cols = {k: v[order] for k, v in cols.items()}
     return EventTable(**cols, rate_hz=recording.rate_hz, n_samples=recording.n_samples, sigma_uv=sigma,
-                      floor_sigma=floor, polarity=polarity)
+                      floor_sigma=floor, polarity=polarity, excluded=excluded)

@@ -8,7 +8,6 @@ ISI histograms and amplitude over time.
 
 from __future__ import annotations
 
-import math
 from html import escape
 from pathlib import Path
 
@@ -20,6 +19,8 @@ from .audit import CAUTION, AuditResult
 from .audit_imported import WaveformSummary
 from .correlograms import isi_histogram
 from .journal import utc_now
+from .numbers import format_number
+from .params import censored_note, metric_settings
 from .svg_plot import Axes, auto_axes, heatmap
 from .unit_table import CAUTION as QUALITY_CAUTION
 
@@ -40,7 +41,7 @@ margin:0 4px 0 12px;vertical-align:middle}"""
 
 def _value(v) -> str:
     if isinstance(v, (float, np.floating)):
-        return "" if math.isnan(v) else f"{v:.3g}"
+        return format_number(float(v))
     return escape(str(v))
 
 
@@ -157,7 +158,8 @@ def audit_report_html(result: AuditResult, title: str = "Audit of an imported so
              f"<style>{STYLE}</style></head><body><h1>{escape(title)}</h1>",
              f"<p>Imported: <b>{escape(result.spikes.source)}</b> ({len(result.imported_ids)} units, "
              f"{len(result.spikes)} spikes). Compared with: <b>{escape(result.fresh.source)}</b> "
-             f"({len(result.fresh_ids)} units). Matching tolerance {s.tolerance_ms:g} ms. "
+             f"({len(result.fresh_ids)} units). Matching tolerance {s.tolerance_ms:g} ms; "
+             f"{escape(censored_note(metric_settings(result.fresh.params)))}. "
              f"Written {utc_now()} by rigside {__version__}.</p>",
              f'<p class="caution">{escape(CAUTION)}<br>{escape(QUALITY_CAUTION)}</p>',
              "<h2>Summary</h2>", _summary(result), "<h2>Agreement matrix</h2>", _matrix(result),

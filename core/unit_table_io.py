@@ -18,6 +18,7 @@ import numpy as np
 
 from .atomic import atomic_write
 from .errors import ParamError, RigsideError
+from .params import censored_note
 from .unit_table import CAUTION, COLUMNS, INT_COLUMNS, MetricParams
 
 
@@ -52,6 +53,13 @@ DEFAULT_LIMITS = (
 """Default limits; every one is a convention of the trade, not a law. Change them freely."""
 
 
+def reason_column(column: str) -> str | None:
+    """The ``*_reason`` column explaining why ``column`` is undefined (None if it has none)."""
+    if column.startswith("amplitude_"):
+        return "amplitude_drift_reason"
+    return f"{column}_reason" if f"{column}_reason" in COLUMNS else None
+
+
 def flag_units(table: dict[str, np.ndarray], limits=DEFAULT_LIMITS) -> dict[str, np.ndarray]:
     """Per-unit flags: which units lie beyond each limit.
 
@@ -65,18 +73,38 @@ def flag_units(table: dict[str, np.ndarray], limits=DEFAULT_LIMITS) -> dict[str,
     Returns
     -------
     dict of str to numpy.ndarray
-        For each limit (key :attr:`Limit.name`), a boolean array, True for units beyond the
-        limit or whose metric is undefined (an undefined number cannot show that a unit
-        passes); key ``"any"`` is True for units flagged by at least one limit.
+        For each limit (key :attr:`Limit.name`), a boolean array, True for units whose number
+        is beyond the limit. An undefined number (NaN) is never a breach: it is its own state
+        (see :func:`undefined_units`). Key ``"any"`` is True for units beyond at least one limit.
     """
     n = len(table["unit"])
     flags: dict[str, np.ndarray] = {}
     for lim in limits:
         v = np.asarray(table[lim.column], dtype=np.float64)
-        beyond = v > lim.value if lim.kind == "max" else v < lim.value
-        flags[lim.name] = beyond | np.isnan(v)
+        flags[lim.name] = np.isfinite(v) & (v > lim.value if lim.kind == "max" else v < lim.value)
     flags["any"] = np.logical_or.reduce(list(flags.values())) if flags else np.zeros(n, dtype=bool)
     return flags
+
+
+def undefined_units(table: dict[str, np.ndarray], limits=DEFAULT_LIMITS) -> dict[str, np.ndarray]:
+    """For each limited column, True for units whose number is undefined (the limit is not checked)."""
+    return {lim.column: ~np.isfinite(np.asarray(table[lim.column], dtype=np.float64)) for lim in limits}
+
+
+def quality_flag_text(table: dict[str, np.ndarray], limits=DEFAULT_LIMITS) -> list[str]:
+    """Per unit, the limits it is beyond ("contamination > 0.1") and the limited numbers that
+    are undefined ("isolation_distance undefined: <reason>"), joined by "; "."""
+    beyond, undefined = flag_units(table, limits), undefined_units(table, limits)
+    out = []
+    for i in range(len(table["unit"])):
+        parts = [lim.name for lim in limits if beyond[lim.name][i]]
+        for lim in limits:
+            if undefined[lim.column][i]:
+                rc = reason_column(lim.column)
+                reason = str(table[rc][i]) if rc and rc in table and str(table[rc][i]) else "no reason recorded"
+                parts.append(f"{lim.column} undefined: {reason}")
+        out.append("; ".join(dict.fromkeys(parts)))
+    return out
 
 
 def _cell(column: str, value) -> str:
@@ -114,7 +142,8 @@ def write_unit_table_csv(table: dict[str, np.ndarray], path: str | Path,
         raise RigsideError("unit table columns must all have one row per unit, got differing lengths")
     settings = ", ".join(f"{k} = {v:g}" for k, v in asdict(params or MetricParams()).items())
     columns = list(COLUMNS) + [c for c in table if c not in COLUMNS]
-    return write_described_csv(path, ["rigside unit quality table", CAUTION, f"settings: {settings}"],
+    header = ["rigside unit quality table", CAUTION, f"settings: {settings}", censored_note(params or MetricParams())]
+    return write_described_csv(path, header,
                                COLUMNS, columns, table, _cell)
 
 

@@ -18,6 +18,7 @@ from PySide6.QtWidgets import (QAbstractItemView, QHBoxLayout, QHeaderView, QLab
 
 from core.audit import CAUTION
 from core.audit_table import ALL_COLUMNS
+from core.numbers import format_number
 from core.unit_table import CAUTION as QUALITY_CAUTION
 from .. import palette
 from ..audit_controller import AUDIT_LABEL, AuditController
@@ -71,7 +72,7 @@ def cell(row: dict, key: str, scale: float, fmt: str) -> SortItem:
         item.setToolTip(f"{row['shared_spikes']} shared of its {row['best_match_spikes']} spikes")
         return item
     if key == "notes":
-        parts = [p for p in (row["notes"], f"beyond limits: {row['quality_flags']}" if row["quality_flags"] else "") if p]
+        parts = [p for p in (row["notes"], f"quality: {row['quality_flags']}" if row["quality_flags"] else "") if p]
         item = SortItem("; ".join(parts), float(len(parts)))
         item.setToolTip("; ".join(parts))
         return item
@@ -80,7 +81,7 @@ def cell(row: dict, key: str, scale: float, fmt: str) -> SortItem:
         item = SortItem("—", math.nan)
         item.setToolTip(reason_of(row, key) or "undefined")
         return item
-    return SortItem(format(x * scale, fmt) if fmt != "d" else str(int(x)), x)
+    return SortItem(format_number(x * scale, signed=fmt.startswith("+")) if fmt != "d" else str(int(x)), x)
 
 
 class AuditPanel(Panel):
@@ -237,7 +238,7 @@ class AuditPanel(Panel):
 
         def pair_of(key: str, scale: float, fmt: str) -> str:
             a, b = float(row[key]), float(q[key])
-            show = lambda x: "—" if math.isnan(x) else format(x * scale, fmt)
+            show = lambda x: "—" if math.isnan(x) else format_number(x * scale) if fmt != "d" else str(int(x))
             return f"{show(a)} vs {show(b)}"
 
         fresh = (f"<b style='color:{palette.hex_colour(palette.ORANGE)}'>fresh unit {pv.fresh.unit}</b> "

@@ -164,7 +164,13 @@ class ThresholdPanel(Panel):
     def _on_recording(self) -> None:
         self.table_model.reset()
         self._on_unit()
+        self.summary.setTextFormat(Qt.TextFormat.RichText)
         self.summary.setText("Measuring noise and detecting events…")
+
+    def show_state(self, text: str) -> None:
+        """Plain text in place of the counts (no detection: failed, cancelled)."""
+        self.summary.setTextFormat(Qt.TextFormat.PlainText)
+        self.summary.setText(text)
 
     def _on_unit(self) -> None:
         uv = self.bench.unit == "uv"
@@ -200,6 +206,7 @@ class ThresholdPanel(Panel):
         elif not self._table_timer.isActive():
             self._table_timer.start()
         self.redetect.setVisible(b.below_floor())
+        self.summary.setTextFormat(Qt.TextFormat.RichText)
         self.summary.setText(self.summary_text(counts))
 
     def _refresh_table(self) -> None:

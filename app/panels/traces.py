@@ -202,7 +202,9 @@ class TracePanel(Panel):
         lo, hi = self.offsets[-1] - 0.6 * self.spacing, 0.6 * self.spacing
         band = self.rows.layout(hi, hi - lo, self.vb.height())
         self.vb.setYRange(lo, hi + band, padding=0)
-        names = [(float(o), f"ch {c}") for o, c in zip(self.offsets, shown)]
+        out = {} if b.events is None else b.events.excluded
+        names = [(float(o), f"ch {c}" + (f" · {out[int(c)]}, left out" if int(c) in out else ""))
+                 for o, c in zip(self.offsets, shown)]
         axis.setTicks([names + self.rows.ticks(), []])
         axis.setWidth(max(AXIS_WIDTH, self.rows.label_width(axis.style["tickFont"] or axis.font()) + 12))
         self._draw_bands()
@@ -411,6 +413,12 @@ class TracePanel(Panel):
         lane = int(self.lane[b.channel])
         if lane >= 0:
             self.selected_curve.setData(t, shown[:, lane])
+
+    def clear_traces(self) -> None:
+        """Draw no samples (the recording cannot be shown)."""
+        self.block = None
+        self.curve.setData([], [])
+        self.selected_curve.setData([], [])
 
     def _draw_markers(self) -> None:
         a, z = self.visible_samples() if self.bench.recording is not None else (0, 0)

@@ -2,10 +2,13 @@
 
 from __future__ import annotations
 
+import html
+
 import pyqtgraph as pg
 
 from core.correlograms import isi_histogram
 from core.metrics import isi_violations
+from core.params import censored_note
 from .. import palette
 from .unit_view_base import UnitView, spin, step_curve
 
@@ -49,5 +52,6 @@ class IsiView(UnitView):
             parts.append(f"<span style='color:{palette.hex_colour(self.ctl.unit_colour(u))}'>■</span> unit {u}: "
                          f"{v.n_violations} violation{'s' if v.n_violations != 1 else ''}, contamination {est}")
         pi.setXRange(0, self.max_ms.value(), padding=0.01)
-        self.status.setText(f"Shaded: refractory window {mp.censored_ms:g}–{mp.refractory_ms:g} ms. "
+        self.status.setText(f"Shaded: refractory window {mp.censored_ms:g}–{mp.refractory_ms:g} ms "
+                            f"({html.escape(censored_note(mp))}). "
                             + "; ".join(parts))

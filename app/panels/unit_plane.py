@@ -159,7 +159,9 @@ class ClusterPlanePanel(Panel):
         palette.style_plot(pi, axis_text(xa), axis_text(ya))
         self._show_chosen()
         units = ", ".join(str(u) for u in self.ctl.selection) or "none (select units in the unit list)"
-        self.status.setText(f"{self.ctl.group_name(g)}: {len(in_group):,} events (grey: not selected). "
+        n_art = int(s.data.artefact[in_group].sum())
+        why = f" ({n_art:,} artefacts kept for sorting, in no unit)" if n_art else ""
+        self.status.setText(f"{self.ctl.group_name(g)}: {len(in_group):,} events{why} (grey: not selected). "
                             f"Selected units: {units}.")
 
     def _show_chosen(self) -> None:

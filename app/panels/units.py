@@ -16,6 +16,8 @@ from PySide6.QtGui import QBrush, QColor, QFont
 from PySide6.QtWidgets import QAbstractItemView, QHeaderView, QLabel, QTableView, QVBoxLayout
 
 from core.unit_table import CAUTION, COLUMNS
+from core.numbers import format_number
+from core.unit_table_io import reason_column
 from .. import palette
 from .base import Panel
 
@@ -39,12 +41,6 @@ COLUMN_SPECS = (
     ("note", "note", 1, "", "free-text note"),
 )
 METRIC_KEYS = tuple(spec[1] for spec in COLUMN_SPECS[5:12])
-
-
-def reason_column(key: str) -> str | None:
-    if key.startswith("amplitude_"):
-        return "amplitude_drift_reason"
-    return f"{key}_reason" if f"{key}_reason" in COLUMNS else None
 
 
 class UnitTableModel(QAbstractTableModel):
@@ -107,7 +103,8 @@ class UnitTableModel(QAbstractTableModel):
             return value
         if isinstance(value, float) and not math.isfinite(value):
             return "—"
-        body = format(value * scale, fmt) if fmt else str(value)
+        body = str(int(value)) if fmt == "d" else format_number(value * scale, signed=fmt.startswith("+")) \
+            if fmt else str(value)
         return ("! " + body) if self.flagged(row, key) else body
 
     def data(self, index, role=Qt.ItemDataRole.DisplayRole):
@@ -148,8 +145,9 @@ class UnitTableModel(QAbstractTableModel):
             lines.append(f"undefined: {r[key + ':why']}")
         for lim in self.ctl.limits:
             if lim.column == key:
-                beyond = "beyond" if self.flagged(row, key) else "within"
-                lines.append(f"{beyond} the limit {lim.name}")
+                state = ("not checked against" if not math.isfinite(r[key])
+                         else "beyond" if self.flagged(row, key) else "within")
+                lines.append(f"{state} the limit {lim.name}")
         lines.append(CAUTION)
         return "\n".join(lines)
 

@@ -62,6 +62,17 @@ def test_first_pass_fills_the_unit_list_with_quality_numbers_and_marks(demo_wind
     snr = [model.text(r, column("snr")) for r in range(model.rowCount())]
     assert all(t.startswith("! ") for t in snr if t != "—") and not all(t == "—" for t in snr)
     ctl.limits = list(DEFAULT_LIMITS)
+    # an undefined number is its own state: never marked, its tooltip gives the reason
+    u0 = model.unit_at(0)
+    saved = dict(ctl.metrics[u0])
+    ctl.metrics[u0].update(isolation_distance=math.nan, isolation_distance_reason="too few events")
+    ctl.metrics_changed.emit()
+    r0 = model.row_of(u0)
+    tip = model._tooltip(r0, "isolation_distance")
+    assert model.text(r0, column("isolation_distance")) == "—"
+    assert "undefined: too few events" in tip and "not checked against the limit isolation_distance < 20" in tip
+    assert "beyond" not in tip and "within" not in tip
+    ctl.metrics[u0] = saved
     ctl.metrics_changed.emit()
     # sorting by a number puts undefined values last, in both directions
     panel = win.unit_panels["list"]

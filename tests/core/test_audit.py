@@ -98,8 +98,15 @@ def test_merged_pair_is_flagged(world):
     # two independent refractory neurons interleave, so intervals under 1.5 ms appear
     # (Hill et al. 2011 estimate; the smaller unit's share is the expected contamination)
     share = min(len(trains[a]), len(trains[b])) / len(merged)
-    assert row["contamination"] > 0.1 and row["contamination"] == pytest.approx(share, abs=0.15)
-    assert "contamination > 0.1" in row["quality_flags"]
+    # with the censored period at the detection dead time (1 ms) the window is 0.5 ms wide: the
+    # merged train either gives a large estimate or more violations than the model allows
+    assert row["isi_violations"] > 0
+    if np.isfinite(row["contamination"]):
+        assert row["contamination"] > 0.1 and row["contamination"] == pytest.approx(share, abs=0.15)
+        assert "contamination > 0.1" in row["quality_flags"]
+    else:
+        assert "contamination undefined: no real root" in row["quality_flags"]
+        assert row["contamination_poisson"] > 0.1
     assert len(row["spread_over"].split(";")) == 2 and "possibly merged" in row["notes"]
     assert row["false_positive_estimate"] == pytest.approx(share, abs=0.05)
 

@@ -14,7 +14,7 @@ from core.metrics import isi_violations, isolation_distance, l_ratio, missed_fra
 from core.progress import Cancelled
 from core.unit_table import (CAUTION, COLUMNS, MetricParams, unit_metrics_for_events,
                              unit_metrics_table)
-from core.unit_table_io import DEFAULT_LIMITS, Limit, flag_units, write_unit_table_csv
+from core.unit_table_io import DEFAULT_LIMITS, Limit, flag_units, quality_flag_text, undefined_units, write_unit_table_csv
 
 DURATION = 200.0
 SIGMA = np.full(8, 10.0)
@@ -177,10 +177,13 @@ def test_csv_is_written_atomically_with_header(tmp_path):
 def test_flags_against_limits():
     tab = {c: np.array([0.02, 0.25, math.nan]) for c in COLUMNS if c not in ("unit",)}
     tab["unit"] = np.array([1, 2, 3])
-    flags = flag_units(tab, [Limit("contamination", "max", 0.10), Limit("presence_ratio", "min", 0.1)])
-    assert list(flags["contamination > 0.1"]) == [False, True, True]    # undefined is flagged
-    assert list(flags["presence_ratio < 0.1"]) == [True, False, True]
-    assert list(flags["any"]) == [True, True, True]
+    limits = [Limit("contamination", "max", 0.10), Limit("presence_ratio", "min", 0.1)]
+    flags = flag_units(tab, limits)
+    assert list(flags["contamination > 0.1"]) == [False, True, False]   # undefined is no breach
+    assert list(flags["presence_ratio < 0.1"]) == [True, False, False]
+    assert list(flags["any"]) == [True, True, False]
+    assert {k: list(v) for k, v in undefined_units(tab, limits).items()} == {
+        "contamination": [False, False, True], "presence_ratio": [False, False, True]}
     assert set(flag_units(tab)) == {lim.name for lim in DEFAULT_LIMITS} | {"any"}
     with pytest.raises(ParamError, match="limit kind"):
         Limit("contamination", "above", 0.1)
@@ -203,3 +206,15 @@ def test_table_from_event_table_uses_principal_components():
         isolation_distance(values[in_group, :3], (d["u"] == 1)[in_group]).value, rel=1e-9)
     with pytest.raises(RigsideError, match="principal components"):
         unit_metrics_for_events(ev, d["u"], Features(values[:, 3:], ["width_ms"]), THRESHOLD)
+
+
+def test_undefined_numbers_are_their_own_state_in_the_flag_text():
+    tab = {c: np.array([0.02, 0.25, math.nan]) for c in COLUMNS if not c.endswith("_reason") and c != "unit"}
+    tab.update({c: np.array(["", "", "too few events"], dtype=object) for c in COLUMNS if c.endswith("_reason")})
+    tab["unit"] = np.array([1, 2, 3])
+    limits = [Limit("contamination", "max", 0.10), Limit("isolation_distance", "min", 20.0)]
+    text = quality_flag_text(tab, limits)
+    assert text[0] == "isolation_distance < 20"
+    assert text[1] == "contamination > 0.1; isolation_distance < 20"
+    assert text[2] == "contamination undefined: too few events; isolation_distance undefined: too few events"
+    assert "<" not in text[2] and ">" not in text[2]
