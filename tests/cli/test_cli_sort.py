@@ -27,7 +27,7 @@ def test_sort_writes_a_session_with_units(sorted_demo):
 def test_export_writes_times_per_unit_and_binned_matrix(sorted_demo):
     out = sorted_demo / "exp"
     assert main(["export", str(sorted_demo / "s.h5"), "--out", str(out), "--quiet"]) == 0
-    rows = list(csv.DictReader(open(out / "spike_times.csv")))
+    rows = list(csv.DictReader(open(out / "unit_times.csv")))
     assert set(rows[0]) == {"unit", "label", "time_s"}
     s = load_session(sorted_demo / "s.h5")
     for u in s.sorting.units:
