@@ -1,5 +1,5 @@
 """The window's audit of an earlier sorting: importing spike times, running the audit off the
-GUI thread, the chosen imported unit beside its best fresh match, and the exports.
+GUI thread, the chosen imported unit beside its closest fresh unit, and the exports.
 
 The fresh units are the session's curated units when the window holds a session of the open
 recording (a frozen copy, so curation can go on meanwhile), otherwise a first-pass
@@ -203,7 +203,7 @@ class AuditController(QObject):
 
     # ---- one unit ---------------------------------------------------------------------------
     def select(self, unit: int | None) -> None:
-        """Show imported ``unit`` beside its best match (waveforms are cut in the background)."""
+        """Show imported ``unit`` beside its closest fresh unit (waveforms are cut in the background)."""
         if self.result is None or unit is None:
             self.unit, self.pair = None, None
             self.pair_changed.emit()

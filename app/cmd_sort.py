@@ -28,9 +28,11 @@ def register(sub: argparse._SubParsersAction) -> None:
     add_param_options(p)
     p.set_defaults(func=run_sort_command)
 
-    e = sub.add_parser("export", help="write spike times per unit and a 1 ms binned spike matrix",
-                       description="Write spike times per unit (units.csv with unit,label,time_s and one "
-                                   ".npy file per unit) and a binned spike matrix (HDF5) from a session.")
+    e = sub.add_parser("export", help="write spike times per unit and a binned spike matrix",
+                       description="Write into DIR, from a session: unit_times.csv (columns unit,label,time_s), "
+                                   "unit_<id>.npy (spike times in seconds, one file per unit), binned.h5 "
+                                   "(spike counts, units x bins of --bin-ms) and export.json (what was "
+                                   "written, from which session).")
     e.add_argument("session", help="session file")
     e.add_argument("--out", required=True, metavar="DIR", help="folder to write (created if missing)")
     e.add_argument("--bin-ms", type=float, default=1.0, help="bin width of the spike matrix (default 1 ms)")

@@ -29,8 +29,8 @@ from core.unit_table_io import DEFAULT_LIMITS, flag_units
 from . import palette
 from .curation import StepCommand
 
-SELECTION_COLOURS = (palette.BLUE, palette.VERMILLION, palette.GREEN, palette.ORANGE, palette.PURPLE,
-                     palette.SKY, palette.BLACK, palette.YELLOW)
+SELECTION_COLOURS = (palette.GREEN, palette.ORANGE, palette.PURPLE, palette.SKY, palette.VERMILLION,
+                     palette.YELLOW, palette.BLUE)
 """One colour per selected unit, in selection order (Okabe & Ito hues, colour-blind safe)."""
 
 SLOW_STEPS = (ClusterGroups, ReclusterUnit)

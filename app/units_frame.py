@@ -26,7 +26,14 @@ from .window_actions import add_action
 
 UNIT_LIST_WIDTH = 740
 UNIT_PLOTS_HEIGHT = 560
-LABEL_KEYS = ("Alt+1", "Alt+2", "Alt+3", "Alt+4")
+LABEL_KEYS = ("0", "1", "2", "3")
+"""Keys of the labels in :data:`core.sorting.LABELS` order, active while the unit list has focus."""
+LIST_SCOPE = "in the unit list"
+
+
+def label_action_name(label: str) -> str:
+    """Name of the action setting ``label`` in ``window.actions_by_name`` (e.g. "label_not_neural")."""
+    return "label_" + label.replace(" ", "_").replace("-", "_")
 
 
 def install_units(window) -> SortingController:
@@ -177,14 +184,24 @@ def _build_menus(win, ctl: SortingController, unit_list: UnitListPanel, plane: C
         act("recluster", "&Recluster the selected unit…", recluster, ["Ctrl+Shift+K"], menu=units),
         act("note", "&Note on the selected unit…", note, ["Ctrl+Shift+N"], menu=units),
     ]
-    label_menu = units.addMenu("&Label the selected units")
-    for label, keys in zip(LABELS, LABEL_KEYS):
-        context.append(act(f"label_{label}", f"as {label}",
-                           lambda label=label: (sel := need(1, "label")) and ctl.relabel(sel, label),
-                           [keys], menu=label_menu))
+    context += _label_actions(win, act, units.addMenu("&Label"),
+                              lambda label: (sel := need(1, "label")) and ctl.relabel(sel, label))
     units.addSeparator()
     act("next_unit", "Select the next unit in the list", lambda: step_unit(1), ["Alt+Down"], menu=units)
     act("previous_unit", "Select the previous unit in the list", lambda: step_unit(-1), ["Alt+Up"], menu=units)
     act("limits", "Quality &limits…", limits, menu=units)
     for a in context:
         unit_list.table.addAction(a)
+
+
+def _label_actions(win, act: Callable, menu: QMenu, relabel: Callable[[str], object]) -> list[QAction]:
+    """One action per label in ``menu``, on its number key while the unit list has focus."""
+    out = []
+    for label, key in zip(LABELS, LABEL_KEYS):
+        a = act(label_action_name(label), f"Label as {label}", lambda label=label: relabel(label), [key], menu=menu,
+                tip=f"Label the selected units as {label} (key {key} {LIST_SCOPE})")
+        win.removeAction(a)     # a bare number key labels only where the unit list adds it back
+        a.setShortcutContext(Qt.ShortcutContext.WidgetShortcut)
+        a.setProperty("shortcut_scope", LIST_SCOPE)
+        out.append(a)
+    return out

@@ -1,9 +1,9 @@
 """Auditing an earlier sorting against a fresh look at the same raw data.
 
 For every imported unit: where it lives (:mod:`core.audit_imported`), the share of its spikes
-that a re-detected event supports (same channel group, within the tolerance), its agreement
-with every fresh unit (:func:`core.matching.agreement_matrix`, Jaccard 1912), its best match
-(highest agreement) and two estimates against that match:
+that a re-detected event supports (same channel group, within the tolerance), its overlap
+(Jaccard) with every fresh unit (:func:`core.matching.shared_spike_matrix`, Jaccard 1912), its
+closest fresh unit (highest overlap) and two estimates against that unit:
 
 - false-positive estimate = 1 - shared / n_imported: spikes the matched fresh unit does not
   hold (they may be noise, or spikes of other neurons);
@@ -25,7 +25,7 @@ from .errors import ParamError, RigsideError
 from .events import EventTable
 from .features import Features
 from .filtering import BandPass
-from .matching import agreement_matrix, jaccard, match_times
+from .matching import shared_spike_matrix, jaccard, match_times
 from .metric_inputs import positive
 from .params import Params, metric_settings
 from .pipeline import thresholds_sigma
@@ -57,8 +57,8 @@ class AuditSettings:
     spread_share
         A fresh unit holding at least this share of an imported unit's spikes is listed in
         ``spread_over`` (two or more such units suggest a merge).
-    weak_agreement
-        A best match below this agreement is noted as weak.
+    weak_overlap
+        A closest fresh unit overlapping less than this (Jaccard) is noted as weak.
     separation_events
         Most events per channel group for isolation distance and L-ratio; beyond it they come
         from evenly spread time windows (see :mod:`core.audit_quality`).
@@ -69,7 +69,7 @@ class AuditSettings:
     tolerance_ms: float = 0.5
     waveform_spikes: int = 64
     spread_share: float = 0.1
-    weak_agreement: float = 0.5
+    weak_overlap: float = 0.5
     separation_events: int = SEPARATION_EVENTS
 
     def validate(self) -> None:
@@ -82,7 +82,7 @@ class AuditSettings:
         if not isinstance(self.separation_events, int) or self.separation_events < 100:
             raise ParamError(f"separation event count must be an integer of at least 100, got "
                              f"{self.separation_events!r}")
-        for name, v in (("spread share", self.spread_share), ("weak agreement", self.weak_agreement)):
+        for name, v in (("spread share", self.spread_share), ("weak overlap", self.weak_overlap)):
             if not (isinstance(v, (int, float)) and 0 < v <= 1):
                 raise ParamError(f"{name} must be a number in (0, 1], got {v!r}")
 
@@ -131,18 +131,18 @@ class AuditResult:
     spikes, fresh, settings
         The inputs.
     imported_ids, fresh_ids
-        Unit ids of the rows and columns of ``matches`` and ``agreement``.
-    matches, agreement
-        Shared spikes and Jaccard agreement, imported x fresh.
+        Unit ids of the rows and columns of ``matches`` and ``overlap``.
+    matches, overlap
+        Shared spikes and overlap (Jaccard), imported x fresh.
     table
         One row per imported unit (ascending id): the audit columns and the quality numbers
         (see :data:`core.audit_table.AUDIT_COLUMNS`).
     fresh_table
-        Quality numbers of the fresh units that are some imported unit's best match.
+        Quality numbers of the fresh units that are some imported unit's closest fresh unit.
     placements
         Main channel, group, peak offset and mean waveform of each imported unit.
     fresh_waveforms
-        Mean waveforms of the best-matching fresh units.
+        Mean waveforms of the closest fresh units.
     imported_amplitude_uv
         Filtered value on the unit's main channel at each imported spike (order of ``spikes``).
     """
@@ -153,7 +153,7 @@ class AuditResult:
     imported_ids: np.ndarray
     fresh_ids: np.ndarray
     matches: np.ndarray
-    agreement: np.ndarray
+    overlap: np.ndarray
     table: dict[str, np.ndarray]
     fresh_table: dict[str, np.ndarray]
     placements: dict[int, Placement]
@@ -171,16 +171,16 @@ class AuditResult:
         i = self._index(unit)
         return {k: v[i].item() if hasattr(v[i], "item") else v[i] for k, v in self.table.items()}
 
-    def best_match(self, unit: int) -> int | None:
+    def closest_fresh(self, unit: int) -> int | None:
         """Id of the fresh unit agreeing best with an imported unit, or None."""
-        b = int(self.table["best_match"][self._index(unit)])
+        b = int(self.table["closest_fresh_unit"][self._index(unit)])
         return None if b == NO_UNIT else b
 
     def fresh_quality(self, unit: int) -> dict:
-        """Quality numbers of a fresh unit that is some imported unit's best match."""
+        """Quality numbers of a fresh unit that is some imported unit's closest fresh unit."""
         i = int(np.searchsorted(self.fresh_table["unit"], unit))
         if i >= len(self.fresh_table["unit"]) or self.fresh_table["unit"][i] != unit:
-            raise RigsideError(f"unit must be the best match of an imported unit, got {unit!r}")
+            raise RigsideError(f"unit must be the closest fresh unit of an imported unit, got {unit!r}")
         return {k: v[i].item() if hasattr(v[i], "item") else v[i] for k, v in self.fresh_table.items()}
 
     def imported_train(self, unit: int) -> tuple[np.ndarray, np.ndarray]:
@@ -240,7 +240,7 @@ def run_audit(recording: Recording, spikes: SpikeTrains, fresh: FreshUnits,
     Returns
     -------
     AuditResult
-        Per imported unit: support, agreement, best match, estimates and quality numbers.
+        Per imported unit: support, overlap (Jaccard), closest fresh unit, estimates and quality numbers.
     """
     settings = settings or AuditSettings()
     settings.validate()
@@ -253,19 +253,19 @@ def run_audit(recording: Recording, spikes: SpikeTrains, fresh: FreshUnits,
     support, free = _detected_support(spikes, placements, events, params, tol_s * recording.rate_hz)
     check(cancel)
     assigned = np.flatnonzero(sorting.assignments != NO_UNIT)
-    imp_ids, fresh_ids, matches = agreement_matrix(spikes.times_s, spikes.units, events.time_s[assigned],
-                                                   sorting.assignments[assigned], tol_s)
-    report(progress, 0.2, "agreement matrix")
+    imp_ids, fresh_ids, matches = shared_spike_matrix(spikes.times_s, spikes.units, events.time_s[assigned],
+                                                      sorting.assignments[assigned], tol_s)
+    report(progress, 0.2, "overlap matrix")
     n_imp = np.diff(spikes.bounds()[1])
     n_fresh = np.bincount(np.searchsorted(fresh_ids, sorting.assignments[assigned]), minlength=len(fresh_ids))
-    agreement = jaccard(matches, n_imp, n_fresh)
+    overlap = jaccard(matches, n_imp, n_fresh)
     quality, amplitude = imported_quality(recording, params, spikes, placements, events, free,
                                           metric_settings(params), cancel=cancel,
                                           progress=lambda f, m: report(progress, 0.2 + 0.65 * f, m),
                                           separation_events=settings.separation_events)
-    best = np.full(len(imp_ids), -1)                # column of the best match, -1: none shares a spike
+    best = np.full(len(imp_ids), -1)                # column of the closest fresh unit, -1: none shares a spike
     if len(fresh_ids):
-        best = np.where(matches.max(axis=1) > 0, agreement.argmax(axis=1), -1)
+        best = np.where(matches.max(axis=1) > 0, overlap.argmax(axis=1), -1)
     best_ids = np.unique(fresh_ids[best[best >= 0]])
     fresh_table = _fresh_quality(fresh, best_ids, cancel)
     fresh_waves = {}
@@ -276,9 +276,9 @@ def run_audit(recording: Recording, spikes: SpikeTrains, fresh: FreshUnits,
                                settings.waveform_spikes, cancel)
         fresh_waves[int(u)] = summarise(snips, chans, snippet_times_ms(params.snippets, recording.rate_hz))
     report(progress, 1.0, "audit done")
-    table = audit_rows(imp_ids, fresh_ids, matches, agreement, best, n_imp, n_fresh, support, placements,
+    table = audit_rows(imp_ids, fresh_ids, matches, overlap, best, n_imp, n_fresh, support, placements,
                        quality, {int(u): sorting.unit(int(u)).label for u in fresh_ids}, settings)
-    return AuditResult(spikes, fresh, settings, imp_ids, fresh_ids, matches, agreement, table, fresh_table,
+    return AuditResult(spikes, fresh, settings, imp_ids, fresh_ids, matches, overlap, table, fresh_table,
                        placements, fresh_waves, amplitude)
 
 

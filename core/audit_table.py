@@ -2,7 +2,7 @@
 
 CSV layout (our own, like the unit quality table): ``#`` comment lines first (title, the
 cautions, settings, one line per column with its meaning), then a header row and one row per
-imported unit. Undefined numbers are written ``nan``; an absent best match is left empty.
+imported unit. Undefined numbers are written ``nan``; an absent closest fresh unit is left empty.
 """
 
 from __future__ import annotations
@@ -26,14 +26,14 @@ AUDIT_COLUMNS: dict[str, str] = {
                       "imported times [ms]",
     "matched_fraction": "imported spikes with a re-detected event of the unit's channel group within "
                         "the tolerance [fraction]",
-    "best_match": "fresh unit with the highest agreement (empty: none shares a spike)",
-    "best_match_label": "label of the best-matching fresh unit",
-    "best_match_spikes": "spikes of the best-matching fresh unit [count]",
-    "shared_spikes": "spikes matched one-to-one between the unit and its best match [count]",
-    "agreement": "shared / (n_spikes + best_match_spikes - shared), Jaccard 1912 [fraction]",
-    "false_positive_estimate": "1 - shared / n_spikes: imported spikes the best match does not hold "
+    "closest_fresh_unit": "fresh unit with the highest overlap (Jaccard) (empty: none shares a spike)",
+    "closest_fresh_label": "label of the closest fresh unit",
+    "closest_fresh_spikes": "spikes of the closest fresh unit [count]",
+    "shared_spikes": "spikes matched one-to-one between the unit and its closest fresh unit [count]",
+    "overlap_jaccard": "shared / (n_spikes + closest_fresh_spikes - shared), Jaccard 1912 [fraction]",
+    "false_positive_estimate": "1 - shared / n_spikes: imported spikes the closest fresh unit does not hold "
                                "[fraction, estimate]",
-    "miss_estimate": "1 - shared / best_match_spikes: spikes of the best match the unit lacks "
+    "miss_estimate": "1 - shared / closest_fresh_spikes: spikes of the closest fresh unit the unit lacks "
                      "[fraction, estimate]",
     "miss_estimate_reason": "why miss_estimate is undefined",
     "spread_over": "fresh units holding at least the spread share of the unit's spikes (share in "
@@ -52,14 +52,14 @@ QUALITY_PART.update({
     "l_ratio": QUALITY_COLUMNS["l_ratio"] + "; from time windows when the group holds many events",
 })
 ALL_COLUMNS = {**AUDIT_COLUMNS, **QUALITY_PART}
-TEXT_COLUMNS = frozenset({"best_match_label", "miss_estimate_reason", "spread_over", "notes", "quality_flags"})
+TEXT_COLUMNS = frozenset({"closest_fresh_label", "miss_estimate_reason", "spread_over", "notes", "quality_flags"})
 
 
-def audit_rows(imp_ids, fresh_ids, matches, agreement, best, n_imp, n_fresh, support, placements,
+def audit_rows(imp_ids, fresh_ids, matches, overlap, best, n_imp, n_fresh, support, placements,
                quality: dict[str, np.ndarray], labels: dict[int, str], settings) -> dict[str, np.ndarray]:
     """Assemble the audit table (see :data:`AUDIT_COLUMNS`) from the computed pieces.
 
-    ``best`` holds, per imported unit, the column index of its best match in ``fresh_ids``
+    ``best`` holds, per imported unit, the column index of its closest fresh unit in ``fresh_ids``
     (-1: none); ``quality`` is the imported units' quality table in the same row order.
     """
     m = len(imp_ids)
@@ -73,11 +73,12 @@ def audit_rows(imp_ids, fresh_ids, matches, agreement, best, n_imp, n_fresh, sup
         "n_spikes": np.asarray(n_imp, dtype=np.int64),
         "peak_offset_ms": np.array([placements[int(u)].peak_offset_ms for u in imp_ids]),
         "matched_fraction": np.asarray(support, dtype=np.float64),
-        "best_match": np.where(has, fresh_ids[col] if len(fresh_ids) else NO_UNIT, NO_UNIT).astype(np.int64),
-        "best_match_label": np.array([labels[int(fresh_ids[c])] if h else "" for c, h in zip(col, has)], dtype=object),
-        "best_match_spikes": best_n.astype(np.int64),
+        "closest_fresh_unit": np.where(has, fresh_ids[col] if len(fresh_ids) else NO_UNIT, NO_UNIT).astype(np.int64),
+        "closest_fresh_label": np.array([labels[int(fresh_ids[c])] if h else "" for c, h in zip(col, has)],
+                                        dtype=object),
+        "closest_fresh_spikes": best_n.astype(np.int64),
         "shared_spikes": shared.astype(np.int64),
-        "agreement": np.where(has, agreement[rows, col] if agreement.size else 0.0, 0.0),
+        "overlap_jaccard": np.where(has, overlap[rows, col] if overlap.size else 0.0, 0.0),
         "false_positive_estimate": 1.0 - shared / np.asarray(n_imp, dtype=np.float64),
         "miss_estimate": np.where(has, 1.0 - shared / np.maximum(best_n, 1), np.nan),
         "miss_estimate_reason": np.array(["" if h else "no fresh unit shares a spike with this unit"
@@ -106,11 +107,11 @@ def _notes(i, big, has, best, t, is_best_of, imp_ids, fresh_ids, settings) -> st
     if not has[i]:
         out.append("no fresh unit shares its spikes")
     else:
-        if t["agreement"][i] < settings.weak_agreement:
-            out.append(f"weak best match (agreement {t['agreement'][i]:.2f})")
+        if t["overlap_jaccard"][i] < settings.weak_overlap:
+            out.append(f"weak overlap with the closest fresh unit (Jaccard {t['overlap_jaccard'][i]:.2f})")
         others = [u for u in is_best_of[int(best[i])] if u != int(imp_ids[i])]
         if others:
-            out.append(f"fresh unit {int(fresh_ids[best[i]])} is also the best match of imported unit(s) "
+            out.append(f"fresh unit {int(fresh_ids[best[i]])} is also the closest fresh unit of imported unit(s) "
                        f"{', '.join(map(str, others))}: possibly split")
     if len(big) >= 2:
         out.append("spikes spread over several fresh units: possibly merged")
@@ -125,7 +126,7 @@ def _notes(i, big, has, best, t, is_best_of, imp_ids, fresh_ids, settings) -> st
 def _cell(column: str, value) -> str:
     if column in TEXT_COLUMNS or column.endswith("_reason"):
         return str(value)
-    if column == "best_match":
+    if column == "closest_fresh_unit":
         return "" if int(value) == NO_UNIT else str(int(value))
     if isinstance(value, (int, np.integer)):
         return str(int(value))

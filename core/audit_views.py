@@ -1,4 +1,4 @@
-"""Data for showing one imported unit beside its best fresh match (GUI audit view, report).
+"""Data for showing one imported unit beside its closest fresh unit (GUI audit view, report).
 
 :func:`pair_view` gathers, for both sides, the spike times, main-channel amplitudes, a
 subsample of filtered waveforms on the group's channels and the ISI histogram, plus which
@@ -54,7 +54,7 @@ class UnitView:
 
 @dataclass
 class PairView:
-    """An imported unit and its best fresh match (``fresh`` is None when there is none)."""
+    """An imported unit and its closest fresh unit (``fresh`` is None when there is none)."""
 
     imported: UnitView
     fresh: UnitView | None
@@ -78,7 +78,7 @@ def _side(unit, times, amps, shared, channels, t_ms, snips, isi_bin_s, isi_max_s
 
 def pair_view(result: AuditResult, unit: int, recording: Recording | None = None, n_waveforms: int = 100,
               isi_bin_s: float = 0.001, isi_max_s: float = 0.05) -> PairView:
-    """Everything needed to show imported ``unit`` beside its best fresh match.
+    """Everything needed to show imported ``unit`` beside its closest fresh unit.
 
     Parameters
     ----------
@@ -96,7 +96,7 @@ def pair_view(result: AuditResult, unit: int, recording: Recording | None = None
     """
     row = result.row(unit)
     t_imp, a_imp = result.imported_train(unit)
-    best = result.best_match(unit)
+    best = result.closest_fresh(unit)
     params = result.fresh.params
     tol = result.settings.tolerance_ms / 1000.0
     place = result.placements[int(unit)]

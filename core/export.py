@@ -2,11 +2,11 @@
 
 Files written into the output directory (each atomically):
 
-- ``spike_times.csv``: columns ``unit,label,time_s``, rows by unit id then time; times are
+- ``unit_times.csv``: columns ``unit,label,time_s``, rows by unit id then time; times are
   ``sample / rate_hz`` in seconds with 7 decimals (0.1 microsecond). Events in no unit (id -1) are not exported.
 - ``unit_<id>.npy``: float64 spike times in seconds of each unit.
 - ``binned.h5``: dataset ``counts`` (units x bins, uint16) with datasets ``unit_id`` (int32),
-  ``unit_label`` (uint8 index into the attribute ``labels``) and attributes ``bin_s``,
+  ``unit_label`` (variable-length UTF-8 strings, the label name of each row) and attributes ``bin_s``,
   ``n_bins``, ``duration_s``, ``edges``. Bin ``k`` counts the spikes with
   ``k * bin_s <= time_s < (k + 1) * bin_s``; ``n_bins = ceil(duration_s / bin_s)``, so the
   last bin may reach past the end of the recording.
@@ -109,7 +109,7 @@ def export_sorting(events: EventTable, sorting: Sorting, out_dir: str | Path, bi
     def write_csv(tmp: Path) -> None:
         with open(tmp, "w", newline="") as fh:
             fh.writelines(csv_parts)
-    written["csv"].append(atomic_write(out / "spike_times.csv", write_csv))
+    written["csv"].append(atomic_write(out / "unit_times.csv", write_csv))
 
     def write_binned(tmp: Path) -> None:
         with h5py.File(tmp, "w") as f:
@@ -125,10 +125,9 @@ def export_sorting(events: EventTable, sorting: Sorting, out_dir: str | Path, bi
                                        f"in unit {u}")
                 ds[row] = c
             f.create_dataset("unit_id", data=np.array(list(units), dtype=np.int32))
-            f.create_dataset("unit_label", data=np.array([LABELS.index(r.label) for r in units.values()],
-                                                         dtype=np.uint8))
+            f.create_dataset("unit_label", data=[r.label for r in units.values()],
+                             dtype=h5py.string_dtype("utf-8"))
             f.attrs.update(bin_s=bin_s, n_bins=n_bins, duration_s=events.duration_s,
-                           labels=json.dumps(list(LABELS)),
                            edges="bin k holds spikes with k*bin_s <= time_s < (k+1)*bin_s")
     written["binned"].append(atomic_write(out / "binned.h5", write_binned))
 

@@ -1,7 +1,7 @@
-"""Matching two spike trains in time, and agreement between two sets of units.
+"""Matching two spike trains in time, and the overlap of two sets of units.
 
 Two spikes match when they lie within a tolerance of each other; each spike matches at
-most one other (one-to-one, earliest first). Agreement of two units is the Jaccard index
+most one other (one-to-one, earliest first). The overlap of two units is the Jaccard index
 of their spike sets under this matching: matches / (n_a + n_b - matches) (Jaccard 1912).
 """
 
@@ -50,8 +50,8 @@ def match_times(a: np.ndarray, b: np.ndarray, tolerance: float) -> tuple[np.ndar
     return _match_sorted(a, b, float(tolerance))
 
 
-def agreement_matrix(times_a: np.ndarray, units_a: np.ndarray, times_b: np.ndarray,
-                     units_b: np.ndarray, tolerance: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def shared_spike_matrix(times_a: np.ndarray, units_a: np.ndarray, times_b: np.ndarray,
+                        units_b: np.ndarray, tolerance: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Matched-spike counts for every pair of units from two sortings.
 
     Parameters
@@ -81,7 +81,7 @@ def agreement_matrix(times_a: np.ndarray, units_a: np.ndarray, times_b: np.ndarr
 
 
 def jaccard(matches: np.ndarray, n_a: np.ndarray, n_b: np.ndarray) -> np.ndarray:
-    """Agreement matches / (n_a + n_b - matches) for a matrix of matched counts (Jaccard 1912)."""
+    """Overlap matches / (n_a + n_b - matches) for a matrix of matched counts (Jaccard 1912)."""
     matches = np.asarray(matches, float)
     denom = np.asarray(n_a, float)[:, None] + np.asarray(n_b, float)[None, :] - matches
     with np.errstate(invalid="ignore", divide="ignore"):

@@ -1,8 +1,8 @@
 """Self-contained HTML report of an audit: one file, plots drawn as inline SVG.
 
 Sections: what was compared and the cautions; a summary table (one row per imported unit,
-linked to its section); the agreement matrix; then per imported unit its row of numbers and
-three plots beside its best fresh match: mean waveforms (+-1 SD) on the group's channels,
+linked to its section); the overlap (Jaccard) matrix; then per imported unit its row of numbers and
+three plots beside its closest fresh unit: mean waveforms (+-1 SD) on the group's channels,
 ISI histograms and amplitude over time.
 """
 
@@ -27,9 +27,9 @@ from .unit_table import CAUTION as QUALITY_CAUTION
 IMPORTED, FRESH = "#c0612b", "#2b7a8c"
 MAX_POINTS = 400          # amplitude points drawn per side (spread subsample)
 MAX_MATRIX_COLUMNS = 80
-SUMMARY = ("unit", "n_spikes", "matched_fraction", "best_match", "agreement", "false_positive_estimate",
+SUMMARY = ("unit", "n_spikes", "matched_fraction", "closest_fresh_unit", "overlap_jaccard", "false_positive_estimate",
            "miss_estimate", "contamination", "isolation_distance", "snr", "notes")
-DETAIL = ("group", "main_channel", "peak_offset_ms", "best_match_label", "best_match_spikes",
+DETAIL = ("group", "main_channel", "peak_offset_ms", "closest_fresh_label", "closest_fresh_spikes",
           "shared_spikes", "spread_over", "rate_hz", "isi_violations", "contamination_poisson",
           "l_ratio", "missed_fraction", "presence_ratio", "amplitude_slope_uv_per_min", "quality_flags")
 STYLE = """body{font-family:sans-serif;margin:24px;color:#222;max-width:1200px}
@@ -46,7 +46,7 @@ def _value(v) -> str:
 
 
 def _best(result: AuditResult, i: int) -> int | None:
-    return result.best_match(int(result.imported_ids[i]))
+    return result.closest_fresh(int(result.imported_ids[i]))
 
 
 def _summary(result: AuditResult) -> str:
@@ -59,7 +59,7 @@ def _summary(result: AuditResult) -> str:
             v = t[c][i]
             if c == "unit":
                 cells.append(f'<td><a href="#u{int(u)}">{int(u)}</a></td>')
-            elif c == "best_match":
+            elif c == "closest_fresh_unit":
                 cells.append(f"<td>{'' if _best(result, i) is None else int(v)}</td>")
             else:
                 cells.append(f'<td class="{"t" if c == "notes" else ""}">{_value(v)}</td>')
@@ -68,16 +68,16 @@ def _summary(result: AuditResult) -> str:
 
 
 def _matrix(result: AuditResult) -> str:
-    a = result.agreement
+    a = result.overlap
     if a.size == 0:
         return "<p>No fresh units to compare with.</p>"
     keep = np.flatnonzero(a.max(axis=0) >= 0.05)
     keep = keep[np.argsort(-a[:, keep].max(axis=0), kind="stable")][:MAX_MATRIX_COLUMNS]
     keep = np.sort(keep)
     note = "" if len(keep) == a.shape[1] else (f"<p>Showing the {len(keep)} of {a.shape[1]} fresh units "
-                                               f"agreeing at least 0.05 with some imported unit.</p>")
+                                               f"overlapping (Jaccard) at least 0.05 with some imported unit.</p>")
     return note + heatmap(a[:, keep], result.imported_ids, result.fresh_ids[keep],
-                          "Agreement (rows: imported units, columns: fresh units)")
+                          "Overlap (Jaccard; rows: imported units, columns: fresh units)")
 
 
 def _waveforms(imp: WaveformSummary, fresh: WaveformSummary | None) -> str:
@@ -137,14 +137,14 @@ def _unit_section(result: AuditResult, i: int) -> str:
     best = _best(result, i)
     row = result.row(unit)
     other = result.fresh_quality(best) if best is not None else {}
-    facts = "<tr><th></th><th>imported unit</th><th>best fresh match</th></tr>" + "".join(
+    facts = "<tr><th></th><th>imported unit</th><th>closest fresh unit</th></tr>" + "".join(
         f"<tr><th>{escape(c)}</th><td class='t'>{_value(row[c])}</td>"
         f"<td class='t'>{_value(other[c]) if c in other else ''}</td></tr>" for c in DETAIL)
     t_fresh = result.fresh.train(best)[0] if best is not None else None
     plots = _waveforms(result.placements[unit].waveform, result.fresh_waveforms.get(best))
     plots += _isi(result.imported_train(unit)[0], t_fresh, result.fresh.params.metrics.refractory_ms)
     plots += _amplitudes(result, unit, best)
-    match = f"best fresh match: unit {best}" if best is not None else "no fresh unit shares its spikes"
+    match = f"closest fresh unit {best}" if best is not None else "no fresh unit shares its spikes"
     return (f'<div class="unit" id="u{unit}"><h3>Imported unit {unit} ({match})</h3>'
             f'<p>{escape(str(row["notes"]))}</p><div>{plots}</div><table>{facts}</table></div>')
 
@@ -153,7 +153,7 @@ def audit_report_html(result: AuditResult, title: str = "Audit of an imported so
     """The report as one HTML string (no external files, scripts or fonts)."""
     s = result.settings
     key = (f'<p class="key"><span style="background:{IMPORTED}"></span>imported unit'
-           f'<span style="background:{FRESH}"></span>best fresh match</p>')
+           f'<span style="background:{FRESH}"></span>closest fresh unit</p>')
     parts = [f"<!DOCTYPE html><html><head><meta charset='utf-8'><title>{escape(title)}</title>"
              f"<style>{STYLE}</style></head><body><h1>{escape(title)}</h1>",
              f"<p>Imported: <b>{escape(result.spikes.source)}</b> ({len(result.imported_ids)} units, "
@@ -162,7 +162,7 @@ def audit_report_html(result: AuditResult, title: str = "Audit of an imported so
              f"{escape(censored_note(metric_settings(result.fresh.params)))}. "
              f"Written {utc_now()} by rigside {__version__}.</p>",
              f'<p class="caution">{escape(CAUTION)}<br>{escape(QUALITY_CAUTION)}</p>',
-             "<h2>Summary</h2>", _summary(result), "<h2>Agreement matrix</h2>", _matrix(result),
+             "<h2>Summary</h2>", _summary(result), "<h2>Overlap (Jaccard) matrix</h2>", _matrix(result),
              "<h2>Units</h2>", key]
     parts += [_unit_section(result, i) for i in range(len(result.imported_ids))]
     parts.append("</body></html>")

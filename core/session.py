@@ -1,6 +1,6 @@
 """Session files: one HDF5 file of our own layout holding a whole sorting session.
 
-Layout (format version 1)::
+Layout (format version 2)::
 
     /                 attrs format="rigside session", format_version, program_version,
                       saved_utc, checksum (SHA-256 of everything else, see core.h5safe)
@@ -9,11 +9,13 @@ Layout (format version 1)::
     /events           the event table (EventTable.to_h5_group)
     /features/values  float32 events x features;   attrs names (JSON list)
     /sorting/assignments  int32 unit id per event (-1: in no unit)
-    /sorting/unit_id, unit_group (int32), unit_label (uint8, index into LABELS)
+    /sorting/unit_id, unit_group (int32)
+    /sorting/labels   UTF-8 JSON list of one label name per unit (uint8 dataset)
     /sorting/notes    UTF-8 JSON list of one note per unit (uint8 dataset); attrs next_id
     /journal/lines    UTF-8 JSON lines (uint8 dataset)
 
-No pickled or executable content is written or accepted. Saving is atomic: ``NAME.tmp`` is
+Format 1 stored labels as codes instead of ``/sorting/labels``; it is still read (see
+:mod:`core.session_labels`). No pickled or executable content is written or accepted. Saving is atomic: ``NAME.tmp`` is
 written, flushed, fsynced and renamed over ``NAME``; the previous ``NAME`` (if it verifies)
 becomes ``NAME.bak`` first, by a hard link where possible. ``NAME.autosave.h5`` is written
 the same way by :func:`save_autosave`; :mod:`core.session_recovery` finds the newest
@@ -38,10 +40,11 @@ from .h5safe import CHECKSUM_ATTR, array, attr, read_verified, text, write_text
 from .journal import Journal, utc_now
 from .params import Params
 from .recording import Recording
-from .sorting import LABELS, Sorting, SortingData, Unit
+from .session_labels import labels_to_text, read_labels, upgrade_format1_journal
+from .sorting import Sorting, SortingData, Unit
 
 FORMAT = "rigside session"
-FORMAT_VERSION = 1
+FORMAT_VERSION = 2
 
 
 class RecordingMoved(SessionError):
@@ -128,8 +131,7 @@ def _write(tmp: Path, s: Session, saved_utc: str) -> None:
         units = sorting.units
         g.create_dataset("unit_id", data=np.array(list(units), dtype=np.int32))
         g.create_dataset("unit_group", data=np.array([u.group for u in units.values()], dtype=np.int32))
-        g.create_dataset("unit_label", data=np.array([LABELS.index(u.label) for u in units.values()],
-                                                     dtype=np.uint8))
+        write_text(g, "labels", labels_to_text([u.label for u in units.values()]))
         write_text(g, "notes", json.dumps([u.note for u in units.values()]))
         g.attrs["next_id"] = np.int64(sorting.next_id)
         write_text(f.create_group("journal"), "lines", sorting.journal.to_text())
@@ -261,7 +263,8 @@ def _interpret(f: h5py.File, data: dict, path: Path) -> tuple[RecordingRef, Sess
     assign = array(data, "sorting/assignments", "i4", 1)
     ids = array(data, "sorting/unit_id", "i4", 1)
     groups = array(data, "sorting/unit_group", "i4", 1)
-    labels = array(data, "sorting/unit_label", "u1", 1)
+    version = attr(f, "format_version", int, "")
+    labels = read_labels(data, version)
     if not (isinstance(names, list) and all(isinstance(n, str) for n in names)
             and isinstance(notes, list) and all(isinstance(n, str) for n in notes)):
         raise SessionError("feature names and notes must be lists of text, got other values")
@@ -271,10 +274,10 @@ def _interpret(f: h5py.File, data: dict, path: Path) -> tuple[RecordingRef, Sess
         raise SessionError(f"session arrays must agree in length ({len(events)} events, {m} units), got "
                            f"features {values.shape}, assignments {assign.shape}, unit columns "
                            f"{len(groups)}/{len(labels)}/{len(notes)} with unique ids")
-    if m and labels.max() >= len(LABELS):
-        raise SessionError(f"unit label codes must be below {len(LABELS)}, got {int(labels.max())}")
-    units = {int(u): Unit(int(gr), LABELS[int(la)], note) for u, gr, la, note in zip(ids, groups, labels, notes)}
+    units = {int(u): Unit(int(gr), la, note) for u, gr, la, note in zip(ids, groups, labels, notes)}
     journal = Journal.from_text(text(data, "journal/lines"))
+    if version == 1:
+        journal = Journal(upgrade_format1_journal(journal.entries))
     sorting = Sorting(SortingData.from_events(events, values, names), assign, units,
                       attr(f["sorting"], "next_id", int, "sorting"), journal)
     session = Session(ref, params, events, sorting, attr(f, "program_version", str, ""),

@@ -17,8 +17,8 @@ from .clustering import NO_UNIT
 from .errors import RigsideError
 from .events import EventTable
 
-LABELS = ("single unit", "multi-unit", "reject", "unreviewed")
-"""Allowed unit labels."""
+LABELS = ("unreviewed", "single unit", "multi-unit", "not neural")
+"""Allowed unit labels, in menu order; every unit starts "unreviewed"."""
 
 MAX_UNIT_ID = 2**31 - 2
 """Unit ids are int32 and positive."""

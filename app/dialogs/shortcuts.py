@@ -6,15 +6,21 @@ from PySide6.QtWidgets import (QDialog, QDialogButtonBox, QHeaderView, QTableWid
                                QVBoxLayout)
 
 
+def _keys(action) -> str:
+    """The action's keys, and where they work when that is not the whole window (its
+    ``shortcut_scope`` property, e.g. "in the unit list")."""
+    keys = ", ".join(k.toString() for k in action.shortcuts())
+    scope = action.property("shortcut_scope")
+    return f"{keys} ({scope})" if scope else keys
+
+
 class ShortcutsDialog(QDialog):
     """Lists (action, keys) for every action that has a shortcut."""
 
     def __init__(self, actions, parent=None):
         super().__init__(parent)
         self.setWindowTitle("Keyboard shortcuts")
-        rows = [(a.text().replace("&", "").rstrip("…").rstrip("."),
-                 ", ".join(k.toString() for k in a.shortcuts()))
-                for a in actions if a.shortcuts()]
+        rows = [(a.text().replace("&", "").rstrip("…").rstrip("."), _keys(a)) for a in actions if a.shortcuts()]
         self.table = QTableWidget(len(rows), 2)
         self.table.setHorizontalHeaderLabels(["Action", "Keys"])
         self.table.verticalHeader().setVisible(False)

@@ -1,4 +1,4 @@
-"""One imported unit beside its best fresh match: waveforms per channel, ISI histograms,
+"""One imported unit beside its closest fresh unit: waveforms per channel, ISI histograms,
 amplitude over time, and (through :func:`trace_rows`) both spike rasters on the trace view.
 
 Every plot draws the two sides the same way, so a glance tells them apart without relying on
@@ -143,7 +143,7 @@ class AuditPairPlots(QWidget):
         self.pair, self.group = pair, group
         for b in (self.show_button, self.previous_button, self.next_button):
             b.setEnabled(pair is not None)
-        self.header.setText(header or "Choose an imported unit in the table to see it beside its best fresh match.")
+        self.header.setText(header or "Choose an imported unit in the table to see it beside its closest fresh unit.")
         self.key.setText(key_text(pair))
         self._draw_waveforms()
         self._draw_isi(refractory_ms)

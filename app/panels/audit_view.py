@@ -1,6 +1,6 @@
-"""The audit view: one row per imported unit (support, best fresh match, the two estimates and
+"""The audit view: one row per imported unit (support, closest fresh unit, the two estimates and
 quality numbers), the caution that both sides are estimates, progress of a running audit,
-the exports, and the chosen unit beside its best fresh match (:mod:`app.panels.audit_pair`).
+the exports, and the chosen unit beside its closest fresh unit (:mod:`app.panels.audit_pair`).
 
 An undefined number shows "—" with its reason as a tooltip; every header explains its
 column (the meanings of the audit table's CSV).
@@ -30,8 +30,8 @@ TABLE_SPECS = (
     ("imported\nunit", "unit", 1, "d"),
     ("spikes", "n_spikes", 1, "d"),
     ("backed by\nevents (%)", "matched_fraction", 100, ".1f"),
-    ("best fresh\nmatch", "best_match", 1, ""),
-    ("agree-\nment", "agreement", 1, ".2f"),
+    ("closest\nfresh unit", "closest_fresh_unit", 1, ""),
+    ("overlap\n(Jaccard)", "overlap_jaccard", 1, ".2f"),
     ("possible false\npositives (%)", "false_positive_estimate", 100, ".1f"),
     ("possible\nmisses (%)", "miss_estimate", 100, ".1f"),
     ("ISI con-\ntam. (%)", "contamination", 100, ".1f"),
@@ -66,10 +66,10 @@ def reason_of(row: dict, key: str) -> str:
 def cell(row: dict, key: str, scale: float, fmt: str) -> SortItem:
     """The table cell of one value (text, sort key, tooltip)."""
     v = row[key]
-    if key == "best_match":
-        text = "none" if row["best_match_label"] == "" else f"{int(v)} ({row['best_match_label']})"
+    if key == "closest_fresh_unit":
+        text = "none" if row["closest_fresh_label"] == "" else f"{int(v)} ({row['closest_fresh_label']})"
         item = SortItem(text, float(v) if text != "none" else math.nan)
-        item.setToolTip(f"{row['shared_spikes']} shared of its {row['best_match_spikes']} spikes")
+        item.setToolTip(f"{row['shared_spikes']} shared of its {row['closest_fresh_spikes']} spikes")
         return item
     if key == "notes":
         parts = [p for p in (row["notes"], f"quality: {row['quality_flags']}" if row["quality_flags"] else "") if p]
@@ -108,8 +108,8 @@ class AuditPanel(Panel):
         self.import_button = QPushButton("Import earlier spike times…")
         self.report_button = QPushButton("Save report (HTML)…")
         self.table_button = QPushButton("Save table (CSV)…")
-        self.report_button.setToolTip("A self-contained HTML report: the table, the agreement matrix and "
-                                      "per-unit plots beside the best fresh match")
+        self.report_button.setToolTip("A self-contained HTML report: the table, the overlap (Jaccard) matrix and "
+                                      "per-unit plots beside the closest fresh unit")
         self.table_button.setToolTip("One row per imported unit with every audit column and quality number")
 
         self.table = QTableWidget(0, len(TABLE_SPECS))
@@ -242,10 +242,11 @@ class AuditPanel(Panel):
             return f"{show(a)} vs {show(b)}"
 
         fresh = (f"<b style='color:{palette.hex_colour(palette.ORANGE)}'>fresh unit {pv.fresh.unit}</b> "
-                 f"({row['best_match_label']}, {row['best_match_spikes']} spikes)")
+                 f"({row['closest_fresh_label']}, {row['closest_fresh_spikes']} spikes)")
         miss = row["miss_estimate"]
         notes = f"<br><i>{html.escape(row['notes'])}</i>" if row["notes"] else ""
-        return (f"{imp} beside {fresh}: {row['shared_spikes']} spikes shared, agreement {row['agreement']:.2f}; "
+        return (f"{imp} beside {fresh}: {row['shared_spikes']} spikes shared, "
+                f"overlap (Jaccard) {row['overlap_jaccard']:.2f}; "
                 f"possible false positives {100 * row['false_positive_estimate']:.1f} %, possible misses "
                 f"{'—' if math.isnan(miss) else f'{100 * miss:.1f} %'} (estimates).<br>Imported vs fresh: "
                 f"SNR {pair_of('snr', 1, '.1f')}, ISI contamination {pair_of('contamination', 100, '.1f')} %, "

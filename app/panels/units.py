@@ -15,6 +15,7 @@ from PySide6.QtCore import (QAbstractTableModel, QItemSelection, QItemSelectionM
 from PySide6.QtGui import QBrush, QColor, QFont
 from PySide6.QtWidgets import QAbstractItemView, QHeaderView, QLabel, QTableView, QVBoxLayout
 
+from core.sorting import LABELS
 from core.unit_table import CAUTION, COLUMNS
 from core.numbers import format_number
 from core.unit_table_io import reason_column
@@ -28,7 +29,7 @@ FLAG_TINT = QColor(*palette.VERMILLION, 45)
 COLUMN_SPECS = (
     ("unit", "unit", 1, "d", "unit id"),
     ("group", "group", 1, "", "channel group"),
-    ("label", "label", 1, "", "single unit, multi-unit, reject or unreviewed"),
+    ("label", "label", 1, "", "unreviewed, single unit, multi-unit or not neural (keys 0-3)"),
     ("events", "n_events", 1, "d", COLUMNS["n_events"]),
     ("rate Hz", "rate_hz", 1, ".2f", COLUMNS["rate_hz"]),
     ("contam. %", "contamination", 100, ".1f", COLUMNS["contamination"]),
@@ -229,8 +230,7 @@ class UnitListPanel(Panel):
         d = self.ctl.session.params.detect
         made_at = f"{d.threshold_sigma:g} σ" if d.threshold_uv is None else f"{d.threshold_uv:g} µV"
         self.summary.setText(f"{len(labels)} units from {len(s.data):,} events at {made_at} "
-                             f"({labels.count('single unit')} single, {labels.count('multi-unit')} multi-unit, "
-                             f"{labels.count('reject')} rejected, {labels.count('unreviewed')} unreviewed); "
+                             f"({', '.join(f'{labels.count(name)} {name}' for name in LABELS)}); "
                              f"quality numbers for {done}.")
 
     def _on_table_selection(self, *_) -> None:

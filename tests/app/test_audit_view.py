@@ -1,5 +1,5 @@
 """The audit view in the real window: import an "old sorting" of the demo, audit it off the GUI
-thread, look at one unit beside its best fresh match, export, and survive bad files."""
+thread, look at one unit beside its closest fresh unit, export, and survive bad files."""
 
 from __future__ import annotations
 
@@ -113,9 +113,12 @@ def test_audit_against_the_session_shows_each_pair_as_the_core_computes_it(demo_
     shown = {u: int(panel.table.item(i, spikes_col).text()) for i, u in enumerate(panel.unit_rows())}
     assert shown == counts
     assert "estimate" in panel.caution.text()
+    headers = [panel.table.horizontalHeaderItem(i).text() for i in range(panel.table.columnCount())]
+    assert "closest\nfresh unit" in headers and "overlap\n(Jaccard)" in headers
+    assert not any("agree" in h or "best" in h for h in headers)
 
     # the first row is chosen on arrival; choose the unit with the most spikes held by one side
-    with_match = [u for u in r.imported_ids if r.best_match(int(u)) is not None]
+    with_match = [u for u in r.imported_ids if r.closest_fresh(int(u)) is not None]
     unit = int(max(with_match, key=lambda u: r.row(int(u))["n_spikes"] - r.row(int(u))["shared_spikes"]))
     panel.select_unit(unit)
     qtbot.waitUntil(lambda: win.audit.pair is not None and win.audit.pair.imported.unit == unit, timeout=30000)

@@ -7,9 +7,12 @@ import math
 import numpy as np
 from PySide6.QtCore import Qt
 from PySide6.QtGui import QKeySequence
+from PySide6.QtWidgets import QMenu
 
 from app.dialogs.unit_dialogs import ClusterDialog, LimitsDialog, PartsDialog, spin_count
 from app.panels.units import COLUMN_SPECS
+from app.units_frame import LABEL_KEYS, label_action_name
+from app.window_actions import show_shortcuts
 from core.clustering import NO_UNIT
 from core.sorting import AXIS_AMPLITUDE, AXIS_TIME, LABELS
 from core.unit_table_io import DEFAULT_LIMITS, Limit
@@ -156,11 +159,12 @@ def test_merge_relabel_note_and_move_events(demo_window, qtbot):
     assert pair[1] not in list_units(win)
     win.actions_by_name["undo"].trigger()
     assert s.counts()[pair[0]] == counts[pair[0]] and pair[1] in s.units
-    # labels through their shortcuts' actions, exactly the four allowed labels
+    # labels through the Label menu, exactly the four allowed labels
     model = win.unit_panels["list"].model
     ctl.set_selection([pair[0]])
-    for label in LABELS:          # from "unreviewed": each label differs from the one before
-        win.actions_by_name[f"label_{label}"].trigger()
+    assert LABELS[0] == "unreviewed" and s.unit(pair[0]).label == "unreviewed"
+    for label in LABELS[1:] + LABELS[:1]:          # each label differs from the one before
+        win.actions_by_name[label_action_name(label)].trigger()
         assert s.unit(pair[0]).label == label
         assert model.text(model.row_of(pair[0]), column("label")) == label
     assert ctl.set_note(pair[0], "fires in bursts")
@@ -266,3 +270,31 @@ def test_selected_units_are_coloured_in_the_feature_and_trace_views(demo_window)
     assert (c.red(), c.green(), c.blue()) == tuple(ctl.unit_colour(u)[:3])
     ctl.set_selection([])
     assert len(feats.chosen.getData()[0]) == 0 and len(marks.chosen.getData()[0]) == 0
+
+
+def test_number_keys_label_the_selected_units_while_the_unit_list_has_focus(demo_window, qtbot):
+    win = demo_window
+    ctl = win.units
+    cluster_demo(win)
+    s = ctl.sorting
+    unit = s.unit_ids()[0]
+    ctl.set_selection([unit])
+    table = win.unit_panels["list"].table
+    win.activateWindow()
+    win.traces.setFocus()
+    qtbot.waitUntil(lambda: win.traces.hasFocus())
+    qtbot.keyClick(win.traces, Qt.Key.Key_1)       # elsewhere in the window a number key labels nothing
+    assert s.unit(unit).label == "unreviewed"
+    table.setFocus()
+    qtbot.waitUntil(lambda: table.hasFocus())
+    for key, label in [("1", "single unit"), ("3", "not neural"), ("2", "multi-unit"), ("0", "unreviewed")]:
+        qtbot.keyClick(table, key)
+        assert s.unit(unit).label == label
+    assert LABEL_KEYS == ("0", "1", "2", "3")
+    label_menu = next(m for m in win.findChildren(QMenu) if m.title() == "&Label")
+    assert [a.text() for a in label_menu.actions()] == [f"Label as {label}" for label in LABELS]
+    rows = dict(show_shortcuts(win).rows())
+    for key, label in zip(LABEL_KEYS, LABELS):
+        assert rows[f"Label as {label}"] == f"{key} (in the unit list)"
+    assert not any("Alt+" in keys and "Label" in name for name, keys in rows.items())
+    win.shortcuts_dialog.close()

@@ -8,7 +8,7 @@ from pathlib import Path
 import numpy as np
 from PySide6.QtCore import Qt
 
-from app import session_flow
+from app import palette, session_flow
 from app.window import MainWindow, demo_path, settings
 from app.screenshot import capture, colour_share, pixels
 from app.sorting_controller import SELECTION_COLOURS
@@ -73,6 +73,7 @@ def test_quality_plots_show_the_selected_units(demo_window, qtbot, tmp_path):
         assert np.abs(snips).max() > 0
     # one colour per selected unit: the unit list's swatch and the plots use the same
     model = win.unit_panels["list"].model
+    assert SELECTION_COLOURS[:2] == (palette.GREEN, palette.ORANGE)   # our own start in the Okabe-Ito set
     for u, colour in zip(pair, SELECTION_COLOURS):
         swatch = model.data(model.index(model.row_of(u), 0), Qt.ItemDataRole.DecorationRole)
         assert (swatch.red(), swatch.green(), swatch.blue()) == colour
@@ -127,7 +128,7 @@ def test_autosave_after_changes_is_offered_when_reopening(demo_window, tmp_path,
     ctl.files.save(path)
     assert win.wait_idle(60)
     unit = biggest_unit(ctl)
-    assert ctl.relabel([unit], "reject")
+    assert ctl.relabel([unit], "not neural")
     assert ctl.files.autosave_if_due()
     assert win.wait_idle(60)
     assert autosave_path(path).exists()
@@ -136,7 +137,7 @@ def test_autosave_after_changes_is_offered_when_reopening(demo_window, tmp_path,
     assert ctl.files.open(path)
     assert win.wait_idle(60)
     assert questions and "newer autosave" in questions[0]
-    assert ctl.sorting.unit(unit).label == "reject"
+    assert ctl.sorting.unit(unit).label == "not neural"
     assert ctl.files.recovered and win.windowTitle().endswith("*")
 
 

@@ -39,7 +39,7 @@ def test_audit_against_first_pass(demo, capsys):
     assert [int(r["unit"]) for r in rows] == sorted(set(truth.unit.tolist()))
     for r in rows:
         assert int(r["n_spikes"]) == int(np.sum(truth.unit == int(r["unit"])))
-        for c in ("matched_fraction", "best_match", "false_positive_estimate", "miss_estimate",
+        for c in ("matched_fraction", "closest_fresh_unit", "false_positive_estimate", "miss_estimate",
                   "contamination", "isolation_distance", "snr"):
             assert c in r
     # the true trains themselves: most spikes of every unit are backed by detected events

@@ -1,4 +1,5 @@
 import csv
+import re
 
 import h5py
 import numpy as np
@@ -27,7 +28,7 @@ def test_sort_writes_a_session_with_units(sorted_demo):
 def test_export_writes_times_per_unit_and_binned_matrix(sorted_demo):
     out = sorted_demo / "exp"
     assert main(["export", str(sorted_demo / "s.h5"), "--out", str(out), "--quiet"]) == 0
-    rows = list(csv.DictReader(open(out / "spike_times.csv")))
+    rows = list(csv.DictReader(open(out / "unit_times.csv")))
     assert set(rows[0]) == {"unit", "label", "time_s"}
     s = load_session(sorted_demo / "s.h5")
     for u in s.sorting.units:
@@ -99,3 +100,14 @@ def test_bad_input(sorted_demo, capsys, args, msg):
     code = main([a.format(d=sorted_demo) for a in args] + ["--quiet"])
     err = capsys.readouterr().err
     assert code == 2 and msg in err and "Traceback" not in err
+
+
+def test_export_help_names_exactly_the_files_written(sorted_demo, capsys):
+    out = sorted_demo / "exp_help"
+    assert main(["export", str(sorted_demo / "s.h5"), "--out", str(out), "--quiet"]) == 0
+    written = {re.sub(r"^unit_\d+\.npy$", "unit_<id>.npy", p.name) for p in out.iterdir()}
+    capsys.readouterr()
+    with pytest.raises(SystemExit):
+        main(["export", "--help"])
+    named = set(re.findall(r"[\w<>]+\.(?:csv|npy|h5|json)", " ".join(capsys.readouterr().out.split())))
+    assert named == written == {"unit_times.csv", "unit_<id>.npy", "binned.h5", "export.json"}

@@ -1,6 +1,8 @@
 """Audit of an imported sorting against fresh units, checked on a synthetic recording whose
 ground truth is known (invented data, core.synth)."""
 
+import re
+
 import numpy as np
 import pytest
 
@@ -47,7 +49,7 @@ def degraded(trains, duration, seed=5):
 
 
 def fresh_vs_truth(fresh, t_true):
-    """Best Jaccard agreement of any fresh unit with a true train."""
+    """Highest overlap (Jaccard) of any fresh unit with a true train."""
     best = 0.0
     for u in fresh.sorting.unit_ids():
         t = fresh.train(u)[0]
@@ -121,11 +123,11 @@ def test_fresh_units_imported_back_agree_exactly(world):
     res = run_audit(rec, finish(times, units, "copy"), fresh)
     t = res.table
     np.testing.assert_array_equal(t["unit"], np.array(ids) + 1000)
-    np.testing.assert_array_equal(t["best_match"], ids)
+    np.testing.assert_array_equal(t["closest_fresh_unit"], ids)
     np.testing.assert_array_equal(t["shared_spikes"], t["n_spikes"])
     np.testing.assert_allclose(t["false_positive_estimate"], 0.0)
     np.testing.assert_allclose(t["miss_estimate"], 0.0)
-    np.testing.assert_allclose(t["agreement"], 1.0)
+    np.testing.assert_allclose(t["overlap_jaccard"], 1.0)
     np.testing.assert_allclose(t["matched_fraction"], 1.0)
     groups = [fresh.sorting.unit(u).group for u in ids]
     np.testing.assert_array_equal(t["group"], groups)
@@ -153,18 +155,24 @@ def test_pair_view_report_and_csv(world, audited, tmp_path):
     window = view.spikes_between(2.0, 4.0)
     assert np.all((window["imported"][0] >= 2.0) & (window["imported"][0] < 4.0))
     assert pair_view(res, u).imported.waveforms.shape[0] == 0
-    best = res.best_match(u)
+    best = res.closest_fresh(u)
     assert res.fresh_quality(best)["n_events"] == len(fresh.train(best)[0]) == len(view.fresh.times_s)
     html = audit_report_html(res)
     assert html.count('class="unit"') == len(res.imported_ids) and CAUTION in html
     assert "http" not in html.replace("http://www.w3.org/2000/svg", "") and "<script" not in html
+    assert "Overlap (Jaccard) matrix" in html and "closest fresh unit" in html
+    assert not re.search(r"\bagreement|best match", html, re.IGNORECASE)
     out = write_audit_report(res, tmp_path / "r.html")
     assert out.read_text(encoding="utf-8").startswith("<!DOCTYPE html>")
     write_audit_csv(res, tmp_path / "a.csv", CAUTION)
     lines = (tmp_path / "a.csv").read_text().splitlines()
     header = next(line for line in lines if not line.startswith("#")).split(",")
-    assert header[:6] == ["unit", "n_spikes", "peak_offset_ms", "matched_fraction", "best_match", "best_match_label"]
+    assert header[:6] == ["unit", "n_spikes", "peak_offset_ms", "matched_fraction", "closest_fresh_unit",
+                          "closest_fresh_label"]
     assert len([line for line in lines if not line.startswith("#")]) == len(res.imported_ids) + 1
+    described = "\n".join(line for line in lines if line.startswith("#"))
+    assert "overlap_jaccard" in described and "highest overlap (Jaccard)" in described
+    assert not re.search(r"\bagreement|best match", described, re.IGNORECASE)
 
 
 def test_separation_from_time_windows_matches_all_events(world, audited):
@@ -206,7 +214,7 @@ def test_unit_without_any_match(world):
     t = t[[len(match_times(np.array([x]), all_fresh, TOL)[0]) == 0 for x in t]]
     res = run_audit(rec, finish(t, np.full(len(t), 9), "lonely"), fresh)
     row = res.row(9)
-    assert res.best_match(9) is None and row["best_match"] == -1
+    assert res.closest_fresh(9) is None and row["closest_fresh_unit"] == -1
     assert row["false_positive_estimate"] == 1.0 and np.isnan(row["miss_estimate"])
     assert row["miss_estimate_reason"] and "no fresh unit shares its spikes" in row["notes"]
     assert "no fresh unit shares" in audit_report_html(res)

@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 
 from core.errors import SessionError
-from core.h5safe import read_verified
+from core.h5safe import read_verified, write_text
 from core.journal import Journal, UndoStack, replay, replay_matches
 from core.operations import MergeUnits, MoveEvents, Relabel, SetNote
 from core.params import Params
@@ -163,7 +163,8 @@ HOSTILE = {
                                                              dtype=h5py.string_dtype()),
                        "numeric array"),
     "external link": (lambda f: f.__setitem__("ext", h5py.ExternalLink("/etc/passwd", "/x")), "ExternalLink"),
-    "label code": (lambda f: f["sorting/unit_label"].__setitem__(0, 9), "label codes must be below 4"),
+    "label name": (lambda f: (f["sorting"].__delitem__("labels"), write_text(f["sorting"], "labels", '["good"]')),
+                   "unit labels must be among unreviewed, single unit"),
     "unknown unit": (lambda f: f["sorting/assignments"].__setitem__(0, 999), "unknown ids"),
     "bad json": (lambda f: f["params"].attrs.__setitem__("json", "{not json"), "as JSON"),
     "bad params": (lambda f: f["params"].attrs.__setitem__("json", '{"detect": {"x": 1}}'),
@@ -174,7 +175,7 @@ HOSTILE = {
     "short features": (lambda f: (f["features"].__delitem__("values"),
                                   f["features"].create_dataset("values", data=np.zeros((5, 5), "f4"))),
                        "must agree in length"),
-    "newer format": (lambda f: f.attrs.__setitem__("format_version", 7), "version must be from 1 to 1"),
+    "newer format": (lambda f: f.attrs.__setitem__("format_version", 7), "version must be from 1 to 2"),
     "bad journal": (lambda f: (f["journal"].__delitem__("lines"),
                                f["journal"].create_dataset("lines", data=np.frombuffer(b"\xff\xfe", "u1"))),
                     "UTF-8"),

@@ -1,7 +1,7 @@
 """First-pass clustering against the known units of the synthetic demo (invented ground truth).
 
-Pairing: Hungarian assignment (scipy.optimize.linear_sum_assignment) on the agreement matrix.
-Agreement: the Jaccard index of the two spike sets, matches / (n_true + n_found - matches),
+Pairing: Hungarian assignment (scipy.optimize.linear_sum_assignment) on the overlap matrix.
+Overlap: the Jaccard index of the two spike sets, matches / (n_true + n_found - matches),
 with spikes matched one-to-one within 0.5 ms (Jaccard 1912). It also charges detection misses
 (overlapping spikes in one bundle) to the unit, so it is a lower bound on clustering accuracy.
 """
@@ -12,7 +12,7 @@ from scipy.optimize import linear_sum_assignment
 
 from core.features import compute_features
 from core.first_pass import first_pass
-from core.matching import agreement_matrix, jaccard
+from core.matching import shared_spike_matrix, jaccard
 from core.params import Params
 from core.pipeline import detect
 from core.recording import open_recording
@@ -37,7 +37,7 @@ def test_well_separated_units_are_recovered(sorted_demo):
     a = sorting.assignments
     found = a >= 0
     tol = 0.0005 * events.rate_hz
-    ids_t, ids_f, m = agreement_matrix(truth.sample, truth.unit, events.sample[found], a[found], tol)
+    ids_t, ids_f, m = shared_spike_matrix(truth.sample, truth.unit, events.sample[found], a[found], tol)
     n_t = np.array([(truth.unit == u).sum() for u in ids_t])
     n_f = np.array([(a == u).sum() for u in ids_f])
     agree = jaccard(m, n_t, n_f)
