@@ -42,7 +42,7 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="largest distance between matched spikes (default 0.5 ms)")
     add_recording_options(p)
     add_param_options(p)
-    p.set_defaults(func=run_audit_command)
+    p.set_defaults(func=run_audit_command, inputs=("recording", "params", "sorted", "session"))
 
 
 def run_audit_command(args: argparse.Namespace) -> int:

@@ -27,7 +27,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--censored-ms", type=float,
                    help="censored period (default: the detection dead time, since shorter intervals cannot be seen)")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
-    p.set_defaults(func=run_metrics)
+    p.set_defaults(func=run_metrics, inputs=("session",))
 
 
 def run_metrics(args: argparse.Namespace) -> int:

@@ -25,7 +25,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--resume", action="store_true", help="continue an interrupted run from its checkpoint")
     add_recording_options(p)
     add_param_options(p)
-    p.set_defaults(func=run_sort_command)
+    p.set_defaults(func=run_sort_command, inputs=("recording", "params"))
 
     e = sub.add_parser("export", help="write spike times per unit and a 1 ms binned spike matrix",
                        description="Write spike times per unit (units.csv with unit,label,time_s and one "
@@ -34,7 +34,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     e.add_argument("--out", required=True, metavar="DIR", help="folder to write (created if missing)")
     e.add_argument("--bin-ms", type=float, default=1.0, help="bin width of the spike matrix (default 1 ms)")
     e.add_argument("--quiet", action="store_true", help="no progress bar")
-    e.set_defaults(func=run_export_command)
+    e.set_defaults(func=run_export_command, inputs=("session",))
 
 
 def run_sort_command(args: argparse.Namespace) -> int:

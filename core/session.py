@@ -13,9 +13,9 @@ Layout (format version 1)::
     /sorting/notes    UTF-8 JSON list of one note per unit (uint8 dataset); attrs next_id
     /journal/lines    UTF-8 JSON lines (uint8 dataset)
 
-No pickled or executable content is written or accepted. Saving is atomic: ``NAME.tmp`` is
-written, flushed, fsynced and renamed over ``NAME``; the previous ``NAME`` (if it verifies)
-becomes ``NAME.bak`` first, by a hard link where possible. ``NAME.autosave.h5`` is written
+No pickled or executable content is written or accepted. Saving is atomic: a uniquely named
+temporary file beside ``NAME`` is written (built in memory, then written at once), flushed,
+fsynced and renamed over ``NAME``; the previous ``NAME`` (if it verifies) becomes ``NAME.bak`` first, by a hard link where possible. ``NAME.autosave.h5`` is written
 the same way by :func:`save_autosave`; :mod:`core.session_recovery` finds the newest
 consistent state among the main file, the autosave and the backup.
 """
@@ -31,9 +31,10 @@ import h5py
 import numpy as np
 
 from . import __version__
-from .atomic import atomic_copy_bytes, atomic_write
+from .atomic import atomic_copy_bytes, atomic_write, safe_unlink
 from .errors import ParamError, SessionError
 from .events import COLUMNS, EventTable
+from .h5image import h5_in_memory
 from .h5safe import CHECKSUM_ATTR, array, attr, read_verified, text, write_text
 from .journal import Journal, utc_now
 from .params import Params
@@ -111,7 +112,7 @@ def file_fingerprint(path: str | Path) -> str:
 # ---- writing -------------------------------------------------------------------------------
 def _write(tmp: Path, s: Session, saved_utc: str) -> None:
     sorting = s.sorting
-    with h5py.File(tmp, "w", libver=("v110", "latest")) as f:
+    with h5_in_memory(tmp, libver=("v110", "latest")) as f:
         f.attrs.update(format=FORMAT, format_version=FORMAT_VERSION, program_version=__version__,
                        saved_utc=saved_utc)
         rec = f.create_group("recording")
@@ -134,7 +135,7 @@ def _write(tmp: Path, s: Session, saved_utc: str) -> None:
         g.attrs["next_id"] = np.int64(sorting.next_id)
         write_text(f.create_group("journal"), "lines", sorting.journal.to_text())
         f.flush()
-        _, digest = read_verified(f, tmp)
+        _, digest = read_verified(f, tmp, size=f.id.get_filesize())
         f.attrs[CHECKSUM_ATTR] = digest
 
 
@@ -154,14 +155,15 @@ def _save(path: Path, session: Session, keep_backup: bool) -> Path:
     return path
 
 
-def save_session(path: str | Path, session: Session) -> Path:
-    """Save atomically, keeping the previous good file as ``NAME.bak``.
+def save_session(path: str | Path, session: Session, keep_backup: bool = True) -> Path:
+    """Save atomically, keeping the previous good file as ``NAME.bak`` (unless ``keep_backup``
+    is False: the caller has kept it elsewhere).
 
     The autosave file, now older than the saved state, is removed.
     """
     path = Path(path)
-    _save(path, session, keep_backup=True)
-    autosave_path(path).unlink(missing_ok=True)
+    _save(path, session, keep_backup=keep_backup)
+    safe_unlink(autosave_path(path))
     session.source = path
     return path
 

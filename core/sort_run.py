@@ -17,6 +17,7 @@ import numpy as np
 from .atomic import atomic_write
 from .errors import RigsideError
 from .events import EventTable
+from .h5image import write_h5
 from .features import Features, compute_features
 from .first_pass import first_pass
 from .params import Params
@@ -40,14 +41,13 @@ def _key(recording: Recording, params: Params) -> str:
 
 
 def _write_checkpoint(path: Path, key: str, events: EventTable, features: Features | None) -> None:
-    def write(tmp: Path) -> None:
-        with h5py.File(tmp, "w") as f:
-            f.attrs["key"] = key
-            events.to_h5_group(f.create_group("events"))
-            if features is not None:
-                f.create_dataset("features", data=features.values)
-                f.attrs["feature_names"] = json.dumps(features.names)
-    atomic_write(path, write)
+    def fill(f: h5py.File) -> None:
+        f.attrs["key"] = key
+        events.to_h5_group(f.create_group("events"))
+        if features is not None:
+            f.create_dataset("features", data=features.values)
+            f.attrs["feature_names"] = json.dumps(features.names)
+    atomic_write(path, lambda tmp: write_h5(tmp, fill))
 
 
 def _read_checkpoint(path: Path, key: str) -> tuple[EventTable | None, Features | None]:
