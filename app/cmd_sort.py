@@ -8,7 +8,7 @@ from pathlib import Path
 from core.errors import ParamError
 from core.export import export_units
 from core.session import load_session
-from core.sort_run import run_sort
+from core.sort_run import check_new_session, run_sort
 
 from .cli_common import add_param_options, add_recording_options, check_output, open_from_args, params_from_args
 from .progressbar import TextProgress
@@ -23,6 +23,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--clusters", type=int, metavar="K", help="force K clusters per group (default: chosen by BIC)")
     p.add_argument("--seed", type=int, help="clustering seed (default 0)")
     p.add_argument("--resume", action="store_true", help="continue an interrupted run from its checkpoint")
+    p.add_argument("--overwrite", action="store_true",
+                   help="replace an existing session (it is kept as NAME.bak, or NAME.bak.1, ... if taken)")
     add_recording_options(p)
     add_param_options(p)
     p.set_defaults(func=run_sort_command, inputs=("recording", "params"))
@@ -39,6 +41,7 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 def run_sort_command(args: argparse.Namespace) -> int:
     check_output(args.session, args.recording, suffixes=(".h5", ".hdf5"))
+    check_new_session(args.session, args.overwrite)
     params = params_from_args(args)
     if args.clusters is not None:
         params.cluster.k = args.clusters
@@ -48,12 +51,14 @@ def run_sort_command(args: argparse.Namespace) -> int:
     rec = open_from_args(args)
     bar = TextProgress(not args.quiet)
     try:
-        session = run_sort(rec, params, args.session, resume=args.resume, progress=bar)
+        session, backup = run_sort(rec, params, args.session, resume=args.resume, progress=bar,
+                                   overwrite=args.overwrite)
     finally:
         bar.close()
         rec.close()
     n_units = len(session.sorting.units)
-    print(f"{len(session.events)} events, {n_units} units in {len(rec.groups)} groups -> {args.session}")
+    print(f"{len(session.events)} events, {n_units} units in {len(rec.groups)} groups -> {args.session}"
+          + (f" (previous session kept as {backup})" if backup else ""))
     return 0
 
 
