@@ -23,7 +23,6 @@ import math
 from pathlib import Path
 from typing import Sequence
 
-import h5py
 import numpy as np
 
 from . import __version__

@@ -13,7 +13,7 @@ from .events import EventTable
 from .filtering import BandPass
 from .noise import NoiseEstimate, estimate_noise
 from .params import Params
-from .progress import CancelFn, Cancelled, ProgressFn, check, report
+from .progress import CancelFn, ProgressFn, check, report
 from .recording import Recording
 
 NOISE_SHARE = 0.1  # fraction of the progress bar given to the noise estimate

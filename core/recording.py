@@ -102,8 +102,7 @@ class Recording:
     groups: list[np.ndarray]
     group_names: list[str]
     float_data: bool = False
-    content_hash: str | None = None
-    """SHA-256 of the whole file (see :mod:`core.content`), once a full pass has computed it."""
+    content_hash: str | None = None   # "sha256:<hex>" of the whole file once a full pass computed it
 
     def _init_groups(self, groups: list[list[int]] | None, names: list[str] | None) -> None:
         groups = groups if groups else [list(range(self.n_channels))]
@@ -207,17 +206,15 @@ class RawRecording(Recording):
         self._init_groups(layout.groups, layout.group_names)
 
     def read_stored(self, start, stop, channels=None):
-        """Read with positional reads (safe from any thread); a file that shrank since it was
-        opened gives :class:`RecordingError`, never a crash."""
+        """Positional reads (thread-safe); a file that shrank gives RecordingError, not a crash."""
         block = np.empty((stop - start, self.n_channels), dtype=self._dtype)
         view = memoryview(block.reshape(-1).view(np.uint8))
         offset, done = self.layout.header_bytes + start * self._frame, 0
         while done < len(view):
             got = os.preadv(self._fd, [view[done:]], offset + done)
             if got == 0:
-                raise RecordingError(f"recording {str(self.path)!r} must keep its size while it is read, "
-                                     f"got an early end at sample {start + done // self._frame} of "
-                                     f"{self.n_samples} (file changed)")
+                raise RecordingError(f"recording {str(self.path)!r} must keep its size while it is read, got an "
+                                     f"early end at sample {start + done // self._frame} of {self.n_samples}")
             done += got
         return block if channels is None else block[:, channels]
 

@@ -19,9 +19,9 @@ from .atomic import atomic_copy_bytes, atomic_write, check_not_input, free_backu
 from .content import content_hash
 from .errors import RigsideError, SessionError
 from .events import EventTable
-from .h5image import write_h5
 from .features import Features, compute_features
 from .first_pass import first_pass
+from .h5image import write_h5
 from .params import Params
 from .pipeline import detect, thresholds_sigma
 from .progress import CancelFn, ProgressFn, report
