@@ -6,6 +6,7 @@ import argparse
 import sys
 
 from core import __version__
+from core.atomic import protect_inputs
 from core.errors import RigsideError
 from core.progress import Cancelled
 
@@ -39,12 +40,15 @@ def main(argv: list[str] | None = None) -> int:
         if args.command is None:
             from .cmd_window import run_window_command
             return run_window_command(None)
-        return int(args.func(args) or 0)
+        from .cli_common import command_inputs
+        with protect_inputs(command_inputs(args)):
+            return int(args.func(args) or 0)
     except RigsideError as exc:
         print(f"rigside {args.command or ''}: error: {exc}".replace(" :", ":"), file=sys.stderr)
         return EXIT_INPUT
-    except (FileNotFoundError, PermissionError, IsADirectoryError) as exc:
-        print(f"rigside {args.command}: error: {exc.strerror or exc}: {exc.filename}", file=sys.stderr)
+    except OSError as exc:
+        where = f": {exc.filename}" if exc.filename else ""
+        print(f"rigside {args.command}: error: {exc.strerror or exc}{where}", file=sys.stderr)
         return EXIT_INPUT
     except (Cancelled, KeyboardInterrupt):
         print(f"rigside {args.command}: cancelled", file=sys.stderr)

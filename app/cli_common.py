@@ -3,12 +3,12 @@
 from __future__ import annotations
 
 import argparse
-import os
 from pathlib import Path
 
-from core.errors import ParamError, RigsideError
+from core.atomic import check_not_input, protect_inputs
+from core.errors import ParamError
 from core.params import POLARITIES, Params
-from core.recording import DTYPES, Recording, open_recording
+from core.recording import DTYPES, Recording, open_recording, side_files
 
 
 def add_recording_options(p: argparse.ArgumentParser) -> None:
@@ -80,8 +80,22 @@ def recording_options(args: argparse.Namespace) -> dict:
                               ("group_size", args.group_size), ("dataset", args.dataset)) if v is not None}
 
 
-def check_output(out: str | Path, *protected: str | Path, suffixes: tuple[str, ...] = ()) -> Path:
-    """Refuse an output path that is an input file, a directory, or has the wrong suffix."""
+def command_inputs(args: argparse.Namespace) -> list[str]:
+    """Every input file of a command: the paths in its ``inputs`` options, with each
+    recording's metadata and ground-truth files."""
+    paths: list[str] = []
+    for name in getattr(args, "inputs", ()):
+        value = getattr(args, name, None)
+        for v in ([value] if isinstance(value, str) else value or []):
+            paths.append(v)
+            if name in ("recording", "recordings"):
+                paths += [str(f) for f in side_files(v)]
+    return paths
+
+
+def check_output(out: str | Path, *protected: str | Path | None, suffixes: tuple[str, ...] = ()) -> Path:
+    """Refuse an output path that is an input file (``protected`` or the command's inputs),
+    a directory, or has the wrong suffix."""
     out = Path(out)
     if suffixes and out.suffix.lower() not in suffixes:
         raise ParamError(f"output file must end in {' or '.join(suffixes)}, got {str(out)!r}")
@@ -89,7 +103,5 @@ def check_output(out: str | Path, *protected: str | Path, suffixes: tuple[str, .
         raise ParamError(f"output must be a file path, got the directory {str(out)!r}")
     if not out.parent.exists():
         raise ParamError(f"output folder must exist, got {str(out.parent)!r}")
-    for p in protected:
-        if p is not None and Path(p).exists() and out.exists() and os.path.samefile(out, p):
-            raise RigsideError(f"output must not overwrite an input file, got {str(out)!r}")
-    return out
+    with protect_inputs(protected):
+        return check_not_input(out)

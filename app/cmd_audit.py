@@ -8,7 +8,7 @@ from core.audit import CAUTION, AuditSettings, FreshUnits, first_pass_units, run
 from core.audit_table import write_audit_csv
 from core.errors import ParamError
 from core.report import write_audit_report
-from core.session import load_session
+from core.session import check_recording_content, load_session
 from core.spike_import import load_spikes
 
 from .cli_common import add_param_options, add_recording_options, check_output, open_from_args, params_from_args
@@ -42,7 +42,7 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="largest distance between matched spikes (default 0.5 ms)")
     add_recording_options(p)
     add_param_options(p)
-    p.set_defaults(func=run_audit_command)
+    p.set_defaults(func=run_audit_command, inputs=("recording", "params", "sorted", "session"))
 
 
 def run_audit_command(args: argparse.Namespace) -> int:
@@ -67,6 +67,7 @@ def run_audit_command(args: argparse.Namespace) -> int:
         spikes.check_within(rec.duration_s, rec.rate_hz)
         if args.session:
             session = load_session(args.session, recording_path_override=args.recording)
+            check_recording_content(session, progress=lambda f, m: bar(0.2 * f, m))
             session.params.run.workers = params.run.workers
             fresh = FreshUnits.from_session(session)
         else:

@@ -25,7 +25,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--processes", type=int, default=2, help="processes for the dask engine (default 2)")
     add_recording_options(p)
     add_param_options(p)
-    p.set_defaults(func=run_batch_command)
+    p.set_defaults(func=run_batch_command, inputs=("recordings", "params"))
 
 
 def run_batch_command(args: argparse.Namespace) -> int:

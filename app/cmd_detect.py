@@ -23,7 +23,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--keep-artefacts", action="store_true", help="also write events flagged as artefacts")
     add_recording_options(p)
     add_param_options(p)
-    p.set_defaults(func=run_detect)
+    p.set_defaults(func=run_detect, inputs=("recording", "params"))
 
     s = sub.add_parser("synth", help="write a synthetic recording with known ground truth",
                        description="Write the demo scenario (4-wire bundles, 3 units each, artefacts, hum, "
@@ -33,6 +33,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     s.add_argument("--channels", type=int, default=16, help="channel count (default 16)")
     s.add_argument("--rate", type=float, default=30000.0, metavar="HZ", help="sampling rate (default 30000)")
     s.add_argument("--seed", type=int, default=0, help="random seed (default 0)")
+    s.add_argument("--overwrite", action="store_true", help="replace existing files of the same name")
     s.add_argument("--quiet", action="store_true", help="no progress bar")
     s.set_defaults(func=run_synth)
 
@@ -67,7 +68,8 @@ def run_synth(args: argparse.Namespace) -> int:
         raise ParamError(f"synthetic sampling rate must be between 1000 and 100000 Hz, got {args.rate:g} Hz")
     bar = TextProgress(not args.quiet)
     try:
-        sc = write_synth(out, args.seconds, args.channels, args.seed, args.rate, progress=bar)
+        sc = write_synth(out, args.seconds, args.channels, args.seed, args.rate, progress=bar,
+                         overwrite=args.overwrite)
     finally:
         bar.close()
     print(f"{len(sc.spike_sample)} spikes of {len(sc.units)} units, {args.channels} channels, "

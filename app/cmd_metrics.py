@@ -31,7 +31,7 @@ def register(sub: argparse._SubParsersAction) -> None:
                    help="censored period (default: the session's, else the detection dead time, since shorter "
                         "intervals cannot be seen)")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
-    p.set_defaults(func=run_metrics)
+    p.set_defaults(func=run_metrics, inputs=("session",))
 
 
 def run_metrics(args: argparse.Namespace) -> int:

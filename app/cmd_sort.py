@@ -9,7 +9,7 @@ from core.errors import ParamError
 from core.export import export_units
 from core.noise import exclusion_notes
 from core.session import load_session
-from core.sort_run import run_sort
+from core.sort_run import check_new_session, run_sort
 
 from .cli_common import add_param_options, add_recording_options, check_output, open_from_args, params_from_args
 from .progressbar import TextProgress
@@ -24,9 +24,11 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--clusters", type=int, metavar="K", help="force K clusters per group (default: chosen by BIC)")
     p.add_argument("--seed", type=int, help="clustering seed (default 0)")
     p.add_argument("--resume", action="store_true", help="continue an interrupted run from its checkpoint")
+    p.add_argument("--overwrite", action="store_true",
+                   help="replace an existing session (it is kept as NAME.bak, or NAME.bak.1, ... if taken)")
     add_recording_options(p)
     add_param_options(p)
-    p.set_defaults(func=run_sort_command)
+    p.set_defaults(func=run_sort_command, inputs=("recording", "params"))
 
     e = sub.add_parser("export", help="write spike times per unit and a binned spike matrix",
                        description="Write into DIR, from a session: unit_times.csv (columns unit,label,time_s), "
@@ -37,11 +39,12 @@ def register(sub: argparse._SubParsersAction) -> None:
     e.add_argument("--out", required=True, metavar="DIR", help="folder to write (created if missing)")
     e.add_argument("--bin-ms", type=float, default=1.0, help="bin width of the spike matrix (default 1 ms)")
     e.add_argument("--quiet", action="store_true", help="no progress bar")
-    e.set_defaults(func=run_export_command)
+    e.set_defaults(func=run_export_command, inputs=("session",))
 
 
 def run_sort_command(args: argparse.Namespace) -> int:
     check_output(args.session, args.recording, suffixes=(".h5", ".hdf5"))
+    check_new_session(args.session, args.overwrite)
     params = params_from_args(args)
     if args.clusters is not None:
         params.cluster.k = args.clusters
@@ -51,7 +54,8 @@ def run_sort_command(args: argparse.Namespace) -> int:
     rec = open_from_args(args)
     bar = TextProgress(not args.quiet)
     try:
-        session = run_sort(rec, params, args.session, resume=args.resume, progress=bar)
+        session, backup = run_sort(rec, params, args.session, resume=args.resume, progress=bar,
+                                   overwrite=args.overwrite)
     finally:
         bar.close()
         rec.close()
@@ -59,7 +63,8 @@ def run_sort_command(args: argparse.Namespace) -> int:
     ev = session.events
     n_art = int(ev.artefact.sum())
     why = f" ({n_art:,} artefacts kept for sorting, in no unit)" if n_art else ""
-    print(f"{len(ev):,} events{why}, {n_units} units in {len(rec.groups)} groups -> {args.session}")
+    print(f"{len(ev):,} events{why}, {n_units} units in {len(rec.groups)} groups -> {args.session}"
+          + (f" (previous session kept as {backup})" if backup else ""))
     for note in exclusion_notes(rec.groups, rec.group_names, ev.excluded):
         print(f"note: {note}")
     return 0

@@ -18,7 +18,8 @@ from PySide6.QtWidgets import QApplication, QFileDialog, QMessageBox
 from shiboken6 import isValid
 
 from core.errors import RigsideError, SessionError
-from core.session import RecordingChanged, RecordingMoved, autosave_path, load_session, save_session, snapshot
+from core.session import (RecordingChanged, RecordingMoved, autosave_path, check_recording_content, load_session,
+                          save_session, snapshot)
 from core.session_recovery import Autosaver, find_states
 
 from .cli_common import check_output
@@ -30,9 +31,12 @@ SESSION_FILTER = "rigside sessions (*.h5);;All files (*)"
 
 
 def _load_job(path: Path, override, progress=None, cancel=None):
-    """Load a session; the expected refusals come back as values (their kind matters)."""
+    """Load a session (quick recording check), then hash the recording's whole content (full
+    check) off the GUI thread; the expected refusals come back as values (their kind matters)."""
     try:
-        return load_session(path, recording_path_override=override)
+        session = load_session(path, recording_path_override=override)
+        check_recording_content(session, progress, cancel)
+        return session
     except (RecordingMoved, RecordingChanged, SessionError) as exc:
         return exc
 

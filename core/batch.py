@@ -12,12 +12,12 @@ import time
 from dataclasses import dataclass
 from pathlib import Path
 
-from .atomic import atomic_write
+from .atomic import atomic_write, check_not_input, protect_inputs, protected_inputs
 from .detect_run import detect_to_files
 from .errors import ParamError, RigsideError
 from .params import Params
 from .progress import CancelFn, ProgressFn, check, report
-from .recording import open_recording
+from .recording import open_recording, side_files
 
 ENGINES = ("local", "dask")
 
@@ -34,20 +34,43 @@ class BatchOutcome:
     message: str = ""
 
 
-def run_one(path: str, out_dir: str, params: Params, layout: dict, fmt: str = "csv") -> BatchOutcome:
-    """Detect on one recording and write its outputs; errors become a "failed" outcome."""
-    start = time.perf_counter()
+def outputs_of(path: str | Path, out_dir: str | Path, fmt: str) -> tuple[Path, Path]:
+    """The event file and summary written for one recording."""
     stem = Path(path).name.split(".")[0] or "recording"
+    return Path(out_dir) / f"{stem}.events.{fmt}", Path(out_dir) / f"{stem}.summary.json"
+
+
+def run_one(path: str, out_dir: str, params: Params, layout: dict, fmt: str = "csv",
+            inputs: tuple[str, ...] = ()) -> BatchOutcome:
+    """Detect on one recording and write its outputs; errors become a "failed" outcome.
+    ``inputs`` are protected from every write (see :func:`core.atomic.protect_inputs`)."""
+    start = time.perf_counter()
     try:
-        rec = open_recording(path, **layout)
-        try:
-            done = detect_to_files(rec, params, Path(out_dir) / f"{stem}.events.{fmt}",
-                                   Path(out_dir) / f"{stem}.summary.json")
-            return BatchOutcome(str(path), "done", len(done.events), rec.duration_s, time.perf_counter() - start)
-        finally:
-            rec.close()
+        with protect_inputs(inputs):
+            return _detect_one(path, out_dir, params, layout, fmt, start)
     except (RigsideError, OSError) as exc:
         return BatchOutcome(str(path), "failed", 0, 0.0, time.perf_counter() - start, str(exc))
+
+
+def _detect_one(path: str, out_dir: str, params: Params, layout: dict, fmt: str, start: float) -> BatchOutcome:
+    rec = open_recording(path, **layout)
+    try:
+        done = detect_to_files(rec, params, *outputs_of(path, out_dir, fmt))
+        return BatchOutcome(str(path), "done", len(done.events), rec.duration_s, time.perf_counter() - start)
+    finally:
+        rec.close()
+
+
+def _protected(paths: list[str], out_dir: Path, fmt: str) -> tuple[str, ...]:
+    """Every input of the batch (recordings, their side files, the command's own inputs),
+    after checking that no planned output is one of them."""
+    inputs = (*protected_inputs(), *map(str, paths), *(str(f) for p in paths for f in side_files(p)))
+    with protect_inputs(inputs):
+        for p in paths:
+            for out in outputs_of(p, out_dir, fmt):
+                check_not_input(out, "batch output")
+        check_not_input(out_dir / "batch.csv", "batch output")
+    return inputs
 
 
 def run_batch(paths: list[str], out_dir: str | Path, params: Params, layout: dict | None = None,
@@ -96,27 +119,29 @@ def run_batch(paths: list[str], out_dir: str | Path, params: Params, layout: dic
         raise ParamError(f"batch output folder must exist, got {str(out_dir)!r}")
     layout = layout or {}
     params.validate()
+    inputs = _protected(paths, out_dir, fmt)
     if engine == "dask":
-        outcomes = _on_dask(paths, out_dir, params, layout, fmt, workers, cancel)
+        outcomes = _on_dask(paths, out_dir, params, layout, fmt, workers, cancel, inputs)
     else:
         outcomes = []
         for i, p in enumerate(paths):
             check(cancel)
-            outcomes.append(run_one(str(p), str(out_dir), params, layout, fmt))
+            outcomes.append(run_one(str(p), str(out_dir), params, layout, fmt, inputs))
             report(progress, (i + 1) / len(paths), f"{i + 1} of {len(paths)} recordings")
-    write_outcomes(out_dir / "batch.csv", outcomes)
+    with protect_inputs(inputs):
+        write_outcomes(out_dir / "batch.csv", outcomes)
     report(progress, 1.0, "batch done")
     return outcomes
 
 
-def _on_dask(paths, out_dir, params, layout, fmt, workers, cancel) -> list[BatchOutcome]:
+def _on_dask(paths, out_dir, params, layout, fmt, workers, cancel, inputs) -> list[BatchOutcome]:
     try:
         import dask
     except ImportError:
         raise ParamError("the dask engine needs the dask package, got none installed "
                          "(pip install 'rigside[dask]')") from None
     check(cancel)
-    tasks = [dask.delayed(run_one)(str(p), str(out_dir), params, layout, fmt) for p in paths]
+    tasks = [dask.delayed(run_one)(str(p), str(out_dir), params, layout, fmt, inputs) for p in paths]
     return list(dask.compute(*tasks, scheduler="processes", num_workers=max(1, workers)))
 
 

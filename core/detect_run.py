@@ -71,7 +71,8 @@ def write_summary(path: Path, rec: Recording, params: Params, events: EventTable
     counts = events.counts(threshold_sigma=thr)
     doc = {
         "program": "rigside", "version": __version__, "recording": rec.describe(),
-        "parameters": params.to_dict(), "duration_s": rec.duration_s, "rate_hz": rec.rate_hz,
+        "content_hash": rec.content_hash, "parameters": params.to_dict(), "duration_s": rec.duration_s,
+        "rate_hz": rec.rate_hz,
         "artefact_events": int((events.artefact & events.mask(threshold_sigma=thr, include_artefacts=True)).sum()),
         "channels": [{"channel": c, "group": int(rec.channel_group[c]), "noise_uv": float(events.sigma_uv[c]),
                       "threshold_uv": float(thr[c] * events.sigma_uv[c]) if np.isfinite(thr[c]) and events.sigma_uv[c] > 0 else None,

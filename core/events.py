@@ -17,6 +17,7 @@ import numpy as np
 
 from .atomic import atomic_write
 from .errors import RigsideError
+from .h5image import write_h5
 
 COLUMNS = {
     "sample": np.int64,
@@ -162,10 +163,7 @@ class EventTable:
 
     def write_h5(self, path: str | Path, group: str = "events") -> None:
         """Write the table into an HDF5 group (own layout: one dataset per column)."""
-        def write(tmp: Path) -> None:
-            with h5py.File(tmp, "w") as f:
-                self.to_h5_group(f.create_group(group))
-        atomic_write(path, write)
+        atomic_write(path, lambda tmp: write_h5(tmp, lambda f: self.to_h5_group(f.create_group(group))))
 
     def to_h5_group(self, g: h5py.Group) -> None:
         """Store columns and context in an open HDF5 group."""

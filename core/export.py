@@ -1,6 +1,8 @@
 """Export of curated spike times: CSV, one NumPy file per unit, and a binned spike matrix.
 
-Files written into the output directory (each atomically):
+Files written into the output directory (each atomically; the folder as a whole follows
+:mod:`core.export_folder`: the manifest is written last, and files of an earlier export that
+this one does not write are removed):
 
 - ``unit_times.csv``: columns ``unit,label,time_s``, rows by unit id then time; times are
   ``sample / rate_hz`` in seconds with 7 decimals (0.1 microsecond). Events in no unit (id -1) are not exported.
@@ -10,7 +12,8 @@ Files written into the output directory (each atomically):
   ``n_bins``, ``duration_s``, ``edges``. Bin ``k`` counts the spikes with
   ``k * bin_s <= time_s < (k + 1) * bin_s``; ``n_bins = ceil(duration_s / bin_s)``, so the
   last bin may reach past the end of the recording.
-- ``export.json``: what was written, from which session, with which program version.
+- ``export.json``: what was written, from which session, with which program version;
+  ``complete`` (false while an export is under way or was interrupted) and ``files`` (name: bytes).
 """
 
 from __future__ import annotations
@@ -20,18 +23,20 @@ import math
 from pathlib import Path
 from typing import Sequence
 
-import h5py
 import numpy as np
 
 from . import __version__
 from .atomic import atomic_write
 from .errors import RigsideError
 from .events import EventTable
+from .export_folder import ExportFolder
+from .h5image import h5_in_memory
 from .journal import utc_now
 from .progress import CancelFn, ProgressFn, check, report
 from .sorting import LABELS, Sorting
 
 MAX_COUNT = np.iinfo(np.uint16).max
+CSV_NAME, BINNED_NAME = "unit_times.csv", "binned.h5"
 
 
 def bin_count(duration_s: float, bin_s: float) -> int:
@@ -89,11 +94,10 @@ def export_sorting(events: EventTable, sorting: Sorting, out_dir: str | Path, bi
         raise RigsideError(f"export labels must be among {', '.join(LABELS)}, got {sorted(set(labels))}")
     if len(sorting.data) != len(events):
         raise RigsideError(f"sorting must cover the event table ({len(events)} events), got {len(sorting.data)}")
-    out = Path(out_dir)
-    out.mkdir(parents=True, exist_ok=True)
     bin_s = bin_ms / 1000.0
     n_bins = bin_count(events.duration_s, bin_s)
     units = {u: rec for u, rec in sorting.units.items() if labels is None or rec.label in labels}
+    folder = ExportFolder(out_dir, [f"unit_{u}.npy" for u in units] + [CSV_NAME, BINNED_NAME])
     times = events.time_s
     written: dict[str, list[Path]] = {"csv": [], "npy": [], "binned": [], "manifest": []}
     csv_parts = ["unit,label,time_s\n"]
@@ -104,15 +108,15 @@ def export_sorting(events: EventTable, sorting: Sorting, out_dir: str | Path, bi
         t = times[sorting.events_of(u)]
         trains[u] = t
         csv_parts.append("".join(f"{u},{rec.label},{x:.7f}\n" for x in t))
-        written["npy"].append(_write_npy(out / f"unit_{u}.npy", t))
+        written["npy"].append(_write_npy(folder.path(f"unit_{u}.npy"), t))
 
     def write_csv(tmp: Path) -> None:
         with open(tmp, "w", newline="") as fh:
             fh.writelines(csv_parts)
-    written["csv"].append(atomic_write(out / "unit_times.csv", write_csv))
+    written["csv"].append(atomic_write(folder.path(CSV_NAME), write_csv))
 
     def write_binned(tmp: Path) -> None:
-        with h5py.File(tmp, "w") as f:
+        with h5_in_memory(tmp) as f:
             packed = {"chunks": (1, min(n_bins, 1 << 16)), "compression": "gzip",
                       "compression_opts": 1} if units else {}
             ds = f.create_dataset("counts", shape=(len(units), n_bins), dtype=np.uint16, **packed)
@@ -129,16 +133,13 @@ def export_sorting(events: EventTable, sorting: Sorting, out_dir: str | Path, bi
                              dtype=h5py.string_dtype("utf-8"))
             f.attrs.update(bin_s=bin_s, n_bins=n_bins, duration_s=events.duration_s,
                            edges="bin k holds spikes with k*bin_s <= time_s < (k+1)*bin_s")
-    written["binned"].append(atomic_write(out / "binned.h5", write_binned))
+    written["binned"].append(atomic_write(folder.path(BINNED_NAME), write_binned))
 
     manifest = {"program_version": __version__, "exported_utc": utc_now(), "source": source,
                 "bin_s": bin_s, "n_bins": n_bins, "duration_s": events.duration_s,
                 "units": [{"unit": u, "label": r.label, "group": r.group, "count": len(trains[u]),
                            "file": f"unit_{u}.npy"} for u, r in units.items()]}
-
-    def write_manifest(tmp: Path) -> None:
-        tmp.write_text(json.dumps(manifest, indent=1))
-    written["manifest"].append(atomic_write(out / "export.json", write_manifest))
+    written["manifest"].append(folder.finish(manifest))
     report(progress, 1.0, "export done")
     return written
 

@@ -75,8 +75,11 @@ def _members(g: h5py.Group, where: str) -> list[tuple[str, Any]]:
     return out
 
 
-def read_verified(f: h5py.File, path: str | Path) -> tuple[dict[str, np.ndarray], str]:
+def read_verified(f: h5py.File, path: str | Path, size: int | None = None) -> tuple[dict[str, np.ndarray], str]:
     """Read every dataset of an open file after checking its structure, and hash it all.
+
+    ``size`` is the file's size in bytes (default: the size of ``path`` on disk; give it for
+    a file still being built in memory).
 
     Returns
     -------
@@ -84,7 +87,8 @@ def read_verified(f: h5py.File, path: str | Path) -> tuple[dict[str, np.ndarray]
         Arrays by slash path (e.g. ``"sorting/assignments"``) and the SHA-256 hex digest of
         the structure, attributes (except the root checksum) and data.
     """
-    budget = MAX_EXPANSION * os.path.getsize(path) + (64 << 20)
+    size = os.path.getsize(path) if size is None else size
+    budget = MAX_EXPANSION * size + (64 << 20)
     h = hashlib.sha256()
     data: dict[str, np.ndarray] = {}
     datasets: list[tuple[str, h5py.Dataset]] = []
@@ -109,7 +113,7 @@ def read_verified(f: h5py.File, path: str | Path) -> tuple[dict[str, np.ndarray]
             else:
                 raise SessionError(f"session object {full} must be a group or dataset, got {type(obj).__name__}")
     if declared > budget:
-        raise SessionError(f"session datasets must fit the file's size ({os.path.getsize(path)} bytes), "
+        raise SessionError(f"session datasets must fit the file's size ({size} bytes), "
                            f"got {declared} bytes declared")
     for full, ds in datasets:
         try:

@@ -14,6 +14,7 @@ from typing import Any
 
 import tomli_w
 
+from .atomic import atomic_write
 from .errors import ParamError
 from .numbers import format_number
 
@@ -304,8 +305,9 @@ class Params:
         return out
 
     def save_toml(self, path: str | Path) -> None:
-        """Write the parameters as TOML."""
-        Path(path).write_text(tomli_w.dumps(self.to_dict()))
+        """Write the parameters as TOML (atomically)."""
+        text = tomli_w.dumps(self.to_dict())
+        atomic_write(path, lambda tmp: tmp.write_text(text))
 
     @classmethod
     def load_toml(cls, path: str | Path) -> "Params":

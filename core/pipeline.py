@@ -7,12 +7,13 @@ from collections import deque
 
 import numpy as np
 
+from .content import ContentHasher
 from .detection import BlockEvents, detect_block
 from .events import EventTable
 from .filtering import BandPass
 from .noise import NoiseEstimate, estimate_noise
 from .params import Params
-from .progress import CancelFn, Cancelled, ProgressFn, check, report
+from .progress import CancelFn, ProgressFn, check, report
 from .recording import Recording
 
 NOISE_SHARE = 0.1  # fraction of the progress bar given to the noise estimate
@@ -62,6 +63,8 @@ def detect(recording: Recording, params: Params, progress: ProgressFn = None, ca
         Every event down to the look-up floor (see :func:`lookup_floor`), sorted by time.
         Channels flagged dead or saturated (``NoiseEstimate.excluded``) hold no events.
         ``EventTable.mask`` with the detection threshold selects the detected events.
+        The pass also hashes the whole file (``recording.content_hash``) and raises
+        :class:`core.errors.RecordingError` if the file changes size meanwhile.
     """
     params.validate(recording.rate_hz)
     bp = BandPass(recording, params.filter)
@@ -84,12 +87,18 @@ def detect(recording: Recording, params: Params, progress: ProgressFn = None, ca
     def work(start: int, stop: int) -> BlockEvents:
         lo, hi = max(0, start - ctx), min(recording.n_samples, stop + ctx)
         y = bp.read(lo, hi)
-        recording.release(lo, hi)
         return detect_block(y, lo, start - lo, stop - lo, live_sigma, recording.groups, d.polarity, floor,
                             dead, d.artefact_sigma, d.artefact_channel_fraction, art_w)
 
     parts: list[BlockEvents] = []
-    with ThreadPoolExecutor(max_workers=params.run.workers) as pool:
+    hasher = ContentHasher(recording.path)
+
+    def collect(future: Future) -> None:
+        parts.append(future.result())
+        hasher.advance(len(parts) / len(bounds))
+        report(progress, NOISE_SHARE + (1 - NOISE_SHARE) * len(parts) / len(bounds), "detecting")
+
+    with hasher, ThreadPoolExecutor(max_workers=params.run.workers) as pool:
         pending: deque[Future] = deque()
         todo = iter(bounds)
         try:
@@ -97,13 +106,12 @@ def detect(recording: Recording, params: Params, progress: ProgressFn = None, ca
                 check(cancel)
                 pending.append(pool.submit(work, *b))
                 if len(pending) >= 2 * params.run.workers:
-                    parts.append(pending.popleft().result())
-                    report(progress, NOISE_SHARE + (1 - NOISE_SHARE) * len(parts) / len(bounds), "detecting")
+                    collect(pending.popleft())
             while pending:
                 check(cancel)
-                parts.append(pending.popleft().result())
-                report(progress, NOISE_SHARE + (1 - NOISE_SHARE) * len(parts) / len(bounds), "detecting")
-        except Cancelled:
+                collect(pending.popleft())
+            recording.content_hash = hasher.finish()
+        except BaseException:
             for f in pending:
                 f.cancel()
             raise

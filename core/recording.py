@@ -2,7 +2,7 @@
 
 A reader gives the sample count, channel count, sampling rate, channel groups and a
 ``read(start, stop)`` returning microvolts as float32 (samples x channels). Files are
-opened read-only (memory map or HDF5 read mode) and never written. A new format is a
+opened read-only (positional reads or HDF5 read mode) and never written. A new format is a
 new subclass of :class:`Recording` plus one line in :func:`open_recording`.
 
 Raw binary files are described by a metadata file of our own schema beside the data,
@@ -25,7 +25,7 @@ from __future__ import annotations
 
 import hashlib
 import math
-import mmap
+import os
 import tomllib
 from dataclasses import dataclass
 from pathlib import Path
@@ -38,6 +38,7 @@ from .errors import RecordingError
 
 DTYPES = ("int16", "uint16", "int32", "float32")
 META_SUFFIX = ".rigside.toml"
+TRUTH_SUFFIXES = (".truth.csv", ".truth_units.csv")
 
 
 @dataclass
@@ -101,6 +102,7 @@ class Recording:
     groups: list[np.ndarray]
     group_names: list[str]
     float_data: bool = False
+    content_hash: str | None = None   # "sha256:<hex>" of the whole file once a full pass computed it
 
     def _init_groups(self, groups: list[list[int]] | None, names: list[str] | None) -> None:
         groups = groups if groups else [list(range(self.n_channels))]
@@ -147,9 +149,6 @@ class Recording:
             raise RecordingError(f"recording must hold finite values, got NaN or Inf at sample "
                                  f"{start + int(bad[0])}, channel {int(bad[1]) if channels is None else int(channels[bad[1]])}")
 
-    def release(self, start: int, stop: int) -> None:
-        """Hint that samples ``[start, stop)`` will not be needed again soon."""
-
     def fingerprint(self) -> str:
         """Size plus a SHA-256 of three 1 MiB blocks (start, middle, end) of the file."""
         size = self.path.stat().st_size
@@ -177,7 +176,7 @@ class Recording:
 
 
 class RawRecording(Recording):
-    """Interleaved little-endian binary samples, memory-mapped read-only."""
+    """Interleaved little-endian binary samples, read-only."""
 
     def __init__(self, path: str | Path, layout: Layout):
         layout.validate()
@@ -201,34 +200,28 @@ class RawRecording(Recording):
                                  f"({layout.channels} x {item} = {frame} bytes), got {body} bytes "
                                  f"(truncated, or wrong channel count or sample type?)")
         self.n_samples = body // frame
-        self._map = np.memmap(self.path, dtype=np.dtype(layout.dtype).newbyteorder("<"), mode="r",
-                              offset=layout.header_bytes, shape=(self.n_samples, self.n_channels))
+        self._dtype = np.dtype(layout.dtype).newbyteorder("<")
+        self._frame = frame
+        self._fd = os.open(self.path, os.O_RDONLY)
         self._init_groups(layout.groups, layout.group_names)
 
     def read_stored(self, start, stop, channels=None):
-        block = self._map[start:stop] if channels is None else self._map[start:stop, channels]
-        return np.asarray(block)
-
-    def release(self, start: int, stop: int) -> None:
-        """Drop the pages of ``[start, stop)`` from this process's resident set (they stay in the
-        page cache), so streaming a long file keeps resident memory flat."""
-        mm = getattr(self._map, "_mmap", None)
-        if mm is None or not hasattr(mm, "madvise"):
-            return
-        frame = self.n_channels * self._map.dtype.itemsize
-        page = mmap.PAGESIZE
-        skip = self.layout.header_bytes % mmap.ALLOCATIONGRANULARITY  # where the map begins
-        a = skip + start * frame
-        b = skip + stop * frame
-        a0, b0 = (a + page - 1) // page * page, b // page * page
-        if b0 > a0:
-            mm.madvise(mmap.MADV_DONTNEED, a0, b0 - a0)
+        """Positional reads (thread-safe); a file that shrank gives RecordingError, not a crash."""
+        block = np.empty((stop - start, self.n_channels), dtype=self._dtype)
+        view = memoryview(block.reshape(-1).view(np.uint8))
+        offset, done = self.layout.header_bytes + start * self._frame, 0
+        while done < len(view):
+            got = os.preadv(self._fd, [view[done:]], offset + done)
+            if got == 0:
+                raise RecordingError(f"recording {str(self.path)!r} must keep its size while it is read, got an "
+                                     f"early end at sample {start + done // self._frame} of {self.n_samples}")
+            done += got
+        return block if channels is None else block[:, channels]
 
     def close(self) -> None:
-        mm = getattr(self._map, "_mmap", None)
-        self._map = None
-        if mm is not None:
-            mm.close()
+        if self._fd >= 0:
+            os.close(self._fd)
+            self._fd = -1
 
 
 class HDF5Recording(Recording):
@@ -314,6 +307,13 @@ def metadata_path(path: str | Path) -> Path | None:
         if cand.exists():
             return cand
     return None
+
+
+def side_files(path: str | Path) -> list[Path]:
+    """The existing files that belong to a recording: its metadata and ground-truth files."""
+    p = Path(path)
+    found = [metadata_path(p)] + [p.with_name(p.stem + s) for s in TRUTH_SUFFIXES]
+    return [f for f in found if f is not None and f.exists()]
 
 
 def read_metadata(meta: str | Path) -> Layout:

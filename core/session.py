@@ -4,7 +4,8 @@ Layout (format version 2)::
 
     /                 attrs format="rigside session", format_version, program_version,
                       saved_utc, checksum (SHA-256 of everything else, see core.h5safe)
-    /recording        attrs path, size, fingerprint, description (JSON)
+    /recording        attrs path, size, fingerprint, description (JSON), content_hash
+                      ("sha256:<hex>" of the whole file, see core.content; may be absent or empty)
     /params           attrs json (Params.to_dict() as JSON)
     /events           the event table (EventTable.to_h5_group)
     /features/values  float32 events x features;   attrs names (JSON list)
@@ -15,9 +16,9 @@ Layout (format version 2)::
     /journal/lines    UTF-8 JSON lines (uint8 dataset)
 
 Format 1 stored labels as codes instead of ``/sorting/labels``; it is still read (see
-:mod:`core.session_labels`). No pickled or executable content is written or accepted. Saving is atomic: ``NAME.tmp`` is
-written, flushed, fsynced and renamed over ``NAME``; the previous ``NAME`` (if it verifies)
-becomes ``NAME.bak`` first, by a hard link where possible. ``NAME.autosave.h5`` is written
+:mod:`core.session_labels`). No pickled or executable content is written or accepted. Saving is atomic: a uniquely named
+temporary file beside ``NAME`` is written (built in memory, then written at once), flushed,
+fsynced and renamed over ``NAME``; the previous ``NAME`` (if it verifies) becomes ``NAME.bak`` first, by a hard link where possible. ``NAME.autosave.h5`` is written
 the same way by :func:`save_autosave`; :mod:`core.session_recovery` finds the newest
 consistent state among the main file, the autosave and the backup.
 """
@@ -33,12 +34,15 @@ import h5py
 import numpy as np
 
 from . import __version__
-from .atomic import atomic_copy_bytes, atomic_write
+from .atomic import atomic_copy_bytes, atomic_write, safe_unlink
+from .content import content_hash
 from .errors import ParamError, SessionError
 from .events import COLUMNS, EventTable
+from .h5image import h5_in_memory
 from .h5safe import CHECKSUM_ATTR, array, attr, read_verified, text, write_text
 from .journal import Journal, utc_now
 from .params import Params
+from .progress import CancelFn, ProgressFn
 from .recording import Recording
 from .session_labels import labels_to_text, read_labels, upgrade_format1_journal
 from .sorting import Sorting, SortingData, Unit
@@ -69,12 +73,15 @@ class RecordingRef:
     size: int
     fingerprint: str
     description: dict = field(default_factory=dict)
+    content_hash: str = ""
 
     @classmethod
     def from_recording(cls, recording: Recording) -> "RecordingRef":
-        """Reference to an open recording (absolute path, size, fingerprint, description)."""
+        """Reference to an open recording (absolute path, size, fingerprint, description and
+        the content hash, if a full pass over it has computed one)."""
         p = Path(recording.path).resolve()
-        return cls(str(p), p.stat().st_size, recording.fingerprint(), recording.describe())
+        return cls(str(p), p.stat().st_size, recording.fingerprint(), recording.describe(),
+                   recording.content_hash or "")
 
 
 @dataclass
@@ -114,12 +121,12 @@ def file_fingerprint(path: str | Path) -> str:
 # ---- writing -------------------------------------------------------------------------------
 def _write(tmp: Path, s: Session, saved_utc: str) -> None:
     sorting = s.sorting
-    with h5py.File(tmp, "w", libver=("v110", "latest")) as f:
+    with h5_in_memory(tmp, libver=("v110", "latest")) as f:
         f.attrs.update(format=FORMAT, format_version=FORMAT_VERSION, program_version=__version__,
                        saved_utc=saved_utc)
         rec = f.create_group("recording")
         rec.attrs.update(path=s.recording.path, size=np.int64(s.recording.size),
-                         fingerprint=s.recording.fingerprint,
+                         fingerprint=s.recording.fingerprint, content_hash=s.recording.content_hash,
                          description=json.dumps(s.recording.description, allow_nan=False))
         f.create_group("params").attrs["json"] = json.dumps(s.params.to_dict(), allow_nan=False)
         s.events.to_h5_group(f.create_group("events"))
@@ -136,7 +143,7 @@ def _write(tmp: Path, s: Session, saved_utc: str) -> None:
         g.attrs["next_id"] = np.int64(sorting.next_id)
         write_text(f.create_group("journal"), "lines", sorting.journal.to_text())
         f.flush()
-        _, digest = read_verified(f, tmp)
+        _, digest = read_verified(f, tmp, size=f.id.get_filesize())
         f.attrs[CHECKSUM_ATTR] = digest
 
 
@@ -156,14 +163,15 @@ def _save(path: Path, session: Session, keep_backup: bool) -> Path:
     return path
 
 
-def save_session(path: str | Path, session: Session) -> Path:
-    """Save atomically, keeping the previous good file as ``NAME.bak``.
+def save_session(path: str | Path, session: Session, keep_backup: bool = True) -> Path:
+    """Save atomically, keeping the previous good file as ``NAME.bak`` (unless ``keep_backup``
+    is False: the caller has kept it elsewhere).
 
     The autosave file, now older than the saved state, is removed.
     """
     path = Path(path)
-    _save(path, session, keep_backup=True)
-    autosave_path(path).unlink(missing_ok=True)
+    _save(path, session, keep_backup=keep_backup)
+    safe_unlink(autosave_path(path))
     session.source = path
     return path
 
@@ -226,7 +234,7 @@ def _check_recording(ref: RecordingRef, session_path: Path, override: str | Path
     if fp != ref.fingerprint:
         raise RecordingChanged(f"recording {str(target)!r} must be the file this session was made from "
                                f"(fingerprint {ref.fingerprint}), got fingerprint {fp} (changed content)")
-    return RecordingRef(str(target.resolve()), size, fp, ref.description)
+    return RecordingRef(str(target.resolve()), size, fp, ref.description, ref.content_hash)
 
 
 def _interpret(f: h5py.File, data: dict, path: Path) -> tuple[RecordingRef, Session]:
@@ -248,7 +256,8 @@ def _interpret(f: h5py.File, data: dict, path: Path) -> tuple[RecordingRef, Sess
     if not isinstance(desc, dict):
         raise SessionError(f"session recording description must be a JSON object, got {str(desc)[:40]!r}")
     ref = RecordingRef(attr(g, "path", str, "recording"), attr(g, "size", int, "recording"),
-                       attr(g, "fingerprint", str, "recording"), desc)
+                       attr(g, "fingerprint", str, "recording"), desc,
+                       attr(g, "content_hash", str, "recording") if "content_hash" in g.attrs else "")
     for c, dt in COLUMNS.items():
         array(data, f"events/{c}", np.dtype(dt).str, 1)
     array(data, "events/sigma_uv", "f8", 1)
@@ -321,6 +330,24 @@ def load_session(path: str | Path, recording_path_override: str | Path | None = 
     if check_recording:
         session.recording = _check_recording(ref, path, recording_path_override)
     return session
+
+
+def check_recording_content(session: Session, progress: ProgressFn = None, cancel: CancelFn = None) -> None:
+    """The full check before computing from a session's recording: hash its whole content and
+    compare with the hash stored at detection (sessions without one pass on the quick check).
+
+    Raises
+    ------
+    RecordingChanged
+        The content differs from the file the session was made from.
+    """
+    stored = session.recording.content_hash
+    if not stored:
+        return
+    found = content_hash(session.recording.path, progress, cancel)
+    if found != stored:
+        raise RecordingChanged(f"recording {session.recording.path!r} must be the file this session was made "
+                               f"from (content {stored[:23]}...), got content {found[:23]}... (changed)")
 
 
 def _with_alternatives(exc: SessionError, path: Path) -> SessionError:

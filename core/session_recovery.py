@@ -11,7 +11,7 @@ import time
 from dataclasses import dataclass
 from pathlib import Path
 
-from .atomic import fsync_dir
+from .atomic import fsync_dir, safe_unlink, stale_temporaries
 from .errors import SessionError
 from .session import (RecordingChanged, RecordingMoved, Session, autosave_path, backup_path, load_session,
                       save_autosave, verify_session_file)
@@ -93,7 +93,8 @@ def recover(path: str | Path, **load_options) -> Session:
 
 
 def remove_stale_temporaries(path: str | Path) -> None:
-    """Delete ``.tmp`` files left by a save that was killed (they are never read)."""
+    """Delete temporary files left by a save that was killed (they are never read)."""
     for p in (Path(path), autosave_path(path), backup_path(path)):
-        p.with_name(p.name + ".tmp").unlink(missing_ok=True)
+        for tmp in stale_temporaries(p):
+            safe_unlink(tmp)
     fsync_dir(Path(path).parent)

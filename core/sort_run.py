@@ -1,9 +1,10 @@
 """Headless sorting run: detection, features, first-pass clustering, session — resumable.
 
 After each long stage the run writes a checkpoint beside the session
-(``NAME.checkpoint.h5``: the event table, the features once computed, the parameters and
-the recording's fingerprint). A resumed run reuses the stages whose checkpoint matches
-the same recording and the same parameters, and starts over otherwise.
+(``NAME.checkpoint.h5``: the event table, the features once computed, the parameters, the
+recording's quick fingerprint and the hash of its whole content). A resumed run reuses the
+stages whose checkpoint matches the same recording (its whole content is hashed again
+first) and the same parameters, and starts over otherwise.
 """
 
 from __future__ import annotations
@@ -14,11 +15,13 @@ from pathlib import Path
 import h5py
 import numpy as np
 
-from .atomic import atomic_write
-from .errors import RigsideError
+from .atomic import atomic_copy_bytes, atomic_write, check_not_input, free_backup_path, safe_unlink
+from .content import content_hash
+from .errors import RigsideError, SessionError
 from .events import EventTable
 from .features import Features, compute_features
 from .first_pass import first_pass
+from .h5image import write_h5
 from .params import Params
 from .pipeline import detect, thresholds_sigma
 from .progress import CancelFn, ProgressFn, report
@@ -39,24 +42,34 @@ def _key(recording: Recording, params: Params) -> str:
     return json.dumps({"fingerprint": recording.fingerprint(), "params": params.to_dict()}, sort_keys=True)
 
 
-def _write_checkpoint(path: Path, key: str, events: EventTable, features: Features | None) -> None:
-    def write(tmp: Path) -> None:
-        with h5py.File(tmp, "w") as f:
-            f.attrs["key"] = key
-            events.to_h5_group(f.create_group("events"))
-            if features is not None:
-                f.create_dataset("features", data=features.values)
-                f.attrs["feature_names"] = json.dumps(features.names)
-    atomic_write(path, write)
+def _write_checkpoint(path: Path, key: str, events: EventTable, features: Features | None,
+                      content: str | None) -> None:
+    def fill(f: h5py.File) -> None:
+        f.attrs["key"] = key
+        f.attrs["content_hash"] = content or ""
+        events.to_h5_group(f.create_group("events"))
+        if features is not None:
+            f.create_dataset("features", data=features.values)
+            f.attrs["feature_names"] = json.dumps(features.names)
+    atomic_write(path, lambda tmp: write_h5(tmp, fill))
 
 
-def _read_checkpoint(path: Path, key: str) -> tuple[EventTable | None, Features | None]:
-    """Events and features of a matching checkpoint; (None, None) when absent or stale."""
+def _read_checkpoint(path: Path, key: str, recording: Recording,
+                     progress: ProgressFn, cancel: CancelFn) -> tuple[EventTable | None, Features | None]:
+    """Events and features of a matching checkpoint; (None, None) when absent or stale.
+
+    A checkpoint matches when its key (quick fingerprint, parameters) and the hash of the
+    recording's whole content (computed here) agree.
+    """
     if not path.exists():
         return None, None
     try:
         with h5py.File(path, "r") as f:
-            if f.attrs.get("key") != key:
+            stored = f.attrs.get("content_hash")
+            if f.attrs.get("key") != key or not isinstance(stored, str) or not stored:
+                return None, None
+            recording.content_hash = content_hash(recording.path, progress, cancel)
+            if recording.content_hash != stored:
                 return None, None
             events = EventTable.from_h5_group(f["events"])
             features = None
@@ -97,34 +110,62 @@ def sort_recording(recording: Recording, params: Params, checkpoint: Path | None
     """
     params.validate(recording.rate_hz)
     key = _key(recording, params) if checkpoint is not None else ""
-    events, features = _read_checkpoint(checkpoint, key) if checkpoint is not None and resume else (None, None)
     a, b, _ = STAGE_SHARES
+    events, features = (None, None)
+    if checkpoint is not None and resume:
+        events, features = _read_checkpoint(checkpoint, key, recording, lambda f, m: report(progress, a * f, m),
+                                            cancel)
     if events is None:
         table = detect(recording, params, progress=lambda f, m: report(progress, a * f, m), cancel=cancel)
         events = table.subset(table.mask(threshold_sigma=thresholds_sigma(params, table.sigma_uv),
                                          include_artefacts=True))
         if checkpoint is not None:
-            _write_checkpoint(checkpoint, key, events, None)
+            _write_checkpoint(checkpoint, key, events, None, recording.content_hash)
     report(progress, a, "events ready")
     if features is None:
         features = compute_features(recording, events, params, cancel=cancel,
                                     progress=lambda f, m: report(progress, a + b * f, m))
         if checkpoint is not None:
-            _write_checkpoint(checkpoint, key, events, features)
+            _write_checkpoint(checkpoint, key, events, features, recording.content_hash)
     report(progress, a + b, "features ready")
     sorting = first_pass(events, features, params.cluster, cancel=cancel,
                          progress=lambda f, m: report(progress, a + b + (1 - a - b) * f, m))
     return events, sorting
 
 
+def check_new_session(session_path: str | Path, overwrite: bool) -> None:
+    """Refuse to replace an existing session (it may hold hand curation) unless ``overwrite``."""
+    p = Path(session_path)
+    if (p.exists() or p.is_symlink()) and not overwrite:
+        raise SessionError(f"session file must not exist yet (it may hold hand curation; give --overwrite "
+                           f"to replace it and keep it as a backup), got {str(p)!r}")
+
+
 def run_sort(recording: Recording, params: Params, session_path: str | Path, resume: bool = False,
-             progress: ProgressFn = None, cancel: CancelFn = None) -> Session:
+             progress: ProgressFn = None, cancel: CancelFn = None,
+             overwrite: bool = False) -> tuple[Session, Path | None]:
     """:func:`sort_recording` with a checkpoint beside ``session_path``, then save the session
-    (atomically; the previous file is kept as a backup) and remove the checkpoint."""
+    atomically and remove the checkpoint.
+
+    An existing session is refused unless ``overwrite``; then it is kept under the first free
+    name among ``NAME.bak``, ``NAME.bak.1``, ... (an earlier backup is never replaced).
+
+    Returns
+    -------
+    session, backup
+        The saved session and where the replaced one was kept (``None`` if there was none).
+    """
+    check_new_session(session_path, overwrite)
     ckpt = checkpoint_path(session_path)
+    check_not_input(ckpt, "checkpoint")
     events, sorting = sort_recording(recording, params, ckpt, resume, progress, cancel)
     session = Session(RecordingRef.from_recording(recording), params, events, sorting)
-    save_session(session_path, session)
-    ckpt.unlink(missing_ok=True)
+    backup = None
+    if Path(session_path).exists():
+        check_new_session(session_path, overwrite)
+        backup = free_backup_path(session_path)
+        atomic_copy_bytes(session_path, backup)
+    save_session(session_path, session, keep_backup=False)
+    safe_unlink(ckpt)
     report(progress, 1.0, "session saved")
-    return session
+    return session, backup

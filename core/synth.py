@@ -19,7 +19,8 @@ from scipy import signal
 
 from .atomic import atomic_write
 from .progress import CancelFn, ProgressFn, check, report
-from .recording import Layout, groups_of_size, write_metadata
+from .errors import ParamError
+from .recording import META_SUFFIX, TRUTH_SUFFIXES, Layout, groups_of_size, write_metadata
 
 GAIN_UV = 0.195  # microvolts per bit of the int16 file (a common amplifier step)
 RATES_HZ = (1.0, 2.0, 3.0, 5.0, 8.0, 10.0, 12.0, 15.0, 20.0, 25.0, 30.0, 40.0)
@@ -222,14 +223,19 @@ def render(sc: Scenario, chunk_s: float = 2.0, progress: ProgressFn = None, canc
 
 
 def write_synth(out: str | Path, seconds: float = 60.0, channels: int = 16, seed: int = 0,
-                rate_hz: float = 30000.0, progress: ProgressFn = None, cancel: CancelFn = None) -> Scenario:
+                rate_hz: float = 30000.0, progress: ProgressFn = None, cancel: CancelFn = None,
+                overwrite: bool = False) -> Scenario:
     """Write an int16 raw recording, its metadata file and its ground truth.
 
     Writes ``OUT`` (raw), ``<stem>.rigside.toml``, ``<stem>.truth.csv`` (unit,sample,time_s)
     and ``<stem>.truth_units.csv`` (one row per unit). The raw file is written to a
-    temporary name and renamed when complete.
+    temporary name and renamed when complete. Existing files are refused unless ``overwrite``.
     """
     out = Path(out)
+    existing = [str(f) for f in (out, *synth_side_files(out)) if f.exists() or f.is_symlink()]
+    if existing and not overwrite:
+        raise ParamError(f"synthetic recording files must not exist yet (give --overwrite to replace them), "
+                         f"got {', '.join(existing)}")
     sc = make_scenario(seconds, channels, seed, rate_hz)
     def write(tmp: Path) -> None:
         with open(tmp, "wb") as fh:
@@ -243,16 +249,26 @@ def write_synth(out: str | Path, seconds: float = 60.0, channels: int = 16, seed
     return sc
 
 
+def synth_side_files(out: Path) -> list[Path]:
+    """The metadata and ground-truth files written beside a synthetic recording ``out``."""
+    return [out.with_name(out.stem + META_SUFFIX)] + [out.with_name(out.stem + s) for s in TRUTH_SUFFIXES]
+
+
 def write_truth(out: Path, sc: Scenario) -> None:
-    """Ground-truth CSV files beside the recording."""
-    with open(out.with_name(out.stem + ".truth.csv"), "w", newline="") as fh:
-        w = csv.writer(fh)
-        w.writerow(["unit", "sample", "time_s"])
-        for s, u in zip(sc.spike_sample, sc.spike_unit):
-            w.writerow([int(u), int(s), f"{s / sc.rate_hz:.6f}"])
-    with open(out.with_name(out.stem + ".truth_units.csv"), "w", newline="") as fh:
-        w = csv.writer(fh)
-        w.writerow(["unit", "group", "peak_channel", "peak_uv", "rate_hz", "kind"])
-        for u in sc.units:
-            w.writerow([u.unit, u.group, int(u.channels[np.argmax(u.footprint)]), f"{u.amplitude_uv:.1f}",
-                        f"{u.rate_hz:g}", u.kind])
+    """Ground-truth CSV files beside the recording (each written atomically)."""
+    def spikes(tmp: Path) -> None:
+        with open(tmp, "w", newline="") as fh:
+            w = csv.writer(fh)
+            w.writerow(["unit", "sample", "time_s"])
+            for s, u in zip(sc.spike_sample, sc.spike_unit):
+                w.writerow([int(u), int(s), f"{s / sc.rate_hz:.6f}"])
+
+    def units(tmp: Path) -> None:
+        with open(tmp, "w", newline="") as fh:
+            w = csv.writer(fh)
+            w.writerow(["unit", "group", "peak_channel", "peak_uv", "rate_hz", "kind"])
+            for u in sc.units:
+                w.writerow([u.unit, u.group, int(u.channels[np.argmax(u.footprint)]), f"{u.amplitude_uv:.1f}",
+                            f"{u.rate_hz:g}", u.kind])
+    atomic_write(out.with_name(out.stem + TRUTH_SUFFIXES[0]), spikes)
+    atomic_write(out.with_name(out.stem + TRUTH_SUFFIXES[1]), units)

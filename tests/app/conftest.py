@@ -95,7 +95,7 @@ def demo_analysis():
         noise, events, truth = jobs.analyse(rec, params, rec.truth_path())
         feats = jobs.features(rec, events, params)
         rec.close()
-        _CACHE.update(noise=noise, events=events, truth=truth, features=feats)
+        _CACHE.update(noise=noise, events=events, truth=truth, features=feats, content_hash=rec.content_hash)
     return _CACHE
 
 
@@ -113,8 +113,10 @@ def window(qtbot):
 def demo_window(window, monkeypatch):
     """The window with the demo open, its long steps answered from the session cache."""
     cache = demo_analysis()
-    monkeypatch.setattr(jobs, "analyse", lambda *a, progress=None, cancel=None:
-                        (cache["noise"], cache["events"], cache["truth"]))
+    def cached_analysis(rec, *a, progress=None, cancel=None):
+        rec.content_hash = cache["content_hash"]      # what detection computes (tests open copies of the demo)
+        return cache["noise"], cache["events"], cache["truth"]
+    monkeypatch.setattr(jobs, "analyse", cached_analysis)
     monkeypatch.setattr(jobs, "features", lambda *a, progress=None, cancel=None: cache["features"])
     assert window.open_demo()
     assert window.wait_idle(60)

@@ -13,7 +13,7 @@ from app.window import MainWindow, demo_path, settings
 from app.screenshot import capture, colour_share, pixels
 from app.sorting_controller import SELECTION_COLOURS
 from core.journal import replay_matches
-from core.session import autosave_path
+from core.session import autosave_path, file_fingerprint
 from tests.app.units_helpers import biggest_unit, cluster_demo
 
 
@@ -180,12 +180,15 @@ def test_moved_recording_is_asked_for_and_changed_one_is_refused(demo_window, tm
     assert asked and "Where is the recording" in asked[0]
     assert ctl.sorting.state_equal(saved)
     assert str(win.bench.recording.path) == str(moved / rec.name)
-    # a changed recording: said before anything is computed, and nothing is loaded
-    with open(moved / rec.name, "r+b") as fh:     # in place: the window still maps the file
-        fh.seek(100)
+    # a changed recording: said before anything is computed, and nothing is loaded; the byte changed
+    # lies outside the blocks the quick fingerprint reads, so only the whole-content hash sees it
+    before = file_fingerprint(moved / rec.name)
+    with open(moved / rec.name, "r+b") as fh:     # in place: the window still has the file open
+        fh.seek(1_200_000)
         old = fh.read(1)
-        fh.seek(100)
+        fh.seek(1_200_000)
         fh.write(bytes([old[0] ^ 0xFF]))
+    assert file_fingerprint(moved / rec.name) == before
     ctl.files.pick_file = lambda title, *a, **k: str(moved / rec.name)
     win.units.attach(None)
     assert ctl.files.open(path)

@@ -17,6 +17,7 @@ from core.params import Params
 from core.session import (RecordingChanged, RecordingMoved, RecordingRef, Session, autosave_path, backup_path,
                           file_fingerprint, load_session, save_autosave, save_session, snapshot,
                           verify_session_file)
+from core.atomic import stale_temporaries
 from core.session_recovery import Autosaver, find_states, recover, remove_stale_temporaries
 from core.first_pass import first_pass
 from core.sorting import Sorting
@@ -267,11 +268,11 @@ def test_autosave_and_recovery_pick_the_newest_consistent_state(made, tmp_path):
 def test_stale_temporary_files_are_ignored_and_removed(made, tmp_path):
     raw, s = made
     p = save_session(tmp_path / "a.h5", copy_session(s))
-    (tmp_path / "a.h5.tmp").write_bytes(b"half a file")
+    (tmp_path / ".a.h5.k3x9q_.tmp").write_bytes(b"half a file")
     assert load_session(p).sorting.state_equal(s.sorting)
     save_session(p, copy_session(s))
     remove_stale_temporaries(p)
-    assert not (tmp_path / "a.h5.tmp").exists()
+    assert not (tmp_path / ".a.h5.k3x9q_.tmp").exists()
 
 
 def _save_forever(path, session, first, fd):
@@ -315,7 +316,8 @@ def test_sigkill_during_saves_never_loses_the_last_completed_state(made, tmp_pat
         time.sleep(float(rng.uniform(0.0, 2.0 * one_save)))
         os.kill(pid, signal.SIGKILL)
         os.waitpid(pid, 0)
-        mid_save += Path(str(p) + ".tmp").exists()
+        mid_save += bool(stale_temporaries(p))
+        remove_stale_temporaries(p)
         while chunk := os.read(r, 65536):
             reported += chunk
         os.close(r)
