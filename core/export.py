@@ -18,11 +18,11 @@ this one does not write are removed):
 
 from __future__ import annotations
 
-import json
 import math
 from pathlib import Path
 from typing import Sequence
 
+import h5py
 import numpy as np
 
 from . import __version__

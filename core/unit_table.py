@@ -9,7 +9,6 @@ flags units against limits.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 import numba
