@@ -7,7 +7,6 @@ from __future__ import annotations
 
 import dataclasses
 import math
-import tomllib
 from dataclasses import asdict, dataclass, field, fields
 from pathlib import Path
 from typing import Any
@@ -15,6 +14,7 @@ from typing import Any
 import tomli_w
 
 from .errors import ParamError
+from .textparse import parse_toml
 
 POLARITIES = ("negative", "positive", "both")
 
@@ -309,9 +309,9 @@ class Params:
     def load_toml(cls, path: str | Path) -> "Params":
         """Read parameters from a TOML file; missing keys keep their defaults."""
         try:
-            data = tomllib.loads(Path(path).read_text())
+            text = Path(path).read_text()
         except FileNotFoundError:
             raise ParamError(f"parameter file must exist, got {str(path)!r}") from None
-        except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
-            raise ParamError(f"parameter file must be valid TOML, got {str(path)!r}: {exc}") from None
-        return cls.from_dict(data)
+        except UnicodeDecodeError as exc:
+            raise ParamError(f"parameter file must be valid TOML (UTF-8 text), got {str(path)!r}: {exc}") from None
+        return cls.from_dict(parse_toml(text, f"parameter file {str(path)!r}", ParamError))

@@ -26,7 +26,6 @@ from __future__ import annotations
 import hashlib
 import math
 import mmap
-import tomllib
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -35,6 +34,7 @@ import numpy as np
 
 from .atomic import atomic_write
 from .errors import RecordingError
+from .textparse import parse_toml
 
 DTYPES = ("int16", "uint16", "int32", "float32")
 META_SUFFIX = ".rigside.toml"
@@ -319,9 +319,10 @@ def metadata_path(path: str | Path) -> Path | None:
 def read_metadata(meta: str | Path) -> Layout:
     """Parse a metadata file of our schema into a :class:`Layout`."""
     try:
-        data = tomllib.loads(Path(meta).read_text())
-    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
-        raise RecordingError(f"metadata file must be valid TOML, got {str(meta)!r}: {exc}") from None
+        text = Path(meta).read_text()
+    except UnicodeDecodeError as exc:
+        raise RecordingError(f"metadata file must be valid TOML (UTF-8 text), got {str(meta)!r}: {exc}") from None
+    data = parse_toml(text, f"metadata file {str(meta)!r}", RecordingError)
     rec = data.get("recording")
     if not isinstance(rec, dict):
         raise RecordingError(f"metadata file must have a [recording] table, got none in {str(meta)!r}")

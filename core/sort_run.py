@@ -17,7 +17,8 @@ import numpy as np
 from .atomic import atomic_write
 from .errors import RigsideError
 from .events import EventTable
-from .features import Features, compute_features
+from .features import Features, compute_features, feature_names
+from .h5safe import read_verified
 from .first_pass import first_pass
 from .params import Params
 from .pipeline import detect, thresholds_sigma
@@ -25,6 +26,7 @@ from .progress import CancelFn, ProgressFn, report
 from .recording import Recording
 from .session import RecordingRef, Session, save_session
 from .sorting import Sorting
+from .textparse import parse_json
 
 STAGE_SHARES = (0.45, 0.35, 0.2)  # detection, features, clustering: shares of the progress bar
 
@@ -35,8 +37,9 @@ def checkpoint_path(session_path: str | Path) -> Path:
 
 
 def _key(recording: Recording, params: Params) -> str:
-    """What a checkpoint must match: the recording's fingerprint and every parameter."""
-    return json.dumps({"fingerprint": recording.fingerprint(), "params": params.to_dict()}, sort_keys=True)
+    """What a checkpoint must match: the recording's fingerprint, channel groups and every parameter."""
+    return json.dumps({"fingerprint": recording.fingerprint(), "groups": [g.tolist() for g in recording.groups],
+                       "params": params.to_dict()}, sort_keys=True)
 
 
 def _write_checkpoint(path: Path, key: str, events: EventTable, features: Features | None) -> None:
@@ -50,25 +53,49 @@ def _write_checkpoint(path: Path, key: str, events: EventTable, features: Featur
     atomic_write(path, write)
 
 
-def _read_checkpoint(path: Path, key: str) -> tuple[EventTable | None, Features | None]:
-    """Events and features of a matching checkpoint; (None, None) when absent or stale."""
+def _read_checkpoint(path: Path, key: str, recording: Recording, params: Params
+                     ) -> tuple[EventTable | None, Features | None]:
+    """Events and features of a matching checkpoint; (None, None) when absent, unreadable or stale.
+
+    A checkpoint that matches but whose content does not fit the recording is refused
+    (:class:`RigsideError`), since our own writes never leave one.
+    """
     if not path.exists():
         return None, None
     try:
-        with h5py.File(path, "r") as f:
-            if f.attrs.get("key") != key:
-                return None, None
+        f = h5py.File(path, "r")
+    except OSError:
+        return None, None  # not an HDF5 file any more: only costs recomputation
+    with f:
+        found = f.attrs.get("key")
+        if not isinstance(found, str) or found != key:
+            return None, None
+        try:
+            data, _ = read_verified(f, path)
             events = EventTable.from_h5_group(f["events"])
-            features = None
-            if "features" in f:
-                values = np.asarray(f["features"][()], dtype=np.float32)
-                names = json.loads(f.attrs["feature_names"])
-                if values.shape != (len(events), len(names)):
-                    return events, None
-                features = Features(values, names)
-            return events, features
-    except (OSError, KeyError, ValueError, RigsideError):
-        return None, None  # a damaged checkpoint only costs recomputation
+            _check_fits(events, recording)
+            if "features" not in data:
+                return events, None
+            values = data["features"]
+            names = parse_json(str(f.attrs["feature_names"]), "checkpoint feature names")
+            if names != feature_names(params.snippets.n_pcs) or values.dtype != np.float32 \
+                    or values.shape != (len(events), len(names)) or not np.isfinite(values).all():
+                raise RigsideError(f"features must be finite float32 of shape ({len(events)}, {len(names)}) "
+                                   f"named as the parameters say, got {values.dtype} {values.shape}")
+            return events, Features(values, names)
+        except (RigsideError, OSError, KeyError, ValueError, TypeError) as exc:
+            raise RigsideError(f"checkpoint {str(path)!r} must hold this recording's events and features, "
+                               f"got {exc}; delete it or run without --resume") from None
+
+
+def _check_fits(events: EventTable, recording: Recording) -> None:
+    if (events.n_samples, events.n_channels, events.rate_hz) != (
+            recording.n_samples, recording.n_channels, recording.rate_hz):
+        raise RigsideError(f"events must describe {recording.n_samples} samples of {recording.n_channels} "
+                           f"channels at {recording.rate_hz:g} Hz, got {events.n_samples} of "
+                           f"{events.n_channels} at {events.rate_hz:g} Hz")
+    if len(events) and np.any(recording.channel_group[events.channel] != events.group):
+        raise RigsideError("event groups must be the recording's channel groups, got other group numbers")
 
 
 def sort_recording(recording: Recording, params: Params, checkpoint: Path | None = None,
@@ -97,7 +124,7 @@ def sort_recording(recording: Recording, params: Params, checkpoint: Path | None
     """
     params.validate(recording.rate_hz)
     key = _key(recording, params) if checkpoint is not None else ""
-    events, features = _read_checkpoint(checkpoint, key) if checkpoint is not None and resume else (None, None)
+    events, features = _read_checkpoint(checkpoint, key, recording, params) if checkpoint is not None and resume else (None, None)
     a, b, _ = STAGE_SHARES
     if events is None:
         table = detect(recording, params, progress=lambda f, m: report(progress, a * f, m), cancel=cancel)
