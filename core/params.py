@@ -17,6 +17,8 @@ from .errors import ParamError
 from .textparse import parse_toml
 
 POLARITIES = ("negative", "positive", "both")
+MEMORY_BUDGET_BYTES = 256 << 20
+"""Working memory one parameter may make a single buffer take (see :meth:`Params.validate`)."""
 
 
 def _require(ok: bool, message: str) -> None:
