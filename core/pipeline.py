@@ -63,6 +63,7 @@ def detect(recording: Recording, params: Params, progress: ProgressFn = None, ca
         ``EventTable.mask`` with the detection threshold selects the detected events.
     """
     params.validate(recording.rate_hz)
+    params.check_memory(recording.rate_hz, recording.n_channels)
     bp = BandPass(recording, params.filter)
     if noise is None:
         noise = estimate_noise(recording, params, cancel=cancel, bandpass=bp,
