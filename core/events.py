@@ -217,8 +217,9 @@ class EventTable:
         if self.group.min() < 0 or self.group.max() >= self.n_channels:
             raise RigsideError(f"event groups must be from 0 to {self.n_channels - 1}, got "
                                f"{int(self.group.min())}..{int(self.group.max())}")
-        pairs = np.unique(np.stack([self.channel, self.group]), axis=1)
-        if len(np.unique(pairs[0])) != pairs.shape[1]:
+        group_of = np.zeros(self.n_channels, dtype=np.int32)
+        group_of[self.channel] = self.group          # one group per channel, whichever event wrote it
+        if np.any(group_of[self.channel] != self.group):
             raise RigsideError("events of one channel must all belong to one group, got a channel in two groups")
         a = self.amplitude_sigma
         if not (np.isfinite(self.amplitude_uv).all() and not np.isnan(a).any() and (a >= 0).all()):
