@@ -66,7 +66,7 @@ def test_resume_refuses_a_hostile_checkpoint(sorted_small, capsys, monkeypatch):
     ("[noise]\nwindow_s = 1e9\n", "noise window length must be above 0 and at most 10 s"),
     ("[run]\nworkers = " + "[" * 50_000 + "]" * 50_000 + "\n", "nested at most 32 levels"),
     ("[run]\nchunk_s = 60.0\nworkers = 64\n", "chunk length x worker count must keep detection buffers"),
-])
+], ids=["workers-bool", "huge-window", "deep", "memory"])
 def test_detect_refuses_loose_or_hostile_parameters(sorted_small, capsys, tmp_path, toml, message):
     (tmp_path / "p.toml").write_text(toml)
     out = tmp_path / "ev.csv"

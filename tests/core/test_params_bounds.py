@@ -48,7 +48,7 @@ def test_workers_true_in_a_toml_file_is_refused(tmp_path):
 
 @pytest.mark.parametrize("text", ["[run]\nworkers = " + "[" * 50_000 + "]" * 50_000,
                                   "[run]\nworkers = " + "{a = " * 5000 + "1" + "}" * 5000,
-                                  "[run]\nworkers = " + "[" * 40 + "]" * 40])
+                                  "[run]\nworkers = " + "[" * 40 + "]" * 40], ids=["array", "table", "just-over"])
 def test_deeply_nested_toml_is_one_parameter_error(tmp_path, text):
     f = tmp_path / "deep.toml"
     f.write_text(text)

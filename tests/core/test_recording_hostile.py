@@ -90,7 +90,7 @@ def test_hdf5_attributes_given_as_text_are_refused(tmp_path, attrs, message):
     ("[recording]\nchannels = 2\nrate_hz = 30000\nheader_bytes = false\n", "header length"),
     ("[recording]\nchannels = 2\nrate_hz = 30000\n[[group]]\nchannels = [true]\n", "group channels must be integers"),
     ("[recording]\nchannels = " + "[" * 50_000 + "]" * 50_000 + "\n", "nested at most"),
-])
+], ids=["schema-99", "schema-bool", "channels-bool", "rate-text", "header-bool", "group-bool", "deep"])
 def test_loose_metadata_is_refused(tmp_path, text, match):
     np.zeros((10, 2), np.int16).tofile(tmp_path / "r.bin")
     (tmp_path / "r.rigside.toml").write_text(text)
