@@ -21,6 +21,8 @@ def add_recording_options(p: argparse.ArgumentParser) -> None:
     g.add_argument("--offset-uv", type=float, metavar="O", help="microvolts added after the gain")
     g.add_argument("--group-size", type=int, metavar="K", help="K consecutive channels form one group")
     g.add_argument("--dataset", help="HDF5 dataset path (samples x channels)")
+    g.add_argument("--allow-external", action="store_true", default=None,
+                   help="read HDF5 samples kept in other files (external links, external storage, virtual datasets)")
 
 
 def add_param_options(p: argparse.ArgumentParser) -> None:
@@ -70,14 +72,15 @@ def open_from_args(args: argparse.Namespace, path: str | None = None) -> Recordi
     """Open the command's recording with the layout options applied."""
     return open_recording(path or args.recording, channels=args.channels, rate_hz=args.rate, dtype=args.dtype,
                           gain_uv=args.gain_uv, offset_uv=args.offset_uv, group_size=args.group_size,
-                          dataset=args.dataset)
+                          dataset=args.dataset, allow_external=bool(args.allow_external))
 
 
 def recording_options(args: argparse.Namespace) -> dict:
     """The layout options as keyword arguments for :func:`core.recording.open_recording`."""
     return {k: v for k, v in (("channels", args.channels), ("rate_hz", args.rate), ("dtype", args.dtype),
                               ("gain_uv", args.gain_uv), ("offset_uv", args.offset_uv),
-                              ("group_size", args.group_size), ("dataset", args.dataset)) if v is not None}
+                              ("group_size", args.group_size), ("dataset", args.dataset),
+                              ("allow_external", args.allow_external)) if v is not None}
 
 
 def command_inputs(args: argparse.Namespace) -> list[str]:

@@ -187,6 +187,7 @@ class MainWindow(QMainWindow):
         self.last_error = (title, message)
         self.statusBar().showMessage(f"{title}: {message}", 15000)
         box = QMessageBox(QMessageBox.Icon.Warning, title, message, QMessageBox.StandardButton.Ok, self)
+        box.setTextFormat(Qt.TextFormat.PlainText)     # messages quote file names and notes verbatim
         box.setWindowModality(Qt.WindowModality.WindowModal)
         box.finished.connect(lambda *_: self.messages.remove(box) if box in self.messages else None)
         self.messages.append(box)

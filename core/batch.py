@@ -13,6 +13,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 from .atomic import atomic_write, check_not_input, protect_inputs, protected_inputs
+from .unit_table_io import safe_text
 from .detect_run import detect_to_files
 from .errors import ParamError, RigsideError
 from .params import Params
@@ -152,5 +153,6 @@ def write_outcomes(path: Path, outcomes: list[BatchOutcome]) -> Path:
             w = csv.writer(fh)
             w.writerow(["recording", "status", "events", "duration_s", "seconds", "message"])
             for o in outcomes:
-                w.writerow([o.recording, o.status, o.events, f"{o.duration_s:.3f}", f"{o.seconds:.2f}", o.message])
+                w.writerow([safe_text(o.recording), safe_text(o.status), o.events, f"{o.duration_s:.3f}",
+                            f"{o.seconds:.2f}", safe_text(o.message)])
     return atomic_write(path, write)

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import csv
 import json
+import math
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -18,6 +19,7 @@ import numpy as np
 from .atomic import atomic_write
 from .errors import RigsideError
 from .h5image import write_h5
+from .params import POLARITIES
 
 COLUMNS = {
     "sample": np.int64,
@@ -27,6 +29,8 @@ COLUMNS = {
     "amplitude_sigma": np.float32,
     "artefact": np.bool_,
 }
+MAX_SAMPLES = 2**48
+"""Longest recording an event table may describe (about 300 years at 30 kHz)."""
 
 
 @dataclass
@@ -177,20 +181,54 @@ class EventTable:
 
     @classmethod
     def from_h5_group(cls, g: h5py.Group) -> "EventTable":
-        """Read a table stored by :meth:`to_h5_group`, checking every column."""
+        """Read a table stored by :meth:`to_h5_group`, checking every column and attribute."""
         missing = [c for c in (*COLUMNS, "sigma_uv") if c not in g]
         if missing:
             raise RigsideError(f"event group must hold datasets {', '.join(COLUMNS)}, sigma_uv; "
                                f"missing {', '.join(missing)}")
         cols = {c: np.asarray(g[c][()]) for c in COLUMNS}
+        for c, dt in COLUMNS.items():
+            if cols[c].ndim != 1 or not np.can_cast(cols[c].dtype, dt, casting="same_kind"):
+                raise RigsideError(f"event column {c} must be a 1-D array of {np.dtype(dt)}, "
+                                   f"got {cols[c].dtype} with shape {cols[c].shape}")
         t = cls(**cols, rate_hz=float(g.attrs["rate_hz"]), n_samples=int(g.attrs["n_samples"]),
                 sigma_uv=np.asarray(g["sigma_uv"][()]), floor_sigma=float(g.attrs["floor_sigma"]),
                 polarity=str(g.attrs["polarity"]), excluded=_read_excluded(g, len(g["sigma_uv"])))
-        if len(t) and (np.any(np.diff(t.sample) < 0) or t.sample[0] < 0 or t.sample[-1] >= t.n_samples
-                       or t.channel.min() < 0 or t.channel.max() >= t.n_channels):
+        t.check()
+        return t
+
+    def check(self) -> None:
+        """Refuse a table whose context or columns are out of range (as strictly as options)."""
+        if not (math.isfinite(self.rate_hz) and 100 <= self.rate_hz <= 1e6):
+            raise RigsideError(f"event table sampling rate must be between 100 Hz and 1 MHz, got {self.rate_hz!r}")
+        if not 1 <= self.n_samples <= MAX_SAMPLES:
+            raise RigsideError(f"event table recording length must be from 1 to {MAX_SAMPLES} samples, "
+                               f"got {self.n_samples}")
+        s = self.sigma_uv
+        if s.ndim != 1 or not 1 <= len(s) <= 4096 or not (np.isfinite(s).all() and (s >= 0).all()):
+            raise RigsideError(f"event table noise sigmas must be 1 to 4096 finite values of at least 0 uV, "
+                               f"got shape {s.shape}")
+        if not (math.isfinite(self.floor_sigma) and self.floor_sigma > 0):
+            raise RigsideError(f"event table look-up floor must be above 0 sigma, got {self.floor_sigma!r}")
+        if self.polarity not in POLARITIES:
+            raise RigsideError(f"event table polarity must be one of {', '.join(POLARITIES)}, got {self.polarity!r}")
+        if not len(self):
+            return
+        if np.any(np.diff(self.sample) < 0) or self.sample[0] < 0 or self.sample[-1] >= self.n_samples \
+                or self.channel.min() < 0 or self.channel.max() >= self.n_channels:
             raise RigsideError("event table must hold time-sorted samples inside the recording and "
                                "valid channels, got values out of range")
-        return t
+        if self.group.min() < 0 or self.group.max() >= self.n_channels:
+            raise RigsideError(f"event groups must be from 0 to {self.n_channels - 1}, got "
+                               f"{int(self.group.min())}..{int(self.group.max())}")
+        group_of = np.zeros(self.n_channels, dtype=np.int32)
+        group_of[self.channel] = self.group          # one group per channel, whichever event wrote it
+        if np.any(group_of[self.channel] != self.group):
+            raise RigsideError("events of one channel must all belong to one group, got a channel in two groups")
+        a = self.amplitude_sigma
+        if not (np.isfinite(self.amplitude_uv).all() and not np.isnan(a).any() and (a >= 0).all()):
+            raise RigsideError("event amplitudes must be finite numbers (in sigma: at least 0), "
+                               "got NaN, infinite or negative values")
 
     @classmethod
     def read_h5(cls, path: str | Path, group: str = "events") -> "EventTable":

@@ -23,6 +23,7 @@ from typing import Any, Iterable
 
 from . import __version__
 from .sorting import CurationError, Sorting
+from .textparse import parse_json
 
 ACTIONS = ("do", "undo", "redo")
 
@@ -65,10 +66,7 @@ class Journal:
         for i, line in enumerate(text.splitlines()):
             if not line.strip():
                 continue
-            try:
-                e = json.loads(line)
-            except json.JSONDecodeError as exc:
-                raise CurationError(f"journal line {i + 1} must be JSON, got an error: {exc}") from None
+            e = parse_json(line, f"journal line {i + 1}", CurationError)
             if not isinstance(e, dict) or e.get("action") not in ACTIONS or e.get("seq") != len(entries):
                 raise CurationError(f"journal line {i + 1} must be an entry numbered {len(entries)} with an "
                                     f"action in {', '.join(ACTIONS)}, got {line[:80]!r}")

@@ -24,10 +24,7 @@ Raw binary files are described by a metadata file of our own schema beside the d
 from __future__ import annotations
 
 import hashlib
-import math
 import os
-import tomllib
-from dataclasses import dataclass
 from pathlib import Path
 
 import h5py
@@ -35,61 +32,12 @@ import numpy as np
 
 from .atomic import atomic_write
 from .errors import RecordingError
+from .h5safe import stored_dataset
+from .layout import DTYPES, Layout, is_integer, is_number, check_groups, groups_of_size  # noqa: F401 (re-exported)
+from .textparse import parse_toml
 
-DTYPES = ("int16", "uint16", "int32", "float32")
 META_SUFFIX = ".rigside.toml"
 TRUTH_SUFFIXES = (".truth.csv", ".truth_units.csv")
-
-
-@dataclass
-class Layout:
-    """How to interpret a raw file: everything the metadata file or options say."""
-
-    channels: int
-    rate_hz: float
-    dtype: str = "int16"
-    gain_uv: float = 1.0
-    offset_uv: float = 0.0
-    header_bytes: int = 0
-    groups: list[list[int]] | None = None
-    group_names: list[str] | None = None
-
-    def validate(self) -> None:
-        if not (isinstance(self.channels, int) and 1 <= self.channels <= 4096):
-            raise RecordingError(f"channel count must be an integer from 1 to 4096, got {self.channels!r}")
-        if not (isinstance(self.rate_hz, (int, float)) and math.isfinite(self.rate_hz) and 100 <= self.rate_hz <= 1e6):
-            raise RecordingError(f"sampling rate must be between 100 Hz and 1 MHz, got {self.rate_hz!r}")
-        if self.dtype not in DTYPES:
-            raise RecordingError(f"sample type must be one of {', '.join(DTYPES)}, got {self.dtype!r}")
-        if not (isinstance(self.gain_uv, (int, float)) and math.isfinite(self.gain_uv) and self.gain_uv != 0):
-            raise RecordingError(f"gain must be a finite non-zero number of microvolts, got {self.gain_uv!r}")
-        if not (isinstance(self.offset_uv, (int, float)) and math.isfinite(self.offset_uv)):
-            raise RecordingError(f"offset must be a finite number of microvolts, got {self.offset_uv!r}")
-        if not (isinstance(self.header_bytes, int) and self.header_bytes >= 0):
-            raise RecordingError(f"header length must be a non-negative integer, got {self.header_bytes!r}")
-        if self.groups is not None:
-            check_groups(self.groups, self.channels)
-
-
-def check_groups(groups: list[list[int]], n_channels: int) -> None:
-    """Groups must be non-empty, hold valid channels, and not overlap."""
-    seen: set[int] = set()
-    for g in groups:
-        if not g:
-            raise RecordingError("every channel group must hold at least one channel, got an empty group")
-        for c in g:
-            if not isinstance(c, (int, np.integer)) or not 0 <= c < n_channels:
-                raise RecordingError(f"group channels must be integers from 0 to {n_channels - 1}, got {c!r}")
-            if c in seen:
-                raise RecordingError(f"channel groups must not overlap, got channel {c} twice")
-            seen.add(int(c))
-
-
-def groups_of_size(n_channels: int, size: int) -> list[list[int]]:
-    """Consecutive groups of ``size`` channels (the last may be shorter)."""
-    if not (isinstance(size, int) and size >= 1):
-        raise RecordingError(f"group size must be a positive integer, got {size!r}")
-    return [list(range(i, min(i + size, n_channels))) for i in range(0, n_channels, size)]
 
 
 class Recording:
@@ -229,8 +177,10 @@ class HDF5Recording(Recording):
     ``gain_uv``, ``offset_uv`` and optionally ``channel_group`` (group index per channel)."""
 
     def __init__(self, path: str | Path, dataset: str | None = None, rate_hz: float | None = None,
-                 gain_uv: float | None = None, groups: list[list[int]] | None = None):
+                 gain_uv: float | None = None, groups: list[list[int]] | None = None,
+                 allow_external: bool = False):
         self.path = Path(path)
+        self.allow_external = allow_external
         try:
             self._file = h5py.File(self.path, "r")
         except FileNotFoundError:
@@ -253,17 +203,20 @@ class HDF5Recording(Recording):
             raise RecordingError(f"HDF5 recording must hold a 2-D dataset (samples x channels), "
                                  f"got none named {dataset!r} in {str(path)!r}" if dataset else
                                  f"HDF5 recording must hold a 2-D dataset (samples x channels), got none in {str(path)!r}")
-        self._ds = self._file[name]
+        self._ds = stored_dataset(self._file, name, self.allow_external, RecordingError)
         if self._ds.ndim != 2 or self._ds.dtype.kind not in "iuf":
             raise RecordingError(f"HDF5 recording dataset must be 2-D numeric (samples x channels), "
                                  f"got shape {self._ds.shape} of {self._ds.dtype}")
         attrs = self._ds.attrs
         rate = rate_hz if rate_hz is not None else attrs.get("rate_hz", self._file.attrs.get("rate_hz"))
-        layout = Layout(channels=int(self._ds.shape[1]), rate_hz=float(rate) if rate is not None else float("nan"),
-                        dtype="float32", gain_uv=float(gain_uv if gain_uv is not None else attrs.get("gain_uv", 1.0)),
-                        offset_uv=float(attrs.get("offset_uv", 0.0)))
         if rate is None:
             raise RecordingError(f"HDF5 recording must carry a 'rate_hz' attribute (or give --rate), got none in {str(path)!r}")
+        gain = gain_uv if gain_uv is not None else attrs.get("gain_uv", 1.0)
+        for what, v in (("rate_hz", rate), ("gain_uv", gain), ("offset_uv", attrs.get("offset_uv", 0.0))):
+            if not is_number(v):
+                raise RecordingError(f"HDF5 recording attribute {what} must be one number, got {str(v)[:40]!r}")
+        layout = Layout(channels=int(self._ds.shape[1]), rate_hz=float(rate), dtype="float32", gain_uv=float(gain),
+                        offset_uv=float(attrs.get("offset_uv", 0.0)))
         layout.validate()
         self.layout = layout
         self.n_samples, self.n_channels = (int(s) for s in self._ds.shape)
@@ -319,9 +272,10 @@ def side_files(path: str | Path) -> list[Path]:
 def read_metadata(meta: str | Path) -> Layout:
     """Parse a metadata file of our schema into a :class:`Layout`."""
     try:
-        data = tomllib.loads(Path(meta).read_text())
-    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
-        raise RecordingError(f"metadata file must be valid TOML, got {str(meta)!r}: {exc}") from None
+        text = Path(meta).read_text()
+    except UnicodeDecodeError as exc:
+        raise RecordingError(f"metadata file must be valid TOML (UTF-8 text), got {str(meta)!r}: {exc}") from None
+    data = parse_toml(text, f"metadata file {str(meta)!r}", RecordingError)
     rec = data.get("recording")
     if not isinstance(rec, dict):
         raise RecordingError(f"metadata file must have a [recording] table, got none in {str(meta)!r}")
@@ -330,6 +284,8 @@ def read_metadata(meta: str | Path) -> Layout:
     if unknown:
         raise RecordingError(f"metadata [recording] keys must be among {', '.join(sorted(known))}, "
                              f"got {', '.join(sorted(unknown))}")
+    if not (is_integer(rec.get("schema", 1)) and rec.get("schema", 1) == 1):
+        raise RecordingError(f"metadata schema must be 1, got {rec['schema']!r} in {str(meta)!r} (a newer rigside?)")
     for key in ("channels", "rate_hz"):
         if key not in rec:
             raise RecordingError(f"metadata [recording] must give {key}, got none in {str(meta)!r}")
@@ -364,11 +320,13 @@ def write_metadata(path: str | Path, layout: Layout) -> Path:
 
 def open_recording(path: str | Path, *, channels: int | None = None, rate_hz: float | None = None,
                    dtype: str | None = None, gain_uv: float | None = None, offset_uv: float | None = None,
-                   group_size: int | None = None, dataset: str | None = None) -> Recording:
+                   group_size: int | None = None, dataset: str | None = None,
+                   allow_external: bool = False) -> Recording:
     """Open a recording read-only, choosing the reader from the file.
 
     HDF5 files are recognised by their signature; anything else is raw binary described by
-    its metadata file, with any keyword given here overriding the file.
+    its metadata file, with any keyword given here overriding the file. HDF5 samples kept in
+    other files are refused unless ``allow_external`` (:func:`core.h5safe.stored_dataset`).
     """
     p = Path(path)
     if not p.exists():
@@ -378,7 +336,7 @@ def open_recording(path: str | Path, *, channels: int | None = None, rate_hz: fl
     if p.stat().st_size == 0:
         raise RecordingError(f"recording file must not be empty, got 0 bytes in {str(path)!r}")
     if h5py.is_hdf5(p):
-        rec = HDF5Recording(p, dataset=dataset, rate_hz=rate_hz, gain_uv=gain_uv)
+        rec = HDF5Recording(p, dataset=dataset, rate_hz=rate_hz, gain_uv=gain_uv, allow_external=allow_external)
         if group_size is not None:
             rec._init_groups(groups_of_size(rec.n_channels, group_size), None)
         return rec
