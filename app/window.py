@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import logging
 import os
 import sys
 import traceback
@@ -38,6 +39,7 @@ VERSION = "0.1.0"
 LAYOUT_VERSION = 1
 MAX_RECENT = 8
 ANALYSIS_LABEL = "Detecting events"
+log = logging.getLogger("rigside")
 
 EXTENSIONS: tuple[Callable[["MainWindow"], object], ...] = (install_units, install_audit)
 """Installers run on every new window: each adds its panels, menus and actions."""
@@ -292,12 +294,16 @@ class MainWindow(QMainWindow):
         noise, events, truth = result
         b = self.bench
         b.set_events(noise, events)
-        if truth is not None:
+        ignored = isinstance(truth, RigsideError)
+        if truth is not None and not ignored:
             b.set_truth(truth)
         self.analysis_outcome = "done"
         n_bad = len(noise.bad)
         self.statusBar().showMessage(f"{len(events):,} events stored down to {events.floor_sigma:.2f} σ"
-                                     + (f"; {n_bad} channel(s) flagged bad" if n_bad else ""), 15000)
+                                     + (f"; {n_bad} channel(s) flagged bad" if n_bad else "")
+                                     + (f"; ground truth ignored: {truth}" if ignored else ""), 15000)
+        if ignored:
+            log.warning("ground truth ignored: %s", str(truth))
         self.runner.submit("features", "Computing features", jobs.features, b.recording, events,
                            b.analysis.params, on_done=b.set_features)
 
