@@ -18,8 +18,10 @@ from PySide6.QtWidgets import (QApplication, QDockWidget, QFileDialog, QLabel, Q
 from core.errors import RigsideError
 from core.filtering import design_bandpass
 from core.params import Params
-from core.recording import RawRecording, metadata_path, open_recording
+from core.hdf5_datasets import recording_candidates
+from core.recording import RawRecording, metadata_path, open_recording, write_metadata
 from . import jobs, palette
+from .dialogs.hdf5_dataset import DatasetDialog
 from .dialogs.raw_layout import RawLayoutDialog
 from .model import Workbench
 from .panels.base import Panel
@@ -260,15 +262,35 @@ class MainWindow(QMainWindow):
     def _open(self, path: str, options: dict):
         p = Path(path)
         has_layout = options.get("channels") is not None and options.get("rate_hz") is not None
-        if (p.is_file() and p.stat().st_size > 0 and not h5py.is_hdf5(p) and metadata_path(p) is None
-                and not has_layout):
-            if not self.interactive:
-                return open_recording(p, **options)  # raises the missing-metadata message
+        readable = p.is_file() and p.stat().st_size > 0 and self.interactive
+        if readable and h5py.is_hdf5(p) and options.get("dataset") is None:
+            candidates = recording_candidates(p)
+            if len(candidates) > 1:
+                dialog = DatasetDialog(p, candidates, self)
+                if dialog.exec() != DatasetDialog.DialogCode.Accepted:
+                    return None
+                options = {**options, "dataset": dialog.dataset()}
+        elif readable and not h5py.is_hdf5(p) and metadata_path(p) is None and not has_layout:
             dialog = RawLayoutDialog(p, self)
             if dialog.exec() != RawLayoutDialog.DialogCode.Accepted:
                 return None
-            return RawRecording(p, dialog.layout_value())
+            rec = RawRecording(p, dialog.layout_value())
+            self._save_layout_beside(p, rec.layout)
+            return rec
         return open_recording(p, **options)
+
+    def _save_layout_beside(self, path: Path, layout) -> None:
+        """Keep the entered layout as the metadata file beside the data, so the command line and the
+        next opening use it (skipped, with a note, when the folder is not writable)."""
+        if not os.access(path.parent, os.W_OK):
+            self.statusBar().showMessage(f"Layout not saved: {path.parent} is not writable.", 15000)
+            return
+        try:
+            meta = write_metadata(path, layout)
+        except OSError as exc:
+            self.statusBar().showMessage(f"Layout not saved: {exc}", 15000)
+            return
+        self.statusBar().showMessage(f"Layout saved as {meta.name}.", 15000)
 
     def start_detection(self) -> None:
         """Noise and detection down to the look-up floor (or the lowest threshold, if lower)."""

@@ -15,6 +15,7 @@ Raw binary files are described by a metadata file of our own schema beside the d
     rate_hz = 30000.0
     gain_uv = 0.195        # microvolts per stored unit
     offset_uv = 0.0        # added after the gain
+    offset_counts = 0      # stored value of 0 uV, subtracted before the gain (32768: centred uint16)
     header_bytes = 0       # bytes to skip at the start of the file
     [[group]]
     name = "bundle A"
@@ -35,6 +36,7 @@ import numpy as np
 
 from .atomic import atomic_write
 from .errors import RecordingError
+from .hdf5_datasets import choose_dataset
 
 DTYPES = ("int16", "uint16", "int32", "float32")
 META_SUFFIX = ".rigside.toml"
@@ -50,8 +52,14 @@ class Layout:
     gain_uv: float = 1.0
     offset_uv: float = 0.0
     header_bytes: int = 0
+    offset_counts: float = 0.0
     groups: list[list[int]] | None = None
     group_names: list[str] | None = None
+
+    @property
+    def total_offset_uv(self) -> float:
+        """Microvolts added after the gain: ``offset_uv - offset_counts * gain_uv``."""
+        return float(self.offset_uv) - float(self.offset_counts) * float(self.gain_uv)
 
     def validate(self) -> None:
         if not (isinstance(self.channels, int) and 1 <= self.channels <= 4096):
@@ -64,8 +72,11 @@ class Layout:
             raise RecordingError(f"gain must be a finite non-zero number of microvolts, got {self.gain_uv!r}")
         if not (isinstance(self.offset_uv, (int, float)) and math.isfinite(self.offset_uv)):
             raise RecordingError(f"offset must be a finite number of microvolts, got {self.offset_uv!r}")
-        if not (isinstance(self.header_bytes, int) and self.header_bytes >= 0):
+        if isinstance(self.header_bytes, bool) or not (isinstance(self.header_bytes, int) and self.header_bytes >= 0):
             raise RecordingError(f"header length must be a non-negative integer, got {self.header_bytes!r}")
+        if isinstance(self.offset_counts, bool) or not (isinstance(self.offset_counts, (int, float))
+                                                        and math.isfinite(self.offset_counts)):
+            raise RecordingError(f"offset in stored counts must be a finite number, got {self.offset_counts!r}")
         if self.groups is not None:
             check_groups(self.groups, self.channels)
 
@@ -136,8 +147,8 @@ class Recording:
         """Stored values to microvolts (float32 copy)."""
         out = np.array(stored, dtype=np.float32)
         out *= np.float32(self.layout.gain_uv)
-        if self.layout.offset_uv:
-            out += np.float32(self.layout.offset_uv)
+        if self.layout.total_offset_uv:
+            out += np.float32(self.layout.total_offset_uv)
         return out
 
     def check_finite(self, stored: np.ndarray, start: int, channels: np.ndarray | None) -> None:
@@ -193,13 +204,15 @@ class RawRecording(Recording):
         item = np.dtype(layout.dtype).itemsize
         body = size - layout.header_bytes
         frame = item * layout.channels
+        how = f"set --header-bytes or header_bytes in {self.path.stem}{META_SUFFIX}"
         if body <= 0:
             raise RecordingError(f"recording file must hold samples after its {layout.header_bytes}-byte header, "
-                                 f"got {size} bytes in {str(path)!r}")
+                                 f"got {size} bytes in {str(path)!r} ({how})")
         if body % frame:
             raise RecordingError(f"file size after the header must be a multiple of channels x item size "
                                  f"({layout.channels} x {item} = {frame} bytes), got {body} bytes "
-                                 f"(truncated, or wrong channel count or sample type?)")
+                                 f"(a header of {body % frame} + k x {frame} bytes? {how}; or a truncated "
+                                 f"file, wrong channel count or sample type)")
         self.n_samples = body // frame
         self._map = np.memmap(self.path, dtype=np.dtype(layout.dtype).newbyteorder("<"), mode="r",
                               offset=layout.header_bytes, shape=(self.n_samples, self.n_channels))
@@ -255,15 +268,7 @@ class HDF5Recording(Recording):
 
     def _setup(self, dataset, rate_hz, gain_uv, groups) -> None:
         path = self.path
-        name = dataset or _first_2d_dataset(self._file)
-        if name is None or name not in self._file or not isinstance(self._file[name], h5py.Dataset):
-            raise RecordingError(f"HDF5 recording must hold a 2-D dataset (samples x channels), "
-                                 f"got none named {dataset!r} in {str(path)!r}" if dataset else
-                                 f"HDF5 recording must hold a 2-D dataset (samples x channels), got none in {str(path)!r}")
-        self._ds = self._file[name]
-        if self._ds.ndim != 2 or self._ds.dtype.kind not in "iuf":
-            raise RecordingError(f"HDF5 recording dataset must be 2-D numeric (samples x channels), "
-                                 f"got shape {self._ds.shape} of {self._ds.dtype}")
+        self._ds = self._file[choose_dataset(self._file, dataset)]
         attrs = self._ds.attrs
         rate = rate_hz if rate_hz is not None else attrs.get("rate_hz", self._file.attrs.get("rate_hz"))
         layout = Layout(channels=int(self._ds.shape[1]), rate_hz=float(rate) if rate is not None else float("nan"),
@@ -297,16 +302,6 @@ class HDF5Recording(Recording):
         self._file.close()
 
 
-def _first_2d_dataset(f: h5py.File) -> str | None:
-    found: list[str] = []
-
-    def visit(name, obj):
-        if isinstance(obj, h5py.Dataset) and obj.ndim == 2 and not found:
-            found.append(name)
-    f.visititems(visit)
-    return found[0] if found else None
-
-
 def metadata_path(path: str | Path) -> Path | None:
     """The metadata file beside ``path`` (``name.ext.rigside.toml`` or ``name.rigside.toml``)."""
     p = Path(path)
@@ -325,7 +320,7 @@ def read_metadata(meta: str | Path) -> Layout:
     rec = data.get("recording")
     if not isinstance(rec, dict):
         raise RecordingError(f"metadata file must have a [recording] table, got none in {str(meta)!r}")
-    known = {"schema", "dtype", "channels", "rate_hz", "gain_uv", "offset_uv", "header_bytes"}
+    known = {"schema", "dtype", "channels", "rate_hz", "gain_uv", "offset_uv", "offset_counts", "header_bytes"}
     unknown = set(rec) - known
     if unknown:
         raise RecordingError(f"metadata [recording] keys must be among {', '.join(sorted(known))}, "
@@ -339,7 +334,7 @@ def read_metadata(meta: str | Path) -> Layout:
                              f"{groups!r}"[:200])
     layout = Layout(channels=rec["channels"], rate_hz=rec["rate_hz"], dtype=rec.get("dtype", "int16"),
                     gain_uv=rec.get("gain_uv", 1.0), offset_uv=rec.get("offset_uv", 0.0),
-                    header_bytes=rec.get("header_bytes", 0),
+                    header_bytes=rec.get("header_bytes", 0), offset_counts=rec.get("offset_counts", 0.0),
                     groups=[g["channels"] for g in groups] or None,
                     group_names=[str(g.get("name", f"group {i + 1}")) for i, g in enumerate(groups)] or None)
     if isinstance(layout.rate_hz, int):
@@ -354,7 +349,7 @@ def write_metadata(path: str | Path, layout: Layout) -> Path:
     lines = ["# rigside recording description", "[recording]", "schema = 1",
              f'dtype = "{layout.dtype}"', f"channels = {layout.channels}", f"rate_hz = {float(layout.rate_hz)!r}",
              f"gain_uv = {float(layout.gain_uv)!r}", f"offset_uv = {float(layout.offset_uv)!r}",
-             f"header_bytes = {layout.header_bytes}"]
+             f"offset_counts = {float(layout.offset_counts)!r}", f"header_bytes = {layout.header_bytes}"]
     for i, g in enumerate(layout.groups or []):
         name = (layout.group_names or [])[i] if layout.group_names and i < len(layout.group_names) else f"group {i + 1}"
         lines += ["", "[[group]]", f'name = "{name}"', f"channels = {list(map(int, g))}"]
@@ -364,7 +359,8 @@ def write_metadata(path: str | Path, layout: Layout) -> Path:
 
 def open_recording(path: str | Path, *, channels: int | None = None, rate_hz: float | None = None,
                    dtype: str | None = None, gain_uv: float | None = None, offset_uv: float | None = None,
-                   group_size: int | None = None, dataset: str | None = None) -> Recording:
+                   group_size: int | None = None, dataset: str | None = None, header_bytes: int | None = None,
+                   offset_counts: float | None = None) -> Recording:
     """Open a recording read-only, choosing the reader from the file.
 
     HDF5 files are recognised by their signature; anything else is raw binary described by
@@ -391,7 +387,8 @@ def open_recording(path: str | Path, *, channels: int | None = None, rate_hz: fl
     else:
         layout = Layout(channels=channels, rate_hz=rate_hz)
     for key, value in (("channels", channels), ("rate_hz", rate_hz), ("dtype", dtype),
-                       ("gain_uv", gain_uv), ("offset_uv", offset_uv)):
+                       ("gain_uv", gain_uv), ("offset_uv", offset_uv), ("header_bytes", header_bytes),
+                       ("offset_counts", offset_counts)):
         if value is not None:
             setattr(layout, key, value)
     if group_size is not None:

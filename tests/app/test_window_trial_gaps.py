@@ -23,3 +23,64 @@ def test_a_foreign_or_broken_truth_file_is_ignored_with_a_warning(window, tmp_pa
         assert window.bench.events is not None and window.bench.analysis.truth is None
         assert "ground truth ignored" in window.statusBar().currentMessage()
         assert any("ground truth ignored" in r.getMessage() for r in caplog.records)
+
+
+def test_layout_dialog_saves_the_layout_beside_the_data(window, tmp_path, monkeypatch):
+    from PySide6.QtWidgets import QDialog
+
+    from app.dialogs.raw_layout import RawLayoutDialog
+    from core.recording import open_recording
+
+    raw = tmp_path / "lab.dat"
+    x = np.random.default_rng(2).normal(0, 40, (15000, 4))
+    raw.write_bytes(b"\0" * 256 + np.round(x + 32768).astype("<u2").tobytes())
+
+    def fill_in(dialog):
+        dialog.channels.setValue(4)
+        dialog.dtype.setCurrentText("uint16")
+        assert dialog.offset_counts.value() == 32768      # proposed for centred unsigned data
+        dialog.header.setValue(256)
+        dialog.group_size.setValue(4)
+        assert "15,000 samples per channel" in dialog.implied.text()
+        return QDialog.DialogCode.Accepted
+
+    monkeypatch.setattr(RawLayoutDialog, "exec", fill_in)
+    assert window.open_path(str(raw))
+    assert window.wait_idle(60)
+    meta = tmp_path / "lab.rigside.toml"
+    assert meta.exists()
+    # the command line and the next opening read the same layout without asking
+    again = open_recording(raw)
+    assert (again.layout.header_bytes, again.layout.offset_counts, again.layout.dtype) == (256, 32768.0, "uint16")
+    np.testing.assert_allclose(again.read(0, 5), window.bench.recording.read(0, 5))
+    again.close()
+    monkeypatch.setattr(RawLayoutDialog, "exec", lambda d: (_ for _ in ()).throw(AssertionError("asked again")))
+    assert window.open_path(str(raw))
+    assert window.wait_idle(60)
+
+
+def test_hdf5_with_several_datasets_offers_the_choice(window, tmp_path, monkeypatch):
+    import h5py
+
+    from app.dialogs.hdf5_dataset import DatasetDialog
+
+    path = tmp_path / "two.h5"
+    x = np.random.default_rng(0).normal(0, 20, (15000, 4)).astype(np.float32)
+    with h5py.File(path, "w") as f:
+        f.attrs["rate_hz"] = 30000.0
+        f.create_dataset("lfp", data=x[::10].copy())
+        f.create_dataset("raw", data=x)
+    offered = []
+
+    def choose(dialog):
+        offered.extend(dialog.choice.itemText(i) for i in range(dialog.choice.count()))
+        dialog.choice.setCurrentText("raw")
+        return DatasetDialog.DialogCode.Accepted
+
+    monkeypatch.setattr(DatasetDialog, "exec", choose)
+    assert window.open_path(str(path))
+    assert sorted(offered) == ["lfp", "raw"]
+    assert window.bench.recording.n_samples == 15000
+    assert window.wait_idle(60)
+    monkeypatch.setattr(DatasetDialog, "exec", lambda d: DatasetDialog.DialogCode.Rejected)
+    assert not window.open_path(str(path))
