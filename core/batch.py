@@ -1,7 +1,8 @@
 """Detection over many recordings: one after another here, or as tasks on Dask.
 
 Each recording gets ``<stem>.events.csv`` (or ``.h5``) and ``<stem>.summary.json`` in the
-output folder; a recording that cannot be processed is reported with its error and does not
+output folder (recordings sharing a stem, such as ``day1/rec.bin`` and ``day2/rec.bin``, are named
+after their differing parent folders: ``day1_rec``, ``day2_rec``); a recording that cannot be processed is reported with its error and does not
 stop the others. ``batch.csv`` lists every recording with its outcome.
 """
 
@@ -34,10 +35,35 @@ class BatchOutcome:
     message: str = ""
 
 
-def run_one(path: str, out_dir: str, params: Params, layout: dict, fmt: str = "csv") -> BatchOutcome:
-    """Detect on one recording and write its outputs; errors become a "failed" outcome."""
+def output_names(paths: list[str | Path]) -> list[str]:
+    """A distinct output name per recording: its stem, prefixed for recordings sharing a stem with
+    as many of their parent folders as tell them apart (``day1/rec.bin`` -> ``day1_rec``)."""
+    stems = [Path(p).name.split(".")[0] or "recording" for p in paths]
+    parents = [Path(p).resolve().parent.parts for p in paths]
+    names = list(stems)
+    for stem in {s for s in stems if stems.count(s) > 1}:
+        idx = [i for i, s in enumerate(stems) if s == stem]
+        for k in range(1, max(len(parents[i]) for i in idx) + 1):
+            cand = ["_".join([*parents[i][-k:], stem]).lstrip("/_") for i in idx]
+            if len(set(cand)) == len(cand):
+                break
+        else:
+            raise ParamError(f"recordings must be distinct files in one batch, got "
+                             f"{', '.join(str(paths[i]) for i in idx)}")
+        for i, c in zip(idx, cand):
+            names[i] = c
+    clash = sorted({n for n in names if names.count(n) > 1})
+    if clash:
+        raise ParamError(f"recordings must have distinct output names in one batch, got {', '.join(clash)} twice")
+    return names
+
+
+def run_one(path: str, out_dir: str, params: Params, layout: dict, fmt: str = "csv",
+            stem: str | None = None) -> BatchOutcome:
+    """Detect on one recording and write its outputs (named ``stem``, default the file's stem);
+    errors become a "failed" outcome."""
     start = time.perf_counter()
-    stem = Path(path).name.split(".")[0] or "recording"
+    stem = stem or Path(path).name.split(".")[0] or "recording"
     try:
         rec = open_recording(path, **layout)
         try:
@@ -87,36 +113,33 @@ def run_batch(paths: list[str], out_dir: str | Path, params: Params, layout: dic
         raise ParamError(f"event format must be csv or h5, got {fmt!r}")
     if not paths:
         raise ParamError("batch needs at least one recording, got none")
-    stems = [Path(p).name.split(".")[0] for p in paths]
-    clash = sorted({s for s in stems if stems.count(s) > 1})
-    if clash:
-        raise ParamError(f"recordings must have distinct names in one batch, got {', '.join(clash)} twice")
+    stems = output_names(paths)
     out_dir = Path(out_dir)
     if not out_dir.is_dir():
         raise ParamError(f"batch output folder must exist, got {str(out_dir)!r}")
     layout = layout or {}
     params.validate()
     if engine == "dask":
-        outcomes = _on_dask(paths, out_dir, params, layout, fmt, workers, cancel)
+        outcomes = _on_dask(paths, stems, out_dir, params, layout, fmt, workers, cancel)
     else:
         outcomes = []
         for i, p in enumerate(paths):
             check(cancel)
-            outcomes.append(run_one(str(p), str(out_dir), params, layout, fmt))
+            outcomes.append(run_one(str(p), str(out_dir), params, layout, fmt, stems[i]))
             report(progress, (i + 1) / len(paths), f"{i + 1} of {len(paths)} recordings")
     write_outcomes(out_dir / "batch.csv", outcomes)
     report(progress, 1.0, "batch done")
     return outcomes
 
 
-def _on_dask(paths, out_dir, params, layout, fmt, workers, cancel) -> list[BatchOutcome]:
+def _on_dask(paths, stems, out_dir, params, layout, fmt, workers, cancel) -> list[BatchOutcome]:
     try:
         import dask
     except ImportError:
         raise ParamError("the dask engine needs the dask package, got none installed "
                          "(pip install 'rigside[dask]')") from None
     check(cancel)
-    tasks = [dask.delayed(run_one)(str(p), str(out_dir), params, layout, fmt) for p in paths]
+    tasks = [dask.delayed(run_one)(str(p), str(out_dir), params, layout, fmt, s) for p, s in zip(paths, stems)]
     return list(dask.compute(*tasks, scheduler="processes", num_workers=max(1, workers)))
 
 
