@@ -135,7 +135,7 @@ class SortingController(QObject):
 
     def group_name(self, group: int) -> str:
         names = self.session.recording.description.get("group_names") if self.session else None
-        return names[group] if isinstance(names, list) and 0 <= group < len(names) else f"group {group + 1}"
+        return names[group] if isinstance(names, list) and 0 <= group < len(names) else f"group {group}"
 
     def thresholds(self) -> np.ndarray:
         """Per-channel detection threshold (sigma) the sorting's events were taken at."""

@@ -156,10 +156,13 @@ class EventTable:
         atomic_write(path, write)
 
     def write_h5(self, path: str | Path, group: str = "events") -> None:
-        """Write the table into an HDF5 group (own layout: one dataset per column)."""
+        """Write the table into an HDF5 group (own layout: one dataset per column of the CSV,
+        ``time_s`` included, plus ``sigma_uv``)."""
         def write(tmp: Path) -> None:
             with h5py.File(tmp, "w") as f:
-                self.to_h5_group(f.create_group(group))
+                g = f.create_group(group)
+                self.to_h5_group(g)
+                g.create_dataset("time_s", data=self.time_s)
         atomic_write(path, write)
 
     def to_h5_group(self, g: h5py.Group) -> None:

@@ -121,7 +121,7 @@ class Recording:
         groups = [list(g) for g in groups] + [[c] for c in rest]
         self.groups = [np.asarray(g, dtype=np.int64) for g in groups]
         names = list(names or [])
-        self.group_names = [names[i] if i < len(names) else f"group {i + 1}" for i in range(len(groups))]
+        self.group_names = [names[i] if i < len(names) else f"group {i}" for i in range(len(groups))]
         self.channel_group = np.empty(self.n_channels, dtype=np.int32)
         for gi, g in enumerate(self.groups):
             self.channel_group[g] = gi
@@ -336,7 +336,7 @@ def read_metadata(meta: str | Path) -> Layout:
                     gain_uv=rec.get("gain_uv", 1.0), offset_uv=rec.get("offset_uv", 0.0),
                     header_bytes=rec.get("header_bytes", 0), offset_counts=rec.get("offset_counts", 0.0),
                     groups=[g["channels"] for g in groups] or None,
-                    group_names=[str(g.get("name", f"group {i + 1}")) for i, g in enumerate(groups)] or None)
+                    group_names=[str(g.get("name", f"group {i}")) for i, g in enumerate(groups)] or None)
     if isinstance(layout.rate_hz, int):
         layout.rate_hz = float(layout.rate_hz)
     layout.validate()
@@ -351,7 +351,7 @@ def write_metadata(path: str | Path, layout: Layout) -> Path:
              f"gain_uv = {float(layout.gain_uv)!r}", f"offset_uv = {float(layout.offset_uv)!r}",
              f"offset_counts = {float(layout.offset_counts)!r}", f"header_bytes = {layout.header_bytes}"]
     for i, g in enumerate(layout.groups or []):
-        name = (layout.group_names or [])[i] if layout.group_names and i < len(layout.group_names) else f"group {i + 1}"
+        name = (layout.group_names or [])[i] if layout.group_names and i < len(layout.group_names) else f"group {i}"
         lines += ["", "[[group]]", f'name = "{name}"', f"channels = {list(map(int, g))}"]
     meta = Path(path).with_name(Path(path).stem + META_SUFFIX)
     return atomic_write(meta, lambda tmp: tmp.write_text("\n".join(lines) + "\n"))
