@@ -22,6 +22,7 @@ from core.session import RecordingChanged, RecordingMoved, autosave_path, load_s
 from core.session_recovery import Autosaver, find_states
 
 from .cli_common import check_output
+from .save_folder import remember_folder, suggested_path
 
 AUTOSAVE_INTERVAL_S = 5.0
 AUTOSAVE_CHECK_MS = 1500
@@ -52,9 +53,10 @@ def _autosave_job(autosaver: Autosaver, session, force: bool, progress=None, can
 
 
 def default_name(session) -> Path:
-    """Suggested session file: beside the recording, never the recording itself."""
+    """Suggested session file: beside the recording (never the recording itself), or in the folder
+    used last or the documents folder when the recording's folder is the program's or read-only."""
     rec = Path(session.recording.path)
-    return rec.with_name(rec.stem + ".session.h5")
+    return suggested_path(rec, rec.stem + ".session.h5")
 
 
 def untitled_path(folder: Path, recording) -> Path:
@@ -227,6 +229,8 @@ class SessionFlow(QObject):
         except RigsideError as exc:
             self.window.show_error("Cannot save the session", str(exc))
             return False
+        if self.window.interactive:
+            remember_folder(path)
         self._wait_file_job()
         index, revision, old_autosave = self.ctl.undo_stack.index(), s.sorting.revision, self.autosave_file
         self._written = (s.sorting, revision)

@@ -4,6 +4,7 @@ restore, undo after reopening, save folders."""
 from __future__ import annotations
 
 import logging
+from pathlib import Path
 
 import numpy as np
 
@@ -84,3 +85,31 @@ def test_hdf5_with_several_datasets_offers_the_choice(window, tmp_path, monkeypa
     assert window.wait_idle(60)
     monkeypatch.setattr(DatasetDialog, "exec", lambda d: DatasetDialog.DialogCode.Rejected)
     assert not window.open_path(str(path))
+
+
+def test_saving_the_demo_starts_in_documents_then_the_last_folder(demo_window, tmp_path, monkeypatch):
+    from PySide6.QtCore import QStandardPaths
+
+    from app.save_folder import program_folder
+    from tests.app.units_helpers import cluster_demo
+
+    docs = tmp_path / "Documents"
+    docs.mkdir()
+    monkeypatch.setattr(QStandardPaths, "writableLocation", lambda where: str(docs))
+    win = demo_window
+    cluster_demo(win)
+    starts = []
+    win.units.files.pick_file = lambda title, start, filt, save=False: starts.append(start) or ""
+    assert not win.units.files.save()
+    first = starts[-1]
+    assert program_folder() not in Path(first).parents
+    assert first == str(docs / "demo.session.h5")
+    chosen = tmp_path / "mine" / "demo.h5"
+    chosen.parent.mkdir()
+    assert win.units.files.save(chosen)
+    assert win.wait_idle(60)
+    assert not win.units.files.save_as()
+    assert starts[-1] == str(chosen)       # save-as starts at the session's own file
+    win.units.files.path = None
+    assert not win.units.files.save()
+    assert starts[-1] == str(chosen.parent / "demo.session.h5")   # the folder used last
