@@ -40,6 +40,8 @@ from .workers import Runner
 VERSION = "0.1.0"
 LAYOUT_VERSION = 1
 MAX_RECENT = 8
+MIN_TRACE_SHARE = 0.4
+"""A restored layout must leave the traces at least this share of the window's height."""
 ANALYSIS_LABEL = "Detecting events"
 log = logging.getLogger("rigside")
 
@@ -99,9 +101,7 @@ class MainWindow(QMainWindow):
         self.splitDockWidget(strip, wave, Qt.Orientation.Vertical)
         self.splitDockWidget(wave, feat, Qt.Orientation.Horizontal)
         self.resize(1600, 1000)
-        self.resizeDocks([threshold, curve], [480, 420], Qt.Orientation.Vertical)
-        self.resizeDocks([threshold], [560], Qt.Orientation.Horizontal)
-        self.resizeDocks([strip, wave], [170, 330], Qt.Orientation.Vertical)
+        self._size_docks()
 
         self.task_status = TaskStatus(self.runner)
         self.statusBar().addPermanentWidget(self.task_status)
@@ -112,6 +112,7 @@ class MainWindow(QMainWindow):
         for pid in ("threshold", "waveforms", "features"):  # the workbench's own tabs show first
             self.docks[pid].raise_()
         self._default_state = self.saveState(LAYOUT_VERSION)
+        self._check_layout = False
         if interactive:
             self._restore_layout()
 
@@ -161,8 +162,21 @@ class MainWindow(QMainWindow):
         state = s.value("window/state")
         if isinstance(geometry, QByteArray):
             self.restoreGeometry(geometry)
-        if isinstance(state, QByteArray):
-            self.restoreState(state, LAYOUT_VERSION)
+        if isinstance(state, QByteArray) and self.restoreState(state, LAYOUT_VERSION):
+            self._check_layout = True
+
+    def showEvent(self, event) -> None:
+        super().showEvent(event)
+        if self._check_layout:   # sizes are known once the window is laid out on screen
+            self._check_layout = False
+            QTimer.singleShot(0, self, self._keep_traces_usable)
+
+    def _keep_traces_usable(self) -> None:
+        """Fall back to the default layout when the restored one leaves the traces too little room."""
+        if not self.central.isVisible() or self.central.height() < MIN_TRACE_SHARE * self.height():
+            self.reset_layout()
+            self.statusBar().showMessage("The saved layout left the traces too little room; the default "
+                                         "layout is shown (View > Reset the window layout).", 15000)
 
     def save_layout(self) -> None:
         s = settings()
@@ -170,10 +184,19 @@ class MainWindow(QMainWindow):
         s.setValue("window/state", self.saveState(LAYOUT_VERSION))
         s.sync()
 
+    def _size_docks(self) -> None:
+        """Default dock sizes as shares of the window, leaving the traces over half its height."""
+        w, h = self.width(), self.height()
+        d = self.docks
+        self.resizeDocks([d["threshold"], d["count_curve"]], [int(0.48 * h), int(0.42 * h)], Qt.Orientation.Vertical)
+        self.resizeDocks([d["threshold"]], [int(0.35 * w)], Qt.Orientation.Horizontal)
+        self.resizeDocks([d["rate_strip"], d["waveforms"]], [int(0.13 * h), int(0.25 * h)], Qt.Orientation.Vertical)
+
     def reset_layout(self) -> None:
         self.restoreState(self._default_state, LAYOUT_VERSION)
         for dock in self.docks.values():
             dock.setVisible(True)
+        self._size_docks()
 
     def closeEvent(self, event) -> None:
         self.runner.shutdown()

@@ -113,3 +113,31 @@ def test_saving_the_demo_starts_in_documents_then_the_last_folder(demo_window, t
     win.units.files.path = None
     assert not win.units.files.save()
     assert starts[-1] == str(chosen.parent / "demo.session.h5")   # the folder used last
+
+
+def test_a_saved_layout_that_squeezes_the_traces_is_not_restored(qtbot):
+    from PySide6.QtCore import Qt
+
+    from app.window import MIN_TRACE_SHARE, MainWindow
+
+    first = MainWindow()
+    qtbot.addWidget(first)
+    first.show()
+    first.resizeDocks([first.docks["waveforms"]], [850], Qt.Orientation.Vertical)
+    qtbot.waitUntil(lambda: first.central.height() < MIN_TRACE_SHARE * first.height())
+    first.close()
+    second = MainWindow()
+    qtbot.addWidget(second)
+    second.show()
+    qtbot.waitUntil(lambda: second.central.height() >= MIN_TRACE_SHARE * second.height(), timeout=3000)
+    assert "too little room" in second.statusBar().currentMessage()
+    # a layout that leaves the traces room is kept as it was saved
+    second.docks["features"].setVisible(False)
+    second.close()
+    third = MainWindow()
+    qtbot.addWidget(third)
+    third.show()
+    qtbot.wait(20)
+    assert not third.docks["features"].isVisible()
+    assert third.central.height() >= MIN_TRACE_SHARE * third.height()
+    third.close()
