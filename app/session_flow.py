@@ -19,6 +19,7 @@ from shiboken6 import isValid
 
 from core.errors import RigsideError, SessionError
 from core.session import RecordingChanged, RecordingMoved, autosave_path, load_session, save_session, snapshot
+from core.journal import rebuild_history
 from core.session_recovery import Autosaver, find_states
 
 from .cli_common import check_output
@@ -31,11 +32,13 @@ SESSION_FILTER = "rigside sessions (*.h5);;All files (*)"
 
 
 def _load_job(path: Path, override, progress=None, cancel=None):
-    """Load a session; the expected refusals come back as values (their kind matters)."""
+    """Load a session and rebuild its undo history from the journal: ``(session, history)``;
+    the expected refusals come back as values (their kind matters)."""
     try:
-        return load_session(path, recording_path_override=override)
+        session = load_session(path, recording_path_override=override)
     except (RecordingMoved, RecordingChanged, SessionError) as exc:
         return exc
+    return session, rebuild_history(session.sorting, progress, cancel)
 
 
 def _save_job(path: Path, session, progress=None, cancel=None):
@@ -320,6 +323,7 @@ class SessionFlow(QObject):
         if isinstance(result, SessionError):
             self.window.show_error("Cannot open the session", str(result))
             return
+        result, history = result
         self._pending_open = True
         try:
             if not self.window.open_path(result.recording.path):
@@ -327,11 +331,14 @@ class SessionFlow(QObject):
         finally:
             self._pending_open = False
         self._incoming_path = title_path
-        self.ctl.attach(result)
+        self.ctl.attach(result, history)
         self._apply_threshold(result)
         self.recovered = title_path is not None and Path(file) != title_path
         self.update_title()
-        self.window.statusBar().showMessage(f"Opened {Path(file).name}: {len(result.sorting.units)} units.", 10000)
+        undo = (f"{len(history)} step(s) can be undone" if history is not None
+                else "its journal does not replay to these units, so earlier steps cannot be undone")
+        self.window.statusBar().showMessage(f"Opened {Path(file).name}: {len(result.sorting.units)} units; "
+                                            f"{undo}.", 10000)
 
     def _apply_threshold(self, session) -> None:
         d = session.params.detect

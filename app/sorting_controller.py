@@ -160,8 +160,10 @@ class SortingController(QObject):
         return out
 
     # ---- the sorting ------------------------------------------------------------------------
-    def attach(self, session: Session | None) -> None:
-        """Hold ``session`` (or nothing): a fresh undo history, selection and quality numbers."""
+    def attach(self, session: Session | None, history: list | None = None) -> None:
+        """Hold ``session`` (or nothing) with fresh selection and quality numbers; the undo history
+        is ``history`` (steps already in the sorting, oldest first, from
+        :func:`core.journal.rebuild_history`) or empty."""
         old = self.sorting
         if old is not None:
             self.replacing.emit()
@@ -177,6 +179,9 @@ class SortingController(QObject):
         if session is not None:
             session.sorting.changed.connect(self._on_sorting_changed)
             self._core_stack = UndoStack(session.sorting)
+            for op in history or []:
+                self.undo_stack.push(StepCommand(op, self._core_stack, applied=True))
+            self.undo_stack.setClean()
             self._stale = {u: session.sorting.revision for u in session.sorting.unit_ids()}
             self._refresh_metrics()
         self.sorting_replaced.emit()

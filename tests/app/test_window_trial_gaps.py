@@ -141,3 +141,37 @@ def test_a_saved_layout_that_squeezes_the_traces_is_not_restored(qtbot):
     assert not third.docks["features"].isVisible()
     assert third.central.height() >= MIN_TRACE_SHARE * third.height()
     third.close()
+
+
+def test_undo_after_reopening_a_session_undoes_the_last_step_of_the_previous_sitting(demo_window, tmp_path):
+    from tests.app.units_helpers import biggest_unit, cluster_demo
+
+    win = demo_window
+    ctl = win.units
+    cluster_demo(win)
+    units = ctl.sorting.units
+    a, b = next([u, v] for u in units for v in units if u < v and units[u].group == units[v].group)
+    assert ctl.relabel([biggest_unit(ctl)], "single unit")
+    before_last = ctl.sorting.copy()
+    assert ctl.merge([a, b])
+    assert win.wait_idle(60)
+    after_last = ctl.sorting.copy()
+    path = tmp_path / "sitting.h5"
+    assert ctl.files.save(path)
+    assert win.wait_idle(60)
+    assert ctl.files.open(path)
+    assert win.wait_idle(60)
+    assert ctl.sorting.state_equal(after_last)
+    undo = win.actions_by_name["undo"]
+    assert undo.isEnabled() and "Merge" in undo.text()
+    assert ctl.undo_stack.isClean() and ctl.undo_stack.count() == 2   # the first pass is not a step
+    undo.trigger()
+    assert win.wait_idle(60)
+    assert ctl.sorting.state_equal(before_last)        # assignments bit for bit, units, id counter
+    np.testing.assert_array_equal(ctl.sorting.assignments, before_last.assignments)
+    win.actions_by_name["redo"].trigger()
+    assert ctl.sorting.state_equal(after_last)
+    undo.trigger()
+    undo.trigger()
+    assert not undo.isEnabled()
+    assert ctl.sorting.unit(biggest_unit(ctl)).label == "unreviewed"
