@@ -66,7 +66,7 @@ def install_audit(window) -> AuditController:
                 else suggested_folder())
         path, _ = QFileDialog.getSaveFileName(window, title, str(base), filt)
         if path:
-            remember_folder(path)
+            remember_folder(Path(path).parent)
             ctl.export(kind, path)
 
     def sync_trace(*_) -> None:

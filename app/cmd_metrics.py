@@ -5,10 +5,9 @@ from __future__ import annotations
 import argparse
 import sys
 
-from core.features import Features
 from core.pipeline import thresholds_sigma
 from core.session import load_session
-from core.unit_table import CAUTION, unit_metrics_for_events
+from core.unit_table import CAUTION, sorting_unit_table
 from core.unit_table_io import DEFAULT_LIMITS, flag_units, write_unit_table_csv
 
 from .cli_common import check_output
@@ -41,15 +40,11 @@ def run_metrics(args: argparse.Namespace) -> int:
         min(params.detect.dead_time_ms, 0.99 * mp.refractory_ms)
     mp.validate()
     events, sorting = session.events, session.sorting
-    features = Features(sorting.data.features, list(sorting.data.feature_names))
     bar = TextProgress(not args.quiet)
     try:
-        table = unit_metrics_for_events(events, sorting.assignments, features,
-                                        thresholds_sigma(params, events.sigma_uv), mp, progress=bar)
+        table = sorting_unit_table(events, sorting, thresholds_sigma(params, events.sigma_uv), mp, progress=bar)
     finally:
         bar.close()
-    labels = {u: sorting.unit(u).label for u in table["unit"].tolist()}
-    table["label"] = [labels[u] for u in table["unit"].tolist()]
     write_unit_table_csv(table, out, mp)
     flags = flag_units(table, DEFAULT_LIMITS)
     flagged = sorted({int(u) for name, f in flags.items() for u, bad in zip(table["unit"], f) if bad})

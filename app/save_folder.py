@@ -40,9 +40,9 @@ def suggested_path(near: str | Path | None, name: str) -> Path:
     return suggested_folder(near) / name
 
 
-def remember_folder(path: str | Path) -> None:
+def remember_folder(folder: str | Path) -> None:
     """Keep the folder of a chosen save path for the next dialog."""
     from .window import settings
     s = settings()
-    s.setValue(LAST_FOLDER_KEY, str(Path(path).resolve().parent))
+    s.setValue(LAST_FOLDER_KEY, str(Path(folder).resolve()))
     s.sync()

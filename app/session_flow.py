@@ -233,7 +233,7 @@ class SessionFlow(QObject):
             self.window.show_error("Cannot save the session", str(exc))
             return False
         if self.window.interactive:
-            remember_folder(path)
+            remember_folder(path.parent)
         self._wait_file_job()
         index, revision, old_autosave = self.ctl.undo_stack.index(), s.sorting.revision, self.autosave_file
         self._written = (s.sorting, revision)

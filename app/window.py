@@ -33,6 +33,7 @@ from .panels.traces import TracePanel
 from .panels.waveforms import WaveformPanel
 from .task_status import TaskStatus
 from .audit_frame import install_audit
+from .export_menu import install_export
 from .units_frame import install_units
 from .window_actions import build_actions
 from .workers import Runner
@@ -45,7 +46,7 @@ MIN_TRACE_SHARE = 0.4
 ANALYSIS_LABEL = "Detecting events"
 log = logging.getLogger("rigside")
 
-EXTENSIONS: tuple[Callable[["MainWindow"], object], ...] = (install_units, install_audit)
+EXTENSIONS: tuple[Callable[["MainWindow"], object], ...] = (install_units, install_audit, install_export)
 """Installers run on every new window: each adds its panels, menus and actions."""
 
 

@@ -175,3 +175,49 @@ def test_undo_after_reopening_a_session_undoes_the_last_step_of_the_previous_sit
     undo.trigger()
     assert not undo.isEnabled()
     assert ctl.sorting.unit(biggest_unit(ctl)).label == "unreviewed"
+
+
+def test_file_export_writes_spike_times_and_the_unit_table(demo_window, tmp_path):
+    import csv
+
+    from core.export import export_units
+    from core.session import load_session
+    from tests.app.units_helpers import cluster_demo
+
+    win = demo_window
+    menu_texts = [a.text() for a in win.menuBar().actions()[0].menu().actions()]
+    assert "&Export" in menu_texts
+    export_menu = next(a.menu() for a in win.menuBar().actions()[0].menu().actions() if a.text() == "&Export")
+    audit = [a for a in export_menu.actions() if a in (win.actions_by_name["audit_report"],
+                                                      win.actions_by_name["audit_table"])]
+    assert len(audit) == 2 and not any(a.isEnabled() for a in audit)     # enabled once an audit exists
+    assert not win.actions_by_name["export_spike_times"].isEnabled()
+    cluster_demo(win)
+    ex = win.exporter
+    assert win.actions_by_name["export_spike_times"].isEnabled()
+    folder = tmp_path / "spikes"
+    folder.mkdir()
+    ex.pick_folder = lambda title, start: str(folder)
+    win.actions_by_name["export_spike_times"].trigger()
+    assert win.wait_idle(60)
+    rows = list(csv.DictReader(open(folder / "spike_times.csv")))
+    counts = {u: n for u, n in win.units.sorting.counts().items() if u >= 0 and n > 0}
+    assert len(rows) == sum(counts.values())
+    assert {int(r["unit"]) for r in rows} == set(counts)
+    for u, n in counts.items():
+        assert len(np.load(folder / f"unit_{u}.npy")) == n
+    table = tmp_path / "units.csv"
+    ex.pick_file = lambda title, start, filt: str(table)
+    win.actions_by_name["export_unit_table"].trigger()
+    assert win.wait_idle(60)
+    lines = [ln for ln in table.read_text().splitlines() if not ln.startswith("#")]
+    units = [int(r["unit"]) for r in csv.DictReader(lines)]
+    assert sorted(units) == sorted(win.units.sorting.units)
+    assert "written" in win.statusBar().currentMessage()
+    # the same files as the command line writes from the saved session
+    session_file = tmp_path / "s.h5"
+    assert win.units.files.save(session_file)
+    assert win.wait_idle(60)
+    cli = tmp_path / "cli"
+    export_units(load_session(session_file, check_recording=False), cli)
+    assert (cli / "spike_times.csv").read_text() == (folder / "spike_times.csv").read_text()
