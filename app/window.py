@@ -9,7 +9,6 @@ import traceback
 from pathlib import Path
 from typing import Callable, Sequence
 
-import h5py
 import numpy as np
 from PySide6.QtCore import QByteArray, QEventLoop, QSettings, Qt, QTimer
 from PySide6.QtWidgets import (QApplication, QDockWidget, QFileDialog, QLabel, QMainWindow, QMessageBox,
@@ -18,12 +17,9 @@ from PySide6.QtWidgets import (QApplication, QDockWidget, QFileDialog, QLabel, Q
 from core.errors import RigsideError
 from core.filtering import design_bandpass
 from core.params import Params
-from core.hdf5_datasets import recording_candidates
-from core.recording import RawRecording, metadata_path, open_recording, write_metadata
 from . import jobs, palette
-from .dialogs.hdf5_dataset import DatasetDialog
-from .dialogs.raw_layout import RawLayoutDialog
 from .model import Workbench
+from .opening import open_with_dialogs
 from .panels.base import Panel
 from .panels.count_curve import CountCurvePanel
 from .panels.features import FeaturePanel
@@ -284,37 +280,7 @@ class MainWindow(QMainWindow):
         return True
 
     def _open(self, path: str, options: dict):
-        p = Path(path)
-        has_layout = options.get("channels") is not None and options.get("rate_hz") is not None
-        readable = p.is_file() and p.stat().st_size > 0 and self.interactive
-        if readable and h5py.is_hdf5(p) and options.get("dataset") is None:
-            candidates = recording_candidates(p)
-            if len(candidates) > 1:
-                dialog = DatasetDialog(p, candidates, self)
-                if dialog.exec() != DatasetDialog.DialogCode.Accepted:
-                    return None
-                options = {**options, "dataset": dialog.dataset()}
-        elif readable and not h5py.is_hdf5(p) and metadata_path(p) is None and not has_layout:
-            dialog = RawLayoutDialog(p, self)
-            if dialog.exec() != RawLayoutDialog.DialogCode.Accepted:
-                return None
-            rec = RawRecording(p, dialog.layout_value())
-            self._save_layout_beside(p, rec.layout)
-            return rec
-        return open_recording(p, **options)
-
-    def _save_layout_beside(self, path: Path, layout) -> None:
-        """Keep the entered layout as the metadata file beside the data, so the command line and the
-        next opening use it (skipped, with a note, when the folder is not writable)."""
-        if not os.access(path.parent, os.W_OK):
-            self.statusBar().showMessage(f"Layout not saved: {path.parent} is not writable.", 15000)
-            return
-        try:
-            meta = write_metadata(path, layout)
-        except OSError as exc:
-            self.statusBar().showMessage(f"Layout not saved: {exc}", 15000)
-            return
-        self.statusBar().showMessage(f"Layout saved as {meta.name}.", 15000)
+        return open_with_dialogs(self, path, options)
 
     def start_detection(self) -> None:
         """Noise and detection down to the look-up floor (or the lowest threshold, if lower)."""

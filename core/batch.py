@@ -2,8 +2,8 @@
 
 Each recording gets ``<stem>.events.csv`` (or ``.h5``) and ``<stem>.summary.json`` in the
 output folder (recordings sharing a stem, such as ``day1/rec.bin`` and ``day2/rec.bin``, are named
-after their differing parent folders: ``day1_rec``, ``day2_rec``); a recording that cannot be processed is reported with its error and does not
-stop the others. ``batch.csv`` lists every recording with its outcome.
+after their differing parent folders: ``day1_rec``, ``day2_rec``); a recording that cannot be
+processed is reported with its error and does not stop the others. ``batch.csv`` lists every recording with its outcome.
 """
 
 from __future__ import annotations

@@ -25,7 +25,8 @@ class RawLayoutDialog(QDialog):
         p = Path(path)
         size = p.stat().st_size if p.exists() else 0
         note = QLabel(f"<b>{p.name}</b> ({size:,} bytes) has no metadata file "
-                      f"(<tt>{p.stem}{META_SUFFIX}</tt>) beside it. Describe the interleaved samples (saved as that file when the folder is writable):")
+                      f"(<tt>{p.stem}{META_SUFFIX}</tt>) beside it. Describe the interleaved samples (kept in "
+                      "that file when the folder is writable):")
         note.setWordWrap(True)
         self.channels = QSpinBox()
         self.channels.setRange(1, 4096)
