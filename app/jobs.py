@@ -7,6 +7,7 @@ from __future__ import annotations
 
 from pathlib import Path
 
+from core.errors import RigsideError
 from core.features import compute_features
 from core.noise import estimate_noise
 from core.pipeline import detect
@@ -22,13 +23,18 @@ LOOKUP_FLOOR_SIGMA = 3.0
 def analyse(recording, params, truth_path: Path | None = None, progress=None, cancel=None):
     """Noise, detection down to the look-up floor, and the ground truth if there is one.
 
-    Returns ``(noise, events, truth)``; ``truth`` is None without a truth file.
+    Returns ``(noise, events, truth)``; ``truth`` is None without a truth file, and the
+    :class:`core.errors.RigsideError` saying why when the file beside the recording is not a
+    readable ground truth of ours (the recording is then used without it).
     """
     noise = estimate_noise(recording, params, cancel=cancel,
                            progress=lambda f, m: report(progress, NOISE_SHARE * f, m))
     events = detect(recording, params, cancel=cancel, noise=noise,
                     progress=lambda f, m: report(progress, NOISE_SHARE + (1 - NOISE_SHARE) * f, m))
-    truth = load_truth(truth_path) if truth_path is not None else None
+    try:
+        truth = load_truth(truth_path) if truth_path is not None else None
+    except RigsideError as exc:
+        truth = exc.with_traceback(None)   # no frames of the job thread kept alive
     return noise, events, truth
 
 

@@ -166,8 +166,13 @@ class EventTable:
         atomic_write(path, write)
 
     def write_h5(self, path: str | Path, group: str = "events") -> None:
-        """Write the table into an HDF5 group (own layout: one dataset per column)."""
-        atomic_write(path, lambda tmp: write_h5(tmp, lambda f: self.to_h5_group(f.create_group(group))))
+        """Write the table into an HDF5 group (own layout: one dataset per column of the CSV,
+        ``time_s`` included, plus ``sigma_uv``)."""
+        def fill(f) -> None:
+            g = f.create_group(group)
+            self.to_h5_group(g)
+            g.create_dataset("time_s", data=self.time_s)
+        atomic_write(path, lambda tmp: write_h5(tmp, fill))
 
     def to_h5_group(self, g: h5py.Group) -> None:
         """Store columns and context in an open HDF5 group."""

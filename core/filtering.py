@@ -142,7 +142,7 @@ class BandPass:
         if pad_left or pad_right:  # only at the file's ends
             y = filtfilt(_odd_extend(rec.scale(stored), pad_left, pad_right), self.sos)
         else:
-            y = filtfilt(stored, self.sos, rec.layout.gain_uv, rec.layout.offset_uv)
+            y = filtfilt(stored, self.sos, rec.layout.gain_uv, rec.layout.total_offset_uv)
         off = pad_left + (start - lo)
         y = y[off:off + (stop - start)]
         if use_all:

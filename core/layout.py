@@ -23,8 +23,14 @@ class Layout:
     gain_uv: float = 1.0
     offset_uv: float = 0.0
     header_bytes: int = 0
+    offset_counts: float = 0.0
     groups: list[list[int]] | None = None
     group_names: list[str] | None = None
+
+    @property
+    def total_offset_uv(self) -> float:
+        """Microvolts added after the gain: ``offset_uv - offset_counts * gain_uv``."""
+        return float(self.offset_uv) - float(self.offset_counts) * float(self.gain_uv)
 
     def validate(self) -> None:
         if not (is_integer(self.channels) and 1 <= self.channels <= 4096):
@@ -39,6 +45,8 @@ class Layout:
             raise RecordingError(f"offset must be a finite number of microvolts, got {self.offset_uv!r}")
         if not (is_integer(self.header_bytes) and self.header_bytes >= 0):
             raise RecordingError(f"header length must be a non-negative integer, got {self.header_bytes!r}")
+        if not (is_number(self.offset_counts) and math.isfinite(self.offset_counts)):
+            raise RecordingError(f"offset in stored counts must be a finite number, got {self.offset_counts!r}")
         if self.groups is not None:
             check_groups(self.groups, self.channels)
 

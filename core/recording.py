@@ -15,6 +15,7 @@ Raw binary files are described by a metadata file of our own schema beside the d
     rate_hz = 30000.0
     gain_uv = 0.195        # microvolts per stored unit
     offset_uv = 0.0        # added after the gain
+    offset_counts = 0      # stored value of 0 uV, subtracted before the gain (32768: centred uint16)
     header_bytes = 0       # bytes to skip at the start of the file
     [[group]]
     name = "bundle A"
@@ -35,6 +36,7 @@ from .errors import RecordingError
 from .h5safe import stored_dataset
 from .layout import DTYPES, Layout, is_integer, is_number, check_groups, groups_of_size  # noqa: F401 (re-exported)
 from .textparse import parse_toml
+from .hdf5_datasets import choose_dataset
 
 META_SUFFIX = ".rigside.toml"
 TRUTH_SUFFIXES = (".truth.csv", ".truth_units.csv")
@@ -60,7 +62,7 @@ class Recording:
         groups = [list(g) for g in groups] + [[c] for c in rest]
         self.groups = [np.asarray(g, dtype=np.int64) for g in groups]
         names = list(names or [])
-        self.group_names = [names[i] if i < len(names) else f"group {i + 1}" for i in range(len(groups))]
+        self.group_names = [names[i] if i < len(names) else f"group {i}" for i in range(len(groups))]
         self.channel_group = np.empty(self.n_channels, dtype=np.int32)
         for gi, g in enumerate(self.groups):
             self.channel_group[g] = gi
@@ -86,8 +88,8 @@ class Recording:
         """Stored values to microvolts (float32 copy)."""
         out = np.array(stored, dtype=np.float32)
         out *= np.float32(self.layout.gain_uv)
-        if self.layout.offset_uv:
-            out += np.float32(self.layout.offset_uv)
+        if self.layout.total_offset_uv:
+            out += np.float32(self.layout.total_offset_uv)
         return out
 
     def check_finite(self, stored: np.ndarray, start: int, channels: np.ndarray | None) -> None:
@@ -140,13 +142,15 @@ class RawRecording(Recording):
         item = np.dtype(layout.dtype).itemsize
         body = size - layout.header_bytes
         frame = item * layout.channels
+        how = f"set --header-bytes or header_bytes in {self.path.stem}{META_SUFFIX}"
         if body <= 0:
             raise RecordingError(f"recording file must hold samples after its {layout.header_bytes}-byte header, "
-                                 f"got {size} bytes in {str(path)!r}")
+                                 f"got {size} bytes in {str(path)!r} ({how})")
         if body % frame:
             raise RecordingError(f"file size after the header must be a multiple of channels x item size "
                                  f"({layout.channels} x {item} = {frame} bytes), got {body} bytes "
-                                 f"(truncated, or wrong channel count or sample type?)")
+                                 f"(a header of {body % frame} + k x {frame} bytes? {how}; or a truncated "
+                                 f"file, wrong channel count or sample type)")
         self.n_samples = body // frame
         self._dtype = np.dtype(layout.dtype).newbyteorder("<")
         self._frame = frame
@@ -198,15 +202,8 @@ class HDF5Recording(Recording):
 
     def _setup(self, dataset, rate_hz, gain_uv, groups) -> None:
         path = self.path
-        name = dataset or _first_2d_dataset(self._file)
-        if name is None or name not in self._file or not isinstance(self._file[name], h5py.Dataset):
-            raise RecordingError(f"HDF5 recording must hold a 2-D dataset (samples x channels), "
-                                 f"got none named {dataset!r} in {str(path)!r}" if dataset else
-                                 f"HDF5 recording must hold a 2-D dataset (samples x channels), got none in {str(path)!r}")
+        name = choose_dataset(self._file, dataset)
         self._ds = stored_dataset(self._file, name, self.allow_external, RecordingError)
-        if self._ds.ndim != 2 or self._ds.dtype.kind not in "iuf":
-            raise RecordingError(f"HDF5 recording dataset must be 2-D numeric (samples x channels), "
-                                 f"got shape {self._ds.shape} of {self._ds.dtype}")
         attrs = self._ds.attrs
         rate = rate_hz if rate_hz is not None else attrs.get("rate_hz", self._file.attrs.get("rate_hz"))
         if rate is None:
@@ -243,16 +240,6 @@ class HDF5Recording(Recording):
         self._file.close()
 
 
-def _first_2d_dataset(f: h5py.File) -> str | None:
-    found: list[str] = []
-
-    def visit(name, obj):
-        if isinstance(obj, h5py.Dataset) and obj.ndim == 2 and not found:
-            found.append(name)
-    f.visititems(visit)
-    return found[0] if found else None
-
-
 def metadata_path(path: str | Path) -> Path | None:
     """The metadata file beside ``path`` (``name.ext.rigside.toml`` or ``name.rigside.toml``)."""
     p = Path(path)
@@ -279,7 +266,7 @@ def read_metadata(meta: str | Path) -> Layout:
     rec = data.get("recording")
     if not isinstance(rec, dict):
         raise RecordingError(f"metadata file must have a [recording] table, got none in {str(meta)!r}")
-    known = {"schema", "dtype", "channels", "rate_hz", "gain_uv", "offset_uv", "header_bytes"}
+    known = {"schema", "dtype", "channels", "rate_hz", "gain_uv", "offset_uv", "offset_counts", "header_bytes"}
     unknown = set(rec) - known
     if unknown:
         raise RecordingError(f"metadata [recording] keys must be among {', '.join(sorted(known))}, "
@@ -295,9 +282,9 @@ def read_metadata(meta: str | Path) -> Layout:
                              f"{groups!r}"[:200])
     layout = Layout(channels=rec["channels"], rate_hz=rec["rate_hz"], dtype=rec.get("dtype", "int16"),
                     gain_uv=rec.get("gain_uv", 1.0), offset_uv=rec.get("offset_uv", 0.0),
-                    header_bytes=rec.get("header_bytes", 0),
+                    header_bytes=rec.get("header_bytes", 0), offset_counts=rec.get("offset_counts", 0.0),
                     groups=[g["channels"] for g in groups] or None,
-                    group_names=[str(g.get("name", f"group {i + 1}")) for i, g in enumerate(groups)] or None)
+                    group_names=[str(g.get("name", f"group {i}")) for i, g in enumerate(groups)] or None)
     if isinstance(layout.rate_hz, int):
         layout.rate_hz = float(layout.rate_hz)
     layout.validate()
@@ -310,9 +297,9 @@ def write_metadata(path: str | Path, layout: Layout) -> Path:
     lines = ["# rigside recording description", "[recording]", "schema = 1",
              f'dtype = "{layout.dtype}"', f"channels = {layout.channels}", f"rate_hz = {float(layout.rate_hz)!r}",
              f"gain_uv = {float(layout.gain_uv)!r}", f"offset_uv = {float(layout.offset_uv)!r}",
-             f"header_bytes = {layout.header_bytes}"]
+             f"offset_counts = {float(layout.offset_counts)!r}", f"header_bytes = {layout.header_bytes}"]
     for i, g in enumerate(layout.groups or []):
-        name = (layout.group_names or [])[i] if layout.group_names and i < len(layout.group_names) else f"group {i + 1}"
+        name = (layout.group_names or [])[i] if layout.group_names and i < len(layout.group_names) else f"group {i}"
         lines += ["", "[[group]]", f'name = "{name}"', f"channels = {list(map(int, g))}"]
     meta = Path(path).with_name(Path(path).stem + META_SUFFIX)
     return atomic_write(meta, lambda tmp: tmp.write_text("\n".join(lines) + "\n"))
@@ -320,8 +307,8 @@ def write_metadata(path: str | Path, layout: Layout) -> Path:
 
 def open_recording(path: str | Path, *, channels: int | None = None, rate_hz: float | None = None,
                    dtype: str | None = None, gain_uv: float | None = None, offset_uv: float | None = None,
-                   group_size: int | None = None, dataset: str | None = None,
-                   allow_external: bool = False) -> Recording:
+                   group_size: int | None = None, dataset: str | None = None, header_bytes: int | None = None,
+                   offset_counts: float | None = None, allow_external: bool = False) -> Recording:
     """Open a recording read-only, choosing the reader from the file.
 
     HDF5 files are recognised by their signature; anything else is raw binary described by
@@ -349,7 +336,8 @@ def open_recording(path: str | Path, *, channels: int | None = None, rate_hz: fl
     else:
         layout = Layout(channels=channels, rate_hz=rate_hz)
     for key, value in (("channels", channels), ("rate_hz", rate_hz), ("dtype", dtype),
-                       ("gain_uv", gain_uv), ("offset_uv", offset_uv)):
+                       ("gain_uv", gain_uv), ("offset_uv", offset_uv), ("header_bytes", header_bytes),
+                       ("offset_counts", offset_counts)):
         if value is not None:
             setattr(layout, key, value)
     if group_size is not None:
