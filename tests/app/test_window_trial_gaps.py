@@ -200,7 +200,7 @@ def test_file_export_writes_spike_times_and_the_unit_table(demo_window, tmp_path
     ex.pick_folder = lambda title, start: str(folder)
     win.actions_by_name["export_spike_times"].trigger()
     assert win.wait_idle(60)
-    rows = list(csv.DictReader(open(folder / "spike_times.csv")))
+    rows = list(csv.DictReader(open(folder / "unit_times.csv")))
     counts = {u: n for u, n in win.units.sorting.counts().items() if u >= 0 and n > 0}
     assert len(rows) == sum(counts.values())
     assert {int(r["unit"]) for r in rows} == set(counts)
@@ -220,4 +220,4 @@ def test_file_export_writes_spike_times_and_the_unit_table(demo_window, tmp_path
     assert win.wait_idle(60)
     cli = tmp_path / "cli"
     export_units(load_session(session_file, check_recording=False), cli)
-    assert (cli / "spike_times.csv").read_text() == (folder / "spike_times.csv").read_text()
+    assert (cli / "unit_times.csv").read_text() == (folder / "unit_times.csv").read_text()
