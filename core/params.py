@@ -14,6 +14,7 @@ from typing import Any
 
 import tomli_w
 
+from .atomic import atomic_write
 from .errors import ParamError
 
 POLARITIES = ("negative", "positive", "both")
@@ -302,14 +303,15 @@ class Params:
         return out
 
     def save_toml(self, path: str | Path) -> None:
-        """Write the parameters as TOML."""
-        Path(path).write_text(tomli_w.dumps(self.to_dict()))
+        """Write the parameters as TOML (atomically: a reader sees the old file or the new one)."""
+        text = tomli_w.dumps(self.to_dict())
+        atomic_write(path, lambda tmp: tmp.write_text(text, encoding="utf-8"))
 
     @classmethod
     def load_toml(cls, path: str | Path) -> "Params":
         """Read parameters from a TOML file; missing keys keep their defaults."""
         try:
-            data = tomllib.loads(Path(path).read_text())
+            data = tomllib.loads(Path(path).read_text(encoding="utf-8"))
         except FileNotFoundError:
             raise ParamError(f"parameter file must exist, got {str(path)!r}") from None
         except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
