@@ -136,3 +136,25 @@ def test_tiny_inputs_give_one_cluster():
     assert cluster_features(x[:1], ClusterParams(), k=2).tolist() == [0]
     assert cluster_features(np.ones((5, 2), np.float32), ClusterParams()).tolist() == [0] * 5
     assert len(cluster_features(np.zeros((0, 2), np.float32), ClusterParams())) == 0
+
+
+def test_overlapping_pool_limits_restore_the_original_only_when_the_last_caller_leaves():
+    # threadpoolctl's own report (threadpool_info) is the oracle for the process's pool sizes
+    from threadpoolctl import threadpool_info, threadpool_limits
+
+    from core.clustering import single_threaded_pools
+
+    def sizes():
+        return sorted(i["num_threads"] for i in threadpool_info())
+
+    with threadpool_limits(limits=2):               # a known starting point above one thread
+        before = sizes()
+        if max(before, default=1) < 2:
+            pytest.skip("no thread pool here can run more than one thread")
+        first, second = single_threaded_pools(), single_threaded_pools()
+        first.__enter__()                            # caller A enters
+        second.__enter__()                           # caller B (another thread) enters
+        first.__exit__(None, None, None)             # A leaves while B still runs
+        assert max(sizes()) == 1
+        second.__exit__(None, None, None)            # the last caller leaves
+        assert sizes() == before
