@@ -15,6 +15,8 @@ import re
 
 import numpy as np
 
+from .audit_imported import WaveformSummary
+
 IMPORTED, FRESH = "#c0612b", "#2b7a8c"
 SIDE_LABELS = {IMPORTED: "imported unit", FRESH: "best fresh match"}
 _SALTS = itertools.count(1)   # a fresh hash salt per figure keeps SVG ids unique within one page
@@ -45,7 +47,7 @@ def _small_text(ax) -> None:
     ax.title.set_size(9)
 
 
-def agreement_figure(matrix: np.ndarray, row_ids, col_ids) -> str:
+def agreement_figure(matrix: np.ndarray, row_ids: np.ndarray, col_ids: np.ndarray) -> str:
     """Agreement (0 to 1) of imported units (rows) with fresh units (columns), with a colour bar."""
     m = np.asarray(matrix, float)
     fig = _figure(min(12.0, 2.4 + 0.16 * m.shape[1]), min(12.0, 1.6 + 0.16 * m.shape[0]))
@@ -67,11 +69,11 @@ def agreement_figure(matrix: np.ndarray, row_ids, col_ids) -> str:
     return svg_of(fig)
 
 
-def waveform_figure(sides: list[tuple[object, str]]) -> str:
+def waveform_figure(sides: list[tuple[WaveformSummary, str]]) -> str:
     """Mean waveform +-1 SD per channel, one panel per channel of the first side's group.
 
-    ``sides`` holds (:class:`~core.audit_imported.WaveformSummary`, colour) pairs; channels of a
-    later side missing from the first side's group are not drawn.
+    ``sides`` holds (summary, colour) pairs; channels of a later side missing from the first
+    side's group are not drawn.
     """
     first = sides[0][0]
     channels = [int(c) for c in first.channels]
