@@ -52,11 +52,14 @@ _pool_limiter = None
 def single_threaded_pools():
     """BLAS and OpenMP pools limited to one thread while any caller is inside.
 
-    ``threadpool_limits`` acts on the whole process, not on the calling thread, and restores
-    the limits it found on exit; two overlapping uses from different threads would restore in
-    the wrong order (and leave the process at one thread). Here the first caller to enter sets
-    the limit and the last to leave restores the original; other threads' BLAS calls are
-    single-threaded meanwhile.
+    ``threadpool_limits`` does not act on the calling thread alone: OpenBLAS (the pthreads
+    build in the numpy and scipy wheels) has one pool for the whole process, so other threads'
+    BLAS calls are single-threaded meanwhile; only the OpenMP runtime limits the calling thread.
+    It restores the limits it found on exit, so two overlapping uses from different threads
+    would restore in the wrong order (and leave the process at one thread); here the first
+    caller in sets the limits and the last one out restores them. threadpoolctl also lets only
+    one Python thread control OpenBLAS (the first that set a limit, while it lives): called from
+    another thread, the OpenBLAS limit is left as it is.
     """
     global _pool_users, _pool_limiter
     with _POOLS_LOCK:
