@@ -120,15 +120,22 @@ class EventTable:
         return keep
 
     def _sorted_amplitudes(self, channel: int) -> np.ndarray:
-        if not self._by_channel:
+        """Sorted non-artefact amplitudes of one channel, from a cache built on first use.
+
+        Thread-safe: the cache is built complete in a local dict and then published by one
+        attribute assignment, so another thread sees either no cache or all of it (two threads
+        arriving together may both build it, with equal results).
+        """
+        cache = self._by_channel
+        if not cache:
             ok = ~self.artefact
             order = np.lexsort((self.amplitude_sigma[ok], self.channel[ok]))
             ch = self.channel[ok][order]
             amp = self.amplitude_sigma[ok][order]
             edges = np.searchsorted(ch, np.arange(self.n_channels + 1))
-            for c in range(self.n_channels):
-                self._by_channel[c] = amp[edges[c]:edges[c + 1]]
-        return self._by_channel[channel]
+            cache = {c: amp[edges[c]:edges[c + 1]] for c in range(self.n_channels)}
+            self._by_channel = cache
+        return cache[channel]
 
     def counts(self, threshold_sigma=None, threshold_uv=None) -> np.ndarray:
         """Non-artefact event count per channel at the threshold (sorted look-up)."""

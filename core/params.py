@@ -334,15 +334,15 @@ class Params:
         return out
 
     def save_toml(self, path: str | Path) -> None:
-        """Write the parameters as TOML (atomically)."""
+        """Write the parameters as TOML (atomically: a reader sees the old file or the new one)."""
         text = tomli_w.dumps(self.to_dict())
-        atomic_write(path, lambda tmp: tmp.write_text(text))
+        atomic_write(path, lambda tmp: tmp.write_text(text, encoding="utf-8"))
 
     @classmethod
     def load_toml(cls, path: str | Path) -> "Params":
         """Read parameters from a TOML file; missing keys keep their defaults."""
         try:
-            text = Path(path).read_text()
+            text = Path(path).read_text(encoding="utf-8")
         except FileNotFoundError:
             raise ParamError(f"parameter file must exist, got {str(path)!r}") from None
         except UnicodeDecodeError as exc:

@@ -30,6 +30,7 @@ from pathlib import Path
 
 import h5py
 import numpy as np
+import tomli_w
 
 from .atomic import atomic_write
 from .errors import RecordingError
@@ -259,7 +260,7 @@ def side_files(path: str | Path) -> list[Path]:
 def read_metadata(meta: str | Path) -> Layout:
     """Parse a metadata file of our schema into a :class:`Layout`."""
     try:
-        text = Path(meta).read_text()
+        text = Path(meta).read_text(encoding="utf-8")
     except UnicodeDecodeError as exc:
         raise RecordingError(f"metadata file must be valid TOML (UTF-8 text), got {str(meta)!r}: {exc}") from None
     data = parse_toml(text, f"metadata file {str(meta)!r}", RecordingError)
@@ -292,17 +293,17 @@ def read_metadata(meta: str | Path) -> Layout:
 
 
 def write_metadata(path: str | Path, layout: Layout) -> Path:
-    """Write the metadata file of our schema beside the raw file ``path``."""
+    """Write the metadata file of our schema beside the raw file ``path`` (atomically)."""
     layout.validate()
-    lines = ["# rigside recording description", "[recording]", "schema = 1",
-             f'dtype = "{layout.dtype}"', f"channels = {layout.channels}", f"rate_hz = {float(layout.rate_hz)!r}",
-             f"gain_uv = {float(layout.gain_uv)!r}", f"offset_uv = {float(layout.offset_uv)!r}",
-             f"offset_counts = {float(layout.offset_counts)!r}", f"header_bytes = {layout.header_bytes}"]
-    for i, g in enumerate(layout.groups or []):
-        name = (layout.group_names or [])[i] if layout.group_names and i < len(layout.group_names) else f"group {i}"
-        lines += ["", "[[group]]", f'name = "{name}"', f"channels = {list(map(int, g))}"]
+    rec = {"schema": 1, "dtype": layout.dtype, "channels": layout.channels, "rate_hz": float(layout.rate_hz),
+           "gain_uv": float(layout.gain_uv), "offset_uv": float(layout.offset_uv), "offset_counts": float(layout.offset_counts),
+           "header_bytes": layout.header_bytes}
+    names = layout.group_names or []
+    groups = [{"name": str(names[i]) if i < len(names) else f"group {i}", "channels": [int(c) for c in g]}
+              for i, g in enumerate(layout.groups or [])]
+    text = "# rigside recording description\n" + tomli_w.dumps({"recording": rec} | ({"group": groups} if groups else {}))
     meta = Path(path).with_name(Path(path).stem + META_SUFFIX)
-    return atomic_write(meta, lambda tmp: tmp.write_text("\n".join(lines) + "\n"))
+    return atomic_write(meta, lambda tmp: tmp.write_text(text, encoding="utf-8"))
 
 
 def open_recording(path: str | Path, *, channels: int | None = None, rate_hz: float | None = None,
