@@ -16,10 +16,10 @@ from pathlib import Path
 import h5py
 import numpy as np
 
-from .atomic import atomic_write
-from .errors import RigsideError
-from .h5image import write_h5
-from .params import POLARITIES
+from rigside.core.io.atomic import atomic_write
+from rigside.core.errors import RigsideError
+from rigside.core.io.h5image import write_h5
+from rigside.core.params import POLARITIES
 
 COLUMNS = {
     "sample": np.int64,

@@ -7,8 +7,8 @@ import h5py
 import numpy as np
 import pytest
 
-from app.cli import main
-from core.truth import load_truth
+from rigside.cli.main import main
+from rigside.core.synthetic.truth import load_truth
 
 
 @pytest.fixture(scope="module")

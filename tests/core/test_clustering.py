@@ -2,10 +2,10 @@ import numpy as np
 import pytest
 from sklearn.metrics import adjusted_rand_score
 
-from core.clustering import NO_UNIT, ClusterParams, cluster_features, first_pass_assignments, merge_components
-from core.errors import ParamError, RigsideError
-from core.first_pass import first_pass
-from core.progress import Cancelled
+from rigside.core.units.clustering import NO_UNIT, ClusterParams, cluster_features, first_pass_assignments, merge_components
+from rigside.core.errors import ParamError, RigsideError
+from rigside.core.units.first_pass import first_pass
+from rigside.core.progress import Cancelled
 
 from .sorting_data import make_events
 

@@ -6,8 +6,8 @@ import csv
 
 import numpy as np
 
-from core.batch import BatchOutcome, write_outcomes
-from core.unit_table_io import safe_text, write_described_csv
+from rigside.core.runs.batch import BatchOutcome, write_outcomes
+from rigside.core.quality.unit_table_io import safe_text, write_described_csv
 
 HOSTILE = ['=HYPERLINK("http://x","y")', "+1+2", "-2+3", "@SUM(A1)", "two\nlines\r\n0,0,0", "plain"]
 

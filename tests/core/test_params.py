@@ -2,8 +2,8 @@ import os
 
 import pytest
 
-from core.errors import ParamError
-from core.params import Params
+from rigside.core.errors import ParamError
+from rigside.core.params import Params
 
 
 def test_defaults_are_valid_and_as_documented():

@@ -4,8 +4,8 @@ import h5py
 import numpy as np
 import pytest
 
-from core.errors import RecordingError
-from core.recording import Layout, RawRecording, metadata_path, open_recording, read_metadata, write_metadata
+from rigside.core.errors import RecordingError
+from rigside.core.io.recording import Layout, RawRecording, metadata_path, open_recording, read_metadata, write_metadata
 
 from .helpers import write_raw
 

@@ -8,8 +8,8 @@ from pathlib import Path
 
 import numpy as np
 
-from core.audit_imported import WaveformSummary
-from core.report_figures import FRESH, IMPORTED, overlap_figure, amplitude_figure, isi_figure, waveform_figure
+from rigside.core.audit.imported import WaveformSummary
+from rigside.core.audit.report_figures import FRESH, IMPORTED, overlap_figure, amplitude_figure, isi_figure, waveform_figure
 
 ROOT = Path(__file__).resolve().parents[2]
 SVG = "{http://www.w3.org/2000/svg}"

@@ -4,7 +4,7 @@
 import h5py
 import numpy as np
 
-from core.spike_import import load_spikes
+from rigside.core.io.spike_import import load_spikes
 
 BIG = 2**63 - 1
 
