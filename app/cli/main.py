@@ -11,9 +11,9 @@ from rigside.core.errors import RigsideError
 from rigside.core.progress import Cancelled
 
 EXIT_OK, EXIT_FAILURE, EXIT_INPUT, EXIT_CANCELLED = 0, 1, 2, 130
-COMMAND_MODULES = ("cmd_detect", "cmd_batch", "cmd_sort", "cmd_metrics", "cmd_audit", "cmd_window")
-COMMAND_HOME = {"detect": "cmd_detect", "synth": "cmd_detect", "batch": "cmd_batch", "sort": "cmd_sort", "export": "cmd_sort",
-                "metrics": "cmd_metrics", "audit": "cmd_audit", "open": "cmd_window", "demo": "cmd_window"}
+COMMAND_MODULES = ("detect", "batch", "sort", "metrics", "audit", "window")
+COMMAND_HOME = {"detect": "detect", "synth": "detect", "batch": "batch", "sort": "sort", "export": "sort",
+                "metrics": "metrics", "audit": "audit", "open": "window", "demo": "window"}
 """Module registering each command: running one command imports only its module (start-up time)."""
 
 
@@ -26,7 +26,7 @@ def build_parser(command: str | None = None) -> argparse.ArgumentParser:
     import importlib
     modules = (COMMAND_HOME[command],) if command in COMMAND_HOME else COMMAND_MODULES
     for name in dict.fromkeys(modules):
-        importlib.import_module(f"app.{name}").register(sub)
+        importlib.import_module(f"rigside.cli.{name}").register(sub)
     return p
 
 

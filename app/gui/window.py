@@ -33,6 +33,7 @@ from rigside.gui.export_menu import install_export
 from rigside.gui.units_frame import install_units
 from rigside.gui.window_actions import build_actions
 from rigside.gui.workers import Runner
+from rigside.sample_data import demo_path
 
 VERSION = "0.1.0"
 LAYOUT_VERSION = 1
@@ -44,11 +45,6 @@ log = logging.getLogger("rigside")
 
 EXTENSIONS: tuple[Callable[["MainWindow"], object], ...] = (install_units, install_audit, install_export)
 """Installers run on every new window: each adds its panels, menus and actions."""
-
-
-def demo_path() -> Path:
-    """The bundled synthetic demo recording (with ground truth beside it)."""
-    return Path(__file__).resolve().parent.parent / "sample_data" / "demo.bin"
 
 
 def settings() -> QSettings:

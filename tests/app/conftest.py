@@ -12,7 +12,8 @@ from PySide6.QtCore import QSettings
 from PySide6.QtWidgets import QApplication, QWidget
 
 from rigside.gui import jobs
-from rigside.gui.window import MainWindow, demo_path
+from rigside.gui.window import MainWindow
+from rigside.sample_data import demo_path
 from rigside.gui.workers import running_jobs
 from rigside.core.params import Params
 from rigside.core.io.recording import open_recording

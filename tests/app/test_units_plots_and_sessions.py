@@ -9,7 +9,8 @@ import numpy as np
 from PySide6.QtCore import Qt
 
 from rigside.gui import palette, session_flow
-from rigside.gui.window import MainWindow, demo_path, settings
+from rigside.gui.window import MainWindow, settings
+from rigside.sample_data import demo_path
 from rigside.gui.screenshot import capture, colour_share, pixels
 from rigside.gui.sorting_controller import SELECTION_COLOURS
 from rigside.core.units.journal import replay_matches
