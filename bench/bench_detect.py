@@ -12,7 +12,6 @@ scipy.signal.sosfiltfilt, numpy median noise, numpy threshold crossings).
 from __future__ import annotations
 
 import argparse
-import resource
 import subprocess
 import sys
 import tempfile
@@ -25,9 +24,9 @@ from scipy import signal
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
+from rigside.core.io.recording import open_recording  # noqa: E402
 from rigside.core.params import Params  # noqa: E402
 from rigside.core.signal.pipeline import detect  # noqa: E402
-from rigside.core.io.recording import open_recording  # noqa: E402
 from rigside.core.synthetic.synth import write_synth  # noqa: E402
 
 

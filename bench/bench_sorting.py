@@ -30,7 +30,7 @@ ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
 from rigside.core.units.clustering import ClusterParams, cluster_features, first_pass_assignments  # noqa: E402
-from rigside.core.units.journal import UndoStack  # noqa: E402
+from rigside.core.units.history import UndoStack  # noqa: E402
 from rigside.core.units.operations import MergeUnits, ReclusterUnit, SplitByPolygon  # noqa: E402
 from rigside.core.units.sorting import AXIS_TIME, Sorting, SortingData, Unit  # noqa: E402
 
@@ -77,9 +77,9 @@ def bench_first_pass(data: SortingData, params: ClusterParams) -> float:
 
 
 def bench_detect(n_events: int, cluster_wall: float) -> None:
+    from rigside.core.io.recording import open_recording
     from rigside.core.params import Params
     from rigside.core.signal.pipeline import detect
-    from rigside.core.io.recording import open_recording
     from rigside.core.synthetic.synth import write_synth
 
     work = Path(tempfile.mkdtemp(prefix="rigside-bench-sort-"))

@@ -16,8 +16,8 @@ from pathlib import Path
 import h5py
 import numpy as np
 
-from rigside.core.io.atomic import atomic_write
 from rigside.core.errors import RigsideError
+from rigside.core.io.atomic import atomic_write
 from rigside.core.io.h5image import write_h5
 from rigside.core.params import POLARITIES
 

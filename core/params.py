@@ -13,8 +13,8 @@ from typing import Any
 
 import tomli_w
 
-from rigside.core.io.atomic import atomic_write
 from rigside.core.errors import ParamError
+from rigside.core.io.atomic import atomic_write
 from rigside.core.numbers import format_number
 from rigside.core.textparse import parse_toml
 

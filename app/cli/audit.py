@@ -4,15 +4,15 @@ from __future__ import annotations
 
 import argparse
 
+from rigside.cli.common import add_param_options, add_recording_options, open_from_args, params_from_args
+from rigside.cli.progressbar import TextProgress
+from rigside.core.audit.report import write_audit_report
 from rigside.core.audit.run import CAUTION, AuditSettings, FreshUnits, first_pass_units, run_audit
 from rigside.core.audit.table import write_audit_csv
 from rigside.core.errors import ParamError
-from rigside.core.audit.report import write_audit_report
+from rigside.core.io.atomic import check_output
+from rigside.core.io.spike_import_files import load_spikes
 from rigside.core.units.session import check_recording_content, load_session
-from rigside.core.io.spike_import import load_spikes
-
-from rigside.cli.common import add_param_options, add_recording_options, check_output, open_from_args, params_from_args
-from rigside.cli.progressbar import TextProgress
 
 PARAM_OPTIONS = ("params", "band", "filter_order", "common_reference", "threshold", "threshold_uv",
                  "polarity", "dead_time_ms")

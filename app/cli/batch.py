@@ -5,11 +5,10 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
-from rigside.core.runs.batch import ENGINES, run_batch
-from rigside.core.errors import ParamError
-
 from rigside.cli.common import add_param_options, add_recording_options, params_from_args, recording_options
 from rigside.cli.progressbar import TextProgress
+from rigside.core.errors import ParamError
+from rigside.core.runs.batch import ENGINES, run_batch
 
 
 def register(sub: argparse._SubParsersAction) -> None:

@@ -3,12 +3,9 @@
 from __future__ import annotations
 
 import argparse
-from pathlib import Path
 
-from rigside.core.io.atomic import check_not_input, protect_inputs
-from rigside.core.errors import ParamError
-from rigside.core.params import POLARITIES, Params
 from rigside.core.io.recording import DTYPES, Recording, open_recording, side_files
+from rigside.core.params import POLARITIES, Params
 
 
 def add_recording_options(p: argparse.ArgumentParser) -> None:
@@ -98,15 +95,3 @@ def command_inputs(args: argparse.Namespace) -> list[str]:
     return paths
 
 
-def check_output(out: str | Path, *protected: str | Path | None, suffixes: tuple[str, ...] = ()) -> Path:
-    """Refuse an output path that is an input file (``protected`` or the command's inputs),
-    a directory, or has the wrong suffix."""
-    out = Path(out)
-    if suffixes and out.suffix.lower() not in suffixes:
-        raise ParamError(f"output file must end in {' or '.join(suffixes)}, got {str(out)!r}")
-    if out.is_dir():
-        raise ParamError(f"output must be a file path, got the directory {str(out)!r}")
-    if not out.parent.exists():
-        raise ParamError(f"output folder must exist, got {str(out.parent)!r}")
-    with protect_inputs(protected):
-        return check_not_input(out)

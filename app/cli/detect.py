@@ -4,13 +4,13 @@ from __future__ import annotations
 
 import argparse
 
-from rigside.core.runs.detect import detect_to_files
+from rigside.cli.common import add_param_options, add_recording_options, open_from_args, params_from_args
+from rigside.cli.progressbar import TextProgress
 from rigside.core.errors import ParamError
+from rigside.core.io.atomic import check_output
+from rigside.core.runs.detect import detect_to_files
 from rigside.core.signal.noise import exclusion_notes
 from rigside.core.synthetic.synth import write_synth
-
-from rigside.cli.common import add_param_options, add_recording_options, check_output, open_from_args, params_from_args
-from rigside.cli.progressbar import TextProgress
 
 
 def register(sub: argparse._SubParsersAction) -> None:

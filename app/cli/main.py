@@ -6,8 +6,8 @@ import argparse
 import sys
 
 from rigside.core import __version__
-from rigside.core.io.atomic import protect_inputs
 from rigside.core.errors import RigsideError
+from rigside.core.io.atomic import protect_inputs
 from rigside.core.progress import Cancelled
 
 EXIT_OK, EXIT_FAILURE, EXIT_INPUT, EXIT_CANCELLED = 0, 1, 2, 130

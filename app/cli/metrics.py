@@ -7,14 +7,13 @@ import sys
 
 import numpy as np
 
+from rigside.cli.progressbar import TextProgress
+from rigside.core.io.atomic import check_output
 from rigside.core.params import censored_note, metric_settings
-from rigside.core.signal.pipeline import thresholds_sigma
-from rigside.core.units.session import load_session
 from rigside.core.quality.unit_table import CAUTION, sorting_unit_table
 from rigside.core.quality.unit_table_io import DEFAULT_LIMITS, flag_units, undefined_units, write_unit_table_csv
-
-from rigside.cli.common import check_output
-from rigside.cli.progressbar import TextProgress
+from rigside.core.signal.pipeline import thresholds_sigma
+from rigside.core.units.session import load_session
 
 
 def register(sub: argparse._SubParsersAction) -> None:

@@ -5,14 +5,14 @@ from __future__ import annotations
 import argparse
 from pathlib import Path
 
+from rigside.cli.common import add_param_options, add_recording_options, open_from_args, params_from_args
+from rigside.cli.progressbar import TextProgress
 from rigside.core.errors import ParamError
 from rigside.core.exports.units import export_units
+from rigside.core.io.atomic import check_output
+from rigside.core.runs.sort import check_new_session, run_sort
 from rigside.core.signal.noise import exclusion_notes
 from rigside.core.units.session import load_session
-from rigside.core.runs.sort import check_new_session, run_sort
-
-from rigside.cli.common import add_param_options, add_recording_options, check_output, open_from_args, params_from_args
-from rigside.cli.progressbar import TextProgress
 
 
 def register(sub: argparse._SubParsersAction) -> None:

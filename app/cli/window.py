@@ -6,9 +6,8 @@ import argparse
 import os
 import sys
 
-from rigside.core.errors import RigsideError
-
 from rigside.cli.common import add_recording_options, recording_options
+from rigside.core.errors import RigsideError
 
 
 def register(sub: argparse._SubParsersAction) -> None:

@@ -14,17 +14,16 @@ from pathlib import Path
 import numpy as np
 from PySide6.QtCore import QObject, Signal
 
+from rigside.core.audit.report import write_audit_report
 from rigside.core.audit.run import CAUTION, AuditResult, AuditSettings, FreshUnits, first_pass_units, run_audit
 from rigside.core.audit.table import write_audit_csv
 from rigside.core.audit.views import PairView, pair_view
 from rigside.core.errors import RigsideError
+from rigside.core.io.atomic import check_output
+from rigside.core.io.spike_import_files import load_spikes
 from rigside.core.params import Params
 from rigside.core.progress import report
-from rigside.core.audit.report import write_audit_report
 from rigside.core.units.session import snapshot
-from rigside.core.io.spike_import import load_spikes
-
-from rigside.cli.common import check_output
 
 AUDIT_SLOT, PAIR_SLOT, EXPORT_SLOT = "audit", "audit_pair", "audit_export"
 AUDIT_LABEL = "Auditing an earlier sorting"
@@ -97,7 +96,7 @@ class AuditController(QObject):
     """Holds the latest audit of the window and the pair being looked at.
 
     Signals: ``result_changed()`` (a new result, or none), ``pair_changed()`` (the chosen
-    unit's :class:`~core.audit_views.PairView` is ready, or gone), ``state_changed(str)``
+    unit's :class:`~rigside.core.audit.views.PairView` is ready, or gone), ``state_changed(str)``
     (a one-line description of what the audit is doing).
     """
 

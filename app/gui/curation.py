@@ -1,6 +1,6 @@
 """Curation in the window: Qt undo commands over the core operations, and a polygon tool.
 
-:class:`StepCommand` binds one :mod:`core.operations` step to Qt's undo stack through the
+:class:`StepCommand` binds one :mod:`rigside.core.units.operations` step to Qt's undo stack through the
 core stack's primitives (``apply`` on the first redo, ``reapply`` on later redos, ``revert``
 on undo), so the journal records every do, undo and redo. :class:`PolygonTool` lets the
 user outline a region on any pyqtgraph plot, one click per vertex; the finished outline is
@@ -14,8 +14,7 @@ import pyqtgraph as pg
 from PySide6.QtCore import QObject, Qt, Signal
 from PySide6.QtGui import QUndoCommand
 
-from rigside.core.units.journal import UndoStack
-
+from rigside.core.units.history import UndoStack
 from rigside.gui import palette
 
 CLOSE_PIXELS = 10

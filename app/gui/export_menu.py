@@ -13,12 +13,11 @@ from PySide6.QtWidgets import QFileDialog, QMenu
 
 from rigside.core.errors import RigsideError
 from rigside.core.exports.units import export_units
-from rigside.core.signal.pipeline import thresholds_sigma
-from rigside.core.units.session import snapshot
+from rigside.core.io.atomic import check_output
 from rigside.core.quality.unit_table import sorting_unit_table
 from rigside.core.quality.unit_table_io import write_unit_table_csv
-
-from rigside.cli.common import check_output
+from rigside.core.signal.pipeline import thresholds_sigma
+from rigside.core.units.session import snapshot
 from rigside.gui.save_folder import remember_folder, suggested_path
 from rigside.gui.window_actions import add_action
 

@@ -8,10 +8,10 @@ from __future__ import annotations
 from pathlib import Path
 
 from rigside.core.errors import RigsideError
+from rigside.core.progress import report
 from rigside.core.signal.features import compute_features
 from rigside.core.signal.noise import estimate_noise
 from rigside.core.signal.pipeline import detect
-from rigside.core.progress import report
 from rigside.core.synthetic.truth import load_truth
 
 NOISE_SHARE = 0.15
@@ -24,7 +24,7 @@ def analyse(recording, params, truth_path: Path | None = None, progress=None, ca
     """Noise, detection down to the look-up floor, and the ground truth if there is one.
 
     Returns ``(noise, events, truth)``; ``truth`` is None without a truth file, and the
-    :class:`core.errors.RigsideError` saying why when the file beside the recording is not a
+    :class:`rigside.core.errors.RigsideError` saying why when the file beside the recording is not a
     readable ground truth of ours (the recording is then used without it).
     """
     noise = estimate_noise(recording, params, cancel=cancel,

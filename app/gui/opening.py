@@ -9,7 +9,6 @@ import h5py
 
 from rigside.core.io.hdf5_datasets import recording_candidates
 from rigside.core.io.recording import RawRecording, metadata_path, open_recording, write_metadata
-
 from rigside.gui.dialogs.hdf5_dataset import DatasetDialog
 from rigside.gui.dialogs.raw_layout import RawLayoutDialog
 

@@ -8,22 +8,29 @@ from pathlib import Path
 
 from PySide6.QtCore import QStandardPaths
 
+import rigside
+import rigside.core
+from rigside.gui.settings_store import settings
+from rigside.sample_data import demo_path
+
 LAST_FOLDER_KEY = "files/last_save_folder"
 
 
-def program_folder() -> Path:
-    """The folder the program runs from (holding ``app``, ``core`` and ``sample_data``)."""
-    return Path(__file__).resolve().parent.parent
+def program_folders() -> list[Path]:
+    """The folders the program runs from: its package, its core and the bundled demo's folder
+    (side by side in a source tree, nested in an installed package)."""
+    return [Path(rigside.__file__).resolve().parent, Path(rigside.core.__file__).resolve().parent,
+            demo_path().resolve().parent]
 
 
 def _usable(folder: Path) -> bool:
-    inside = folder == program_folder() or program_folder() in folder.parents
+    folder = folder.resolve()
+    inside = any(folder == p or p in folder.parents for p in program_folders())
     return folder.is_dir() and os.access(folder, os.W_OK) and not inside
 
 
 def suggested_folder(near: str | Path | None = None) -> Path:
     """The folder a save dialog opens in: ``near``'s folder, the last one used, or documents."""
-    from rigside.gui.window import settings
     candidates = [Path(near).resolve().parent] if near is not None else []
     last = settings().value(LAST_FOLDER_KEY)
     if isinstance(last, str) and last:
@@ -42,7 +49,6 @@ def suggested_path(near: str | Path | None, name: str) -> Path:
 
 def remember_folder(folder: str | Path) -> None:
     """Keep the folder of a chosen save path for the next dialog."""
-    from rigside.gui.window import settings
     s = settings()
     s.setValue(LAST_FOLDER_KEY, str(Path(folder).resolve()))
     s.sync()

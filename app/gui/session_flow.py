@@ -1,7 +1,7 @@
 """Session files in the window: save, open, autosave, and the recovery offer.
 
 Saving writes a snapshot of the session on the job runner (so curation can go on); only one
-file job runs at a time. Autosave goes through :class:`core.session_recovery.Autosaver` a few
+file job runs at a time. Autosave goes through :class:`rigside.core.units.session_recovery.Autosaver` a few
 seconds after changes. A session that was never saved autosaves under the window's own
 folder, named after its recording, and is offered again when that recording is opened.
 Opening checks the recording before anything is computed: a moved file is asked for, a
@@ -18,12 +18,18 @@ from PySide6.QtWidgets import QApplication, QFileDialog, QMessageBox
 from shiboken6 import isValid
 
 from rigside.core.errors import RigsideError, SessionError
-from rigside.core.units.session import (RecordingChanged, RecordingMoved, autosave_path, check_recording_content, load_session,
-                          save_session, snapshot)
-from rigside.core.units.journal import rebuild_history
+from rigside.core.io.atomic import check_output
+from rigside.core.units.history import rebuild_history
+from rigside.core.units.session import (
+    RecordingChanged,
+    RecordingMoved,
+    autosave_path,
+    check_recording_content,
+    load_session,
+    save_session,
+    snapshot,
+)
 from rigside.core.units.session_recovery import Autosaver, find_states
-
-from rigside.cli.common import check_output
 from rigside.gui.save_folder import remember_folder, suggested_path
 
 AUTOSAVE_INTERVAL_S = 5.0

@@ -8,24 +8,29 @@ quality numbers of the touched units only are recomputed off the GUI thread. Fil
 
 from __future__ import annotations
 
-
 import numpy as np
 from PySide6.QtCore import QObject, Signal
 from PySide6.QtGui import QUndoStack
 
-from rigside.core.units.clustering import NO_UNIT
 from rigside.core.errors import RigsideError
-from rigside.core.signal.features import Features
-from rigside.core.units.first_pass import first_pass
-from rigside.core.units.journal import UndoStack
-from rigside.core.units.operations import (ClusterGroups, MergeUnits, MoveEvents, ReclusterUnit, Relabel, SetNote,
-                             SplitByPolygon)
 from rigside.core.params import Params, metric_settings
-from rigside.core.signal.pipeline import thresholds_sigma
-from rigside.core.units.session import RecordingRef, Session
 from rigside.core.quality.unit_table import unit_metrics_for_events
 from rigside.core.quality.unit_table_io import DEFAULT_LIMITS, flag_units
-
+from rigside.core.signal.features import Features
+from rigside.core.signal.pipeline import thresholds_sigma
+from rigside.core.units.first_pass import first_pass
+from rigside.core.units.history import UndoStack
+from rigside.core.units.operations import (
+    ClusterGroups,
+    MergeUnits,
+    MoveEvents,
+    ReclusterUnit,
+    Relabel,
+    SetNote,
+    SplitByPolygon,
+)
+from rigside.core.units.session import RecordingRef, Session
+from rigside.core.units.sorting import NO_UNIT
 from rigside.gui import palette
 from rigside.gui.curation import StepCommand
 
@@ -63,7 +68,7 @@ class SortingController(QObject):
 
     Qt signals: ``replacing()`` just before the held session is let go, ``sorting_replaced()``
     (a new sorting, or none), ``units_changed(change)``
-    after every step, undo or redo (a :class:`core.sorting.Change`), ``metrics_changed()``,
+    after every step, undo or redo (a :class:`rigside.core.units.sorting.Change`), ``metrics_changed()``,
     ``selection_changed()`` (units), ``events_selected()`` (events chosen by an outline).
     """
 
@@ -152,7 +157,7 @@ class SortingController(QObject):
     def attach(self, session: Session | None, history: list | None = None) -> None:
         """Hold ``session`` (or nothing) with fresh selection and quality numbers; the undo history
         is ``history`` (steps already in the sorting, oldest first, from
-        :func:`core.journal.rebuild_history`) or empty."""
+        :func:`rigside.core.units.history.rebuild_history`) or empty."""
         old = self.sorting
         if old is not None:
             self.replacing.emit()

@@ -12,9 +12,9 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from rigside.core.signal.filtering import BandPass
-from rigside.core.progress import CancelFn, ProgressFn, check, report
 from rigside.core.io.recording import Recording
+from rigside.core.progress import CancelFn, ProgressFn, check, report
+from rigside.core.signal.filtering import BandPass
 
 CHUNK_VALUES = 4_000_000  # samples x channels read at once
 

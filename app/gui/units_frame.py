@@ -21,6 +21,7 @@ from rigside.gui.panels.unit_plane import ClusterPlanePanel
 from rigside.gui.panels.unit_plots import UnitPlotsPanel
 from rigside.gui.panels.units import UnitListPanel
 from rigside.gui.session_flow import SessionFlow
+from rigside.gui.settings_store import settings
 from rigside.gui.sorting_controller import SortingController
 from rigside.gui.window_actions import add_action
 
@@ -38,7 +39,6 @@ def label_action_name(label: str) -> str:
 
 def install_units(window) -> SortingController:
     """Create the controller, the unit panels, menus and shortcuts on ``window``."""
-    from rigside.gui.window import settings
 
     ctl = SortingController(window)
     ctl.files = SessionFlow(ctl, Path(settings().fileName()).parent / "autosave")

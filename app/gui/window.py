@@ -10,14 +10,26 @@ from pathlib import Path
 from typing import Callable, Sequence
 
 import numpy as np
-from PySide6.QtCore import QByteArray, QEventLoop, QSettings, Qt, QTimer
-from PySide6.QtWidgets import (QApplication, QDockWidget, QFileDialog, QLabel, QMainWindow, QMessageBox,
-                               QPushButton, QStackedWidget, QVBoxLayout, QWidget)
+from PySide6.QtCore import QByteArray, QEventLoop, Qt, QTimer
+from PySide6.QtWidgets import (
+    QApplication,
+    QDockWidget,
+    QFileDialog,
+    QLabel,
+    QMainWindow,
+    QMessageBox,
+    QPushButton,
+    QStackedWidget,
+    QVBoxLayout,
+    QWidget,
+)
 
 from rigside.core.errors import RigsideError
-from rigside.core.signal.filtering import design_bandpass
 from rigside.core.params import Params
+from rigside.core.signal.filtering import design_bandpass
 from rigside.gui import jobs, palette
+from rigside.gui.audit_frame import install_audit
+from rigside.gui.export_menu import install_export
 from rigside.gui.model import Workbench
 from rigside.gui.opening import open_with_dialogs
 from rigside.gui.panels.base import Panel
@@ -27,15 +39,13 @@ from rigside.gui.panels.rate_strip import RateStripPanel
 from rigside.gui.panels.threshold import ThresholdPanel
 from rigside.gui.panels.traces import TracePanel
 from rigside.gui.panels.waveforms import WaveformPanel
+from rigside.gui.settings_store import settings
 from rigside.gui.task_status import TaskStatus
-from rigside.gui.audit_frame import install_audit
-from rigside.gui.export_menu import install_export
 from rigside.gui.units_frame import install_units
 from rigside.gui.window_actions import build_actions
 from rigside.gui.workers import Runner
 from rigside.sample_data import demo_path
 
-VERSION = "0.1.0"
 LAYOUT_VERSION = 1
 MAX_RECENT = 8
 MIN_TRACE_SHARE = 0.4
@@ -45,11 +55,6 @@ log = logging.getLogger("rigside")
 
 EXTENSIONS: tuple[Callable[["MainWindow"], object], ...] = (install_units, install_audit, install_export)
 """Installers run on every new window: each adds its panels, menus and actions."""
-
-
-def settings() -> QSettings:
-    """Where the window keeps recent files and its layout (tests point QSettings elsewhere)."""
-    return QSettings(QSettings.Format.IniFormat, QSettings.Scope.UserScope, "rigside", "workbench")
 
 
 class MainWindow(QMainWindow):

@@ -6,6 +6,7 @@ from typing import Callable
 
 from PySide6.QtGui import QAction, QKeySequence
 
+from rigside.core import __version__
 from rigside.gui.dialogs.about import show_about
 from rigside.gui.dialogs.shortcuts import ShortcutsDialog
 
@@ -116,5 +117,4 @@ def scroll(bench, fraction: float) -> None:
 
 
 def _version() -> str:
-    from rigside.gui.window import VERSION
-    return VERSION
+    return __version__

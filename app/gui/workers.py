@@ -19,7 +19,6 @@ from PySide6.QtCore import QObject, QThread, Signal
 from rigside.core.errors import RigsideError
 from rigside.core.progress import Cancelled
 
-
 _JOBS: "weakref.WeakSet[Job]" = weakref.WeakSet()
 
 

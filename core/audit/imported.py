@@ -11,12 +11,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from rigside.core.signal.filtering import BandPass
+from rigside.core.io.recording import Recording
+from rigside.core.io.spike_import import SpikeTrains
 from rigside.core.params import Params
 from rigside.core.progress import CancelFn, ProgressFn, check, report
-from rigside.core.io.recording import Recording
+from rigside.core.signal.filtering import BandPass
 from rigside.core.signal.snippets import extract_snippets, snippet_times_ms, snippet_window
-from rigside.core.io.spike_import import SpikeTrains
 
 BATCH_VALUES = 25_000_000
 """Most snippet values (float32) held at once while placing units (100 MB)."""

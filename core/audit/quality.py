@@ -6,7 +6,7 @@ count as events outside every unit. Amplitudes are the band-passed values on the
 at the imported times, gathered in one streaming pass over the recording.
 
 Isolation distance and L-ratio need features of one PCA space per group
-(:func:`core.features.compute_features`). When a group holds more than ``separation_events``
+(:func:`rigside.core.signal.features.compute_features`). When a group holds more than ``separation_events``
 events, they are computed on the events inside evenly spread time windows holding about that
 many; a uniform sample of events leaves both measures unchanged in expectation (the unit's
 share of the events and the distance quantile stay the same), and windows keep the raw-data
@@ -20,17 +20,17 @@ from concurrent.futures import Future, ThreadPoolExecutor
 
 import numpy as np
 
-from rigside.core.units.clustering import NO_UNIT
+from rigside.core.audit.imported import Placement, to_samples
 from rigside.core.events import EventTable
-from rigside.core.signal.features import compute_features
-from rigside.core.signal.filtering import BandPass
-from rigside.core.params import MetricParams, Params
-from rigside.core.signal.pipeline import chunk_bounds, thresholds_sigma
-from rigside.core.progress import CancelFn, Cancelled, ProgressFn, check, report
 from rigside.core.io.recording import Recording
 from rigside.core.io.spike_import import SpikeTrains
+from rigside.core.params import MetricParams, Params
+from rigside.core.progress import CancelFn, Cancelled, ProgressFn, check, report
 from rigside.core.quality.unit_table import unit_metrics_for_events, unit_metrics_table
-from rigside.core.audit.imported import Placement, to_samples
+from rigside.core.signal.features import compute_features
+from rigside.core.signal.filtering import BandPass
+from rigside.core.signal.pipeline import chunk_bounds, thresholds_sigma
+from rigside.core.units.sorting import NO_UNIT
 
 SEPARATION_EVENTS = 10_000
 """Most events per group used for isolation distance and L-ratio (see the module docstring)."""
@@ -110,7 +110,7 @@ def imported_quality(recording: Recording, params: Params, spikes: SpikeTrains,
     recording, params
         Raw data and pipeline parameters.
     spikes
-        Imported trains; ``placements`` from :func:`core.audit_imported.place_units`.
+        Imported trains; ``placements`` from :func:`rigside.core.audit.imported.place_units`.
     events
         Re-detected events (their amplitudes, noise sigma and table context are used).
     free
@@ -123,7 +123,7 @@ def imported_quality(recording: Recording, params: Params, spikes: SpikeTrains,
     Returns
     -------
     table, amplitude_uv
-        Columns of :data:`core.unit_table.COLUMNS`, one row per imported unit (ascending id),
+        Columns of :data:`rigside.core.quality.unit_table.COLUMNS`, one row per imported unit (ascending id),
         and the band-passed value on the unit's main channel at each imported spike (uV, in
         the order of ``spikes``).
     """

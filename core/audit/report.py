@@ -1,4 +1,4 @@
-"""Self-contained HTML report of an audit: one file, plots as inline SVG (:mod:`core.report_figures`).
+"""Self-contained HTML report of an audit: one file, plots as inline SVG (:mod:`rigside.core.audit.report_figures`).
 
 Sections: what was compared and the cautions; a summary table (one row per imported unit,
 linked to its section); the overlap (Jaccard) matrix; then per imported unit its row of numbers and
@@ -14,15 +14,22 @@ from pathlib import Path
 import numpy as np
 
 from rigside.core import __version__
-from rigside.core.io.atomic import atomic_write
-from rigside.core.audit.run import CAUTION, AuditResult
 from rigside.core.audit.imported import WaveformSummary
-from rigside.core.quality.correlograms import isi_histogram
-from rigside.core.units.journal import utc_now
+from rigside.core.audit.report_figures import (
+    FRESH,
+    IMPORTED,
+    amplitude_figure,
+    isi_figure,
+    overlap_figure,
+    waveform_figure,
+)
+from rigside.core.audit.run import CAUTION, AuditResult
+from rigside.core.io.atomic import atomic_write
 from rigside.core.numbers import format_number
 from rigside.core.params import censored_note, metric_settings
-from rigside.core.audit.report_figures import FRESH, IMPORTED, overlap_figure, amplitude_figure, isi_figure, waveform_figure
+from rigside.core.quality.correlograms import isi_histogram
 from rigside.core.quality.unit_table import CAUTION as QUALITY_CAUTION
+from rigside.core.units.journal import utc_now
 
 MAX_POINTS = 400          # amplitude points drawn per side (spread subsample)
 MAX_MATRIX_COLUMNS = 80

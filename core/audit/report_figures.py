@@ -25,7 +25,7 @@ _GROUP_ID = re.compile(r'<g id="[^"]*"')
 
 
 def _figure(width_in: float, height_in: float):
-    from matplotlib.figure import Figure   # lazy: about a second to import
+    from matplotlib.figure import Figure  # lazy: about a second to import
 
     return Figure(figsize=(width_in, height_in), layout="constrained")
 

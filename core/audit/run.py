@@ -1,8 +1,8 @@
 """Auditing an earlier sorting against a fresh look at the same raw data.
 
-For every imported unit: where it lives (:mod:`core.audit_imported`), the share of its spikes
+For every imported unit: where it lives (:mod:`rigside.core.audit.imported`), the share of its spikes
 that a re-detected event supports (same channel group, within the tolerance), its overlap
-(Jaccard) with every fresh unit (:func:`core.matching.shared_spike_matrix`, Jaccard 1912), its
+(Jaccard) with every fresh unit (:func:`rigside.core.quality.matching.shared_spike_matrix`, Jaccard 1912), its
 closest fresh unit (highest overlap) and two estimates against that unit:
 
 - false-positive estimate = 1 - shared / n_imported: spikes the matched fresh unit does not
@@ -20,25 +20,25 @@ from dataclasses import dataclass, replace
 
 import numpy as np
 
-from rigside.core.units.clustering import NO_UNIT, ClusterParams
-from rigside.core.errors import ParamError, RigsideError
-from rigside.core.events import EventTable
-from rigside.core.signal.features import Features
-from rigside.core.signal.filtering import BandPass
-from rigside.core.quality.matching import shared_spike_matrix, jaccard, match_times
-from rigside.core.quality.metric_inputs import positive
-from rigside.core.params import Params, metric_settings
-from rigside.core.signal.pipeline import thresholds_sigma
-from rigside.core.progress import CancelFn, ProgressFn, check, report
-from rigside.core.io.recording import Recording
-from rigside.core.units.sorting import Sorting
-from rigside.core.io.spike_import import SpikeTrains
 from rigside.core.audit.imported import Placement, WaveformSummary, place_units, summarise, unit_waveforms
 from rigside.core.audit.quality import SEPARATION_EVENTS, imported_quality, metric_thresholds
 from rigside.core.audit.table import audit_rows
-from rigside.core.signal.snippets import snippet_times_ms
-from rigside.core.runs.sort import sort_recording
+from rigside.core.errors import ParamError, RigsideError
+from rigside.core.events import EventTable
+from rigside.core.io.recording import Recording
+from rigside.core.io.spike_import import SpikeTrains
+from rigside.core.params import Params, metric_settings
+from rigside.core.progress import CancelFn, ProgressFn, check, report
+from rigside.core.quality.matching import jaccard, match_times, shared_spike_matrix
+from rigside.core.quality.metric_inputs import positive
 from rigside.core.quality.unit_table import unit_metrics_for_events
+from rigside.core.runs.sort import sort_recording
+from rigside.core.signal.features import Features
+from rigside.core.signal.filtering import BandPass
+from rigside.core.signal.pipeline import thresholds_sigma
+from rigside.core.signal.snippets import snippet_times_ms
+from rigside.core.units.clustering import ClusterParams
+from rigside.core.units.sorting import NO_UNIT, Sorting
 
 CAUTION = ("Both the false-positive and the miss estimates are measured against freshly sorted units, "
            "which make errors of their own; they estimate disagreement, not ground truth.")
@@ -61,7 +61,7 @@ class AuditSettings:
         A closest fresh unit overlapping less than this (Jaccard) is noted as weak.
     separation_events
         Most events per channel group for isolation distance and L-ratio; beyond it they come
-        from evenly spread time windows (see :mod:`core.audit_quality`).
+        from evenly spread time windows (see :mod:`rigside.core.audit.quality`).
 
     The quality metrics use the ``metrics`` section of the fresh units' parameters.
     """
@@ -113,7 +113,7 @@ def first_pass_units(recording: Recording, params: Params, cluster_params: Clust
     """Fresh units without a session: detect, compute features and cluster every group.
 
     The same events as ``rigside sort`` keeps (at the detection threshold, artefacts in no
-    unit); the sorting is the unreviewed first pass of :func:`core.first_pass.first_pass`.
+    unit); the sorting is the unreviewed first pass of :func:`rigside.core.units.first_pass.first_pass`.
     Nothing is written.
     """
     if cluster_params is not None:
@@ -136,7 +136,7 @@ class AuditResult:
         Shared spikes and overlap (Jaccard), imported x fresh.
     table
         One row per imported unit (ascending id): the audit columns and the quality numbers
-        (see :data:`core.audit_table.AUDIT_COLUMNS`).
+        (see :data:`rigside.core.audit.table.AUDIT_COLUMNS`).
     fresh_table
         Quality numbers of the fresh units that are some imported unit's closest fresh unit.
     placements

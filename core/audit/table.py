@@ -13,11 +13,11 @@ from pathlib import Path
 
 import numpy as np
 
-from rigside.core.units.clustering import NO_UNIT
 from rigside.core.params import censored_note, metric_settings
 from rigside.core.quality.unit_table import CAUTION as QUALITY_CAUTION
 from rigside.core.quality.unit_table import COLUMNS as QUALITY_COLUMNS
 from rigside.core.quality.unit_table_io import quality_flag_text, write_described_csv
+from rigside.core.units.sorting import NO_UNIT
 
 AUDIT_COLUMNS: dict[str, str] = {
     "unit": "imported unit id",
@@ -134,7 +134,7 @@ def _cell(column: str, value) -> str:
 
 
 def write_audit_csv(result, path: str | Path, caution: str) -> Path:
-    """Write the audit table of an :class:`core.audit.AuditResult` to CSV atomically.
+    """Write the audit table of an :class:`rigside.core.audit.run.AuditResult` to CSV atomically.
 
     Parameters
     ----------

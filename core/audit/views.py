@@ -12,12 +12,12 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from rigside.core.audit.run import AuditResult
 from rigside.core.audit.imported import to_samples, unit_waveforms
-from rigside.core.quality.correlograms import isi_histogram
-from rigside.core.signal.filtering import BandPass
-from rigside.core.quality.matching import match_times
+from rigside.core.audit.run import AuditResult
 from rigside.core.io.recording import Recording
+from rigside.core.quality.correlograms import isi_histogram
+from rigside.core.quality.matching import match_times
+from rigside.core.signal.filtering import BandPass
 from rigside.core.signal.snippets import snippet_times_ms
 
 
@@ -38,7 +38,7 @@ class UnitView:
         Group channels, snippet time axis and filtered snippets ``(n, samples, channels)`` of a
         spread-out subsample (empty when no recording was given).
     isi_counts, isi_edges_s
-        ISI histogram (see :func:`core.correlograms.isi_histogram`).
+        ISI histogram (see :func:`rigside.core.quality.correlograms.isi_histogram`).
     """
 
     unit: int

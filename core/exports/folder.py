@@ -15,8 +15,8 @@ import json
 import os
 from pathlib import Path
 
-from rigside.core.io.atomic import atomic_write, check_not_input, safe_unlink
 from rigside.core.errors import RigsideError
+from rigside.core.io.atomic import atomic_write, check_not_input, safe_unlink
 
 MANIFEST = "export.json"
 

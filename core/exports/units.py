@@ -1,7 +1,7 @@
 """Export of curated spike times: CSV, one NumPy file per unit, and a binned spike matrix.
 
 Files written into the output directory (each atomically; the folder as a whole follows
-:mod:`core.export_folder`: the manifest is written last, and files of an earlier export that
+:mod:`rigside.core.exports.folder`: the manifest is written last, and files of an earlier export that
 this one does not write are removed):
 
 - ``unit_times.csv``: columns ``unit,label,time_s``, rows by unit id then time; times are
@@ -26,13 +26,13 @@ import h5py
 import numpy as np
 
 from rigside.core import __version__
-from rigside.core.io.atomic import atomic_write
 from rigside.core.errors import RigsideError
 from rigside.core.events import EventTable
 from rigside.core.exports.folder import ExportFolder
+from rigside.core.io.atomic import atomic_write
 from rigside.core.io.h5image import h5_in_memory
-from rigside.core.units.journal import utc_now
 from rigside.core.progress import CancelFn, ProgressFn, check, report
+from rigside.core.units.journal import utc_now
 from rigside.core.units.sorting import LABELS, Sorting
 
 MAX_COUNT = np.iinfo(np.uint16).max

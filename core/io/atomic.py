@@ -21,7 +21,7 @@ import tempfile
 from pathlib import Path
 from typing import Callable, Iterable, Iterator
 
-from rigside.core.errors import RigsideError
+from rigside.core.errors import ParamError, RigsideError
 
 _INPUTS: contextvars.ContextVar[tuple[tuple[str, tuple[int, int] | None, str], ...]] = \
     contextvars.ContextVar("rigside_inputs", default=())
@@ -187,3 +187,17 @@ def free_backup_path(path: str | Path) -> Path:
         n += 1
         candidate = Path(f"{base}.{n}")
     return candidate
+
+
+def check_output(out: str | Path, *protected: str | Path | None, suffixes: tuple[str, ...] = ()) -> Path:
+    """Refuse an output path that is an input file (``protected`` or the command's inputs),
+    a directory, or has the wrong suffix."""
+    out = Path(out)
+    if suffixes and out.suffix.lower() not in suffixes:
+        raise ParamError(f"output file must end in {' or '.join(suffixes)}, got {str(out)!r}")
+    if out.is_dir():
+        raise ParamError(f"output must be a file path, got the directory {str(out)!r}")
+    if not out.parent.exists():
+        raise ParamError(f"output folder must exist, got {str(out.parent)!r}")
+    with protect_inputs(protected):
+        return check_not_input(out)

@@ -1,6 +1,6 @@
 """A hash of a recording's whole content, computed while another pass streams the file.
 
-The quick fingerprint (:meth:`core.recording.Recording.fingerprint`: size and three sampled
+The quick fingerprint (:meth:`rigside.core.io.recording.Recording.fingerprint`: size and three sampled
 blocks) answers at once whether a file is plausibly the same; the content hash (SHA-256 of
 every byte) settles it. Detection feeds a :class:`ContentHasher` as it goes, so the full hash
 costs no extra pass; :func:`content_hash` computes it on its own (before reusing a checkpoint

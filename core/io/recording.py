@@ -32,12 +32,12 @@ import h5py
 import numpy as np
 import tomli_w
 
-from rigside.core.io.atomic import atomic_write
 from rigside.core.errors import RecordingError
+from rigside.core.io.atomic import atomic_write
 from rigside.core.io.h5safe import stored_dataset
-from rigside.core.io.layout import DTYPES, Layout, is_integer, is_number, check_groups, groups_of_size  # noqa: F401 (re-exported)
-from rigside.core.textparse import parse_toml
 from rigside.core.io.hdf5_datasets import choose_dataset
+from rigside.core.io.layout import DTYPES, Layout, check_groups, groups_of_size, is_integer, is_number  # noqa: F401 (re-exported)
+from rigside.core.textparse import parse_toml
 
 META_SUFFIX = ".rigside.toml"
 TRUTH_SUFFIXES = (".truth.csv", ".truth_units.csv")
@@ -314,7 +314,7 @@ def open_recording(path: str | Path, *, channels: int | None = None, rate_hz: fl
 
     HDF5 files are recognised by their signature; anything else is raw binary described by
     its metadata file, with any keyword given here overriding the file. HDF5 samples kept in
-    other files are refused unless ``allow_external`` (:func:`core.h5safe.stored_dataset`).
+    other files are refused unless ``allow_external`` (:func:`rigside.core.io.h5safe.stored_dataset`).
     """
     p = Path(path)
     if not p.exists():

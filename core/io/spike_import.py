@@ -16,14 +16,13 @@ converted with a sampling rate). Accepted files (see docs/audit.md):
 
 Rules checked for every file: at least one spike, finite non-negative times sorted within
 each unit, integer unit ids, one unit of time; :meth:`SpikeTrains.check_within` adds the
-recording's length. Bad files raise :class:`~core.errors.SpikeFileError`.
+recording's length. Bad files raise :class:`~rigside.core.errors.SpikeFileError`.
 """
 
 from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from pathlib import Path
 
 import numpy as np
 
@@ -202,45 +201,3 @@ def pick_time_column(names, source: str) -> str:
         got = f"{', '.join(vague)} (no unit of time named)" if vague else ", ".join(names) or "none"
         raise SpikeFileError(f"{source} must hold a time column named time_s, time_ms or sample, got {got}")
     return found[0]
-
-
-def load_spikes(path: str | Path, rate_hz: float | None = None, group: str | None = None,
-                time_offset_s: float = 0.0) -> SpikeTrains:
-    """Import spike trains from a file, choosing the reader by suffix.
-
-    Parameters
-    ----------
-    path
-        ``.csv``/``.txt``, ``.npy``, ``.npz``, ``.h5``/``.hdf5`` or ``.nwb`` (see the module
-        docstring for the layouts).
-    rate_hz
-        Sampling rate of ``sample`` columns (a rate stored in the file wins if given there).
-    group
-        HDF5 group holding the columns (default: the root).
-    time_offset_s
-        Subtracted from every time, for files whose clock started before the recording.
-
-    Returns
-    -------
-    SpikeTrains
-        The checked spikes; call :meth:`SpikeTrains.check_within` with the recording length.
-    """
-    from rigside.core.io import spike_import_files as files
-
-    path = Path(path)
-    if not path.is_file():
-        raise SpikeFileError(f"spike file must be an existing file, got {str(path)!r}")
-    suffix = path.suffix.lower()
-    readers = {".csv": files.read_csv, ".txt": files.read_csv, ".npy": files.read_npy,
-               ".npz": files.read_npz, ".h5": files.read_h5, ".hdf5": files.read_h5,
-               ".nwb": files.read_nwb}
-    if suffix not in readers:
-        raise SpikeFileError(f"spike file must end in {', '.join(readers)}, got {path.name!r}")
-    if group is not None and suffix not in (".h5", ".hdf5"):
-        raise SpikeFileError(f"an HDF5 group can only be chosen for .h5 or .hdf5 files, got {path.name!r}")
-    if not (isinstance(time_offset_s, (int, float)) and math.isfinite(time_offset_s)):
-        raise SpikeFileError(f"time offset must be a finite number of seconds, got {time_offset_s!r}")
-    kwargs = {"group": group} if suffix in (".h5", ".hdf5") else {}
-    times, units, *listed = readers[suffix](path, rate_hz, **kwargs)
-    return finish(np.asarray(times, dtype=np.float64) - float(time_offset_s), units, path.name,
-                  listed[0] if listed else None)

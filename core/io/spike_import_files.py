@@ -1,7 +1,7 @@
-"""Readers of the spike-file layouts described in :mod:`core.spike_import`.
+"""Readers of the spike-file layouts described in :mod:`rigside.core.io.spike_import`.
 
 Each reader returns ``(times_s, units)`` in file order, plus the listed unit ids for layouts
-that list units apart from their spikes (HDF5 ``unit_ids``, NWB); :func:`core.spike_import.finish`
+that list units apart from their spikes (HDF5 ``unit_ids``, NWB); :func:`rigside.core.io.spike_import.finish`
 checks them. Sizes declared by a file (NumPy headers, HDF5 shapes) are checked against the
 size of the file before anything is allocated, so a small hostile file cannot claim gigabytes.
 """
@@ -19,7 +19,7 @@ import h5py
 import numpy as np
 
 from rigside.core.errors import SpikeFileError
-from rigside.core.io.spike_import import TIME_COLUMNS, pick_time_column, to_seconds
+from rigside.core.io.spike_import import TIME_COLUMNS, SpikeTrains, finish, pick_time_column, to_seconds
 
 MAX_EXPANSION = 64
 """Declared array bytes may exceed the file size by at most this factor (plus 64 MiB)."""
@@ -273,3 +273,43 @@ def read_nwb(path: Path, rate_hz: float | None = None) -> tuple[np.ndarray, ...]
                              f"into {len(ids)} units, got inconsistent offsets")
     counts = np.diff(np.concatenate([[0], ends]))
     return times, np.repeat(ids, counts), ids
+
+
+def load_spikes(path: str | Path, rate_hz: float | None = None, group: str | None = None,
+                time_offset_s: float = 0.0) -> SpikeTrains:
+    """Import spike trains from a file, choosing the reader by suffix.
+
+    Parameters
+    ----------
+    path
+        ``.csv``/``.txt``, ``.npy``, ``.npz``, ``.h5``/``.hdf5`` or ``.nwb`` (see the module
+        docstring for the layouts).
+    rate_hz
+        Sampling rate of ``sample`` columns (a rate stored in the file wins if given there).
+    group
+        HDF5 group holding the columns (default: the root).
+    time_offset_s
+        Subtracted from every time, for files whose clock started before the recording.
+
+    Returns
+    -------
+    SpikeTrains
+        The checked spikes; call :meth:`SpikeTrains.check_within` with the recording length.
+    """
+    path = Path(path)
+    if not path.is_file():
+        raise SpikeFileError(f"spike file must be an existing file, got {str(path)!r}")
+    suffix = path.suffix.lower()
+    readers = {".csv": read_csv, ".txt": read_csv, ".npy": read_npy,
+               ".npz": read_npz, ".h5": read_h5, ".hdf5": read_h5,
+               ".nwb": read_nwb}
+    if suffix not in readers:
+        raise SpikeFileError(f"spike file must end in {', '.join(readers)}, got {path.name!r}")
+    if group is not None and suffix not in (".h5", ".hdf5"):
+        raise SpikeFileError(f"an HDF5 group can only be chosen for .h5 or .hdf5 files, got {path.name!r}")
+    if not (isinstance(time_offset_s, (int, float)) and math.isfinite(time_offset_s)):
+        raise SpikeFileError(f"time offset must be a finite number of seconds, got {time_offset_s!r}")
+    kwargs = {"group": group} if suffix in (".h5", ".hdf5") else {}
+    times, units, *listed = readers[suffix](path, rate_hz, **kwargs)
+    return finish(np.asarray(times, dtype=np.float64) - float(time_offset_s), units, path.name,
+                  listed[0] if listed else None)

@@ -1,7 +1,7 @@
 """Checks of the inputs shared by the quality metrics, and the value-with-reason result.
 
 Bad input (wrong shape, NaN, unsorted times, out-of-range parameters) raises a
-:class:`~core.errors.RigsideError` subclass with a "<what> must be <rule>, got <value>" message.
+:class:`~rigside.core.errors.RigsideError` subclass with a "<what> must be <rule>, got <value>" message.
 A metric that is undefined for valid input is not an error: it is NaN with a reason.
 """
 

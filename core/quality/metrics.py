@@ -4,7 +4,7 @@ spikes, presence, amplitude drift and spike-train statistics.
 Every metric here is an estimate under assumptions (Gaussian clusters, a refractory period,
 a stationary recording); each docstring names its own. Undefined results are NaN with a
 reason (:class:`MetricValue` or a result dataclass with a ``reason`` field), never an
-exception; bad input raises a :class:`~core.errors.RigsideError` subclass.
+exception; bad input raises a :class:`~rigside.core.errors.RigsideError` subclass.
 
 Times are in seconds, measured from the start of the recording; amplitudes in microvolts.
 """

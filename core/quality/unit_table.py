@@ -2,7 +2,7 @@
 
 The table is a dict of equal-length column arrays, rows sorted by unit id. Metrics that are
 undefined for a unit are NaN, with the reason in the matching ``*_reason`` column.
-:data:`COLUMNS` describes every column; :mod:`core.unit_table_io` writes the table to CSV and
+:data:`COLUMNS` describes every column; :mod:`rigside.core.quality.unit_table_io` writes the table to CSV and
 flags units against limits.
 """
 
@@ -14,14 +14,13 @@ from typing import TYPE_CHECKING
 import numba
 import numpy as np
 
-from rigside.core.units.clustering import NO_UNIT
 from rigside.core.errors import ParamError, RigsideError
 from rigside.core.params import MetricParams
-from rigside.core.quality.metric_inputs import positive, same_length, spike_times
-from rigside.core.quality.metrics import (amplitude_drift, cv_isi, isi_violations, missed_fraction, presence_ratio,
-                      snr)
 from rigside.core.progress import CancelFn, ProgressFn, check, report
+from rigside.core.quality.metric_inputs import positive, same_length, spike_times
+from rigside.core.quality.metrics import amplitude_drift, cv_isi, isi_violations, missed_fraction, presence_ratio, snr
 from rigside.core.quality.separation import separation_of_checked
+from rigside.core.units.sorting import NO_UNIT
 
 if TYPE_CHECKING:  # annotations only: importing features would load scikit-learn
     from rigside.core.events import EventTable
@@ -203,7 +202,7 @@ def unit_metrics_table(times_s: np.ndarray, units: np.ndarray, duration_s: float
         Event times (s), sorted, within [0, duration_s].
     units
         Unit id of each event (integers). Every id present gets a row except
-        :data:`~core.clustering.NO_UNIT` (in no unit), whose events still count as events
+        :data:`~rigside.core.units.sorting.NO_UNIT` (in no unit), whose events still count as events
         outside every unit of their group for isolation distance and L-ratio.
     duration_s
         Recording length (s).
@@ -226,7 +225,7 @@ def unit_metrics_table(times_s: np.ndarray, units: np.ndarray, duration_s: float
     params
         Metric settings (refractory and censored periods, presence bins, ...).
     progress, cancel
-        Progress callback and cancel check (see :mod:`core.progress`).
+        Progress callback and cancel check (see :mod:`rigside.core.progress`).
     only_units
         Compute only these unit ids (e.g. after one unit changed); None for all.
 
@@ -326,7 +325,7 @@ def unit_metrics_for_events(events: EventTable, units: np.ndarray, features: Fea
 
 def sorting_unit_table(events: EventTable, sorting, threshold_sigma, params: MetricParams | None = None,
                        progress: ProgressFn = None, cancel: CancelFn = None) -> dict[str, np.ndarray]:
-    """Quality numbers of every unit of a :class:`core.sorting.Sorting`, with its ``label`` column
+    """Quality numbers of every unit of a :class:`rigside.core.units.sorting.Sorting`, with its ``label`` column
     (what the metrics CSV holds); see :func:`unit_metrics_for_events`."""
     from rigside.core.signal.features import Features
     features = Features(sorting.data.features, list(sorting.data.feature_names))

@@ -17,8 +17,8 @@ from typing import Collection
 
 import numpy as np
 
-from rigside.core.io.atomic import atomic_write
 from rigside.core.errors import ParamError, RigsideError
+from rigside.core.io.atomic import atomic_write
 from rigside.core.params import censored_note
 from rigside.core.quality.unit_table import CAUTION, COLUMNS, INT_COLUMNS, MetricParams
 
@@ -67,7 +67,7 @@ def flag_units(table: dict[str, np.ndarray], limits=DEFAULT_LIMITS) -> dict[str,
     Parameters
     ----------
     table
-        A table from :func:`core.unit_table.unit_metrics_table`.
+        A table from :func:`rigside.core.quality.unit_table.unit_metrics_table`.
     limits
         :class:`Limit` objects.
 
@@ -140,8 +140,8 @@ def write_unit_table_csv(table: dict[str, np.ndarray], path: str | Path,
     Parameters
     ----------
     table
-        A table from :func:`core.unit_table.unit_metrics_table`; columns beyond
-        :data:`~core.unit_table.COLUMNS` (e.g. ``label``) are written after them as text.
+        A table from :func:`rigside.core.quality.unit_table.unit_metrics_table`; columns beyond
+        :data:`~rigside.core.quality.unit_table.COLUMNS` (e.g. ``label``) are written after them as text.
     path
         Target CSV file.
     params

@@ -13,13 +13,13 @@ import time
 from dataclasses import dataclass
 from pathlib import Path
 
-from rigside.core.io.atomic import atomic_write, check_not_input, protect_inputs, protected_inputs
-from rigside.core.quality.unit_table_io import safe_text
-from rigside.core.runs.detect import detect_to_files
 from rigside.core.errors import ParamError, RigsideError
+from rigside.core.io.atomic import atomic_write, check_not_input, protect_inputs, protected_inputs
+from rigside.core.io.recording import open_recording, side_files
 from rigside.core.params import Params
 from rigside.core.progress import CancelFn, ProgressFn, check, report
-from rigside.core.io.recording import open_recording, side_files
+from rigside.core.quality.unit_table_io import safe_text
+from rigside.core.runs.detect import detect_to_files
 
 ENGINES = ("local", "dask")
 
@@ -69,7 +69,7 @@ def run_one(path: str, out_dir: str, params: Params, layout: dict, fmt: str = "c
             stem: str | None = None, inputs: tuple[str, ...] = ()) -> BatchOutcome:
     """Detect on one recording and write its outputs (named ``stem``, default the file's stem);
     errors become a "failed" outcome. ``inputs`` are protected from every write
-    (see :func:`core.atomic.protect_inputs`)."""
+    (see :func:`rigside.core.io.atomic.protect_inputs`)."""
     start = time.perf_counter()
     stem = stem or Path(path).name.split(".")[0] or "recording"
     try:
@@ -115,7 +115,7 @@ def run_batch(paths: list[str], out_dir: str | Path, params: Params, layout: dic
     params
         Parameters for every recording.
     layout
-        Keyword options of :func:`core.recording.open_recording` (channels, rate_hz, ...).
+        Keyword options of :func:`rigside.core.io.recording.open_recording` (channels, rate_hz, ...).
     fmt
         "csv" or "h5" for the event files.
     engine

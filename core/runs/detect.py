@@ -9,13 +9,13 @@ from pathlib import Path
 import numpy as np
 
 from rigside.core import __version__
-from rigside.core.io.atomic import atomic_write
 from rigside.core.events import EventTable
-from rigside.core.signal.noise import NoiseEstimate, estimate_noise, exclusion_notes, groups_without_usable_channel
-from rigside.core.params import Params
-from rigside.core.signal.pipeline import NOISE_SHARE, detect, thresholds_sigma
-from rigside.core.progress import CancelFn, ProgressFn, report
+from rigside.core.io.atomic import atomic_write
 from rigside.core.io.recording import Recording
+from rigside.core.params import Params
+from rigside.core.progress import CancelFn, ProgressFn, report
+from rigside.core.signal.noise import NoiseEstimate, estimate_noise, exclusion_notes, groups_without_usable_channel
+from rigside.core.signal.pipeline import NOISE_SHARE, detect, thresholds_sigma
 
 
 @dataclass(frozen=True)

@@ -15,21 +15,21 @@ from pathlib import Path
 import h5py
 import numpy as np
 
-from rigside.core.io.atomic import atomic_copy_bytes, atomic_write, check_not_input, free_backup_path, safe_unlink
-from rigside.core.io.content import content_hash
 from rigside.core.errors import RigsideError, SessionError
 from rigside.core.events import EventTable
-from rigside.core.signal.features import Features, compute_features, feature_names
-from rigside.core.io.h5safe import read_verified
-from rigside.core.units.first_pass import first_pass
+from rigside.core.io.atomic import atomic_copy_bytes, atomic_write, check_not_input, free_backup_path, safe_unlink
+from rigside.core.io.content import content_hash
 from rigside.core.io.h5image import write_h5
-from rigside.core.params import Params
-from rigside.core.signal.pipeline import detect, thresholds_sigma
-from rigside.core.progress import CancelFn, ProgressFn, report
+from rigside.core.io.h5safe import read_verified
 from rigside.core.io.recording import Recording
+from rigside.core.params import Params
+from rigside.core.progress import CancelFn, ProgressFn, report
+from rigside.core.signal.features import Features, compute_features, feature_names
+from rigside.core.signal.pipeline import detect, thresholds_sigma
+from rigside.core.textparse import parse_json
+from rigside.core.units.first_pass import first_pass
 from rigside.core.units.session import RecordingRef, Session, save_session
 from rigside.core.units.sorting import Sorting
-from rigside.core.textparse import parse_json
 
 STAGE_SHARES = (0.45, 0.35, 0.2)  # detection, features, clustering: shares of the progress bar
 

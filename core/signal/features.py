@@ -1,7 +1,7 @@
 """Features of each event: PCA scores of its group's waveforms and shape measures.
 
 Snippets are first aligned to the sub-sample position of their peak (see
-:func:`core.snippets.align_subsample`). PCA (scikit-learn) is fitted per channel group on a
+:func:`rigside.core.signal.snippets.align_subsample`). PCA (scikit-learn) is fitted per channel group on a
 seeded random subset of the group's snippets (all usable channels of the group concatenated:
 channels flagged dead or saturated are left out), then applied to every event.
 Shape features, on the event's own channel: signed peak (uV), trough-to-peak width (ms:
@@ -17,10 +17,10 @@ import numpy as np
 from sklearn.decomposition import PCA
 
 from rigside.core.events import EventTable
-from rigside.core.signal.filtering import BandPass
+from rigside.core.io.recording import Recording
 from rigside.core.params import Params
 from rigside.core.progress import CancelFn, ProgressFn, check, report
-from rigside.core.io.recording import Recording
+from rigside.core.signal.filtering import BandPass
 from rigside.core.signal.snippets import align_subsample, extract_snippets, snippet_window
 
 BATCH = 50000

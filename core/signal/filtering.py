@@ -22,8 +22,8 @@ import numpy as np
 from scipy import signal
 
 from rigside.core.errors import RecordingError
-from rigside.core.params import FilterParams
 from rigside.core.io.recording import Recording
+from rigside.core.params import FilterParams
 
 
 def design_bandpass(params: FilterParams, rate_hz: float) -> np.ndarray:

@@ -10,10 +10,10 @@ from dataclasses import dataclass, field
 
 import numpy as np
 
-from rigside.core.signal.filtering import BandPass
+from rigside.core.io.recording import Recording
 from rigside.core.params import Params
 from rigside.core.progress import CancelFn, ProgressFn, check, report
-from rigside.core.io.recording import Recording
+from rigside.core.signal.filtering import BandPass
 
 NORMAL_MAD = 0.6744897501960817  # Phi^-1(0.75)
 EXCLUDED_FLAGS = ("dead", "saturated")
@@ -84,7 +84,7 @@ def estimate_noise(recording: Recording, params: Params, progress: ProgressFn = 
     params
         ``params.noise`` sets the windows, ``params.filter`` the band-pass.
     progress, cancel
-        Progress callback and cancel check (see :mod:`core.progress`).
+        Progress callback and cancel check (see :mod:`rigside.core.progress`).
     bandpass
         A band-pass already bound to ``recording`` (made if not given).
 

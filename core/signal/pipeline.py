@@ -2,19 +2,19 @@
 
 from __future__ import annotations
 
-from concurrent.futures import Future, ThreadPoolExecutor
 from collections import deque
+from concurrent.futures import Future, ThreadPoolExecutor
 
 import numpy as np
 
-from rigside.core.io.content import ContentHasher
-from rigside.core.signal.detection import BlockEvents, detect_block
 from rigside.core.events import EventTable
-from rigside.core.signal.filtering import BandPass
-from rigside.core.signal.noise import NoiseEstimate, estimate_noise
+from rigside.core.io.content import ContentHasher
+from rigside.core.io.recording import Recording
 from rigside.core.params import Params
 from rigside.core.progress import CancelFn, ProgressFn, check, report
-from rigside.core.io.recording import Recording
+from rigside.core.signal.detection import BlockEvents, detect_block
+from rigside.core.signal.filtering import BandPass
+from rigside.core.signal.noise import NoiseEstimate, estimate_noise
 
 NOISE_SHARE = 0.1  # fraction of the progress bar given to the noise estimate
 
@@ -64,7 +64,7 @@ def detect(recording: Recording, params: Params, progress: ProgressFn = None, ca
         Channels flagged dead or saturated (``NoiseEstimate.excluded``) hold no events.
         ``EventTable.mask`` with the detection threshold selects the detected events.
         The pass also hashes the whole file (``recording.content_hash``) and raises
-        :class:`core.errors.RecordingError` if the file changes size meanwhile.
+        :class:`rigside.core.errors.RecordingError` if the file changes size meanwhile.
     """
     params.validate(recording.rate_hz)
     params.check_memory(recording.rate_hz, recording.n_channels)

@@ -4,9 +4,9 @@ from __future__ import annotations
 
 import numpy as np
 
-from rigside.core.signal.filtering import BandPass
 from rigside.core.params import SnippetParams
 from rigside.core.progress import CancelFn, check
+from rigside.core.signal.filtering import BandPass
 
 MAX_SPAN = 1 << 18  # longest single filtered read when gathering snippets (samples)
 JOIN_GAP = 4096     # extra gap (samples) still read in one go: filtering it costs less than a new read
@@ -91,9 +91,9 @@ def event_snippets(recording, events, params, index: np.ndarray, bandpass: BandP
     recording
         The recording the events came from.
     events
-        The :class:`~core.events.EventTable`.
+        The :class:`~rigside.core.events.EventTable`.
     params
-        Full :class:`~core.params.Params` (filter and snippet sections are used).
+        Full :class:`~rigside.core.params.Params` (filter and snippet sections are used).
     index
         Indices of the events to cut (any order; the result follows it).
 

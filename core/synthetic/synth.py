@@ -17,10 +17,10 @@ from pathlib import Path
 import numpy as np
 from scipy import signal
 
-from rigside.core.io.atomic import atomic_write
-from rigside.core.progress import CancelFn, ProgressFn, check, report
 from rigside.core.errors import ParamError
+from rigside.core.io.atomic import atomic_write
 from rigside.core.io.recording import META_SUFFIX, TRUTH_SUFFIXES, Layout, groups_of_size, write_metadata
+from rigside.core.progress import CancelFn, ProgressFn, check, report
 
 GAIN_UV = 0.195  # microvolts per bit of the int16 file (a common amplifier step)
 RATES_HZ = (1.0, 2.0, 3.0, 5.0, 8.0, 10.0, 12.0, 15.0, 20.0, 25.0, 30.0, 40.0)

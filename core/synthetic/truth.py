@@ -12,7 +12,6 @@ from rigside.core.errors import RigsideError
 from rigside.core.events import EventTable
 from rigside.core.quality.matching import match_times
 
-
 TRUTH_HEADER = "unit,sample,time_s"
 """First line of the ground-truth spike file written by :mod:`rigside.core.synthetic.synth`."""
 

@@ -36,9 +36,7 @@ from threadpoolctl import threadpool_limits
 from rigside.core.errors import RigsideError
 from rigside.core.params import ClusterParams
 from rigside.core.progress import CancelFn, ProgressFn, check, report
-
-NO_UNIT = -1
-"""Unit id of events that belong to no unit (artefacts, or events moved out of every unit)."""
+from rigside.core.units.sorting import NO_UNIT
 
 MIN_EVENTS_PER_COMPONENT = 10
 """A fit never uses more components than one per this many fitted events."""

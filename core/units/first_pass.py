@@ -4,11 +4,11 @@ from __future__ import annotations
 
 import numpy as np
 
-from rigside.core.units.clustering import ClusterParams
 from rigside.core.events import EventTable
-from rigside.core.units.journal import UndoStack
-from rigside.core.units.operations import ClusterGroups
 from rigside.core.progress import CancelFn, ProgressFn
+from rigside.core.units.clustering import ClusterParams
+from rigside.core.units.history import UndoStack
+from rigside.core.units.operations import ClusterGroups
 from rigside.core.units.sorting import Sorting, SortingData
 
 

@@ -1,7 +1,7 @@
 """Base of the curation operations: exact deltas, journal records, compact event lists.
 
 The first ``do`` of an operation (or an explicit ``prepare``, which may run on a worker
-thread) computes a :class:`core.sorting.Delta` holding only the changed events and unit
+thread) computes a :class:`rigside.core.units.sorting.Delta` holding only the changed events and unit
 records; ``undo`` writes the old values back and a later ``do`` (redo) writes the new ones
 again, so both are bitwise exact and cost time in proportion to the events changed.
 """
@@ -14,7 +14,8 @@ from typing import Any, ClassVar
 
 import numpy as np
 
-from rigside.core.units.sorting import MAX_UNIT_ID, CurationError, Delta, Sorting, Unit
+from rigside.core.errors import CurationError
+from rigside.core.units.sorting import MAX_UNIT_ID, Delta, Sorting, Unit
 
 MAX_NOTE_CHARS = 20_000
 

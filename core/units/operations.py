@@ -1,8 +1,8 @@
-"""Curation operations on a :class:`core.sorting.Sorting`, each exactly undoable.
+"""Curation operations on a :class:`rigside.core.units.sorting.Sorting`, each exactly undoable.
 
 Every operation is an object with ``do(sorting)`` / ``undo(sorting)``, a ``text`` for menus
 (e.g. "Merge units 3, 5"), and ``to_record()`` / ``from_record()`` for the journal (see
-:mod:`core.operation_base` for the mechanism).
+:mod:`rigside.core.units.operation_base` for the mechanism).
 
 Rules kept by every operation: an event only joins units of its own channel group; a unit
 that keeps its id keeps its label and note; new units are "unreviewed"; new ids come from
@@ -15,14 +15,20 @@ from typing import Any
 
 import numpy as np
 
-from rigside.core.units.clustering import NO_UNIT, ClusterParams, cluster_features, first_pass_assignments
-from rigside.core.errors import ParamError
-from rigside.core.units.operation_base import (MAX_NOTE_CHARS, Operation, as_int, check_events, decode_indices, encode_indices,
-                             make_delta)
-from rigside.core.units.polygon import check_polygon, points_in_polygon
+from rigside.core.errors import CurationError, ParamError
 from rigside.core.progress import CancelFn, ProgressFn
-from rigside.core.units.sorting import LABELS, CurationError, Delta, Sorting, Unit
-
+from rigside.core.units.clustering import ClusterParams, cluster_features, first_pass_assignments
+from rigside.core.units.operation_base import (
+    MAX_NOTE_CHARS,
+    Operation,
+    as_int,
+    check_events,
+    decode_indices,
+    encode_indices,
+    make_delta,
+)
+from rigside.core.units.polygon import check_polygon, points_in_polygon
+from rigside.core.units.sorting import LABELS, NO_UNIT, Delta, Sorting, Unit
 
 
 def _cluster_params(data: Any) -> ClusterParams:

@@ -3,9 +3,9 @@
 Layout (format version 2)::
 
     /                 attrs format="rigside session", format_version, program_version,
-                      saved_utc, checksum (SHA-256 of everything else, see core.h5safe)
+                      saved_utc, checksum (SHA-256 of everything else, see rigside.core.io.h5safe)
     /recording        attrs path, size, fingerprint, description (JSON), content_hash
-                      ("sha256:<hex>" of the whole file, see core.content; may be absent or empty)
+                      ("sha256:<hex>" of the whole file, see rigside.core.io.content; may be absent or empty)
     /params           attrs json (Params.to_dict() as JSON)
     /events           the event table (EventTable.to_h5_group)
     /features/values  float32 events x features;   attrs names (JSON list)
@@ -16,10 +16,10 @@ Layout (format version 2)::
     /journal/lines    UTF-8 JSON lines (uint8 dataset)
 
 Format 1 stored labels as codes instead of ``/sorting/labels``; it is still read (see
-:mod:`core.session_labels`). No pickled or executable content is written or accepted. Saving is atomic: a uniquely named
+:mod:`rigside.core.units.session_labels`). No pickled or executable content is written or accepted. Saving is atomic: a uniquely named
 temporary file beside ``NAME`` is written (built in memory, then written at once), flushed,
 fsynced and renamed over ``NAME``; the previous ``NAME`` (if it verifies) becomes ``NAME.bak`` first, by a hard link where possible. ``NAME.autosave.h5`` is written
-the same way by :func:`save_autosave`; :mod:`core.session_recovery` finds the newest
+the same way by :func:`save_autosave`; :mod:`rigside.core.units.session_recovery` finds the newest
 consistent state among the main file, the autosave and the backup.
 """
 
@@ -34,19 +34,19 @@ import h5py
 import numpy as np
 
 from rigside.core import __version__
-from rigside.core.io.atomic import atomic_copy_bytes, atomic_write, safe_unlink
-from rigside.core.io.content import content_hash
 from rigside.core.errors import ParamError, RigsideError, SessionError
 from rigside.core.events import COLUMNS, EventTable
+from rigside.core.io.atomic import atomic_copy_bytes, atomic_write, safe_unlink
+from rigside.core.io.content import content_hash
 from rigside.core.io.h5image import h5_in_memory
 from rigside.core.io.h5safe import CHECKSUM_ATTR, array, attr, read_verified, text, write_text
-from rigside.core.units.journal import Journal, utc_now
+from rigside.core.io.recording import Recording
 from rigside.core.params import Params
 from rigside.core.progress import CancelFn, ProgressFn
-from rigside.core.io.recording import Recording
+from rigside.core.textparse import parse_json
+from rigside.core.units.journal import Journal, utc_now
 from rigside.core.units.session_labels import labels_to_text, read_labels, upgrade_format1_journal
 from rigside.core.units.sorting import Sorting, SortingData, Unit
-from rigside.core.textparse import parse_json
 
 FORMAT = "rigside session"
 FORMAT_VERSION = 2

@@ -11,10 +11,18 @@ import time
 from dataclasses import dataclass
 from pathlib import Path
 
-from rigside.core.io.atomic import fsync_dir, safe_unlink, stale_temporaries
 from rigside.core.errors import SessionError
-from rigside.core.units.session import (RecordingChanged, RecordingMoved, Session, autosave_path, backup_path, load_session,
-                      save_autosave, verify_session_file)
+from rigside.core.io.atomic import fsync_dir, safe_unlink, stale_temporaries
+from rigside.core.units.session import (
+    RecordingChanged,
+    RecordingMoved,
+    Session,
+    autosave_path,
+    backup_path,
+    load_session,
+    save_autosave,
+    verify_session_file,
+)
 
 
 class Autosaver:

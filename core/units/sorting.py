@@ -1,7 +1,7 @@
 """The sorting model: which unit every event belongs to, and what each unit is.
 
 The model changes only through :meth:`Sorting.apply` of a :class:`Delta` (built by the
-operations in :mod:`core.operations`), so every change can be undone exactly and is
+operations in :mod:`rigside.core.units.operations`), so every change can be undone exactly and is
 announced once, with the units it touched, on :attr:`Sorting.changed`.
 """
 
@@ -13,9 +13,12 @@ from typing import Callable, Sequence
 
 import numpy as np
 
-from rigside.core.units.clustering import NO_UNIT
-from rigside.core.errors import RigsideError
+from rigside.core.errors import CurationError, RigsideError
 from rigside.core.events import EventTable
+from rigside.core.units.journal import Journal
+
+NO_UNIT = -1
+"""Unit id of events that belong to no unit (artefacts, or events moved out of every unit)."""
 
 LABELS = ("unreviewed", "single unit", "multi-unit", "not neural")
 """Allowed unit labels, in menu order; every unit starts "unreviewed"."""
@@ -26,10 +29,6 @@ MAX_UNIT_ID = 2**31 - 2
 AXIS_TIME = "event:time_s"
 AXIS_AMPLITUDE = "event:amplitude_uv"
 FEATURE_AXIS_PREFIX = "feature:"
-
-
-class CurationError(RigsideError):
-    """A curation operation cannot be applied as asked."""
 
 
 class Signal:
@@ -179,14 +178,13 @@ class Sorting:
     changed
         :class:`Signal` emitting one :class:`Change` after every applied delta.
     journal
-        The :class:`core.journal.Journal` of operations applied to this sorting.
+        The :class:`rigside.core.units.journal.Journal` of operations applied to this sorting.
     revision
         Incremented by every applied delta (including undo).
     """
 
     def __init__(self, data: SortingData, assignments: np.ndarray | None = None,
                  units: dict[int, Unit] | None = None, next_id: int = 1, journal=None) -> None:
-        from rigside.core.units.journal import Journal
 
         self.data = data
         n = len(data)

@@ -11,12 +11,12 @@ import pytest
 from PySide6.QtCore import QSettings
 from PySide6.QtWidgets import QApplication, QWidget
 
+from rigside.core.io.recording import open_recording
+from rigside.core.params import Params
 from rigside.gui import jobs
 from rigside.gui.window import MainWindow
-from rigside.sample_data import demo_path
 from rigside.gui.workers import running_jobs
-from rigside.core.params import Params
-from rigside.core.io.recording import open_recording
+from rigside.sample_data import demo_path
 
 _CACHE: dict = {}
 

@@ -13,14 +13,13 @@ import pytest
 from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QDialog, QFileDialog, QTabBar
 
+from rigside.core.audit.views import PairView, UnitView, pair_view
 from rigside.gui.audit_controller import AUDIT_LABEL
 from rigside.gui.dialogs.audit_import import AuditImportDialog
-from rigside.gui.screenshot import capture, colour_share, pixels
 from rigside.gui.panels.audit_pair import FRESH, IMPORTED, TRACE_KEY, shown_channels
 from rigside.gui.panels.audit_view import TABLE_SPECS
+from rigside.gui.screenshot import capture, colour_share, pixels
 from rigside.sample_data import demo_path
-from rigside.core.audit.views import PairView, UnitView, pair_view
-
 from tests.app.units_helpers import cluster_demo
 
 

@@ -9,13 +9,12 @@ from PySide6.QtCore import Qt
 from PySide6.QtGui import QKeySequence
 from PySide6.QtWidgets import QMenu
 
+from rigside.core.quality.unit_table_io import DEFAULT_LIMITS, Limit
+from rigside.core.units.sorting import AXIS_AMPLITUDE, AXIS_TIME, LABELS, NO_UNIT
 from rigside.gui.dialogs.unit_dialogs import ClusterDialog, LimitsDialog, PartsDialog, spin_count
 from rigside.gui.panels.units import COLUMN_SPECS
 from rigside.gui.units_frame import LABEL_KEYS, label_action_name
 from rigside.gui.window_actions import show_shortcuts
-from rigside.core.units.clustering import NO_UNIT
-from rigside.core.units.sorting import AXIS_AMPLITUDE, AXIS_TIME, LABELS
-from rigside.core.quality.unit_table_io import DEFAULT_LIMITS, Limit
 from tests.app.units_helpers import biggest_unit, click_data, cluster_demo, rectangle
 
 

@@ -9,11 +9,11 @@ import pytest
 from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QDialog
 
+from rigside.gui import jobs, palette
 from rigside.gui.dialogs.about import about_text
 from rigside.gui.dialogs.raw_layout import RawLayoutDialog
 from rigside.gui.screenshot import capture, colour_share, distinct_colours, pixels
 from rigside.gui.window import MainWindow, run_window
-from rigside.gui import jobs, palette
 
 
 def write_noise(path, seconds: float, channels: int, rate: float = 30000.0, meta: bool = True) -> None:
@@ -166,8 +166,8 @@ def test_waveforms_and_features_follow_the_selection(demo_window):
 
 
 def test_dense_features_draw_as_a_density_image(demo_window):
-    from rigside.core.signal.features import Features
     from rigside.core.events import EventTable
+    from rigside.core.signal.features import Features
     win = demo_window
     b = win.bench
     rec = b.recording

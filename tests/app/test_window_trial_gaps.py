@@ -29,8 +29,8 @@ def test_a_foreign_or_broken_truth_file_is_ignored_with_a_warning(window, tmp_pa
 def test_layout_dialog_saves_the_layout_beside_the_data(window, tmp_path, monkeypatch):
     from PySide6.QtWidgets import QDialog
 
-    from rigside.gui.dialogs.raw_layout import RawLayoutDialog
     from rigside.core.io.recording import open_recording
+    from rigside.gui.dialogs.raw_layout import RawLayoutDialog
 
     raw = tmp_path / "lab.dat"
     x = np.random.default_rng(2).normal(0, 40, (15000, 4))
@@ -90,7 +90,7 @@ def test_hdf5_with_several_datasets_offers_the_choice(window, tmp_path, monkeypa
 def test_saving_the_demo_starts_in_documents_then_the_last_folder(demo_window, tmp_path, monkeypatch):
     from PySide6.QtCore import QStandardPaths
 
-    from rigside.gui.save_folder import program_folder
+    from rigside.gui.save_folder import program_folders
     from tests.app.units_helpers import cluster_demo
 
     docs = tmp_path / "Documents"
@@ -102,7 +102,7 @@ def test_saving_the_demo_starts_in_documents_then_the_last_folder(demo_window, t
     win.units.files.pick_file = lambda title, start, filt, save=False: starts.append(start) or ""
     assert not win.units.files.save()
     first = starts[-1]
-    assert program_folder() not in Path(first).parents
+    assert not any(p == Path(first) or p in Path(first).parents for p in program_folders())
     assert first == str(docs / "demo.session.h5")
     chosen = tmp_path / "mine" / "demo.h5"
     chosen.parent.mkdir()

@@ -1,5 +1,5 @@
 """`rigside audit`: report and table from a CSV of earlier spike times, with and without a
-session; bad inputs give exit code 2 and write nothing (invented data, core.synth)."""
+session; bad inputs give exit code 2 and write nothing (invented data, rigside.core.synthetic.synth)."""
 
 import csv
 

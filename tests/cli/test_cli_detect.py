@@ -7,7 +7,6 @@ import numpy as np
 import pytest
 
 from rigside.cli.main import build_parser, main
-
 from tests.core.helpers import gaussian
 
 

@@ -27,7 +27,7 @@ sys.exit(main(sys.argv[2:]))
 """
 CHANGING = """
 import os, sys
-import core.pipeline as pipeline
+import rigside.core.signal.pipeline as pipeline
 path, how = sys.argv[1], sys.argv[2]
 original, calls = pipeline.detect_block, []
 

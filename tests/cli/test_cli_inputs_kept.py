@@ -12,8 +12,8 @@ import pytest
 
 from rigside.cli.main import main
 from rigside.core.io.recording import metadata_path
-from rigside.core.units.session import load_session
 from rigside.core.synthetic.synth import write_synth
+from rigside.core.units.session import load_session
 
 
 @pytest.fixture(scope="module")

@@ -11,7 +11,6 @@ import pytest
 from rigside.cli.main import main
 from rigside.core.errors import RecordingError
 from rigside.core.io.recording import Layout, open_recording, read_metadata, write_metadata
-
 from tests.core.helpers import gaussian
 
 RATE, CH = 30000.0, 4

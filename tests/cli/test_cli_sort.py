@@ -6,8 +6,8 @@ import numpy as np
 import pytest
 
 from rigside.cli.main import main
-from rigside.core.units.session import load_session
 from rigside.core.runs.sort import checkpoint_path
+from rigside.core.units.session import load_session
 
 
 @pytest.fixture(scope="module")
@@ -43,7 +43,7 @@ def test_export_writes_times_per_unit_and_binned_matrix(sorted_demo):
 def test_metrics_table_has_one_row_per_unit(sorted_demo):
     out = sorted_demo / "m.csv"
     assert main(["metrics", str(sorted_demo / "s.h5"), "--out", str(out), "--quiet"]) == 0
-    lines = [l for l in open(out) if not l.startswith("#")]
+    lines = [line for line in open(out) if not line.startswith("#")]
     rows = list(csv.DictReader(lines))
     s = load_session(sorted_demo / "s.h5")
     assert len(rows) == len(s.sorting.units)

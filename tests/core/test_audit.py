@@ -1,21 +1,21 @@
 """Audit of an imported sorting against fresh units, checked on a synthetic recording whose
-ground truth is known (invented data, core.synth)."""
+ground truth is known (invented data, rigside.core.synthetic.synth)."""
 
 import re
 
 import numpy as np
 import pytest
 
+from rigside.core.audit.report import audit_report_html, write_audit_report
 from rigside.core.audit.run import CAUTION, AuditSettings, first_pass_units, run_audit
 from rigside.core.audit.table import ALL_COLUMNS, write_audit_csv
 from rigside.core.audit.views import pair_view
 from rigside.core.errors import ParamError, RigsideError, SpikeFileError
-from rigside.core.quality.matching import match_times
+from rigside.core.io.recording import open_recording
+from rigside.core.io.spike_import import finish
 from rigside.core.params import Params
 from rigside.core.progress import Cancelled
-from rigside.core.io.recording import open_recording
-from rigside.core.audit.report import audit_report_html, write_audit_report
-from rigside.core.io.spike_import import finish
+from rigside.core.quality.matching import match_times
 from rigside.core.synthetic.synth import write_synth
 from rigside.core.synthetic.truth import load_truth
 

@@ -1,11 +1,10 @@
 import numpy as np
 import pytest
-
 from scipy import signal
 
 from rigside.core.events import EventTable
-from rigside.core.signal.filtering import design_bandpass
 from rigside.core.params import Params
+from rigside.core.signal.filtering import design_bandpass
 from rigside.core.signal.pipeline import detect
 from rigside.core.signal.rice import sampled_crossing_rate
 

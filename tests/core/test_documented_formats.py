@@ -8,9 +8,8 @@ import h5py
 import numpy as np
 
 from rigside.core.events import EventTable
-from rigside.core.signal.noise import flag_bad
 from rigside.core.io.recording import open_recording
-
+from rigside.core.signal.noise import flag_bad
 from tests.core.helpers import gaussian
 
 

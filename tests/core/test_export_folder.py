@@ -5,9 +5,9 @@ import json
 
 import pytest
 
-from rigside.core.io.atomic import protect_inputs, stale_temporaries
 from rigside.core.errors import RigsideError
 from rigside.core.exports.units import export_sorting
+from rigside.core.io.atomic import protect_inputs, stale_temporaries
 from rigside.core.progress import Cancelled
 
 from .test_export import small_sorting

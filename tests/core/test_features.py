@@ -4,11 +4,17 @@ from scipy import signal
 from sklearn.decomposition import PCA
 
 from rigside.core.events import EventTable
+from rigside.core.params import Params
 from rigside.core.signal.features import compute_features, shape_features
 from rigside.core.signal.filtering import BandPass
-from rigside.core.params import Params
 from rigside.core.signal.pipeline import detect
-from rigside.core.signal.snippets import align_subsample, event_snippets, extract_snippets, snippet_times_ms, snippet_window
+from rigside.core.signal.snippets import (
+    align_subsample,
+    event_snippets,
+    extract_snippets,
+    snippet_times_ms,
+    snippet_window,
+)
 
 from .helpers import gaussian, write_raw
 

@@ -2,8 +2,8 @@ import numpy as np
 import pytest
 from scipy import signal
 
-from rigside.core.signal.filtering import BandPass, common_median_reference, design_bandpass, filtfilt
 from rigside.core.params import FilterParams
+from rigside.core.signal.filtering import BandPass, common_median_reference, design_bandpass, filtfilt
 
 from .helpers import gaussian, write_raw
 

@@ -3,9 +3,9 @@
 import numpy as np
 import pytest
 
+from rigside.core.io.recording import open_recording
 from rigside.core.params import Params
 from rigside.core.signal.pipeline import detect
-from rigside.core.io.recording import open_recording
 from rigside.core.synthetic.synth import make_scenario, write_synth
 from rigside.core.synthetic.truth import load_truth, score_curve
 

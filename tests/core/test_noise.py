@@ -2,8 +2,8 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from rigside.core.signal.noise import NORMAL_MAD, estimate_noise, robust_sigma
 from rigside.core.params import Params
+from rigside.core.signal.noise import NORMAL_MAD, estimate_noise, robust_sigma
 
 from .helpers import gaussian, write_raw
 

@@ -9,16 +9,28 @@ import numpy as np
 import pytest
 
 from rigside.core.errors import SessionError
-from rigside.core.io.h5safe import read_verified, write_text
-from rigside.core.units.journal import Journal, UndoStack, replay, replay_matches
-from rigside.core.units.operations import MergeUnits, MoveEvents, Relabel, SetNote
-from rigside.core.params import Params
-from rigside.core.units.session import (RecordingChanged, RecordingMoved, RecordingRef, Session, autosave_path, backup_path,
-                          file_fingerprint, load_session, save_autosave, save_session, snapshot,
-                          verify_session_file)
 from rigside.core.io.atomic import stale_temporaries
-from rigside.core.units.session_recovery import Autosaver, find_states, recover, remove_stale_temporaries
+from rigside.core.io.h5safe import read_verified, write_text
+from rigside.core.params import Params
 from rigside.core.units.first_pass import first_pass
+from rigside.core.units.history import UndoStack, replay, replay_matches
+from rigside.core.units.journal import Journal
+from rigside.core.units.operations import MergeUnits, MoveEvents, Relabel, SetNote
+from rigside.core.units.session import (
+    RecordingChanged,
+    RecordingMoved,
+    RecordingRef,
+    Session,
+    autosave_path,
+    backup_path,
+    file_fingerprint,
+    load_session,
+    save_autosave,
+    save_session,
+    snapshot,
+    verify_session_file,
+)
+from rigside.core.units.session_recovery import Autosaver, find_states, recover, remove_stale_temporaries
 from rigside.core.units.sorting import Sorting
 
 from .sorting_data import make_events
@@ -376,7 +388,7 @@ def test_a_snapshot_saves_the_state_it_was_taken_in(made, tmp_path):
 def test_replay_in_a_fresh_process_reproduces_the_saved_assignments(made, tmp_path):
     raw, s = made
     p = save_session(tmp_path / "a.h5", copy_session(s))
-    code = ("import sys; from rigside.core.units.session import load_session; from rigside.core.units.journal import replay_matches; "
+    code = ("import sys; from rigside.core.units.session import load_session; from rigside.core.units.history import replay_matches; "
             "s = load_session(sys.argv[1], check_recording=False); print(replay_matches(s.sorting))")
     root = Path(__file__).resolve().parents[2]
     out = subprocess.run([sys.executable, "-c", code, str(p)], cwd=root, capture_output=True, text=True,

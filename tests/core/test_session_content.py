@@ -6,8 +6,8 @@ import numpy as np
 import pytest
 
 from rigside.core.errors import SessionError
-from rigside.core.units.session import load_session, save_session
 from rigside.core.textparse import MAX_NESTING, nesting, parse_json
+from rigside.core.units.session import load_session, save_session
 
 from .test_session import copy_session, made, reseal  # noqa: F401  (module fixture and helpers)
 

@@ -7,7 +7,7 @@ import pytest
 
 from rigside.core.errors import SessionError
 from rigside.core.io.h5safe import read_verified
-from rigside.core.units.journal import replay_matches
+from rigside.core.units.history import replay_matches
 from rigside.core.units.session import load_session, save_session
 from rigside.core.units.session_labels import FORMAT1_LABELS, upgrade_format1_journal
 from rigside.core.units.sorting import LABELS

@@ -5,12 +5,18 @@ from __future__ import annotations
 from pathlib import Path
 
 import numpy as np
-
-from PySide6.QtWidgets import (QComboBox, QDialog, QDialogButtonBox, QDoubleSpinBox, QFormLayout, QLabel,
-                               QSpinBox, QVBoxLayout)
+from PySide6.QtWidgets import (
+    QComboBox,
+    QDialog,
+    QDialogButtonBox,
+    QDoubleSpinBox,
+    QFormLayout,
+    QLabel,
+    QSpinBox,
+    QVBoxLayout,
+)
 
 from rigside.core.io.recording import DTYPES, META_SUFFIX, Layout, groups_of_size
-
 
 UNSIGNED_CENTRE = {"uint16": 32768}
 """Stored value of 0 µV proposed for unsigned sample types."""

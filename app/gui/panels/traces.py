@@ -5,17 +5,16 @@ from __future__ import annotations
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import Qt, QTimer
-from PySide6.QtWidgets import (QCheckBox, QComboBox, QGraphicsRectItem, QHBoxLayout, QInputDialog, QLabel,
-                               QVBoxLayout)
+from PySide6.QtWidgets import QCheckBox, QComboBox, QGraphicsRectItem, QHBoxLayout, QInputDialog, QLabel, QVBoxLayout
 
 from rigside.core.signal.filtering import BandPass
 from rigside.gui import palette
 from rigside.gui.bindings import CheckBinding
 from rigside.gui.channel_text import channel_list, parse_channels
-from rigside.gui.trace_data import Block, load_block, step_for, visible_envelope
 from rigside.gui.panels.base import Panel
 from rigside.gui.panels.event_marks import EventMarks
 from rigside.gui.panels.spike_rows import SpikeRows
+from rigside.gui.trace_data import Block, load_block, step_for, visible_envelope
 
 SYNC_LIMIT = 3_000_000   # samples x channels loaded on the GUI thread; more goes to a job
 LANE_SIGMAS = 20.0        # lane height in noise sigmas of the filtered signal

@@ -12,9 +12,8 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6.QtWidgets import QComboBox, QHBoxLayout, QLabel, QMenu, QPushButton, QToolButton, QVBoxLayout
 
-from rigside.core.units.clustering import NO_UNIT
 from rigside.core.units.polygon import points_in_polygon
-from rigside.core.units.sorting import AXIS_AMPLITUDE, AXIS_TIME, FEATURE_AXIS_PREFIX
+from rigside.core.units.sorting import AXIS_AMPLITUDE, AXIS_TIME, FEATURE_AXIS_PREFIX, NO_UNIT
 from rigside.gui import palette
 from rigside.gui.curation import PolygonTool
 from rigside.gui.panels.base import Panel

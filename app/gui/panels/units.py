@@ -10,15 +10,21 @@ from __future__ import annotations
 import html
 import math
 
-from PySide6.QtCore import (QAbstractTableModel, QItemSelection, QItemSelectionModel, QModelIndex,
-                            QSortFilterProxyModel, Qt)
+from PySide6.QtCore import (
+    QAbstractTableModel,
+    QItemSelection,
+    QItemSelectionModel,
+    QModelIndex,
+    QSortFilterProxyModel,
+    Qt,
+)
 from PySide6.QtGui import QBrush, QColor, QFont
 from PySide6.QtWidgets import QAbstractItemView, QHeaderView, QLabel, QTableView, QVBoxLayout
 
-from rigside.core.units.sorting import LABELS
-from rigside.core.quality.unit_table import CAUTION, COLUMNS
 from rigside.core.numbers import format_number
+from rigside.core.quality.unit_table import CAUTION, COLUMNS
 from rigside.core.quality.unit_table_io import reason_column
+from rigside.core.units.sorting import LABELS
 from rigside.gui import palette
 from rigside.gui.panels.base import Panel
 
