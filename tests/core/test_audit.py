@@ -219,4 +219,4 @@ def test_unit_without_any_match(world):
     assert row["false_positive_estimate"] == 1.0 and np.isnan(row["miss_estimate"])
     assert row["miss_estimate_reason"] and "no fresh unit shares its spikes" in row["notes"]
     html = audit_report_html(res)
-    assert "no fresh unit shares" in html and "No fresh unit agrees at least 0.05" in html
+    assert "no fresh unit shares" in html and "No fresh unit overlaps (Jaccard) at least 0.05" in html
