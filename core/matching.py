@@ -50,14 +50,47 @@ def match_times(a: np.ndarray, b: np.ndarray, tolerance: float) -> tuple[np.ndar
     return _match_sorted(a, b, float(tolerance))
 
 
+@numba.njit(cache=True, nogil=True)
+def _shared_counts(ta, ua, tb, ub, n_a, n_b, tol):
+    """Counts of :func:`_match_sorted` for every unit pair, in one pass over time-sorted spikes.
+
+    For a pair (u, v) the earliest-first matching pairs spike ``a`` of u with the first spike of
+    v at or after ``a - tol`` that comes after the pair's last matched spike of v, if it lies
+    at or before ``a + tol``. ``last[u, v]`` holds that last matched index (into ``tb``);
+    ``seen[v] == i`` marks that ``a = ta[i]`` already found its partner in unit v.
+    """
+    out = np.zeros((n_a, n_b), dtype=np.int64)
+    last = np.full((n_a, n_b), -1, dtype=np.int64)
+    seen = np.full(n_b, -1, dtype=np.int64)
+    lo = 0
+    for i in range(len(ta)):
+        u = ua[i]
+        while lo < len(tb) and tb[lo] < ta[i] - tol:
+            lo += 1
+        k = lo
+        while k < len(tb) and tb[k] <= ta[i] + tol:
+            v = ub[k]
+            if seen[v] != i and k > last[u, v]:
+                out[u, v] += 1
+                last[u, v] = k
+                seen[v] = i
+            k += 1
+    return out
+
+
 def shared_spike_matrix(times_a: np.ndarray, units_a: np.ndarray, times_b: np.ndarray,
                         units_b: np.ndarray, tolerance: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Matched-spike counts for every pair of units from two sortings.
 
+    ``matches[i, j]`` equals ``len(match_times(train_a, train_b, tolerance)[0])`` for the
+    sorted trains of units ``ids_a[i]`` and ``ids_b[j]``; all pairs are counted in one merge
+    of the time-sorted spikes: O(n log n) for the sort plus O(n w), where ``w`` is the mean
+    number of B spikes within the tolerance of an A spike.
+
     Parameters
     ----------
     times_a, units_a, times_b, units_b
-        Spike times and unit ids of sortings A and B (times in one shared unit).
+        Spike times and unit ids of sortings A and B (times in one shared unit, any order).
     tolerance
         Matching tolerance in that unit.
 
@@ -67,16 +100,16 @@ def shared_spike_matrix(times_a: np.ndarray, units_a: np.ndarray, times_b: np.nd
         Unit ids of A and B and the matrix ``matches[i, j]`` of spikes of unit ``ids_a[i]``
         matched one-to-one to spikes of unit ``ids_b[j]``.
     """
-    times_a, units_a = np.asarray(times_a, float), np.asarray(units_a)
-    times_b, units_b = np.asarray(times_b, float), np.asarray(units_b)
-    ids_a, ids_b = np.unique(units_a), np.unique(units_b)
-    trains_a = [np.sort(times_a[units_a == u]) for u in ids_a]
-    trains_b = [np.sort(times_b[units_b == u]) for u in ids_b]
-    out = np.zeros((len(ids_a), len(ids_b)), dtype=np.int64)
-    for i, ta in enumerate(trains_a):
-        for j, tb in enumerate(trains_b):
-            if len(ta) and len(tb) and ta[0] <= tb[-1] + tolerance and tb[0] <= ta[-1] + tolerance:
-                out[i, j] = len(_match_sorted(ta, tb, float(tolerance))[0])
+    times_a, times_b = np.asarray(times_a, np.float64), np.asarray(times_b, np.float64)
+    ids_a, code_a = np.unique(np.asarray(units_a), return_inverse=True)
+    ids_b, code_b = np.unique(np.asarray(units_b), return_inverse=True)
+    if len(times_a) != len(code_a) or len(times_b) != len(code_b):
+        raise ValueError(f"spike times and unit ids must have equal lengths, got {len(times_a)} and "
+                         f"{len(code_a)}, {len(times_b)} and {len(code_b)}")
+    order_a = np.argsort(times_a, kind="stable")
+    order_b = np.argsort(times_b, kind="stable")
+    out = _shared_counts(times_a[order_a], code_a.ravel()[order_a].astype(np.int64), times_b[order_b],
+                         code_b.ravel()[order_b].astype(np.int64), len(ids_a), len(ids_b), float(tolerance))
     return ids_a, ids_b, out
 
 
