@@ -25,6 +25,7 @@ import numpy as np
 
 from . import __version__
 from .atomic import atomic_write
+from .csv_text import write_rows
 from .errors import RigsideError
 from .events import EventTable
 from .journal import utc_now
@@ -96,19 +97,21 @@ def export_sorting(events: EventTable, sorting: Sorting, out_dir: str | Path, bi
     units = {u: rec for u, rec in sorting.units.items() if labels is None or rec.label in labels}
     times = events.time_s
     written: dict[str, list[Path]] = {"csv": [], "npy": [], "binned": [], "manifest": []}
-    csv_parts = ["unit,label,time_s\n"]
     trains = {}
-    for i, (u, rec) in enumerate(units.items()):
+    for i, u in enumerate(units):
         check(cancel)
         report(progress, 0.5 * i / max(1, len(units)), f"spike times of unit {u}")
         t = times[sorting.events_of(u)]
         trains[u] = t
-        csv_parts.append("".join(f"{u},{rec.label},{x:.7f}\n" for x in t))
         written["npy"].append(_write_npy(out / f"unit_{u}.npy", t))
 
     def write_csv(tmp: Path) -> None:
-        with open(tmp, "w", newline="") as fh:
-            fh.writelines(csv_parts)
+        with open(tmp, "wb") as fh:
+            fh.write(b"unit,label,time_s\n")
+            for u, t in trains.items():
+                check(cancel)
+                write_rows(fh, [("int", np.full(len(t), u)), ("text", np.zeros(len(t), np.int64), [units[u].label]),
+                                ("fixed", t, 7)])
     written["csv"].append(atomic_write(out / "unit_times.csv", write_csv))
 
     def write_binned(tmp: Path) -> None:
