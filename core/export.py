@@ -59,6 +59,30 @@ def _write_npy(path: Path, values: np.ndarray) -> Path:
     return atomic_write(path, write)
 
 
+def write_unit_times(path: str | Path, trains: dict[int, np.ndarray], labels: dict[int, str],
+                     cancel: CancelFn = None) -> Path:
+    """Write ``unit_times.csv`` atomically: ``unit,label,time_s`` rows, times with 7 decimals,
+    formatted in blocks (:func:`core.csv_text.write_rows`).
+
+    Parameters
+    ----------
+    path
+        Output file.
+    trains, labels
+        Spike times (s) and label name of each unit id, in the order to write.
+    cancel
+        Cancel check (once per unit).
+    """
+    def write(tmp: Path) -> None:
+        with open(tmp, "wb") as fh:
+            fh.write(b"unit,label,time_s\n")
+            for u, t in trains.items():
+                check(cancel)
+                write_rows(fh, [("int", np.full(len(t), u)), ("text", np.zeros(len(t), np.int64), [labels[u]]),
+                                ("fixed", t, 7)])
+    return atomic_write(path, write)
+
+
 def export_sorting(events: EventTable, sorting: Sorting, out_dir: str | Path, bin_ms: float = 1.0,
                    labels: Sequence[str] | None = None, source: str = "",
                    progress: ProgressFn = None, cancel: CancelFn = None) -> dict[str, list[Path]]:
@@ -105,14 +129,8 @@ def export_sorting(events: EventTable, sorting: Sorting, out_dir: str | Path, bi
         trains[u] = t
         written["npy"].append(_write_npy(out / f"unit_{u}.npy", t))
 
-    def write_csv(tmp: Path) -> None:
-        with open(tmp, "wb") as fh:
-            fh.write(b"unit,label,time_s\n")
-            for u, t in trains.items():
-                check(cancel)
-                write_rows(fh, [("int", np.full(len(t), u)), ("text", np.zeros(len(t), np.int64), [units[u].label]),
-                                ("fixed", t, 7)])
-    written["csv"].append(atomic_write(out / "unit_times.csv", write_csv))
+    written["csv"].append(write_unit_times(out / "unit_times.csv", trains,
+                                           {u: r.label for u, r in units.items()}, cancel))
 
     def write_binned(tmp: Path) -> None:
         with h5py.File(tmp, "w") as f:

@@ -55,9 +55,23 @@ def _first_bad_line(lines: list[str], cols: dict[str, int], line_offset: int) ->
 CSV_BLOCK_BYTES = 8 << 20
 """CSV files are decoded and parsed in blocks of about this many bytes (whole lines)."""
 
+_RARE_LINE_BREAKS = "\x0b\x0c\x1c\x1d\x1e\x85\u2028\u2029"
+"""Line breaks of ``str.splitlines`` besides \\n, \\r and \\r\\n."""
 
-def _line_blocks(path: Path):
-    """Yield ``(lines before the block, lines of the block)`` of a UTF-8 text file, reading
+
+def _plain_breaks(text: str) -> bool:
+    return not any(c in text for c in _RARE_LINE_BREAKS)
+
+
+def _line_count(text: str) -> int:
+    """``len(text.splitlines())`` without building the lines where the breaks are plain."""
+    if not _plain_breaks(text):
+        return len(text.splitlines())
+    return text.count("\n") + text.count("\r") - text.count("\r\n") + (text[-1:] not in ("", "\n", "\r"))
+
+
+def _text_blocks(path: Path):
+    """Yield ``(lines before the block, text of the block)`` of a UTF-8 text file, reading
     about :data:`CSV_BLOCK_BYTES` at a time; each block ends at a newline byte (or the end of
     the file), so its ``splitlines`` are the file's lines. A leading byte-order mark is dropped."""
     done = pos = 0
@@ -76,22 +90,41 @@ def _line_blocks(path: Path):
             except UnicodeDecodeError as exc:
                 raise SpikeFileError(f"{path.name} must be UTF-8 text, got undecodable bytes at byte "
                                      f"{pos + exc.start}") from None
-            lines = text.splitlines()
-            yield done, lines
-            done += len(lines)
+            yield done, text
+            done += _line_count(text)
             pos += len(block)
             if not raw:
                 return
 
 
-def _csv_header(blocks, name: str):
-    """Column names of the header row, and the data lines left in its block."""
-    for done, lines in blocks:
+def _csv_header(blocks, name: str) -> tuple[list[str], int, str]:
+    """Column names of the header row, the lines before the data, and the data left in its block."""
+    for done, text in blocks:
+        if _plain_breaks(text):
+            sio = io.StringIO(text, newline=None)
+            for k, line in enumerate(iter(sio.readline, "")):
+                if line.strip() and not line.lstrip().startswith("#"):
+                    return [c.lower() for c in _cells(line)], done + k + 1, sio.read()
+            continue
+        lines = text.splitlines()
         head = next((k for k, line in enumerate(lines) if line.strip() and not line.lstrip().startswith("#")), None)
         if head is not None:
-            return [c.lower() for c in _cells(lines[head])], done + head + 1, lines[head + 1:]
+            return [c.lower() for c in _cells(lines[head])], done + head + 1, "\n".join(lines[head + 1:])
     raise SpikeFileError(f"{name} must start with a header row naming its columns (unit and "
                          f"time_s, time_ms or sample), got an empty file")
+
+
+def _parse_block(text: str, order: list[int], dtype: list, cols: dict[str, int], done: int, name: str) -> np.ndarray:
+    """The chosen columns of one block (an empty array for a block without data rows)."""
+    lines = io.StringIO(text, newline=None) if _plain_breaks(text) else io.StringIO("\n".join(text.splitlines()))
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", UserWarning)     # a block of comments only is empty
+            return np.loadtxt(lines, delimiter=",", usecols=order, dtype=dtype, ndmin=1, comments="#",
+                              quotechar='"')
+    except ValueError as exc:
+        where = _first_bad_line(text.splitlines(), cols, done) or str(exc)
+        raise SpikeFileError(f"{name} must hold a unit and a time in every row, got {where}") from None
 
 
 def read_csv(path: Path, rate_hz: float | None) -> tuple[np.ndarray, np.ndarray]:
@@ -99,8 +132,8 @@ def read_csv(path: Path, rate_hz: float | None) -> tuple[np.ndarray, np.ndarray]
 
     Parsed block by block (:data:`CSV_BLOCK_BYTES`), keeping only the two columns as arrays.
     """
-    blocks = _line_blocks(path)
-    names, done, lines = _csv_header(blocks, path.name)
+    blocks = _text_blocks(path)
+    names, done, text = _csv_header(blocks, path.name)
     if "unit" not in names:
         raise SpikeFileError(f"{path.name} must have a header row with a unit column, got "
                              f"{', '.join(names)[:120]!r}")
@@ -112,19 +145,12 @@ def read_csv(path: Path, rate_hz: float | None) -> tuple[np.ndarray, np.ndarray]
         dtype = dtype[::-1]
     units, times = [], []
     while True:
-        try:
-            with warnings.catch_warnings():
-                warnings.simplefilter("ignore", UserWarning)     # a block of comments only is empty
-                data = np.loadtxt(io.StringIO("\n".join(lines)), delimiter=",", usecols=order, dtype=dtype,
-                                  ndmin=1, comments="#", quotechar='"')
-        except ValueError as exc:
-            where = _first_bad_line(lines, cols, done) or str(exc)
-            raise SpikeFileError(f"{path.name} must hold a unit and a time in every row, got {where}") from None
+        data = _parse_block(text, order, dtype, cols, done, path.name)
         units.append(data["unit"])
         times.append(data["time"])
-        del data
+        del data, text
         try:
-            done, lines = next(blocks)
+            done, text = next(blocks)
         except StopIteration:
             break
     if sum(len(u) for u in units) == 0:

@@ -47,3 +47,17 @@ def test_blocks_keep_line_numbers_and_refusals(tmp_path, monkeypatch, block):
     (tmp_path / "d.csv").write_bytes(b"unit,time_s\n" + rows.encode() + b"1,\xff\n")
     with pytest.raises(SpikeFileError, match=f"UTF-8 text, got undecodable bytes at byte {12 + len(rows) + 2}"):
         load_spikes(tmp_path / "d.csv")
+
+
+@pytest.mark.parametrize("block", BLOCKS)
+@pytest.mark.parametrize("brk", ["\r", "\x0c", "\u2028"])
+def test_every_line_break_of_python_text(tmp_path, monkeypatch, block, brk):
+    # str.splitlines breaks lines at these too; a bad row after them keeps its line number
+    monkeypatch.setattr(spike_import_files, "CSV_BLOCK_BYTES", block)
+    rows = brk.join(f"{k % 3},{k / 4}" for k in range(30))
+    (tmp_path / "a.csv").write_bytes(("unit,time_s\n" + rows + "\n").encode())
+    s = load_spikes(tmp_path / "a.csv")
+    assert len(s) == 30 and sorted(s.times_s.tolist()) == [k / 4 for k in range(30)]
+    (tmp_path / "b.csv").write_bytes(("unit,time_s\n" + rows + brk + "1,x\n2,0.5\n").encode())
+    with pytest.raises(SpikeFileError, match="line 32 column time_s must be a number"):
+        load_spikes(tmp_path / "b.csv")
