@@ -3,7 +3,8 @@ CSV writing of events and of unit_times.csv, and importing a large CSV of spike 
 
 Invented data. Matching: a fresh sorting of ``--units`` units and ``--spikes`` spikes over
 ``--seconds`` s, and an imported sorting made from it (10% of spikes dropped, 10% added at
-random, 0.1 ms jitter, units renumbered). Each new path runs beside a plain baseline measured
+random, 0.1 ms jitter, units renumbered), laid out as the audit passes them (imported spikes
+grouped by unit, fresh spikes in time order). Each new path runs beside a plain baseline measured
 in the same run on the same data, written the obvious way:
 
 - matching: a mask per unit and :func:`core.matching.match_times` for every unit pair;
@@ -58,7 +59,9 @@ def sortings(n_spikes: int, n_units: int, seconds: float, seed: int = 0):
     n_new = n_spikes - int(keep.sum())
     ta = np.concatenate([tb[keep] + rng.normal(0, 1e-4, keep.sum()), rng.uniform(0, seconds, n_new)])
     ua = np.concatenate([rng.permutation(n_units)[ub[keep]], rng.integers(0, n_units, n_new)]) + 1000
-    return np.clip(ta, 0, seconds), ua, tb, ub
+    ta = np.clip(ta, 0, seconds)
+    oa, ob = np.lexsort((ta, ua)), np.argsort(tb)      # the audit's layout: imported by unit, fresh by time
+    return ta[oa], ua[oa], tb[ob], ub[ob]
 
 
 def baseline_matrix(ta, ua, tb, ub, tol):

@@ -56,6 +56,22 @@ def test_matrix_equals_per_pair_reference(seed):
             assert m[i, j] == len(match_times(np.sort(ta[ua == u]), np.sort(tb[ub == v]), tol)[0])
 
 
+@pytest.mark.parametrize("seed", range(4))
+def test_inputs_already_in_order_and_sparse_ids(seed):
+    # both trains time-sorted: the merge skips its sorts; ids far apart (or not integers) take
+    # the general id look-up
+    rng = np.random.default_rng(100 + seed)
+    ta, ua = random_sorting(rng, 6, 2000, 5000, 1.0)
+    tb, ub = random_sorting(rng, 9, 2000, 5000, 1.0)
+    oa, ob = np.argsort(ta, kind="stable"), np.argsort(tb, kind="stable")
+    ta, ua, tb, ub = ta[oa], ua[oa], tb[ob], ub[ob]
+    ref = reference_matrix(ta, ua, tb, ub, 2.0)[2]
+    np.testing.assert_array_equal(shared_spike_matrix(ta, ua, tb, ub, 2.0)[2], ref)
+    ids_a, ids_b, m = shared_spike_matrix(ta, ua * 10**12, tb, ub.astype(float) / 7, 2.0)
+    np.testing.assert_array_equal(m, ref)
+    np.testing.assert_array_equal(ids_a, np.unique(ua) * 10**12)
+
+
 def test_seconds_with_ties_at_the_tolerance():
     rng = np.random.default_rng(7)
     tol = 0.0005
