@@ -30,6 +30,7 @@ from rigside.core.errors import RigsideError
 from rigside.core.events import EventTable
 from rigside.core.exports.folder import ExportFolder
 from rigside.core.io.atomic import atomic_write
+from rigside.core.io.csv_text import write_rows
 from rigside.core.io.h5image import h5_in_memory
 from rigside.core.progress import CancelFn, ProgressFn, check, report
 from rigside.core.units.journal import utc_now
@@ -97,6 +98,30 @@ def _write_npy(path: Path, values: np.ndarray) -> Path:
     return atomic_write(path, write)
 
 
+def write_unit_times(path: str | Path, trains: dict[int, np.ndarray], labels: dict[int, str],
+                     cancel: CancelFn = None) -> Path:
+    """Write ``unit_times.csv`` atomically: ``unit,label,time_s`` rows, times with 7 decimals,
+    formatted in blocks (:func:`rigside.core.io.csv_text.write_rows`).
+
+    Parameters
+    ----------
+    path
+        Output file.
+    trains, labels
+        Spike times (s) and label name of each unit id, in the order to write.
+    cancel
+        Cancel check (once per unit).
+    """
+    def write(tmp: Path) -> None:
+        with open(tmp, "wb") as fh:
+            fh.write(b"unit,label,time_s\n")
+            for u, t in trains.items():
+                check(cancel)
+                write_rows(fh, [("int", np.full(len(t), u)), ("text", np.zeros(len(t), np.int64), [labels[u]]),
+                                ("fixed", t, 7)])
+    return atomic_write(path, write)
+
+
 def export_sorting(events: EventTable, sorting: Sorting, out_dir: str | Path, bin_ms: float = 1.0,
                    labels: Sequence[str] | None = None, source: str = "",
                    progress: ProgressFn = None, cancel: CancelFn = None) -> dict[str, list[Path]]:
@@ -132,20 +157,16 @@ def export_sorting(events: EventTable, sorting: Sorting, out_dir: str | Path, bi
     folder = ExportFolder(out_dir, [f"unit_{u}.npy" for u in units] + [CSV_NAME, BINNED_NAME])
     times = events.time_s
     written: dict[str, list[Path]] = {"csv": [], "npy": [], "binned": [], "manifest": []}
-    csv_parts = ["unit,label,time_s\n"]
     trains = {}
-    for i, (u, rec) in enumerate(units.items()):
+    for i, u in enumerate(units):
         check(cancel)
         report(progress, 0.5 * i / max(1, len(units)), f"spike times of unit {u}")
         t = times[sorting.events_of(u)]
         trains[u] = t
-        csv_parts.append("".join(f"{u},{rec.label},{x:.7f}\n" for x in t))
         written["npy"].append(_write_npy(folder.path(f"unit_{u}.npy"), t))
 
-    def write_csv(tmp: Path) -> None:
-        with open(tmp, "w", newline="") as fh:
-            fh.writelines(csv_parts)
-    written["csv"].append(atomic_write(folder.path(CSV_NAME), write_csv))
+    written["csv"].append(write_unit_times(folder.path(CSV_NAME), trains,
+                                           {u: r.label for u, r in units.items()}, cancel))
 
     def write_binned(tmp: Path) -> None:
         with h5_in_memory(tmp) as f:

@@ -34,36 +34,107 @@ def _cells(line: str) -> list[str]:
     return [c.strip().strip('"').strip() for c in line.split(",")]
 
 
-def _first_bad_line(lines: list[str], first: int, cols: dict[str, int]) -> str | None:
-    """Describe the first data line whose chosen cells do not parse (1-based line number)."""
-    for k in range(first, len(lines)):
+def _first_bad_line(lines: list[str], cols: dict[str, int], line_offset: int) -> str | None:
+    """Describe the first data line whose chosen cells do not parse (1-based line number,
+    counting ``line_offset`` lines before ``lines``)."""
+    for k in range(len(lines)):
         line = lines[k].strip()
         if not line or line.startswith("#"):
             continue
         cells = _cells(line)
         for name, i in cols.items():
             if i >= len(cells):
-                return f"line {k + 1} has {len(cells)} cells, no {name} (truncated?)"
+                return f"line {line_offset + k + 1} has {len(cells)} cells, no {name} (truncated?)"
             try:
                 int(cells[i]) if name in ("unit", "sample") else float(cells[i])
             except ValueError:
                 kind = "an integer" if name in ("unit", "sample") else "a number"
-                return f"line {k + 1} column {name} must be {kind}, got {cells[i][:30]!r}"
+                return f"line {line_offset + k + 1} column {name} must be {kind}, got {cells[i][:30]!r}"
     return None
 
 
-def read_csv(path: Path, rate_hz: float | None) -> tuple[np.ndarray, np.ndarray]:
-    """CSV with a header row naming ``unit`` and one time column; ``#`` lines are comments."""
+CSV_BLOCK_BYTES = 8 << 20
+"""CSV files are decoded and parsed in blocks of about this many bytes (whole lines)."""
+
+_RARE_LINE_BREAKS = "\x0b\x0c\x1c\x1d\x1e\x85\u2028\u2029"
+"""Line breaks of ``str.splitlines`` besides \\n, \\r and \\r\\n."""
+
+
+def _plain_breaks(text: str) -> bool:
+    return not any(c in text for c in _RARE_LINE_BREAKS)
+
+
+def _line_count(text: str) -> int:
+    """``len(text.splitlines())`` without building the lines where the breaks are plain."""
+    if not _plain_breaks(text):
+        return len(text.splitlines())
+    return text.count("\n") + text.count("\r") - text.count("\r\n") + (text[-1:] not in ("", "\n", "\r"))
+
+
+def _text_blocks(path: Path):
+    """Yield ``(lines before the block, text of the block)`` of a UTF-8 text file, reading
+    about :data:`CSV_BLOCK_BYTES` at a time; each block ends at a newline byte (or the end of
+    the file), so its ``splitlines`` are the file's lines. A leading byte-order mark is dropped."""
+    done = pos = 0
+    pieces: list[bytes] = []
+    with open(path, "rb") as fh:
+        while True:
+            raw = fh.read(CSV_BLOCK_BYTES)
+            cut = raw.rfind(b"\n") + 1 if raw else 0
+            if raw and cut == 0:            # no line ends in this read: keep it for the next block
+                pieces.append(raw)
+                continue
+            block = b"".join(pieces + [raw[:cut] if raw else b""])
+            pieces = [raw[cut:]] if raw else []
+            try:
+                text = block.decode("utf-8-sig" if pos == 0 else "utf-8")
+            except UnicodeDecodeError as exc:
+                raise SpikeFileError(f"{path.name} must be UTF-8 text, got undecodable bytes at byte "
+                                     f"{pos + exc.start}") from None
+            yield done, text
+            done += _line_count(text)
+            pos += len(block)
+            if not raw:
+                return
+
+
+def _csv_header(blocks, name: str) -> tuple[list[str], int, str]:
+    """Column names of the header row, the lines before the data, and the data left in its block."""
+    for done, text in blocks:
+        if _plain_breaks(text):
+            sio = io.StringIO(text, newline=None)
+            for k, line in enumerate(iter(sio.readline, "")):
+                if line.strip() and not line.lstrip().startswith("#"):
+                    return [c.lower() for c in _cells(line)], done + k + 1, sio.read()
+            continue
+        lines = text.splitlines()
+        head = next((k for k, line in enumerate(lines) if line.strip() and not line.lstrip().startswith("#")), None)
+        if head is not None:
+            return [c.lower() for c in _cells(lines[head])], done + head + 1, "\n".join(lines[head + 1:])
+    raise SpikeFileError(f"{name} must start with a header row naming its columns (unit and "
+                         f"time_s, time_ms or sample), got an empty file")
+
+
+def _parse_block(text: str, order: list[int], dtype: list, cols: dict[str, int], done: int, name: str) -> np.ndarray:
+    """The chosen columns of one block (an empty array for a block without data rows)."""
+    lines = io.StringIO(text, newline=None) if _plain_breaks(text) else io.StringIO("\n".join(text.splitlines()))
     try:
-        text = path.read_text(encoding="utf-8-sig")       # a leading byte-order mark is dropped
-    except UnicodeDecodeError as exc:
-        raise SpikeFileError(f"{path.name} must be UTF-8 text, got undecodable bytes at byte {exc.start}") from None
-    lines = text.splitlines()
-    head = next((k for k, line in enumerate(lines) if line.strip() and not line.lstrip().startswith("#")), None)
-    if head is None:
-        raise SpikeFileError(f"{path.name} must start with a header row naming its columns (unit and "
-                             f"time_s, time_ms or sample), got an empty file")
-    names = [c.lower() for c in _cells(lines[head])]
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", UserWarning)     # a block of comments only is empty
+            return np.loadtxt(lines, delimiter=",", usecols=order, dtype=dtype, ndmin=1, comments="#",
+                              quotechar='"')
+    except ValueError as exc:
+        where = _first_bad_line(text.splitlines(), cols, done) or str(exc)
+        raise SpikeFileError(f"{name} must hold a unit and a time in every row, got {where}") from None
+
+
+def read_csv(path: Path, rate_hz: float | None) -> tuple[np.ndarray, np.ndarray]:
+    """CSV with a header row naming ``unit`` and one time column; ``#`` lines are comments.
+
+    Parsed block by block (:data:`CSV_BLOCK_BYTES`), keeping only the two columns as arrays.
+    """
+    blocks = _text_blocks(path)
+    names, done, text = _csv_header(blocks, path.name)
     if "unit" not in names:
         raise SpikeFileError(f"{path.name} must have a header row with a unit column, got "
                              f"{', '.join(names)[:120]!r}")
@@ -73,20 +144,23 @@ def read_csv(path: Path, rate_hz: float | None) -> tuple[np.ndarray, np.ndarray]
     order = sorted(cols.values())
     if order != list(cols.values()):
         dtype = dtype[::-1]
-    body = "\n".join(lines[head + 1:])
-    try:
-        with warnings.catch_warnings():
-            warnings.simplefilter("error")          # "empty input" becomes an error below
-            data = np.loadtxt(io.StringIO(body), delimiter=",", usecols=order, dtype=dtype, ndmin=1,
-                              comments="#", quotechar='"')
-    except UserWarning:
-        raise SpikeFileError(f"{path.name} must hold at least one spike, got a header only") from None
-    except ValueError as exc:
-        where = _first_bad_line(lines, head + 1, cols) or str(exc)
-        raise SpikeFileError(f"{path.name} must hold a unit and a time in every row, got {where}") from None
-    if len(data) == 0:
+    units, times = [], []
+    while True:
+        data = _parse_block(text, order, dtype, cols, done, path.name)
+        units.append(data["unit"])
+        times.append(data["time"])
+        del data, text
+        try:
+            done, text = next(blocks)
+        except StopIteration:
+            break
+    if sum(len(u) for u in units) == 0:
         raise SpikeFileError(f"{path.name} must hold at least one spike, got a header only")
-    return to_seconds(tcol, data["time"], rate_hz, path.name), data["unit"]
+    unit = np.concatenate(units)
+    del units
+    time = np.concatenate(times)
+    del times
+    return to_seconds(tcol, time, rate_hz, path.name), unit
 
 
 # ---- NumPy ----------------------------------------------------------------------------
