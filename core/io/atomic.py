@@ -92,12 +92,19 @@ def fsync_dir(directory: str | Path) -> None:
 
 
 def fsync_file(path: str | Path) -> None:
-    """Flush a closed file's data to disk."""
-    fd = os.open(path, os.O_RDONLY)
+    """Flush a closed file's data to disk (opened for writing where a read-only handle cannot be
+    flushed, as on Windows)."""
     try:
-        os.fsync(fd)
-    finally:
-        os.close(fd)
+        fd = os.open(path, os.O_RDONLY)
+        try:
+            os.fsync(fd)
+            return
+        finally:
+            os.close(fd)
+    except OSError:
+        pass
+    with open(path, "r+b") as fh:
+        os.fsync(fh.fileno())
 
 
 def temporary_beside(path: str | Path) -> Path:

@@ -10,10 +10,10 @@ or computing from a session's recording).
 from __future__ import annotations
 
 import hashlib
-import os
 from pathlib import Path
 
 from rigside.core.errors import RecordingError
+from rigside.core.io.positional import PositionalFile
 from rigside.core.progress import CancelFn, ProgressFn, check, report
 
 BLOCK = 4 << 20
@@ -25,13 +25,13 @@ class ContentHasher:
 
     def __init__(self, path: str | Path) -> None:
         self.path = Path(path)
-        self._fd = os.open(self.path, os.O_RDONLY)
-        self.size = os.fstat(self._fd).st_size
+        self._file = PositionalFile(self.path)
+        self.size = self._file.size()
         self._hash = hashlib.sha256()
         self._done = 0
 
     def _check_size(self) -> None:
-        now = os.fstat(self._fd).st_size
+        now = self._file.size()
         if now != self.size:
             raise RecordingError(f"recording {str(self.path)!r} must keep its size while it is read, "
                                  f"got {self.size} bytes at the start and {now} bytes now (file changed)")
@@ -41,7 +41,7 @@ class ContentHasher:
         target = min(self.size, int(self.size * min(max(fraction, 0.0), 1.0)))
         self._check_size()
         while self._done < target:
-            block = os.pread(self._fd, min(BLOCK, target - self._done), self._done)
+            block = self._file.read(min(BLOCK, target - self._done), self._done)
             if not block:
                 self._check_size()
                 raise RecordingError(f"recording {str(self.path)!r} must keep its size while it is read, "
@@ -53,7 +53,7 @@ class ContentHasher:
         """Hash the rest and return ``"sha256:<hex>"``; the file is closed."""
         try:
             self.advance(1.0)
-            if os.pread(self._fd, 1, self.size):
+            if self._file.read(1, self.size):
                 raise RecordingError(f"recording {str(self.path)!r} must keep its size while it is read, "
                                      f"got more than {self.size} bytes (file grew)")
             return PREFIX + self._hash.hexdigest()
@@ -68,9 +68,7 @@ class ContentHasher:
 
     def close(self) -> None:
         """Release the file (idempotent)."""
-        if self._fd >= 0:
-            os.close(self._fd)
-            self._fd = -1
+        self._file.close()
 
 
 def content_hash(path: str | Path, progress: ProgressFn = None, cancel: CancelFn = None) -> str:

@@ -25,7 +25,6 @@ Raw binary files are described by a metadata file of our own schema beside the d
 from __future__ import annotations
 
 import hashlib
-import os
 from pathlib import Path
 
 import h5py
@@ -37,6 +36,7 @@ from rigside.core.io.atomic import atomic_write
 from rigside.core.io.h5safe import stored_dataset
 from rigside.core.io.hdf5_datasets import choose_dataset
 from rigside.core.io.layout import DTYPES, Layout, check_groups, groups_of_size, is_integer, is_number  # noqa: F401 (re-exported)
+from rigside.core.io.positional import PositionalFile
 from rigside.core.textparse import parse_toml
 
 META_SUFFIX = ".rigside.toml"
@@ -155,7 +155,7 @@ class RawRecording(Recording):
         self.n_samples = body // frame
         self._dtype = np.dtype(layout.dtype).newbyteorder("<")
         self._frame = frame
-        self._fd = os.open(self.path, os.O_RDONLY)
+        self._file = PositionalFile(self.path)
         self._init_groups(layout.groups, layout.group_names)
 
     def read_stored(self, start, stop, channels=None):
@@ -164,7 +164,7 @@ class RawRecording(Recording):
         view = memoryview(block.reshape(-1).view(np.uint8))
         offset, done = self.layout.header_bytes + start * self._frame, 0
         while done < len(view):
-            got = os.preadv(self._fd, [view[done:]], offset + done)
+            got = self._file.readinto(view[done:], offset + done)
             if got == 0:
                 raise RecordingError(f"recording {str(self.path)!r} must keep its size while it is read, got an "
                                      f"early end at sample {start + done // self._frame} of {self.n_samples}")
@@ -172,9 +172,7 @@ class RawRecording(Recording):
         return block if channels is None else block[:, channels]
 
     def close(self) -> None:
-        if self._fd >= 0:
-            os.close(self._fd)
-            self._fd = -1
+        self._file.close()
 
 
 class HDF5Recording(Recording):
