@@ -8,7 +8,7 @@ from concurrent.futures import Future, ThreadPoolExecutor
 import numpy as np
 
 from rigside.core.events import EventTable
-from rigside.core.io.content import ContentHasher
+from rigside.core.io.content import BackgroundHasher
 from rigside.core.io.recording import Recording
 from rigside.core.params import Params
 from rigside.core.progress import CancelFn, ProgressFn, check, report
@@ -92,7 +92,7 @@ def detect(recording: Recording, params: Params, progress: ProgressFn = None, ca
                             dead, d.artefact_sigma, d.artefact_channel_fraction, art_w)
 
     parts: list[BlockEvents] = []
-    hasher = ContentHasher(recording.path)
+    hasher = BackgroundHasher(recording.path)
 
     def collect(future: Future) -> None:
         parts.append(future.result())
