@@ -16,9 +16,10 @@ from PySide6.QtWidgets import (QApplication, QDockWidget, QFileDialog, QLabel, Q
 
 from core.errors import RigsideError
 from core.filtering import design_bandpass
+from core.overview import load_overview
 from core.params import Params
 from core.recording import RawRecording, metadata_path, open_recording
-from . import jobs, palette
+from . import jobs, overview_flow, palette
 from .dialogs.raw_layout import RawLayoutDialog
 from .model import Workbench
 from .panels.base import Panel
@@ -75,6 +76,7 @@ class MainWindow(QMainWindow):
         self.last_error: tuple[str, str] | None = None
         self.messages: list[QMessageBox] = []
         self.analysis_outcome = "none"
+        self._overview_builder = None   # the overview the running detection pass builds, if any
 
         self.traces = TracePanel(self.bench, self.runner)
         self.panels["traces"] = self.traces
@@ -237,6 +239,7 @@ class MainWindow(QMainWindow):
                 return False
             params = Params()
             sos = design_bandpass(params.filter, rec.rate_hz)
+            overview = load_overview(rec, params.filter)
         except (RigsideError, OSError) as exc:
             self.show_error("Cannot open the recording", str(exc))
             return False
@@ -245,7 +248,7 @@ class MainWindow(QMainWindow):
         if old is not None:
             old.close()
         try:
-            self.bench.set_recording(rec, params, sos)
+            self.bench.set_recording(rec, params, sos, overview)
         except RigsideError as exc:  # e.g. samples that cannot be read where the view starts
             self.setWindowTitle(f"rigside — {Path(path).name} — cannot be shown")
             self.traces.clear_traces()
@@ -281,8 +284,9 @@ class MainWindow(QMainWindow):
         lowest = float(finite.min()) if len(finite) else params.detect.threshold_sigma
         params.detect.floor_sigma = min(jobs.LOOKUP_FLOOR_SIGMA, lowest)
         self.analysis_outcome = "running"
+        self._overview_builder = overview_flow.builder_for(b)
         self.runner.submit("analysis", ANALYSIS_LABEL, jobs.analyse, rec, params, rec.truth_path(),
-                           on_done=self._on_analysis)
+                           self._overview_builder, on_done=self._on_analysis)
 
     def _on_finished(self, label: str, outcome: str) -> None:
         if (label == ANALYSIS_LABEL and outcome != "done" and self.analysis_outcome == "running"
@@ -311,6 +315,7 @@ class MainWindow(QMainWindow):
         n_bad = len(noise.bad)
         self.statusBar().showMessage(f"{len(events):,} events stored down to {events.floor_sigma:.2f} σ"
                                      + (f"; {n_bad} channel(s) flagged bad" if n_bad else ""), 15000)
+        overview_flow.after_detection(self, self._overview_builder)
         self.runner.submit("features", "Computing features", jobs.features, b.recording, events,
                            b.analysis.params, on_done=b.set_features)
 
