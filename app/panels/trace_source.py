@@ -29,11 +29,13 @@ class TraceSource:
         self.bandpass: BandPass | None = None
         self.block: Block | None = None
         self._pending: tuple | None = None
+        self.unshowable = False      # set when the recording's samples cannot be read
 
     def reset(self, bandpass: BandPass | None = None) -> None:
-        """Forget the block (and use ``bandpass`` from now on, when given)."""
+        """Forget the block (and, for a new recording, use ``bandpass`` from now on)."""
         if bandpass is not None:
             self.bandpass = bandpass
+            self.unshowable = False
         self.block = None
 
     def overview(self):

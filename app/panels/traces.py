@@ -291,7 +291,7 @@ class TracePanel(Panel):
         """
         b = self.bench
         rec = b.recording
-        if rec is None or not len(self.offsets):
+        if rec is None or not len(self.offsets) or self.source.unshowable:
             return
         a, z = self.visible_samples()
         step = self._step(a, z)
@@ -330,8 +330,9 @@ class TracePanel(Panel):
             self.selected_curve.setData(t, shown[:, lane])
 
     def clear_traces(self) -> None:
-        """Draw no samples (the recording cannot be shown)."""
+        """Draw no samples (the recording cannot be shown) until another recording opens."""
         self.source.reset()
+        self.source.unshowable = True
         self.curve.setData([], [])
         self.selected_curve.setData([], [])
 
