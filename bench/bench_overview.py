@@ -86,9 +86,9 @@ def baseline_ms(win, bandpass: BandPass, t0: float, t1: float) -> float:
     y = bandpass.read(a, z)
     cols = max(1, min(z - a, view.width()))
     per = -(-(z - a) // cols)
-    pad = np.full((cols * per - (z - a), y.shape[1]), np.nan, dtype=np.float32)
+    pad = np.repeat(y[-1:], cols * per - (z - a), axis=0)     # repeating the last sample changes no min/max
     body = np.vstack([y, pad]).reshape(cols, per, y.shape[1])
-    lo, hi = np.nanmin(body, axis=1), np.nanmax(body, axis=1)
+    lo, hi = body.min(axis=1), body.max(axis=1)
     vals = np.empty((2 * cols, y.shape[1]), dtype=np.float32)
     vals[0::2], vals[1::2] = lo, hi
     x = np.repeat(a + np.arange(cols) * per, 2) / rec.rate_hz
@@ -147,8 +147,7 @@ def main() -> int:
     dur = rec.duration_s
     print(f"\ntrace view redraw, {rec.n_channels} channels shown, view {win.traces.plot.viewport().width()} px wide "
           f"(median / max of 5 positions)")
-    for span in SPANS_S:
-        span = dur if span is None or span > dur else span
+    for span in sorted({dur if s is None or s > dur else s for s in SPANS_S}, reverse=True):
         starts = [0.0] if span >= dur else list(np.linspace(0.0, dur - span, 5))
         ours, later = [], []
         for t0 in starts:

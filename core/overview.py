@@ -38,7 +38,7 @@ from .recording import Recording
 
 FORMAT = "rigside-overview"
 VERSION = 1
-MIN_BIN = 16
+MIN_BIN = 256             # shorter spans are drawn from samples; finer bins cost more to write than to read
 FINE_VALUES = 1 << 23      # bins x channels of the finest level, per array (32 MiB of float32)
 TOP_BINS = 256
 CHUNK_VALUES = 1 << 22     # samples x channels filtered at once by :func:`build_overview`

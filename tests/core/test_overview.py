@@ -1,9 +1,10 @@
 import numpy as np
 import pytest
 
+from core import overview
 from core.atomic import WriteError
 from core.filtering import BandPass
-from core.overview import (MIN_BIN, TOP_BINS, Overview, OverviewBuilder, build_overview, cache_path,
+from core.overview import (TOP_BINS, Overview, OverviewBuilder, build_overview, cache_path,
                            finest_bin, load_overview)
 from core.params import FilterParams, Params
 from core.pipeline import detect
@@ -25,6 +26,7 @@ def _data(seed: int) -> np.ndarray:
 @pytest.fixture
 def rec(tmp_path, monkeypatch):
     monkeypatch.setenv("RIGSIDE_CACHE_DIR", str(tmp_path / "cache"))
+    monkeypatch.setattr(overview, "MIN_BIN", 16)      # several levels in a short file
     return write_raw(tmp_path / "r.bin", _data(0), gain_uv=0.195)
 
 
@@ -49,7 +51,7 @@ def test_detection_pass_builds_min_max_equal_to_numpy_per_bin_at_every_level(rec
     with_overview = detect(rec, params, overview=builder)
     levels = builder.levels()
     sizes = [size for size, _, _ in levels]
-    assert sizes[0] == MIN_BIN and sizes == [MIN_BIN << k for k in range(len(sizes))]
+    assert sizes[0] == 16 and sizes == [16 << k for k in range(len(sizes))]
     assert len(levels[-1][1]) <= TOP_BINS < len(levels[-2][1])
     ref, sd = reference_levels(rec, params.filter, sizes)
     for (size, lo, hi), (ref_lo, ref_hi) in zip(levels, ref):
@@ -81,7 +83,7 @@ def test_saved_overview_reads_back_the_levels_and_standalone_build_agrees(rec):
 
 
 def test_finest_bin_grows_with_the_file_to_bound_the_overview():
-    assert finest_bin(120_000, 16) == MIN_BIN
+    assert finest_bin(120_000, 16) == overview.MIN_BIN == 256
     # an hour of 64 channels at 30 kHz: 108e6 / 1024 bins x 64 channels <= 2**23 values
     assert finest_bin(108_000_000, 64) == 1024
 
