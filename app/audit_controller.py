@@ -182,7 +182,8 @@ class AuditController(QObject):
         self.unit, self.pair = None, None
         n = len(result.imported_ids)
         self.state_changed.emit(f"{n} imported unit{'s' if n != 1 else ''} ({len(result.spikes):,} spikes) "
-                                f"audited against {len(result.fresh_ids)} units of the {result.fresh.source}.")
+                                f"audited against {len(result.fresh_ids)} units of the {result.fresh.source}."
+                                + (f" {result.spikes.empty_note()}." if result.spikes.empty_units else ""))
         self.result_changed.emit()
         self.pair_changed.emit()
 

@@ -18,6 +18,7 @@ from .audit_controller import SPIKE_FILES, AuditController, ImportChoices
 from .dialogs.audit_import import AuditImportDialog
 from .panels.audit_pair import TRACE_KEY, trace_rows
 from .panels.audit_view import AuditPanel
+from .save_folder import remember_folder, suggested_folder, suggested_path
 from .window_actions import add_action
 
 AUDIT_HEIGHT = 620
@@ -61,9 +62,11 @@ def install_audit(window) -> AuditController:
     def save(kind: str) -> None:
         title, filt, suffix = (("Save the audit report", "HTML report (*.html)", ".html") if kind == "report"
                                else ("Save the audit table", "CSV table (*.csv)", ".csv"))
-        base = ctl.spike_path.with_name(ctl.spike_path.stem + "_audit" + suffix) if ctl.spike_path else Path.home()
+        base = (suggested_path(ctl.spike_path, ctl.spike_path.stem + "_audit" + suffix) if ctl.spike_path
+                else suggested_folder())
         path, _ = QFileDialog.getSaveFileName(window, title, str(base), filt)
         if path:
+            remember_folder(Path(path).parent)
             ctl.export(kind, path)
 
     def sync_trace(*_) -> None:

@@ -19,8 +19,13 @@ def add_recording_options(p: argparse.ArgumentParser) -> None:
     g.add_argument("--dtype", choices=DTYPES, help="sample type (little-endian)")
     g.add_argument("--gain-uv", type=float, metavar="G", help="microvolts per stored unit")
     g.add_argument("--offset-uv", type=float, metavar="O", help="microvolts added after the gain")
+    g.add_argument("--offset-counts", type=float, metavar="C",
+                   help="stored value of 0 uV, subtracted before the gain (e.g. 32768 for centred uint16)")
+    g.add_argument("--header-bytes", type=int, metavar="N", help="bytes to skip at the start of the file")
     g.add_argument("--group-size", type=int, metavar="K", help="K consecutive channels form one group")
     g.add_argument("--dataset", help="HDF5 dataset path (samples x channels)")
+    g.add_argument("--allow-external", action="store_true", default=None,
+                   help="read HDF5 samples kept in other files (external links, external storage, virtual datasets)")
 
 
 def add_param_options(p: argparse.ArgumentParser) -> None:
@@ -68,16 +73,16 @@ def params_from_args(args: argparse.Namespace) -> Params:
 
 def open_from_args(args: argparse.Namespace, path: str | None = None) -> Recording:
     """Open the command's recording with the layout options applied."""
-    return open_recording(path or args.recording, channels=args.channels, rate_hz=args.rate, dtype=args.dtype,
-                          gain_uv=args.gain_uv, offset_uv=args.offset_uv, group_size=args.group_size,
-                          dataset=args.dataset)
+    return open_recording(path or args.recording, **recording_options(args))
 
 
 def recording_options(args: argparse.Namespace) -> dict:
     """The layout options as keyword arguments for :func:`core.recording.open_recording`."""
     return {k: v for k, v in (("channels", args.channels), ("rate_hz", args.rate), ("dtype", args.dtype),
                               ("gain_uv", args.gain_uv), ("offset_uv", args.offset_uv),
-                              ("group_size", args.group_size), ("dataset", args.dataset)) if v is not None}
+                              ("offset_counts", args.offset_counts), ("header_bytes", args.header_bytes),
+                              ("group_size", args.group_size), ("dataset", args.dataset),
+                              ("allow_external", args.allow_external or None)) if v is not None}
 
 
 def command_inputs(args: argparse.Namespace) -> list[str]:

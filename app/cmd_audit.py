@@ -83,4 +83,6 @@ def run_audit_command(args: argparse.Namespace) -> int:
     write_audit_report(result, out)
     print(f"{len(result.imported_ids)} imported units ({len(spikes)} spikes) audited against "
           f"{len(result.fresh_ids)} units of the {fresh.source} -> {out}, {table}")
+    if spikes.empty_units:
+        print(f"note: {spikes.empty_note()}")
     return 0

@@ -7,11 +7,10 @@ import sys
 
 import numpy as np
 
-from core.features import Features
 from core.params import censored_note, metric_settings
 from core.pipeline import thresholds_sigma
 from core.session import load_session
-from core.unit_table import CAUTION, unit_metrics_for_events
+from core.unit_table import CAUTION, sorting_unit_table
 from core.unit_table_io import DEFAULT_LIMITS, flag_units, undefined_units, write_unit_table_csv
 
 from .cli_common import check_output
@@ -42,15 +41,11 @@ def run_metrics(args: argparse.Namespace) -> int:
         params.metrics.refractory_ms = args.refractory_ms
     mp = metric_settings(params, args.censored_ms)
     events, sorting = session.events, session.sorting
-    features = Features(sorting.data.features, list(sorting.data.feature_names))
     bar = TextProgress(not args.quiet)
     try:
-        table = unit_metrics_for_events(events, sorting.assignments, features,
-                                        thresholds_sigma(params, events.sigma_uv), mp, progress=bar)
+        table = sorting_unit_table(events, sorting, thresholds_sigma(params, events.sigma_uv), mp, progress=bar)
     finally:
         bar.close()
-    labels = {u: sorting.unit(u).label for u in table["unit"].tolist()}
-    table["label"] = [labels[u] for u in table["unit"].tolist()]
     write_unit_table_csv(table, out, mp)
     flagged = table["unit"][flag_units(table, DEFAULT_LIMITS)["any"]]
     undefined = table["unit"][np.logical_or.reduce(list(undefined_units(table, DEFAULT_LIMITS).values()))]

@@ -76,7 +76,6 @@ def run_export_command(args: argparse.Namespace) -> int:
         raise ParamError(f"export target must be a folder, got the file {str(out)!r}")
     if not out.parent.exists():
         raise ParamError(f"export folder's parent must exist, got {str(out.parent)!r}")
-    out.mkdir(exist_ok=True)
     session = load_session(args.session, check_recording=False)
     bar = TextProgress(not args.quiet)
     try:

@@ -25,14 +25,19 @@ CLOSE_PIXELS = 10
 class StepCommand(QUndoCommand):
     """One curation step on Qt's undo stack; its menu text comes from the operation."""
 
-    def __init__(self, op, stack: UndoStack):
+    def __init__(self, op, stack: UndoStack, applied: bool = False):
+        """``applied``: the step is already in the sorting (history rebuilt from the journal), so
+        the push that puts it on the stack does not apply it again."""
         super().__init__(op.text)
         self.op = op
         self._stack = stack
-        self._done_once = False
+        self._done_once = applied
+        self._skip_push = applied
 
     def redo(self) -> None:
-        if self._done_once:
+        if self._skip_push:
+            self._skip_push = False
+        elif self._done_once:
             self._stack.reapply(self.op)
         else:
             self._stack.apply(self.op)

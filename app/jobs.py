@@ -8,6 +8,7 @@ from __future__ import annotations
 from pathlib import Path
 
 from core.atomic import WriteError
+from core.errors import RigsideError
 from core.features import compute_features
 from core.noise import estimate_noise
 from core.overview import OverviewBuilder, build_overview
@@ -27,7 +28,9 @@ def analyse(recording, params, truth_path: Path | None = None, overview: Overvie
 
     With ``overview``, the detection pass also builds the trace overview and caches it
     (``overview.path``; a failed write leaves ``overview.error`` and keeps the detection).
-    Returns ``(noise, events, truth)``; ``truth`` is None without a truth file.
+    Returns ``(noise, events, truth)``; ``truth`` is None without a truth file, and the
+    :class:`core.errors.RigsideError` saying why when the file beside the recording is not a
+    readable ground truth of ours (the recording is then used without it).
     """
     noise = estimate_noise(recording, params, cancel=cancel,
                            progress=lambda f, m: report(progress, NOISE_SHARE * f, m))
@@ -35,7 +38,10 @@ def analyse(recording, params, truth_path: Path | None = None, overview: Overvie
                     progress=lambda f, m: report(progress, NOISE_SHARE + (1 - NOISE_SHARE) * f, m))
     if overview is not None:
         save_overview(overview)
-    truth = load_truth(truth_path) if truth_path is not None else None
+    try:
+        truth = load_truth(truth_path) if truth_path is not None else None
+    except RigsideError as exc:
+        truth = exc.with_traceback(None)   # no frames of the job thread kept alive
     return noise, events, truth
 
 

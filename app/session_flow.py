@@ -20,9 +20,11 @@ from shiboken6 import isValid
 from core.errors import RigsideError, SessionError
 from core.session import (RecordingChanged, RecordingMoved, autosave_path, check_recording_content, load_session,
                           save_session, snapshot)
+from core.journal import rebuild_history
 from core.session_recovery import Autosaver, find_states
 
 from .cli_common import check_output
+from .save_folder import remember_folder, suggested_path
 
 AUTOSAVE_INTERVAL_S = 5.0
 AUTOSAVE_CHECK_MS = 1500
@@ -31,14 +33,15 @@ SESSION_FILTER = "rigside sessions (*.h5);;All files (*)"
 
 
 def _load_job(path: Path, override, progress=None, cancel=None):
-    """Load a session (quick recording check), then hash the recording's whole content (full
-    check) off the GUI thread; the expected refusals come back as values (their kind matters)."""
+    """Load a session (quick recording check), hash the recording's whole content (full check)
+    and rebuild the undo history from the journal, off the GUI thread: ``(session, history)``;
+    the expected refusals come back as values (their kind matters)."""
     try:
         session = load_session(path, recording_path_override=override)
         check_recording_content(session, progress, cancel)
-        return session
     except (RecordingMoved, RecordingChanged, SessionError) as exc:
         return exc
+    return session, rebuild_history(session.sorting, progress, cancel)
 
 
 def _save_job(path: Path, session, progress=None, cancel=None):
@@ -56,9 +59,10 @@ def _autosave_job(autosaver: Autosaver, session, force: bool, progress=None, can
 
 
 def default_name(session) -> Path:
-    """Suggested session file: beside the recording, never the recording itself."""
+    """Suggested session file: beside the recording (never the recording itself), or in the folder
+    used last or the documents folder when the recording's folder is the program's or read-only."""
     rec = Path(session.recording.path)
-    return rec.with_name(rec.stem + ".session.h5")
+    return suggested_path(rec, rec.stem + ".session.h5")
 
 
 def untitled_path(folder: Path, recording) -> Path:
@@ -231,6 +235,8 @@ class SessionFlow(QObject):
         except RigsideError as exc:
             self.window.show_error("Cannot save the session", str(exc))
             return False
+        if self.window.interactive:
+            remember_folder(path.parent)
         self._wait_file_job()
         index, revision, old_autosave = self.ctl.undo_stack.index(), s.sorting.revision, self.autosave_file
         self._written = (s.sorting, revision)
@@ -320,6 +326,7 @@ class SessionFlow(QObject):
         if isinstance(result, SessionError):
             self.window.show_error("Cannot open the session", str(result))
             return
+        result, history = result
         self._pending_open = True
         try:
             if not self.window.open_path(result.recording.path):
@@ -327,11 +334,14 @@ class SessionFlow(QObject):
         finally:
             self._pending_open = False
         self._incoming_path = title_path
-        self.ctl.attach(result)
+        self.ctl.attach(result, history)
         self._apply_threshold(result)
         self.recovered = title_path is not None and Path(file) != title_path
         self.update_title()
-        self.window.statusBar().showMessage(f"Opened {Path(file).name}: {len(result.sorting.units)} units.", 10000)
+        undo = (f"{len(history)} step(s) can be undone" if history is not None
+                else "its journal does not replay to these units, so earlier steps cannot be undone")
+        self.window.statusBar().showMessage(f"Opened {Path(file).name}: {len(result.sorting.units)} units; "
+                                            f"{undo}.", 10000)
 
     def _apply_threshold(self, session) -> None:
         d = session.params.detect

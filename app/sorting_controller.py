@@ -124,7 +124,7 @@ class SortingController(QObject):
 
     def group_name(self, group: int) -> str:
         names = self.session.recording.description.get("group_names") if self.session else None
-        return names[group] if isinstance(names, list) and 0 <= group < len(names) else f"group {group + 1}"
+        return names[group] if isinstance(names, list) and 0 <= group < len(names) else f"group {group}"
 
     def thresholds(self) -> np.ndarray:
         """Per-channel detection threshold (sigma) the sorting's events were taken at."""
@@ -149,8 +149,10 @@ class SortingController(QObject):
         return out
 
     # ---- the sorting ------------------------------------------------------------------------
-    def attach(self, session: Session | None) -> None:
-        """Hold ``session`` (or nothing): a fresh undo history, selection and quality numbers."""
+    def attach(self, session: Session | None, history: list | None = None) -> None:
+        """Hold ``session`` (or nothing) with fresh selection and quality numbers; the undo history
+        is ``history`` (steps already in the sorting, oldest first, from
+        :func:`core.journal.rebuild_history`) or empty."""
         old = self.sorting
         if old is not None:
             self.replacing.emit()
@@ -166,6 +168,9 @@ class SortingController(QObject):
         if session is not None:
             session.sorting.changed.connect(self._on_sorting_changed)
             self._core_stack = UndoStack(session.sorting)
+            for op in history or []:
+                self.undo_stack.push(StepCommand(op, self._core_stack, applied=True))
+            self.undo_stack.setClean()
             self._stale = {u: session.sorting.revision for u in session.sorting.unit_ids()}
             self._refresh_metrics()
         self.sorting_replaced.emit()

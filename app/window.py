@@ -2,13 +2,13 @@
 
 from __future__ import annotations
 
+import logging
 import os
 import sys
 import traceback
 from pathlib import Path
 from typing import Callable, Sequence
 
-import h5py
 import numpy as np
 from PySide6.QtCore import QByteArray, QEventLoop, QSettings, Qt, QTimer
 from PySide6.QtWidgets import (QApplication, QDockWidget, QFileDialog, QLabel, QMainWindow, QMessageBox,
@@ -18,10 +18,9 @@ from core.errors import RigsideError
 from core.filtering import design_bandpass
 from core.overview import load_overview
 from core.params import Params
-from core.recording import RawRecording, metadata_path, open_recording
 from . import jobs, overview_flow, palette
-from .dialogs.raw_layout import RawLayoutDialog
 from .model import Workbench
+from .opening import open_with_dialogs
 from .panels.base import Panel
 from .panels.count_curve import CountCurvePanel
 from .panels.features import FeaturePanel
@@ -31,6 +30,7 @@ from .panels.traces import TracePanel
 from .panels.waveforms import WaveformPanel
 from .task_status import TaskStatus
 from .audit_frame import install_audit
+from .export_menu import install_export
 from .units_frame import install_units
 from .window_actions import build_actions
 from .workers import Runner
@@ -38,9 +38,12 @@ from .workers import Runner
 VERSION = "0.1.0"
 LAYOUT_VERSION = 1
 MAX_RECENT = 8
+MIN_TRACE_SHARE = 0.4
+"""A restored layout must leave the traces at least this share of the window's height."""
 ANALYSIS_LABEL = "Detecting events"
+log = logging.getLogger("rigside")
 
-EXTENSIONS: tuple[Callable[["MainWindow"], object], ...] = (install_units, install_audit)
+EXTENSIONS: tuple[Callable[["MainWindow"], object], ...] = (install_units, install_audit, install_export)
 """Installers run on every new window: each adds its panels, menus and actions."""
 
 
@@ -97,9 +100,7 @@ class MainWindow(QMainWindow):
         self.splitDockWidget(strip, wave, Qt.Orientation.Vertical)
         self.splitDockWidget(wave, feat, Qt.Orientation.Horizontal)
         self.resize(1600, 1000)
-        self.resizeDocks([threshold, curve], [480, 420], Qt.Orientation.Vertical)
-        self.resizeDocks([threshold], [560], Qt.Orientation.Horizontal)
-        self.resizeDocks([strip, wave], [170, 330], Qt.Orientation.Vertical)
+        self._size_docks()
 
         self.task_status = TaskStatus(self.runner)
         self.statusBar().addPermanentWidget(self.task_status)
@@ -110,6 +111,7 @@ class MainWindow(QMainWindow):
         for pid in ("threshold", "waveforms", "features"):  # the workbench's own tabs show first
             self.docks[pid].raise_()
         self._default_state = self.saveState(LAYOUT_VERSION)
+        self._check_layout = False
         if interactive:
             self._restore_layout()
 
@@ -159,8 +161,21 @@ class MainWindow(QMainWindow):
         state = s.value("window/state")
         if isinstance(geometry, QByteArray):
             self.restoreGeometry(geometry)
-        if isinstance(state, QByteArray):
-            self.restoreState(state, LAYOUT_VERSION)
+        if isinstance(state, QByteArray) and self.restoreState(state, LAYOUT_VERSION):
+            self._check_layout = True
+
+    def showEvent(self, event) -> None:
+        super().showEvent(event)
+        if self._check_layout:   # sizes are known once the window is laid out on screen
+            self._check_layout = False
+            QTimer.singleShot(0, self, self._keep_traces_usable)
+
+    def _keep_traces_usable(self) -> None:
+        """Fall back to the default layout when the restored one leaves the traces too little room."""
+        if not self.central.isVisible() or self.central.height() < MIN_TRACE_SHARE * self.height():
+            self.reset_layout()
+            self.statusBar().showMessage("The saved layout left the traces too little room; the default "
+                                         "layout is shown (View > Reset the window layout).", 15000)
 
     def save_layout(self) -> None:
         s = settings()
@@ -168,10 +183,19 @@ class MainWindow(QMainWindow):
         s.setValue("window/state", self.saveState(LAYOUT_VERSION))
         s.sync()
 
+    def _size_docks(self) -> None:
+        """Default dock sizes as shares of the window, leaving the traces over half its height."""
+        w, h = self.width(), self.height()
+        d = self.docks
+        self.resizeDocks([d["threshold"], d["count_curve"]], [int(0.48 * h), int(0.42 * h)], Qt.Orientation.Vertical)
+        self.resizeDocks([d["threshold"]], [int(0.35 * w)], Qt.Orientation.Horizontal)
+        self.resizeDocks([d["rate_strip"], d["waveforms"]], [int(0.13 * h), int(0.25 * h)], Qt.Orientation.Vertical)
+
     def reset_layout(self) -> None:
         self.restoreState(self._default_state, LAYOUT_VERSION)
         for dock in self.docks.values():
             dock.setVisible(True)
+        self._size_docks()
 
     def closeEvent(self, event) -> None:
         self.runner.shutdown()
@@ -189,6 +213,7 @@ class MainWindow(QMainWindow):
         self.last_error = (title, message)
         self.statusBar().showMessage(f"{title}: {message}", 15000)
         box = QMessageBox(QMessageBox.Icon.Warning, title, message, QMessageBox.StandardButton.Ok, self)
+        box.setTextFormat(Qt.TextFormat.PlainText)     # messages quote file names and notes verbatim
         box.setWindowModality(Qt.WindowModality.WindowModal)
         box.finished.connect(lambda *_: self.messages.remove(box) if box in self.messages else None)
         self.messages.append(box)
@@ -262,17 +287,7 @@ class MainWindow(QMainWindow):
         return True
 
     def _open(self, path: str, options: dict):
-        p = Path(path)
-        has_layout = options.get("channels") is not None and options.get("rate_hz") is not None
-        if (p.is_file() and p.stat().st_size > 0 and not h5py.is_hdf5(p) and metadata_path(p) is None
-                and not has_layout):
-            if not self.interactive:
-                return open_recording(p, **options)  # raises the missing-metadata message
-            dialog = RawLayoutDialog(p, self)
-            if dialog.exec() != RawLayoutDialog.DialogCode.Accepted:
-                return None
-            return RawRecording(p, dialog.layout_value())
-        return open_recording(p, **options)
+        return open_with_dialogs(self, path, options)
 
     def start_detection(self) -> None:
         """Noise and detection down to the look-up floor (or the lowest threshold, if lower)."""
@@ -309,12 +324,16 @@ class MainWindow(QMainWindow):
         noise, events, truth = result
         b = self.bench
         b.set_events(noise, events)
-        if truth is not None:
+        ignored = isinstance(truth, RigsideError)
+        if truth is not None and not ignored:
             b.set_truth(truth)
         self.analysis_outcome = "done"
         n_bad = len(noise.bad)
         self.statusBar().showMessage(f"{len(events):,} events stored down to {events.floor_sigma:.2f} σ"
-                                     + (f"; {n_bad} channel(s) flagged bad" if n_bad else ""), 15000)
+                                     + (f"; {n_bad} channel(s) flagged bad" if n_bad else "")
+                                     + (f"; ground truth ignored: {truth}" if ignored else ""), 15000)
+        if ignored:
+            log.warning("ground truth ignored: %s", str(truth))
         overview_flow.after_detection(self, self._overview_builder)
         self.runner.submit("features", "Computing features", jobs.features, b.recording, events,
                            b.analysis.params, on_done=b.set_features)

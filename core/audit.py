@@ -186,7 +186,7 @@ class AuditResult:
     def imported_train(self, unit: int) -> tuple[np.ndarray, np.ndarray]:
         """Times (s) and main-channel amplitudes (uV) of one imported unit."""
         self._index(unit)
-        lo, hi = np.searchsorted(self.spikes.units, [unit, unit + 1])
+        lo, hi = self.spikes.span(unit)
         return self.spikes.times_s[lo:hi], self.imported_amplitude_uv[lo:hi]
 
 

@@ -153,4 +153,5 @@ def write_audit_csv(result, path: str | Path, caution: str) -> Path:
     header = ["rigside audit of an imported sorting",
               f"imported: {result.spikes.source}; compared with: {result.fresh.source}",
               caution, QUALITY_CAUTION, f"settings: {settings}", censored_note(mp)]
-    return write_described_csv(path, header, ALL_COLUMNS, list(ALL_COLUMNS), t, _cell)
+    text = TEXT_COLUMNS | {c for c in ALL_COLUMNS if c.endswith("_reason")}
+    return write_described_csv(path, header, ALL_COLUMNS, list(ALL_COLUMNS), t, _cell, text)

@@ -24,7 +24,9 @@ group, clusters are numbered by decreasing mean peak magnitude.
 
 from __future__ import annotations
 
+import threading
 import warnings
+from contextlib import contextmanager
 
 import numpy as np
 from sklearn.exceptions import ConvergenceWarning
@@ -40,6 +42,38 @@ NO_UNIT = -1
 
 MIN_EVENTS_PER_COMPONENT = 10
 """A fit never uses more components than one per this many fitted events."""
+
+_POOLS_LOCK = threading.Lock()
+_pool_users = 0
+_pool_limiter = None
+
+
+@contextmanager
+def single_threaded_pools():
+    """BLAS and OpenMP pools limited to one thread while any caller is inside.
+
+    ``threadpool_limits`` does not act on the calling thread alone: OpenBLAS (the pthreads
+    build in the numpy and scipy wheels) has one pool for the whole process, so other threads'
+    BLAS calls are single-threaded meanwhile; only the OpenMP runtime limits the calling thread.
+    It restores the limits it found on exit, so two overlapping uses from different threads
+    would restore in the wrong order (and leave the process at one thread); here the first
+    caller in sets the limits and the last one out restores them. threadpoolctl also lets only
+    one Python thread control OpenBLAS (the first that set a limit, while it lives): called from
+    another thread, the OpenBLAS limit is left as it is.
+    """
+    global _pool_users, _pool_limiter
+    with _POOLS_LOCK:
+        if _pool_users == 0:
+            _pool_limiter = threadpool_limits(limits=1)
+        _pool_users += 1
+    try:
+        yield
+    finally:
+        with _POOLS_LOCK:
+            _pool_users -= 1
+            if _pool_users == 0:
+                _pool_limiter.restore_original_limits()
+                _pool_limiter = None
 
 
 def _standardise(x: np.ndarray, fit_rows: np.ndarray) -> np.ndarray:
@@ -122,9 +156,11 @@ def cluster_features(features: np.ndarray, params: ClusterParams, stream: int = 
     The matrices are small, so linear algebra (BLAS) and the k-means initialisation (OpenMP)
     run on one thread: on a shared 2-core machine, threaded pools made the first pass of
     10^6 events about three times slower (measured here). One thread also makes the result
-    independent of the machine's thread count, which journal replay relies on.
+    independent of the machine's thread count, which journal replay relies on. The limit is
+    process-wide (:func:`single_threaded_pools`): while a clustering runs, BLAS calls of every
+    other thread are single-threaded too.
     """
-    with threadpool_limits(limits=1):
+    with single_threaded_pools():
         return _cluster(features, params, stream, k)
 
 

@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import csv
 import json
+import math
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -18,6 +19,7 @@ import numpy as np
 from .atomic import atomic_write
 from .errors import RigsideError
 from .h5image import write_h5
+from .params import POLARITIES
 
 COLUMNS = {
     "sample": np.int64,
@@ -27,6 +29,8 @@ COLUMNS = {
     "amplitude_sigma": np.float32,
     "artefact": np.bool_,
 }
+MAX_SAMPLES = 2**48
+"""Longest recording an event table may describe (about 300 years at 30 kHz)."""
 
 
 @dataclass
@@ -116,15 +120,22 @@ class EventTable:
         return keep
 
     def _sorted_amplitudes(self, channel: int) -> np.ndarray:
-        if not self._by_channel:
+        """Sorted non-artefact amplitudes of one channel, from a cache built on first use.
+
+        Thread-safe: the cache is built complete in a local dict and then published by one
+        attribute assignment, so another thread sees either no cache or all of it (two threads
+        arriving together may both build it, with equal results).
+        """
+        cache = self._by_channel
+        if not cache:
             ok = ~self.artefact
             order = np.lexsort((self.amplitude_sigma[ok], self.channel[ok]))
             ch = self.channel[ok][order]
             amp = self.amplitude_sigma[ok][order]
             edges = np.searchsorted(ch, np.arange(self.n_channels + 1))
-            for c in range(self.n_channels):
-                self._by_channel[c] = amp[edges[c]:edges[c + 1]]
-        return self._by_channel[channel]
+            cache = {c: amp[edges[c]:edges[c + 1]] for c in range(self.n_channels)}
+            self._by_channel = cache
+        return cache[channel]
 
     def counts(self, threshold_sigma=None, threshold_uv=None) -> np.ndarray:
         """Non-artefact event count per channel at the threshold (sorted look-up)."""
@@ -162,8 +173,13 @@ class EventTable:
         atomic_write(path, write)
 
     def write_h5(self, path: str | Path, group: str = "events") -> None:
-        """Write the table into an HDF5 group (own layout: one dataset per column)."""
-        atomic_write(path, lambda tmp: write_h5(tmp, lambda f: self.to_h5_group(f.create_group(group))))
+        """Write the table into an HDF5 group (own layout: one dataset per column of the CSV,
+        ``time_s`` included, plus ``sigma_uv``)."""
+        def fill(f) -> None:
+            g = f.create_group(group)
+            self.to_h5_group(g)
+            g.create_dataset("time_s", data=self.time_s)
+        atomic_write(path, lambda tmp: write_h5(tmp, fill))
 
     def to_h5_group(self, g: h5py.Group) -> None:
         """Store columns and context in an open HDF5 group."""
@@ -177,20 +193,54 @@ class EventTable:
 
     @classmethod
     def from_h5_group(cls, g: h5py.Group) -> "EventTable":
-        """Read a table stored by :meth:`to_h5_group`, checking every column."""
+        """Read a table stored by :meth:`to_h5_group`, checking every column and attribute."""
         missing = [c for c in (*COLUMNS, "sigma_uv") if c not in g]
         if missing:
             raise RigsideError(f"event group must hold datasets {', '.join(COLUMNS)}, sigma_uv; "
                                f"missing {', '.join(missing)}")
         cols = {c: np.asarray(g[c][()]) for c in COLUMNS}
+        for c, dt in COLUMNS.items():
+            if cols[c].ndim != 1 or not np.can_cast(cols[c].dtype, dt, casting="same_kind"):
+                raise RigsideError(f"event column {c} must be a 1-D array of {np.dtype(dt)}, "
+                                   f"got {cols[c].dtype} with shape {cols[c].shape}")
         t = cls(**cols, rate_hz=float(g.attrs["rate_hz"]), n_samples=int(g.attrs["n_samples"]),
                 sigma_uv=np.asarray(g["sigma_uv"][()]), floor_sigma=float(g.attrs["floor_sigma"]),
                 polarity=str(g.attrs["polarity"]), excluded=_read_excluded(g, len(g["sigma_uv"])))
-        if len(t) and (np.any(np.diff(t.sample) < 0) or t.sample[0] < 0 or t.sample[-1] >= t.n_samples
-                       or t.channel.min() < 0 or t.channel.max() >= t.n_channels):
+        t.check()
+        return t
+
+    def check(self) -> None:
+        """Refuse a table whose context or columns are out of range (as strictly as options)."""
+        if not (math.isfinite(self.rate_hz) and 100 <= self.rate_hz <= 1e6):
+            raise RigsideError(f"event table sampling rate must be between 100 Hz and 1 MHz, got {self.rate_hz!r}")
+        if not 1 <= self.n_samples <= MAX_SAMPLES:
+            raise RigsideError(f"event table recording length must be from 1 to {MAX_SAMPLES} samples, "
+                               f"got {self.n_samples}")
+        s = self.sigma_uv
+        if s.ndim != 1 or not 1 <= len(s) <= 4096 or not (np.isfinite(s).all() and (s >= 0).all()):
+            raise RigsideError(f"event table noise sigmas must be 1 to 4096 finite values of at least 0 uV, "
+                               f"got shape {s.shape}")
+        if not (math.isfinite(self.floor_sigma) and self.floor_sigma > 0):
+            raise RigsideError(f"event table look-up floor must be above 0 sigma, got {self.floor_sigma!r}")
+        if self.polarity not in POLARITIES:
+            raise RigsideError(f"event table polarity must be one of {', '.join(POLARITIES)}, got {self.polarity!r}")
+        if not len(self):
+            return
+        if np.any(np.diff(self.sample) < 0) or self.sample[0] < 0 or self.sample[-1] >= self.n_samples \
+                or self.channel.min() < 0 or self.channel.max() >= self.n_channels:
             raise RigsideError("event table must hold time-sorted samples inside the recording and "
                                "valid channels, got values out of range")
-        return t
+        if self.group.min() < 0 or self.group.max() >= self.n_channels:
+            raise RigsideError(f"event groups must be from 0 to {self.n_channels - 1}, got "
+                               f"{int(self.group.min())}..{int(self.group.max())}")
+        group_of = np.zeros(self.n_channels, dtype=np.int32)
+        group_of[self.channel] = self.group          # one group per channel, whichever event wrote it
+        if np.any(group_of[self.channel] != self.group):
+            raise RigsideError("events of one channel must all belong to one group, got a channel in two groups")
+        a = self.amplitude_sigma
+        if not (np.isfinite(self.amplitude_uv).all() and not np.isnan(a).any() and (a >= 0).all()):
+            raise RigsideError("event amplitudes must be finite numbers (in sigma: at least 0), "
+                               "got NaN, infinite or negative values")
 
     @classmethod
     def read_h5(cls, path: str | Path, group: str = "events") -> "EventTable":

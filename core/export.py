@@ -18,11 +18,11 @@ this one does not write are removed):
 
 from __future__ import annotations
 
-import json
 import math
 from pathlib import Path
 from typing import Sequence
 
+import h5py
 import numpy as np
 
 from . import __version__
@@ -37,6 +37,26 @@ from .sorting import LABELS, Sorting
 
 MAX_COUNT = np.iinfo(np.uint16).max
 CSV_NAME, BINNED_NAME = "unit_times.csv", "binned.h5"
+MAX_MATRIX_BYTES = 32 << 30
+"""Largest uncompressed spike matrix (units x bins x 2 bytes) an export may declare."""
+BLOCK_BINS = 1 << 20
+"""Bins of one unit binned and written at a time (blocks without spikes keep the fill value 0)."""
+
+
+def check_binning(duration_s: float, bin_ms: float, n_units: int) -> int:
+    """The bin count of an export, refused (:class:`RigsideError`) before anything is written
+    when the bin width is not a positive number or the matrix would exceed :data:`MAX_MATRIX_BYTES`."""
+    if not (isinstance(bin_ms, (int, float)) and math.isfinite(bin_ms) and bin_ms > 0):
+        raise RigsideError(f"bin width must be a finite number of milliseconds above 0, got {bin_ms!r}")
+    ratio = duration_s / (bin_ms / 1000.0) if bin_ms / 1000.0 > 0 else math.inf
+    rows = max(1, n_units)
+    limit = MAX_MATRIX_BYTES // (2 * rows)
+    if not ratio <= limit:
+        shortest = duration_s * 1000.0 / limit
+        raise RigsideError(f"bin width must give at most {limit} bins per unit for {rows} units (a spike "
+                           f"matrix of at most {MAX_MATRIX_BYTES >> 30} GiB), got {ratio:.3g} bins of "
+                           f"{bin_ms:g} ms over {duration_s:g} s (use at least {shortest:.3g} ms)")
+    return bin_count(duration_s, bin_ms / 1000.0)
 
 
 def bin_count(duration_s: float, bin_s: float) -> int:
@@ -54,6 +74,20 @@ def bin_index(times_s: np.ndarray, bin_s: float, n_bins: int) -> np.ndarray:
         raise RigsideError(f"spike times must lie within the {n_bins} bins (0 to {n_bins * bin_s:g} s), "
                            f"got {t.min():g} to {t.max():g} s")
     return k
+
+
+def _write_counts(ds: h5py.Dataset, row: int, bins: np.ndarray, unit: int) -> None:
+    """Store one unit's spike counts block by block, so memory follows the spikes, not the bins."""
+    k, c = np.unique(bins, return_counts=True)
+    if c.size and c.max() > MAX_COUNT:
+        raise RigsideError(f"spikes per bin must be at most {MAX_COUNT}, got {int(c.max())} in unit {unit}")
+    n_bins = ds.shape[1]
+    for b in np.unique(k // BLOCK_BINS):
+        lo, hi = int(b) * BLOCK_BINS, min(n_bins, (int(b) + 1) * BLOCK_BINS)
+        block = np.zeros(hi - lo, dtype=np.uint16)
+        inside = (k >= lo) & (k < hi)
+        block[k[inside] - lo] = c[inside]
+        ds[row, lo:hi] = block
 
 
 def _write_npy(path: Path, values: np.ndarray) -> Path:
@@ -88,15 +122,13 @@ def export_sorting(events: EventTable, sorting: Sorting, out_dir: str | Path, bi
     dict
         Paths written, under ``"csv"``, ``"npy"``, ``"binned"`` and ``"manifest"``.
     """
-    if not (isinstance(bin_ms, (int, float)) and math.isfinite(bin_ms) and bin_ms > 0):
-        raise RigsideError(f"bin width must be a finite number of milliseconds above 0, got {bin_ms!r}")
     if labels is not None and not set(labels) <= set(LABELS):
         raise RigsideError(f"export labels must be among {', '.join(LABELS)}, got {sorted(set(labels))}")
     if len(sorting.data) != len(events):
         raise RigsideError(f"sorting must cover the event table ({len(events)} events), got {len(sorting.data)}")
-    bin_s = bin_ms / 1000.0
-    n_bins = bin_count(events.duration_s, bin_s)
     units = {u: rec for u, rec in sorting.units.items() if labels is None or rec.label in labels}
+    n_bins = check_binning(events.duration_s, bin_ms, len(units))
+    bin_s = bin_ms / 1000.0
     folder = ExportFolder(out_dir, [f"unit_{u}.npy" for u in units] + [CSV_NAME, BINNED_NAME])
     times = events.time_s
     written: dict[str, list[Path]] = {"csv": [], "npy": [], "binned": [], "manifest": []}
@@ -123,11 +155,7 @@ def export_sorting(events: EventTable, sorting: Sorting, out_dir: str | Path, bi
             for row, (u, t) in enumerate(trains.items()):
                 check(cancel)
                 report(progress, 0.5 + 0.5 * row / max(1, len(units)), f"binning unit {u}")
-                c = np.bincount(bin_index(t, bin_s, n_bins), minlength=n_bins)
-                if c.size and c.max() > MAX_COUNT:
-                    raise RigsideError(f"spikes per bin must be at most {MAX_COUNT}, got {int(c.max())} "
-                                       f"in unit {u}")
-                ds[row] = c
+                _write_counts(ds, row, bin_index(t, bin_s, n_bins), u)
             f.create_dataset("unit_id", data=np.array(list(units), dtype=np.int32))
             f.create_dataset("unit_label", data=[r.label for r in units.values()],
                              dtype=h5py.string_dtype("utf-8"))

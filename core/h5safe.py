@@ -18,7 +18,7 @@ from typing import Any
 import h5py
 import numpy as np
 
-from .errors import SessionError
+from .errors import RigsideError, SessionError
 
 MAX_OBJECTS = 1000
 MAX_DEPTH = 4
@@ -175,3 +175,35 @@ def text(data: dict[str, np.ndarray], name: str) -> str:
 def write_text(g: h5py.Group, name: str, value: str) -> None:
     """Store text as a uint8 dataset (attributes are limited to 64 KiB)."""
     g.create_dataset(name, data=np.frombuffer(value.encode("utf-8"), dtype=np.uint8))
+
+
+def stored_dataset(f: h5py.File, name: str, allow_external: bool,
+                   error: type[RigsideError] = RigsideError) -> h5py.Dataset:
+    """The dataset ``name`` of a file we did not write, refused (``error``) when its data live in
+    other files (external link, external storage, virtual dataset; unless ``allow_external``) or
+    when the file does not store what its shape declares: a contiguous dataset must have all its
+    bytes allocated, a chunked one all its chunks (unwritten data would read as fill values, so
+    a tiny file could declare terabytes)."""
+    parts = [x for x in name.split("/") if x]
+    for i in range(len(parts)):
+        link = f.get("/".join(parts[:i + 1]), getlink=True)
+        if isinstance(link, h5py.ExternalLink) and not allow_external:
+            raise error(f"HDF5 recording dataset must be stored in the file itself (or allow other "
+                        f"files with --allow-external), got an external link at {name!r}")
+    ds = f[name]
+    elsewhere = "a virtual dataset" if ds.is_virtual else "external storage" if ds.external else None
+    if elsewhere:
+        if not allow_external:
+            raise error(f"HDF5 recording dataset must keep its samples in the file itself (or allow "
+                        f"other files with --allow-external), got {elsewhere} at {name!r}")
+        return ds
+    declared = int(math.prod(ds.shape)) * ds.dtype.itemsize
+    if ds.chunks:
+        expected = math.prod(-(-n // c) for n, c in zip(ds.shape, ds.chunks))
+        stored, what = ds.id.get_num_chunks(), "chunks"
+    else:
+        expected, stored, what = declared, ds.id.get_storage_size(), "bytes"
+    if stored < expected:
+        raise error(f"HDF5 recording dataset must store the {declared} bytes its shape {ds.shape} "
+                    f"declares, got {stored} of {expected} {what} written in {name!r}")
+    return ds

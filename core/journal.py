@@ -23,6 +23,7 @@ from typing import Any, Iterable
 
 from . import __version__
 from .sorting import CurationError, Sorting
+from .textparse import parse_json
 
 ACTIONS = ("do", "undo", "redo")
 
@@ -65,10 +66,7 @@ class Journal:
         for i, line in enumerate(text.splitlines()):
             if not line.strip():
                 continue
-            try:
-                e = json.loads(line)
-            except json.JSONDecodeError as exc:
-                raise CurationError(f"journal line {i + 1} must be JSON, got an error: {exc}") from None
+            e = parse_json(line, f"journal line {i + 1}", CurationError)
             if not isinstance(e, dict) or e.get("action") not in ACTIONS or e.get("seq") != len(entries):
                 raise CurationError(f"journal line {i + 1} must be an entry numbered {len(entries)} with an "
                                     f"action in {', '.join(ACTIONS)}, got {line[:80]!r}")
@@ -147,6 +145,12 @@ def replay(entries: Iterable[dict[str, Any]], sorting: Sorting, progress=None, c
     Raises :class:`CurationError` when an entry cannot be replayed as recorded (unknown
     operation, undo of a step that is not the last done, a step creating other unit ids).
     """
+    _replay_stack(entries, sorting, progress, cancel)
+    return sorting
+
+
+def _replay_stack(entries: Iterable[dict[str, Any]], sorting: Sorting, progress=None, cancel=None) -> UndoStack:
+    """Replay (see :func:`replay`) and return the stack, whose done steps hold their deltas."""
     from .operations import ClusterGroups, operation_from_record
     from .progress import check, report
 
@@ -174,7 +178,7 @@ def replay(entries: Iterable[dict[str, Any]], sorting: Sorting, progress=None, c
         else:
             stack.redo()
     report(progress, 1.0, "replay done")
-    return sorting
+    return stack
 
 
 def replay_matches(sorting: Sorting, progress=None, cancel=None) -> bool:
@@ -182,3 +186,22 @@ def replay_matches(sorting: Sorting, progress=None, cancel=None) -> bool:
     fresh = Sorting(sorting.data)
     replay(sorting.journal.entries, fresh, progress, cancel)
     return fresh.state_equal(sorting)
+
+
+
+def rebuild_history(sorting: Sorting, progress=None, cancel=None) -> list | None:
+    """The steps of ``sorting.journal`` that are done now, oldest first, each ready to be undone
+    on ``sorting`` with its exact delta (recomputed by replaying the journal from scratch).
+
+    The journal's opening step (the first pass) is left out: there is no earlier state to return
+    to. Returns None when the replay does not reproduce ``sorting`` exactly, so that no history
+    is offered that would not undo to the recorded states.
+    """
+    fresh = Sorting(sorting.data)
+    try:
+        stack = _replay_stack(sorting.journal.entries, fresh, progress, cancel)
+    except CurationError:
+        return None
+    if not fresh.state_equal(sorting):
+        return None
+    return [op for op in stack._done if op.journal_seq != 0]

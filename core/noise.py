@@ -94,6 +94,7 @@ def estimate_noise(recording: Recording, params: Params, progress: ProgressFn = 
         Per-channel sigma in microvolts, per-window sigmas, and bad-channel flags.
     """
     params.noise.validate()
+    params.check_memory(recording.rate_hz, recording.n_channels)
     bp = bandpass or BandPass(recording, params.filter)
     w = max(2, int(round(params.noise.window_s * recording.rate_hz)))
     starts = window_starts(recording.n_samples, w, params.noise.n_windows, params.noise.seed)

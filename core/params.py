@@ -7,7 +7,6 @@ from __future__ import annotations
 
 import dataclasses
 import math
-import tomllib
 from dataclasses import asdict, dataclass, field, fields, replace
 from pathlib import Path
 from typing import Any
@@ -17,8 +16,14 @@ import tomli_w
 from .atomic import atomic_write
 from .errors import ParamError
 from .numbers import format_number
+from .textparse import parse_toml
 
 POLARITIES = ("negative", "positive", "both")
+MEMORY_BUDGET_BYTES = 512 << 20
+"""Working memory the sample buffers of noise estimation and detection may take together
+(see :meth:`Params.check_memory`)."""
+BUFFER_COPIES = 4
+"""float32 copies of a block held while it is read, filtered and searched (raw, filtered, work)."""
 
 
 def _require(ok: bool, message: str) -> None:
@@ -27,8 +32,13 @@ def _require(ok: bool, message: str) -> None:
 
 
 def _finite(name: str, value: float) -> None:
-    _require(isinstance(value, (int, float)) and math.isfinite(value),
+    _require(isinstance(value, (int, float)) and not isinstance(value, bool) and math.isfinite(value),
              f"{name} must be a finite number, got {value!r}")
+
+
+def _integer(name: str, value: Any, low: int, high: int) -> None:
+    _require(isinstance(value, int) and not isinstance(value, bool) and low <= value <= high,
+             f"{name} must be an integer from {low} to {high}, got {value!r}")
 
 
 @dataclass
@@ -46,8 +56,9 @@ class FilterParams:
         _require(self.low_hz > 0, f"band low edge must be above 0 Hz, got {self.low_hz:g} Hz")
         _require(self.high_hz > self.low_hz,
                  f"band high edge must be above the low edge ({self.low_hz:g} Hz), got {self.high_hz:g} Hz")
-        _require(isinstance(self.order, int) and 1 <= self.order <= 8,
-                 f"filter order must be an integer from 1 to 8, got {self.order!r}")
+        _integer("filter order", self.order, 1, 8)
+        _require(isinstance(self.common_reference, bool),
+                 f"common reference must be true or false, got {self.common_reference!r}")
         if rate_hz is not None:
             nyq = rate_hz / 2
             _require(self.high_hz < nyq,
@@ -63,10 +74,11 @@ class NoiseParams:
     seed: int = 0
 
     def validate(self) -> None:
-        _require(isinstance(self.n_windows, int) and self.n_windows >= 1,
-                 f"noise window count must be an integer of at least 1, got {self.n_windows!r}")
+        _integer("noise window count", self.n_windows, 1, 10_000)
         _finite("noise window length", self.window_s)
-        _require(self.window_s > 0, f"noise window length must be above 0 s, got {self.window_s:g} s")
+        _require(0 < self.window_s <= 10, f"noise window length must be above 0 and at most 10 s, "
+                                          f"got {self.window_s:g} s")
+        _integer("noise seed", self.seed, 0, 2**32 - 1)
 
 
 @dataclass
@@ -132,10 +144,9 @@ class SnippetParams:
         _require(self.after_ms > 0, f"snippet end must be above 0 ms, got {self.after_ms:g} ms")
         _require(self.before_ms + self.after_ms <= 20,
                  f"snippet length must be at most 20 ms, got {self.before_ms + self.after_ms:g} ms")
-        _require(isinstance(self.n_pcs, int) and 1 <= self.n_pcs <= 20,
-                 f"number of principal components must be an integer from 1 to 20, got {self.n_pcs!r}")
-        _require(isinstance(self.pca_fit_events, int) and self.pca_fit_events >= 10,
-                 f"PCA fit sample must be an integer of at least 10, got {self.pca_fit_events!r}")
+        _integer("number of principal components", self.n_pcs, 1, 20)
+        _integer("PCA fit sample", self.pca_fit_events, 10, 1_000_000)
+        _integer("snippet seed", self.seed, 0, 2**32 - 1)
 
 
 @dataclass
@@ -209,7 +220,7 @@ class ClusterParams:
         integer("smallest cluster count", self.k_min, 1, 64)
         integer("largest cluster count", self.k_max, self.k_min, 64)
         integer("search patience", self.patience, 1, 64)
-        integer("clustering fit sample", self.fit_events, 100, 10_000_000)
+        integer("clustering fit sample", self.fit_events, 100, 1_000_000)
         integer("EM iteration limit", self.max_iter, 1, 100_000)
         integer("clustering seed", self.seed, 0, 2**32 - 1)
         if not (isinstance(self.tol, (int, float)) and math.isfinite(self.tol) and self.tol > 0):
@@ -251,8 +262,7 @@ class RunParams:
         _finite("chunk length", self.chunk_s)
         _require(0.01 <= self.chunk_s <= 60,
                  f"chunk length must be between 0.01 and 60 s, got {self.chunk_s:g} s")
-        _require(isinstance(self.workers, int) and 1 <= self.workers <= 64,
-                 f"worker count must be an integer from 1 to 64, got {self.workers!r}")
+        _integer("worker count", self.workers, 1, 64)
 
 
 @dataclass
@@ -276,6 +286,25 @@ class Params:
         self.cluster.validate()
         self.metrics.validate()
         self.run.validate()
+
+    def check_memory(self, rate_hz: float, n_channels: int) -> None:
+        """Refuse settings whose sample buffers would exceed :data:`MEMORY_BUDGET_BYTES`: the
+        pooled noise windows (float32, every channel) plus :data:`BUFFER_COPIES` copies of one
+        window, and :data:`BUFFER_COPIES` copies of one detection chunk per worker."""
+        frame = 4 * BUFFER_COPIES * n_channels
+        budget = MEMORY_BUDGET_BYTES >> 20
+        windows = (self.noise.n_windows + BUFFER_COPIES) * self.noise.window_s
+        _require(windows * rate_hz * 4 * n_channels <= MEMORY_BUDGET_BYTES,
+                 f"noise windows (count + {BUFFER_COPIES}) x length must keep their buffers within {budget} MiB "
+                 f"for {n_channels} channels at {rate_hz:g} Hz (at most "
+                 f"{MEMORY_BUDGET_BYTES / (rate_hz * 4 * n_channels):.3g} s), got "
+                 f"({self.noise.n_windows} + {BUFFER_COPIES}) x {self.noise.window_s:g} s")
+        chunks = self.run.chunk_s * rate_hz * frame * self.run.workers
+        _require(chunks <= MEMORY_BUDGET_BYTES,
+                 f"chunk length x worker count must keep detection buffers within {budget} MiB for "
+                 f"{n_channels} channels at {rate_hz:g} Hz (chunk x workers at most "
+                 f"{MEMORY_BUDGET_BYTES / (rate_hz * frame):.3g} s), got {self.run.chunk_s:g} s x "
+                 f"{self.run.workers}")
 
     def to_dict(self) -> dict[str, Any]:
         """Plain nested dict (``None`` values dropped, as TOML has no null)."""
@@ -305,20 +334,20 @@ class Params:
         return out
 
     def save_toml(self, path: str | Path) -> None:
-        """Write the parameters as TOML (atomically)."""
+        """Write the parameters as TOML (atomically: a reader sees the old file or the new one)."""
         text = tomli_w.dumps(self.to_dict())
-        atomic_write(path, lambda tmp: tmp.write_text(text))
+        atomic_write(path, lambda tmp: tmp.write_text(text, encoding="utf-8"))
 
     @classmethod
     def load_toml(cls, path: str | Path) -> "Params":
         """Read parameters from a TOML file; missing keys keep their defaults."""
         try:
-            data = tomllib.loads(Path(path).read_text())
+            text = Path(path).read_text(encoding="utf-8")
         except FileNotFoundError:
             raise ParamError(f"parameter file must exist, got {str(path)!r}") from None
-        except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
-            raise ParamError(f"parameter file must be valid TOML, got {str(path)!r}: {exc}") from None
-        return cls.from_dict(data)
+        except UnicodeDecodeError as exc:
+            raise ParamError(f"parameter file must be valid TOML (UTF-8 text), got {str(path)!r}: {exc}") from None
+        return cls.from_dict(parse_toml(text, f"parameter file {str(path)!r}", ParamError))
 
 
 def metric_settings(params: Params, censored_ms: float | None = None) -> MetricParams:

@@ -70,6 +70,7 @@ def detect(recording: Recording, params: Params, progress: ProgressFn = None, ca
         :class:`core.errors.RecordingError` if the file changes size meanwhile.
     """
     params.validate(recording.rate_hz)
+    params.check_memory(recording.rate_hz, recording.n_channels)
     bp = BandPass(recording, params.filter)
     if noise is None:
         noise = estimate_noise(recording, params, cancel=cancel, bandpass=bp,

@@ -15,6 +15,7 @@ Raw binary files are described by a metadata file of our own schema beside the d
     rate_hz = 30000.0
     gain_uv = 0.195        # microvolts per stored unit
     offset_uv = 0.0        # added after the gain
+    offset_counts = 0      # stored value of 0 uV, subtracted before the gain (32768: centred uint16)
     header_bytes = 0       # bytes to skip at the start of the file
     [[group]]
     name = "bundle A"
@@ -24,72 +25,22 @@ Raw binary files are described by a metadata file of our own schema beside the d
 from __future__ import annotations
 
 import hashlib
-import math
 import os
-import tomllib
-from dataclasses import dataclass
 from pathlib import Path
 
 import h5py
 import numpy as np
+import tomli_w
 
 from .atomic import atomic_write
 from .errors import RecordingError
+from .h5safe import stored_dataset
+from .layout import DTYPES, Layout, is_integer, is_number, check_groups, groups_of_size  # noqa: F401 (re-exported)
+from .textparse import parse_toml
+from .hdf5_datasets import choose_dataset
 
-DTYPES = ("int16", "uint16", "int32", "float32")
 META_SUFFIX = ".rigside.toml"
 TRUTH_SUFFIXES = (".truth.csv", ".truth_units.csv")
-
-
-@dataclass
-class Layout:
-    """How to interpret a raw file: everything the metadata file or options say."""
-
-    channels: int
-    rate_hz: float
-    dtype: str = "int16"
-    gain_uv: float = 1.0
-    offset_uv: float = 0.0
-    header_bytes: int = 0
-    groups: list[list[int]] | None = None
-    group_names: list[str] | None = None
-
-    def validate(self) -> None:
-        if not (isinstance(self.channels, int) and 1 <= self.channels <= 4096):
-            raise RecordingError(f"channel count must be an integer from 1 to 4096, got {self.channels!r}")
-        if not (isinstance(self.rate_hz, (int, float)) and math.isfinite(self.rate_hz) and 100 <= self.rate_hz <= 1e6):
-            raise RecordingError(f"sampling rate must be between 100 Hz and 1 MHz, got {self.rate_hz!r}")
-        if self.dtype not in DTYPES:
-            raise RecordingError(f"sample type must be one of {', '.join(DTYPES)}, got {self.dtype!r}")
-        if not (isinstance(self.gain_uv, (int, float)) and math.isfinite(self.gain_uv) and self.gain_uv != 0):
-            raise RecordingError(f"gain must be a finite non-zero number of microvolts, got {self.gain_uv!r}")
-        if not (isinstance(self.offset_uv, (int, float)) and math.isfinite(self.offset_uv)):
-            raise RecordingError(f"offset must be a finite number of microvolts, got {self.offset_uv!r}")
-        if not (isinstance(self.header_bytes, int) and self.header_bytes >= 0):
-            raise RecordingError(f"header length must be a non-negative integer, got {self.header_bytes!r}")
-        if self.groups is not None:
-            check_groups(self.groups, self.channels)
-
-
-def check_groups(groups: list[list[int]], n_channels: int) -> None:
-    """Groups must be non-empty, hold valid channels, and not overlap."""
-    seen: set[int] = set()
-    for g in groups:
-        if not g:
-            raise RecordingError("every channel group must hold at least one channel, got an empty group")
-        for c in g:
-            if not isinstance(c, (int, np.integer)) or not 0 <= c < n_channels:
-                raise RecordingError(f"group channels must be integers from 0 to {n_channels - 1}, got {c!r}")
-            if c in seen:
-                raise RecordingError(f"channel groups must not overlap, got channel {c} twice")
-            seen.add(int(c))
-
-
-def groups_of_size(n_channels: int, size: int) -> list[list[int]]:
-    """Consecutive groups of ``size`` channels (the last may be shorter)."""
-    if not (isinstance(size, int) and size >= 1):
-        raise RecordingError(f"group size must be a positive integer, got {size!r}")
-    return [list(range(i, min(i + size, n_channels))) for i in range(0, n_channels, size)]
 
 
 class Recording:
@@ -112,7 +63,7 @@ class Recording:
         groups = [list(g) for g in groups] + [[c] for c in rest]
         self.groups = [np.asarray(g, dtype=np.int64) for g in groups]
         names = list(names or [])
-        self.group_names = [names[i] if i < len(names) else f"group {i + 1}" for i in range(len(groups))]
+        self.group_names = [names[i] if i < len(names) else f"group {i}" for i in range(len(groups))]
         self.channel_group = np.empty(self.n_channels, dtype=np.int32)
         for gi, g in enumerate(self.groups):
             self.channel_group[g] = gi
@@ -138,8 +89,8 @@ class Recording:
         """Stored values to microvolts (float32 copy)."""
         out = np.array(stored, dtype=np.float32)
         out *= np.float32(self.layout.gain_uv)
-        if self.layout.offset_uv:
-            out += np.float32(self.layout.offset_uv)
+        if self.layout.total_offset_uv:
+            out += np.float32(self.layout.total_offset_uv)
         return out
 
     def check_finite(self, stored: np.ndarray, start: int, channels: np.ndarray | None) -> None:
@@ -192,13 +143,15 @@ class RawRecording(Recording):
         item = np.dtype(layout.dtype).itemsize
         body = size - layout.header_bytes
         frame = item * layout.channels
+        how = f"set --header-bytes or header_bytes in {self.path.stem}{META_SUFFIX}"
         if body <= 0:
             raise RecordingError(f"recording file must hold samples after its {layout.header_bytes}-byte header, "
-                                 f"got {size} bytes in {str(path)!r}")
+                                 f"got {size} bytes in {str(path)!r} ({how})")
         if body % frame:
             raise RecordingError(f"file size after the header must be a multiple of channels x item size "
                                  f"({layout.channels} x {item} = {frame} bytes), got {body} bytes "
-                                 f"(truncated, or wrong channel count or sample type?)")
+                                 f"(a header of {body % frame} + k x {frame} bytes? {how}; or a truncated "
+                                 f"file, wrong channel count or sample type)")
         self.n_samples = body // frame
         self._dtype = np.dtype(layout.dtype).newbyteorder("<")
         self._frame = frame
@@ -229,8 +182,10 @@ class HDF5Recording(Recording):
     ``gain_uv``, ``offset_uv`` and optionally ``channel_group`` (group index per channel)."""
 
     def __init__(self, path: str | Path, dataset: str | None = None, rate_hz: float | None = None,
-                 gain_uv: float | None = None, groups: list[list[int]] | None = None):
+                 gain_uv: float | None = None, groups: list[list[int]] | None = None,
+                 allow_external: bool = False):
         self.path = Path(path)
+        self.allow_external = allow_external
         try:
             self._file = h5py.File(self.path, "r")
         except FileNotFoundError:
@@ -248,22 +203,18 @@ class HDF5Recording(Recording):
 
     def _setup(self, dataset, rate_hz, gain_uv, groups) -> None:
         path = self.path
-        name = dataset or _first_2d_dataset(self._file)
-        if name is None or name not in self._file or not isinstance(self._file[name], h5py.Dataset):
-            raise RecordingError(f"HDF5 recording must hold a 2-D dataset (samples x channels), "
-                                 f"got none named {dataset!r} in {str(path)!r}" if dataset else
-                                 f"HDF5 recording must hold a 2-D dataset (samples x channels), got none in {str(path)!r}")
-        self._ds = self._file[name]
-        if self._ds.ndim != 2 or self._ds.dtype.kind not in "iuf":
-            raise RecordingError(f"HDF5 recording dataset must be 2-D numeric (samples x channels), "
-                                 f"got shape {self._ds.shape} of {self._ds.dtype}")
+        name = choose_dataset(self._file, dataset)
+        self._ds = stored_dataset(self._file, name, self.allow_external, RecordingError)
         attrs = self._ds.attrs
         rate = rate_hz if rate_hz is not None else attrs.get("rate_hz", self._file.attrs.get("rate_hz"))
-        layout = Layout(channels=int(self._ds.shape[1]), rate_hz=float(rate) if rate is not None else float("nan"),
-                        dtype="float32", gain_uv=float(gain_uv if gain_uv is not None else attrs.get("gain_uv", 1.0)),
-                        offset_uv=float(attrs.get("offset_uv", 0.0)))
         if rate is None:
             raise RecordingError(f"HDF5 recording must carry a 'rate_hz' attribute (or give --rate), got none in {str(path)!r}")
+        gain = gain_uv if gain_uv is not None else attrs.get("gain_uv", 1.0)
+        for what, v in (("rate_hz", rate), ("gain_uv", gain), ("offset_uv", attrs.get("offset_uv", 0.0))):
+            if not is_number(v):
+                raise RecordingError(f"HDF5 recording attribute {what} must be one number, got {str(v)[:40]!r}")
+        layout = Layout(channels=int(self._ds.shape[1]), rate_hz=float(rate), dtype="float32", gain_uv=float(gain),
+                        offset_uv=float(attrs.get("offset_uv", 0.0)))
         layout.validate()
         self.layout = layout
         self.n_samples, self.n_channels = (int(s) for s in self._ds.shape)
@@ -290,16 +241,6 @@ class HDF5Recording(Recording):
         self._file.close()
 
 
-def _first_2d_dataset(f: h5py.File) -> str | None:
-    found: list[str] = []
-
-    def visit(name, obj):
-        if isinstance(obj, h5py.Dataset) and obj.ndim == 2 and not found:
-            found.append(name)
-    f.visititems(visit)
-    return found[0] if found else None
-
-
 def metadata_path(path: str | Path) -> Path | None:
     """The metadata file beside ``path`` (``name.ext.rigside.toml`` or ``name.rigside.toml``)."""
     p = Path(path)
@@ -319,17 +260,20 @@ def side_files(path: str | Path) -> list[Path]:
 def read_metadata(meta: str | Path) -> Layout:
     """Parse a metadata file of our schema into a :class:`Layout`."""
     try:
-        data = tomllib.loads(Path(meta).read_text())
-    except (tomllib.TOMLDecodeError, UnicodeDecodeError) as exc:
-        raise RecordingError(f"metadata file must be valid TOML, got {str(meta)!r}: {exc}") from None
+        text = Path(meta).read_text(encoding="utf-8")
+    except UnicodeDecodeError as exc:
+        raise RecordingError(f"metadata file must be valid TOML (UTF-8 text), got {str(meta)!r}: {exc}") from None
+    data = parse_toml(text, f"metadata file {str(meta)!r}", RecordingError)
     rec = data.get("recording")
     if not isinstance(rec, dict):
         raise RecordingError(f"metadata file must have a [recording] table, got none in {str(meta)!r}")
-    known = {"schema", "dtype", "channels", "rate_hz", "gain_uv", "offset_uv", "header_bytes"}
+    known = {"schema", "dtype", "channels", "rate_hz", "gain_uv", "offset_uv", "offset_counts", "header_bytes"}
     unknown = set(rec) - known
     if unknown:
         raise RecordingError(f"metadata [recording] keys must be among {', '.join(sorted(known))}, "
                              f"got {', '.join(sorted(unknown))}")
+    if not (is_integer(rec.get("schema", 1)) and rec.get("schema", 1) == 1):
+        raise RecordingError(f"metadata schema must be 1, got {rec['schema']!r} in {str(meta)!r} (a newer rigside?)")
     for key in ("channels", "rate_hz"):
         if key not in rec:
             raise RecordingError(f"metadata [recording] must give {key}, got none in {str(meta)!r}")
@@ -339,9 +283,9 @@ def read_metadata(meta: str | Path) -> Layout:
                              f"{groups!r}"[:200])
     layout = Layout(channels=rec["channels"], rate_hz=rec["rate_hz"], dtype=rec.get("dtype", "int16"),
                     gain_uv=rec.get("gain_uv", 1.0), offset_uv=rec.get("offset_uv", 0.0),
-                    header_bytes=rec.get("header_bytes", 0),
+                    header_bytes=rec.get("header_bytes", 0), offset_counts=rec.get("offset_counts", 0.0),
                     groups=[g["channels"] for g in groups] or None,
-                    group_names=[str(g.get("name", f"group {i + 1}")) for i, g in enumerate(groups)] or None)
+                    group_names=[str(g.get("name", f"group {i}")) for i, g in enumerate(groups)] or None)
     if isinstance(layout.rate_hz, int):
         layout.rate_hz = float(layout.rate_hz)
     layout.validate()
@@ -349,26 +293,28 @@ def read_metadata(meta: str | Path) -> Layout:
 
 
 def write_metadata(path: str | Path, layout: Layout) -> Path:
-    """Write the metadata file of our schema beside the raw file ``path``."""
+    """Write the metadata file of our schema beside the raw file ``path`` (atomically)."""
     layout.validate()
-    lines = ["# rigside recording description", "[recording]", "schema = 1",
-             f'dtype = "{layout.dtype}"', f"channels = {layout.channels}", f"rate_hz = {float(layout.rate_hz)!r}",
-             f"gain_uv = {float(layout.gain_uv)!r}", f"offset_uv = {float(layout.offset_uv)!r}",
-             f"header_bytes = {layout.header_bytes}"]
-    for i, g in enumerate(layout.groups or []):
-        name = (layout.group_names or [])[i] if layout.group_names and i < len(layout.group_names) else f"group {i + 1}"
-        lines += ["", "[[group]]", f'name = "{name}"', f"channels = {list(map(int, g))}"]
+    rec = {"schema": 1, "dtype": layout.dtype, "channels": layout.channels, "rate_hz": float(layout.rate_hz),
+           "gain_uv": float(layout.gain_uv), "offset_uv": float(layout.offset_uv), "offset_counts": float(layout.offset_counts),
+           "header_bytes": layout.header_bytes}
+    names = layout.group_names or []
+    groups = [{"name": str(names[i]) if i < len(names) else f"group {i}", "channels": [int(c) for c in g]}
+              for i, g in enumerate(layout.groups or [])]
+    text = "# rigside recording description\n" + tomli_w.dumps({"recording": rec} | ({"group": groups} if groups else {}))
     meta = Path(path).with_name(Path(path).stem + META_SUFFIX)
-    return atomic_write(meta, lambda tmp: tmp.write_text("\n".join(lines) + "\n"))
+    return atomic_write(meta, lambda tmp: tmp.write_text(text, encoding="utf-8"))
 
 
 def open_recording(path: str | Path, *, channels: int | None = None, rate_hz: float | None = None,
                    dtype: str | None = None, gain_uv: float | None = None, offset_uv: float | None = None,
-                   group_size: int | None = None, dataset: str | None = None) -> Recording:
+                   group_size: int | None = None, dataset: str | None = None, header_bytes: int | None = None,
+                   offset_counts: float | None = None, allow_external: bool = False) -> Recording:
     """Open a recording read-only, choosing the reader from the file.
 
     HDF5 files are recognised by their signature; anything else is raw binary described by
-    its metadata file, with any keyword given here overriding the file.
+    its metadata file, with any keyword given here overriding the file. HDF5 samples kept in
+    other files are refused unless ``allow_external`` (:func:`core.h5safe.stored_dataset`).
     """
     p = Path(path)
     if not p.exists():
@@ -378,7 +324,7 @@ def open_recording(path: str | Path, *, channels: int | None = None, rate_hz: fl
     if p.stat().st_size == 0:
         raise RecordingError(f"recording file must not be empty, got 0 bytes in {str(path)!r}")
     if h5py.is_hdf5(p):
-        rec = HDF5Recording(p, dataset=dataset, rate_hz=rate_hz, gain_uv=gain_uv)
+        rec = HDF5Recording(p, dataset=dataset, rate_hz=rate_hz, gain_uv=gain_uv, allow_external=allow_external)
         if group_size is not None:
             rec._init_groups(groups_of_size(rec.n_channels, group_size), None)
         return rec
@@ -391,7 +337,8 @@ def open_recording(path: str | Path, *, channels: int | None = None, rate_hz: fl
     else:
         layout = Layout(channels=channels, rate_hz=rate_hz)
     for key, value in (("channels", channels), ("rate_hz", rate_hz), ("dtype", dtype),
-                       ("gain_uv", gain_uv), ("offset_uv", offset_uv)):
+                       ("gain_uv", gain_uv), ("offset_uv", offset_uv), ("header_bytes", header_bytes),
+                       ("offset_counts", offset_counts)):
         if value is not None:
             setattr(layout, key, value)
     if group_size is not None:

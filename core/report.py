@@ -1,4 +1,4 @@
-"""Self-contained HTML report of an audit: one file, plots drawn as inline SVG.
+"""Self-contained HTML report of an audit: one file, plots as inline SVG (:mod:`core.report_figures`).
 
 Sections: what was compared and the cautions; a summary table (one row per imported unit,
 linked to its section); the overlap (Jaccard) matrix; then per imported unit its row of numbers and
@@ -21,10 +21,9 @@ from .correlograms import isi_histogram
 from .journal import utc_now
 from .numbers import format_number
 from .params import censored_note, metric_settings
-from .svg_plot import Axes, auto_axes, heatmap
+from .report_figures import FRESH, IMPORTED, overlap_figure, amplitude_figure, isi_figure, waveform_figure
 from .unit_table import CAUTION as QUALITY_CAUTION
 
-IMPORTED, FRESH = "#c0612b", "#2b7a8c"
 MAX_POINTS = 400          # amplitude points drawn per side (spread subsample)
 MAX_MATRIX_COLUMNS = 80
 SUMMARY = ("unit", "n_spikes", "matched_fraction", "closest_fresh_unit", "overlap_jaccard", "false_positive_estimate",
@@ -74,44 +73,24 @@ def _matrix(result: AuditResult) -> str:
     keep = np.flatnonzero(a.max(axis=0) >= 0.05)
     keep = keep[np.argsort(-a[:, keep].max(axis=0), kind="stable")][:MAX_MATRIX_COLUMNS]
     keep = np.sort(keep)
+    if len(keep) == 0:
+        return "<p>No fresh unit overlaps (Jaccard) at least 0.05 with any imported unit.</p>"
     note = "" if len(keep) == a.shape[1] else (f"<p>Showing the {len(keep)} of {a.shape[1]} fresh units "
                                                f"overlapping (Jaccard) at least 0.05 with some imported unit.</p>")
-    return note + heatmap(a[:, keep], result.imported_ids, result.fresh_ids[keep],
-                          "Overlap (Jaccard; rows: imported units, columns: fresh units)")
+    return note + overlap_figure(a[:, keep], result.imported_ids, result.fresh_ids[keep])
 
 
 def _waveforms(imp: WaveformSummary, fresh: WaveformSummary | None) -> str:
-    n_t = len(imp.times_ms)
-    gap = max(2, n_t // 6)
-    offsets = {int(c): k * (n_t + gap) for k, c in enumerate(imp.channels)}
-    sides = [(imp, IMPORTED)] + ([(fresh, FRESH)] if fresh is not None else [])
-    ys = [s.mean - s.sd for s, _ in sides] + [s.mean + s.sd for s, _ in sides]
-    ax = auto_axes(360, 180, [np.array([0.0, len(offsets) * (n_t + gap) - gap])],
-                   [np.ravel(y) for y in ys], title="mean waveform +-1 SD per channel",
-                   ylabel="uV")
-    ax.show_xticks = False
-    for s, color in sides:
-        for k, c in enumerate(s.channels):
-            if int(c) not in offsets:
-                continue
-            x = offsets[int(c)] + np.arange(n_t)
-            ax.band(x, s.mean[:, k] - s.sd[:, k], s.mean[:, k] + s.sd[:, k], color, 0.15)
-            ax.line(x, s.mean[:, k], color, 1.4)
-    for c, off in offsets.items():
-        ax.text(float(ax.px(off + n_t / 2)), ax.h - 20, f"ch {c}", anchor="middle")
-    return ax.svg()
+    return waveform_figure([(imp, IMPORTED)] + ([(fresh, FRESH)] if fresh is not None else []))
 
 
 def _isi(t_imp: np.ndarray, t_fresh: np.ndarray | None, refractory_ms: float) -> str:
     sides = [(t_imp, IMPORTED)] + ([(t_fresh, FRESH)] if t_fresh is not None else [])
-    hists = [(isi_histogram(t, 0.001, 0.05), color) for t, color in sides]
-    top = max([float(c.max()) for (c, _), _ in hists if len(c)] + [1.0])
-    ax = Axes(300, 180, (0, 50), (0, top * 1.05), title="ISI histogram", xlabel="interval (ms)",
-              ylabel="count")
-    for (counts, edges), color in hists:
-        ax.steps(edges * 1000, counts, color)
-    ax.vline(refractory_ms)
-    return ax.svg()
+    hists = []
+    for t, color in sides:
+        counts, edges = isi_histogram(t, 0.001, 0.05)
+        hists.append((counts, edges * 1000, color))
+    return isi_figure(hists, refractory_ms)
 
 
 def _spread(times: np.ndarray, amps: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -125,11 +104,7 @@ def _amplitudes(result: AuditResult, unit: int, best: int | None) -> str:
     sides = [(*_spread(*result.imported_train(unit)), IMPORTED)]
     if best is not None:
         sides.append((*_spread(*result.fresh.train(best)), FRESH))
-    ax = auto_axes(360, 180, [np.array([0.0, result.fresh.events.duration_s])], [a for _, a, _ in sides],
-                   title="amplitude over time", xlabel="time (s)", ylabel="uV")
-    for t, a, color in sides:
-        ax.points(t, a, color)
-    return ax.svg()
+    return amplitude_figure(sides, result.fresh.events.duration_s)
 
 
 def _unit_section(result: AuditResult, i: int) -> str:

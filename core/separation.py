@@ -9,7 +9,8 @@ own mean, under the unit's own covariance::
   the events outside the unit, n_C the number of events inside it. Undefined when fewer events
   lie outside than inside.
 - L-ratio (Schmitzer-Torbert et al. 2005, Neuroscience 131:1-11): L = sum over outside events
-  of the chi-square survival function of D^2 with as many degrees of freedom as features;
+  of the chi-square survival function of D^2 with as many degrees of freedom as features
+  (``scipy.special.chdtrc``);
   L-ratio = L / n_C. Undefined when no event lies outside.
 
 The covariance is the sample covariance with the n - 1 normalisation (``np.cov`` default).
@@ -18,11 +19,11 @@ Both assume a unit's events form a Gaussian cloud in feature space.
 
 from __future__ import annotations
 
-import math
 from dataclasses import dataclass
 
 import numba
 import numpy as np
+from scipy.special import chdtrc
 
 from .errors import RigsideError
 from .metric_inputs import MetricValue, undefined
@@ -32,50 +33,8 @@ _SINGULAR_RCOND = 1e-10
 
 
 @numba.njit(cache=True, nogil=True)
-def _chi2_sf(x, df):
-    """Chi-square survival function for an integer number of degrees of freedom.
-
-    Closed forms (Abramowitz & Stegun 26.4.4-5): with y = x/2, even df = 2m gives
-    exp(-y) * sum_{i<m} y^i / i!; odd df = 2m+1 gives erfc(sqrt(y)) plus
-    exp(-y) * sum_{i=1..m} y^(i-1/2) / Gamma(i+1/2). Terms are Poisson-like weights (at
-    most 1), summed directly while exp(-y) is representable and in logs beyond.
-    """
-    if x <= 0.0:
-        return 1.0
-    y = 0.5 * x
-    m = df // 2
-    if df % 2 == 0:
-        total = 0.0
-        if y < 700.0:
-            term = math.exp(-y)
-            for i in range(m):
-                if i > 0:
-                    term *= y / i
-                total += term
-        else:
-            ly = math.log(y)
-            for i in range(m):
-                total += math.exp(-y + i * ly - math.lgamma(i + 1.0))
-        return min(total, 1.0)
-    total = math.erfc(math.sqrt(y))
-    if m == 0:
-        return total
-    if y < 700.0:
-        term = math.exp(-y) * math.sqrt(y) / math.gamma(1.5)
-        for i in range(1, m + 1):
-            if i > 1:
-                term *= y / (i - 0.5)
-            total += term
-    else:
-        ly = math.log(y)
-        for i in range(1, m + 1):
-            total += math.exp(-y + (i - 0.5) * ly - math.lgamma(i + 0.5))
-    return min(total, 1.0)
-
-
-@numba.njit(cache=True, nogil=True)
 def _outside_distances(x, mu, whiten, in_unit, n_out):
-    """Squared Mahalanobis distances of the outside rows and their summed chi-square tail.
+    """Squared Mahalanobis distances of the outside rows.
 
     ``whiten`` is the inverse of the lower Cholesky factor of the unit's covariance (lower
     triangular), so D^2 = |whiten @ (x - mu)|^2.
@@ -83,7 +42,6 @@ def _outside_distances(x, mu, whiten, in_unit, n_out):
     n, d = x.shape
     d2 = np.empty(n_out)
     v = np.empty(d)
-    lsum = 0.0
     k = 0
     for i in range(n):
         if in_unit[i]:
@@ -97,36 +55,8 @@ def _outside_distances(x, mu, whiten, in_unit, n_out):
                 y += whiten[r, c] * v[c]
             s += y * y
         d2[k] = s
-        lsum += _chi2_sf(s, d)
         k += 1
-    return d2, lsum
-
-
-@numba.njit(cache=True, nogil=True)
-def _chi2_sf_flat(x, df):
-    out = np.empty(x.size)
-    for i in range(x.size):
-        out[i] = _chi2_sf(x[i], df)
-    return out
-
-
-def chi2_sf(x: np.ndarray, df: int) -> np.ndarray:
-    """Chi-square survival function for integer ``df`` >= 1 (closed form, compiled).
-
-    Parameters
-    ----------
-    x
-        Values (any shape); values at or below 0 give 1.
-    df
-        Degrees of freedom, a positive integer.
-
-    Returns
-    -------
-    numpy.ndarray
-        P(X > x) for X chi-square with ``df`` degrees of freedom, shaped like ``x``.
-    """
-    x = np.asarray(x, dtype=np.float64)
-    return _chi2_sf_flat(np.ascontiguousarray(x).ravel(), int(df)).reshape(x.shape)
+    return d2
 
 
 @dataclass(frozen=True)
@@ -186,8 +116,8 @@ def separation_of_checked(x: np.ndarray, in_unit: np.ndarray) -> Separation:
     if n_out == 0:
         return both_undefined("no events lie outside the unit in its feature space")
     whiten = np.tril(np.linalg.inv(np.linalg.cholesky(cov)))
-    d2, lsum = _outside_distances(np.ascontiguousarray(x), mu, whiten, in_unit, n_out)
-    lr = MetricValue(lsum / n_in)
+    d2 = _outside_distances(np.ascontiguousarray(x), mu, whiten, in_unit, n_out)
+    lr = MetricValue(float(chdtrc(d, d2).sum()) / n_in)
     if n_out < n_in:
         iso = undefined(f"fewer events outside the unit ({n_out}) than inside ({n_in})")
     else:

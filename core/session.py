@@ -36,7 +36,7 @@ import numpy as np
 from . import __version__
 from .atomic import atomic_copy_bytes, atomic_write, safe_unlink
 from .content import content_hash
-from .errors import ParamError, SessionError
+from .errors import ParamError, RigsideError, SessionError
 from .events import COLUMNS, EventTable
 from .h5image import h5_in_memory
 from .h5safe import CHECKSUM_ATTR, array, attr, read_verified, text, write_text
@@ -46,6 +46,7 @@ from .progress import CancelFn, ProgressFn
 from .recording import Recording
 from .session_labels import labels_to_text, read_labels, upgrade_format1_journal
 from .sorting import Sorting, SortingData, Unit
+from .textparse import parse_json
 
 FORMAT = "rigside session"
 FORMAT_VERSION = 2
@@ -241,16 +242,15 @@ def _interpret(f: h5py.File, data: dict, path: Path) -> tuple[RecordingRef, Sess
     g = f["recording"] if "recording" in f else None
     if g is None:
         raise SessionError("session group recording must be present, got none")
+    desc = parse_json(attr(g, "description", str, "recording"), "session recording description", SessionError)
+    params_dict = parse_json(attr(f["params"], "json", str, "params"), "session parameters", SessionError)
+    names = parse_json(attr(f["features"], "names", str, "features"), "session feature names", SessionError)
+    notes = parse_json(text(data, "sorting/notes"), "session notes", SessionError)
     try:
-        desc = json.loads(attr(g, "description", str, "recording"))
-        params_dict = json.loads(attr(f["params"], "json", str, "params"))
-        names = json.loads(attr(f["features"], "names", str, "features"))
-        notes = json.loads(text(data, "sorting/notes"))
-    except (KeyError, json.JSONDecodeError) as exc:
-        raise SessionError(f"session must hold the recording, parameters, features and notes as JSON, "
-                           f"got {exc}") from None
-    try:
+        if not isinstance(params_dict, dict):
+            raise ParamError(f"parameters must be a table, got {str(params_dict)[:40]!r}")
         params = Params.from_dict(params_dict)
+        params.validate()
     except (ParamError, AttributeError, TypeError) as exc:
         raise SessionError(f"session parameters must be valid, got: {exc}") from None
     if not isinstance(desc, dict):
@@ -264,11 +264,13 @@ def _interpret(f: h5py.File, data: dict, path: Path) -> tuple[RecordingRef, Sess
     ev = f["events"]
     for a, kind in (("rate_hz", float), ("n_samples", int), ("floor_sigma", float), ("polarity", str)):
         attr(ev, a, kind, "events")
-    events = EventTable.from_h5_group(ev)
-    if not (events.rate_hz > 0 and events.n_samples > 0 and np.all(events.group >= 0)):
-        raise SessionError(f"event table must have a positive rate, length and groups, got rate "
-                           f"{events.rate_hz}, {events.n_samples} samples")
+    try:
+        events = EventTable.from_h5_group(ev)
+    except RigsideError as exc:
+        raise SessionError(f"session {exc}") from None
     values = array(data, "features/values", "f4", 2)
+    if not np.isfinite(values).all():
+        raise SessionError("session dataset features/values must hold finite numbers, got NaN or infinite values")
     assign = array(data, "sorting/assignments", "i4", 1)
     ids = array(data, "sorting/unit_id", "i4", 1)
     groups = array(data, "sorting/unit_group", "i4", 1)
@@ -283,6 +285,9 @@ def _interpret(f: h5py.File, data: dict, path: Path) -> tuple[RecordingRef, Sess
         raise SessionError(f"session arrays must agree in length ({len(events)} events, {m} units), got "
                            f"features {values.shape}, assignments {assign.shape}, unit columns "
                            f"{len(groups)}/{len(labels)}/{len(notes)} with unique ids")
+    if m and not (groups.min() >= 0 and groups.max() < events.n_channels and ids.min() >= 1):
+        raise SessionError(f"unit ids must be at least 1 and unit groups from 0 to {events.n_channels - 1}, "
+                           f"got ids {int(ids.min())}.. and groups {int(groups.min())}..{int(groups.max())}")
     units = {int(u): Unit(int(gr), la, note) for u, gr, la, note in zip(ids, groups, labels, notes)}
     journal = Journal.from_text(text(data, "journal/lines"))
     if version == 1:

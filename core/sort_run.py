@@ -19,7 +19,8 @@ from .atomic import atomic_copy_bytes, atomic_write, check_not_input, free_backu
 from .content import content_hash
 from .errors import RigsideError, SessionError
 from .events import EventTable
-from .features import Features, compute_features
+from .features import Features, compute_features, feature_names
+from .h5safe import read_verified
 from .first_pass import first_pass
 from .h5image import write_h5
 from .params import Params
@@ -28,6 +29,7 @@ from .progress import CancelFn, ProgressFn, report
 from .recording import Recording
 from .session import RecordingRef, Session, save_session
 from .sorting import Sorting
+from .textparse import parse_json
 
 STAGE_SHARES = (0.45, 0.35, 0.2)  # detection, features, clustering: shares of the progress bar
 
@@ -38,8 +40,9 @@ def checkpoint_path(session_path: str | Path) -> Path:
 
 
 def _key(recording: Recording, params: Params) -> str:
-    """What a checkpoint must match: the recording's fingerprint and every parameter."""
-    return json.dumps({"fingerprint": recording.fingerprint(), "params": params.to_dict()}, sort_keys=True)
+    """What a checkpoint must match: the recording's fingerprint, channel groups and every parameter."""
+    return json.dumps({"fingerprint": recording.fingerprint(), "groups": [g.tolist() for g in recording.groups],
+                       "params": params.to_dict()}, sort_keys=True)
 
 
 def _write_checkpoint(path: Path, key: str, events: EventTable, features: Features | None,
@@ -54,34 +57,53 @@ def _write_checkpoint(path: Path, key: str, events: EventTable, features: Featur
     atomic_write(path, lambda tmp: write_h5(tmp, fill))
 
 
-def _read_checkpoint(path: Path, key: str, recording: Recording,
+def _read_checkpoint(path: Path, key: str, recording: Recording, params: Params,
                      progress: ProgressFn, cancel: CancelFn) -> tuple[EventTable | None, Features | None]:
-    """Events and features of a matching checkpoint; (None, None) when absent or stale.
+    """Events and features of a matching checkpoint; (None, None) when absent, unreadable or stale.
 
-    A checkpoint matches when its key (quick fingerprint, parameters) and the hash of the
-    recording's whole content (computed here) agree.
+    A checkpoint matches when its key (quick fingerprint, groups, parameters) and the hash of the
+    recording's whole content (computed here) agree. One that matches but whose content does not
+    fit the recording is refused (:class:`RigsideError`), since our own writes never leave one.
     """
     if not path.exists():
         return None, None
     try:
-        with h5py.File(path, "r") as f:
-            stored = f.attrs.get("content_hash")
-            if f.attrs.get("key") != key or not isinstance(stored, str) or not stored:
-                return None, None
-            recording.content_hash = content_hash(recording.path, progress, cancel)
-            if recording.content_hash != stored:
-                return None, None
+        f = h5py.File(path, "r")
+    except OSError:
+        return None, None  # not an HDF5 file any more: only costs recomputation
+    with f:
+        found, stored = f.attrs.get("key"), f.attrs.get("content_hash")
+        if not isinstance(found, str) or found != key or not isinstance(stored, str) or not stored:
+            return None, None
+        recording.content_hash = content_hash(recording.path, progress, cancel)
+        if recording.content_hash != stored:
+            return None, None
+        try:
+            data, _ = read_verified(f, path)
             events = EventTable.from_h5_group(f["events"])
-            features = None
-            if "features" in f:
-                values = np.asarray(f["features"][()], dtype=np.float32)
-                names = json.loads(f.attrs["feature_names"])
-                if values.shape != (len(events), len(names)):
-                    return events, None
-                features = Features(values, names)
-            return events, features
-    except (OSError, KeyError, ValueError, RigsideError):
-        return None, None  # a damaged checkpoint only costs recomputation
+            _check_fits(events, recording)
+            if "features" not in data:
+                return events, None
+            values = data["features"]
+            names = parse_json(str(f.attrs["feature_names"]), "checkpoint feature names")
+            if names != feature_names(params.snippets.n_pcs) or values.dtype != np.float32 \
+                    or values.shape != (len(events), len(names)) or not np.isfinite(values).all():
+                raise RigsideError(f"features must be finite float32 of shape ({len(events)}, {len(names)}) "
+                                   f"named as the parameters say, got {values.dtype} {values.shape}")
+            return events, Features(values, names)
+        except (RigsideError, OSError, KeyError, ValueError, TypeError) as exc:
+            raise RigsideError(f"checkpoint {str(path)!r} must hold this recording's events and features, "
+                               f"got {exc}; delete it or run without --resume") from None
+
+
+def _check_fits(events: EventTable, recording: Recording) -> None:
+    if (events.n_samples, events.n_channels, events.rate_hz) != (
+            recording.n_samples, recording.n_channels, recording.rate_hz):
+        raise RigsideError(f"events must describe {recording.n_samples} samples of {recording.n_channels} "
+                           f"channels at {recording.rate_hz:g} Hz, got {events.n_samples} of "
+                           f"{events.n_channels} at {events.rate_hz:g} Hz")
+    if len(events) and np.any(recording.channel_group[events.channel] != events.group):
+        raise RigsideError("event groups must be the recording's channel groups, got other group numbers")
 
 
 def sort_recording(recording: Recording, params: Params, checkpoint: Path | None = None,
@@ -113,7 +135,8 @@ def sort_recording(recording: Recording, params: Params, checkpoint: Path | None
     a, b, _ = STAGE_SHARES
     events, features = (None, None)
     if checkpoint is not None and resume:
-        events, features = _read_checkpoint(checkpoint, key, recording, lambda f, m: report(progress, a * f, m),
+        events, features = _read_checkpoint(checkpoint, key, recording, params,
+                                            lambda f, m: report(progress, a * f, m),
                                             cancel)
     if events is None:
         table = detect(recording, params, progress=lambda f, m: report(progress, a * f, m), cancel=cancel)

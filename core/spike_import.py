@@ -45,11 +45,15 @@ class SpikeTrains:
         Unit id of each spike (int64), ascending.
     source
         File the spikes came from (for reports).
+    empty_units
+        Ids the file lists (HDF5 ``unit_ids``, NWB units table) that hold no spike; they
+        cannot be audited and are left out, and :meth:`empty_note` says so.
     """
 
     times_s: np.ndarray
     units: np.ndarray
     source: str = ""
+    empty_units: tuple[int, ...] = ()
 
     @property
     def unit_ids(self) -> np.ndarray:
@@ -61,15 +65,27 @@ class SpikeTrains:
 
     def bounds(self) -> tuple[np.ndarray, np.ndarray]:
         """Unit ids and the index where each unit's spikes start (plus the end)."""
-        ids = self.unit_ids
-        return ids, np.searchsorted(self.units, np.append(ids, ids[-1] + 1) if len(ids) else ids)
+        ids = self.unit_ids        # ``id + 1`` would overflow at the largest int64 id: search right of the last
+        return ids, np.append(np.searchsorted(self.units, ids), len(self.units)) if len(ids) else ids
+
+    def span(self, unit: int) -> tuple[int, int]:
+        """Index range ``[lo, hi)`` of one unit's spikes (empty when the unit has none)."""
+        u = np.int64(unit)
+        return int(np.searchsorted(self.units, u, "left")), int(np.searchsorted(self.units, u, "right"))
 
     def train(self, unit: int) -> np.ndarray:
         """Sorted spike times (s) of one unit."""
-        lo, hi = np.searchsorted(self.units, [unit, unit + 1])
+        lo, hi = self.span(unit)
         if lo == hi:
             raise SpikeFileError(f"unit must be one of the imported units, got {unit!r}")
         return self.times_s[lo:hi]
+
+    def empty_note(self) -> str:
+        """A sentence naming the units the file listed without spikes ("" when none)."""
+        if not self.empty_units:
+            return ""
+        shown = ", ".join(map(str, self.empty_units[:10])) + (", ..." if len(self.empty_units) > 10 else "")
+        return f"{len(self.empty_units)} listed units without spikes left out: {shown}"
 
     def check_within(self, duration_s: float, rate_hz: float | None = None) -> None:
         """Raise :class:`SpikeFileError` if a spike lies past the end of the recording.
@@ -93,7 +109,7 @@ class SpikeTrains:
                              f"{last:.6g} s (first in unit {unit}){hint}")
 
 
-def finish(times_s, units, source: str) -> SpikeTrains:
+def finish(times_s, units, source: str, listed=None) -> SpikeTrains:
     """Check raw columns and build :class:`SpikeTrains` (sorted by unit, stable in time).
 
     Parameters
@@ -104,6 +120,8 @@ def finish(times_s, units, source: str) -> SpikeTrains:
         Unit ids in file order (integers, or floats holding whole numbers).
     source
         Name of the file, used in messages.
+    listed
+        Every unit id the file lists, when it lists them apart from the spikes (``None``: no list).
     """
     name = source or "spike file"
     t = _numeric_1d(times_s, f"spike times of {name}")
@@ -126,7 +144,8 @@ def finish(times_s, units, source: str) -> SpikeTrains:
         i = int(np.argmax(backwards))
         raise SpikeFileError(f"spike times of each unit in {name} must be sorted in time, got "
                              f"{t[i]:.6g} s before {t[i + 1]:.6g} s in unit {int(u[i])}")
-    return SpikeTrains(np.ascontiguousarray(t), np.ascontiguousarray(u), source)
+    empty = () if listed is None else tuple(int(x) for x in np.setdiff1d(_integer_ids(listed, f"unit list of {name}"), u))
+    return SpikeTrains(np.ascontiguousarray(t), np.ascontiguousarray(u), source, empty)
 
 
 def _numeric_1d(x, what: str) -> np.ndarray:
@@ -222,5 +241,6 @@ def load_spikes(path: str | Path, rate_hz: float | None = None, group: str | Non
     if not (isinstance(time_offset_s, (int, float)) and math.isfinite(time_offset_s)):
         raise SpikeFileError(f"time offset must be a finite number of seconds, got {time_offset_s!r}")
     kwargs = {"group": group} if suffix in (".h5", ".hdf5") else {}
-    times, units = readers[suffix](path, rate_hz, **kwargs)
-    return finish(np.asarray(times, dtype=np.float64) - float(time_offset_s), units, path.name)
+    times, units, *listed = readers[suffix](path, rate_hz, **kwargs)
+    return finish(np.asarray(times, dtype=np.float64) - float(time_offset_s), units, path.name,
+                  listed[0] if listed else None)

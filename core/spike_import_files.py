@@ -1,6 +1,7 @@
 """Readers of the spike-file layouts described in :mod:`core.spike_import`.
 
-Each reader returns ``(times_s, units)`` in file order; :func:`core.spike_import.finish`
+Each reader returns ``(times_s, units)`` in file order, plus the listed unit ids for layouts
+that list units apart from their spikes (HDF5 ``unit_ids``, NWB); :func:`core.spike_import.finish`
 checks them. Sizes declared by a file (NumPy headers, HDF5 shapes) are checked against the
 size of the file before anything is allocated, so a small hostile file cannot claim gigabytes.
 """
@@ -191,7 +192,7 @@ def _h5_dataset(g: h5py.Group, name: str, source: str) -> h5py.Dataset:
     return ds
 
 
-def read_h5(path: Path, rate_hz: float | None, group: str | None = None) -> tuple[np.ndarray, np.ndarray]:
+def read_h5(path: Path, rate_hz: float | None, group: str | None = None) -> tuple[np.ndarray, ...]:
     """HDF5 group of 1-D datasets ``unit`` and one time column; ``unit_ids`` optional."""
     try:
         f = h5py.File(path, "r")
@@ -227,11 +228,12 @@ def read_h5(path: Path, rate_hz: float | None, group: str | None = None) -> tupl
         if len(unknown):
             raise SpikeFileError(f"units of {source} must be listed in unit_ids, got unknown units "
                                  f"{unknown[:10].tolist()}")
+        return to_seconds(tcol, data[tcol], rate_hz, source), units, known
     return to_seconds(tcol, data[tcol], rate_hz, source), units
 
 
 # ---- NWB ------------------------------------------------------------------------------
-def read_nwb(path: Path, rate_hz: float | None = None) -> tuple[np.ndarray, np.ndarray]:
+def read_nwb(path: Path, rate_hz: float | None = None) -> tuple[np.ndarray, ...]:
     """The units table of an NWB file: ``spike_times`` (seconds) of every unit id."""
     if not h5py.is_hdf5(path):
         raise SpikeFileError(f"{path.name} must be an NWB (HDF5) file, got another type or a truncated file")
@@ -270,4 +272,4 @@ def read_nwb(path: Path, rate_hz: float | None = None) -> tuple[np.ndarray, np.n
         raise SpikeFileError(f"{path.name}: the units table index must split the {len(times)} spike times "
                              f"into {len(ids)} units, got inconsistent offsets")
     counts = np.diff(np.concatenate([[0], ends]))
-    return times, np.repeat(ids, counts)
+    return times, np.repeat(ids, counts), ids

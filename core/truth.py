@@ -13,6 +13,10 @@ from .events import EventTable
 from .matching import match_times
 
 
+TRUTH_HEADER = "unit,sample,time_s"
+"""First line of the ground-truth spike file written by :mod:`core.synth`."""
+
+
 @dataclass
 class Truth:
     """True spikes (sample, unit) and one row per unit (group, peak channel, amplitude...)."""
@@ -30,6 +34,10 @@ def load_truth(path: str | Path) -> Truth:
     path = Path(path)
     units_path = path.with_name(path.name.replace(".truth.csv", ".truth_units.csv"))
     try:
+        with open(path, newline="") as fh:
+            header = fh.readline().strip()
+        if header != TRUTH_HEADER:
+            raise ValueError(f"its first line must be {TRUTH_HEADER!r}, got {header[:60]!r}")
         spikes = np.loadtxt(path, delimiter=",", skiprows=1, usecols=(0, 1), dtype=np.int64, ndmin=2)
         with open(units_path, newline="") as fh:
             rows = list(csv.DictReader(fh))
@@ -38,7 +46,7 @@ def load_truth(path: str | Path) -> Truth:
                   unit_peak_channel={int(r["unit"]): int(r["peak_channel"]) for r in rows},
                   unit_peak_uv={int(r["unit"]): float(r["peak_uv"]) for r in rows},
                   unit_kind={int(r["unit"]): r["kind"] for r in rows})
-    except (OSError, ValueError, KeyError) as exc:
+    except (OSError, ValueError, KeyError, UnicodeDecodeError) as exc:
         raise RigsideError(f"ground truth must be readable CSV files beside the recording, got {str(path)!r}: {exc}") from None
     if len(t.sample) and np.any(np.diff(t.sample) < 0):
         raise RigsideError(f"ground truth spikes must be sorted by sample, got unsorted rows in {str(path)!r}")

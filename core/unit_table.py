@@ -9,7 +9,6 @@ flags units against limits.
 from __future__ import annotations
 
 import math
-from dataclasses import dataclass
 from typing import TYPE_CHECKING
 
 import numba
@@ -323,3 +322,15 @@ def unit_metrics_for_events(events: EventTable, units: np.ndarray, features: Fea
                               events.amplitude_sigma, events.channel, events.sigma_uv,
                               threshold_sigma, pcs, events.group, params, progress, cancel,
                               only_units)
+
+
+def sorting_unit_table(events: EventTable, sorting, threshold_sigma, params: MetricParams | None = None,
+                       progress: ProgressFn = None, cancel: CancelFn = None) -> dict[str, np.ndarray]:
+    """Quality numbers of every unit of a :class:`core.sorting.Sorting`, with its ``label`` column
+    (what the metrics CSV holds); see :func:`unit_metrics_for_events`."""
+    from .features import Features
+    features = Features(sorting.data.features, list(sorting.data.feature_names))
+    table = unit_metrics_for_events(events, sorting.assignments, features, threshold_sigma, params,
+                                    progress=progress, cancel=cancel)
+    table["label"] = [sorting.unit(u).label for u in table["unit"].tolist()]
+    return table

@@ -13,6 +13,7 @@ import csv
 import math
 from dataclasses import asdict, dataclass
 from pathlib import Path
+from typing import Collection
 
 import numpy as np
 
@@ -107,6 +108,23 @@ def quality_flag_text(table: dict[str, np.ndarray], limits=DEFAULT_LIMITS) -> li
     return out
 
 
+FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
+"""First characters that make spreadsheets read a cell as a formula."""
+
+
+def safe_text(value) -> str:
+    """A text cell spreadsheets will not run: a leading ``= + - @`` (or tab, CR) gets a single
+    quote in front, the usual neutralisation (common practice, no source). Numbers are never
+    passed through here."""
+    text = str(value)
+    return "'" + text if text.startswith(FORMULA_STARTS) else text
+
+
+def comment_text(line: str) -> str:
+    """Text for one ``#`` comment line: line breaks written as the two characters ``\\n``."""
+    return line.replace("\r\n", "\\n").replace("\n", "\\n").replace("\r", "\\n")
+
+
 def _cell(column: str, value) -> str:
     if column.endswith("_reason") or column not in COLUMNS:
         return str(value)
@@ -142,15 +160,17 @@ def write_unit_table_csv(table: dict[str, np.ndarray], path: str | Path,
         raise RigsideError("unit table columns must all have one row per unit, got differing lengths")
     settings = ", ".join(f"{k} = {v:g}" for k, v in asdict(params or MetricParams()).items())
     columns = list(COLUMNS) + [c for c in table if c not in COLUMNS]
+    text = [c for c in columns if c.endswith("_reason") or c not in COLUMNS]
     header = ["rigside unit quality table", CAUTION, f"settings: {settings}", censored_note(params or MetricParams())]
-    return write_described_csv(path, header,
-                               COLUMNS, columns, table, _cell)
+    return write_described_csv(path, header, COLUMNS, columns, table, _cell, text)
 
 
 def write_described_csv(path: str | Path, header: list[str], meanings: dict[str, str], columns: list[str],
-                        table: dict, cell) -> Path:
+                        table: dict, cell, text_columns: Collection[str] = ()) -> Path:
     """Write a table as CSV atomically, after ``#`` lines: the ``header`` lines, then one line
-    per described column giving its meaning and unit.
+    per described column giving its meaning and unit. Comment lines keep line breaks escaped
+    (:func:`comment_text`); cells are quoted by :mod:`csv`, so no text can start a row, and
+    cells of ``text_columns`` are neutralised for spreadsheets (:func:`safe_text`).
 
     Parameters
     ----------
@@ -166,18 +186,22 @@ def write_described_csv(path: str | Path, header: list[str], meanings: dict[str,
         Column name -> sequence of values, one per row.
     cell
         ``cell(column, value) -> str`` formats one value.
+    text_columns
+        Columns holding free text (names, notes, reasons), as opposed to numbers.
     """
     n = len(table[columns[0]]) if columns else 0
+    text = frozenset(text_columns)
 
     def write(tmp: Path) -> None:
         with open(tmp, "w", newline="", encoding="utf-8") as fh:
             for line in header:
-                fh.write(f"# {line}\n")
+                fh.write(f"# {comment_text(line)}\n")
             for name, meaning in meanings.items():
-                fh.write(f"# {name}: {meaning}\n")
+                fh.write(f"# {comment_text(f'{name}: {meaning}')}\n")
             w = csv.writer(fh)
             w.writerow(columns)
             for i in range(n):
-                w.writerow([cell(c, table[c][i]) for c in columns])
+                w.writerow([safe_text(cell(c, table[c][i])) if c in text else cell(c, table[c][i])
+                            for c in columns])
 
     return atomic_write(path, write)

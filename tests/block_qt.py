@@ -1,6 +1,6 @@
 """Import guard: makes Qt, pyqtgraph and app unimportable, to prove the core runs without them.
 
-Used by tests/test_boundaries.py, which runs the core tests in a subprocess with this guard.
+Imported first by the subprocesses of tests/test_boundaries.py and tests/core/test_report_figures.py.
 """
 
 import importlib.abc

@@ -12,6 +12,10 @@ from PySide6.QtWidgets import (QComboBox, QDialog, QDialogButtonBox, QDoubleSpin
 from core.recording import DTYPES, META_SUFFIX, Layout, groups_of_size
 
 
+UNSIGNED_CENTRE = {"uint16": 32768}
+"""Stored value of 0 µV proposed for unsigned sample types."""
+
+
 class RawLayoutDialog(QDialog):
     """Channels, sampling rate, sample type, gain, offset, header and group size."""
 
@@ -21,7 +25,8 @@ class RawLayoutDialog(QDialog):
         p = Path(path)
         size = p.stat().st_size if p.exists() else 0
         note = QLabel(f"<b>{p.name}</b> ({size:,} bytes) has no metadata file "
-                      f"(<tt>{p.stem}{META_SUFFIX}</tt>) beside it. Describe the interleaved samples:")
+                      f"(<tt>{p.stem}{META_SUFFIX}</tt>) beside it. Describe the interleaved samples (kept in "
+                      "that file when the folder is writable):")
         note.setWordWrap(True)
         self.channels = QSpinBox()
         self.channels.setRange(1, 4096)
@@ -41,6 +46,12 @@ class RawLayoutDialog(QDialog):
         self.offset = QDoubleSpinBox()
         self.offset.setRange(-1e9, 1e9)
         self.offset.setSuffix(" µV")
+        self.offset_counts = QDoubleSpinBox()
+        self.offset_counts.setRange(-(1 << 31), 1 << 32)
+        self.offset_counts.setDecimals(0)
+        self.offset_counts.setSuffix(" counts")
+        self.offset_counts.setToolTip("Stored value of 0 µV, subtracted before the gain (32768 for "
+                                      "unsigned 16-bit data centred on mid-range)")
         self.header = QSpinBox()
         self.header.setRange(0, 1 << 30)
         self.header.setSuffix(" bytes")
@@ -54,6 +65,7 @@ class RawLayoutDialog(QDialog):
         form.addRow("Sample type:", self.dtype)
         form.addRow("Gain:", self.gain)
         form.addRow("Offset:", self.offset)
+        form.addRow("Zero at stored value:", self.offset_counts)
         form.addRow("Header to skip:", self.header)
         form.addRow("Channels per group:", self.group_size)
         self.implied = QLabel("")
@@ -63,6 +75,7 @@ class RawLayoutDialog(QDialog):
             w.valueChanged.connect(self._update_implied)
         self.rate.valueChanged.connect(self._update_implied)
         self.dtype.currentTextChanged.connect(self._update_implied)
+        self.dtype.currentTextChanged.connect(self._centre_unsigned)
         buttons = QDialogButtonBox(QDialogButtonBox.StandardButton.Open | QDialogButtonBox.StandardButton.Cancel)
         buttons.accepted.connect(self.accept)
         buttons.rejected.connect(self.reject)
@@ -72,6 +85,12 @@ class RawLayoutDialog(QDialog):
         lay.addWidget(self.implied)
         lay.addWidget(buttons)
         self._update_implied()
+
+    def _centre_unsigned(self, dtype: str) -> None:
+        """Unsigned 16-bit data are centred on 32768; the other types on 0 (an entered value stays)."""
+        centre = UNSIGNED_CENTRE.get(dtype, 0)
+        if self.offset_counts.value() in (0, *UNSIGNED_CENTRE.values()):
+            self.offset_counts.setValue(centre)
 
     def _update_implied(self, *_) -> None:
         """Say what the entered layout makes of the file: its length, or why it cannot fit."""
@@ -90,5 +109,5 @@ class RawLayoutDialog(QDialog):
         n = self.channels.value()
         return Layout(channels=n, rate_hz=float(self.rate.value()), dtype=self.dtype.currentText(),
                       gain_uv=float(self.gain.value()), offset_uv=float(self.offset.value()),
-                      header_bytes=int(self.header.value()),
+                      header_bytes=int(self.header.value()), offset_counts=float(self.offset_counts.value()),
                       groups=groups_of_size(n, min(self.group_size.value(), n)))

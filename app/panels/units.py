@@ -23,6 +23,12 @@ from .. import palette
 from .base import Panel
 
 SORT_ROLE = Qt.ItemDataRole.UserRole + 1
+
+
+def plain_tooltip(text: str) -> str:
+    """A tooltip that shows ``text`` literally (Qt renders tooltip text that looks like HTML as
+    rich text, so user text is escaped inside a paragraph that keeps its line breaks)."""
+    return f"<p style='white-space:pre-wrap'>{html.escape(text)}</p>"
 FLAG_TINT = QColor(*palette.VERMILLION, 45)
 
 # (header, table column or a fixed key, scale, format, header tooltip)
@@ -134,7 +140,7 @@ class UnitTableModel(QAbstractTableModel):
             if role == Qt.ItemDataRole.ToolTipRole:
                 return self._tooltip(row, key)
         if role == Qt.ItemDataRole.ToolTipRole and key == "note" and r["note"]:
-            return r["note"]
+            return plain_tooltip(r["note"])
         return None
 
     def _tooltip(self, row: int, key: str) -> str:

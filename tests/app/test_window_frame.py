@@ -97,6 +97,7 @@ def test_raw_file_without_metadata_asks_for_its_layout(window, tmp_path, monkeyp
     rec = window.bench.recording
     assert rec.n_channels == 6 and [g.tolist() for g in rec.groups] == [[0, 1, 2], [3, 4, 5]]
     assert window.wait_idle(60)
+    (tmp_path / "plain.rigside.toml").unlink()    # saved by the dialog; without it the dialog asks again
     monkeypatch.setattr(RawLayoutDialog, "exec", lambda dialog: QDialog.DialogCode.Rejected)
     assert not window.open_path(str(raw))
     assert window.bench.recording is rec

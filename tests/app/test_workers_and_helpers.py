@@ -14,7 +14,6 @@ from app.workers import Runner
 from core.errors import RecordingError
 from core.filtering import design_bandpass
 from core.params import FilterParams
-from core.rice import sampled_crossing_rate
 from core.progress import check, report
 
 
@@ -108,16 +107,24 @@ def test_model_emits_only_on_change():
 
 
 def test_noise_only_rates_follow_the_sampled_rice_form():
-    """Rice (1944/45), sampled-data form; check values from ../shared/CHECKS.md section 3:
-    forward-backward order-3 Butterworth 300-6000 Hz at 30 kHz gives 30.82 /s at 3 sigma and
-    0.828 /s at 4 sigma (the continuous form overstates them: 37.37 and 1.128 /s)."""
+    """Rice (1944/45), sampled-data form fs [Phi(-k) - Phi2(-k, -k; rho1)], recomputed here
+    from scipy (rho1 by scipy.integrate.quad over scipy.signal.sosfreqz, Phi and Phi2 from
+    scipy.stats), not from the function the workbench interpolates; ../shared/CHECKS.md
+    section 3 prints 30.82 /s at 3 sigma and 0.828 /s at 4 sigma."""
+    from scipy import stats
+
+    from tests.core.test_rice import recomputed
+
     sos = design_bandpass(FilterParams(low_hz=300.0, high_hz=6000.0, order=3), 30000.0)
     bench = Workbench()
     bench.analysis = Analysis(sos=sos)
     bench.analysis.noise_grid = noise_rate_grid(sos, 30000.0, "negative")
-    rates = bench.noise_rates(np.array([3.0, 4.0, 4.37]))
-    np.testing.assert_allclose(rates[:2], [30.82, 0.828], rtol=0.005)
-    np.testing.assert_allclose(rates[2], sampled_crossing_rate(sos, 30000.0, 4.37), rtol=0.005)
+    k = np.array([3.0, 4.0, 4.37, 5.13])              # on and between the grid's thresholds
+    _, rho = recomputed(zero_phase=True)
+    mvn = stats.multivariate_normal(mean=[0.0, 0.0], cov=[[1.0, rho], [rho, 1.0]])
+    want = 30000.0 * (stats.norm.cdf(-k) - np.array([mvn.cdf([-x, -x]) for x in k]))
+    np.testing.assert_allclose(bench.noise_rates(k), want, rtol=0.005)
+    np.testing.assert_allclose(want[:2], [30.82, 0.828], rtol=0.005)
     both = noise_rate_grid(sos, 30000.0, "both")
     np.testing.assert_allclose(np.exp(both[1]) / np.exp(bench.analysis.noise_grid[1]), 2.0)
     assert bench.noise_rates(np.array([np.inf]))[0] == 0.0

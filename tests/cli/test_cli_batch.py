@@ -59,9 +59,18 @@ def test_bad_options(recordings, capsys, args, msg):
     assert code == 2 and msg in capsys.readouterr().err
 
 
-def test_duplicate_names_are_refused(recordings, tmp_path, capsys):
-    (tmp_path / "sub").mkdir()
-    write_synth(tmp_path / "sub" / "r0.bin", seconds=1, channels=4, seed=5)
-    code = main(["batch", str(recordings / "r0.bin"), str(tmp_path / "sub" / "r0.bin"), "--out-dir",
-                 str(tmp_path / "o"), "--quiet"])
-    assert code == 2 and "distinct names" in capsys.readouterr().err
+def test_same_names_in_different_folders_get_the_folder_names(tmp_path, capsys):
+    for day, seed in (("day1", 5), ("day2", 6)):
+        (tmp_path / day).mkdir()
+        write_synth(tmp_path / day / "rec.bin", seconds=1, channels=4, seed=seed)
+    out = tmp_path / "o"
+    files = [str(tmp_path / "day1" / "rec.bin"), str(tmp_path / "day2" / "rec.bin")]
+    assert main(["batch", *files, "--out-dir", str(out), "--quiet"]) == 0
+    for day in ("day1", "day2"):
+        rows = list(csv.DictReader(open(out / f"{day}_rec.events.csv")))
+        summary = json.load(open(out / f"{day}_rec.summary.json"))
+        assert len(rows) == sum(c["events"] for c in summary["channels"]) > 0
+    # the two recordings differ, so their outputs do too
+    assert (out / "day1_rec.events.csv").read_bytes() != (out / "day2_rec.events.csv").read_bytes()
+    code = main(["batch", files[0], files[0], "--out-dir", str(tmp_path / "o2"), "--quiet"])
+    assert code == 2 and "must be distinct files" in capsys.readouterr().err

@@ -136,3 +136,43 @@ def test_tiny_inputs_give_one_cluster():
     assert cluster_features(x[:1], ClusterParams(), k=2).tolist() == [0]
     assert cluster_features(np.ones((5, 2), np.float32), ClusterParams()).tolist() == [0] * 5
     assert len(cluster_features(np.zeros((0, 2), np.float32), ClusterParams())) == 0
+
+
+OVERLAP = """
+import json
+from threadpoolctl import threadpool_info, threadpool_limits
+from core.clustering import single_threaded_pools
+
+def sizes():
+    return sorted(i["num_threads"] for i in threadpool_info())
+
+out = {}
+with threadpool_limits(limits=2):               # a known starting point above one thread
+    out["before"] = sizes()
+    first, second = single_threaded_pools(), single_threaded_pools()
+    first.__enter__()                            # caller A enters
+    second.__enter__()                           # caller B (another thread) enters
+    first.__exit__(None, None, None)             # A leaves while B still runs
+    out["inside"] = sizes()
+    second.__exit__(None, None, None)            # the last caller leaves
+    out["after"] = sizes()
+print(json.dumps(out))
+"""
+
+
+def test_overlapping_pool_limits_restore_the_original_only_when_the_last_caller_leaves():
+    # threadpoolctl's own report (threadpool_info) is the oracle for the pool sizes. A fresh
+    # process: threadpoolctl lets only one Python thread control OpenBLAS (the first to set a
+    # limit, while it lives), and earlier tests' worker threads may hold that role here.
+    import json
+    import subprocess
+    import sys
+    from pathlib import Path
+
+    root = Path(__file__).resolve().parents[2]
+    r = subprocess.run([sys.executable, "-c", OVERLAP], cwd=root, capture_output=True, text=True)
+    assert r.returncode == 0, r.stderr[-2000:]
+    out = json.loads(r.stdout.strip().splitlines()[-1])
+    if max(out["before"], default=1) < 2:
+        pytest.skip("no thread pool here can run more than one thread")
+    assert max(out["inside"]) == 1 and out["after"] == out["before"]

@@ -3,6 +3,7 @@ import pytest
 
 from scipy import signal
 
+from core.events import EventTable
 from core.filtering import design_bandpass
 from core.params import Params
 from core.pipeline import detect
@@ -170,3 +171,36 @@ def test_cancel_and_progress(tmp_path):
     calls = []
     with pytest.raises(Cancelled):
         detect(rec, Params(), cancel=lambda: calls.append(1) or len(calls) > 5)
+
+
+def test_channel_cache_is_never_seen_half_built_by_another_thread():
+    # a reader thread is run exactly while the cache is being filled (at each insertion into
+    # the table's cache dict): it must see a complete cache or build its own, never a partial one
+    import threading
+
+    rng = np.random.default_rng(0)
+    n, channels = 2000, 6
+    table = EventTable(np.sort(rng.integers(0, 10**6, n)), rng.integers(0, channels, n), np.zeros(n),
+                       -rng.uniform(50, 200, n), rng.uniform(3, 20, n), rng.random(n) < 0.05,
+                       30000.0, 10**6, np.full(channels, 10.0), 3.0)
+    seen, errors = [], []
+
+    class Interleaved(dict):
+        def __setitem__(self, key, value):
+            super().__setitem__(key, value)
+            def read():
+                try:
+                    seen.append(table.count_curve(channels - 1, np.array([5.0]))[0])
+                except Exception as exc:          # noqa: BLE001 - recorded for the assertion
+                    errors.append(exc)
+            t = threading.Thread(target=read)
+            t.start()
+            t.join()
+
+    table._by_channel = Interleaved()
+    got = table.counts(threshold_sigma=5.0)
+    # brute force: count the non-artefact events at or above 5 sigma on each channel
+    want = [int(np.sum((table.channel == c) & ~table.artefact & (table.amplitude_sigma >= 5.0)))
+            for c in range(channels)]
+    assert errors == [] and got.tolist() == want
+    assert all(s == want[-1] for s in seen)

@@ -40,7 +40,7 @@ def test_an_interrupted_export_is_marked_incomplete_and_cleaned_by_the_next(tmp_
         calls.append(1)
         return len(calls) > 1
     with pytest.raises(Cancelled):
-        export_sorting(ev, s, out, labels=["single unit", "reject"], cancel=cancel_after_first_unit)
+        export_sorting(ev, s, out, labels=["single unit", "not neural"], cancel=cancel_after_first_unit)
     m = manifest(out)
     assert m["complete"] is False                            # does not look like a finished export
     assert {"unit_1.npy", "unit_3.npy"} <= set(m["files"])

@@ -10,10 +10,18 @@ from .helpers import gaussian, write_raw
 FS = 30000.0
 
 
-def test_design_matches_scipy_butter():
-    # reference implementation: scipy.signal.butter
-    ref = signal.butter(3, [300, 6000], "bandpass", fs=FS, output="sos")
-    np.testing.assert_allclose(design_bandpass(FilterParams(), FS), ref)
+def test_design_has_the_closed_form_butterworth_response():
+    # Bilinear-transformed analog Butterworth band-pass of prototype order N (Oppenheim &
+    # Schafer, Discrete-Time Signal Processing, 3rd ed., sec. 7.2 [memory]): with
+    # W = tan(pi f / fs) and edges W1, W2,
+    # |H|^2 = 1 / (1 + ((W^2 - W1 W2) / (W (W2 - W1)))^(2N)); response via scipy.signal.sosfreqz
+    sos = design_bandpass(FilterParams(), FS)
+    f = np.array([50.0, 150.0, 300.0, 1000.0, 1341.6, 3000.0, 6000.0, 9000.0, 13000.0])
+    _, h = signal.sosfreqz(sos, worN=f, fs=FS)
+    w, w1, w2 = (np.tan(np.pi * x / FS) for x in (f, 300.0, 6000.0))
+    want = 1 / (1 + ((w ** 2 - w1 * w2) / (w * (w2 - w1))) ** 6)
+    np.testing.assert_allclose(np.abs(h) ** 2, want, rtol=1e-9, atol=1e-15)
+    assert sos.shape == (3, 6)                      # order 3 band-pass: six poles, three sections
 
 
 @pytest.mark.parametrize("f_hz", [300.0, 6000.0])
@@ -53,13 +61,19 @@ def test_reading_a_channel_subset_equals_full_read(tmp_path):
 
 
 def test_common_median_reference_per_group():
+    # constructed so the answer is known (no median computed in the test): each row of a group
+    # is a shared offset plus deviations whose median is 0 by construction (three channels: 0,
+    # one above and one below; four channels: the middle pair is -m and +m)
     rng = np.random.default_rng(3)
-    x = rng.normal(size=(100, 6)).astype(np.float32)
-    groups = [np.array([0, 1, 2]), np.array([3, 4, 5])]
-    want = x.copy()
-    for g in groups:
-        want[:, g] -= np.median(x[:, g], axis=1, keepdims=True)
-    np.testing.assert_allclose(common_median_reference(x.copy(), groups), want, atol=1e-6)
+    n = 100
+    dev3 = rng.permuted(np.column_stack([np.zeros(n), np.full(n, 7.0), -rng.uniform(1, 9, n)]), axis=1)
+    mid = rng.uniform(0.5, 2, n)
+    dev4 = rng.permuted(np.column_stack([-mid, mid, mid + rng.uniform(1, 5, n), -mid - rng.uniform(1, 5, n)]),
+                        axis=1)
+    offsets = rng.normal(0, 50, (n, 2))
+    x = np.column_stack([dev3 + offsets[:, :1], dev4 + offsets[:, 1:]]).astype(np.float32)
+    out = common_median_reference(x.copy(), [np.array([0, 1, 2]), np.array([3, 4, 5, 6])])
+    np.testing.assert_allclose(out, np.column_stack([dev3, dev4]), atol=1e-4)
 
 
 def test_common_reference_removes_shared_signal(tmp_path):

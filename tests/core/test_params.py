@@ -1,3 +1,5 @@
+import os
+
 import pytest
 
 from core.errors import ParamError
@@ -42,6 +44,24 @@ def test_toml_round_trip(tmp_path):
     p.save_toml(tmp_path / "p.toml")
     q = Params.load_toml(tmp_path / "p.toml")
     assert q == p
+
+
+def test_save_toml_is_atomic_and_keeps_the_old_file_on_failure(tmp_path, monkeypatch):
+    target = tmp_path / "p.toml"
+    Params().save_toml(target)
+    before = target.read_bytes()
+    p = Params()
+    p.detect.threshold_sigma = 6.0
+
+    def refuse(src, dst):
+        raise OSError(28, "No space left on device")
+    monkeypatch.setattr(os, "replace", refuse)   # the rename onto the target fails
+    with pytest.raises(OSError):
+        p.save_toml(target)
+    assert target.read_bytes() == before and sorted(x.name for x in tmp_path.iterdir()) == ["p.toml"]
+    monkeypatch.undo()
+    p.save_toml(target)
+    assert Params.load_toml(target) == p
 
 
 def test_toml_unknown_key_missing_file_and_garbage(tmp_path):

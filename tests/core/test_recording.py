@@ -5,7 +5,7 @@ import numpy as np
 import pytest
 
 from core.errors import RecordingError
-from core.recording import Layout, RawRecording, open_recording
+from core.recording import Layout, RawRecording, metadata_path, open_recording, read_metadata, write_metadata
 
 from .helpers import write_raw
 
@@ -42,6 +42,17 @@ def test_groups_from_metadata_and_group_size(tmp_path):
     rec = open_recording(tmp_path / "r.bin", group_size=3)
     assert [g.tolist() for g in rec.groups] == [[0, 1, 2], [3, 4, 5], [6, 7]]
     assert rec.channel_group.tolist() == [0, 0, 0, 1, 1, 1, 2, 2]
+
+
+def test_group_names_with_quotes_and_backslashes_round_trip(tmp_path):
+    # TOML 1.0 basic strings: a quote or backslash inside a name must be escaped by the writer
+    names = ['bundle "A"', "left\\right", "tétrode 2"]
+    layout = Layout(channels=6, rate_hz=30000.0, groups=[[0, 1], [2, 3], [4, 5]], group_names=names)
+    (tmp_path / "r.bin").write_bytes(b"")
+    write_metadata(tmp_path / "r.bin", layout)
+    back = read_metadata(metadata_path(tmp_path / "r.bin"))
+    assert back.group_names == names and back.groups == [[0, 1], [2, 3], [4, 5]]
+    assert (back.channels, back.rate_hz, back.dtype) == (6, 30000.0, "int16")
 
 
 def test_options_without_metadata(tmp_path):

@@ -2,7 +2,6 @@ import os
 import signal
 import subprocess
 import sys
-import time
 from pathlib import Path
 
 import h5py
@@ -275,15 +274,55 @@ def test_stale_temporary_files_are_ignored_and_removed(made, tmp_path):
     assert not (tmp_path / ".a.h5.k3x9q_.tmp").exists()
 
 
-def _save_forever(path, session, first, fd):
-    """Child process: save states first, first+1, ... reporting each completed save."""
+STOPS = {  # where the saving child stops to be killed, and the state the file must then hold
+    "writing": "previous",        # the temporary file is open and half written
+    "written": "previous",        # the temporary file is complete and synced, not yet renamed
+    "renamed": "new",             # the rename onto the session file has happened
+    "between": "new",             # the save returned, the next has not begun
+}
+
+
+def _save_and_stop(path, session, first, stop_at, report_fd, hold_fd):
+    """Child process: save states first, first+1, ...; on the second save, at the point
+    ``stop_at``, report "<state>" through ``report_fd`` and wait (until killed) on ``hold_fd``."""
+    import core.atomic
+
+    def stop(k):
+        os.write(report_fd, f"{k}\n".encode())
+        os.read(hold_fd, 1)           # never written: the parent kills us here
+
     try:
         stack = UndoStack(session.sorting)
         u = session.sorting.unit_ids()[0]
-        for k in range(first, first + 10_000):
+        current = {"k": first}
+        close, fsync_file, replace = h5py.File.close, core.atomic.fsync_file, os.replace
+
+        def at(point):
+            return current["k"] == first + 1 and stop_at == point
+
+        def close_hook(f):
+            # the image is built in memory beside the (created, still empty) temporary file
+            if at("writing") and f.id.valid and f.filename.endswith(".tmp.image"):
+                stop(current["k"])
+            close(f)
+
+        def fsync_hook(p):
+            fsync_file(p)
+            if at("written") and str(p).endswith(".tmp"):
+                stop(current["k"])
+
+        def replace_hook(src, dst):
+            replace(src, dst)
+            if at("renamed") and Path(dst) == Path(path):
+                stop(current["k"])
+
+        h5py.File.close, core.atomic.fsync_file, os.replace = close_hook, fsync_hook, replace_hook
+        for k in range(first, first + 3):
+            current["k"] = k
             stack.push(SetNote(u, f"state {k}"))
             save_session(path, session)
-            os.write(fd, f"{k}\n".encode())
+            if at("between"):
+                stop(k)
     finally:
         os._exit(0)
 
@@ -293,43 +332,36 @@ def _state_on_disk(path) -> int:
     return int(s.sorting.unit(s.sorting.unit_ids()[0]).note.split()[1])
 
 
-def test_sigkill_during_saves_never_loses_the_last_completed_state(made, tmp_path):
+@pytest.mark.parametrize("stop_at", list(STOPS))
+def test_sigkill_at_each_step_of_a_save_keeps_a_complete_state(made, tmp_path, stop_at):
     raw, s = made
     p = tmp_path / "killed.h5"
     s1 = copy_session(s)
     UndoStack(s1.sorting).push(SetNote(s1.sorting.unit_ids()[0], "state 0"))
     save_session(p, s1)
-    rng = np.random.default_rng(99)
-    last_done, mid_save = 0, 0
-    for trial in range(25):
-        r, w = os.pipe()
-        started = time.perf_counter()
-        pid = os.fork()
-        if pid == 0:
-            os.close(r)
-            _save_forever(p, s1, last_done + 1, w)
-        os.close(w)
-        # wait for one completed save, then kill at a random moment within the next two saves
-        reported = os.read(r, 64)
-        assert reported, "the saving process must report its saves"
-        one_save = time.perf_counter() - started
-        time.sleep(float(rng.uniform(0.0, 2.0 * one_save)))
+    report_r, report_w = os.pipe()
+    hold_r, hold_w = os.pipe()
+    pid = os.fork()
+    if pid == 0:
+        os.close(report_r)
+        os.close(hold_w)
+        _save_and_stop(p, s1, 1, stop_at, report_w, hold_r)
+    os.close(report_w)
+    os.close(hold_r)
+    try:
+        stopped_in = int(os.read(report_r, 64).split()[0])   # blocks until the child is at the point
         os.kill(pid, signal.SIGKILL)
         os.waitpid(pid, 0)
-        mid_save += bool(stale_temporaries(p))
-        remove_stale_temporaries(p)
-        while chunk := os.read(r, 65536):
-            reported += chunk
-        os.close(r)
-        completed = max(int(x) for x in reported.split())
-        on_disk = _state_on_disk(p)
-        # the last reported save, or the one whose rename happened just before the kill
-        assert on_disk in (completed, completed + 1), (trial, completed, on_disk)
-        if backup_path(p).exists():
-            verify_session_file(backup_path(p))
-        last_done = on_disk
-    assert last_done >= 25
-    assert mid_save >= 1        # some kills did land in the middle of writing a file
+    finally:
+        os.close(report_r)
+        os.close(hold_w)
+    assert stopped_in == 2                                    # the second save of the child
+    want = stopped_in - 1 if STOPS[stop_at] == "previous" else stopped_in
+    assert _state_on_disk(p) == want
+    assert bool(stale_temporaries(p)) == (stop_at in ("writing", "written"))
+    verify_session_file(backup_path(p))                       # the backup is always a whole file
+    remove_stale_temporaries(p)
+    assert not stale_temporaries(p) and _state_on_disk(p) == want
 
 
 def test_a_snapshot_saves_the_state_it_was_taken_in(made, tmp_path):

@@ -1,0 +1,29 @@
+"""Ask which dataset of an HDF5 file holds the recording when it holds several."""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+from PySide6.QtWidgets import QComboBox, QDialog, QDialogButtonBox, QLabel, QVBoxLayout
+
+
+class DatasetDialog(QDialog):
+    """A choice among the candidate 2-D datasets (samples x channels)."""
+
+    def __init__(self, path: str | Path, candidates: list[str], parent=None):
+        super().__init__(parent)
+        self.setWindowTitle("Which dataset is the recording?")
+        note = QLabel(f"<b>{Path(path).name}</b> holds {len(candidates)} two-dimensional datasets. "
+                      "Choose the one stored as samples x channels:")
+        note.setWordWrap(True)
+        self.choice = QComboBox()
+        self.choice.addItems(candidates)
+        buttons = QDialogButtonBox(QDialogButtonBox.StandardButton.Open | QDialogButtonBox.StandardButton.Cancel)
+        buttons.accepted.connect(self.accept)
+        buttons.rejected.connect(self.reject)
+        lay = QVBoxLayout(self)
+        for w in (note, self.choice, buttons):
+            lay.addWidget(w)
+
+    def dataset(self) -> str:
+        return self.choice.currentText()

@@ -1,0 +1,43 @@
+"""Imported unit ids at the ends of the int64 range, and listed units that hold no spike
+(invented data)."""
+
+import h5py
+import numpy as np
+
+from core.spike_import import load_spikes
+
+BIG = 2**63 - 1
+
+
+def test_largest_int64_unit_id_keeps_its_spikes(tmp_path):
+    p = tmp_path / "big.csv"
+    p.write_text(f"unit,time_s\n{BIG},0.5\n3,0.2\n{BIG},1.0\n3,0.9\n")
+    s = load_spikes(p)
+    ids, starts = s.bounds()
+    assert ids.tolist() == [3, BIG] and starts.tolist() == [0, 2, 4]
+    np.testing.assert_array_equal(s.train(BIG), [0.5, 1.0])
+    assert s.span(3) == (0, 2)
+
+
+def test_listed_units_without_spikes_are_named(tmp_path):
+    p = tmp_path / "u.h5"
+    with h5py.File(p, "w") as f:
+        f["unit"] = np.array([1, 1, 4])
+        f["time_s"] = np.array([0.1, 0.2, 0.3])
+        f["unit_ids"] = np.array([1, 2, 4, 9])
+    s = load_spikes(p)
+    assert s.unit_ids.tolist() == [1, 4] and s.empty_units == (2, 9)
+    assert s.empty_note() == "2 listed units without spikes left out: 2, 9"
+
+
+def test_nwb_units_without_spikes_are_named(tmp_path):
+    from pynwb import NWBHDF5IO, NWBFile
+    from datetime import datetime, timezone
+    nwb = NWBFile(session_description="earlier sorting", identifier="t2",
+                  session_start_time=datetime(2020, 1, 1, tzinfo=timezone.utc))
+    nwb.add_unit(spike_times=[0.1, 0.2], id=5)
+    nwb.add_unit(spike_times=[], id=6)
+    with NWBHDF5IO(str(tmp_path / "a.nwb"), "w") as io:
+        io.write(nwb)
+    s = load_spikes(tmp_path / "a.nwb")
+    assert s.unit_ids.tolist() == [5] and s.empty_units == (6,)
