@@ -140,14 +140,14 @@ class OverviewBuilder:
     def save(self, path: str | Path | None = None) -> Path:
         """Write the overview atomically (default :func:`cache_path`) and drop older caches of this recording."""
         rec = self.recording
-        path = Path(path) if path is not None else cache_path(rec, self.filter_params)
+        key = _key(rec, self.filter_params)
+        path = Path(path) if path is not None else cache_path(rec, self.filter_params, key)
         levels = self.levels()
 
         def fill(f: h5py.File) -> None:
             f.attrs.update(format=FORMAT, version=VERSION, fingerprint=rec.fingerprint(),
                            content_hash=rec.content_hash or "", n_samples=self.n_samples,
-                           n_channels=self.n_channels, rate_hz=rec.rate_hz, source=str(rec.path),
-                           key=_key(rec, self.filter_params))
+                           n_channels=self.n_channels, rate_hz=rec.rate_hz, source=str(rec.path), key=key)
             for size, lo, hi in levels:
                 g = f.create_group(f"levels/{size}")
                 g.create_dataset("min", data=lo)
@@ -219,22 +219,23 @@ def _key(recording: Recording, filter_params: FilterParams) -> str:
     return hashlib.sha256(text.encode()).hexdigest()
 
 
-def cache_path(recording: Recording, filter_params: FilterParams) -> Path:
+def cache_path(recording: Recording, filter_params: FilterParams, key: str | None = None) -> Path:
     """``<cache folder>/overviews/<path hash>-<content key>.h5`` for this recording and filter."""
     where = hashlib.sha256(str(Path(recording.path).resolve()).encode()).hexdigest()[:16]
-    return cache_folder() / "overviews" / f"{where}-{_key(recording, filter_params)[:24]}.h5"
+    key = key or _key(recording, filter_params)
+    return cache_folder() / "overviews" / f"{where}-{key[:24]}.h5"
 
 
 def load_overview(recording: Recording, filter_params: FilterParams) -> Overview | None:
     """The cached overview of this recording and filter, or None when there is none or it is stale."""
-    path = cache_path(recording, filter_params)
+    key = _key(recording, filter_params)
+    path = cache_path(recording, filter_params, key)
     if not path.is_file():
         return None
     try:
         ov = Overview(path)
     except (OSError, KeyError):
         return None   # unreadable cache file: rebuilt by the next detection pass
-    key = _key(recording, filter_params)
     if ov.key != key or ov.n_samples != recording.n_samples or not ov.matches_content(recording.content_hash):
         ov.close()
         return None
