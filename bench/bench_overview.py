@@ -32,19 +32,19 @@ sys.path.insert(0, str(ROOT))
 from PySide6.QtCore import QSettings  # noqa: E402
 from PySide6.QtWidgets import QApplication  # noqa: E402
 
-from core.filtering import BandPass  # noqa: E402
-from core.noise import estimate_noise  # noqa: E402
-from core.overview import OverviewBuilder  # noqa: E402
-from core.params import Params  # noqa: E402
-from core.pipeline import detect  # noqa: E402
-from core.recording import open_recording  # noqa: E402
+from rigside.core.io.recording import open_recording  # noqa: E402
+from rigside.core.params import Params  # noqa: E402
+from rigside.core.signal.filtering import BandPass  # noqa: E402
+from rigside.core.signal.noise import estimate_noise  # noqa: E402
+from rigside.core.signal.overview import OverviewBuilder  # noqa: E402
+from rigside.core.signal.pipeline import detect  # noqa: E402
 
 SPANS_S = (None, 600.0, 60.0, 10.0, 2.0, 0.5, 0.05)   # None: the whole file
 
 
 def synth(folder: Path, seconds: float, channels: int) -> Path:
     out = folder / "long.bin"
-    subprocess.run([sys.executable, "-m", "app.cli", "synth", str(out), "--seconds", str(seconds),
+    subprocess.run([sys.executable, "-m", "rigside", "synth", str(out), "--seconds", str(seconds),
                     "--channels", str(channels), "--quiet"], cwd=ROOT, check=True)
     return out
 
@@ -114,7 +114,7 @@ def main() -> int:
     QSettings.setDefaultFormat(QSettings.Format.IniFormat)
     QSettings.setPath(QSettings.Format.IniFormat, QSettings.Scope.UserScope, str(folder / "settings"))
     app = QApplication.instance() or QApplication([])
-    from app.window import MainWindow
+    from rigside.gui.window import MainWindow
 
     t = time.perf_counter()
     path = synth(folder, args.seconds, args.channels)

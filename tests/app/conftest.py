@@ -11,11 +11,12 @@ import pytest
 from PySide6.QtCore import QSettings
 from PySide6.QtWidgets import QApplication, QWidget
 
-from app import jobs
-from app.window import MainWindow, demo_path
-from app.workers import running_jobs
-from core.params import Params
-from core.recording import open_recording
+from rigside.core.io.recording import open_recording
+from rigside.core.params import Params
+from rigside.gui import jobs
+from rigside.gui.window import MainWindow
+from rigside.gui.workers import running_jobs
+from rigside.sample_data import demo_path
 
 _CACHE: dict = {}
 

@@ -4,8 +4,8 @@ from __future__ import annotations
 
 import numpy as np
 
-from app import jobs
-from core.overview import cache_path
+from rigside.core.signal.overview import cache_path
+from rigside.gui import jobs
 
 RATE, SECONDS, CHANNELS = 30000.0, 20.0, 8
 

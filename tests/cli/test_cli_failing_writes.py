@@ -13,9 +13,9 @@ from pathlib import Path
 
 import pytest
 
-from app.cli import main
-from core.atomic import stale_temporaries
-from core.synth import write_synth
+from rigside.cli.main import main
+from rigside.core.io.atomic import stale_temporaries
+from rigside.core.synthetic.synth import write_synth
 
 ROOT = Path(__file__).resolve().parents[2]
 LIMITED = """
@@ -27,7 +27,7 @@ sys.exit(main(sys.argv[2:]))
 """
 CHANGING = """
 import os, sys
-import core.pipeline as pipeline
+import rigside.core.signal.pipeline as pipeline
 path, how = sys.argv[1], sys.argv[2]
 original, calls = pipeline.detect_block, []
 

@@ -1,14 +1,21 @@
 import numpy as np
 import pytest
 
-from core import overview
-from core.atomic import WriteError
-from core.filtering import BandPass
-from core.overview import (TOP_BINS, Overview, OverviewBuilder, build_overview, cache_path,
-                           finest_bin, load_overview)
-from core.params import FilterParams, Params
-from core.pipeline import detect
-from core.recording import open_recording
+from rigside.core.io.atomic import WriteError
+from rigside.core.io.recording import open_recording
+from rigside.core.params import FilterParams, Params
+from rigside.core.signal import overview
+from rigside.core.signal.filtering import BandPass
+from rigside.core.signal.overview import (
+    TOP_BINS,
+    Overview,
+    OverviewBuilder,
+    build_overview,
+    cache_path,
+    finest_bin,
+    load_overview,
+)
+from rigside.core.signal.pipeline import detect
 
 from .helpers import gaussian, write_raw
 
