@@ -6,7 +6,7 @@ import argparse
 
 from rigside.cli.common import add_param_options, add_recording_options, open_from_args, params_from_args
 from rigside.cli.progressbar import TextProgress
-from rigside.core.audit.report import write_audit_report
+from rigside.core.audit.html_report import write_audit_report
 from rigside.core.audit.run import CAUTION, AuditSettings, FreshUnits, first_pass_units, run_audit
 from rigside.core.audit.table import write_audit_csv
 from rigside.core.errors import ParamError

@@ -14,7 +14,7 @@ from pathlib import Path
 import numpy as np
 from PySide6.QtCore import QObject, Signal
 
-from rigside.core.audit.report import write_audit_report
+from rigside.core.audit.html_report import write_audit_report
 from rigside.core.audit.run import CAUTION, AuditResult, AuditSettings, FreshUnits, first_pass_units, run_audit
 from rigside.core.audit.table import write_audit_csv
 from rigside.core.audit.views import PairView, pair_view

@@ -108,7 +108,7 @@ class SpikeTrains:
                              f"{last:.6g} s (first in unit {unit}){hint}")
 
 
-def finish(times_s, units, source: str, listed=None) -> SpikeTrains:
+def checked_trains(times_s, units, source: str, listed=None) -> SpikeTrains:
     """Check raw columns and build :class:`SpikeTrains` (sorted by unit, stable in time).
 
     Parameters

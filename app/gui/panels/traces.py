@@ -43,7 +43,7 @@ class TracePanel(Panel):
         bench.selection_changed.connect(self._on_selection)
         bench.events_changed.connect(self._on_events)
         bench.thresholds_changed.connect(self._on_thresholds)
-        bench.unit_changed.connect(self._update_handle)
+        bench.scale_changed.connect(self._update_handle)
         bench.view_changed.connect(self._on_view)
         bench.show_raw_changed.connect(self._on_raw)
 
@@ -308,7 +308,7 @@ class TracePanel(Panel):
         b = self.bench
         off = self.offsets[self.lane[b.channel]]
         uv = abs(self.handle.value() - off)
-        return uv / float(b.sigma_uv[b.channel]) if b.unit == "sigma" else uv
+        return uv / float(b.sigma_uv[b.channel]) if b.scale == "sigma" else uv
 
     def _on_handle_moved(self, _line=None) -> None:
         if not self._placing and self.bench.events is not None:
