@@ -52,7 +52,8 @@ def run_audit_command(args: argparse.Namespace) -> int:
     if out.resolve() == table.resolve():
         raise ParamError(f"report and table must be different files, got {str(out)!r} twice")
     if args.session:
-        given = [f"--{name.replace('_', '-')}" for name in PARAM_OPTIONS if getattr(args, name, None) not in (None, False)]
+        given = [f"--{name.replace('_', '-')}" for name in PARAM_OPTIONS
+                 if getattr(args, name, None) not in (None, False)]
         if given:
             raise ParamError(f"detection options must not be given with --session (the session's own "
                              f"parameters are used), got {', '.join(given)}")

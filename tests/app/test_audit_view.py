@@ -240,7 +240,8 @@ def test_menu_import_with_its_choices_then_cancel_leaves_no_result(demo_window, 
     monkeypatch.setattr(QFileDialog, "getOpenFileName", staticmethod(lambda *a, **k: (str(path), "")))
     monkeypatch.setattr(AuditImportDialog, "exec", accept)
     started = []
-    monkeypatch.setattr(win.runner, "submit", lambda *a, _orig=win.runner.submit, **k: started.append(a) or _orig(*a, **k))
+    monkeypatch.setattr(win.runner, "submit",
+                        lambda *a, _orig=win.runner.submit, **k: started.append(a) or _orig(*a, **k))
     win.actions_by_name["audit_import"].trigger()
     c = chosen["choices"]
     assert (c.tolerance_ms, c.offset_s, c.rate_hz, c.group, c.use_session) == (0.4, 0.001, win.bench.recording.rate_hz,

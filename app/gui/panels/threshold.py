@@ -201,7 +201,8 @@ class ThresholdPanel(Panel):
                                 "Rice's formula).")
         self._on_thresholds()
         self.table.resizeColumnsToContents()
-        self.table.setColumnWidth(7, max(self.table.columnWidth(7), self.fontMetrics().horizontalAdvance("0.00088") + 16))
+        rate_width = self.fontMetrics().horizontalAdvance("0.00088") + 16
+        self.table.setColumnWidth(7, max(self.table.columnWidth(7), rate_width))
 
     def _on_thresholds(self, final: bool = True) -> None:
         """The summary follows every move; during a drag the table is redrawn at most every

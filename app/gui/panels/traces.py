@@ -361,7 +361,8 @@ class TracePanel(Panel):
                 self.block = load_block(rec, self._bandpass, lo, hi, step, np.array(chans), b.show_raw)
             elif not self._pending_covers(a, z, chans, step):
                 self._request(lo, hi, step, chans)
-        elif ((a - blk.start < span // 2 and blk.start > 0) or (blk.stop - z < span // 2 and blk.stop < rec.n_samples)) \
+        elif ((a - blk.start < span // 2 and blk.start > 0)
+              or (blk.stop - z < span // 2 and blk.stop < rec.n_samples)) \
                 and not self._pending_covers(a, z, chans, step):
             self._request(lo, hi, blk.step, chans)
         self._draw_traces(a, z, step)
