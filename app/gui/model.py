@@ -16,7 +16,7 @@ import numpy as np
 
 from rigside.core.signal.rice import sampled_crossing_rate
 
-if TYPE_CHECKING:   # for the types of Analysis only: loading the model loads no computing module
+if TYPE_CHECKING:   # the types of Analysis only: no import at run time
     from rigside.core.events import EventTable
     from rigside.core.io.recording import Recording
     from rigside.core.params import Params
