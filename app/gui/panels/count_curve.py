@@ -119,8 +119,8 @@ class CountCurvePanel(Panel):
         highest = max(float(np.nanmax(rate)) if np.any(rate > 0) else 1.0, float(noise[0]))
         self.rate_plot.setYRange(np.log10(lowest), np.log10(highest * 2), padding=0)
         self.rate_plot.setXRange(x[0], x[-1], padding=0.02)
-        unit = "× noise σ" if b.scale == "sigma" else "µV"
-        palette.style_plot(self.rate_plot, f"threshold on ch {c} ({unit})", "events / s (log)")
+        scale = "× noise σ" if b.scale == "sigma" else "µV"
+        palette.style_plot(self.rate_plot, f"threshold on ch {c} ({scale})", "events / s (log)")
         self.note.setText(f"ch {c}: where the detected curve meets the dashed one, noise alone would "
                           "give as many crossings (Gaussian noise through this filter assumed). Each event "
                           "counts once, on the group channel where it peaks.")
