@@ -22,6 +22,7 @@ if TYPE_CHECKING:   # the types of Analysis only: no import at run time
     from rigside.core.params import Params
     from rigside.core.signal.features import Features
     from rigside.core.signal.noise import NoiseEstimate
+    from rigside.core.signal.overview import Overview
     from rigside.core.synthetic.truth import Truth
 
 SCALES = ("sigma", "uv")
@@ -68,6 +69,7 @@ class Analysis:
     features: Features | None = None
     truth: Truth | None = None
     sos: np.ndarray | None = None
+    overview: Overview | None = None        # of the filtered signal, once one exists
     noise_grid: tuple[np.ndarray, np.ndarray] | None = None
 
 
@@ -84,8 +86,8 @@ class Workbench:
 
     Signals: ``recording_changed()``, ``events_changed()``, ``features_changed()``,
     ``truth_changed()``, ``selection_changed()``, ``thresholds_changed(final: bool)``
-    (``final`` is False while a handle is being dragged), ``scale_changed()`` (the threshold scale or scope changed),
-    ``view_changed(t0, t1)``, ``show_raw_changed()``.
+    (``final`` is False while a handle is being dragged), ``scale_changed()`` (the threshold scale or scope
+    changed), ``view_changed(t0, t1)``, ``show_raw_changed()``, ``overview_changed()``.
     """
 
     def __init__(self) -> None:
@@ -99,6 +101,7 @@ class Workbench:
         self.scale_changed = Signal()
         self.view_changed = Signal()
         self.show_raw_changed = Signal()
+        self.overview_changed = Signal()
         self.shown_channels = np.zeros(0, dtype=np.int64)
         self.shown_label = ""
         self.group = 0
@@ -118,9 +121,12 @@ class Workbench:
     def events(self) -> EventTable | None:
         return self.analysis.events
 
-    def set_recording(self, recording: Recording, params: Params, sos: np.ndarray) -> None:
-        """A new recording: forget results, show its first group."""
-        self.analysis = Analysis(recording=recording, params=params, sos=sos)
+    def set_recording(self, recording: Recording, params: Params, sos: np.ndarray,
+                      overview: Overview | None = None) -> None:
+        """A new recording (with its cached overview, if any): forget results, show its first group."""
+        if self.analysis.overview is not None:
+            self.analysis.overview.close()
+        self.analysis = Analysis(recording=recording, params=params, sos=sos, overview=overview)
         default = params.detect.threshold_sigma
         self.thresholds_sigma = np.full(recording.n_channels, float(default))
         self.view = (0.0, min(1.0, recording.duration_s))
@@ -130,6 +136,17 @@ class Workbench:
         self.channel = int(self.shown_channels[0])
         self.recording_changed.emit()
         self.selection_changed.emit()
+
+    @property
+    def overview(self) -> Overview | None:
+        return self.analysis.overview
+
+    def set_overview(self, overview: Overview | None) -> None:
+        """Draw zoomed-out traces from this overview (None: from samples only)."""
+        if self.analysis.overview is not None and self.analysis.overview is not overview:
+            self.analysis.overview.close()
+        self.analysis.overview = overview
+        self.overview_changed.emit()
 
     def set_events(self, noise: NoiseEstimate, events: EventTable) -> None:
         self.analysis.noise = noise
