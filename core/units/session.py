@@ -16,9 +16,10 @@ Layout (format version 2)::
     /journal/lines    UTF-8 JSON lines (uint8 dataset)
 
 Format 1 stored labels as codes instead of ``/sorting/labels``; it is still read (see
-:mod:`rigside.core.units.session_labels`). No pickled or executable content is written or accepted. Saving is atomic: a uniquely named
-temporary file beside ``NAME`` is written (built in memory, then written at once), flushed,
-fsynced and renamed over ``NAME``; the previous ``NAME`` (if it verifies) becomes ``NAME.bak`` first, by a hard link where possible. ``NAME.autosave.h5`` is written
+:mod:`rigside.core.units.session_labels`). No pickled or executable content is written or accepted.
+Saving is atomic: a uniquely named temporary file beside ``NAME`` is written (built in memory, then
+written at once), flushed, fsynced and renamed over ``NAME``; the previous ``NAME`` (if it verifies)
+becomes ``NAME.bak`` first, by a hard link where possible. ``NAME.autosave.h5`` is written
 the same way by :func:`save_autosave`; :mod:`rigside.core.units.session_recovery` finds the newest
 consistent state among the main file, the autosave and the backup.
 """
