@@ -8,45 +8,16 @@ the scope (all channels or one) only say how the next edit is read and how value
 
 from __future__ import annotations
 
-import weakref
 from dataclasses import dataclass
-from typing import Any, Callable
+from typing import Any
 
 import numpy as np
 
+from rigside.core.notify import Signal
 from rigside.core.signal.rice import sampled_crossing_rate
 
 UNITS = ("sigma", "uv")
 SCOPES = ("all", "channel")
-
-
-class Signal:
-    """A tiny emitter: callbacks held weakly (bound methods) or strongly (functions)."""
-
-    def __init__(self) -> None:
-        self._slots: list[Callable[[], Callable | None]] = []
-
-    def connect(self, fn: Callable) -> None:
-        if hasattr(fn, "__self__") and hasattr(fn, "__func__"):
-            ref = weakref.WeakMethod(fn)
-        else:
-            ref = (lambda f=fn: f)
-        self._slots.append(ref)
-
-    def emit(self, *args: Any) -> None:
-        """Call every callback; the first error is raised after all have run, so that one
-        failing panel never leaves the others showing the previous state."""
-        first: Exception | None = None
-        for ref in list(self._slots):
-            fn = ref()
-            if fn is not None:
-                try:
-                    fn(*args)
-                except Exception as exc:  # re-raised below, once every callback has run
-                    first = first or exc
-        self._slots = [r for r in self._slots if r() is not None]
-        if first is not None:
-            raise first
 
 
 @dataclass
