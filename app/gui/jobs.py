@@ -11,10 +11,8 @@ from rigside.core.errors import RigsideError
 from rigside.core.progress import report
 from rigside.core.signal.features import compute_features
 from rigside.core.signal.noise import estimate_noise
-from rigside.core.signal.pipeline import detect
+from rigside.core.signal.pipeline import NOISE_SHARE, detect
 from rigside.core.synthetic.truth import load_truth
-
-NOISE_SHARE = 0.15
 
 LOOKUP_FLOOR_SIGMA = 3.0
 """Events are kept down to this many sigma so a threshold drag down to it is a look-up."""
@@ -29,8 +27,8 @@ def analyse(recording, params, truth_path: Path | None = None, progress=None, ca
     """
     noise = estimate_noise(recording, params, cancel=cancel,
                            progress=lambda f, m: report(progress, NOISE_SHARE * f, m))
-    events = detect(recording, params, cancel=cancel, noise=noise,
-                    progress=lambda f, m: report(progress, NOISE_SHARE + (1 - NOISE_SHARE) * f, m))
+    # given the noise, detect still reports its own span from NOISE_SHARE to 1
+    events = detect(recording, params, cancel=cancel, noise=noise, progress=progress)
     try:
         truth = load_truth(truth_path) if truth_path is not None else None
     except RigsideError as exc:

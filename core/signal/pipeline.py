@@ -16,7 +16,9 @@ from rigside.core.signal.detection import BlockEvents, detect_block
 from rigside.core.signal.filtering import BandPass
 from rigside.core.signal.noise import NoiseEstimate, estimate_noise
 
-NOISE_SHARE = 0.1  # fraction of the progress bar given to the noise estimate
+NOISE_SHARE = 0.1
+"""Fraction of a detection's progress bar given to the noise estimate; :func:`detect` reports
+from here to 1 whether it estimates the noise itself or is given it."""
 
 
 def chunk_bounds(n_samples: int, chunk: int) -> list[tuple[int, int]]:
