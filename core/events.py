@@ -33,6 +33,26 @@ MAX_SAMPLES = 2**48
 """Longest recording an event table may describe (about 300 years at 30 kHz)."""
 
 
+def uv_to_sigma(threshold_uv, sigma_uv) -> np.ndarray:
+    """Threshold in sigma multiples from microvolts, per channel.
+
+    Parameters
+    ----------
+    threshold_uv
+        Scalar or one value per channel (uV).
+    sigma_uv
+        Noise level of each channel (uV); a channel with zero sigma is dead.
+
+    Returns
+    -------
+    numpy.ndarray
+        ``threshold_uv / sigma_uv`` (float64), infinite on dead channels.
+    """
+    sigma = np.asarray(sigma_uv, dtype=np.float64)
+    uv = np.broadcast_to(np.asarray(threshold_uv, dtype=np.float64), sigma.shape)
+    return np.where(sigma > 0, uv / np.where(sigma > 0, sigma, 1.0), np.inf)
+
+
 @dataclass
 class EventTable:
     """Detected events and the context needed to interpret them.
@@ -106,10 +126,7 @@ class EventTable:
         if threshold_sigma is not None:
             return np.broadcast_to(np.asarray(threshold_sigma, dtype=np.float64),
                                    (self.n_channels,)).copy()
-        uv = np.broadcast_to(np.asarray(threshold_uv, dtype=np.float64), (self.n_channels,))
-        with np.errstate(divide="ignore", invalid="ignore"):
-            out = np.where(self.sigma_uv > 0, uv / np.where(self.sigma_uv > 0, self.sigma_uv, 1), np.inf)
-        return out
+        return uv_to_sigma(threshold_uv, self.sigma_uv)
 
     def mask(self, threshold_sigma=None, threshold_uv=None, include_artefacts: bool = False) -> np.ndarray:
         """Boolean mask of events at or above the threshold (per channel if an array)."""

@@ -13,6 +13,7 @@ from typing import Any
 
 import numpy as np
 
+from rigside.core.events import uv_to_sigma
 from rigside.core.notify import Signal
 from rigside.core.signal.rice import sampled_crossing_rate
 
@@ -210,9 +211,7 @@ class Workbench:
             sigma = self.sigma_uv
             if sigma is None:
                 return
-            s = np.asarray(sigma, dtype=np.float64)[targets]
-            with np.errstate(divide="ignore"):
-                new[targets] = np.where(s > 0, value / np.where(s > 0, s, 1.0), np.inf)
+            new[targets] = uv_to_sigma(value, np.asarray(sigma, dtype=np.float64)[targets])
         changed = not np.array_equal(new, self.thresholds_sigma)
         self.thresholds_sigma = new
         if changed or final:

@@ -7,7 +7,7 @@ from concurrent.futures import Future, ThreadPoolExecutor
 
 import numpy as np
 
-from rigside.core.events import EventTable
+from rigside.core.events import EventTable, uv_to_sigma
 from rigside.core.io.content import ContentHasher
 from rigside.core.io.recording import Recording
 from rigside.core.params import Params
@@ -31,8 +31,7 @@ def thresholds_sigma(params: Params, sigma_uv: np.ndarray) -> np.ndarray:
     d = params.detect
     if d.threshold_uv is None:
         return np.full(len(sigma_uv), d.threshold_sigma, dtype=np.float64)
-    with np.errstate(divide="ignore"):
-        return np.where(sigma_uv > 0, d.threshold_uv / np.where(sigma_uv > 0, sigma_uv, 1.0), np.inf)
+    return uv_to_sigma(d.threshold_uv, sigma_uv)
 
 
 def lookup_floor(params: Params, sigma_uv: np.ndarray) -> float:
