@@ -2,16 +2,13 @@
 
 from __future__ import annotations
 
-from collections import deque
-from concurrent.futures import Future, ThreadPoolExecutor
-
 import numpy as np
 
 from rigside.core.events import EventTable, uv_to_sigma
 from rigside.core.io.content import ContentHasher
 from rigside.core.io.recording import Recording
 from rigside.core.params import Params
-from rigside.core.progress import CancelFn, ProgressFn, check, report
+from rigside.core.progress import CancelFn, ProgressFn, report, run_bounded
 from rigside.core.signal.detection import BlockEvents, detect_block
 from rigside.core.signal.filtering import BandPass
 from rigside.core.signal.noise import NoiseEstimate, estimate_noise
@@ -95,28 +92,14 @@ def detect(recording: Recording, params: Params, progress: ProgressFn = None, ca
     parts: list[BlockEvents] = []
     hasher = ContentHasher(recording.path)
 
-    def collect(future: Future) -> None:
-        parts.append(future.result())
+    def collect(part: BlockEvents) -> None:
+        parts.append(part)
         hasher.advance(len(parts) / len(bounds))
         report(progress, NOISE_SHARE + (1 - NOISE_SHARE) * len(parts) / len(bounds), "detecting")
 
-    with hasher, ThreadPoolExecutor(max_workers=params.run.workers) as pool:
-        pending: deque[Future] = deque()
-        todo = iter(bounds)
-        try:
-            for b in todo:
-                check(cancel)
-                pending.append(pool.submit(work, *b))
-                if len(pending) >= 2 * params.run.workers:
-                    collect(pending.popleft())
-            while pending:
-                check(cancel)
-                collect(pending.popleft())
-            recording.content_hash = hasher.finish()
-        except BaseException:
-            for f in pending:
-                f.cancel()
-            raise
+    with hasher:
+        run_bounded(work, bounds, params.run.workers, collect, cancel)
+        recording.content_hash = hasher.finish()
     return _assemble(parts, recording, sigma, floor, d.polarity, excluded)
 
 
