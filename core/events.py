@@ -29,6 +29,10 @@ COLUMNS = {
     "amplitude_sigma": np.float32,
     "artefact": np.bool_,
 }
+"""Stored columns of an event table and their dtypes, in file order: the one list every reader,
+writer and builder of event tables follows."""
+CSV_COLUMNS = ("sample", "time_s", *(c for c in COLUMNS if c != "sample"))
+"""Columns of the event CSV: the stored ones with ``time_s`` after ``sample``."""
 MAX_SAMPLES = 2**48
 """Longest recording an event table may describe (about 300 years at 30 kHz)."""
 
@@ -185,10 +189,8 @@ class EventTable:
         """
         def write(tmp: Path) -> None:
             with open(tmp, "wb") as fh:
-                fh.write(b"sample,time_s,channel,group,amplitude_uv,amplitude_sigma,artefact\r\n")
-                write_rows(fh, [("int", self.sample), ("fixed", self.time_s, 6), ("int", self.channel),
-                                ("int", self.group), ("fixed", self.amplitude_uv, 3),
-                                ("fixed", self.amplitude_sigma, 4), ("int", self.artefact)], "\r\n")
+                fh.write((",".join(CSV_COLUMNS) + "\r\n").encode("ascii"))
+                write_rows(fh, [_csv_format(self, c) for c in CSV_COLUMNS], "\r\n")
         atomic_write(path, write)
 
     def write_h5(self, path: str | Path, group: str = "events") -> None:
@@ -270,6 +272,15 @@ class EventTable:
                 return cls.from_h5_group(f[group])
         except OSError as exc:
             raise RigsideError(f"event file must be a readable HDF5 file, got {str(path)!r}: {exc}") from None
+
+
+_CSV_DIGITS = {"time_s": 6, "amplitude_uv": 3, "amplitude_sigma": 4}
+
+
+def _csv_format(table: EventTable, column: str) -> tuple:
+    """How :func:`rigside.core.io.csv_text.write_rows` formats one column of the event CSV."""
+    values = getattr(table, column)
+    return ("fixed", values, _CSV_DIGITS[column]) if column in _CSV_DIGITS else ("int", values)
 
 
 def _read_excluded(g: h5py.Group, n_channels: int) -> dict[int, str]:

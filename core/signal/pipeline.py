@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from rigside.core.events import EventTable, uv_to_sigma
+from rigside.core.events import COLUMNS, EventTable, uv_to_sigma
 from rigside.core.io.content import ContentHasher
 from rigside.core.io.recording import Recording
 from rigside.core.params import Params
@@ -106,7 +106,7 @@ def detect(recording: Recording, params: Params, progress: ProgressFn = None, ca
 def _assemble(parts: list[BlockEvents], recording: Recording, sigma: np.ndarray, floor: float,
               polarity: str, excluded: dict[int, str]) -> EventTable:
     cols = {name: np.concatenate([getattr(p, name) for p in parts]) if parts else np.empty(0)
-            for name in ("sample", "channel", "group", "amplitude_uv", "amplitude_sigma", "artefact")}
+            for name in COLUMNS}
     order = np.lexsort((cols["group"], cols["sample"]))
     cols = {k: v[order] for k, v in cols.items()}
     return EventTable(**cols, rate_hz=recording.rate_hz, n_samples=recording.n_samples, sigma_uv=sigma,
