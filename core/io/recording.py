@@ -301,7 +301,7 @@ def write_metadata(path: str | Path, layout: Layout) -> Path:
               for i, g in enumerate(layout.groups or [])]
     text = "# rigside recording description\n" + tomli_w.dumps({"recording": rec} | ({"group": groups} if groups else {}))
     meta = Path(path).with_name(Path(path).stem + META_SUFFIX)
-    return atomic_write(meta, lambda tmp: tmp.write_text(text, encoding="utf-8"))
+    return atomic_write(meta, lambda tmp: tmp.write_text(text, encoding="utf-8", newline="\n"))
 
 
 def open_recording(path: str | Path, *, channels: int | None = None, rate_hz: float | None = None,
