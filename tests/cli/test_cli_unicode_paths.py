@@ -10,6 +10,7 @@ import pytest
 from rigside.cli.main import main
 from rigside.core.units.session import load_session
 
+
 @pytest.fixture(scope="module")
 def folder(tmp_path_factory):
     d = tmp_path_factory.mktemp("paths") / "réc données ü"
