@@ -121,6 +121,8 @@ def _parse_block(text: str, order: list[int], dtype: list, cols: dict[str, int],
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", UserWarning)     # a block of comments only is empty
+            # older numpy (2.0, the floor) only warns and truncates when an integer column holds "1.5"
+            warnings.simplefilter("error", DeprecationWarning)
             return np.loadtxt(lines, delimiter=",", usecols=order, dtype=dtype, ndmin=1, comments="#",
                               quotechar='"')
     except ValueError as exc:
