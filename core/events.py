@@ -29,8 +29,32 @@ COLUMNS = {
     "amplitude_sigma": np.float32,
     "artefact": np.bool_,
 }
+"""Stored columns of an event table and their dtypes, in file order: the one list every reader,
+writer and builder of event tables follows."""
+CSV_COLUMNS = ("sample", "time_s", *(c for c in COLUMNS if c != "sample"))
+"""Columns of the event CSV: the stored ones with ``time_s`` after ``sample``."""
 MAX_SAMPLES = 2**48
 """Longest recording an event table may describe (about 300 years at 30 kHz)."""
+
+
+def uv_to_sigma(threshold_uv, sigma_uv) -> np.ndarray:
+    """Threshold in sigma multiples from microvolts, per channel.
+
+    Parameters
+    ----------
+    threshold_uv
+        Scalar or one value per channel (uV).
+    sigma_uv
+        Noise level of each channel (uV); a channel with zero sigma is dead.
+
+    Returns
+    -------
+    numpy.ndarray
+        ``threshold_uv / sigma_uv`` (float64), infinite on dead channels.
+    """
+    sigma = np.asarray(sigma_uv, dtype=np.float64)
+    uv = np.broadcast_to(np.asarray(threshold_uv, dtype=np.float64), sigma.shape)
+    return np.where(sigma > 0, uv / np.where(sigma > 0, sigma, 1.0), np.inf)
 
 
 @dataclass
@@ -106,10 +130,7 @@ class EventTable:
         if threshold_sigma is not None:
             return np.broadcast_to(np.asarray(threshold_sigma, dtype=np.float64),
                                    (self.n_channels,)).copy()
-        uv = np.broadcast_to(np.asarray(threshold_uv, dtype=np.float64), (self.n_channels,))
-        with np.errstate(divide="ignore", invalid="ignore"):
-            out = np.where(self.sigma_uv > 0, uv / np.where(self.sigma_uv > 0, self.sigma_uv, 1), np.inf)
-        return out
+        return uv_to_sigma(threshold_uv, self.sigma_uv)
 
     def mask(self, threshold_sigma=None, threshold_uv=None, include_artefacts: bool = False) -> np.ndarray:
         """Boolean mask of events at or above the threshold (per channel if an array)."""
@@ -168,10 +189,8 @@ class EventTable:
         """
         def write(tmp: Path) -> None:
             with open(tmp, "wb") as fh:
-                fh.write(b"sample,time_s,channel,group,amplitude_uv,amplitude_sigma,artefact\r\n")
-                write_rows(fh, [("int", self.sample), ("fixed", self.time_s, 6), ("int", self.channel),
-                                ("int", self.group), ("fixed", self.amplitude_uv, 3),
-                                ("fixed", self.amplitude_sigma, 4), ("int", self.artefact)], "\r\n")
+                fh.write((",".join(CSV_COLUMNS) + "\r\n").encode("ascii"))
+                write_rows(fh, [_csv_format(self, c) for c in CSV_COLUMNS], "\r\n")
         atomic_write(path, write)
 
     def write_h5(self, path: str | Path, group: str = "events") -> None:
@@ -253,6 +272,15 @@ class EventTable:
                 return cls.from_h5_group(f[group])
         except OSError as exc:
             raise RigsideError(f"event file must be a readable HDF5 file, got {str(path)!r}: {exc}") from None
+
+
+_CSV_DIGITS = {"time_s": 6, "amplitude_uv": 3, "amplitude_sigma": 4}
+
+
+def _csv_format(table: EventTable, column: str) -> tuple:
+    """How :func:`rigside.core.io.csv_text.write_rows` formats one column of the event CSV."""
+    values = getattr(table, column)
+    return ("fixed", values, _CSV_DIGITS[column]) if column in _CSV_DIGITS else ("int", values)
 
 
 def _read_excluded(g: h5py.Group, n_channels: int) -> dict[int, str]:

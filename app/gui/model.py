@@ -8,12 +8,13 @@ the scope (all channels or one) only say how the next edit is read and how value
 
 from __future__ import annotations
 
-import weakref
 from dataclasses import dataclass
-from typing import TYPE_CHECKING, Any, Callable
+from typing import TYPE_CHECKING
 
 import numpy as np
 
+from rigside.core.events import uv_to_sigma
+from rigside.core.notify import Signal
 from rigside.core.signal.rice import sampled_crossing_rate
 
 if TYPE_CHECKING:   # the types of Analysis only: no import at run time
@@ -27,35 +28,6 @@ if TYPE_CHECKING:   # the types of Analysis only: no import at run time
 
 SCALES = ("sigma", "uv")
 SCOPES = ("all", "channel")
-
-
-class Signal:
-    """A tiny emitter: callbacks held weakly (bound methods) or strongly (functions)."""
-
-    def __init__(self) -> None:
-        self._slots: list[Callable[[], Callable | None]] = []
-
-    def connect(self, fn: Callable) -> None:
-        if hasattr(fn, "__self__") and hasattr(fn, "__func__"):
-            ref = weakref.WeakMethod(fn)
-        else:
-            ref = (lambda f=fn: f)
-        self._slots.append(ref)
-
-    def emit(self, *args: Any) -> None:
-        """Call every callback; the first error is raised after all have run, so that one
-        failing panel never leaves the others showing the previous state."""
-        first: Exception | None = None
-        for ref in list(self._slots):
-            fn = ref()
-            if fn is not None:
-                try:
-                    fn(*args)
-                except Exception as exc:  # re-raised below, once every callback has run
-                    first = first or exc
-        self._slots = [r for r in self._slots if r() is not None]
-        if first is not None:
-            raise first
 
 
 @dataclass
@@ -265,9 +237,7 @@ class Workbench:
             sigma = self.sigma_uv
             if sigma is None:
                 return
-            s = np.asarray(sigma, dtype=np.float64)[targets]
-            with np.errstate(divide="ignore"):
-                new[targets] = np.where(s > 0, value / np.where(s > 0, s, 1.0), np.inf)
+            new[targets] = uv_to_sigma(value, np.asarray(sigma, dtype=np.float64)[targets])
         changed = not np.array_equal(new, self.thresholds_sigma)
         self.thresholds_sigma = new
         if changed or final:

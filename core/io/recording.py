@@ -306,7 +306,7 @@ def write_metadata(path: str | Path, layout: Layout) -> Path:
     table = {"recording": rec} | ({"group": groups} if groups else {})
     text = "# rigside recording description\n" + tomli_w.dumps(table)
     meta = Path(path).with_name(Path(path).stem + META_SUFFIX)
-    return atomic_write(meta, lambda tmp: tmp.write_text(text, encoding="utf-8"))
+    return atomic_write(meta, lambda tmp: tmp.write_text(text, encoding="utf-8", newline="\n"))
 
 
 def open_recording(path: str | Path, *, channels: int | None = None, rate_hz: float | None = None,

@@ -166,6 +166,25 @@ def _mode(x: np.ndarray) -> int:
     return int(vals[np.argmax(counts)])
 
 
+def main_channel(event_channels: np.ndarray) -> int:
+    """A unit's main channel: the channel on which most of its events were detected.
+
+    Parameters
+    ----------
+    event_channels
+        Detection channel of each of the unit's events (at least one).
+
+    Returns
+    -------
+    int
+        The most frequent channel (the lowest of tied channels). Imported units carry no detection
+        channel; the audit places them by their mean waveform instead (``rigside.core.audit.imported``).
+    """
+    if len(event_channels) == 0:
+        raise RigsideError("a unit's main channel needs events, got none")
+    return _mode(np.asarray(event_channels))
+
+
 class _GroupSpace:
     """Centred float64 features of one channel group, built once and reused for its units."""
 
@@ -264,7 +283,7 @@ def _dtype(column: str) -> type:
 def _one_unit(inp: _Inputs, params: MetricParams, unit: int, rows: np.ndarray, group: int,
               space: _GroupSpace | None) -> dict:
     t = inp.times[rows]
-    main = _mode(inp.channel[rows])
+    main = main_channel(inp.channel[rows])
     on_main = rows[inp.channel[rows] == main]
     isi = isi_violations(t, inp.duration, params.refractory_ms / 1e3, params.censored_ms / 1e3)
     if space is None:

@@ -85,4 +85,4 @@ def write_summary(path: Path, rec: Recording, params: Params, events: EventTable
                            for gi in groups_without_usable_channel(rec.groups, events.excluded)],
         "notes": exclusion_notes(rec.groups, rec.group_names, events.excluded),
     }
-    atomic_write(path, lambda tmp: tmp.write_text(json.dumps(doc, indent=2)))
+    atomic_write(path, lambda tmp: tmp.write_text(json.dumps(doc, indent=2), encoding="utf-8", newline="\n"))

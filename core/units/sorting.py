@@ -7,14 +7,14 @@ announced once, with the units it touched, on :attr:`Sorting.changed`.
 
 from __future__ import annotations
 
-import weakref
 from dataclasses import dataclass, field, replace
-from typing import Callable, Sequence
+from typing import Sequence
 
 import numpy as np
 
 from rigside.core.errors import CurationError, RigsideError
 from rigside.core.events import EventTable
+from rigside.core.notify import Signal
 from rigside.core.units.journal import Journal
 
 NO_UNIT = -1
@@ -29,38 +29,6 @@ MAX_UNIT_ID = 2**31 - 2
 AXIS_TIME = "event:time_s"
 AXIS_AMPLITUDE = "event:amplitude_uv"
 FEATURE_AXIS_PREFIX = "feature:"
-
-
-class Signal:
-    """A tiny emitter holding weak references to its callbacks.
-
-    Bound methods are held through :class:`weakref.WeakMethod`, functions through
-    :class:`weakref.ref`; the caller keeps callbacks alive (a lambda passed inline dies at once).
-    """
-
-    def __init__(self) -> None:
-        self._slots: list[weakref.ref] = []
-
-    def connect(self, callback: Callable) -> None:
-        """Call ``callback`` on every emit, as long as it lives (connecting twice is a no-op)."""
-        try:
-            ref = weakref.WeakMethod(callback) if hasattr(callback, "__func__") else weakref.ref(callback)
-        except TypeError:
-            raise TypeError(f"callback must be a function or bound method, got {callback!r}") from None
-        if all(r() != callback for r in self._slots):
-            self._slots.append(ref)
-
-    def disconnect(self, callback: Callable) -> None:
-        """Stop calling ``callback``."""
-        self._slots = [r for r in self._slots if r() is not None and r() != callback]
-
-    def emit(self, *args) -> None:
-        """Call every live callback with ``args``, in connection order."""
-        live = [(r, r()) for r in self._slots]
-        self._slots = [r for r, f in live if f is not None]
-        for _, f in live:
-            if f is not None:
-                f(*args)
 
 
 @dataclass(frozen=True)

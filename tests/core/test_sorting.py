@@ -20,7 +20,7 @@ from rigside.core.units.operations import (
     operation_from_record,
 )
 from rigside.core.units.polygon import points_in_polygon
-from rigside.core.units.sorting import AXIS_AMPLITUDE, AXIS_TIME, NO_UNIT, Signal, Sorting, Unit
+from rigside.core.units.sorting import AXIS_AMPLITUDE, AXIS_TIME, NO_UNIT, Sorting, Unit
 
 from .sorting_data import make_events
 
@@ -233,21 +233,6 @@ def test_relabel_and_note_touch_only_their_unit(base):
     gc.collect()
     stack.push(SetNote(u, "gone"))
     assert len(seen) == 2
-
-
-def test_signal_functions_and_disconnect():
-    sig = Signal()
-    got = []
-
-    def f(x):
-        got.append(x)
-
-    sig.connect(f)
-    sig.connect(f)
-    sig.emit(1)
-    sig.disconnect(f)
-    sig.emit(2)
-    assert got == [1]
 
 
 def test_journal_replay_refuses_inconsistent_entries(base):
