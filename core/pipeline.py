@@ -2,26 +2,19 @@
 
 from __future__ import annotations
 
-from concurrent.futures import Future, ThreadPoolExecutor
-from collections import deque
-
 import numpy as np
 
+from .chunk_pool import chunk_bounds, map_chunks
 from .content import ContentHasher
 from .detection import BlockEvents, detect_block
 from .events import EventTable
 from .filtering import BandPass
 from .noise import NoiseEstimate, estimate_noise
 from .params import Params
-from .progress import CancelFn, ProgressFn, check, report
+from .progress import CancelFn, ProgressFn, report
 from .recording import Recording
 
 NOISE_SHARE = 0.1  # fraction of the progress bar given to the noise estimate
-
-
-def chunk_bounds(n_samples: int, chunk: int) -> list[tuple[int, int]]:
-    """Consecutive ``[start, stop)`` ranges of at most ``chunk`` samples covering the file."""
-    return [(s, min(s + chunk, n_samples)) for s in range(0, n_samples, chunk)]
 
 
 def thresholds_sigma(params: Params, sigma_uv: np.ndarray) -> np.ndarray:
@@ -94,28 +87,14 @@ def detect(recording: Recording, params: Params, progress: ProgressFn = None, ca
     parts: list[BlockEvents] = []
     hasher = ContentHasher(recording.path)
 
-    def collect(future: Future) -> None:
-        parts.append(future.result())
+    def collect(part: BlockEvents) -> None:
+        parts.append(part)
         hasher.advance(len(parts) / len(bounds))
         report(progress, NOISE_SHARE + (1 - NOISE_SHARE) * len(parts) / len(bounds), "detecting")
 
-    with hasher, ThreadPoolExecutor(max_workers=params.run.workers) as pool:
-        pending: deque[Future] = deque()
-        todo = iter(bounds)
-        try:
-            for b in todo:
-                check(cancel)
-                pending.append(pool.submit(work, *b))
-                if len(pending) >= 2 * params.run.workers:
-                    collect(pending.popleft())
-            while pending:
-                check(cancel)
-                collect(pending.popleft())
-            recording.content_hash = hasher.finish()
-        except BaseException:
-            for f in pending:
-                f.cancel()
-            raise
+    with hasher:
+        map_chunks(work, bounds, params.run.workers, collect, cancel)
+        recording.content_hash = hasher.finish()
     return _assemble(parts, recording, sigma, floor, d.polarity, excluded)
 
 
