@@ -28,7 +28,7 @@ import threading
 import warnings
 from concurrent.futures import ProcessPoolExecutor
 from contextlib import contextmanager
-from multiprocessing import get_context
+from multiprocessing import get_all_start_methods, get_context
 
 import numpy as np
 from sklearn.exceptions import ConvergenceWarning
@@ -45,6 +45,11 @@ NO_UNIT = -1
 
 MIN_EVENTS_PER_COMPONENT = 10
 """A fit never uses more components than one per this many fitted events."""
+
+WORKER_START = "fork" if "fork" in get_all_start_methods() else "spawn"
+"""How worker processes start: forked where the system can (a few ms; a fresh interpreter
+importing scikit-learn took 1.5-10 s here), so the caller must hold no lock in another thread
+(the command-line sort runs it from its only thread)."""
 
 ASSIGN_BLOCK = 1 << 16
 """Events assigned to the fitted mixture at a time (bounds the memory of the assignment)."""
@@ -259,10 +264,11 @@ def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np
     progress, cancel
         Progress callback and cancel check (one step per group).
     workers
-        Groups clustered at the same time, each in its own process (scikit-learn's mixture
-        fits on a few thousand events hold the interpreter lock most of the time, so threads
-        do not run them in parallel; measured in ``bench/bench_sort_path.py``). The result does
-        not depend on it: every group's clustering depends only on its own events and seed.
+        Groups clustered at the same time, each in its own process (see :data:`WORKER_START`;
+        scikit-learn's mixture fits on a few thousand events hold the interpreter lock most of
+        the time, so threads ran them slower than one thread: ``bench/bench_sort_path.py
+        --threads``). The result does not depend on it: every group's clustering depends only
+        on its own events and seed.
 
     Returns
     -------
@@ -303,7 +309,7 @@ def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np
     report(progress, 0.0, "clustering groups")
     tasks = ((i, features[rows_of[i]], params, todo[i]) for i in busy)
     if workers > 1 and len(busy) > 1:
-        processes = ProcessPoolExecutor(min(workers, len(busy)), mp_context=get_context("spawn"))
+        processes = ProcessPoolExecutor(min(workers, len(busy)), mp_context=get_context(WORKER_START))
         map_chunks(_cluster_group, tasks, workers, number, cancel, pool=processes)
     else:
         for task in tasks:
