@@ -1,5 +1,5 @@
-"""Benchmark of `core.audit.run_audit`: 100 imported units, 10^6 spikes, against a session of a
-10-minute 32-channel synthetic recording (core.synth; the recording and session are written
+"""Benchmark of `rigside.core.audit.run.run_audit`: 100 imported units, 10^6 spikes, against a session of a
+10-minute 32-channel synthetic recording (rigside.core.synthetic.synth; the recording and session are written
 to the work folder once and reused).
 
 Imported units (invented): unit k starts from true unit k mod 24 with 10% of its spikes
@@ -28,17 +28,17 @@ from scipy import signal
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
-from core.audit import CAUTION, FreshUnits, run_audit  # noqa: E402
-from core.audit_table import write_audit_csv  # noqa: E402
-from core.filtering import design_bandpass  # noqa: E402
-from core.params import Params  # noqa: E402
-from core.recording import open_recording  # noqa: E402
-from core.report import write_audit_report  # noqa: E402
-from core.session import load_session  # noqa: E402
-from core.sort_run import run_sort  # noqa: E402
-from core.spike_import import finish  # noqa: E402
-from core.synth import write_synth  # noqa: E402
-from core.truth import load_truth  # noqa: E402
+from rigside.core.audit.report import write_audit_report  # noqa: E402
+from rigside.core.audit.run import CAUTION, FreshUnits, run_audit  # noqa: E402
+from rigside.core.audit.table import write_audit_csv  # noqa: E402
+from rigside.core.io.recording import open_recording  # noqa: E402
+from rigside.core.io.spike_import import finish  # noqa: E402
+from rigside.core.params import Params  # noqa: E402
+from rigside.core.runs.sort import run_sort  # noqa: E402
+from rigside.core.signal.filtering import design_bandpass  # noqa: E402
+from rigside.core.synthetic.synth import write_synth  # noqa: E402
+from rigside.core.synthetic.truth import load_truth  # noqa: E402
+from rigside.core.units.session import load_session  # noqa: E402
 
 N_UNITS, PER_UNIT, TOL = 100, 10_000, 0.0005
 

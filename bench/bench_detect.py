@@ -12,7 +12,6 @@ scipy.signal.sosfiltfilt, numpy median noise, numpy threshold crossings).
 from __future__ import annotations
 
 import argparse
-import resource
 import subprocess
 import sys
 import tempfile
@@ -25,15 +24,15 @@ from scipy import signal
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
-from core.params import Params  # noqa: E402
-from core.pipeline import detect  # noqa: E402
-from core.recording import open_recording  # noqa: E402
-from core.synth import write_synth  # noqa: E402
+from rigside.core.io.recording import open_recording  # noqa: E402
+from rigside.core.params import Params  # noqa: E402
+from rigside.core.signal.pipeline import detect  # noqa: E402
+from rigside.core.synthetic.synth import write_synth  # noqa: E402
 
 
 def run_detect(path: Path) -> tuple[float, float]:
     """Wall time and peak RSS (MB) of `rigside detect` in a fresh process."""
-    code = ("import sys, resource; from app.cli import main; rc = main(sys.argv[1:]); "
+    code = ("import sys, resource; from rigside.cli.main import main; rc = main(sys.argv[1:]); "
             "print('MAXRSS', resource.getrusage(resource.RUSAGE_SELF).ru_maxrss); sys.exit(rc)")
     t = time.perf_counter()
     r = subprocess.run([sys.executable, "-c", code, "detect", str(path), "--out", str(path.with_suffix(".h5")),

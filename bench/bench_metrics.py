@@ -22,8 +22,8 @@ from scipy.spatial.distance import cdist
 
 sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 
-from core.correlograms import autocorrelogram  # noqa: E402
-from core.unit_table import unit_metrics_table  # noqa: E402
+from rigside.core.quality.correlograms import autocorrelogram  # noqa: E402
+from rigside.core.quality.unit_table import unit_metrics_table  # noqa: E402
 
 DURATION = 1000.0
 N_GROUPS = 16

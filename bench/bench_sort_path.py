@@ -1,7 +1,7 @@
 """Benchmark of the sorting path: `rigside detect` and `rigside sort` on generated 64-channel files.
 
 For each length (default 150 s and 600 s, 4x apart) a recording is generated in a temporary
-folder with `python3 -m app.cli synth`, then printed:
+folder with `python3 -m rigside synth`, then printed:
 1. `detect` and `sort` as whole commands (fresh processes, start-up included): wall time,
    multiple of real time, sort / detect ratio, and peak memory: the largest RSS of the command's
    process and the largest sum over the command and its worker processes (sampled every 20 ms);
@@ -34,19 +34,19 @@ import psutil
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
-from core.clustering import cluster_features, first_pass_assignments  # noqa: E402
-from core.features import compute_features, usable_channels  # noqa: E402
-from core.filtering import BandPass  # noqa: E402
-from core.params import Params  # noqa: E402
-from core.pipeline import detect, thresholds_sigma  # noqa: E402
-from core.recording import open_recording  # noqa: E402
-from core.snippets import align_subsample, snippet_window  # noqa: E402
+from rigside.core.io.recording import open_recording  # noqa: E402
+from rigside.core.params import Params  # noqa: E402
+from rigside.core.signal.features import compute_features, usable_channels  # noqa: E402
+from rigside.core.signal.filtering import BandPass  # noqa: E402
+from rigside.core.signal.pipeline import detect, thresholds_sigma  # noqa: E402
+from rigside.core.signal.snippets import align_subsample, snippet_window  # noqa: E402
+from rigside.core.units.clustering import cluster_features, first_pass_assignments  # noqa: E402
 
 
 def run_command(args: list[str]) -> tuple[float, float, float]:
     """Wall time, peak RSS of the main process and peak summed RSS of its process tree (MB)."""
     t = time.perf_counter()
-    proc = psutil.Popen([sys.executable, "-m", "app.cli", *args], cwd=ROOT,
+    proc = psutil.Popen([sys.executable, "-m", "rigside", *args], cwd=ROOT,
                         stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
     main_peak = tree_peak = 0
     while proc.poll() is None:
@@ -102,7 +102,7 @@ def unsubsampled_fit(ev, values, assign, unit_group, groups: list[int]) -> float
 def bench_length(seconds: float, channels: int, threads: bool) -> dict:
     with tempfile.TemporaryDirectory(prefix="rigside-bench-") as tmp:
         raw = Path(tmp) / "rec.bin"
-        subprocess.run([sys.executable, "-m", "app.cli", "synth", str(raw), "--seconds", str(seconds),
+        subprocess.run([sys.executable, "-m", "rigside", "synth", str(raw), "--seconds", str(seconds),
                         "--channels", str(channels), "--seed", "0", "--quiet"], cwd=ROOT, check=True,
                        stdout=subprocess.DEVNULL)
         det = run_command(["detect", str(raw), "--out", str(Path(tmp) / "ev.h5"), "--quiet"])
@@ -154,6 +154,8 @@ def main() -> None:
     ap.add_argument("--channels", type=int, default=64)
     ap.add_argument("--threads", action="store_true", help="also time the first pass in a thread pool")
     args = ap.parse_args()
+    import rigside.core
+    print(f"code under test: {rigside.core.__path__[0]}")
     print(f"machine: {psutil.cpu_count()} cores, load average {psutil.getloadavg()} at start "
           "(shared with other jobs: figures vary from run to run)")
     results = []

@@ -29,10 +29,10 @@ import numpy as np
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
-from core.clustering import ClusterParams, cluster_features, first_pass_assignments  # noqa: E402
-from core.journal import UndoStack  # noqa: E402
-from core.operations import MergeUnits, ReclusterUnit, SplitByPolygon  # noqa: E402
-from core.sorting import AXIS_TIME, Sorting, SortingData, Unit  # noqa: E402
+from rigside.core.units.clustering import ClusterParams, cluster_features, first_pass_assignments  # noqa: E402
+from rigside.core.units.history import UndoStack  # noqa: E402
+from rigside.core.units.operations import MergeUnits, ReclusterUnit, SplitByPolygon  # noqa: E402
+from rigside.core.units.sorting import AXIS_TIME, Sorting, SortingData, Unit  # noqa: E402
 
 GROUPS = 16
 D = 6
@@ -77,10 +77,10 @@ def bench_first_pass(data: SortingData, params: ClusterParams) -> float:
 
 
 def bench_detect(n_events: int, cluster_wall: float) -> None:
-    from core.params import Params
-    from core.pipeline import detect
-    from core.recording import open_recording
-    from core.synth import write_synth
+    from rigside.core.io.recording import open_recording
+    from rigside.core.params import Params
+    from rigside.core.signal.pipeline import detect
+    from rigside.core.synthetic.synth import write_synth
 
     work = Path(tempfile.mkdtemp(prefix="rigside-bench-sort-"))
     path = work / "demo.bin"
@@ -163,9 +163,9 @@ def bench_steps(data: SortingData, big: int) -> None:
 
 
 def bench_session(data: SortingData, sorting: Sorting) -> None:
-    from core.events import EventTable
-    from core.params import Params
-    from core.session import RecordingRef, Session, load_session, save_autosave, save_session
+    from rigside.core.events import EventTable
+    from rigside.core.params import Params
+    from rigside.core.units.session import RecordingRef, Session, load_session, save_autosave, save_session
 
     n = len(data)
     rate = 30000.0

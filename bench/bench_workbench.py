@@ -30,12 +30,12 @@ sys.path.insert(0, str(Path(__file__).resolve().parents[1]))
 from PySide6.QtCore import QSettings  # noqa: E402
 from PySide6.QtWidgets import QApplication  # noqa: E402
 
-from core.events import EventTable  # noqa: E402
-from core.features import Features  # noqa: E402
-from core.noise import estimate_noise  # noqa: E402
-from core.params import Params  # noqa: E402
-from core.pipeline import detect  # noqa: E402
-from core.recording import open_recording  # noqa: E402
+from rigside.core.events import EventTable  # noqa: E402
+from rigside.core.io.recording import open_recording  # noqa: E402
+from rigside.core.params import Params  # noqa: E402
+from rigside.core.signal.features import Features  # noqa: E402
+from rigside.core.signal.noise import estimate_noise  # noqa: E402
+from rigside.core.signal.pipeline import detect  # noqa: E402
 
 RATE = 30000.0
 CHANNELS = 32
@@ -103,7 +103,7 @@ def main() -> int:
     QSettings.setDefaultFormat(QSettings.Format.IniFormat)
     QSettings.setPath(QSettings.Format.IniFormat, QSettings.Scope.UserScope, str(folder / "settings"))
     app = QApplication.instance() or QApplication([])
-    from app.window import MainWindow
+    from rigside.gui.window import MainWindow
 
     path = write_recording(folder, args.seconds)
     rec = open_recording(path)
@@ -157,7 +157,7 @@ def main() -> int:
         steps = 60
         dt = width / 30.0
 
-        def frame(i, width=width, start=start):
+        def frame(i, width=width, start=start, dt=dt):
             t0 = start + i * dt
             bench.set_view(t0, t0 + width)
             trace_view.repaint()
@@ -166,10 +166,10 @@ def main() -> int:
         win.runner.shutdown()
         traces = win.traces
 
-        def naive_frame(i, width=width, start=start):
+        def naive_frame(i, width=width, start=start, dt=dt, traces=traces):
             t0 = start + i * dt
             a, z = int(t0 * RATE), int((t0 + width) * RATE)
-            y = traces._bandpass.read(a, z, np.arange(CHANNELS))
+            y = traces.source.bandpass.read(a, z, np.arange(CHANNELS))
             n = z - a
             x = np.tile(np.arange(a, z) / RATE, CHANNELS)
             yy = (y + traces.offsets[None, :]).T.ravel()

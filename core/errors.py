@@ -23,3 +23,7 @@ class SessionError(RigsideError):
 
 class SpikeFileError(RigsideError):
     """A file of spike times cannot be imported."""
+
+
+class CurationError(RigsideError):
+    """A curation operation cannot be applied as asked."""

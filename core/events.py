@@ -7,7 +7,6 @@ from a look-up, without re-reading the recording.
 
 from __future__ import annotations
 
-import csv
 import json
 import math
 from dataclasses import dataclass, field
@@ -16,10 +15,11 @@ from pathlib import Path
 import h5py
 import numpy as np
 
-from .atomic import atomic_write
-from .errors import RigsideError
-from .h5image import write_h5
-from .params import POLARITIES
+from rigside.core.errors import RigsideError
+from rigside.core.io.atomic import atomic_write
+from rigside.core.io.csv_text import write_rows
+from rigside.core.io.h5image import write_h5
+from rigside.core.params import POLARITIES
 
 COLUMNS = {
     "sample": np.int64,
@@ -161,15 +161,17 @@ class EventTable:
 
     # ---- files -------------------------------------------------------------------------
     def write_csv(self, path: str | Path) -> None:
-        """Write ``sample,time_s,channel,group,amplitude_uv,amplitude_sigma,artefact`` atomically."""
+        """Write ``sample,time_s,channel,group,amplitude_uv,amplitude_sigma,artefact`` atomically.
+
+        Rows end in CRLF; times have 6 decimals, amplitudes 3 (uV) and 4 (sigma); formatted in
+        blocks (:func:`rigside.core.io.csv_text.write_rows`).
+        """
         def write(tmp: Path) -> None:
-            with open(tmp, "w", newline="") as fh:
-                w = csv.writer(fh)
-                w.writerow(["sample", "time_s", "channel", "group", "amplitude_uv", "amplitude_sigma", "artefact"])
-                w.writerows(zip(self.sample.tolist(), (f"{t:.6f}" for t in self.time_s),
-                                self.channel.tolist(), self.group.tolist(),
-                                (f"{a:.3f}" for a in self.amplitude_uv), (f"{a:.4f}" for a in self.amplitude_sigma),
-                                self.artefact.astype(int).tolist()))
+            with open(tmp, "wb") as fh:
+                fh.write(b"sample,time_s,channel,group,amplitude_uv,amplitude_sigma,artefact\r\n")
+                write_rows(fh, [("int", self.sample), ("fixed", self.time_s, 6), ("int", self.channel),
+                                ("int", self.group), ("fixed", self.amplitude_uv, 3),
+                                ("fixed", self.amplitude_sigma, 4), ("int", self.artefact)], "\r\n")
         atomic_write(path, write)
 
     def write_h5(self, path: str | Path, group: str = "events") -> None:

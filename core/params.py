@@ -13,10 +13,10 @@ from typing import Any
 
 import tomli_w
 
-from .atomic import atomic_write
-from .errors import ParamError
-from .numbers import format_number
-from .textparse import parse_toml
+from rigside.core.errors import ParamError
+from rigside.core.io.atomic import atomic_write
+from rigside.core.numbers import format_number
+from rigside.core.textparse import parse_toml
 
 POLARITIES = ("negative", "positive", "both")
 MEMORY_BUDGET_BYTES = 512 << 20

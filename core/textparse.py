@@ -12,7 +12,7 @@ import json
 import tomllib
 from typing import Any
 
-from .errors import RigsideError
+from rigside.core.errors import RigsideError
 
 MAX_NESTING = 32
 """Deepest nesting of lists and tables accepted in any file we parse."""

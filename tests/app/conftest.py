@@ -11,18 +11,20 @@ import pytest
 from PySide6.QtCore import QSettings
 from PySide6.QtWidgets import QApplication, QWidget
 
-from app import jobs
-from app.window import MainWindow, demo_path
-from app.workers import running_jobs
-from core.params import Params
-from core.recording import open_recording
+from rigside.core.io.recording import open_recording
+from rigside.core.params import Params
+from rigside.gui import jobs
+from rigside.gui.window import MainWindow
+from rigside.gui.workers import running_jobs
+from rigside.sample_data import demo_path
 
 _CACHE: dict = {}
 
 
 @pytest.fixture(autouse=True)
-def temporary_settings(tmp_path, qapp):
-    """Every test keeps window settings in its own folder, never the user's."""
+def temporary_settings(tmp_path, qapp, monkeypatch):
+    """Every test keeps window settings and cached overviews in its own folder, never the user's."""
+    monkeypatch.setenv("RIGSIDE_CACHE_DIR", str(tmp_path / "cache"))
     QSettings.setDefaultFormat(QSettings.Format.IniFormat)
     QSettings.setPath(QSettings.Format.IniFormat, QSettings.Scope.UserScope, str(tmp_path / "settings"))
     yield

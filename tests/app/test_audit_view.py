@@ -13,14 +13,13 @@ import pytest
 from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QDialog, QFileDialog, QTabBar
 
-from app.audit_controller import AUDIT_LABEL
-from app.dialogs.audit_import import AuditImportDialog
-from app.screenshot import capture, colour_share, pixels
-from app.panels.audit_pair import FRESH, IMPORTED, TRACE_KEY, shown_channels
-from app.panels.audit_view import TABLE_SPECS
-from app.window import demo_path
-from core.audit_views import PairView, UnitView, pair_view
-
+from rigside.core.audit.views import PairView, UnitView, pair_view
+from rigside.gui.audit_controller import AUDIT_LABEL
+from rigside.gui.dialogs.audit_import import AuditImportDialog
+from rigside.gui.panels.audit_pair import FRESH, IMPORTED, TRACE_KEY, shown_channels
+from rigside.gui.panels.audit_view import TABLE_SPECS
+from rigside.gui.screenshot import capture, colour_share, pixels
+from rigside.sample_data import demo_path
 from tests.app.units_helpers import cluster_demo
 
 

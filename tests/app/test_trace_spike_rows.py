@@ -6,7 +6,7 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from app import palette
+from rigside.gui import palette
 
 
 def expected(times: np.ndarray, flags: np.ndarray, t0: float, t1: float) -> tuple[np.ndarray, np.ndarray]:

@@ -9,13 +9,12 @@ from PySide6.QtCore import Qt
 from PySide6.QtGui import QKeySequence
 from PySide6.QtWidgets import QMenu
 
-from app.dialogs.unit_dialogs import ClusterDialog, LimitsDialog, PartsDialog, spin_count
-from app.panels.units import COLUMN_SPECS
-from app.units_frame import LABEL_KEYS, label_action_name
-from app.window_actions import show_shortcuts
-from core.clustering import NO_UNIT
-from core.sorting import AXIS_AMPLITUDE, AXIS_TIME, LABELS
-from core.unit_table_io import DEFAULT_LIMITS, Limit
+from rigside.core.quality.unit_table_io import DEFAULT_LIMITS, Limit
+from rigside.core.units.sorting import AXIS_AMPLITUDE, AXIS_TIME, LABELS, NO_UNIT
+from rigside.gui.dialogs.unit_dialogs import ClusterDialog, LimitsDialog, PartsDialog, spin_count
+from rigside.gui.panels.units import COLUMN_SPECS
+from rigside.gui.units_frame import LABEL_KEYS, label_action_name
+from rigside.gui.window_actions import show_shortcuts
 from tests.app.units_helpers import biggest_unit, click_data, cluster_demo, rectangle
 
 

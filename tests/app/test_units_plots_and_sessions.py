@@ -8,12 +8,14 @@ from pathlib import Path
 import numpy as np
 from PySide6.QtCore import Qt
 
-from app import palette, session_flow
-from app.window import MainWindow, demo_path, settings
-from app.screenshot import capture, colour_share, pixels
-from app.sorting_controller import SELECTION_COLOURS
-from core.journal import replay_matches
-from core.session import autosave_path, file_fingerprint
+from rigside.core.units.history import replay_matches
+from rigside.core.units.session import autosave_path, file_fingerprint
+from rigside.gui import palette, session_flow
+from rigside.gui.screenshot import capture, colour_share, pixels
+from rigside.gui.settings_store import settings
+from rigside.gui.sorting_controller import SELECTION_COLOURS
+from rigside.gui.window import MainWindow
+from rigside.sample_data import demo_path
 from tests.app.units_helpers import biggest_unit, cluster_demo
 
 

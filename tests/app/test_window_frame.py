@@ -9,11 +9,11 @@ import pytest
 from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QDialog
 
-from app.dialogs.about import about_text
-from app.dialogs.raw_layout import RawLayoutDialog
-from app.screenshot import capture, colour_share, distinct_colours, pixels
-from app.window import MainWindow, run_window
-from app import jobs, palette
+from rigside.gui import jobs, palette
+from rigside.gui.dialogs.about import about_text
+from rigside.gui.dialogs.raw_layout import RawLayoutDialog
+from rigside.gui.screenshot import capture, colour_share, distinct_colours, pixels
+from rigside.gui.window import MainWindow, run_window
 
 
 def write_noise(path, seconds: float, channels: int, rate: float = 30000.0, meta: bool = True) -> None:
@@ -166,8 +166,8 @@ def test_waveforms_and_features_follow_the_selection(demo_window):
 
 
 def test_dense_features_draw_as_a_density_image(demo_window):
-    from core.features import Features
-    from core.events import EventTable
+    from rigside.core.events import EventTable
+    from rigside.core.signal.features import Features
     win = demo_window
     b = win.bench
     rec = b.recording
@@ -213,7 +213,7 @@ def test_run_window_screenshot_entry_point(tmp_path, qapp):
 
 
 def test_extensions_add_docks_that_join_the_saved_layout(qtbot):
-    from app.panels.base import Panel
+    from rigside.gui.panels.base import Panel
 
     class Notes(Panel):
         panel_id = "notes"

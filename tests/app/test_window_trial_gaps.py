@@ -29,8 +29,8 @@ def test_a_foreign_or_broken_truth_file_is_ignored_with_a_warning(window, tmp_pa
 def test_layout_dialog_saves_the_layout_beside_the_data(window, tmp_path, monkeypatch):
     from PySide6.QtWidgets import QDialog
 
-    from app.dialogs.raw_layout import RawLayoutDialog
-    from core.recording import open_recording
+    from rigside.core.io.recording import open_recording
+    from rigside.gui.dialogs.raw_layout import RawLayoutDialog
 
     raw = tmp_path / "lab.dat"
     x = np.random.default_rng(2).normal(0, 40, (15000, 4))
@@ -63,7 +63,7 @@ def test_layout_dialog_saves_the_layout_beside_the_data(window, tmp_path, monkey
 def test_hdf5_with_several_datasets_offers_the_choice(window, tmp_path, monkeypatch):
     import h5py
 
-    from app.dialogs.hdf5_dataset import DatasetDialog
+    from rigside.gui.dialogs.hdf5_dataset import DatasetDialog
 
     path = tmp_path / "two.h5"
     x = np.random.default_rng(0).normal(0, 20, (15000, 4)).astype(np.float32)
@@ -90,7 +90,7 @@ def test_hdf5_with_several_datasets_offers_the_choice(window, tmp_path, monkeypa
 def test_saving_the_demo_starts_in_documents_then_the_last_folder(demo_window, tmp_path, monkeypatch):
     from PySide6.QtCore import QStandardPaths
 
-    from app.save_folder import program_folder
+    from rigside.gui.save_folder import program_folders
     from tests.app.units_helpers import cluster_demo
 
     docs = tmp_path / "Documents"
@@ -102,7 +102,7 @@ def test_saving_the_demo_starts_in_documents_then_the_last_folder(demo_window, t
     win.units.files.pick_file = lambda title, start, filt, save=False: starts.append(start) or ""
     assert not win.units.files.save()
     first = starts[-1]
-    assert program_folder() not in Path(first).parents
+    assert not any(p == Path(first) or p in Path(first).parents for p in program_folders())
     assert first == str(docs / "demo.session.h5")
     chosen = tmp_path / "mine" / "demo.h5"
     chosen.parent.mkdir()
@@ -118,7 +118,7 @@ def test_saving_the_demo_starts_in_documents_then_the_last_folder(demo_window, t
 def test_a_saved_layout_that_squeezes_the_traces_is_not_restored(qtbot):
     from PySide6.QtCore import Qt
 
-    from app.window import MIN_TRACE_SHARE, MainWindow
+    from rigside.gui.window import MIN_TRACE_SHARE, MainWindow
 
     first = MainWindow()
     qtbot.addWidget(first)
@@ -180,8 +180,8 @@ def test_undo_after_reopening_a_session_undoes_the_last_step_of_the_previous_sit
 def test_file_export_writes_spike_times_and_the_unit_table(demo_window, tmp_path):
     import csv
 
-    from core.export import export_units
-    from core.session import load_session
+    from rigside.core.exports.units import export_units
+    from rigside.core.units.session import load_session
     from tests.app.units_helpers import cluster_demo
 
     win = demo_window

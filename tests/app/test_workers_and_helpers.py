@@ -7,14 +7,14 @@ import threading
 import numpy as np
 import pytest
 
-from app.channel_text import channel_list, parse_channels
-from app.model import Analysis, Workbench, noise_rate_grid
-from app.trace_data import Block, step_for, visible_envelope
-from app.workers import Runner
-from core.errors import RecordingError
-from core.filtering import design_bandpass
-from core.params import FilterParams
-from core.progress import check, report
+from rigside.core.errors import RecordingError
+from rigside.core.params import FilterParams
+from rigside.core.progress import check, report
+from rigside.core.signal.filtering import design_bandpass
+from rigside.gui.channel_text import channel_list, parse_channels
+from rigside.gui.model import Analysis, Workbench, noise_rate_grid
+from rigside.gui.trace_data import Block, step_for, visible_envelope
+from rigside.gui.workers import Runner
 
 
 def slow_sum(values, gate: threading.Event, progress=None, cancel=None):

@@ -1,5 +1,5 @@
 """`rigside audit`: report and table from a CSV of earlier spike times, with and without a
-session; bad inputs give exit code 2 and write nothing (invented data, core.synth)."""
+session; bad inputs give exit code 2 and write nothing (invented data, rigside.core.synthetic.synth)."""
 
 import csv
 
@@ -7,8 +7,8 @@ import h5py
 import numpy as np
 import pytest
 
-from app.cli import main
-from core.truth import load_truth
+from rigside.cli.main import main
+from rigside.core.synthetic.truth import load_truth
 
 
 @pytest.fixture(scope="module")

@@ -3,8 +3,8 @@ import json
 
 import pytest
 
-from app.cli import main
-from core.synth import write_synth
+from rigside.cli.main import main
+from rigside.core.synthetic.synth import write_synth
 
 
 @pytest.fixture(scope="module")
@@ -42,7 +42,7 @@ def test_dask_engine_gives_the_same_events_as_local(recordings):
     assert main(["batch", *files, "--out-dir", str(local), "--format", "h5", "--quiet"]) == 0
     assert main(["batch", *files, "--out-dir", str(dask_out), "--format", "h5", "--engine", "dask",
                  "--processes", "2", "--quiet"]) == 0
-    from core.events import EventTable
+    from rigside.core.events import EventTable
     for stem in ("r0", "r1"):
         a, b = EventTable.read_h5(local / f"{stem}.events.h5"), EventTable.read_h5(dask_out / f"{stem}.events.h5")
         assert len(a) > 0 and (a.sample == b.sample).all()

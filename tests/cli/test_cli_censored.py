@@ -6,14 +6,14 @@ import csv
 import numpy as np
 import pytest
 
-from app.cli import main
-from core.session import load_session
+from rigside.cli.main import main
+from rigside.core.units.session import load_session
 
 
 def rows_and_comments(path):
     with open(path, newline="") as fh:
         lines = fh.read().splitlines()
-    return list(csv.DictReader(l for l in lines if not l.startswith("#"))), [l for l in lines if l.startswith("#")]
+    return list(csv.DictReader(line for line in lines if not line.startswith("#"))), [line for line in lines if line.startswith("#")]
 
 
 def test_metrics_and_audit_agree_on_contamination(tmp_path, capsys):

@@ -6,8 +6,7 @@ import sys
 import numpy as np
 import pytest
 
-from app.cli import build_parser, main
-
+from rigside.cli.main import build_parser, main
 from tests.core.helpers import gaussian
 
 
@@ -38,7 +37,7 @@ def test_detect_h5_options_and_toml(demo):
     out = demo / "ev.h5"
     assert main(["detect", str(demo / "demo.bin"), "--out", str(out), "--params", str(demo / "p.toml"),
                  "--band", "400", "5000", "--dead-time-ms", "0.5", "--quiet"]) == 0
-    from core.events import EventTable
+    from rigside.core.events import EventTable
     t = EventTable.read_h5(out)
     assert len(t) > 0 and t.polarity == "both" and np.all(t.amplitude_sigma >= 6.0)
     # options win over the file
@@ -114,11 +113,11 @@ def test_help_on_every_command():
     parser = build_parser()
     sub = next(a for a in parser._actions if a.dest == "command")
     for name in sub.choices:
-        r = subprocess.run([sys.executable, "-m", "app.cli", name, "--help"], capture_output=True, text=True)
+        r = subprocess.run([sys.executable, "-m", "rigside.cli.main", name, "--help"], capture_output=True, text=True)
         assert r.returncode == 0 and "usage: rigside" in r.stdout, name
 
 
 def test_unknown_option_is_a_usage_error():
-    r = subprocess.run([sys.executable, "-m", "app.cli", "detect", "x", "--out", "y.csv", "--frobnicate"],
+    r = subprocess.run([sys.executable, "-m", "rigside.cli.main", "detect", "x", "--out", "y.csv", "--frobnicate"],
                        capture_output=True, text=True)
     assert r.returncode == 2 and "unrecognized arguments" in r.stderr

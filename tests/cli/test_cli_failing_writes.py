@@ -13,21 +13,21 @@ from pathlib import Path
 
 import pytest
 
-from app.cli import main
-from core.atomic import stale_temporaries
-from core.synth import write_synth
+from rigside.cli.main import main
+from rigside.core.io.atomic import stale_temporaries
+from rigside.core.synthetic.synth import write_synth
 
 ROOT = Path(__file__).resolve().parents[2]
 LIMITED = """
 import resource, sys
 limit = int(sys.argv[1])
 resource.setrlimit(resource.RLIMIT_FSIZE, (limit, limit))
-from app.cli import main
+from rigside.cli.main import main
 sys.exit(main(sys.argv[2:]))
 """
 CHANGING = """
 import os, sys
-import core.pipeline as pipeline
+import rigside.core.signal.pipeline as pipeline
 path, how = sys.argv[1], sys.argv[2]
 original, calls = pipeline.detect_block, []
 
@@ -41,7 +41,7 @@ def changed_after_first_block(*args, **kwargs):
                 fh.write(bytes(16))
     return original(*args, **kwargs)
 pipeline.detect_block = changed_after_first_block
-from app.cli import main
+from rigside.cli.main import main
 sys.exit(main(["detect", path] + sys.argv[3:]))
 """
 

@@ -6,8 +6,8 @@ import shutil
 import numpy as np
 import pytest
 
-from app.cli import main
-from core.session import load_session
+from rigside.cli.main import main
+from rigside.core.units.session import load_session
 
 
 @pytest.fixture(scope="module")

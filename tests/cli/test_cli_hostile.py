@@ -6,8 +6,8 @@ import h5py
 import numpy as np
 import pytest
 
-from app.cli import main
-from core.sort_run import checkpoint_path
+from rigside.cli.main import main
+from rigside.core.runs.sort import checkpoint_path
 
 
 @pytest.fixture(scope="module")
@@ -34,7 +34,7 @@ def test_export_refuses_bins_that_would_not_fit(sorted_small, capsys):
 
 def test_resume_refuses_a_hostile_checkpoint(sorted_small, capsys, monkeypatch):
     d = sorted_small
-    import core.sort_run as sr
+    import rigside.core.runs.sort as sr
     monkeypatch.setattr(sr, "first_pass", lambda *a, **k: (_ for _ in ()).throw(KeyboardInterrupt()))
     assert main(["sort", str(d / "r.bin"), "--session", str(d / "c.h5"), "--quiet"]) == 130
     capsys.readouterr()

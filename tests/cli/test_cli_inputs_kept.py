@@ -10,10 +10,10 @@ import h5py
 import numpy as np
 import pytest
 
-from app.cli import main
-from core.recording import metadata_path
-from core.session import load_session
-from core.synth import write_synth
+from rigside.cli.main import main
+from rigside.core.io.recording import metadata_path
+from rigside.core.synthetic.synth import write_synth
+from rigside.core.units.session import load_session
 
 
 @pytest.fixture(scope="module")

@@ -8,10 +8,9 @@ import h5py
 import numpy as np
 import pytest
 
-from app.cli import main
-from core.errors import RecordingError
-from core.recording import Layout, open_recording, read_metadata, write_metadata
-
+from rigside.cli.main import main
+from rigside.core.errors import RecordingError
+from rigside.core.io.recording import Layout, open_recording, read_metadata, write_metadata
 from tests.core.helpers import gaussian
 
 RATE, CH = 30000.0, 4

@@ -5,9 +5,9 @@ import h5py
 import numpy as np
 import pytest
 
-from app.cli import main
-from core.session import load_session
-from core.sort_run import checkpoint_path
+from rigside.cli.main import main
+from rigside.core.runs.sort import checkpoint_path
+from rigside.core.units.session import load_session
 
 
 @pytest.fixture(scope="module")
@@ -43,7 +43,7 @@ def test_export_writes_times_per_unit_and_binned_matrix(sorted_demo):
 def test_metrics_table_has_one_row_per_unit(sorted_demo):
     out = sorted_demo / "m.csv"
     assert main(["metrics", str(sorted_demo / "s.h5"), "--out", str(out), "--quiet"]) == 0
-    lines = [l for l in open(out) if not l.startswith("#")]
+    lines = [line for line in open(out) if not line.startswith("#")]
     rows = list(csv.DictReader(lines))
     s = load_session(sorted_demo / "s.h5")
     assert len(rows) == len(s.sorting.units)
@@ -54,7 +54,7 @@ def test_metrics_table_has_one_row_per_unit(sorted_demo):
 
 def test_resume_reuses_the_checkpoint(sorted_demo, monkeypatch):
     d = sorted_demo
-    import core.sort_run as sr
+    import rigside.core.runs.sort as sr
     calls = []
     real = sr.compute_features
 
@@ -79,7 +79,7 @@ def test_resume_reuses_the_checkpoint(sorted_demo, monkeypatch):
 
 def test_resume_ignores_a_checkpoint_of_other_parameters(sorted_demo, monkeypatch):
     d = sorted_demo
-    import core.sort_run as sr
+    import rigside.core.runs.sort as sr
     monkeypatch.setattr(sr, "first_pass", lambda *a, **k: (_ for _ in ()).throw(KeyboardInterrupt()))
     assert main(["sort", str(d / "r.bin"), "--session", str(d / "p.h5"), "--quiet"]) == 130
     monkeypatch.undo()

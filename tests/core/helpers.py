@@ -6,7 +6,7 @@ from pathlib import Path
 
 import numpy as np
 
-from core.recording import Layout, RawRecording, write_metadata
+from rigside.core.io.recording import Layout, RawRecording, write_metadata
 
 
 def write_raw(path: Path, data: np.ndarray, rate_hz: float = 30000.0, gain_uv: float = 1.0,

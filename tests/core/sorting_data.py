@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from core.events import EventTable
+from rigside.core.events import EventTable
 
 
 def make_events(n: int = 6000, n_groups: int = 3, clusters: int = 3, d: int = 5, seed: int = 0,

@@ -2,10 +2,11 @@ import numpy as np
 import pytest
 from sklearn.metrics import adjusted_rand_score
 
-from core.clustering import NO_UNIT, ClusterParams, cluster_features, first_pass_assignments, merge_components
-from core.errors import ParamError, RigsideError
-from core.first_pass import first_pass
-from core.progress import Cancelled
+from rigside.core.errors import ParamError, RigsideError
+from rigside.core.progress import Cancelled
+from rigside.core.units.clustering import ClusterParams, cluster_features, first_pass_assignments, merge_components
+from rigside.core.units.first_pass import first_pass
+from rigside.core.units.sorting import NO_UNIT
 
 from .sorting_data import make_events
 
@@ -141,7 +142,7 @@ def test_tiny_inputs_give_one_cluster():
 OVERLAP = """
 import json
 from threadpoolctl import threadpool_info, threadpool_limits
-from core.clustering import single_threaded_pools
+from rigside.core.units.clustering import single_threaded_pools
 
 def sizes():
     return sorted(i["num_threads"] for i in threadpool_info())

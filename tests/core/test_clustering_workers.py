@@ -3,10 +3,10 @@
 import numpy as np
 import pytest
 
-import core.clustering as clustering
-from core.clustering import ClusterParams, cluster_features, first_pass_assignments
-from core.first_pass import first_pass
-from core.progress import Cancelled
+import rigside.core.units.clustering as clustering
+from rigside.core.units.clustering import ClusterParams, cluster_features, first_pass_assignments
+from rigside.core.units.first_pass import first_pass
+from rigside.core.progress import Cancelled
 
 from .sorting_data import make_events
 

@@ -7,14 +7,14 @@ import hashlib
 
 import pytest
 
-from core import sort_run
-from core.content import content_hash
-from core.params import Params
-from core.pipeline import detect
-from core.recording import open_recording
-from core.session import RecordingChanged, check_recording_content, file_fingerprint, load_session
-from core.sort_run import checkpoint_path, run_sort, sort_recording
-from core.synth import write_synth
+from rigside.core.io.content import content_hash
+from rigside.core.io.recording import open_recording
+from rigside.core.params import Params
+from rigside.core.runs import sort as sort_run
+from rigside.core.runs.sort import checkpoint_path, run_sort, sort_recording
+from rigside.core.signal.pipeline import detect
+from rigside.core.synthetic.synth import write_synth
+from rigside.core.units.session import RecordingChanged, check_recording_content, file_fingerprint, load_session
 
 GAP_BYTE = 1_500_000
 """In a 4.8 MB file the fingerprint reads 0-1 MiB, the middle MiB and the last MiB; this byte is in none."""

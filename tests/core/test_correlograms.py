@@ -3,8 +3,8 @@
 import numpy as np
 import pytest
 
-from core.correlograms import autocorrelogram, crosscorrelogram, isi_histogram
-from core.errors import ParamError, RigsideError
+from rigside.core.errors import ParamError, RigsideError
+from rigside.core.quality.correlograms import autocorrelogram, crosscorrelogram, isi_histogram
 
 
 def brute_force(a, b, bin_s, window_s, same=False):

@@ -6,15 +6,15 @@ import csv
 
 import numpy as np
 
-from core.batch import BatchOutcome, write_outcomes
-from core.unit_table_io import safe_text, write_described_csv
+from rigside.core.quality.unit_table_io import safe_text, write_described_csv
+from rigside.core.runs.batch import BatchOutcome, write_outcomes
 
 HOSTILE = ['=HYPERLINK("http://x","y")', "+1+2", "-2+3", "@SUM(A1)", "two\nlines\r\n0,0,0", "plain"]
 
 
 def _rows(path):
     lines = open(path, newline="", encoding="utf-8").read()
-    body = [l for l in lines.splitlines(keepends=True) if not l.startswith("#")]
+    body = [line for line in lines.splitlines(keepends=True) if not line.startswith("#")]
     return lines, list(csv.reader("".join(body).splitlines(keepends=True)))
 
 
@@ -26,7 +26,7 @@ def test_described_csv_keeps_text_in_its_cells(tmp_path):
                             ["unit", "value", "note"], table,
                             lambda c, v: str(v), text_columns=["note"])
     text, rows = _rows(p)
-    comments = [l for l in text.splitlines() if l.startswith("#")]
+    comments = [line for line in text.splitlines() if line.startswith("#")]
     assert comments[1] == "# imported: evil\\n1,2,3.csv" and comments[3] == "# value: a number\\nwith a break"
     assert rows[0] == ["unit", "value", "note"] and len(rows) == 1 + len(HOSTILE)
     assert [r[0] for r in rows[1:]] == [str(i) for i in range(len(HOSTILE))]

@@ -1,13 +1,12 @@
 import numpy as np
 import pytest
-
 from scipy import signal
 
-from core.events import EventTable
-from core.filtering import design_bandpass
-from core.params import Params
-from core.pipeline import detect
-from core.rice import sampled_crossing_rate
+from rigside.core.events import EventTable
+from rigside.core.params import Params
+from rigside.core.signal.filtering import design_bandpass
+from rigside.core.signal.pipeline import detect
+from rigside.core.signal.rice import sampled_crossing_rate
 
 from .helpers import gaussian, write_raw
 
@@ -163,7 +162,7 @@ def test_dead_channel_does_not_divide_by_zero(tmp_path):
 
 
 def test_cancel_and_progress(tmp_path):
-    from core.progress import Cancelled
+    from rigside.core.progress import Cancelled
     rec, _, _ = spiky(tmp_path)
     seen = []
     detect(rec, Params(), progress=lambda f, m: seen.append(f))

@@ -7,10 +7,9 @@ import csv
 import h5py
 import numpy as np
 
-from core.events import EventTable
-from core.noise import flag_bad
-from core.recording import open_recording
-
+from rigside.core.events import EventTable
+from rigside.core.io.recording import open_recording
+from rigside.core.signal.noise import flag_bad
 from tests.core.helpers import gaussian
 
 

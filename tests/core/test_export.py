@@ -5,13 +5,12 @@ import h5py
 import numpy as np
 import pytest
 
-from core.clustering import NO_UNIT
-from core.errors import RigsideError
-from core.events import EventTable
-from core.export import bin_count, bin_index, export_sorting
-from core.journal import UndoStack
-from core.operations import MoveEvents, Relabel
-from core.sorting import Sorting, SortingData, Unit
+from rigside.core.errors import RigsideError
+from rigside.core.events import EventTable
+from rigside.core.exports.units import bin_count, bin_index, export_sorting
+from rigside.core.units.history import UndoStack
+from rigside.core.units.operations import MoveEvents, Relabel
+from rigside.core.units.sorting import NO_UNIT, Sorting, SortingData, Unit
 
 from .sorting_data import make_events
 

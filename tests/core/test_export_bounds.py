@@ -5,9 +5,9 @@ import h5py
 import numpy as np
 import pytest
 
-import core.export as export
-from core.errors import RigsideError
-from core.export import export_sorting
+import rigside.core.exports.units as export
+from rigside.core.errors import RigsideError
+from rigside.core.exports.units import export_sorting
 
 from .test_export import small_sorting
 

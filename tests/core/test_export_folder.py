@@ -5,10 +5,10 @@ import json
 
 import pytest
 
-from core.atomic import protect_inputs, stale_temporaries
-from core.errors import RigsideError
-from core.export import export_sorting
-from core.progress import Cancelled
+from rigside.core.errors import RigsideError
+from rigside.core.exports.units import export_sorting
+from rigside.core.io.atomic import protect_inputs, stale_temporaries
+from rigside.core.progress import Cancelled
 
 from .test_export import small_sorting
 

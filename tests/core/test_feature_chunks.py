@@ -9,15 +9,15 @@ import numpy as np
 import pytest
 from sklearn.decomposition import PCA
 
-import core.features as features_module
-from core.clustering import single_threaded_pools
-from core.errors import RigsideError
-from core.features import compute_features, shape_features, usable_channels
-from core.filtering import BandPass
-from core.params import Params
-from core.pipeline import detect
-from core.snippet_pass import own_columns
-from core.snippets import align_subsample, snippet_window
+import rigside.core.signal.features as features_module
+from rigside.core.signal.chunk_pool import single_threaded_pools
+from rigside.core.errors import RigsideError
+from rigside.core.signal.features import compute_features, shape_features, usable_channels
+from rigside.core.signal.filtering import BandPass
+from rigside.core.params import Params
+from rigside.core.signal.pipeline import detect
+from rigside.core.signal.snippet_pass import own_columns
+from rigside.core.signal.snippets import align_subsample, snippet_window
 
 from .helpers import gaussian, write_raw
 

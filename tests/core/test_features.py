@@ -3,12 +3,18 @@ import pytest
 from scipy import signal
 from sklearn.decomposition import PCA
 
-from core.events import EventTable
-from core.features import compute_features, shape_features
-from core.filtering import BandPass
-from core.params import Params
-from core.pipeline import detect
-from core.snippets import align_subsample, event_snippets, extract_snippets, snippet_times_ms, snippet_window
+from rigside.core.events import EventTable
+from rigside.core.params import Params
+from rigside.core.signal.features import compute_features, shape_features
+from rigside.core.signal.filtering import BandPass
+from rigside.core.signal.pipeline import detect
+from rigside.core.signal.snippets import (
+    align_subsample,
+    event_snippets,
+    extract_snippets,
+    snippet_times_ms,
+    snippet_window,
+)
 
 from .helpers import gaussian, write_raw
 

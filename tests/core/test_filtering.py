@@ -2,8 +2,8 @@ import numpy as np
 import pytest
 from scipy import signal
 
-from core.filtering import BandPass, common_median_reference, design_bandpass, filtfilt
-from core.params import FilterParams
+from rigside.core.params import FilterParams
+from rigside.core.signal.filtering import BandPass, common_median_reference, design_bandpass, filtfilt
 
 from .helpers import gaussian, write_raw
 
@@ -87,7 +87,7 @@ def test_common_reference_removes_shared_signal(tmp_path):
 
 
 def test_recording_shorter_than_the_filter_needs(tmp_path):
-    from core.errors import RecordingError
+    from rigside.core.errors import RecordingError
     rec = write_raw(tmp_path / "r.bin", gaussian(50, 2))
     with pytest.raises(RecordingError, match="long for a 300-6000 Hz band-pass to settle, got 50"):
         BandPass(rec, FilterParams())

@@ -3,11 +3,11 @@
 import numpy as np
 import pytest
 
-from core.params import Params
-from core.pipeline import detect
-from core.recording import open_recording
-from core.synth import make_scenario, write_synth
-from core.truth import load_truth, score_curve
+from rigside.core.io.recording import open_recording
+from rigside.core.params import Params
+from rigside.core.signal.pipeline import detect
+from rigside.core.synthetic.synth import make_scenario, write_synth
+from rigside.core.synthetic.truth import load_truth, score_curve
 
 
 @pytest.fixture(scope="module")

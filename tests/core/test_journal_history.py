@@ -4,10 +4,11 @@ from __future__ import annotations
 
 import numpy as np
 
-from core.first_pass import first_pass
-from core.journal import Journal, UndoStack, rebuild_history
-from core.operations import MergeUnits, MoveEvents, Relabel
-from core.sorting import Sorting
+from rigside.core.units.first_pass import first_pass
+from rigside.core.units.history import UndoStack, rebuild_history
+from rigside.core.units.journal import Journal
+from rigside.core.units.operations import MergeUnits, MoveEvents, Relabel
+from rigside.core.units.sorting import Sorting
 
 from .sorting_data import make_events
 

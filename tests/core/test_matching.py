@@ -11,9 +11,9 @@ import pytest
 from scipy.sparse import csr_matrix
 from scipy.sparse.csgraph import maximum_bipartite_matching
 
-from core.events import EventTable
-from core.matching import jaccard, match_times, shared_spike_matrix
-from core.truth import Truth, score_curve
+from rigside.core.events import EventTable
+from rigside.core.quality.matching import jaccard, match_times, shared_spike_matrix
+from rigside.core.synthetic.truth import Truth, score_curve
 
 
 def brute_pairs(a, b, tol):

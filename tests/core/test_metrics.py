@@ -6,9 +6,18 @@ import numpy as np
 import pytest
 from scipy import optimize, stats
 
-from core.errors import ParamError, RigsideError
-from core.metrics import (amplitude_drift, cv_isi, fano_factor, firing_rate, isi_violations,
-                          missed_fraction, presence_ratio, snr, snr_peak_to_peak)
+from rigside.core.errors import ParamError, RigsideError
+from rigside.core.quality.metrics import (
+    amplitude_drift,
+    cv_isi,
+    fano_factor,
+    firing_rate,
+    isi_violations,
+    missed_fraction,
+    presence_ratio,
+    snr,
+    snr_peak_to_peak,
+)
 
 
 def train_with_violations(n, duration, r, gap):

@@ -2,8 +2,8 @@ import numpy as np
 import pytest
 from scipy import stats
 
-from core.noise import NORMAL_MAD, estimate_noise, robust_sigma
-from core.params import Params
+from rigside.core.params import Params
+from rigside.core.signal.noise import NORMAL_MAD, estimate_noise, robust_sigma
 
 from .helpers import gaussian, write_raw
 
@@ -15,7 +15,7 @@ def test_constant_is_the_normal_quartile():
 
 @pytest.mark.parametrize("n", [7, 8, 1000, 1001])
 def test_fast_median_equals_numpy_median(n):
-    from core.noise import fast_median
+    from rigside.core.signal.noise import fast_median
     x = np.random.default_rng(n).normal(size=(3, n)).astype(np.float32)
     np.testing.assert_allclose(fast_median(x, axis=1), np.median(x, axis=1), rtol=1e-6)
     np.testing.assert_allclose(fast_median(x.T, axis=0), np.median(x, axis=1), rtol=1e-6)
@@ -76,7 +76,7 @@ def test_dead_noisy_and_saturated_channels_are_flagged(tmp_path):
 
 
 def test_cancel_stops_the_estimate(tmp_path):
-    from core.progress import Cancelled
+    from rigside.core.progress import Cancelled
     rec = write_raw(tmp_path / "r.bin", gaussian(60000, 2))
     with pytest.raises(Cancelled):
         estimate_noise(rec, Params(), cancel=lambda: True)

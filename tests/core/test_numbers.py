@@ -4,7 +4,7 @@ import math
 
 import pytest
 
-from core.numbers import format_number
+from rigside.core.numbers import format_number
 
 
 @pytest.mark.parametrize("value,text", [

@@ -2,8 +2,9 @@ import os
 
 import pytest
 
-from core.errors import ParamError
-from core.params import Params
+from rigside.core.errors import ParamError
+from rigside.core.io.atomic import WriteError
+from rigside.core.params import Params
 
 
 def test_defaults_are_valid_and_as_documented():
@@ -56,7 +57,7 @@ def test_save_toml_is_atomic_and_keeps_the_old_file_on_failure(tmp_path, monkeyp
     def refuse(src, dst):
         raise OSError(28, "No space left on device")
     monkeypatch.setattr(os, "replace", refuse)   # the rename onto the target fails
-    with pytest.raises(OSError):
+    with pytest.raises(WriteError, match="No space left on device"):    # one line, not a traceback
         p.save_toml(target)
     assert target.read_bytes() == before and sorted(x.name for x in tmp_path.iterdir()) == ["p.toml"]
     monkeypatch.undo()

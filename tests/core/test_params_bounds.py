@@ -3,8 +3,8 @@ one ParamError line (common practice, no source: the bounds are our own)."""
 
 import pytest
 
-from core.errors import ParamError
-from core.params import MEMORY_BUDGET_BYTES, Params
+from rigside.core.errors import ParamError
+from rigside.core.params import MEMORY_BUDGET_BYTES, Params
 
 
 @pytest.mark.parametrize("section, key, value, message", [

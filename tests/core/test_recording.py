@@ -4,8 +4,8 @@ import h5py
 import numpy as np
 import pytest
 
-from core.errors import RecordingError
-from core.recording import Layout, RawRecording, metadata_path, open_recording, read_metadata, write_metadata
+from rigside.core.errors import RecordingError
+from rigside.core.io.recording import Layout, RawRecording, metadata_path, open_recording, read_metadata, write_metadata
 
 from .helpers import write_raw
 
@@ -28,7 +28,7 @@ def test_read_only_and_never_modified(tmp_path):
     block = rec2.read(10, 20)
     block[:] = 0  # writing the returned copy must not reach the file
     with pytest.raises(OSError):
-        os.write(rec2._fd, b"x")  # the file is open read-only
+        os.write(rec2._file._fh.fileno(), b"x")  # the file is open read-only
     assert (tmp_path / "r.bin").read_bytes() == before
     rec.close()
     rec2.close()

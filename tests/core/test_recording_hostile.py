@@ -4,8 +4,8 @@ import h5py
 import numpy as np
 import pytest
 
-from core.errors import RecordingError
-from core.recording import open_recording
+from rigside.core.errors import RecordingError
+from rigside.core.io.recording import open_recording
 
 
 def _h5(path, **kw):

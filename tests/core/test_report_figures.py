@@ -8,8 +8,15 @@ from pathlib import Path
 
 import numpy as np
 
-from core.audit_imported import WaveformSummary
-from core.report_figures import FRESH, IMPORTED, overlap_figure, amplitude_figure, isi_figure, waveform_figure
+from rigside.core.audit.imported import WaveformSummary
+from rigside.core.audit.report_figures import (
+    FRESH,
+    IMPORTED,
+    amplitude_figure,
+    isi_figure,
+    overlap_figure,
+    waveform_figure,
+)
 
 ROOT = Path(__file__).resolve().parents[2]
 SVG = "{http://www.w3.org/2000/svg}"
@@ -58,10 +65,10 @@ def test_ids_are_unique_across_figures_of_one_page():
 DRAW_BLOCKED = """
 import sys
 import tests.block_qt
-import core.report
+import rigside.core.audit.report
 assert "matplotlib" not in sys.modules, "importing the report must not import matplotlib"
 import numpy as np
-from core.report_figures import overlap_figure
+from rigside.core.audit.report_figures import overlap_figure
 svg = overlap_figure(np.eye(2), [1, 2], [1, 2])
 assert svg.startswith("<svg")
 assert "matplotlib.pyplot" not in sys.modules

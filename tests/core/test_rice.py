@@ -2,7 +2,7 @@ import numpy as np
 import pytest
 from scipy import integrate, signal, stats
 
-from core.rice import crossing_frequency, neighbour_correlation, rice_rate, sampled_crossing_rate
+from rigside.core.signal.rice import crossing_frequency, neighbour_correlation, rice_rate, sampled_crossing_rate
 
 FS = 30000.0
 SOS = signal.butter(3, [300, 6000], "bandpass", fs=FS, output="sos")

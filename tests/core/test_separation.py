@@ -7,8 +7,8 @@ import pytest
 from scipy import stats
 from scipy.spatial.distance import cdist
 
-from core.errors import RigsideError
-from core.metrics import cluster_separation, isolation_distance, l_ratio
+from rigside.core.errors import RigsideError
+from rigside.core.quality.metrics import cluster_separation, isolation_distance, l_ratio
 
 
 def toy():

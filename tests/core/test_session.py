@@ -8,18 +8,30 @@ import h5py
 import numpy as np
 import pytest
 
-from core.errors import SessionError
-from core.h5safe import read_verified, write_text
-from core.journal import Journal, UndoStack, replay, replay_matches
-from core.operations import MergeUnits, MoveEvents, Relabel, SetNote
-from core.params import Params
-from core.session import (RecordingChanged, RecordingMoved, RecordingRef, Session, autosave_path, backup_path,
-                          file_fingerprint, load_session, save_autosave, save_session, snapshot,
-                          verify_session_file)
-from core.atomic import stale_temporaries
-from core.session_recovery import Autosaver, find_states, recover, remove_stale_temporaries
-from core.first_pass import first_pass
-from core.sorting import Sorting
+from rigside.core.errors import SessionError
+from rigside.core.io.atomic import stale_temporaries
+from rigside.core.io.h5safe import read_verified, write_text
+from rigside.core.params import Params
+from rigside.core.units.first_pass import first_pass
+from rigside.core.units.history import UndoStack, replay, replay_matches
+from rigside.core.units.journal import Journal
+from rigside.core.units.operations import MergeUnits, MoveEvents, Relabel, SetNote
+from rigside.core.units.session import (
+    RecordingChanged,
+    RecordingMoved,
+    RecordingRef,
+    Session,
+    autosave_path,
+    backup_path,
+    file_fingerprint,
+    load_session,
+    save_autosave,
+    save_session,
+    snapshot,
+    verify_session_file,
+)
+from rigside.core.units.session_recovery import Autosaver, find_states, recover, remove_stale_temporaries
+from rigside.core.units.sorting import Sorting
 
 from .sorting_data import make_events
 
@@ -285,7 +297,7 @@ STOPS = {  # where the saving child stops to be killed, and the state the file m
 def _save_and_stop(path, session, first, stop_at, report_fd, hold_fd):
     """Child process: save states first, first+1, ...; on the second save, at the point
     ``stop_at``, report "<state>" through ``report_fd`` and wait (until killed) on ``hold_fd``."""
-    import core.atomic
+    import rigside.core.io.atomic as atomic_module
 
     def stop(k):
         os.write(report_fd, f"{k}\n".encode())
@@ -295,7 +307,7 @@ def _save_and_stop(path, session, first, stop_at, report_fd, hold_fd):
         stack = UndoStack(session.sorting)
         u = session.sorting.unit_ids()[0]
         current = {"k": first}
-        close, fsync_file, replace = h5py.File.close, core.atomic.fsync_file, os.replace
+        close, fsync_file, replace = h5py.File.close, atomic_module.fsync_file, os.replace
 
         def at(point):
             return current["k"] == first + 1 and stop_at == point
@@ -316,7 +328,7 @@ def _save_and_stop(path, session, first, stop_at, report_fd, hold_fd):
             if at("renamed") and Path(dst) == Path(path):
                 stop(current["k"])
 
-        h5py.File.close, core.atomic.fsync_file, os.replace = close_hook, fsync_hook, replace_hook
+        h5py.File.close, atomic_module.fsync_file, os.replace = close_hook, fsync_hook, replace_hook
         for k in range(first, first + 3):
             current["k"] = k
             stack.push(SetNote(u, f"state {k}"))
@@ -376,7 +388,7 @@ def test_a_snapshot_saves_the_state_it_was_taken_in(made, tmp_path):
 def test_replay_in_a_fresh_process_reproduces_the_saved_assignments(made, tmp_path):
     raw, s = made
     p = save_session(tmp_path / "a.h5", copy_session(s))
-    code = ("import sys; from core.session import load_session; from core.journal import replay_matches; "
+    code = ("import sys; from rigside.core.units.session import load_session; from rigside.core.units.history import replay_matches; "
             "s = load_session(sys.argv[1], check_recording=False); print(replay_matches(s.sorting))")
     root = Path(__file__).resolve().parents[2]
     out = subprocess.run([sys.executable, "-c", code, str(p)], cwd=root, capture_output=True, text=True,

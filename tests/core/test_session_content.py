@@ -5,9 +5,9 @@ import h5py
 import numpy as np
 import pytest
 
-from core.errors import SessionError
-from core.session import load_session, save_session
-from core.textparse import MAX_NESTING, nesting, parse_json
+from rigside.core.errors import SessionError
+from rigside.core.textparse import MAX_NESTING, nesting, parse_json
+from rigside.core.units.session import load_session, save_session
 
 from .test_session import copy_session, made, reseal  # noqa: F401  (module fixture and helpers)
 

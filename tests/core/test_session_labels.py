@@ -5,12 +5,12 @@ from pathlib import Path
 import h5py
 import pytest
 
-from core.errors import SessionError
-from core.h5safe import read_verified
-from core.journal import replay_matches
-from core.session import load_session, save_session
-from core.session_labels import FORMAT1_LABELS, upgrade_format1_journal
-from core.sorting import LABELS
+from rigside.core.errors import SessionError
+from rigside.core.io.h5safe import read_verified
+from rigside.core.units.history import replay_matches
+from rigside.core.units.session import load_session, save_session
+from rigside.core.units.session_labels import FORMAT1_LABELS, upgrade_format1_journal
+from rigside.core.units.sorting import LABELS
 
 ROOT = Path(__file__).resolve().parents[2]
 FORMAT1 = ROOT / "tests" / "fixtures" / "session_v1_labels.h5"

@@ -3,15 +3,24 @@ import gc
 import numpy as np
 import pytest
 
-from core.clustering import NO_UNIT, ClusterParams
-from core.errors import RigsideError
-from core.first_pass import first_pass
-from core.journal import Journal, UndoStack, replay
-from core.operation_base import decode_indices, encode_indices
-from core.operations import (ClusterGroups, MergeUnits, MoveEvents, ReclusterUnit, Relabel, SetNote,
-                             SplitByPolygon, operation_from_record)
-from core.polygon import points_in_polygon
-from core.sorting import AXIS_AMPLITUDE, AXIS_TIME, CurationError, Signal, Sorting, Unit
+from rigside.core.errors import CurationError, RigsideError
+from rigside.core.units.clustering import ClusterParams
+from rigside.core.units.first_pass import first_pass
+from rigside.core.units.history import UndoStack, replay
+from rigside.core.units.journal import Journal
+from rigside.core.units.operation_base import decode_indices, encode_indices
+from rigside.core.units.operations import (
+    ClusterGroups,
+    MergeUnits,
+    MoveEvents,
+    ReclusterUnit,
+    Relabel,
+    SetNote,
+    SplitByPolygon,
+    operation_from_record,
+)
+from rigside.core.units.polygon import points_in_polygon
+from rigside.core.units.sorting import AXIS_AMPLITUDE, AXIS_TIME, NO_UNIT, Signal, Sorting, Unit
 
 from .sorting_data import make_events
 

@@ -10,14 +10,14 @@ import numpy as np
 import pytest
 from scipy.optimize import linear_sum_assignment
 
-from core.features import compute_features
-from core.first_pass import first_pass
-from core.matching import shared_spike_matrix, jaccard
-from core.params import Params
-from core.pipeline import detect
-from core.recording import open_recording
-from core.synth import write_synth
-from core.truth import load_truth
+from rigside.core.io.recording import open_recording
+from rigside.core.params import Params
+from rigside.core.quality.matching import jaccard, shared_spike_matrix
+from rigside.core.signal.features import compute_features
+from rigside.core.signal.pipeline import detect
+from rigside.core.synthetic.synth import write_synth
+from rigside.core.synthetic.truth import load_truth
+from rigside.core.units.first_pass import first_pass
 
 
 @pytest.fixture(scope="module")

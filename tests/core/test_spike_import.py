@@ -8,8 +8,9 @@ import h5py
 import numpy as np
 import pytest
 
-from core.errors import SpikeFileError
-from core.spike_import import finish, load_spikes
+from rigside.core.errors import SpikeFileError
+from rigside.core.io.spike_import import finish
+from rigside.core.io.spike_import_files import load_spikes
 
 UNITS = np.array([3, 1, 3, 1, 7])
 TIMES = np.array([0.10, 0.20, 0.25, 0.40, 0.05])

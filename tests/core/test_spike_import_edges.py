@@ -4,7 +4,7 @@
 import h5py
 import numpy as np
 
-from core.spike_import import load_spikes
+from rigside.core.io.spike_import_files import load_spikes
 
 BIG = 2**63 - 1
 
@@ -31,8 +31,9 @@ def test_listed_units_without_spikes_are_named(tmp_path):
 
 
 def test_nwb_units_without_spikes_are_named(tmp_path):
-    from pynwb import NWBHDF5IO, NWBFile
     from datetime import datetime, timezone
+
+    from pynwb import NWBHDF5IO, NWBFile
     nwb = NWBFile(session_description="earlier sorting", identifier="t2",
                   session_start_time=datetime(2020, 1, 1, tzinfo=timezone.utc))
     nwb.add_unit(spike_times=[0.1, 0.2], id=5)

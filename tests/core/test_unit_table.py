@@ -7,14 +7,20 @@ import numpy as np
 import pytest
 from scipy import optimize, stats
 
-from core.clustering import NO_UNIT
-from core.errors import ParamError, RigsideError
-from core.events import EventTable
-from core.features import Features
-from core.progress import Cancelled
-from core.unit_table import (CAUTION, COLUMNS, MetricParams, unit_metrics_for_events,
-                             unit_metrics_table)
-from core.unit_table_io import DEFAULT_LIMITS, Limit, flag_units, quality_flag_text, undefined_units, write_unit_table_csv
+from rigside.core.errors import ParamError, RigsideError
+from rigside.core.events import EventTable
+from rigside.core.progress import Cancelled
+from rigside.core.quality.unit_table import CAUTION, COLUMNS, MetricParams, unit_metrics_for_events, unit_metrics_table
+from rigside.core.quality.unit_table_io import (
+    DEFAULT_LIMITS,
+    Limit,
+    flag_units,
+    quality_flag_text,
+    undefined_units,
+    write_unit_table_csv,
+)
+from rigside.core.signal.features import Features
+from rigside.core.units.sorting import NO_UNIT
 
 from .test_metrics import hill
 from .test_separation import reference

@@ -1,0 +1,25 @@
+"""What every panel shares: the workbench state and the job runner.
+
+The window places each panel in a dock named after ``panel_id``; later panels subclass
+:class:`Panel` and are added with ``MainWindow.add_panel``.
+"""
+
+from __future__ import annotations
+
+from PySide6.QtWidgets import QWidget
+
+from rigside.gui.model import Workbench
+from rigside.gui.workers import Runner
+
+
+class Panel(QWidget):
+    """A dockable view of the workbench."""
+
+    panel_id = "panel"
+    title = "Panel"
+
+    def __init__(self, bench: Workbench, runner: Runner, parent: QWidget | None = None):
+        super().__init__(parent)
+        self.setObjectName(self.panel_id)
+        self.bench = bench
+        self.runner = runner

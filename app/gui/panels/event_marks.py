@@ -1,0 +1,103 @@
+"""Event marks on the trace view: a tick per event, or a pixel rug when events are dense."""
+
+from __future__ import annotations
+
+import numpy as np
+import pyqtgraph as pg
+
+from rigside.gui import palette
+
+MARKER_LIMIT = 4000       # more events in view than this: one mark per pixel and channel
+MARK_TOP, MARK_LENGTH = 0.48, 0.14  # tick row at the top of a lane (fractions of the lane)
+RUG_ROWS = 10             # image rows per trace lane for the dense marks
+
+
+class EventMarks:
+    """Ticks at the top of each channel's lane, at the peak time of each event at or above
+    the channel's threshold (vermillion; grey for artefacts); events of highlighted sets
+    (selected units) get a triangle in their set's colour under the tick. When more events are in view
+    than can be told apart, one mark per screen pixel and channel is drawn in that row as
+    a small image instead."""
+
+    def __init__(self) -> None:
+        self.events = pg.PlotCurveItem(pen=palette.pen(palette.EVENT, 2), connect="pairs")
+        self.artefacts = pg.PlotCurveItem(pen=palette.pen(palette.ARTEFACT, 2), connect="pairs")
+        self.rug = pg.ImageItem(axisOrder="row-major")
+        self.rug.setVisible(False)
+        self.rug_pixels = np.zeros((0, 0), dtype=bool)
+        self.dense = False
+        self.chosen = pg.ScatterPlotItem(size=9, symbol="t", pen=pg.mkPen(palette.BLACK, width=0.5))
+        self.highlights: list[tuple[np.ndarray, tuple]] = []
+
+    def items(self) -> tuple:
+        return self.artefacts, self.events, self.rug, self.chosen
+
+    def times(self) -> np.ndarray:
+        """Times (s) of the event ticks drawn now."""
+        x, _ = self.events.getData()
+        return np.zeros(0) if x is None else np.asarray(x[0::2])
+
+    def clear(self) -> None:
+        self.events.setData([], [])
+        self.artefacts.setData([], [])
+        self.chosen.setData([], [])
+        self.rug.setVisible(False)
+
+    def draw(self, bench, offsets: np.ndarray, lane: np.ndarray, spacing: float, a: int, z: int,
+             width: int) -> None:
+        """Mark the events of samples ``[a, z)`` on the shown channels at the current thresholds."""
+        ev = bench.events
+        if ev is None or bench.recording is None or not len(offsets):
+            self.clear()
+            return
+        i0, i1 = np.searchsorted(ev.sample, [a, z])
+        ch = ev.channel[i0:i1]
+        lanes = lane[ch]
+        thr = bench.thresholds_sigma.astype(np.float32)
+        passing = (lanes >= 0) & (ev.amplitude_sigma[i0:i1] >= thr[ch])
+        art = ev.artefact[i0:i1]
+        self.dense = int(passing.sum()) > MARKER_LIMIT
+        self.rug.setVisible(self.dense)
+        if self.dense:
+            self.events.setData([], [])
+            self.artefacts.setData([], [])
+            self.chosen.setData([], [])
+            self._draw_rug(ev.sample[i0:i1], lanes, passing & ~art, passing & art, offsets, spacing,
+                           a, z, width, ev.rate_hz)
+            return
+        for item, keep in ((self.events, passing & ~art), (self.artefacts, passing & art)):
+            idx = np.flatnonzero(keep)
+            top = offsets[lanes[idx]] + MARK_TOP * spacing
+            y = np.empty(2 * len(idx))
+            y[0::2] = top
+            y[1::2] = top - MARK_LENGTH * spacing
+            item.setData(np.repeat(ev.sample[i0 + idx] / ev.rate_hz, 2), y, connect="pairs")
+        self._draw_chosen(ev, lane, offsets, spacing, i0, i1)
+
+    def _draw_chosen(self, ev, lane, offsets, spacing, i0: int, i1: int) -> None:
+        """A marker in the unit's colour under the tick of each event of a selected unit."""
+        xs, ys, brushes = [], [], []
+        for rows, colour in self.highlights:
+            rows = rows[(rows >= i0) & (rows < i1)]
+            rows = rows[lane[ev.channel[rows]] >= 0]
+            xs.append(ev.sample[rows] / ev.rate_hz)
+            ys.append(offsets[lane[ev.channel[rows]]] + (MARK_TOP - MARK_LENGTH) * spacing)
+            brushes += [pg.mkBrush(*colour[:3])] * len(rows)
+        if brushes:
+            self.chosen.setData(np.concatenate(xs), np.concatenate(ys), brush=brushes)
+        else:
+            self.chosen.setData([], [])
+
+    def _draw_rug(self, samples, lanes, events, artefacts, offsets, spacing, a, z, width, rate) -> None:
+        n = len(offsets)
+        rgba = np.zeros((RUG_ROWS * n, width, 4), dtype=np.uint8)
+        for keep, colour in ((artefacts, palette.ARTEFACT), (events, palette.EVENT)):
+            px = np.minimum(((samples[keep] - a) * (width / max(1, z - a))).astype(np.int64), width - 1)
+            # lane 0 is at the top; image row 0 is at the bottom of the rug's rectangle
+            row = (n - 1 - lanes[keep]) * RUG_ROWS + RUG_ROWS - 1
+            rgba[row, px, :3] = colour
+            rgba[row, px, 3] = 255
+        self.rug_pixels = rgba[..., 3] > 0
+        self.rug.setImage(rgba, autoLevels=False)
+        bottom = offsets[-1] - 0.5 * spacing
+        self.rug.setRect(a / rate, bottom, (z - a) / rate, n * spacing)

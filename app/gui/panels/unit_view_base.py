@@ -1,0 +1,95 @@
+"""What the per-unit plots share: the controller, one plot, a row of bin controls, a status line.
+
+A view redraws when the selection changes, when a step touches a selected unit, and when a
+new sorting arrives. Each selected unit is drawn in its selection colour.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pyqtgraph as pg
+from PySide6.QtWidgets import QDoubleSpinBox, QHBoxLayout, QLabel, QVBoxLayout, QWidget
+
+from rigside.gui import palette
+
+MAX_SHOWN = 6
+"""At most this many selected units are drawn (the first ones selected)."""
+
+
+def spin(value: float, low: float, high: float, step: float, suffix: str, decimals: int = 1,
+         tip: str = "") -> QDoubleSpinBox:
+    s = QDoubleSpinBox()
+    s.setRange(low, high)
+    s.setDecimals(decimals)
+    s.setSingleStep(step)
+    s.setValue(value)
+    s.setSuffix(suffix)
+    s.setKeyboardTracking(False)
+    if tip:
+        s.setToolTip(tip)
+    return s
+
+
+class UnitView(QWidget):
+    """Base of the per-unit views; subclasses implement :meth:`draw`."""
+
+    title = ""
+
+    def __init__(self, controller, parent=None):
+        super().__init__(parent)
+        self.ctl = controller
+        self.controls = QHBoxLayout()
+        self.controls.setContentsMargins(0, 0, 0, 0)
+        head = QLabel(f"<b>{self.title}</b>")
+        self.controls.addWidget(head)
+        self.controls.addStretch(1)
+        self.status = QLabel("")
+        self.status.setWordWrap(True)
+        self.layout_ = QVBoxLayout(self)
+        self.layout_.setContentsMargins(2, 2, 2, 2)
+        self.layout_.setSpacing(2)
+        self.layout_.addLayout(self.controls)
+        controller.selection_changed.connect(self.refresh)
+        controller.sorting_replaced.connect(self.refresh)
+        controller.units_changed.connect(self._on_units_changed)
+
+    def add_control(self, label: str, widget: QWidget) -> QWidget:
+        if hasattr(widget, "setPrefix"):
+            widget.setPrefix(label + " ")
+        else:
+            self.controls.addWidget(QLabel(label))
+        self.controls.addWidget(widget)
+        if isinstance(widget, QDoubleSpinBox):
+            widget.valueChanged.connect(self.refresh)
+        return widget
+
+    def finish_layout(self, *plots: QWidget) -> None:
+        for p in plots:
+            self.layout_.addWidget(p, 1)
+        self.layout_.addWidget(self.status)
+
+    def _on_units_changed(self, change) -> None:
+        if set(change.touched) & set(self.ctl.selection) or change.removed:
+            self.refresh()
+
+    def shown_units(self) -> list[int]:
+        return self.ctl.selection[:MAX_SHOWN]
+
+    def unit_times(self, unit: int) -> np.ndarray:
+        s = self.ctl.sorting
+        return np.sort(s.data.time_s[s.events_of(unit)])
+
+    def refresh(self, *_) -> None:
+        units = self.shown_units() if self.ctl.sorting is not None else []
+        self.draw(units)
+        if not units:
+            self.status.setText("Select units in the unit list to see them here.")
+
+    def draw(self, units: list[int]) -> None:
+        raise NotImplementedError
+
+
+def step_curve(edges: np.ndarray, counts: np.ndarray, colour, scale: float = 1.0) -> pg.PlotCurveItem:
+    """A histogram as a stepped outline (x in ``edges * scale``)."""
+    return pg.PlotCurveItem(np.asarray(edges) * scale, np.asarray(counts, dtype=np.float64), stepMode="center",
+                            pen=palette.pen(colour, 1.6))

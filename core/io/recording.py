@@ -1,0 +1,345 @@
+"""Recording readers behind one small interface.
+
+A reader gives the sample count, channel count, sampling rate, channel groups and a
+``read(start, stop)`` returning microvolts as float32 (samples x channels). Files are
+opened read-only (positional reads or HDF5 read mode) and never written. A new format is a
+new subclass of :class:`Recording` plus one line in :func:`open_recording`.
+
+Raw binary files are described by a metadata file of our own schema beside the data,
+``<name>.rigside.toml``::
+
+    [recording]
+    schema = 1
+    dtype = "int16"        # int16, uint16, int32 or float32, little-endian
+    channels = 16
+    rate_hz = 30000.0
+    gain_uv = 0.195        # microvolts per stored unit
+    offset_uv = 0.0        # added after the gain
+    offset_counts = 0      # stored value of 0 uV, subtracted before the gain (32768: centred uint16)
+    header_bytes = 0       # bytes to skip at the start of the file
+    [[group]]
+    name = "bundle A"
+    channels = [0, 1, 2, 3]
+"""
+
+from __future__ import annotations
+
+import hashlib
+from pathlib import Path
+
+import h5py
+import numpy as np
+import tomli_w
+
+from rigside.core.errors import RecordingError
+from rigside.core.io.atomic import atomic_write
+from rigside.core.io.h5safe import stored_dataset
+from rigside.core.io.hdf5_datasets import choose_dataset
+from rigside.core.io.layout import DTYPES, Layout, check_groups, groups_of_size, is_integer, is_number  # noqa: F401 (re-exported)
+from rigside.core.io.positional import PositionalFile
+from rigside.core.textparse import parse_toml
+
+META_SUFFIX = ".rigside.toml"
+TRUTH_SUFFIXES = (".truth.csv", ".truth_units.csv")
+
+
+class Recording:
+    """Interface of every reader. Subclasses set the attributes and implement ``read_stored``."""
+
+    path: Path
+    n_samples: int
+    n_channels: int
+    rate_hz: float
+    groups: list[np.ndarray]
+    group_names: list[str]
+    float_data: bool = False
+    content_hash: str | None = None   # "sha256:<hex>" of the whole file once a full pass computed it
+
+    def _init_groups(self, groups: list[list[int]] | None, names: list[str] | None) -> None:
+        groups = groups if groups else [list(range(self.n_channels))]
+        check_groups(groups, self.n_channels)
+        grouped = {c for g in groups for c in g}
+        rest = [c for c in range(self.n_channels) if c not in grouped]
+        groups = [list(g) for g in groups] + [[c] for c in rest]
+        self.groups = [np.asarray(g, dtype=np.int64) for g in groups]
+        names = list(names or [])
+        self.group_names = [names[i] if i < len(names) else f"group {i}" for i in range(len(groups))]
+        self.channel_group = np.empty(self.n_channels, dtype=np.int32)
+        for gi, g in enumerate(self.groups):
+            self.channel_group[g] = gi
+
+    @property
+    def duration_s(self) -> float:
+        return self.n_samples / self.rate_hz
+
+    def read(self, start: int, stop: int, channels: np.ndarray | None = None) -> np.ndarray:
+        """Samples ``[start, stop)`` in microvolts, float32, shape (samples, channels)."""
+        start, stop = int(start), int(stop)
+        if not 0 <= start <= stop <= self.n_samples:
+            raise RecordingError(f"read range must lie within 0..{self.n_samples} samples, got {start}..{stop}")
+        stored = self.read_stored(start, stop, channels)
+        self.check_finite(stored, start, channels)
+        return self.scale(stored)
+
+    def read_stored(self, start: int, stop: int, channels: np.ndarray | None = None) -> np.ndarray:
+        """Samples ``[start, stop)`` as stored (no gain applied); may be a read-only view."""
+        raise NotImplementedError
+
+    def scale(self, stored: np.ndarray) -> np.ndarray:
+        """Stored values to microvolts (float32 copy)."""
+        out = np.array(stored, dtype=np.float32)
+        out *= np.float32(self.layout.gain_uv)
+        if self.layout.total_offset_uv:
+            out += np.float32(self.layout.total_offset_uv)
+        return out
+
+    def check_finite(self, stored: np.ndarray, start: int, channels: np.ndarray | None) -> None:
+        """Raise if float data holds NaN or Inf (integer data cannot)."""
+        if self.float_data and stored.size and not np.isfinite(stored).all():
+            bad = np.argwhere(~np.isfinite(stored))[0]
+            raise RecordingError(f"recording must hold finite values, got NaN or Inf at sample "
+                                 f"{start + int(bad[0])}, channel {int(bad[1]) if channels is None else int(channels[bad[1]])}")
+
+    def fingerprint(self) -> str:
+        """Size plus a SHA-256 of three 1 MiB blocks (start, middle, end) of the file."""
+        size = self.path.stat().st_size
+        h = hashlib.sha256(str(size).encode())
+        block = 1 << 20
+        with open(self.path, "rb") as fh:
+            for pos in sorted({0, max(0, size // 2 - block // 2), max(0, size - block)}):
+                fh.seek(pos)
+                h.update(fh.read(block))
+        return f"{size}:{h.hexdigest()[:32]}"
+
+    def describe(self) -> dict:
+        """Plain description for summaries and sessions."""
+        return {"path": str(self.path), "format": type(self).__name__, "n_samples": self.n_samples,
+                "n_channels": self.n_channels, "rate_hz": self.rate_hz,
+                "groups": [g.tolist() for g in self.groups], "group_names": self.group_names}
+
+    def truth_path(self) -> Path | None:
+        """Ground-truth spike file written beside a synthetic recording, if any."""
+        p = self.path.with_name(self.path.stem + ".truth.csv")
+        return p if p.exists() else None
+
+    def close(self) -> None:
+        """Release the file."""
+
+
+class RawRecording(Recording):
+    """Interleaved little-endian binary samples, read-only."""
+
+    def __init__(self, path: str | Path, layout: Layout):
+        layout.validate()
+        self.path = Path(path)
+        self.layout = layout
+        self.n_channels = layout.channels
+        self.rate_hz = float(layout.rate_hz)
+        self.float_data = layout.dtype == "float32"
+        try:
+            size = self.path.stat().st_size
+        except FileNotFoundError:
+            raise RecordingError(f"recording file must exist, got {str(path)!r}") from None
+        item = np.dtype(layout.dtype).itemsize
+        body = size - layout.header_bytes
+        frame = item * layout.channels
+        how = f"set --header-bytes or header_bytes in {self.path.stem}{META_SUFFIX}"
+        if body <= 0:
+            raise RecordingError(f"recording file must hold samples after its {layout.header_bytes}-byte header, "
+                                 f"got {size} bytes in {str(path)!r} ({how})")
+        if body % frame:
+            raise RecordingError(f"file size after the header must be a multiple of channels x item size "
+                                 f"({layout.channels} x {item} = {frame} bytes), got {body} bytes "
+                                 f"(a header of {body % frame} + k x {frame} bytes? {how}; or a truncated "
+                                 f"file, wrong channel count or sample type)")
+        self.n_samples = body // frame
+        self._dtype = np.dtype(layout.dtype).newbyteorder("<")
+        self._frame = frame
+        self._file = PositionalFile(self.path)
+        self._init_groups(layout.groups, layout.group_names)
+
+    def read_stored(self, start, stop, channels=None):
+        """Positional reads (thread-safe); a file that shrank gives RecordingError, not a crash."""
+        block = np.empty((stop - start, self.n_channels), dtype=self._dtype)
+        view = memoryview(block.reshape(-1).view(np.uint8))
+        offset, done = self.layout.header_bytes + start * self._frame, 0
+        while done < len(view):
+            got = self._file.readinto(view[done:], offset + done)
+            if got == 0:
+                raise RecordingError(f"recording {str(self.path)!r} must keep its size while it is read, got an "
+                                     f"early end at sample {start + done // self._frame} of {self.n_samples}")
+            done += got
+        return block if channels is None else block[:, channels]
+
+    def close(self) -> None:
+        self._file.close()
+
+
+class HDF5Recording(Recording):
+    """A 2-D dataset (samples x channels) with attributes ``rate_hz`` (required),
+    ``gain_uv``, ``offset_uv`` and optionally ``channel_group`` (group index per channel)."""
+
+    def __init__(self, path: str | Path, dataset: str | None = None, rate_hz: float | None = None,
+                 gain_uv: float | None = None, groups: list[list[int]] | None = None,
+                 allow_external: bool = False):
+        self.path = Path(path)
+        self.allow_external = allow_external
+        try:
+            self._file = h5py.File(self.path, "r")
+        except FileNotFoundError:
+            raise RecordingError(f"recording file must exist, got {str(path)!r}") from None
+        except OSError as exc:
+            raise RecordingError(f"HDF5 recording must be a readable HDF5 file, got {str(path)!r}: {exc}") from None
+        try:
+            self._setup(dataset, rate_hz, gain_uv, groups)
+        except RecordingError:
+            self._file.close()
+            raise
+        except (OSError, RuntimeError, KeyError, ValueError, TypeError) as exc:
+            self._file.close()
+            raise RecordingError(f"HDF5 recording must be a readable HDF5 file, got {str(path)!r}: {exc}") from None
+
+    def _setup(self, dataset, rate_hz, gain_uv, groups) -> None:
+        path = self.path
+        name = choose_dataset(self._file, dataset)
+        self._ds = stored_dataset(self._file, name, self.allow_external, RecordingError)
+        attrs = self._ds.attrs
+        rate = rate_hz if rate_hz is not None else attrs.get("rate_hz", self._file.attrs.get("rate_hz"))
+        if rate is None:
+            raise RecordingError(f"HDF5 recording must carry a 'rate_hz' attribute (or give --rate), got none in {str(path)!r}")
+        gain = gain_uv if gain_uv is not None else attrs.get("gain_uv", 1.0)
+        for what, v in (("rate_hz", rate), ("gain_uv", gain), ("offset_uv", attrs.get("offset_uv", 0.0))):
+            if not is_number(v):
+                raise RecordingError(f"HDF5 recording attribute {what} must be one number, got {str(v)[:40]!r}")
+        layout = Layout(channels=int(self._ds.shape[1]), rate_hz=float(rate), dtype="float32", gain_uv=float(gain),
+                        offset_uv=float(attrs.get("offset_uv", 0.0)))
+        layout.validate()
+        self.layout = layout
+        self.n_samples, self.n_channels = (int(s) for s in self._ds.shape)
+        if self.n_samples == 0:
+            raise RecordingError(f"HDF5 recording must hold at least one sample, got 0 in {str(path)!r}")
+        self.rate_hz = layout.rate_hz
+        self.float_data = self._ds.dtype.kind == "f"
+        if groups is None and "channel_group" in attrs:
+            cg = np.asarray(attrs["channel_group"]).astype(int)
+            if cg.shape != (self.n_channels,):
+                raise RecordingError(f"attribute channel_group must hold one group per channel ({self.n_channels}), "
+                                     f"got shape {cg.shape}")
+            groups = [np.flatnonzero(cg == g).tolist() for g in np.unique(cg)]
+        self._init_groups(groups, None)
+
+    def read_stored(self, start, stop, channels=None):
+        try:
+            block = self._ds[start:stop]
+        except (OSError, RuntimeError) as exc:
+            raise RecordingError(f"HDF5 recording must be readable at samples {start}..{stop}, got {exc}") from None
+        return block if channels is None else block[:, channels]
+
+    def close(self) -> None:
+        self._file.close()
+
+
+def metadata_path(path: str | Path) -> Path | None:
+    """The metadata file beside ``path`` (``name.ext.rigside.toml`` or ``name.rigside.toml``)."""
+    p = Path(path)
+    for cand in (p.with_name(p.name + META_SUFFIX), p.with_name(p.stem + META_SUFFIX)):
+        if cand.exists():
+            return cand
+    return None
+
+
+def side_files(path: str | Path) -> list[Path]:
+    """The existing files that belong to a recording: its metadata and ground-truth files."""
+    p = Path(path)
+    found = [metadata_path(p)] + [p.with_name(p.stem + s) for s in TRUTH_SUFFIXES]
+    return [f for f in found if f is not None and f.exists()]
+
+
+def read_metadata(meta: str | Path) -> Layout:
+    """Parse a metadata file of our schema into a :class:`Layout`."""
+    try:
+        text = Path(meta).read_text(encoding="utf-8")
+    except UnicodeDecodeError as exc:
+        raise RecordingError(f"metadata file must be valid TOML (UTF-8 text), got {str(meta)!r}: {exc}") from None
+    data = parse_toml(text, f"metadata file {str(meta)!r}", RecordingError)
+    rec = data.get("recording")
+    if not isinstance(rec, dict):
+        raise RecordingError(f"metadata file must have a [recording] table, got none in {str(meta)!r}")
+    known = {"schema", "dtype", "channels", "rate_hz", "gain_uv", "offset_uv", "offset_counts", "header_bytes"}
+    unknown = set(rec) - known
+    if unknown:
+        raise RecordingError(f"metadata [recording] keys must be among {', '.join(sorted(known))}, "
+                             f"got {', '.join(sorted(unknown))}")
+    if not (is_integer(rec.get("schema", 1)) and rec.get("schema", 1) == 1):
+        raise RecordingError(f"metadata schema must be 1, got {rec['schema']!r} in {str(meta)!r} (a newer rigside?)")
+    for key in ("channels", "rate_hz"):
+        if key not in rec:
+            raise RecordingError(f"metadata [recording] must give {key}, got none in {str(meta)!r}")
+    groups = data.get("group", [])
+    if not isinstance(groups, list) or not all(isinstance(g, dict) and isinstance(g.get("channels"), list) for g in groups):
+        raise RecordingError("metadata [[group]] entries must each hold a channels list, got "
+                             f"{groups!r}"[:200])
+    layout = Layout(channels=rec["channels"], rate_hz=rec["rate_hz"], dtype=rec.get("dtype", "int16"),
+                    gain_uv=rec.get("gain_uv", 1.0), offset_uv=rec.get("offset_uv", 0.0),
+                    header_bytes=rec.get("header_bytes", 0), offset_counts=rec.get("offset_counts", 0.0),
+                    groups=[g["channels"] for g in groups] or None,
+                    group_names=[str(g.get("name", f"group {i}")) for i, g in enumerate(groups)] or None)
+    if isinstance(layout.rate_hz, int):
+        layout.rate_hz = float(layout.rate_hz)
+    layout.validate()
+    return layout
+
+
+def write_metadata(path: str | Path, layout: Layout) -> Path:
+    """Write the metadata file of our schema beside the raw file ``path`` (atomically)."""
+    layout.validate()
+    rec = {"schema": 1, "dtype": layout.dtype, "channels": layout.channels, "rate_hz": float(layout.rate_hz),
+           "gain_uv": float(layout.gain_uv), "offset_uv": float(layout.offset_uv), "offset_counts": float(layout.offset_counts),
+           "header_bytes": layout.header_bytes}
+    names = layout.group_names or []
+    groups = [{"name": str(names[i]) if i < len(names) else f"group {i}", "channels": [int(c) for c in g]}
+              for i, g in enumerate(layout.groups or [])]
+    text = "# rigside recording description\n" + tomli_w.dumps({"recording": rec} | ({"group": groups} if groups else {}))
+    meta = Path(path).with_name(Path(path).stem + META_SUFFIX)
+    return atomic_write(meta, lambda tmp: tmp.write_text(text, encoding="utf-8"))
+
+
+def open_recording(path: str | Path, *, channels: int | None = None, rate_hz: float | None = None,
+                   dtype: str | None = None, gain_uv: float | None = None, offset_uv: float | None = None,
+                   group_size: int | None = None, dataset: str | None = None, header_bytes: int | None = None,
+                   offset_counts: float | None = None, allow_external: bool = False) -> Recording:
+    """Open a recording read-only, choosing the reader from the file.
+
+    HDF5 files are recognised by their signature; anything else is raw binary described by
+    its metadata file, with any keyword given here overriding the file. HDF5 samples kept in
+    other files are refused unless ``allow_external`` (:func:`rigside.core.io.h5safe.stored_dataset`).
+    """
+    p = Path(path)
+    if not p.exists():
+        raise RecordingError(f"recording file must exist, got {str(path)!r}")
+    if p.is_dir():
+        raise RecordingError(f"recording must be a file, got the directory {str(path)!r}")
+    if p.stat().st_size == 0:
+        raise RecordingError(f"recording file must not be empty, got 0 bytes in {str(path)!r}")
+    if h5py.is_hdf5(p):
+        rec = HDF5Recording(p, dataset=dataset, rate_hz=rate_hz, gain_uv=gain_uv, allow_external=allow_external)
+        if group_size is not None:
+            rec._init_groups(groups_of_size(rec.n_channels, group_size), None)
+        return rec
+    meta = metadata_path(p)
+    if meta is not None:
+        layout = read_metadata(meta)
+    elif channels is None or rate_hz is None:
+        raise RecordingError(f"raw recording needs a metadata file ({p.stem}{META_SUFFIX}) or the channel "
+                             f"count and sampling rate as options, got neither for {str(path)!r}")
+    else:
+        layout = Layout(channels=channels, rate_hz=rate_hz)
+    for key, value in (("channels", channels), ("rate_hz", rate_hz), ("dtype", dtype),
+                       ("gain_uv", gain_uv), ("offset_uv", offset_uv), ("header_bytes", header_bytes),
+                       ("offset_counts", offset_counts)):
+        if value is not None:
+            setattr(layout, key, value)
+    if group_size is not None:
+        layout.groups = groups_of_size(layout.channels, group_size)
+        layout.group_names = None
+    return RawRecording(p, layout)

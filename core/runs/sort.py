@@ -1,0 +1,194 @@
+"""Headless sorting run: detection, features, first-pass clustering, session — resumable.
+
+After each long stage the run writes a checkpoint beside the session
+(``NAME.checkpoint.h5``: the event table, the features once computed, the parameters, the
+recording's quick fingerprint and the hash of its whole content). A resumed run reuses the
+stages whose checkpoint matches the same recording (its whole content is hashed again
+first) and the same parameters, and starts over otherwise.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+import h5py
+import numpy as np
+
+from rigside.core.errors import RigsideError, SessionError
+from rigside.core.events import EventTable
+from rigside.core.io.atomic import atomic_copy_bytes, atomic_write, check_not_input, free_backup_path, safe_unlink
+from rigside.core.io.content import content_hash
+from rigside.core.io.h5image import write_h5
+from rigside.core.io.h5safe import read_verified
+from rigside.core.io.recording import Recording
+from rigside.core.params import Params
+from rigside.core.progress import CancelFn, ProgressFn, report
+from rigside.core.signal.features import Features, compute_features, feature_names
+from rigside.core.signal.pipeline import detect, thresholds_sigma
+from rigside.core.textparse import parse_json
+from rigside.core.units.first_pass import first_pass
+from rigside.core.units.session import RecordingRef, Session, save_session
+from rigside.core.units.sorting import Sorting
+
+STAGE_SHARES = (0.45, 0.35, 0.2)  # detection, features, clustering: shares of the progress bar
+
+
+def checkpoint_path(session_path: str | Path) -> Path:
+    p = Path(session_path)
+    return p.with_name(p.name + ".checkpoint.h5")
+
+
+def _key(recording: Recording, params: Params) -> str:
+    """What a checkpoint must match: the recording's fingerprint, channel groups and every parameter."""
+    return json.dumps({"fingerprint": recording.fingerprint(), "groups": [g.tolist() for g in recording.groups],
+                       "params": params.to_dict()}, sort_keys=True)
+
+
+def _write_checkpoint(path: Path, key: str, events: EventTable, features: Features | None,
+                      content: str | None) -> None:
+    def fill(f: h5py.File) -> None:
+        f.attrs["key"] = key
+        f.attrs["content_hash"] = content or ""
+        events.to_h5_group(f.create_group("events"))
+        if features is not None:
+            f.create_dataset("features", data=features.values)
+            f.attrs["feature_names"] = json.dumps(features.names)
+    atomic_write(path, lambda tmp: write_h5(tmp, fill))
+
+
+def _read_checkpoint(path: Path, key: str, recording: Recording, params: Params,
+                     progress: ProgressFn, cancel: CancelFn) -> tuple[EventTable | None, Features | None]:
+    """Events and features of a matching checkpoint; (None, None) when absent, unreadable or stale.
+
+    A checkpoint matches when its key (quick fingerprint, groups, parameters) and the hash of the
+    recording's whole content (computed here) agree. One that matches but whose content does not
+    fit the recording is refused (:class:`RigsideError`), since our own writes never leave one.
+    """
+    if not path.exists():
+        return None, None
+    try:
+        f = h5py.File(path, "r")
+    except OSError:
+        return None, None  # not an HDF5 file any more: only costs recomputation
+    with f:
+        found, stored = f.attrs.get("key"), f.attrs.get("content_hash")
+        if not isinstance(found, str) or found != key or not isinstance(stored, str) or not stored:
+            return None, None
+        recording.content_hash = content_hash(recording.path, progress, cancel)
+        if recording.content_hash != stored:
+            return None, None
+        try:
+            data, _ = read_verified(f, path)
+            events = EventTable.from_h5_group(f["events"])
+            _check_fits(events, recording)
+            if "features" not in data:
+                return events, None
+            values = data["features"]
+            names = parse_json(str(f.attrs["feature_names"]), "checkpoint feature names")
+            if names != feature_names(params.snippets.n_pcs) or values.dtype != np.float32 \
+                    or values.shape != (len(events), len(names)) or not np.isfinite(values).all():
+                raise RigsideError(f"features must be finite float32 of shape ({len(events)}, {len(names)}) "
+                                   f"named as the parameters say, got {values.dtype} {values.shape}")
+            return events, Features(values, names)
+        except (RigsideError, OSError, KeyError, ValueError, TypeError) as exc:
+            raise RigsideError(f"checkpoint {str(path)!r} must hold this recording's events and features, "
+                               f"got {exc}; delete it or run without --resume") from None
+
+
+def _check_fits(events: EventTable, recording: Recording) -> None:
+    if (events.n_samples, events.n_channels, events.rate_hz) != (
+            recording.n_samples, recording.n_channels, recording.rate_hz):
+        raise RigsideError(f"events must describe {recording.n_samples} samples of {recording.n_channels} "
+                           f"channels at {recording.rate_hz:g} Hz, got {events.n_samples} of "
+                           f"{events.n_channels} at {events.rate_hz:g} Hz")
+    if len(events) and np.any(recording.channel_group[events.channel] != events.group):
+        raise RigsideError("event groups must be the recording's channel groups, got other group numbers")
+
+
+def sort_recording(recording: Recording, params: Params, checkpoint: Path | None = None,
+                   resume: bool = False, progress: ProgressFn = None,
+                   cancel: CancelFn = None) -> tuple[EventTable, Sorting]:
+    """Detect, compute features and cluster every group, in memory.
+
+    Parameters
+    ----------
+    recording
+        The recording (read-only).
+    params
+        Pipeline parameters (``params.cluster`` for the first pass). The events kept are
+        those at the detection threshold, artefacts included (they go to no unit).
+    checkpoint
+        File to save the events and features in after each long stage (none if ``None``).
+    resume
+        Reuse the stages saved in a matching ``checkpoint``.
+    progress, cancel
+        Progress callback and cancel check.
+
+    Returns
+    -------
+    events, sorting
+        The event table and its unreviewed first-pass sorting.
+    """
+    params.validate(recording.rate_hz)
+    key = _key(recording, params) if checkpoint is not None else ""
+    a, b, _ = STAGE_SHARES
+    events, features = (None, None)
+    if checkpoint is not None and resume:
+        events, features = _read_checkpoint(checkpoint, key, recording, params,
+                                            lambda f, m: report(progress, a * f, m),
+                                            cancel)
+    if events is None:
+        table = detect(recording, params, progress=lambda f, m: report(progress, a * f, m), cancel=cancel)
+        events = table.subset(table.mask(threshold_sigma=thresholds_sigma(params, table.sigma_uv),
+                                         include_artefacts=True))
+        if checkpoint is not None:
+            _write_checkpoint(checkpoint, key, events, None, recording.content_hash)
+    report(progress, a, "events ready")
+    if features is None:
+        features = compute_features(recording, events, params, cancel=cancel,
+                                    progress=lambda f, m: report(progress, a + b * f, m))
+        if checkpoint is not None:
+            _write_checkpoint(checkpoint, key, events, features, recording.content_hash)
+    report(progress, a + b, "features ready")
+    sorting = first_pass(events, features, params.cluster, cancel=cancel, workers=params.run.workers,
+                         progress=lambda f, m: report(progress, a + b + (1 - a - b) * f, m))
+    return events, sorting
+
+
+def check_new_session(session_path: str | Path, overwrite: bool) -> None:
+    """Refuse to replace an existing session (it may hold hand curation) unless ``overwrite``."""
+    p = Path(session_path)
+    if (p.exists() or p.is_symlink()) and not overwrite:
+        raise SessionError(f"session file must not exist yet (it may hold hand curation; give --overwrite "
+                           f"to replace it and keep it as a backup), got {str(p)!r}")
+
+
+def run_sort(recording: Recording, params: Params, session_path: str | Path, resume: bool = False,
+             progress: ProgressFn = None, cancel: CancelFn = None,
+             overwrite: bool = False) -> tuple[Session, Path | None]:
+    """:func:`sort_recording` with a checkpoint beside ``session_path``, then save the session
+    atomically and remove the checkpoint.
+
+    An existing session is refused unless ``overwrite``; then it is kept under the first free
+    name among ``NAME.bak``, ``NAME.bak.1``, ... (an earlier backup is never replaced).
+
+    Returns
+    -------
+    session, backup
+        The saved session and where the replaced one was kept (``None`` if there was none).
+    """
+    check_new_session(session_path, overwrite)
+    ckpt = checkpoint_path(session_path)
+    check_not_input(ckpt, "checkpoint")
+    events, sorting = sort_recording(recording, params, ckpt, resume, progress, cancel)
+    session = Session(RecordingRef.from_recording(recording), params, events, sorting)
+    backup = None
+    if Path(session_path).exists():
+        check_new_session(session_path, overwrite)
+        backup = free_backup_path(session_path)
+        atomic_copy_bytes(session_path, backup)
+    save_session(session_path, session, keep_backup=False)
+    safe_unlink(ckpt)
+    report(progress, 1.0, "session saved")
+    return session, backup

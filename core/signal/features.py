@@ -1,0 +1,165 @@
+"""Features of each event: PCA scores of its group's waveforms and shape measures.
+
+Snippets are first aligned to the sub-sample position of their peak (see
+:func:`rigside.core.signal.snippets.align_subsample`). PCA (scikit-learn) is fitted per channel group on a
+seeded random subset of the group's snippets (all usable channels of the group concatenated,
+in the group's order: channels flagged dead or saturated are left out), then applied to every
+event. Every event's snippet is cut once, by :func:`rigside.core.signal.snippet_pass.snippet_pass` (chunked
+passes over the filtered recording): first the fit subsets of all groups, held until each
+group's basis is fitted (at most ``pca_fit_events`` snippets per group, whatever the recording
+length), then the other events, projected as they are cut. When every event of every group is
+in its fit subset, the second pass reads nothing.
+Shape features, on the event's own channel: signed peak (uV), trough-to-peak width (ms:
+from the peak to the largest excursion of the opposite sign after it) and energy (mean
+squared amplitude over the window and the group's channels, uV^2).
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from sklearn.decomposition import PCA
+
+from rigside.core.events import EventTable
+from rigside.core.io.recording import Recording
+from rigside.core.params import Params
+from rigside.core.progress import CancelFn, ProgressFn, report
+from rigside.core.signal.chunk_pool import single_threaded_pools
+from rigside.core.signal.filtering import BandPass
+from rigside.core.signal.snippet_pass import own_columns, snippet_pass
+from rigside.core.signal.snippets import snippet_window
+
+
+@dataclass
+class Features:
+    """Feature matrix (events x features, float32) and the name of each column."""
+
+    values: np.ndarray
+    names: list[str]
+
+    def column(self, name: str) -> np.ndarray:
+        return self.values[:, self.names.index(name)]
+
+
+def feature_names(n_pcs: int) -> list[str]:
+    return [f"PC{i + 1}" for i in range(n_pcs)] + ["peak_uv", "width_ms", "energy_uv2"]
+
+
+def shape_features(snips: np.ndarray, own: np.ndarray, before: int, rate_hz: float) -> np.ndarray:
+    """Peak, trough-to-peak width and energy for snippets (n, samples, channels).
+
+    ``own`` gives, per snippet, the column of its event channel.
+    """
+    n = len(snips)
+    trace = snips[np.arange(n), :, own]
+    peak = trace[:, before]
+    after = trace[:, before + 1:]
+    if after.shape[1]:
+        opposite = np.where(peak[:, None] < 0, after, -after)
+        width = (np.argmax(opposite, axis=1) + 1) * 1000.0 / rate_hz
+    else:
+        width = np.zeros(n)
+    energy = np.mean(snips.astype(np.float64) ** 2, axis=(1, 2))
+    return np.column_stack([peak, width, energy]).astype(np.float32)
+
+
+def usable_channels(channels: np.ndarray, excluded: dict[int, str]) -> np.ndarray:
+    """The channels of a group that are not excluded (dead or saturated)."""
+    return np.asarray([c for c in channels if int(c) not in excluded], dtype=np.int64)
+
+
+def compute_features(recording: Recording, events: EventTable, params: Params, progress: ProgressFn = None,
+                     cancel: CancelFn = None, index: np.ndarray | None = None) -> Features:
+    """PCA and shape features for every event (or the events in ``index``).
+
+    Parameters
+    ----------
+    recording
+        The recording the events came from.
+    events
+        Event table (all groups).
+    params
+        ``params.snippets`` sets the window, component count, PCA fit subset and seed;
+        ``params.run`` the chunk length and worker count of the passes.
+    progress, cancel
+        Progress callback and cancel check.
+    index
+        Restrict to these event indices (rows of the result follow ``index``).
+
+    Returns
+    -------
+    Features
+        One row per event, columns PC1..PCn, peak_uv, width_ms, energy_uv2.
+    """
+    sp = params.snippets
+    sp.validate()
+    bp = BandPass(recording, params.filter)
+    before, after = snippet_window(sp, recording.rate_hz)
+    idx_all = np.arange(len(events)) if index is None else np.asarray(index, dtype=np.int64)
+    order = np.argsort(events.sample[idx_all], kind="stable")
+    sample, group = events.sample[idx_all][order], events.group[idx_all][order]
+    groups = np.unique(group)
+    slot = np.searchsorted(groups, group)
+    channels = [usable_channels(recording.groups[int(g)], events.excluded) for g in groups]
+    own = own_columns(events.channel[idx_all][order], slot, channels, recording.n_channels)
+    fit = _fit_subsets(slot, len(groups), sp.pca_fit_events, sp.seed)
+    chosen = np.sort(np.concatenate(fit)) if len(fit) else np.zeros(0, dtype=np.int64)
+    rest = np.setdiff1d(np.arange(len(sample)), chosen, assume_unique=True)
+    share = len(chosen) / max(1, len(sample))
+    out = np.zeros((len(idx_all), sp.n_pcs + 3), dtype=np.float32)
+    row_of = np.zeros(len(sample), dtype=np.int64)
+    for f in fit:
+        row_of[f] = np.arange(len(f))
+    held = [np.empty((len(f), (before + after) * len(ch)), dtype=np.float32) for f, ch in zip(fit, channels)]
+
+    def cut(which: np.ndarray, put, share0: float, share1: float) -> None:
+        def consume(pos: np.ndarray, aligned: np.ndarray, runs: list[tuple[int, int, int]]) -> None:
+            ev = which[pos]
+            out[order[ev], sp.n_pcs:] = shape_features(aligned, own[ev], before, recording.rate_hz)
+            flat = aligned.reshape(len(pos), -1)
+            for s, a, b in runs:
+                put(s, ev[a:b], flat[a:b])
+        snippet_pass(bp, sample[which], slot[which], own[which], channels, params, consume,
+                     lambda f, m: report(progress, share0 + (share1 - share0) * f, m), cancel)
+
+    def hold(s: int, ev: np.ndarray, flat: np.ndarray) -> None:
+        # a chunk brings all fit events of a group between two times, in time order: one slice
+        first = int(row_of[ev[0]])
+        held[s][first:first + len(ev)] = flat
+
+    cut(chosen, hold, 0.0, share)
+    pcas: list[PCA | None] = []
+    with single_threaded_pools():  # small matrices: one BLAS thread is faster here, and the same everywhere
+        for s, x in enumerate(held):
+            n_comp = min(sp.n_pcs, x.shape[1], len(x))
+            pcas.append(PCA(n_components=n_comp, random_state=sp.seed).fit(x)
+                        if n_comp >= 1 and len(x) > n_comp else None)
+            put_scores(out, order[fit[s]], pcas[s], x)
+            held[s] = None  # the group's subset is projected: free it
+
+    cut(rest, lambda s, ev, flat: put_scores(out, order[ev], pcas[s], flat), share, 1.0)
+    report(progress, 1.0, "features done")
+    return Features(out, feature_names(sp.n_pcs))
+
+
+def put_scores(out: np.ndarray, rows: np.ndarray, pca: PCA | None, flat: np.ndarray) -> None:
+    """Write the PCA scores of flattened snippets into the first columns of ``out`` (none without a fit).
+
+    The projection is scikit-learn's ``PCA.transform`` (centre, then project on the components)
+    without its input checks, which cost more than the product on the few events of one chunk.
+    """
+    if pca is not None:
+        scores = flat @ pca.components_.T
+        scores -= pca.mean_.reshape(1, -1) @ pca.components_.T
+        out[rows, :pca.n_components_] = scores
+
+
+def _fit_subsets(slot: np.ndarray, n_slots: int, size: int, seed: int) -> list[np.ndarray]:
+    """Per slot, the positions (in time order) of a seeded random subset of at most ``size`` events."""
+    rng = np.random.default_rng(seed)
+    out = []
+    for s in range(n_slots):
+        rows = np.flatnonzero(slot == s)
+        out.append(rows[np.sort(rng.choice(len(rows), size=min(len(rows), size), replace=False))])
+    return out

@@ -1,0 +1,113 @@
+"""The streaming runner: noise, then detection over chunks in parallel threads."""
+
+from __future__ import annotations
+
+import numpy as np
+
+from rigside.core.events import EventTable
+from rigside.core.io.content import ContentHasher
+from rigside.core.io.recording import Recording
+from rigside.core.params import Params
+from rigside.core.progress import CancelFn, ProgressFn, report
+from rigside.core.signal.chunk_pool import chunk_bounds, map_chunks
+from rigside.core.signal.detection import BlockEvents, detect_block
+from rigside.core.signal.filtering import BandPass
+from rigside.core.signal.noise import NoiseEstimate, estimate_noise
+from rigside.core.signal.overview import OverviewBuilder
+
+NOISE_SHARE = 0.1  # fraction of the progress bar given to the noise estimate
+
+
+def thresholds_sigma(params: Params, sigma_uv: np.ndarray) -> np.ndarray:
+    """Per-channel detection threshold in sigma (inf on dead channels in microvolt mode)."""
+    d = params.detect
+    if d.threshold_uv is None:
+        return np.full(len(sigma_uv), d.threshold_sigma, dtype=np.float64)
+    with np.errstate(divide="ignore"):
+        return np.where(sigma_uv > 0, d.threshold_uv / np.where(sigma_uv > 0, sigma_uv, 1.0), np.inf)
+
+
+def lookup_floor(params: Params, sigma_uv: np.ndarray) -> float:
+    """Lowest amplitude (sigma) stored: the given floor, or the lowest channel threshold."""
+    thr = thresholds_sigma(params, sigma_uv)
+    finite = thr[np.isfinite(thr)]
+    lowest = float(finite.min()) if len(finite) else float(params.detect.threshold_sigma)
+    floor = params.detect.floor_sigma
+    return lowest if floor is None else min(float(floor), lowest)
+
+
+def detect(recording: Recording, params: Params, progress: ProgressFn = None, cancel: CancelFn = None,
+           noise: NoiseEstimate | None = None, overview: OverviewBuilder | None = None) -> EventTable:
+    """Measure noise (unless given) and detect events over the whole recording.
+
+    Parameters
+    ----------
+    recording
+        The recording, read in chunks of ``params.run.chunk_s``.
+    params
+        All parameters (validated here against the sampling rate).
+    progress, cancel
+        Progress callback and cancel check.
+    noise
+        A noise estimate to reuse; measured when not given.
+    overview
+        When given, every filtered chunk is also handed to it (see :mod:`core.overview`).
+
+    Returns
+    -------
+    EventTable
+        Every event down to the look-up floor (see :func:`lookup_floor`), sorted by time.
+        Channels flagged dead or saturated (``NoiseEstimate.excluded``) hold no events.
+        ``EventTable.mask`` with the detection threshold selects the detected events.
+        The pass also hashes the whole file (``recording.content_hash``) and raises
+        :class:`rigside.core.errors.RecordingError` if the file changes size meanwhile.
+    """
+    params.validate(recording.rate_hz)
+    params.check_memory(recording.rate_hz, recording.n_channels)
+    bp = BandPass(recording, params.filter)
+    if noise is None:
+        noise = estimate_noise(recording, params, cancel=cancel, bandpass=bp,
+                               progress=lambda f, m: report(progress, f * NOISE_SHARE, m))
+    sigma = np.asarray(noise.sigma_uv, dtype=np.float64)
+    excluded = noise.excluded
+    live_sigma = sigma.copy()
+    live_sigma[list(excluded)] = 0.0  # a zero sigma keeps a channel out of detection
+    floor = lookup_floor(params, sigma)
+    d = params.detect
+    rate = recording.rate_hz
+    dead = int(round(d.dead_time_ms * rate / 1000))
+    art_w = int(round(d.artefact_window_ms * rate / 1000))
+    ctx = max(dead, art_w) + 2
+    chunk = max(int(params.run.chunk_s * rate), 4 * ctx)
+    bounds = chunk_bounds(recording.n_samples, chunk)
+
+    def work(start: int, stop: int) -> BlockEvents:
+        lo, hi = max(0, start - ctx), min(recording.n_samples, stop + ctx)
+        y = bp.read(lo, hi)
+        if overview is not None:
+            overview.add(y, lo, start, stop)
+        return detect_block(y, lo, start - lo, stop - lo, live_sigma, recording.groups, d.polarity, floor,
+                            dead, d.artefact_sigma, d.artefact_channel_fraction, art_w)
+
+    parts: list[BlockEvents] = []
+    hasher = ContentHasher(recording.path)
+
+    def collect(part: BlockEvents) -> None:
+        parts.append(part)
+        hasher.advance(len(parts) / len(bounds))
+        report(progress, NOISE_SHARE + (1 - NOISE_SHARE) * len(parts) / len(bounds), "detecting")
+
+    with hasher:
+        map_chunks(work, bounds, params.run.workers, collect, cancel)
+        recording.content_hash = hasher.finish()
+    return _assemble(parts, recording, sigma, floor, d.polarity, excluded)
+
+
+def _assemble(parts: list[BlockEvents], recording: Recording, sigma: np.ndarray, floor: float,
+              polarity: str, excluded: dict[int, str]) -> EventTable:
+    cols = {name: np.concatenate([getattr(p, name) for p in parts]) if parts else np.empty(0)
+            for name in ("sample", "channel", "group", "amplitude_uv", "amplitude_sigma", "artefact")}
+    order = np.lexsort((cols["group"], cols["sample"]))
+    cols = {k: v[order] for k, v in cols.items()}
+    return EventTable(**cols, rate_hz=recording.rate_hz, n_samples=recording.n_samples, sigma_uv=sigma,
+                      floor_sigma=floor, polarity=polarity, excluded=excluded)

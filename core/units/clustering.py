@@ -1,0 +1,281 @@
+"""First-pass clustering of event features, one channel group at a time.
+
+Each group's features are standardised (z-scores from a fitted subsample) and modelled by a
+Gaussian mixture with full covariances (scikit-learn ``GaussianMixture``). The number of
+components is the one with the lowest Bayesian information criterion (Schwarz 1978) over
+``k_min..k_max``, searched upwards and stopped after ``patience`` successive values of k that
+do not improve it; ``k`` may also be forced. The mixture is fitted on a random subsample of at
+most ``fit_events`` events and then assigns every event of the group, so the cost per group is
+bounded whatever the recording length. All randomness comes from ``seed`` and the group
+number, so a run is reproducible.
+
+A mixture chosen by BIC often spends several Gaussian components on one non-Gaussian cluster
+(bursts, drift, heavy tails). Components are therefore merged hierarchically by directly
+estimated misclassification probabilities (DEMP; Hennig 2010, Adv. Data Anal. Classif.
+4:3-34) [memory]: for two clusters A and B of components, p(A->B) is the posterior weight of A
+on the fitted events that the current clusters classify as B, divided by A's total posterior
+weight; the pair with the largest max(p(A->B), p(B->A)) is merged while that value exceeds
+``merge_overlap``. Every event then goes to the cluster with the largest summed posterior.
+
+Artefact events are not clustered: they get the unit id :data:`NO_UNIT` (-1), meaning "in no
+unit". Unit ids are positive, unique across groups, and numbered group by group; inside a
+group, clusters are numbered by decreasing mean peak magnitude.
+"""
+
+from __future__ import annotations
+
+import warnings
+from concurrent.futures import ProcessPoolExecutor
+from multiprocessing import get_all_start_methods, get_context
+
+import numpy as np
+from sklearn.exceptions import ConvergenceWarning
+from sklearn.mixture import GaussianMixture
+
+from rigside.core.errors import RigsideError
+from rigside.core.params import ClusterParams
+from rigside.core.progress import CancelFn, ProgressFn, check, report
+from rigside.core.signal.chunk_pool import map_chunks, single_threaded_pools
+from rigside.core.units.sorting import NO_UNIT
+
+MIN_EVENTS_PER_COMPONENT = 10
+"""A fit never uses more components than one per this many fitted events."""
+
+WORKER_START = "fork" if "fork" in get_all_start_methods() else "spawn"
+"""How worker processes start: forked where the system can (a few ms; a fresh interpreter
+importing scikit-learn took 1.5-10 s here), so the caller must hold no lock in another thread
+(the command-line sort runs it from its only thread)."""
+
+ASSIGN_BLOCK = 1 << 16
+"""Events assigned to the fitted mixture at a time (bounds the memory of the assignment)."""
+
+def _scaling(x: np.ndarray, fit_rows: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Mean, sd and kept columns of the fit rows (constant columns are dropped)."""
+    ref = x[fit_rows].astype(np.float64)
+    mean = ref.mean(axis=0)
+    sd = ref.std(axis=0)
+    keep = sd > 1e-12 * np.maximum(1.0, np.abs(mean))
+    return mean[keep], sd[keep], keep
+
+
+def _z(x: np.ndarray, scaling: tuple[np.ndarray, np.ndarray, np.ndarray]) -> np.ndarray:
+    mean, sd, keep = scaling
+    return ((x[:, keep] - mean) / sd).astype(np.float64)
+
+
+def _fit(x: np.ndarray, k: int, params: ClusterParams, random_state: int) -> GaussianMixture:
+    gm = GaussianMixture(n_components=k, covariance_type="full", max_iter=params.max_iter,
+                         tol=params.tol, reg_covar=1e-6, random_state=random_state)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ConvergenceWarning)
+        gm.fit(x)
+    return gm
+
+
+def merge_components(posterior: np.ndarray, threshold: float) -> list[list[int]]:
+    """Merge mixture components by directly estimated misclassification probabilities.
+
+    Parameters
+    ----------
+    posterior
+        Posterior probability of every component (events x components).
+    threshold
+        Merge while the largest pairwise misclassification probability exceeds this.
+
+    Returns
+    -------
+    list of lists
+        Component indices of each resulting cluster.
+    """
+    clusters = [[k] for k in range(posterior.shape[1])]
+    tau = np.asarray(posterior, dtype=np.float64).copy()
+    while tau.shape[1] > 1:
+        hard = tau.argmax(axis=1)
+        weight = tau.sum(axis=0)
+        # p[a, b]: posterior weight of cluster a on events classified as b, over a's weight
+        p = np.stack([np.bincount(hard, tau[:, a], tau.shape[1]) for a in range(tau.shape[1])])
+        p /= np.where(weight > 0, weight, 1.0)[:, None]
+        np.fill_diagonal(p, 0.0)
+        pair = np.maximum(p, p.T)
+        a, b = np.unravel_index(np.argmax(pair), pair.shape)
+        if pair[a, b] <= threshold:
+            break
+        a, b = min(a, b), max(a, b)
+        clusters[a] += clusters.pop(b)
+        tau[:, a] += tau[:, b]
+        tau = np.delete(tau, b, axis=1)
+    return clusters
+
+
+def cluster_features(features: np.ndarray, params: ClusterParams, stream: int = 0,
+                     k: int | None = None) -> np.ndarray:
+    """Cluster one set of events (one channel group, or one unit being split).
+
+    Parameters
+    ----------
+    features
+        Feature matrix, events x features, finite values.
+    params
+        Clustering settings; ``k`` (argument) overrides ``params.k``.
+    stream
+        Extra seed component (the group number), so groups draw independent subsamples.
+    k
+        Forced cluster count, or ``None`` to use ``params.k`` or the BIC search followed by
+        the merging of overlapping components (a forced count is kept as asked).
+
+    Returns
+    -------
+    np.ndarray
+        Cluster index per event (int32, 0..n_clusters-1, every index used), numbered in the
+        order of the fitted mixture's (merged) components after empty ones are removed.
+
+    Notes
+    -----
+    The matrices are small, so linear algebra (BLAS) and the k-means initialisation (OpenMP)
+    run on one thread: on a shared 2-core machine, threaded pools made the first pass of
+    10^6 events about three times slower (measured here). One thread also makes the result
+    independent of the machine's thread count, which journal replay relies on. The limit is
+    process-wide (:func:`single_threaded_pools`): while a clustering runs, BLAS calls of every
+    other thread are single-threaded too.
+    """
+    with single_threaded_pools():
+        return _cluster(features, params, stream, k)
+
+
+def _cluster(features: np.ndarray, params: ClusterParams, stream: int, k: int | None) -> np.ndarray:
+    x = np.asarray(features)
+    n = len(x)
+    if n == 0:
+        return np.zeros(0, dtype=np.int32)
+    if x.ndim != 2:
+        raise RigsideError(f"feature matrix must be 2-D (events x features), got shape {x.shape}")
+    if not np.isfinite(x).all():
+        bad = int((~np.isfinite(x)).any(axis=1).sum())
+        raise RigsideError(f"features must be finite to be clustered, got {bad} events with NaN or Inf")
+    rng = np.random.default_rng([params.seed, stream])
+    fit_rows = np.sort(rng.choice(n, params.fit_events, replace=False)) if n > params.fit_events \
+        else np.arange(n)
+    scaling = _scaling(x, fit_rows)
+    n_fit = len(fit_rows)
+    k_cap = max(1, n_fit // MIN_EVENTS_PER_COMPONENT)
+    forced = k if k is not None else params.k
+    if not scaling[2].any():
+        return np.zeros(n, dtype=np.int32)
+    random_state = int(rng.integers(0, 2**31 - 1))
+    zf = _z(x[fit_rows], scaling)
+    if forced is not None:
+        best = _fit(zf, min(int(forced), n_fit), params, random_state)
+    else:
+        best, best_bic, worse = None, np.inf, 0
+        for kk in range(params.k_min, min(params.k_max, k_cap) + 1):
+            gm = _fit(zf, kk, params, random_state)
+            bic = gm.bic(zf)
+            if bic < best_bic:
+                best, best_bic, worse = gm, bic, 0
+            else:
+                worse += 1
+                if worse >= params.patience:
+                    break
+        if best is None:
+            best = _fit(zf, 1, params, random_state)
+    merged = merge_components(best.predict_proba(zf), params.merge_overlap) if forced is None \
+        else [[c] for c in range(best.n_components)]
+    labels = _assign(x, scaling, best, merged)
+    _, dense = np.unique(labels, return_inverse=True)
+    return dense.astype(np.int32)
+
+
+def _assign(x: np.ndarray, scaling, mixture: GaussianMixture, merged: list[list[int]]) -> np.ndarray:
+    """Cluster of largest summed posterior for every event, in blocks of :data:`ASSIGN_BLOCK`.
+
+    Memory stays bounded whatever the event count; the blocks are fixed, so the result does
+    not depend on how the work is spread.
+    """
+    labels = np.empty(len(x), dtype=np.int64)
+    for b0 in range(0, len(x), ASSIGN_BLOCK):
+        tau = mixture.predict_proba(_z(x[b0:b0 + ASSIGN_BLOCK], scaling))
+        labels[b0:b0 + ASSIGN_BLOCK] = np.column_stack([tau[:, c].sum(axis=1) for c in merged]).argmax(axis=1)
+    return labels
+
+
+def _cluster_group(i: int, features: np.ndarray, params: ClusterParams, g: int) -> tuple[int, np.ndarray]:
+    """One group's labels, tagged with its position (runs in worker processes)."""
+    return i, cluster_features(features, params, stream=g)
+
+
+def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np.ndarray,
+                           amplitude_uv: np.ndarray, params: ClusterParams,
+                           groups: list[int] | None = None, first_id: int = 1,
+                           progress: ProgressFn = None, cancel: CancelFn = None, workers: int = 1
+                           ) -> tuple[np.ndarray, dict[int, int]]:
+    """Cluster every channel group and number the clusters as units.
+
+    Parameters
+    ----------
+    group, artefact, amplitude_uv
+        Per-event channel group, artefact flag and signed peak (from the event table).
+    features
+        Feature matrix, events x features.
+    params
+        Clustering settings (validated here).
+    groups
+        Groups to cluster (default: every group present); events of other groups get
+        :data:`NO_UNIT` in the returned array.
+    first_id
+        Id of the first new unit.
+    progress, cancel
+        Progress callback and cancel check (one step per group).
+    workers
+        Groups clustered at the same time, each in its own process (see :data:`WORKER_START`;
+        scikit-learn's mixture fits on a few thousand events hold the interpreter lock most of
+        the time, so threads ran them slower than one thread: ``bench/bench_sort_path.py
+        --threads``). The result does not depend on it: every group's clustering depends only
+        on its own events and seed.
+
+    Returns
+    -------
+    assignments, unit_group
+        Unit id per event (int32) and the channel group of every new unit id.
+    """
+    params.validate()
+    group = np.asarray(group)
+    n = len(group)
+    if features.ndim != 2 or len(features) != n or len(artefact) != n or len(amplitude_uv) != n:
+        raise RigsideError(f"features and event columns must have one row per event ({n}), got "
+                           f"features {features.shape}, artefact {len(artefact)}, "
+                           f"amplitude {len(amplitude_uv)}")
+    todo = sorted(int(g) for g in np.unique(group)) if groups is None else sorted(set(groups))
+    out = np.full(n, NO_UNIT, dtype=np.int32)
+    unit_group: dict[int, int] = {}
+    order = np.argsort(group, kind="stable")
+    bounds = np.searchsorted(group[order], [todo, np.add(todo, 1)]) if todo else np.zeros((2, 0), int)
+    rows_of = [r[~artefact[r]] for r in (order[bounds[0, i]:bounds[1, i]] for i in range(len(todo)))]
+    busy = [i for i in range(len(todo)) if len(rows_of[i])]
+    state = {"next": first_id, "done": 0}
+
+    def number(result: tuple[int, np.ndarray]) -> None:
+        i, labels = result
+        rows, g = rows_of[i], todo[i]
+        n_clusters = int(labels.max()) + 1
+        magnitude = np.bincount(labels, np.abs(amplitude_uv[rows].astype(np.float64)), n_clusters)
+        magnitude /= np.bincount(labels, minlength=n_clusters)
+        rank = np.empty(n_clusters, dtype=np.int32)
+        rank[np.argsort(-magnitude, kind="stable")] = np.arange(n_clusters, dtype=np.int32)
+        out[rows] = state["next"] + rank[labels]
+        for r in range(n_clusters):
+            unit_group[state["next"] + r] = g
+        state["next"] += n_clusters
+        state["done"] += 1
+        report(progress, state["done"] / max(1, len(busy)), f"clustered group {g}")
+
+    report(progress, 0.0, "clustering groups")
+    tasks = ((i, features[rows_of[i]], params, todo[i]) for i in busy)
+    if workers > 1 and len(busy) > 1:
+        processes = ProcessPoolExecutor(min(workers, len(busy)), mp_context=get_context(WORKER_START))
+        map_chunks(_cluster_group, tasks, workers, number, cancel, pool=processes)
+    else:
+        for task in tasks:
+            check(cancel)
+            number(_cluster_group(*task))
+    report(progress, 1.0, "clustering done")
+    return out, unit_group

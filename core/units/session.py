@@ -1,0 +1,362 @@
+"""Session files: one HDF5 file of our own layout holding a whole sorting session.
+
+Layout (format version 2)::
+
+    /                 attrs format="rigside session", format_version, program_version,
+                      saved_utc, checksum (SHA-256 of everything else, see rigside.core.io.h5safe)
+    /recording        attrs path, size, fingerprint, description (JSON), content_hash
+                      ("sha256:<hex>" of the whole file, see rigside.core.io.content; may be absent or empty)
+    /params           attrs json (Params.to_dict() as JSON)
+    /events           the event table (EventTable.to_h5_group)
+    /features/values  float32 events x features;   attrs names (JSON list)
+    /sorting/assignments  int32 unit id per event (-1: in no unit)
+    /sorting/unit_id, unit_group (int32)
+    /sorting/labels   UTF-8 JSON list of one label name per unit (uint8 dataset)
+    /sorting/notes    UTF-8 JSON list of one note per unit (uint8 dataset); attrs next_id
+    /journal/lines    UTF-8 JSON lines (uint8 dataset)
+
+Format 1 stored labels as codes instead of ``/sorting/labels``; it is still read (see
+:mod:`rigside.core.units.session_labels`). No pickled or executable content is written or accepted. Saving is atomic: a uniquely named
+temporary file beside ``NAME`` is written (built in memory, then written at once), flushed,
+fsynced and renamed over ``NAME``; the previous ``NAME`` (if it verifies) becomes ``NAME.bak`` first, by a hard link where possible. ``NAME.autosave.h5`` is written
+the same way by :func:`save_autosave`; :mod:`rigside.core.units.session_recovery` finds the newest
+consistent state among the main file, the autosave and the backup.
+"""
+
+from __future__ import annotations
+
+import json
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+from types import SimpleNamespace
+
+import h5py
+import numpy as np
+
+from rigside.core import __version__
+from rigside.core.errors import ParamError, RigsideError, SessionError
+from rigside.core.events import COLUMNS, EventTable
+from rigside.core.io.atomic import atomic_copy_bytes, atomic_write, safe_unlink
+from rigside.core.io.content import content_hash
+from rigside.core.io.h5image import h5_in_memory
+from rigside.core.io.h5safe import CHECKSUM_ATTR, array, attr, read_verified, text, write_text
+from rigside.core.io.recording import Recording
+from rigside.core.params import Params
+from rigside.core.progress import CancelFn, ProgressFn
+from rigside.core.textparse import parse_json
+from rigside.core.units.journal import Journal, utc_now
+from rigside.core.units.session_labels import labels_to_text, read_labels, upgrade_format1_journal
+from rigside.core.units.sorting import Sorting, SortingData, Unit
+
+FORMAT = "rigside session"
+FORMAT_VERSION = 2
+
+
+class RecordingMoved(SessionError):
+    """The session's recording is not at its recorded path; ask the user where it is and
+    load again with ``recording_path_override``."""
+
+    def __init__(self, recorded_path: str, session_path: str) -> None:
+        self.recorded_path, self.session_path = recorded_path, session_path
+        super().__init__(f"recording of session {session_path!r} must exist at its recorded path, got no "
+                         f"file at {recorded_path!r} (moved or renamed?)")
+
+
+class RecordingChanged(SessionError):
+    """The file at the recording path differs from the one the session was made from."""
+
+
+@dataclass
+class RecordingRef:
+    """Where the raw recording is and how to recognise it."""
+
+    path: str
+    size: int
+    fingerprint: str
+    description: dict = field(default_factory=dict)
+    content_hash: str = ""
+
+    @classmethod
+    def from_recording(cls, recording: Recording) -> "RecordingRef":
+        """Reference to an open recording (absolute path, size, fingerprint, description and
+        the content hash, if a full pass over it has computed one)."""
+        p = Path(recording.path).resolve()
+        return cls(str(p), p.stat().st_size, recording.fingerprint(), recording.describe(),
+                   recording.content_hash or "")
+
+
+@dataclass
+class Session:
+    """Everything a session file holds (``source`` is the file it was read from, if any)."""
+
+    recording: RecordingRef
+    params: Params
+    events: EventTable
+    sorting: Sorting
+    program_version: str = __version__
+    saved_utc: str = ""
+    source: Path | None = None
+
+
+def snapshot(session: Session) -> Session:
+    """A copy of the session whose sorting no longer changes (for saving off the GUI thread)."""
+    return replace(session, recording=replace(session.recording), sorting=session.sorting.copy())
+
+
+def backup_path(path: str | Path) -> Path:
+    """``NAME.bak``: the previous good main file."""
+    return Path(str(path) + ".bak")
+
+
+def autosave_path(path: str | Path) -> Path:
+    """``NAME.autosave.h5``: the state written by :func:`save_autosave`."""
+    p = Path(path)
+    return p.with_name(p.name + ".autosave.h5")
+
+
+def file_fingerprint(path: str | Path) -> str:
+    """The fingerprint :meth:`Recording.fingerprint` gives for the file at ``path``."""
+    return Recording.fingerprint(SimpleNamespace(path=Path(path)))
+
+
+# ---- writing -------------------------------------------------------------------------------
+def _write(tmp: Path, s: Session, saved_utc: str) -> None:
+    sorting = s.sorting
+    with h5_in_memory(tmp, libver=("v110", "latest")) as f:
+        f.attrs.update(format=FORMAT, format_version=FORMAT_VERSION, program_version=__version__,
+                       saved_utc=saved_utc)
+        rec = f.create_group("recording")
+        rec.attrs.update(path=s.recording.path, size=np.int64(s.recording.size),
+                         fingerprint=s.recording.fingerprint, content_hash=s.recording.content_hash,
+                         description=json.dumps(s.recording.description, allow_nan=False))
+        f.create_group("params").attrs["json"] = json.dumps(s.params.to_dict(), allow_nan=False)
+        s.events.to_h5_group(f.create_group("events"))
+        feat = f.create_group("features")
+        feat.create_dataset("values", data=sorting.data.features)
+        feat.attrs["names"] = json.dumps(list(sorting.data.feature_names))
+        g = f.create_group("sorting")
+        g.create_dataset("assignments", data=sorting.assignments)
+        units = sorting.units
+        g.create_dataset("unit_id", data=np.array(list(units), dtype=np.int32))
+        g.create_dataset("unit_group", data=np.array([u.group for u in units.values()], dtype=np.int32))
+        write_text(g, "labels", labels_to_text([u.label for u in units.values()]))
+        write_text(g, "notes", json.dumps([u.note for u in units.values()]))
+        g.attrs["next_id"] = np.int64(sorting.next_id)
+        write_text(f.create_group("journal"), "lines", sorting.journal.to_text())
+        f.flush()
+        _, digest = read_verified(f, tmp, size=f.id.get_filesize())
+        f.attrs[CHECKSUM_ATTR] = digest
+
+
+def _save(path: Path, session: Session, keep_backup: bool) -> Path:
+    saved_utc = utc_now()
+
+    def rotate() -> None:
+        if keep_backup and path.exists():
+            try:
+                verify_session_file(path)
+            except SessionError:
+                return          # never let a damaged main file replace the good backup
+            atomic_copy_bytes(path, backup_path(path))
+
+    atomic_write(path, lambda tmp: _write(tmp, session, saved_utc), before_replace=rotate)
+    session.saved_utc = saved_utc
+    return path
+
+
+def save_session(path: str | Path, session: Session, keep_backup: bool = True) -> Path:
+    """Save atomically, keeping the previous good file as ``NAME.bak`` (unless ``keep_backup``
+    is False: the caller has kept it elsewhere).
+
+    The autosave file, now older than the saved state, is removed.
+    """
+    path = Path(path)
+    _save(path, session, keep_backup=keep_backup)
+    safe_unlink(autosave_path(path))
+    session.source = path
+    return path
+
+
+def save_autosave(path: str | Path, session: Session) -> Path:
+    """Write ``NAME.autosave.h5`` atomically (no backup kept); returns its path."""
+    return _save(autosave_path(path), session, keep_backup=False)
+
+
+# ---- reading -------------------------------------------------------------------------------
+def _open(path: Path) -> tuple[h5py.File, dict, str]:
+    if not path.exists():
+        raise SessionError(f"session file must exist, got no file at {str(path)!r}")
+    try:
+        f = h5py.File(path, "r")
+    except OSError as exc:
+        raise SessionError(f"session file must be a readable HDF5 file, got {str(path)!r} "
+                           f"(truncated, corrupted or another type: {exc})") from None
+    try:
+        fmt = attr(f, "format", str, "")
+        if fmt != FORMAT:
+            raise SessionError(f"session file must have format {FORMAT!r}, got {fmt!r}")
+        version = attr(f, "format_version", int, "")
+        if not 1 <= version <= FORMAT_VERSION:
+            raise SessionError(f"session format version must be from 1 to {FORMAT_VERSION}, got {version} "
+                               f"(saved by rigside {f.attrs.get('program_version', '?')}; update rigside)")
+        data, digest = read_verified(f, path)
+        if digest != attr(f, CHECKSUM_ATTR, str, ""):
+            raise SessionError(f"session file must match its checksum, got different content in "
+                               f"{str(path)!r} (corrupted)")
+    except BaseException:
+        f.close()
+        raise
+    return f, data, digest
+
+
+def verify_session_file(path: str | Path) -> str:
+    """Check format and checksum of a session file; returns its save time (UTC ISO)."""
+    try:
+        f, _, _ = _open(Path(path))
+    except (OSError, KeyError, ValueError, TypeError, MemoryError) as exc:
+        if isinstance(exc, SessionError):
+            raise
+        raise SessionError(f"session file must be a valid rigside session, got {str(path)!r}: {exc}") from None
+    with f:
+        return attr(f, "saved_utc", str, "")
+
+
+def _check_recording(ref: RecordingRef, session_path: Path, override: str | Path | None) -> RecordingRef:
+    target = Path(override) if override is not None else Path(ref.path)
+    if not target.is_file():
+        if override is not None:
+            raise SessionError(f"recording path must be an existing file, got {str(target)!r}")
+        raise RecordingMoved(ref.path, str(session_path))
+    size = target.stat().st_size
+    if size != ref.size:
+        raise RecordingChanged(f"recording {str(target)!r} must be the file this session was made from "
+                               f"({ref.size} bytes), got {size} bytes (changed)")
+    fp = file_fingerprint(target)
+    if fp != ref.fingerprint:
+        raise RecordingChanged(f"recording {str(target)!r} must be the file this session was made from "
+                               f"(fingerprint {ref.fingerprint}), got fingerprint {fp} (changed content)")
+    return RecordingRef(str(target.resolve()), size, fp, ref.description, ref.content_hash)
+
+
+def _interpret(f: h5py.File, data: dict, path: Path) -> tuple[RecordingRef, Session]:
+    g = f["recording"] if "recording" in f else None
+    if g is None:
+        raise SessionError("session group recording must be present, got none")
+    desc = parse_json(attr(g, "description", str, "recording"), "session recording description", SessionError)
+    params_dict = parse_json(attr(f["params"], "json", str, "params"), "session parameters", SessionError)
+    names = parse_json(attr(f["features"], "names", str, "features"), "session feature names", SessionError)
+    notes = parse_json(text(data, "sorting/notes"), "session notes", SessionError)
+    try:
+        if not isinstance(params_dict, dict):
+            raise ParamError(f"parameters must be a table, got {str(params_dict)[:40]!r}")
+        params = Params.from_dict(params_dict)
+        params.validate()
+    except (ParamError, AttributeError, TypeError) as exc:
+        raise SessionError(f"session parameters must be valid, got: {exc}") from None
+    if not isinstance(desc, dict):
+        raise SessionError(f"session recording description must be a JSON object, got {str(desc)[:40]!r}")
+    ref = RecordingRef(attr(g, "path", str, "recording"), attr(g, "size", int, "recording"),
+                       attr(g, "fingerprint", str, "recording"), desc,
+                       attr(g, "content_hash", str, "recording") if "content_hash" in g.attrs else "")
+    for c, dt in COLUMNS.items():
+        array(data, f"events/{c}", np.dtype(dt).str, 1)
+    array(data, "events/sigma_uv", "f8", 1)
+    ev = f["events"]
+    for a, kind in (("rate_hz", float), ("n_samples", int), ("floor_sigma", float), ("polarity", str)):
+        attr(ev, a, kind, "events")
+    try:
+        events = EventTable.from_h5_group(ev)
+    except RigsideError as exc:
+        raise SessionError(f"session {exc}") from None
+    values = array(data, "features/values", "f4", 2)
+    if not np.isfinite(values).all():
+        raise SessionError("session dataset features/values must hold finite numbers, got NaN or infinite values")
+    assign = array(data, "sorting/assignments", "i4", 1)
+    ids = array(data, "sorting/unit_id", "i4", 1)
+    groups = array(data, "sorting/unit_group", "i4", 1)
+    version = attr(f, "format_version", int, "")
+    labels = read_labels(data, version)
+    if not (isinstance(names, list) and all(isinstance(n, str) for n in names)
+            and isinstance(notes, list) and all(isinstance(n, str) for n in notes)):
+        raise SessionError("feature names and notes must be lists of text, got other values")
+    m = len(ids)
+    if len(values) != len(events) or len(assign) != len(events) or not (
+            len(groups) == len(labels) == len(notes) == m) or len(np.unique(ids)) != m:
+        raise SessionError(f"session arrays must agree in length ({len(events)} events, {m} units), got "
+                           f"features {values.shape}, assignments {assign.shape}, unit columns "
+                           f"{len(groups)}/{len(labels)}/{len(notes)} with unique ids")
+    if m and not (groups.min() >= 0 and groups.max() < events.n_channels and ids.min() >= 1):
+        raise SessionError(f"unit ids must be at least 1 and unit groups from 0 to {events.n_channels - 1}, "
+                           f"got ids {int(ids.min())}.. and groups {int(groups.min())}..{int(groups.max())}")
+    units = {int(u): Unit(int(gr), la, note) for u, gr, la, note in zip(ids, groups, labels, notes)}
+    journal = Journal.from_text(text(data, "journal/lines"))
+    if version == 1:
+        journal = Journal(upgrade_format1_journal(journal.entries))
+    sorting = Sorting(SortingData.from_events(events, values, names), assign, units,
+                      attr(f["sorting"], "next_id", int, "sorting"), journal)
+    session = Session(ref, params, events, sorting, attr(f, "program_version", str, ""),
+                      attr(f, "saved_utc", str, ""), path)
+    return ref, session
+
+
+def load_session(path: str | Path, recording_path_override: str | Path | None = None,
+                 check_recording: bool = True) -> Session:
+    """Open a session file, verify it, and check its recording before anything is computed.
+
+    Parameters
+    ----------
+    path
+        Session file.
+    recording_path_override
+        New location of a moved recording (its size and fingerprint must match).
+    check_recording
+        Set False to open a session without its recording (e.g. to export spike times).
+
+    Raises
+    ------
+    SessionError
+        Missing, truncated, corrupted, hostile or inconsistent file (the message says which,
+        and names the backup when one exists).
+    RecordingMoved
+        The recording is not at its recorded path (ask for it, then pass the override).
+    RecordingChanged
+        The file at the recording path is not the one the session was made from.
+    """
+    path = Path(path)
+    try:
+        f, data, _ = _open(path)
+        with f:
+            ref, session = _interpret(f, data, path)
+    except SessionError as exc:
+        raise _with_alternatives(exc, path) from None
+    except (OSError, KeyError, ValueError, TypeError, MemoryError, UnicodeDecodeError) as exc:
+        raise _with_alternatives(SessionError(f"session file must be a valid rigside session, got "
+                                              f"{str(path)!r}: {type(exc).__name__}: {exc}"), path) from None
+    if check_recording:
+        session.recording = _check_recording(ref, path, recording_path_override)
+    return session
+
+
+def check_recording_content(session: Session, progress: ProgressFn = None, cancel: CancelFn = None) -> None:
+    """The full check before computing from a session's recording: hash its whole content and
+    compare with the hash stored at detection (sessions without one pass on the quick check).
+
+    Raises
+    ------
+    RecordingChanged
+        The content differs from the file the session was made from.
+    """
+    stored = session.recording.content_hash
+    if not stored:
+        return
+    found = content_hash(session.recording.path, progress, cancel)
+    if found != stored:
+        raise RecordingChanged(f"recording {session.recording.path!r} must be the file this session was made "
+                               f"from (content {stored[:23]}...), got content {found[:23]}... (changed)")
+
+
+def _with_alternatives(exc: SessionError, path: Path) -> SessionError:
+    others = [str(p) for p in (autosave_path(path), backup_path(path)) if p.exists()]
+    if not others or isinstance(exc, (RecordingMoved, RecordingChanged)):
+        return exc
+    return SessionError(f"{exc}; other saved states exist: {', '.join(others)} (use recovery)")

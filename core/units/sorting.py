@@ -1,0 +1,313 @@
+"""The sorting model: which unit every event belongs to, and what each unit is.
+
+The model changes only through :meth:`Sorting.apply` of a :class:`Delta` (built by the
+operations in :mod:`rigside.core.units.operations`), so every change can be undone exactly and is
+announced once, with the units it touched, on :attr:`Sorting.changed`.
+"""
+
+from __future__ import annotations
+
+import weakref
+from dataclasses import dataclass, field, replace
+from typing import Callable, Sequence
+
+import numpy as np
+
+from rigside.core.errors import CurationError, RigsideError
+from rigside.core.events import EventTable
+from rigside.core.units.journal import Journal
+
+NO_UNIT = -1
+"""Unit id of events that belong to no unit (artefacts, or events moved out of every unit)."""
+
+LABELS = ("unreviewed", "single unit", "multi-unit", "not neural")
+"""Allowed unit labels, in menu order; every unit starts "unreviewed"."""
+
+MAX_UNIT_ID = 2**31 - 2
+"""Unit ids are int32 and positive."""
+
+AXIS_TIME = "event:time_s"
+AXIS_AMPLITUDE = "event:amplitude_uv"
+FEATURE_AXIS_PREFIX = "feature:"
+
+
+class Signal:
+    """A tiny emitter holding weak references to its callbacks.
+
+    Bound methods are held through :class:`weakref.WeakMethod`, functions through
+    :class:`weakref.ref`; the caller keeps callbacks alive (a lambda passed inline dies at once).
+    """
+
+    def __init__(self) -> None:
+        self._slots: list[weakref.ref] = []
+
+    def connect(self, callback: Callable) -> None:
+        """Call ``callback`` on every emit, as long as it lives (connecting twice is a no-op)."""
+        try:
+            ref = weakref.WeakMethod(callback) if hasattr(callback, "__func__") else weakref.ref(callback)
+        except TypeError:
+            raise TypeError(f"callback must be a function or bound method, got {callback!r}") from None
+        if all(r() != callback for r in self._slots):
+            self._slots.append(ref)
+
+    def disconnect(self, callback: Callable) -> None:
+        """Stop calling ``callback``."""
+        self._slots = [r for r in self._slots if r() is not None and r() != callback]
+
+    def emit(self, *args) -> None:
+        """Call every live callback with ``args``, in connection order."""
+        live = [(r, r()) for r in self._slots]
+        self._slots = [r for r, f in live if f is not None]
+        for _, f in live:
+            if f is not None:
+                f(*args)
+
+
+@dataclass(frozen=True)
+class Unit:
+    """One unit: its channel group, label and free-text note."""
+
+    group: int
+    label: str = "unreviewed"
+    note: str = ""
+
+    def __post_init__(self) -> None:
+        if isinstance(self.group, bool) or not isinstance(self.group, (int, np.integer)) or self.group < 0:
+            raise CurationError(f"unit group must be a non-negative integer, got {self.group!r}")
+        if self.label not in LABELS:
+            raise CurationError(f"unit label must be one of {', '.join(LABELS)}, got {self.label!r}")
+        if not isinstance(self.note, str):
+            raise CurationError(f"unit note must be text, got {type(self.note).__name__}")
+
+
+@dataclass(frozen=True)
+class Change:
+    """What one applied delta touched (unit ids; :data:`NO_UNIT` stands for "in no unit")."""
+
+    added: frozenset[int]
+    removed: frozenset[int]
+    members: frozenset[int]
+    edited: frozenset[int]
+
+    @property
+    def touched(self) -> frozenset[int]:
+        """Every unit id whose events, record or existence changed."""
+        return self.added | self.removed | self.members | self.edited
+
+
+@dataclass
+class Delta:
+    """An exact, reversible change of the model: new values and the values they replace.
+
+    ``index`` holds the events whose unit changes (sorted, int64), ``before``/``after`` their
+    unit ids; ``units_before``/``units_after`` map every touched unit id to its record or
+    ``None`` (absent).
+    """
+
+    index: np.ndarray
+    before: np.ndarray
+    after: np.ndarray
+    units_before: dict[int, Unit | None]
+    units_after: dict[int, Unit | None]
+    next_id_before: int
+    next_id_after: int
+    created: tuple[int, ...] = field(default=())
+
+
+class SortingData:
+    """Read-only per-event inputs of a sorting: features, times, peaks, groups, artefacts."""
+
+    def __init__(self, features: np.ndarray, feature_names: Sequence[str], time_s: np.ndarray,
+                 amplitude_uv: np.ndarray, group: np.ndarray, artefact: np.ndarray) -> None:
+        self.features = _frozen(np.asarray(features, dtype=np.float32))
+        self.feature_names = tuple(str(n) for n in feature_names)
+        n = len(self.features)
+        if self.features.ndim != 2 or len(self.feature_names) != self.features.shape[1]:
+            raise RigsideError(f"features must be a matrix with one name per column, got shape "
+                               f"{self.features.shape} and {len(self.feature_names)} names")
+        if len(set(self.feature_names)) != len(self.feature_names):
+            raise RigsideError(f"feature names must be unique, got {list(self.feature_names)}")
+        self.time_s = _frozen(np.asarray(time_s, dtype=np.float64))
+        self.amplitude_uv = _frozen(np.asarray(amplitude_uv, dtype=np.float32))
+        self.group = _frozen(np.asarray(group, dtype=np.int32))
+        self.artefact = _frozen(np.asarray(artefact, dtype=np.bool_))
+        lengths = {len(self.time_s), len(self.amplitude_uv), len(self.group), len(self.artefact)}
+        if lengths != {n}:
+            raise RigsideError(f"features and event columns must have one row per event ({n}), got "
+                               f"lengths {sorted(lengths)}")
+        self._columns = {AXIS_TIME: self.time_s, AXIS_AMPLITUDE: self.amplitude_uv}
+        for i, name in enumerate(self.feature_names):
+            self._columns[FEATURE_AXIS_PREFIX + name] = self.features[:, i]
+
+    @classmethod
+    def from_events(cls, events: EventTable, features: np.ndarray, feature_names: Sequence[str]
+                    ) -> "SortingData":
+        """Inputs from an event table and its feature matrix."""
+        return cls(features, feature_names, events.time_s, events.amplitude_uv, events.group,
+                   events.artefact)
+
+    def __len__(self) -> int:
+        return len(self.group)
+
+    @property
+    def axes(self) -> tuple[str, ...]:
+        """Names accepted by :meth:`axis_values`: the time, the peak and every feature."""
+        return tuple(self._columns)
+
+    def axis_values(self, axis: str, index: np.ndarray | None = None) -> np.ndarray:
+        """Values of one axis (float64) for the events in ``index`` (all events if ``None``)."""
+        if axis not in self._columns:
+            raise CurationError(f"axis must be one of {', '.join(self._columns)}, got {axis!r}")
+        col = self._columns[axis]
+        return (col if index is None else col[index]).astype(np.float64)
+
+
+def _frozen(a: np.ndarray) -> np.ndarray:
+    a = np.ascontiguousarray(a)
+    a.setflags(write=False)
+    return a
+
+
+class Sorting:
+    """Unit id of every event (int32, :data:`NO_UNIT` for none) and the unit table.
+
+    Attributes
+    ----------
+    data
+        The read-only inputs (:class:`SortingData`).
+    changed
+        :class:`Signal` emitting one :class:`Change` after every applied delta.
+    journal
+        The :class:`rigside.core.units.journal.Journal` of operations applied to this sorting.
+    revision
+        Incremented by every applied delta (including undo).
+    """
+
+    def __init__(self, data: SortingData, assignments: np.ndarray | None = None,
+                 units: dict[int, Unit] | None = None, next_id: int = 1, journal=None) -> None:
+
+        self.data = data
+        n = len(data)
+        self._assign = (np.full(n, NO_UNIT, dtype=np.int32) if assignments is None
+                        else np.array(assignments, dtype=np.int32))
+        self._units: dict[int, Unit] = dict(sorted((int(u), rec) for u, rec in (units or {}).items()))
+        self.next_id = int(next_id)
+        self.journal = journal if journal is not None else Journal()
+        self.changed = Signal()
+        self.revision = 0
+        self._members: dict[int, np.ndarray] = {}
+        self.validate()
+
+    # ---- reading --------------------------------------------------------------------------
+    @property
+    def assignments(self) -> np.ndarray:
+        """Unit id per event (read-only view)."""
+        view = self._assign.view()
+        view.setflags(write=False)
+        return view
+
+    @property
+    def units(self) -> dict[int, Unit]:
+        """Copy of the unit table, by increasing id."""
+        return dict(self._units)
+
+    def unit(self, unit_id: int) -> Unit:
+        """The record of one unit (:class:`CurationError` if absent)."""
+        try:
+            return self._units[int(unit_id)]
+        except KeyError:
+            raise CurationError(f"unit must be one of the current units, got {unit_id!r}") from None
+
+    def unit_ids(self) -> list[int]:
+        """Ids of the current units, increasing."""
+        return sorted(self._units)
+
+    def events_of(self, unit_id: int) -> np.ndarray:
+        """Sorted indices (int64) of the events in a unit (cached until the unit changes)."""
+        unit_id = int(unit_id)
+        idx = self._members.get(unit_id)
+        if idx is None:
+            idx = np.flatnonzero(self._assign == unit_id)
+            idx.setflags(write=False)
+            self._members[unit_id] = idx
+        return idx
+
+    def counts(self) -> dict[int, int]:
+        """Event count of every unit."""
+        ids = np.asarray(self.unit_ids(), dtype=np.int64)
+        assigned = self._assign[self._assign != NO_UNIT]
+        c = np.bincount(np.searchsorted(ids, assigned), minlength=len(ids)) if len(ids) else []
+        return {int(u): int(n) for u, n in zip(ids, c)}
+
+    def validate(self) -> None:
+        """Check that ids are known, belong to their unit's group, and the id counter is ahead."""
+        if len(self._assign) != len(self.data):
+            raise CurationError(f"assignments must have one entry per event ({len(self.data)}), "
+                                f"got {len(self._assign)}")
+        if not 1 <= self.next_id <= MAX_UNIT_ID + 1:
+            raise CurationError(f"next unit id must be from 1 to {MAX_UNIT_ID + 1}, got {self.next_id}")
+        for u, rec in self._units.items():
+            if not isinstance(rec, Unit) or not 1 <= u < self.next_id:
+                raise CurationError(f"unit table must map ids from 1 to below {self.next_id} to units, "
+                                    f"got {u!r}: {type(rec).__name__}")
+        ids = np.asarray(self.unit_ids(), dtype=np.int64)
+        groups = np.asarray([self._units[int(u)].group for u in ids], dtype=np.int64)
+        rows = np.flatnonzero(self._assign != NO_UNIT)
+        assigned = self._assign[rows]
+        pos = np.minimum(np.searchsorted(ids, assigned), max(len(ids) - 1, 0))
+        known = ids[pos] == assigned if len(ids) else np.zeros(len(rows), bool)
+        if not known.all():
+            raise CurationError(f"assigned unit ids must be in the unit table, got unknown ids "
+                                f"{np.unique(assigned[~known])[:10].tolist()}")
+        wrong = groups[pos] != self.data.group[rows]
+        if wrong.any():
+            first = int(rows[np.argmax(wrong)])
+            raise CurationError(f"events must belong to units of their own channel group, got event "
+                                f"{first} of group {int(self.data.group[first])} in unit "
+                                f"{int(self._assign[first])}")
+
+    def copy(self) -> "Sorting":
+        """An independent copy (same read-only data; assignments, units and journal copied),
+        e.g. for saving on a worker thread while curation goes on."""
+        return Sorting(self.data, self._assign, self._units, self.next_id, type(self.journal)(self.journal.entries))
+
+    def state_equal(self, other: "Sorting") -> bool:
+        """Same assignments (bitwise), unit table and id counter."""
+        return (np.array_equal(self._assign, other._assign) and self._assign.dtype == other._assign.dtype
+                and self._units == other._units and self.next_id == other.next_id)
+
+    # ---- changing -------------------------------------------------------------------------
+    def apply(self, delta: Delta, forward: bool = True) -> Change:
+        """Apply a delta (or revert it when ``forward`` is False) and announce the change."""
+        values = delta.after if forward else delta.before
+        old_values = delta.before if forward else delta.after
+        units_new = delta.units_after if forward else delta.units_before
+        units_old = delta.units_before if forward else delta.units_after
+        next_old = delta.next_id_before if forward else delta.next_id_after
+        if (not np.array_equal(self._assign[delta.index], old_values) or self.next_id != next_old
+                or any(self._units.get(u) != rec for u, rec in units_old.items())):
+            raise CurationError("sorting must be in the state the step was computed for, got another "
+                                "state (steps applied out of order?)")
+        self._assign[delta.index] = values
+        for u, rec in units_new.items():
+            if rec is None:
+                self._units.pop(u, None)
+            else:
+                self._units[u] = rec
+        self._units = dict(sorted(self._units.items()))
+        self.next_id = delta.next_id_after if forward else delta.next_id_before
+        members = frozenset(int(u) for u in np.unique(np.concatenate([values, old_values])))
+        for u in members | set(units_new):
+            self._members.pop(u, None)
+        added = frozenset(u for u in units_new if units_old.get(u) is None and units_new[u] is not None)
+        removed = frozenset(u for u in units_new if units_old.get(u) is not None and units_new[u] is None)
+        edited = frozenset(u for u in units_new if units_old.get(u) is not None
+                           and units_new[u] is not None and units_old[u] != units_new[u])
+        change = Change(added=added, removed=removed, members=members, edited=edited)
+        self.revision += 1
+        self.changed.emit(change)
+        return change
+
+    def with_unit(self, unit_id: int, **changes) -> Unit:
+        """The record of ``unit_id`` with some fields replaced (validated, not applied)."""
+        return replace(self.unit(unit_id), **changes)
