@@ -3,7 +3,7 @@
 from __future__ import annotations
 
 from collections import deque
-from concurrent.futures import Future, ThreadPoolExecutor
+from concurrent.futures import Executor, Future, ThreadPoolExecutor
 from typing import Callable, Iterable, Optional, TypeVar
 
 R = TypeVar("R")
@@ -32,7 +32,7 @@ def check(cancel: CancelFn) -> None:
 
 
 def run_bounded(work: Callable[..., R], items: Iterable[tuple], workers: int,
-                on_result: Callable[[R], None], cancel: CancelFn = None) -> None:
+                on_result: Callable[[R], None], cancel: CancelFn = None, pool: Executor | None = None) -> None:
     """Run ``work(*item)`` for every item in a pool of ``workers`` threads, in bounded memory.
 
     At most ``2 * workers`` items are in flight; ``on_result`` gets each result in item order,
@@ -51,8 +51,10 @@ def run_bounded(work: Callable[..., R], items: Iterable[tuple], workers: int,
         Called with each result, in order.
     cancel
         Cancel check.
+    pool
+        Replaces the thread pool (e.g. with processes); shut down at the end.
     """
-    with ThreadPoolExecutor(max_workers=workers) as pool:
+    with pool or ThreadPoolExecutor(max_workers=workers) as pool:
         pending: deque[Future] = deque()
         try:
             for item in items:

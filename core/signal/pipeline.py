@@ -9,6 +9,7 @@ from rigside.core.io.content import ContentHasher
 from rigside.core.io.recording import Recording
 from rigside.core.params import Params
 from rigside.core.progress import CancelFn, ProgressFn, report, run_bounded
+from rigside.core.signal.chunk_pool import chunk_bounds
 from rigside.core.signal.detection import BlockEvents, detect_block
 from rigside.core.signal.filtering import BandPass
 from rigside.core.signal.noise import NoiseEstimate, estimate_noise
@@ -17,11 +18,6 @@ from rigside.core.signal.overview import OverviewBuilder
 NOISE_SHARE = 0.1
 """Fraction of a detection's progress bar given to the noise estimate; :func:`detect` reports
 from here to 1 whether it estimates the noise itself or is given it."""
-
-
-def chunk_bounds(n_samples: int, chunk: int) -> list[tuple[int, int]]:
-    """Consecutive ``[start, stop)`` ranges of at most ``chunk`` samples covering the file."""
-    return [(s, min(s + chunk, n_samples)) for s in range(0, n_samples, chunk)]
 
 
 def thresholds_sigma(params: Params, sigma_uv: np.ndarray) -> np.ndarray:
