@@ -1,3 +1,4 @@
+import contextlib
 import os
 import signal
 import subprocess
@@ -62,10 +63,50 @@ def copy_session(s: Session) -> Session:
     return Session(RecordingRef(**vars(s.recording)), s.params, s.events, sorting)
 
 
+def static_of(path) -> Path:
+    """The static part a format-3 session file refers to."""
+    with h5py.File(path, "r") as f:
+        return Path(path).parent / f.attrs["static_part"]
+
+
+class _Parts:
+    """Both files of a format-3 session addressed as one (events and features in the static part)."""
+
+    def __init__(self, state, static):
+        self.state, self.static, self.attrs = state, static, state.attrs
+
+    def _file(self, key):
+        return self.static if key.strip("/").split("/")[0] in ("events", "features") else self.state
+
+    def __getitem__(self, key):
+        return self._file(key)[key]
+
+    def __setitem__(self, key, value):
+        self._file(key)[key] = value
+
+    def __delitem__(self, key):
+        del self._file(key)[key]
+
+    def create_dataset(self, key, **options):
+        return self._file(key).create_dataset(key, **options)
+
+
+@contextlib.contextmanager
+def edit_session(path):
+    """Open a saved session's two parts for writing."""
+    static = static_of(path)
+    with h5py.File(path, "r+") as f, h5py.File(static, "r+") as g:
+        yield _Parts(f, g)
+
+
 def reseal(path):
-    """Recompute the checksum after a deliberate edit, as a hostile author could."""
+    """Recompute the checksums after a deliberate edit, as a hostile author could."""
+    static = static_of(path)
+    with h5py.File(static, "r+") as g:
+        g.attrs["checksum"] = digest = read_verified(g, static, per_dataset=True)[1]
     with h5py.File(path, "r+") as f:
-        f.attrs["checksum"] = read_verified(f, path)[1]
+        f.attrs["static_checksum"] = digest
+        f.attrs["checksum"] = read_verified(f, path, per_dataset=True)[1]
 
 
 def test_round_trip_keeps_everything(made, tmp_path):
@@ -187,7 +228,7 @@ HOSTILE = {
     "short features": (lambda f: (f["features"].__delitem__("values"),
                                   f["features"].create_dataset("values", data=np.zeros((5, 5), "f4"))),
                        "must agree in length"),
-    "newer format": (lambda f: f.attrs.__setitem__("format_version", 7), "version must be from 1 to 2"),
+    "newer format": (lambda f: f.attrs.__setitem__("format_version", 7), "version must be from 1 to 3"),
     "bad journal": (lambda f: (f["journal"].__delitem__("lines"),
                                f["journal"].create_dataset("lines", data=np.frombuffer(b"\xff\xfe", "u1"))),
                     "UTF-8"),
@@ -199,7 +240,7 @@ def test_hostile_files_give_session_errors(made, tmp_path, name):
     raw, s = made
     p = save_session(tmp_path / "h.h5", copy_session(s))
     mutate, message = HOSTILE[name]
-    with h5py.File(p, "r+") as f:
+    with edit_session(p) as f:
         mutate(f)
     with pytest.raises(SessionError, match=f"checksum|{message}"):
         load_session(p)
@@ -214,7 +255,7 @@ def test_hostile_files_give_session_errors(made, tmp_path, name):
 def test_huge_declared_shapes_are_refused_before_reading(made, tmp_path):
     raw, s = made
     p = save_session(tmp_path / "h.h5", copy_session(s))
-    with h5py.File(p, "r+") as f:
+    with h5py.File(static_of(p), "r+") as f:
         del f["features/values"]
         f["features"].create_dataset("values", shape=(10**11, 8), dtype="f4", chunks=(1024, 8))
     with pytest.raises(SessionError, match="must fit the file's size"):
