@@ -30,7 +30,6 @@ consistent state among the main file, the autosave and the backup.
 
 from __future__ import annotations
 
-import json
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 from types import SimpleNamespace
@@ -39,16 +38,6 @@ import h5py
 import numpy as np
 
 from rigside.core import __version__
-from rigside.core.units.session_write import (
-    FORMAT,
-    FORMAT_VERSION,
-    STATIC_CHECKSUM_ATTR,
-    STATIC_FORMAT,
-    STATIC_NAME_ATTR,
-    ensure_static,
-    stored_checksum,
-    write_state,
-)
 from rigside.core.errors import ParamError, RigsideError, SessionError
 from rigside.core.events import COLUMNS, EventTable
 from rigside.core.io.atomic import atomic_copy_bytes, atomic_write, safe_unlink
@@ -60,6 +49,16 @@ from rigside.core.progress import CancelFn, ProgressFn
 from rigside.core.textparse import parse_json
 from rigside.core.units.journal import Journal, utc_now
 from rigside.core.units.session_labels import read_labels, upgrade_format1_journal
+from rigside.core.units.session_write import (
+    FORMAT,
+    FORMAT_VERSION,
+    STATIC_CHECKSUM_ATTR,
+    STATIC_FORMAT,
+    STATIC_NAME_ATTR,
+    ensure_static,
+    stored_checksum,
+    write_state,
+)
 from rigside.core.units.sorting import Sorting, SortingData, Unit
 
 

@@ -1,6 +1,5 @@
 import contextlib
 import os
-import signal
 import subprocess
 import sys
 from pathlib import Path
@@ -10,7 +9,6 @@ import numpy as np
 import pytest
 
 from rigside.core.errors import SessionError
-from rigside.core.io.atomic import stale_temporaries
 from rigside.core.io.h5safe import read_verified, write_text
 from rigside.core.params import Params
 from rigside.core.units.first_pass import first_pass
@@ -29,7 +27,6 @@ from rigside.core.units.session import (
     save_autosave,
     save_session,
     snapshot,
-    verify_session_file,
 )
 from rigside.core.units.session_recovery import Autosaver, find_states, recover, remove_stale_temporaries
 from rigside.core.units.sorting import Sorting
@@ -325,96 +322,6 @@ def test_stale_temporary_files_are_ignored_and_removed(made, tmp_path):
     save_session(p, copy_session(s))
     remove_stale_temporaries(p)
     assert not (tmp_path / ".a.h5.k3x9q_.tmp").exists()
-
-
-STOPS = {  # where the saving child stops to be killed, and the state the file must then hold
-    "writing": "previous",        # the temporary file is open and half written
-    "written": "previous",        # the temporary file is complete and synced, not yet renamed
-    "renamed": "new",             # the rename onto the session file has happened
-    "between": "new",             # the save returned, the next has not begun
-}
-
-
-def _save_and_stop(path, session, first, stop_at, report_fd, hold_fd):
-    """Child process: save states first, first+1, ...; on the second save, at the point
-    ``stop_at``, report "<state>" through ``report_fd`` and wait (until killed) on ``hold_fd``."""
-    import rigside.core.io.atomic as atomic_module
-
-    def stop(k):
-        os.write(report_fd, f"{k}\n".encode())
-        os.read(hold_fd, 1)           # never written: the parent kills us here
-
-    try:
-        stack = UndoStack(session.sorting)
-        u = session.sorting.unit_ids()[0]
-        current = {"k": first}
-        close, fsync_file, replace = h5py.File.close, atomic_module.fsync_file, os.replace
-
-        def at(point):
-            return current["k"] == first + 1 and stop_at == point
-
-        def close_hook(f):
-            # the image is built in memory beside the (created, still empty) temporary file
-            if at("writing") and f.id.valid and f.filename.endswith(".tmp.image"):
-                stop(current["k"])
-            close(f)
-
-        def fsync_hook(p):
-            fsync_file(p)
-            if at("written") and str(p).endswith(".tmp"):
-                stop(current["k"])
-
-        def replace_hook(src, dst):
-            replace(src, dst)
-            if at("renamed") and Path(dst) == Path(path):
-                stop(current["k"])
-
-        h5py.File.close, atomic_module.fsync_file, os.replace = close_hook, fsync_hook, replace_hook
-        for k in range(first, first + 3):
-            current["k"] = k
-            stack.push(SetNote(u, f"state {k}"))
-            save_session(path, session)
-            if at("between"):
-                stop(k)
-    finally:
-        os._exit(0)
-
-
-def _state_on_disk(path) -> int:
-    s = load_session(path, check_recording=False)
-    return int(s.sorting.unit(s.sorting.unit_ids()[0]).note.split()[1])
-
-
-@pytest.mark.parametrize("stop_at", list(STOPS))
-def test_sigkill_at_each_step_of_a_save_keeps_a_complete_state(made, tmp_path, stop_at):
-    raw, s = made
-    p = tmp_path / "killed.h5"
-    s1 = copy_session(s)
-    UndoStack(s1.sorting).push(SetNote(s1.sorting.unit_ids()[0], "state 0"))
-    save_session(p, s1)
-    report_r, report_w = os.pipe()
-    hold_r, hold_w = os.pipe()
-    pid = os.fork()
-    if pid == 0:
-        os.close(report_r)
-        os.close(hold_w)
-        _save_and_stop(p, s1, 1, stop_at, report_w, hold_r)
-    os.close(report_w)
-    os.close(hold_r)
-    try:
-        stopped_in = int(os.read(report_r, 64).split()[0])   # blocks until the child is at the point
-        os.kill(pid, signal.SIGKILL)
-        os.waitpid(pid, 0)
-    finally:
-        os.close(report_r)
-        os.close(hold_w)
-    assert stopped_in == 2                                    # the second save of the child
-    want = stopped_in - 1 if STOPS[stop_at] == "previous" else stopped_in
-    assert _state_on_disk(p) == want
-    assert bool(stale_temporaries(p)) == (stop_at in ("writing", "written"))
-    verify_session_file(backup_path(p))                       # the backup is always a whole file
-    remove_stale_temporaries(p)
-    assert not stale_temporaries(p) and _state_on_disk(p) == want
 
 
 def test_a_snapshot_saves_the_state_it_was_taken_in(made, tmp_path):

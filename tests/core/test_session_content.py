@@ -1,7 +1,6 @@
 """Sessions whose checksum is valid but whose content is hostile or out of range are refused
 with one SessionError line, never a traceback from deeper code."""
 
-import h5py
 import numpy as np
 import pytest
 
