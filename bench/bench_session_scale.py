@@ -122,7 +122,7 @@ def main() -> None:
         times["autosave after one step"] = (timed(lambda: save_autosave(p, s)), timed(lambda: baseline_save(base, s)))
         steps.push(MergeUnits([ids[1], ids[17]]))
         times["later save"] = (timed(lambda: save_session(p, s)), timed(lambda: baseline_save(base, s)))
-        del s
+        s = steps = None          # free the in-memory session before loading
         back: list = []
         times["load"] = (timed(lambda: back.append(load_session(p))), timed(lambda: baseline_load(base)))
         sizes = {q.name: q.stat().st_size for q in sorted(d.iterdir())}
