@@ -269,7 +269,8 @@ def _read_excluded(g: h5py.Group, n_channels: int) -> dict[int, str]:
             raise TypeError
         out = {int(c): r for c, r in doc.items()}
     except (TypeError, ValueError, AttributeError, RecursionError):
-        raise RigsideError(f"excluded channels must be a JSON object of channel: flag, got {str(text)[:40]!r}") from None
+        raise RigsideError(f"excluded channels must be a JSON object of channel: flag, "
+                           f"got {str(text)[:40]!r}") from None
     if any(not 0 <= c < n_channels for c in out):
         raise RigsideError(f"excluded channels must lie in 0..{n_channels - 1}, got {sorted(out)}")
     return out

@@ -6,7 +6,7 @@ import argparse
 
 from rigside.cli.common import add_param_options, add_recording_options, open_from_args, params_from_args
 from rigside.cli.progressbar import TextProgress
-from rigside.core.audit.report import write_audit_report
+from rigside.core.audit.html_report import write_audit_report
 from rigside.core.audit.run import CAUTION, AuditSettings, FreshUnits, first_pass_units, run_audit
 from rigside.core.audit.table import write_audit_csv
 from rigside.core.errors import ParamError
@@ -52,7 +52,8 @@ def run_audit_command(args: argparse.Namespace) -> int:
     if out.resolve() == table.resolve():
         raise ParamError(f"report and table must be different files, got {str(out)!r} twice")
     if args.session:
-        given = [f"--{name.replace('_', '-')}" for name in PARAM_OPTIONS if getattr(args, name, None) not in (None, False)]
+        given = [f"--{name.replace('_', '-')}" for name in PARAM_OPTIONS
+                 if getattr(args, name, None) not in (None, False)]
         if given:
             raise ParamError(f"detection options must not be given with --session (the session's own "
                              f"parameters are used), got {', '.join(given)}")

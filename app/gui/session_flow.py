@@ -355,5 +355,5 @@ class SessionFlow(QObject):
             bench = self.window.bench
             scope = bench.scope
             bench.set_scope("all")
-            bench.set_threshold(d.threshold_sigma, final=True, unit="sigma")
+            bench.set_threshold(d.threshold_sigma, final=True, scale="sigma")
             bench.set_scope(scope)

@@ -191,7 +191,7 @@ class _GroupSpace:
 def unit_metrics_table(times_s: np.ndarray, units: np.ndarray, duration_s: float,
                        amplitudes_uv: np.ndarray, amplitude_sigma: np.ndarray, channel: np.ndarray,
                        sigma_uv: np.ndarray, threshold_sigma, features: np.ndarray | None,
-                       groups_of_units: np.ndarray | None = None, params: MetricParams | None = None,
+                       event_groups: np.ndarray | None = None, params: MetricParams | None = None,
                        progress: ProgressFn = None, cancel: CancelFn = None,
                        only_units=None) -> dict[str, np.ndarray]:
     """Quality metrics of every unit, one row per unit id (sorted).
@@ -218,7 +218,7 @@ def unit_metrics_table(times_s: np.ndarray, units: np.ndarray, duration_s: float
     features
         Events x features (one feature space per channel group), or None when there are none
         (isolation distance and L-ratio are then NaN with a reason).
-    groups_of_units
+    event_groups
         Channel group of each event (None: all events in one group). A unit is compared with
         all other events of the group holding most of its events; its events in other groups
         take no part in isolation distance and L-ratio.
@@ -238,7 +238,7 @@ def unit_metrics_table(times_s: np.ndarray, units: np.ndarray, duration_s: float
     params = params or MetricParams()
     params.validate()
     inp = _Inputs(times_s, units, duration_s, amplitudes_uv, amplitude_sigma, channel, sigma_uv,
-                  threshold_sigma, features, groups_of_units)
+                  threshold_sigma, features, event_groups)
     ids, rows = _unit_rows(inp, only_units)
     unit_groups = [_mode(inp.groups[r]) for r in rows]
     ordered = sorted(range(len(ids)), key=lambda i: unit_groups[i])

@@ -102,10 +102,11 @@ def compute_features(recording: Recording, events: EventTable, params: Params, p
         own_col = np.searchsorted(channels, events.channel[idx_all[rows]]) if np.all(np.diff(channels) > 0) \
             else np.array([int(np.flatnonzero(channels == c)[0]) for c in events.channel[idx_all[rows]]])
         fit = np.sort(rng.choice(len(rows), size=min(len(rows), sp.pca_fit_events), replace=False))
-        fit_snips = align_subsample(extract_snippets(bp, events.sample[idx_all[rows[fit]]], channels, sp, cancel, pad=1),
-                                    own_col[fit], before)
+        fit_raw = extract_snippets(bp, events.sample[idx_all[rows[fit]]], channels, sp, cancel, pad=1)
+        fit_snips = align_subsample(fit_raw, own_col[fit], before)
         n_comp = min(sp.n_pcs, fit_snips.shape[1] * fit_snips.shape[2], len(fit))
-        pca = PCA(n_components=n_comp, random_state=sp.seed).fit(fit_snips.reshape(len(fit), -1)) if n_comp >= 1 and len(fit) > n_comp else None
+        pca = (PCA(n_components=n_comp, random_state=sp.seed).fit(fit_snips.reshape(len(fit), -1))
+               if n_comp >= 1 and len(fit) > n_comp else None)
         for b0 in range(0, len(rows), BATCH):
             check(cancel)
             part = rows[b0:b0 + BATCH]

@@ -102,8 +102,8 @@ def test_model_emits_only_on_change():
     bench.set_view(0.0, 2.0)
     bench.set_view(0.0, 2.0)
     assert seen == [(0.0, 2.0)]
-    with pytest.raises(ValueError, match="threshold unit must be one of"):
-        bench.set_unit("volts")
+    with pytest.raises(ValueError, match="threshold scale must be one of"):
+        bench.set_scale("volts")
 
 
 def test_noise_only_rates_follow_the_sampled_rice_form():

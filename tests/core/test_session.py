@@ -336,7 +336,8 @@ def test_a_snapshot_saves_the_state_it_was_taken_in(made, tmp_path):
 def test_replay_in_a_fresh_process_reproduces_the_saved_assignments(made, tmp_path):
     raw, s = made
     p = save_session(tmp_path / "a.h5", copy_session(s))
-    code = ("import sys; from rigside.core.units.session import load_session; from rigside.core.units.history import replay_matches; "
+    code = ("import sys; from rigside.core.units.session import load_session; "
+            "from rigside.core.units.history import replay_matches; "
             "s = load_session(sys.argv[1], check_recording=False); print(replay_matches(s.sorting))")
     root = Path(__file__).resolve().parents[2]
     out = subprocess.run([sys.executable, "-c", code, str(p)], cwd=root, capture_output=True, text=True,
