@@ -202,30 +202,35 @@ class EventTable:
             g.create_dataset("time_s", data=self.time_s)
         atomic_write(path, lambda tmp: write_h5(tmp, fill))
 
-    def to_h5_group(self, g: h5py.Group) -> None:
-        """Store columns and context in an open HDF5 group."""
+    def to_h5_group(self, g: h5py.Group, compress: bool = True) -> dict[str, np.ndarray]:
+        """Store columns and context in an open HDF5 group (columns gzip-compressed unless
+        ``compress`` is False); returns the stored arrays by dataset name."""
         for c in COLUMNS:
             g.create_dataset(c, data=getattr(self, c), compression="gzip", compression_opts=1,
-                             shuffle=True) if len(self) else g.create_dataset(c, data=getattr(self, c))
+                             shuffle=True) if len(self) and compress else g.create_dataset(c, data=getattr(self, c))
         g.create_dataset("sigma_uv", data=self.sigma_uv)
         g.attrs.update(rate_hz=self.rate_hz, n_samples=self.n_samples,
                        floor_sigma=self.floor_sigma, polarity=self.polarity,
                        excluded_channels=json.dumps({str(c): r for c, r in self.excluded.items()}))
+        return {c: getattr(self, c) for c in (*COLUMNS, "sigma_uv")}
 
     @classmethod
-    def from_h5_group(cls, g: h5py.Group) -> "EventTable":
-        """Read a table stored by :meth:`to_h5_group`, checking every column and attribute."""
+    def from_h5_group(cls, g: h5py.Group, data: dict[str, np.ndarray] | None = None) -> "EventTable":
+        """Read a table stored by :meth:`to_h5_group`, checking every column and attribute
+        (``data``: its datasets by name, already read, so they are not read again)."""
         missing = [c for c in (*COLUMNS, "sigma_uv") if c not in g]
         if missing:
             raise RigsideError(f"event group must hold datasets {', '.join(COLUMNS)}, sigma_uv; "
                                f"missing {', '.join(missing)}")
-        cols = {c: np.asarray(g[c][()]) for c in COLUMNS}
+        def read(name: str) -> np.ndarray:
+            return np.asarray(data[name] if data is not None else g[name][()])
+        cols = {c: read(c) for c in COLUMNS}
         for c, dt in COLUMNS.items():
             if cols[c].ndim != 1 or not np.can_cast(cols[c].dtype, dt, casting="same_kind"):
                 raise RigsideError(f"event column {c} must be a 1-D array of {np.dtype(dt)}, "
                                    f"got {cols[c].dtype} with shape {cols[c].shape}")
         t = cls(**cols, rate_hz=float(g.attrs["rate_hz"]), n_samples=int(g.attrs["n_samples"]),
-                sigma_uv=np.asarray(g["sigma_uv"][()]), floor_sigma=float(g.attrs["floor_sigma"]),
+                sigma_uv=read("sigma_uv"), floor_sigma=float(g.attrs["floor_sigma"]),
                 polarity=str(g.attrs["polarity"]), excluded=_read_excluded(g, len(g["sigma_uv"])))
         t.check()
         return t

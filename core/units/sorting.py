@@ -31,6 +31,23 @@ AXIS_AMPLITUDE = "event:amplitude_uv"
 FEATURE_AXIS_PREFIX = "feature:"
 
 
+def positions_in(ids: np.ndarray, values: np.ndarray) -> np.ndarray:
+    """Index of each of ``values`` in the sorted, unique ``ids`` (-1 where absent).
+
+    A look-up table when the largest id is not far above the number of values (unit ids are),
+    else a binary search; both give the same positions.
+    """
+    if not len(ids):
+        return np.full(len(values), -1, dtype=np.int64)
+    top = int(ids[-1])
+    if 0 <= int(ids[0]) and top <= 4 * len(values) + (1 << 16):
+        table = np.full(top + 1, -1, dtype=np.int64)
+        table[ids] = np.arange(len(ids))
+        return np.where((values >= 0) & (values <= top), table[np.clip(values, 0, top)], -1)
+    pos = np.minimum(np.searchsorted(ids, values), len(ids) - 1)
+    return np.where(ids[pos] == values, pos, -1)
+
+
 @dataclass(frozen=True)
 class Unit:
     """One unit: its channel group, label and free-text note."""
@@ -222,8 +239,8 @@ class Sorting:
         groups = np.asarray([self._units[int(u)].group for u in ids], dtype=np.int64)
         rows = np.flatnonzero(self._assign != NO_UNIT)
         assigned = self._assign[rows]
-        pos = np.minimum(np.searchsorted(ids, assigned), max(len(ids) - 1, 0))
-        known = ids[pos] == assigned if len(ids) else np.zeros(len(rows), bool)
+        pos = positions_in(ids, assigned)
+        known = pos >= 0
         if not known.all():
             raise CurationError(f"assigned unit ids must be in the unit table, got unknown ids "
                                 f"{np.unique(assigned[~known])[:10].tolist()}")

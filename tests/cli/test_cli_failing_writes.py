@@ -87,10 +87,12 @@ def test_sort_on_a_full_disk_is_an_error_not_a_crash(rec, tmp_path):
     session = tmp_path / "s.h5"
     assert main(["sort", str(rec), "--session", str(session), "--quiet"]) == 0
     before = session.read_bytes()
+    files = sorted(p.name for p in tmp_path.iterdir())
+    assert len(files) == 2 and files[1].startswith("s.h5.static-")    # state part and static part
     proc = run_child(LIMITED, 8000, "sort", rec, "--session", session, "--overwrite", "--quiet")
     assert_one_line(proc, "File too large")
     assert session.read_bytes() == before
-    assert sorted(p.name for p in tmp_path.iterdir()) == ["s.h5"]      # no temporary, checkpoint or backup left
+    assert sorted(p.name for p in tmp_path.iterdir()) == files        # no temporary, checkpoint or backup left
 
 
 @needs_resource
