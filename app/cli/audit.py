@@ -6,13 +6,8 @@ import argparse
 
 from rigside.cli.common import add_param_options, add_recording_options, open_from_args, params_from_args
 from rigside.cli.progressbar import TextProgress
-from rigside.core.audit.html_report import write_audit_report
-from rigside.core.audit.run import CAUTION, AuditSettings, FreshUnits, first_pass_units, run_audit
-from rigside.core.audit.table import write_audit_csv
 from rigside.core.errors import ParamError
 from rigside.core.io.atomic import check_output
-from rigside.core.io.spike_import_files import load_spikes
-from rigside.core.units.session import check_recording_content, load_session
 
 PARAM_OPTIONS = ("params", "band", "filter_order", "common_reference", "threshold", "threshold_uv",
                  "polarity", "dead_time_ms")
@@ -46,6 +41,12 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 
 def run_audit_command(args: argparse.Namespace) -> int:
+    from rigside.core.audit.html_report import write_audit_report
+    from rigside.core.audit.run import CAUTION, AuditSettings, FreshUnits, first_pass_units, run_audit
+    from rigside.core.audit.table import write_audit_csv
+    from rigside.core.io.spike_import_files import load_spikes
+    from rigside.core.units.session import check_recording_content, load_session
+
     protected = [x for x in (args.recording, args.sorted, args.session) if x]
     out = check_output(args.out, *protected, suffixes=(".html", ".htm"))
     table = check_output(args.table, *protected, suffixes=(".csv",))

@@ -8,7 +8,7 @@ from pathlib import Path
 from rigside.cli.common import add_param_options, add_recording_options, params_from_args, recording_options
 from rigside.cli.progressbar import TextProgress
 from rigside.core.errors import ParamError
-from rigside.core.runs.batch import ENGINES, run_batch
+from rigside.core.runs.batch import ENGINES
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -28,6 +28,8 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 
 def run_batch_command(args: argparse.Namespace) -> int:
+    from rigside.core.runs.batch import run_batch
+
     out = Path(args.out_dir)
     if out.exists() and not out.is_dir():
         raise ParamError(f"batch output must be a folder, got the file {str(out)!r}")

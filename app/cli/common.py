@@ -3,9 +3,13 @@
 from __future__ import annotations
 
 import argparse
+from typing import TYPE_CHECKING
 
-from rigside.core.io.recording import DTYPES, Recording, open_recording, side_files
+from rigside.core.io.layout import DTYPES
 from rigside.core.params import POLARITIES, Params
+
+if TYPE_CHECKING:
+    from rigside.core.io.recording import Recording
 
 
 def add_recording_options(p: argparse.ArgumentParser) -> None:
@@ -71,6 +75,7 @@ def params_from_args(args: argparse.Namespace) -> Params:
 
 def open_from_args(args: argparse.Namespace, path: str | None = None) -> Recording:
     """Open the command's recording with the layout options applied."""
+    from rigside.core.io.recording import open_recording
     return open_recording(path or args.recording, **recording_options(args))
 
 
@@ -86,6 +91,7 @@ def recording_options(args: argparse.Namespace) -> dict:
 def command_inputs(args: argparse.Namespace) -> list[str]:
     """Every input file of a command: the paths in its ``inputs`` options, with each
     recording's metadata and ground-truth files."""
+    from rigside.core.io.recording import side_files
     paths: list[str] = []
     for name in getattr(args, "inputs", ()):
         value = getattr(args, name, None)

@@ -8,9 +8,6 @@ from rigside.cli.common import add_param_options, add_recording_options, open_fr
 from rigside.cli.progressbar import TextProgress
 from rigside.core.errors import ParamError
 from rigside.core.io.atomic import check_output
-from rigside.core.runs.detect import detect_to_files
-from rigside.core.signal.noise import exclusion_notes
-from rigside.core.synthetic.synth import write_synth
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -40,6 +37,9 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 
 def run_detect(args: argparse.Namespace) -> int:
+    from rigside.core.runs.detect import detect_to_files
+    from rigside.core.signal.noise import exclusion_notes
+
     out = check_output(args.out, args.recording, suffixes=(".csv", ".h5", ".hdf5"))
     if args.summary:
         check_output(args.summary, args.recording, suffixes=(".json",))
@@ -60,6 +60,8 @@ def run_detect(args: argparse.Namespace) -> int:
 
 
 def run_synth(args: argparse.Namespace) -> int:
+    from rigside.core.synthetic.synth import write_synth
+
     out = check_output(args.out)
     if not args.seconds > 0 or args.seconds > 24 * 3600:
         raise ParamError(f"synthetic length must be between 0 and 86400 s, got {args.seconds:g} s")

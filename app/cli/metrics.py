@@ -5,15 +5,10 @@ from __future__ import annotations
 import argparse
 import sys
 
-import numpy as np
-
 from rigside.cli.progressbar import TextProgress
 from rigside.core.io.atomic import check_output
 from rigside.core.params import censored_note, metric_settings
-from rigside.core.quality.unit_table import CAUTION, sorting_unit_table
-from rigside.core.quality.unit_table_io import DEFAULT_LIMITS, flag_units, undefined_units, write_unit_table_csv
-from rigside.core.signal.pipeline import thresholds_sigma
-from rigside.core.units.session import load_session
+from rigside.core.quality.caution import CAUTION
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -33,6 +28,13 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 
 def run_metrics(args: argparse.Namespace) -> int:
+    import numpy as np
+
+    from rigside.core.quality.unit_table import sorting_unit_table
+    from rigside.core.quality.unit_table_io import DEFAULT_LIMITS, flag_units, undefined_units, write_unit_table_csv
+    from rigside.core.signal.pipeline import thresholds_sigma
+    from rigside.core.units.session import load_session
+
     out = check_output(args.out, args.session, suffixes=(".csv",))
     session = load_session(args.session, check_recording=False)
     params = session.params

@@ -8,11 +8,7 @@ from pathlib import Path
 from rigside.cli.common import add_param_options, add_recording_options, open_from_args, params_from_args
 from rigside.cli.progressbar import TextProgress
 from rigside.core.errors import ParamError
-from rigside.core.exports.units import export_units
 from rigside.core.io.atomic import check_output
-from rigside.core.runs.sort import check_new_session, run_sort
-from rigside.core.signal.noise import exclusion_notes
-from rigside.core.units.session import load_session
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -43,6 +39,9 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 
 def run_sort_command(args: argparse.Namespace) -> int:
+    from rigside.core.runs.sort import check_new_session, run_sort
+    from rigside.core.signal.noise import exclusion_notes
+
     check_output(args.session, args.recording, suffixes=(".h5", ".hdf5"))
     check_new_session(args.session, args.overwrite)
     params = params_from_args(args)
@@ -71,6 +70,9 @@ def run_sort_command(args: argparse.Namespace) -> int:
 
 
 def run_export_command(args: argparse.Namespace) -> int:
+    from rigside.core.exports.units import export_units
+    from rigside.core.units.session import load_session
+
     out = Path(args.out)
     if out.exists() and not out.is_dir():
         raise ParamError(f"export target must be a folder, got the file {str(out)!r}")

@@ -2,14 +2,16 @@
 
 The quick fingerprint (:meth:`rigside.core.io.recording.Recording.fingerprint`: size and three sampled
 blocks) answers at once whether a file is plausibly the same; the content hash (SHA-256 of
-every byte) settles it. Detection feeds a :class:`ContentHasher` as it goes, so the full hash
-costs no extra pass; :func:`content_hash` computes it on its own (before reusing a checkpoint
-or computing from a session's recording).
+every byte) settles it. Detection feeds a :class:`BackgroundHasher` as it goes (its own thread
+follows the pass; SHA-256 releases the GIL on large blocks, so hashing overlaps the workers and
+the loop feeding them), so the full hash costs no extra pass; :func:`content_hash` computes it on
+its own (before reusing a checkpoint or computing from a session's recording).
 """
 
 from __future__ import annotations
 
 import hashlib
+import threading
 from pathlib import Path
 
 from rigside.core.errors import RecordingError
@@ -69,6 +71,73 @@ class ContentHasher:
     def close(self) -> None:
         """Release the file (idempotent)."""
         self._file.close()
+
+
+class BackgroundHasher:
+    """A :class:`ContentHasher` driven by a thread of its own: :meth:`advance` only moves the
+    target and returns at once; :meth:`finish` waits for the rest. An error met by the thread
+    (the file changed size) is raised by the next :meth:`advance` or by :meth:`finish`."""
+
+    def __init__(self, path: str | Path) -> None:
+        self._hasher = ContentHasher(path)
+        self._target = 0.0
+        self._drain = False   # finish: hash up to the target, then end
+        self._abort = False   # close: end now
+        self._error: BaseException | None = None
+        self._wake = threading.Condition()
+        self._thread = threading.Thread(target=self._run, name="rigside-content-hash", daemon=True)
+        self._thread.start()
+
+    def _run(self) -> None:
+        done = 0.0
+        try:
+            while True:
+                with self._wake:
+                    while self._target <= done and not (self._drain or self._abort):
+                        self._wake.wait()
+                    if self._abort or self._target <= done:
+                        return
+                    done = self._target
+                self._hasher.advance(done)
+        except BaseException as exc:  # handed to the caller by advance() or finish()
+            self._error = exc
+
+    def _raise_error(self) -> None:
+        if self._error is not None:
+            raise self._error
+
+    def _signal(self, **flags: bool) -> None:
+        with self._wake:
+            for name, value in flags.items():
+                setattr(self, name, value)
+            self._wake.notify()
+
+    def advance(self, fraction: float) -> None:
+        """Let the thread hash up to ``fraction`` of the file (0..1)."""
+        self._raise_error()
+        self._signal(_target=max(self._target, min(max(fraction, 0.0), 1.0)))
+
+    def finish(self) -> str:
+        """Wait for the whole file and return ``"sha256:<hex>"``; the file is closed."""
+        try:
+            self._signal(_target=1.0, _drain=True)
+            self._thread.join()
+            self._raise_error()
+            return self._hasher.finish()
+        finally:
+            self.close()
+
+    def __enter__(self) -> "BackgroundHasher":
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+    def close(self) -> None:
+        """Stop the thread and release the file (idempotent)."""
+        self._signal(_abort=True)
+        self._thread.join()
+        self._hasher.close()
 
 
 def content_hash(path: str | Path, progress: ProgressFn = None, cancel: CancelFn = None) -> str:

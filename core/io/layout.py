@@ -6,8 +6,6 @@ from __future__ import annotations
 import math
 from dataclasses import dataclass
 
-import numpy as np
-
 from rigside.core.errors import RecordingError
 
 DTYPES = ("int16", "uint16", "int32", "float32")
@@ -53,11 +51,15 @@ class Layout:
 
 def is_integer(v) -> bool:
     """An integer (Python or NumPy), not a bool."""
+    import numpy as np  # here, not at the top: the command line's help reads DTYPES without NumPy
+
     return isinstance(v, (int, np.integer)) and not isinstance(v, (bool, np.bool_))
 
 
 def is_number(v) -> bool:
     """A real number (Python or NumPy), not a bool."""
+    import numpy as np
+
     return is_integer(v) or isinstance(v, (float, np.floating))
 
 

@@ -17,6 +17,7 @@ import numpy as np
 from rigside.core.errors import ParamError, RigsideError
 from rigside.core.params import MetricParams
 from rigside.core.progress import CancelFn, ProgressFn, check, report
+from rigside.core.quality.caution import CAUTION  # noqa: F401 (re-exported)
 from rigside.core.quality.metric_inputs import positive, same_length, spike_times
 from rigside.core.quality.metrics import amplitude_drift, cv_isi, isi_violations, missed_fraction, presence_ratio, snr
 from rigside.core.quality.separation import separation_of_checked
@@ -26,9 +27,6 @@ if TYPE_CHECKING:  # annotations only: importing features would load scikit-lear
     from rigside.core.events import EventTable
     from rigside.core.signal.features import Features
 
-CAUTION = ("Quality numbers are estimates built on assumptions (Gaussian clusters in feature space, "
-           "a refractory period, a stationary recording); calling a unit a \"single unit\" is a "
-           "claim, not a fact.")
 
 COLUMNS: dict[str, str] = {
     "unit": "unit id",

@@ -15,13 +15,12 @@ from pathlib import Path
 
 from rigside.core.errors import ParamError, RigsideError
 from rigside.core.io.atomic import atomic_write, check_not_input, protect_inputs, protected_inputs
-from rigside.core.io.recording import open_recording, side_files
 from rigside.core.params import Params
 from rigside.core.progress import CancelFn, ProgressFn, check, report
-from rigside.core.quality.unit_table_io import safe_text
-from rigside.core.runs.detect import detect_to_files
 
 ENGINES = ("local", "dask")
+"""The engines (the heavy stages are imported inside the functions: naming the engines in a
+command's help loads no numerics)."""
 
 
 @dataclass
@@ -81,6 +80,9 @@ def run_one(path: str, out_dir: str, params: Params, layout: dict, fmt: str = "c
 
 def _detect_one(path: str, stem: str, out_dir: str, params: Params, layout: dict, fmt: str,
                 start: float) -> BatchOutcome:
+    from rigside.core.io.recording import open_recording
+    from rigside.core.runs.detect import detect_to_files
+
     rec = open_recording(path, **layout)
     try:
         done = detect_to_files(rec, params, *outputs_of(stem, out_dir, fmt))
@@ -92,6 +94,8 @@ def _detect_one(path: str, stem: str, out_dir: str, params: Params, layout: dict
 def _protected(paths: list[str], stems: list[str], out_dir: Path, fmt: str) -> tuple[str, ...]:
     """Every input of the batch (recordings, their side files, the command's own inputs),
     after checking that no planned output is one of them."""
+    from rigside.core.io.recording import side_files
+
     inputs = (*protected_inputs(), *map(str, paths), *(str(f) for p in paths for f in side_files(p)))
     with protect_inputs(inputs):
         for stem in stems:
@@ -173,6 +177,8 @@ def _on_dask(paths, stems, out_dir, params, layout, fmt, workers, cancel, inputs
 
 def write_outcomes(path: Path, outcomes: list[BatchOutcome]) -> Path:
     """``recording,status,events,duration_s,seconds,message`` per recording, atomically."""
+    from rigside.core.quality.unit_table_io import safe_text
+
     def write(tmp: Path) -> None:
         with open(tmp, "w", newline="", encoding="utf-8") as fh:
             w = csv.writer(fh)

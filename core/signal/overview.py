@@ -29,7 +29,7 @@ import numba
 import numpy as np
 
 from rigside.core.io.atomic import WriteError, atomic_write, safe_unlink
-from rigside.core.io.content import ContentHasher
+from rigside.core.io.content import BackgroundHasher
 from rigside.core.io.h5image import write_h5
 from rigside.core.io.recording import Recording
 from rigside.core.params import FilterParams
@@ -263,7 +263,7 @@ def build_overview(recording: Recording, filter_params: FilterParams, progress: 
     builder = OverviewBuilder(recording, filter_params)
     n = recording.n_samples
     chunk = max(builder.bin, CHUNK_VALUES // recording.n_channels // builder.bin * builder.bin)
-    with ContentHasher(recording.path) as hasher:
+    with BackgroundHasher(recording.path) as hasher:
         for s in range(0, n, chunk):
             check(cancel)
             e = min(n, s + chunk)

@@ -5,7 +5,7 @@ from __future__ import annotations
 import numpy as np
 
 from rigside.core.events import COLUMNS, EventTable, uv_to_sigma
-from rigside.core.io.content import ContentHasher
+from rigside.core.io.content import BackgroundHasher
 from rigside.core.io.recording import Recording
 from rigside.core.params import Params
 from rigside.core.progress import CancelFn, ProgressFn, report, run_bounded
@@ -91,7 +91,7 @@ def detect(recording: Recording, params: Params, progress: ProgressFn = None, ca
                             dead, d.artefact_sigma, d.artefact_channel_fraction, art_w)
 
     parts: list[BlockEvents] = []
-    hasher = ContentHasher(recording.path)
+    hasher = BackgroundHasher(recording.path)
 
     def collect(part: BlockEvents) -> None:
         parts.append(part)
