@@ -109,7 +109,7 @@ def test_layout_and_recent_files_are_restored(qtbot, tmp_path):
     qtbot.addWidget(first)
     first.show()
     first.docks["features"].setVisible(False)
-    first._remember(str(tmp_path / "a.bin"))
+    first.remember(str(tmp_path / "a.bin"))
     first.close()
     second = MainWindow()
     qtbot.addWidget(second)
