@@ -169,7 +169,7 @@ def main() -> int:
         def naive_frame(i, width=width, start=start, dt=dt, traces=traces):
             t0 = start + i * dt
             a, z = int(t0 * RATE), int((t0 + width) * RATE)
-            y = traces._bandpass.read(a, z, np.arange(CHANNELS))
+            y = traces.source.bandpass.read(a, z, np.arange(CHANNELS))
             n = z - a
             x = np.tile(np.arange(a, z) / RATE, CHANNELS)
             yy = (y + traces.offsets[None, :]).T.ravel()

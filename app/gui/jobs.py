@@ -8,9 +8,11 @@ from __future__ import annotations
 from pathlib import Path
 
 from rigside.core.errors import RigsideError
+from rigside.core.io.atomic import WriteError
 from rigside.core.progress import report
 from rigside.core.signal.features import compute_features
 from rigside.core.signal.noise import estimate_noise
+from rigside.core.signal.overview import OverviewBuilder, build_overview
 from rigside.core.signal.pipeline import detect
 from rigside.core.synthetic.truth import load_truth
 
@@ -20,22 +22,41 @@ LOOKUP_FLOOR_SIGMA = 3.0
 """Events are kept down to this many sigma so a threshold drag down to it is a look-up."""
 
 
-def analyse(recording, params, truth_path: Path | None = None, progress=None, cancel=None):
+def analyse(recording, params, truth_path: Path | None = None, overview: OverviewBuilder | None = None,
+            progress=None, cancel=None):
     """Noise, detection down to the look-up floor, and the ground truth if there is one.
 
+    With ``overview``, the detection pass also builds the trace overview and caches it
+    (``overview.path``; a failed write leaves ``overview.error`` and keeps the detection).
     Returns ``(noise, events, truth)``; ``truth`` is None without a truth file, and the
     :class:`rigside.core.errors.RigsideError` saying why when the file beside the recording is not a
     readable ground truth of ours (the recording is then used without it).
     """
     noise = estimate_noise(recording, params, cancel=cancel,
                            progress=lambda f, m: report(progress, NOISE_SHARE * f, m))
-    events = detect(recording, params, cancel=cancel, noise=noise,
+    events = detect(recording, params, cancel=cancel, noise=noise, overview=overview,
                     progress=lambda f, m: report(progress, NOISE_SHARE + (1 - NOISE_SHARE) * f, m))
+    if overview is not None:
+        save_overview(overview)
     try:
         truth = load_truth(truth_path) if truth_path is not None else None
     except RigsideError as exc:
         truth = exc.with_traceback(None)   # no frames of the job thread kept alive
     return noise, events, truth
+
+
+def save_overview(builder: OverviewBuilder) -> OverviewBuilder:
+    """Cache a complete overview; a failed write is kept in ``builder.error`` for the window to show."""
+    try:
+        builder.save()
+    except WriteError as exc:
+        builder.error = str(exc)
+    return builder
+
+
+def overview(recording, filter_params, progress=None, cancel=None) -> OverviewBuilder:
+    """Build and cache the trace overview on its own (when no detection pass builds it)."""
+    return save_overview(build_overview(recording, filter_params, progress=progress, cancel=cancel))
 
 
 def features(recording, events, params, progress=None, cancel=None):

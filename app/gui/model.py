@@ -60,6 +60,7 @@ class Analysis:
     features: Any = None
     truth: Any = None
     sos: np.ndarray | None = None
+    overview: Any = None        # rigside.core.signal.overview.Overview of the filtered signal, once one exists
     noise_grid: tuple[np.ndarray, np.ndarray] | None = None
 
 
@@ -77,7 +78,7 @@ class Workbench:
     Signals: ``recording_changed()``, ``events_changed()``, ``features_changed()``,
     ``truth_changed()``, ``selection_changed()``, ``thresholds_changed(final: bool)``
     (``final`` is False while a handle is being dragged), ``unit_changed()``,
-    ``view_changed(t0, t1)``, ``show_raw_changed()``.
+    ``view_changed(t0, t1)``, ``show_raw_changed()``, ``overview_changed()``.
     """
 
     def __init__(self) -> None:
@@ -91,6 +92,7 @@ class Workbench:
         self.unit_changed = Signal()
         self.view_changed = Signal()
         self.show_raw_changed = Signal()
+        self.overview_changed = Signal()
         self.shown_channels = np.zeros(0, dtype=np.int64)
         self.shown_label = ""
         self.group = 0
@@ -110,9 +112,11 @@ class Workbench:
     def events(self):
         return self.analysis.events
 
-    def set_recording(self, recording, params, sos: np.ndarray) -> None:
-        """A new recording: forget results, show its first group."""
-        self.analysis = Analysis(recording=recording, params=params, sos=sos)
+    def set_recording(self, recording, params, sos: np.ndarray, overview=None) -> None:
+        """A new recording (with its cached overview, if any): forget results, show its first group."""
+        if self.analysis.overview is not None:
+            self.analysis.overview.close()
+        self.analysis = Analysis(recording=recording, params=params, sos=sos, overview=overview)
         default = params.detect.threshold_sigma
         self.thresholds_sigma = np.full(recording.n_channels, float(default))
         self.view = (0.0, min(1.0, recording.duration_s))
@@ -122,6 +126,17 @@ class Workbench:
         self.channel = int(self.shown_channels[0])
         self.recording_changed.emit()
         self.selection_changed.emit()
+
+    @property
+    def overview(self):
+        return self.analysis.overview
+
+    def set_overview(self, overview) -> None:
+        """Draw zoomed-out traces from this overview (None: from samples only)."""
+        if self.analysis.overview is not None and self.analysis.overview is not overview:
+            self.analysis.overview.close()
+        self.analysis.overview = overview
+        self.overview_changed.emit()
 
     def set_events(self, noise, events) -> None:
         self.analysis.noise = noise

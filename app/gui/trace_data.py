@@ -119,3 +119,9 @@ def visible_envelope(block: Block, start: int, stop: int, step: int) -> tuple[np
     positions = np.repeat(pos, 2)
     positions[1::2] += run / 2
     return positions, values
+
+
+def overview_block(overview, size: int, start: int, stop: int, channels: tuple) -> Block:
+    """The bins of ``size`` samples of a :class:`rigside.core.signal.overview.Overview` covering ``[start, stop)``."""
+    i0, lo, hi = overview.read(size, start, stop, np.asarray(channels, dtype=np.int64))
+    return Block(i0 * size, size, tuple(channels), False, lo, hi)

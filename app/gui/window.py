@@ -25,8 +25,9 @@ from rigside.core.errors import RigsideError
 from rigside.core.params import Params
 from rigside.core.signal.features import Features
 from rigside.core.signal.filtering import design_bandpass
+from rigside.core.signal.overview import load_overview
 from rigside.core.units.session_open import file_kind, stored_noise
-from rigside.gui import jobs, palette
+from rigside.gui import jobs, overview_flow, palette
 from rigside.gui.audit_frame import install_audit
 from rigside.gui.export_menu import install_export
 from rigside.gui.model import Workbench
@@ -80,8 +81,8 @@ class MainWindow(QMainWindow):
         self.last_error: tuple[str, str] | None = None
         self.messages: list[QMessageBox] = []
         self.analysis_outcome = "none"
-        self.session_opener: Callable[..., bool] | None = None
-        """``opener(session_path, recording=None) -> bool``, set by the unit work (install_units)."""
+        self._overview_builder = None   # the overview the running detection pass builds, if any
+        self.session_opener: Callable[..., bool] | None = None   # (path, recording=None), by install_units
         self.setAcceptDrops(True)
 
         self.traces = TracePanel(self.bench, self.runner)
@@ -283,6 +284,7 @@ class MainWindow(QMainWindow):
                 return False
             params = session.params if session is not None else Params()
             sos = design_bandpass(params.filter, rec.rate_hz)
+            overview = load_overview(rec, params.filter)
         except (RigsideError, OSError) as exc:
             self.show_error("Cannot open the recording", str(exc))
             return False
@@ -291,7 +293,7 @@ class MainWindow(QMainWindow):
         if old is not None:
             old.close()
         try:
-            self.bench.set_recording(rec, params, sos)
+            self.bench.set_recording(rec, params, sos, overview)
         except RigsideError as exc:  # e.g. samples that cannot be read where the view starts
             self.setWindowTitle(f"rigside — {Path(path).name} — cannot be shown")
             self.traces.clear_traces()
@@ -336,8 +338,9 @@ class MainWindow(QMainWindow):
         lowest = float(finite.min()) if len(finite) else params.detect.threshold_sigma
         params.detect.floor_sigma = min(jobs.LOOKUP_FLOOR_SIGMA, lowest)
         self.analysis_outcome = "running"
+        self._overview_builder = overview_flow.builder_for(b)
         self.runner.submit("analysis", ANALYSIS_LABEL, jobs.analyse, rec, params, rec.truth_path(),
-                           on_done=self._on_analysis)
+                           self._overview_builder, on_done=self._on_analysis)
 
     def _on_finished(self, label: str, outcome: str) -> None:
         if (label == ANALYSIS_LABEL and outcome != "done" and self.analysis_outcome == "running"
@@ -370,6 +373,7 @@ class MainWindow(QMainWindow):
                                      + (f"; ground truth ignored: {truth}" if ignored else ""), 15000)
         if ignored:
             log.warning("ground truth ignored: %s", str(truth))
+        overview_flow.after_detection(self, self._overview_builder)
         self.runner.submit("features", "Computing features", jobs.features, b.recording, events,
                            b.analysis.params, on_done=b.set_features)
 

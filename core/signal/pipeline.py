@@ -15,6 +15,7 @@ from rigside.core.progress import CancelFn, ProgressFn, check, report
 from rigside.core.signal.detection import BlockEvents, detect_block
 from rigside.core.signal.filtering import BandPass
 from rigside.core.signal.noise import NoiseEstimate, estimate_noise
+from rigside.core.signal.overview import OverviewBuilder
 
 NOISE_SHARE = 0.1  # fraction of the progress bar given to the noise estimate
 
@@ -43,7 +44,7 @@ def lookup_floor(params: Params, sigma_uv: np.ndarray) -> float:
 
 
 def detect(recording: Recording, params: Params, progress: ProgressFn = None, cancel: CancelFn = None,
-           noise: NoiseEstimate | None = None) -> EventTable:
+           noise: NoiseEstimate | None = None, overview: OverviewBuilder | None = None) -> EventTable:
     """Measure noise (unless given) and detect events over the whole recording.
 
     Parameters
@@ -56,6 +57,8 @@ def detect(recording: Recording, params: Params, progress: ProgressFn = None, ca
         Progress callback and cancel check.
     noise
         A noise estimate to reuse; measured when not given.
+    overview
+        When given, every filtered chunk is also handed to it (see :mod:`core.overview`).
 
     Returns
     -------
@@ -88,6 +91,8 @@ def detect(recording: Recording, params: Params, progress: ProgressFn = None, ca
     def work(start: int, stop: int) -> BlockEvents:
         lo, hi = max(0, start - ctx), min(recording.n_samples, stop + ctx)
         y = bp.read(lo, hi)
+        if overview is not None:
+            overview.add(y, lo, start, stop)
         return detect_block(y, lo, start - lo, stop - lo, live_sigma, recording.groups, d.polarity, floor,
                             dead, d.artefact_sigma, d.artefact_channel_fraction, art_w)
 

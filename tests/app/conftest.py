@@ -22,8 +22,9 @@ _CACHE: dict = {}
 
 
 @pytest.fixture(autouse=True)
-def temporary_settings(tmp_path, qapp):
-    """Every test keeps window settings in its own folder, never the user's."""
+def temporary_settings(tmp_path, qapp, monkeypatch):
+    """Every test keeps window settings and cached overviews in its own folder, never the user's."""
+    monkeypatch.setenv("RIGSIDE_CACHE_DIR", str(tmp_path / "cache"))
     QSettings.setDefaultFormat(QSettings.Format.IniFormat)
     QSettings.setPath(QSettings.Format.IniFormat, QSettings.Scope.UserScope, str(tmp_path / "settings"))
     yield

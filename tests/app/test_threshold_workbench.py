@@ -201,7 +201,7 @@ def test_scrolling_reads_only_around_the_visible_window(demo_window, monkeypatch
     last = t0 + width
     assert win.wait_idle(30)
     assert spans, "scrolling must read new samples"
-    margin = win.traces._bandpass.margin
+    margin = win.traces.source.bandpass.margin
     longest = max(b - a for a, b in spans)
     # the visible window plus one window on each side, the filter's margins and run alignment
     assert longest <= 3 * width * rec.rate_hz + 2 * margin + 64

@@ -37,6 +37,7 @@ def test_local_batch_writes_every_output_and_reports_failures(recordings, capsys
 
 
 def test_dask_engine_gives_the_same_events_as_local(recordings):
+    pytest.importorskip("dask")   # the dask extra
     local, dask_out = recordings / "local", recordings / "dask"
     files = [str(recordings / "r0.bin"), str(recordings / "r1.bin")]
     assert main(["batch", *files, "--out-dir", str(local), "--format", "h5", "--quiet"]) == 0

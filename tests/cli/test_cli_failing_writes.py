@@ -22,7 +22,7 @@ LIMITED = """
 import resource, sys
 limit = int(sys.argv[1])
 resource.setrlimit(resource.RLIMIT_FSIZE, (limit, limit))
-from app.cli import main
+from rigside.cli.main import main
 sys.exit(main(sys.argv[2:]))
 """
 CHANGING = """
@@ -41,7 +41,7 @@ def changed_after_first_block(*args, **kwargs):
                 fh.write(bytes(16))
     return original(*args, **kwargs)
 pipeline.detect_block = changed_after_first_block
-from app.cli import main
+from rigside.cli.main import main
 sys.exit(main(["detect", path] + sys.argv[3:]))
 """
 

@@ -3,6 +3,7 @@
 
 import h5py
 import numpy as np
+import pytest
 
 from rigside.core.io.spike_import_files import load_spikes
 
@@ -33,7 +34,9 @@ def test_listed_units_without_spikes_are_named(tmp_path):
 def test_nwb_units_without_spikes_are_named(tmp_path):
     from datetime import datetime, timezone
 
-    from pynwb import NWBHDF5IO, NWBFile
+    pynwb = pytest.importorskip("pynwb")   # the nwb extra
+
+    NWBHDF5IO, NWBFile = pynwb.NWBHDF5IO, pynwb.NWBFile
     nwb = NWBFile(session_description="earlier sorting", identifier="t2",
                   session_start_time=datetime(2020, 1, 1, tzinfo=timezone.utc))
     nwb.add_unit(spike_times=[0.1, 0.2], id=5)

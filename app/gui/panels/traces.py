@@ -14,11 +14,11 @@ from rigside.gui.channel_text import channel_list, parse_channels
 from rigside.gui.panels.base import Panel
 from rigside.gui.panels.event_marks import EventMarks
 from rigside.gui.panels.spike_rows import SpikeRows
-from rigside.gui.trace_data import Block, load_block, step_for, visible_envelope
+from rigside.gui.panels.trace_source import TraceSource
+from rigside.gui.panels.trace_threshold import ThresholdHandle
+from rigside.gui.trace_data import Block, step_for, visible_envelope
 
-SYNC_LIMIT = 3_000_000   # samples x channels loaded on the GUI thread; more goes to a job
 LANE_SIGMAS = 20.0        # lane height in noise sigmas of the filtered signal
-SPAN_LIMIT = 60_000_000  # samples x channels the view may show at once
 AXIS_WIDTH = 56            # left axis (channel names) width in pixels, wider for long row labels
 NICE = np.array([1, 2, 5, 10, 20, 50, 100, 200, 500, 1000, 2000, 5000, 10000], dtype=float)
 
@@ -33,19 +33,17 @@ class TracePanel(Panel):
         self.spacing = 100.0
         self.offsets = np.zeros(0)
         self.lane = np.zeros(0, dtype=np.int64)
-        self.block: Block | None = None
-        self._pending: tuple | None = None
-        self._bandpass: BandPass | None = None
-        self._placing = False
+        self.source = TraceSource(bench, runner, self.refresh)
         self._setting_range = False
         self._build()
         bench.recording_changed.connect(self._on_recording)
         bench.selection_changed.connect(self._on_selection)
         bench.events_changed.connect(self._on_events)
         bench.thresholds_changed.connect(self._on_thresholds)
-        bench.unit_changed.connect(self._update_handle)
+        bench.unit_changed.connect(self.threshold.update_handle)
         bench.view_changed.connect(self._on_view)
         bench.show_raw_changed.connect(self._on_raw)
+        bench.overview_changed.connect(self._on_overview)
 
     # ---- construction -----------------------------------------------------------------
     def _build(self) -> None:
@@ -79,24 +77,17 @@ class TracePanel(Panel):
         self.bands: list[QGraphicsRectItem] = []
         self.curve = pg.PlotCurveItem(pen=palette.pen(palette.TRACE), skipFiniteCheck=True)
         self.selected_curve = pg.PlotCurveItem(pen=palette.pen(palette.TRACE_SELECTED), skipFiniteCheck=True)
-        self.threshold_lines = pg.PlotCurveItem(pen=palette.pen(palette.THRESHOLD, 1, dash=True))
         self.marks = EventMarks()
         self.rows = SpikeRows(pi)
-        self.handle = pg.InfiniteLine(angle=0, movable=True, pen=palette.pen(palette.THRESHOLD, 3),
-                                      hoverPen=palette.pen(palette.VERMILLION, 4), label="",
-                                      labelOpts={"position": 0.04, "color": palette.FOREGROUND,
-                                                 "fill": (255, 255, 255, 220), "anchors": [(0, 1), (0, 1)]})
-        self.handle.setToolTip("Drag to set the detection threshold")
         self.scale_bar = pg.PlotCurveItem(pen=palette.pen(palette.BLACK, 3))
         self.scale_text = pg.TextItem("", color=palette.FOREGROUND, anchor=(1, 0.5), fill=(255, 255, 255, 220))
-        for item in (self.curve, self.selected_curve, self.threshold_lines,
-                     *self.marks.items(), self.scale_bar):
+        pi.addItem(self.curve)
+        pi.addItem(self.selected_curve)
+        self.threshold = ThresholdHandle(self, pi)
+        self.handle, self.threshold_lines = self.threshold.handle, self.threshold.lines
+        for item in (*self.marks.items(), self.scale_bar):
             pi.addItem(item)
         pi.addItem(self.scale_text, ignoreBounds=True)
-        pi.addItem(self.handle, ignoreBounds=True)
-        self.handle.setVisible(False)
-        self.handle.sigPositionChanged.connect(self._on_handle_moved)
-        self.handle.sigPositionChangeFinished.connect(self._on_handle_released)
         self.vb.sigXRangeChanged.connect(self._on_range_changed)
         self.plot.scene().sigMouseClicked.connect(self._on_click)
         self._resize_timer = QTimer(self, singleShot=True, interval=50, timeout=self._on_resized)
@@ -110,8 +101,7 @@ class TracePanel(Panel):
     # ---- model events -----------------------------------------------------------------
     def _on_recording(self) -> None:
         rec = self.bench.recording
-        self._bandpass = BandPass(rec, self.bench.analysis.params.filter)
-        self.block = None
+        self.source.reset(BandPass(rec, self.bench.analysis.params.filter))
         self.show_combo.clear()
         for i, name in enumerate(rec.group_names):
             chans = rec.groups[i]
@@ -150,21 +140,26 @@ class TracePanel(Panel):
             self.show_combo.setCurrentIndex(choices.index(("group", b.group)))
         elif len(shown) == rec.n_channels:
             self.show_combo.setCurrentIndex(choices.index(("all", None)))
-        max_span = max(0.01, min(rec.duration_s, SPAN_LIMIT / (rec.rate_hz * len(shown))))
-        self.vb.setLimits(maxXRange=max_span)
         self._layout_lanes()
+        self._limit_span()
+        self._on_view(*b.view)
+
+    def _limit_span(self) -> None:
+        """The widest view: the whole file when an overview exists, else what samples allow."""
+        b = self.bench
+        max_span = self.source.max_span_s()
+        self.vb.setLimits(maxXRange=max_span)
         t0, t1 = b.view
         if t1 - t0 > max_span:
             b.set_view(t0, t0 + max_span)
-        self._on_view(*b.view)
 
     def _on_events(self) -> None:
         self._layout_lanes()
         self.refresh()
 
     def _on_thresholds(self, final: bool) -> None:
-        self._draw_threshold_lines()
-        self._update_handle()
+        self.threshold.draw_lines()
+        self.threshold.update_handle()
         self._draw_markers()
 
     def _on_view(self, t0: float, t1: float) -> None:
@@ -176,9 +171,16 @@ class TracePanel(Panel):
         self.refresh()
 
     def _on_raw(self) -> None:
-        self.block = None
+        self.source.reset()
         self._layout_lanes()
+        self._limit_span()
         self.refresh()
+
+    def _on_overview(self) -> None:
+        if self.bench.recording is not None and len(self.offsets):
+            self.source.reset()
+            self._limit_span()
+            self.refresh()
 
     def _on_range_changed(self, _vb, rng) -> None:
         if not self._setting_range and self.bench.recording is not None:
@@ -207,8 +209,8 @@ class TracePanel(Panel):
         axis.setTicks([names + self.rows.ticks(), []])
         axis.setWidth(max(AXIS_WIDTH, self.rows.label_width(axis.style["tickFont"] or axis.font()) + 12))
         self._draw_bands()
-        self._draw_threshold_lines()
-        self._update_handle()
+        self.threshold.draw_lines()
+        self.threshold.update_handle()
 
     def _raw_spread(self) -> float:
         """Lane height for the raw signal: median over channels of the 0.5-99.5 % range of
@@ -251,72 +253,14 @@ class TracePanel(Panel):
             self._layout_lanes()
             self.refresh()
 
-    def _level(self, channel_lane: np.ndarray, thr_uv: np.ndarray, sign: float) -> np.ndarray:
-        return self.offsets[channel_lane] + sign * thr_uv
-
-    def _signs(self) -> list[float]:
-        ev = self.bench.events
-        pol = ev.polarity if ev is not None else self.bench.analysis.params.detect.polarity
-        return {"negative": [-1.0], "positive": [1.0]}.get(pol, [-1.0, 1.0])
-
-    def _draw_threshold_lines(self) -> None:
-        b = self.bench
-        sigma = b.sigma_uv
-        if sigma is None or b.recording is None or b.show_raw:
-            self.threshold_lines.setData([], [])
-            return
-        shown = b.shown_channels
-        thr_uv = b.thresholds_sigma[shown] * sigma[shown]
-        lanes = np.arange(len(shown))
-        ys = np.concatenate([self._level(lanes, thr_uv, s) for s in self._signs()])
-        ys = np.where(np.isfinite(ys), ys, np.nan)
-        y = np.repeat(ys, 2)
-        # only across the visible window: dashing a line far longer than the view is slow
-        x = np.tile(list(b.view), len(ys))
-        keep = np.isfinite(y)
-        self.threshold_lines.setData(x[keep], y[keep], connect="pairs")
-
-    def _update_handle(self) -> None:
-        b = self.bench
-        sigma = b.sigma_uv
-        if (sigma is None or b.recording is None or b.show_raw or self.lane[b.channel] < 0
-                or sigma[b.channel] <= 0):
-            self.handle.setVisible(False)
-            return
-        lane = int(self.lane[b.channel])
-        s = float(sigma[b.channel])
-        k = float(b.thresholds_sigma[b.channel])
-        sign = self._signs()[0]
-        self._placing = True
-        try:
-            off = self.offsets[lane]
-            lo, hi = sorted((off + sign * 0.5 * s, off + sign * min(60 * s, 2.0 * self.spacing)))
-            self.handle.setBounds((lo, hi))
-            if not self.handle.moving:
-                self.handle.setValue(off + sign * k * s)
-        finally:
-            self._placing = False
-        self.handle.setVisible(True)
-        self.handle.label.setFormat(f"ch {b.channel}: {k:.2f} σ = {k * s:.1f} µV  (drag)")
+    @property
+    def block(self) -> Block | None:
+        """What the traces are drawn from now (samples or overview bins)."""
+        return self.source.block
 
     def handle_y(self, k_sigma: float) -> float:
         """Where the handle sits for ``k_sigma`` on the selected channel (for tests and keys)."""
-        b = self.bench
-        return float(self.offsets[self.lane[b.channel]] + self._signs()[0] * k_sigma * b.sigma_uv[b.channel])
-
-    def _handle_value(self) -> float:
-        b = self.bench
-        off = self.offsets[self.lane[b.channel]]
-        uv = abs(self.handle.value() - off)
-        return uv / float(b.sigma_uv[b.channel]) if b.unit == "sigma" else uv
-
-    def _on_handle_moved(self, _line=None) -> None:
-        if not self._placing and self.bench.events is not None:
-            self.bench.set_threshold(self._handle_value(), final=False)
-
-    def _on_handle_released(self, _line=None) -> None:
-        if not self._placing and self.bench.events is not None:
-            self.bench.set_threshold(self._handle_value(), final=True)
+        return self.threshold.handle_y(k_sigma)
 
     def _on_click(self, event) -> None:
         if self.bench.recording is None or not len(self.offsets):
@@ -338,34 +282,21 @@ class TracePanel(Panel):
         return a, int(np.clip(np.ceil(t1 * rec.rate_hz), a + 1, rec.n_samples))
 
     def refresh(self) -> None:
-        """Draw the visible traces, loading the samples around them if needed.
+        """Draw the visible traces, fetching what they are drawn from if needed (see :class:`TraceSource`).
 
-        Small slices load at once; larger ones load in a background job while the view
-        draws what it has. Near the edge of what is loaded, the next stretch is fetched
-        ahead in the background.
+        Zoomed out, the filtered traces come from the overview at once; short spans read
+        samples (small slices at once, larger ones in a background job while the view draws
+        what it has, with the next stretch fetched ahead near the edge).
         """
         b = self.bench
         rec = b.recording
-        if rec is None or not len(self.offsets):
+        if rec is None or not len(self.offsets) or self.source.unshowable:
             return
         a, z = self.visible_samples()
         step = self._step(a, z)
-        chans = tuple(int(c) for c in b.shown_channels)
-        span = z - a
-        lo, hi = max(0, a - span), min(rec.n_samples, z + span)
-        blk = self.block
-        usable = (blk is not None and blk.covers(a, z, chans, b.show_raw, step, rec.n_samples)
-                  and blk.step * 16 >= step)
-        if not usable:
-            if (hi - lo) * len(chans) <= SYNC_LIMIT:
-                self.block = load_block(rec, self._bandpass, lo, hi, step, np.array(chans), b.show_raw)
-            elif not self._pending_covers(a, z, chans, step):
-                self._request(lo, hi, step, chans)
-        elif ((a - blk.start < span // 2 and blk.start > 0) or (blk.stop - z < span // 2 and blk.stop < rec.n_samples)) \
-                and not self._pending_covers(a, z, chans, step):
-            self._request(lo, hi, blk.step, chans)
+        self.source.prepare(a, z, step)
         self._draw_traces(a, z, step)
-        self._draw_threshold_lines()
+        self.threshold.draw_lines()
         self._draw_markers()
         self.rows.draw(*b.view)
         self._draw_scale_bar()
@@ -375,24 +306,8 @@ class TracePanel(Panel):
     def _step(self, a: int, z: int) -> int:
         return step_for(z - a, max(200, int(self.vb.width())))
 
-    def _pending_covers(self, a: int, z: int, chans: tuple, step: int) -> bool:
-        p = self._pending
-        return (p is not None and self.runner.busy("traces") and p[3] == chans and p[4] == self.bench.show_raw
-                and p[2] <= step and p[0] <= a and p[1] >= z)
-
-    def _request(self, lo: int, hi: int, step: int, chans: tuple) -> None:
-        raw = self.bench.show_raw
-        self._pending = (lo, hi, step, chans, raw)
-        self.runner.submit("traces", "Reading traces", load_block, self.bench.recording, self._bandpass, lo, hi,
-                           step, np.array(chans), raw, on_done=self._on_block)
-
-    def _on_block(self, block: Block) -> None:
-        self._pending = None
-        self.block = block
-        self.refresh()
-
     def _draw_traces(self, a: int, z: int, step: int) -> None:
-        blk = self.block
+        blk = self.source.block
         b = self.bench
         if blk is None or blk.channels != tuple(int(c) for c in b.shown_channels) or blk.raw != b.show_raw:
             self.curve.setData([], [])
@@ -414,8 +329,9 @@ class TracePanel(Panel):
             self.selected_curve.setData(t, shown[:, lane])
 
     def clear_traces(self) -> None:
-        """Draw no samples (the recording cannot be shown)."""
-        self.block = None
+        """Draw no samples (the recording cannot be shown) until another recording opens."""
+        self.source.reset()
+        self.source.unshowable = True
         self.curve.setData([], [])
         self.selected_curve.setData([], [])
 
