@@ -42,6 +42,7 @@ def install_units(window) -> SortingController:
 
     ctl = SortingController(window)
     ctl.files = SessionFlow(ctl, Path(settings().fileName()).parent / "autosave")
+    window.session_opener = ctl.files.open
     window.units = ctl
     bench, runner = window.bench, window.runner
     right, bottom = Qt.DockWidgetArea.RightDockWidgetArea, Qt.DockWidgetArea.BottomDockWidgetArea

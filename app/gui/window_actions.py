@@ -40,7 +40,7 @@ def build_actions(win) -> dict[str, QAction]:
 
     bar = win.menuBar()
     file_menu = bar.addMenu("&File")
-    act("open", "&Open recording…", win.choose_file, [QKeySequence.StandardKey.Open], menu=file_menu)
+    act("open", "&Open a recording or session…", win.choose_file, [QKeySequence.StandardKey.Open], menu=file_menu)
     act("open_demo", "Open the &demo recording", win.open_demo, ["Ctrl+Shift+D"], menu=file_menu)
     win.recent_menu = file_menu.addMenu("Open &recent")
     win.rebuild_recent_menu()
