@@ -82,7 +82,8 @@ def main() -> None:
         raw_s, raw_mb, out = measured([sys.executable, "-c", RAW_OPEN, str(rec)])
         r = json.loads(out.strip().splitlines()[-1])
         print(f"raw recording in the window: first paint {r['first_paint_s']:.2f} s (target 2 s), complete "
-              f"{r['complete_s']:.1f} s (target: sort time {sort_s:.1f} s), process {raw_s:.1f} s, peak {raw_mb:.0f} MB")
+              f"{r['complete_s']:.1f} s (target: sort time {sort_s:.1f} s), process {raw_s:.1f} s, "
+              f"peak {raw_mb:.0f} MB")
 
 
 if __name__ == "__main__":
