@@ -92,7 +92,9 @@ def test_one_chunk_equals_per_event_features_exactly(rec_events, monkeypatch, fi
     assert len(seen) == 2 and len(ev) > 250
     for got, want in zip(seen, ref_fit):
         np.testing.assert_array_equal(got, want)  # same PCA input, bit for bit
-    np.testing.assert_array_equal(f.values, ref)
+    # the same PCA on the same input; BLAS may sum in another order on one thread than on several
+    # (seen with the floor versions), so the scores agree to float32 rounding
+    np.testing.assert_allclose(f.values, ref, rtol=1e-5, atol=1e-5 * np.abs(ref).max())
 
 
 def test_many_chunks_equal_per_event_features(rec_events, monkeypatch):
