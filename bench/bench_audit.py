@@ -28,11 +28,11 @@ from scipy import signal
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT))
 
-from rigside.core.audit.report import write_audit_report  # noqa: E402
+from rigside.core.audit.html_report import write_audit_report  # noqa: E402
 from rigside.core.audit.run import CAUTION, FreshUnits, run_audit  # noqa: E402
 from rigside.core.audit.table import write_audit_csv  # noqa: E402
 from rigside.core.io.recording import open_recording  # noqa: E402
-from rigside.core.io.spike_import import finish  # noqa: E402
+from rigside.core.io.spike_import import checked_trains  # noqa: E402
 from rigside.core.params import Params  # noqa: E402
 from rigside.core.runs.sort import run_sort  # noqa: E402
 from rigside.core.signal.filtering import design_bandpass  # noqa: E402
@@ -69,7 +69,7 @@ def imported_units(rec, truth, seed: int = 0):
         t = np.sort(np.concatenate([t, rng.uniform(0, rec.duration_s, PER_UNIT - len(t))]))
         times.append(t)
         units.append(np.full(len(t), k))
-    return finish(np.concatenate(times), np.concatenate(units), "bench")
+    return checked_trains(np.concatenate(times), np.concatenate(units), "bench")
 
 
 def baseline(rec, spikes, fresh: FreshUnits) -> float:
@@ -101,7 +101,7 @@ def main() -> None:
     rec, session, truth = prepare(args.workdir, args.seconds, args.channels)
     fresh = FreshUnits.from_session(session)
     spikes = imported_units(rec, truth)
-    run_audit(rec, finish(spikes.times_s[:2000], spikes.units[:2000], "warm-up"), fresh)   # compile once
+    run_audit(rec, checked_trains(spikes.times_s[:2000], spikes.units[:2000], "warm-up"), fresh)   # compile once
     t0 = time.perf_counter()
     result = run_audit(rec, spikes, fresh)
     ours = time.perf_counter() - t0

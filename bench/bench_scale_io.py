@@ -12,7 +12,7 @@ in the same run on the same data, written the obvious way:
   f-string per row (unit_times.csv); HDF5 of the same event table for scale;
 - CSV import: ``numpy.loadtxt`` of the whole file. Each import runs in a fresh subprocess
   that reports its peak resident memory (VmHWM of /proc/self/status: Linux) and its peak after
-  the imports, before reading; both versions end with the same checks (:func:`core.spike_import.finish`).
+  the imports, before reading; both versions end with the same checks (:func:`core.spike_import.checked_trains`).
 
 Issue 12 targets: matching of 200 units / 3x10^6 spikes under 3 s; import of 10^7 rows under
 1 GB peak. ``--full`` sets the issue's sizes (3x10^6 spikes, 10^6 written rows, 10^7 imported rows).
@@ -132,7 +132,7 @@ def bench_writing(args, work: Path) -> None:
 CHILD = """
 import json, sys, time
 import numpy as np
-from rigside.core.io.spike_import import finish
+from rigside.core.io.spike_import import checked_trains
 from rigside.core.io.spike_import_files import load_spikes
 kind, path = sys.argv[1], sys.argv[2]
 def peak_mb():   # high-water mark of this process since exec (VmHWM), in MB
@@ -144,7 +144,7 @@ if kind == "ours":
     n = len(load_spikes(path))
 else:
     data = np.loadtxt(path, delimiter=",", skiprows=1, dtype=[("unit", "i8"), ("time_s", "f8")])
-    n = len(finish(data["time_s"], data["unit"], path))
+    n = len(checked_trains(data["time_s"], data["unit"], path))
 print(json.dumps({"seconds": time.perf_counter() - t0, "peak_mb": peak_mb(), "start_mb": start, "rows": n}))
 """
 

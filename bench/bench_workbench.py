@@ -99,18 +99,29 @@ def main() -> int:
     ap.add_argument("--events", type=int, default=1_000_000)
     args = ap.parse_args()
     tmp = tempfile.TemporaryDirectory()
-    folder = Path(tmp.name)
+    app, win, rec, noise = open_window(Path(tmp.name), args.seconds, args.events)
+    bench_threshold_change(app, win, rec, noise)
+    bench_scrolling(win)
+    bench_feature_view(win, rec, noise, args.events)
+    win.close()
+    rec.close()
+    tmp.cleanup()
+    return 0
+
+
+def open_window(folder: Path, seconds: float, n_events: int):
+    """A window showing every channel of a synthetic recording with ``n_events`` in its event table."""
     QSettings.setDefaultFormat(QSettings.Format.IniFormat)
     QSettings.setPath(QSettings.Format.IniFormat, QSettings.Scope.UserScope, str(folder / "settings"))
     app = QApplication.instance() or QApplication([])
     from rigside.gui.window import MainWindow
 
-    path = write_recording(folder, args.seconds)
+    path = write_recording(folder, seconds)
     rec = open_recording(path)
     params = Params()
     noise = estimate_noise(rec, params)
-    events = synthetic_events(rec, noise.sigma_uv, args.events)
-    print(f"recording: {args.seconds:g} s x {CHANNELS} channels at {RATE:g} Hz; "
+    events = synthetic_events(rec, noise.sigma_uv, n_events)
+    print(f"recording: {seconds:g} s x {CHANNELS} channels at {RATE:g} Hz; "
           f"{len(events):,} events in the table; load average {os.getloadavg()[0]:.1f} on "
           f"{os.cpu_count()} cores")
 
@@ -126,11 +137,14 @@ def main() -> int:
     bench.set_view(10.0, 11.0)
     app.processEvents()
     win.runner.shutdown()
+    return app, win, rec, noise
 
-    # ---- one threshold change --------------------------------------------------------
+
+def bench_threshold_change(app, win, rec, noise) -> None:
+    """Preview while dragging, with and without the repaint, and the commit, against re-detection."""
+    bench = win.bench
     ks = 3.5 + 3.0 * (0.5 + 0.5 * np.sin(np.arange(200) * 0.1))
     preview = timed(lambda i: bench.set_threshold(float(ks[i]), final=False), len(ks))
-    trace_view = win.traces.plot.viewport()
     app.processEvents()
     preview_paint = timed(lambda i: (bench.set_threshold(float(ks[i] + 0.05), final=False),
                                      app.processEvents()), 60)
@@ -150,7 +164,11 @@ def main() -> int:
           f"repaint) {np.median(naive) / full:5.0f} x   (target one 60 Hz frame, 16 ms: "
           f"{'met' if full < 16 else 'NOT met'} with the repaint)")
 
-    # ---- scrolling --------------------------------------------------------------------
+
+def bench_scrolling(win) -> None:
+    """Frames of the trace view scrolled at two widths, against drawing every sample."""
+    bench = win.bench
+    trace_view = win.traces.plot.viewport()
     print("\nscrolling the 32-channel trace view (set range, read, filter, reduce, draw, paint)")
     for width in (1.0, 20.0):
         start = 5.0
@@ -185,9 +203,12 @@ def main() -> int:
               f"{summary(naive_frames)}; ratio {np.median(naive_frames) / np.median(frames):5.1f} x")
         bench.set_view(start, start + width)
 
-    # ---- features of a million events in one group ----------------------------------------
+
+def bench_feature_view(win, rec, noise, n_events: int) -> None:
+    """Redraw of the feature view with every event in one group, against plain points."""
+    bench = win.bench
     print("\nfeature view, 1e6 events in the selected group (density image), against plain points")
-    one = synthetic_events(rec, noise.sigma_uv, args.events)
+    one = synthetic_events(rec, noise.sigma_uv, n_events)
     one.channel[:] = one.channel % 4
     one.group[:] = 0
     rng = np.random.default_rng(2)
@@ -212,10 +233,6 @@ def main() -> int:
     panel.scatter.setData([], [])
     print(f"  density redraw           {summary(redraw)}   ({panel.n_shown:,} events, mode {panel.mode})")
     print(f"  plain scatter of all     {summary(plain)}   ratio {np.median(plain) / np.median(redraw):5.1f} x")
-    win.close()
-    rec.close()
-    tmp.cleanup()
-    return 0
 
 
 if __name__ == "__main__":

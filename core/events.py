@@ -29,8 +29,32 @@ COLUMNS = {
     "amplitude_sigma": np.float32,
     "artefact": np.bool_,
 }
+"""Stored columns of an event table and their dtypes, in file order: the one list every reader,
+writer and builder of event tables follows."""
+CSV_COLUMNS = ("sample", "time_s", *(c for c in COLUMNS if c != "sample"))
+"""Columns of the event CSV: the stored ones with ``time_s`` after ``sample``."""
 MAX_SAMPLES = 2**48
 """Longest recording an event table may describe (about 300 years at 30 kHz)."""
+
+
+def uv_to_sigma(threshold_uv, sigma_uv) -> np.ndarray:
+    """Threshold in sigma multiples from microvolts, per channel.
+
+    Parameters
+    ----------
+    threshold_uv
+        Scalar or one value per channel (uV).
+    sigma_uv
+        Noise level of each channel (uV); a channel with zero sigma is dead.
+
+    Returns
+    -------
+    numpy.ndarray
+        ``threshold_uv / sigma_uv`` (float64), infinite on dead channels.
+    """
+    sigma = np.asarray(sigma_uv, dtype=np.float64)
+    uv = np.broadcast_to(np.asarray(threshold_uv, dtype=np.float64), sigma.shape)
+    return np.where(sigma > 0, uv / np.where(sigma > 0, sigma, 1.0), np.inf)
 
 
 @dataclass
@@ -106,10 +130,7 @@ class EventTable:
         if threshold_sigma is not None:
             return np.broadcast_to(np.asarray(threshold_sigma, dtype=np.float64),
                                    (self.n_channels,)).copy()
-        uv = np.broadcast_to(np.asarray(threshold_uv, dtype=np.float64), (self.n_channels,))
-        with np.errstate(divide="ignore", invalid="ignore"):
-            out = np.where(self.sigma_uv > 0, uv / np.where(self.sigma_uv > 0, self.sigma_uv, 1), np.inf)
-        return out
+        return uv_to_sigma(threshold_uv, self.sigma_uv)
 
     def mask(self, threshold_sigma=None, threshold_uv=None, include_artefacts: bool = False) -> np.ndarray:
         """Boolean mask of events at or above the threshold (per channel if an array)."""
@@ -168,10 +189,8 @@ class EventTable:
         """
         def write(tmp: Path) -> None:
             with open(tmp, "wb") as fh:
-                fh.write(b"sample,time_s,channel,group,amplitude_uv,amplitude_sigma,artefact\r\n")
-                write_rows(fh, [("int", self.sample), ("fixed", self.time_s, 6), ("int", self.channel),
-                                ("int", self.group), ("fixed", self.amplitude_uv, 3),
-                                ("fixed", self.amplitude_sigma, 4), ("int", self.artefact)], "\r\n")
+                fh.write((",".join(CSV_COLUMNS) + "\r\n").encode("ascii"))
+                write_rows(fh, [_csv_format(self, c) for c in CSV_COLUMNS], "\r\n")
         atomic_write(path, write)
 
     def write_h5(self, path: str | Path, group: str = "events") -> None:
@@ -183,30 +202,35 @@ class EventTable:
             g.create_dataset("time_s", data=self.time_s)
         atomic_write(path, lambda tmp: write_h5(tmp, fill))
 
-    def to_h5_group(self, g: h5py.Group) -> None:
-        """Store columns and context in an open HDF5 group."""
+    def to_h5_group(self, g: h5py.Group, compress: bool = True) -> dict[str, np.ndarray]:
+        """Store columns and context in an open HDF5 group (columns gzip-compressed unless
+        ``compress`` is False); returns the stored arrays by dataset name."""
         for c in COLUMNS:
             g.create_dataset(c, data=getattr(self, c), compression="gzip", compression_opts=1,
-                             shuffle=True) if len(self) else g.create_dataset(c, data=getattr(self, c))
+                             shuffle=True) if len(self) and compress else g.create_dataset(c, data=getattr(self, c))
         g.create_dataset("sigma_uv", data=self.sigma_uv)
         g.attrs.update(rate_hz=self.rate_hz, n_samples=self.n_samples,
                        floor_sigma=self.floor_sigma, polarity=self.polarity,
                        excluded_channels=json.dumps({str(c): r for c, r in self.excluded.items()}))
+        return {c: getattr(self, c) for c in (*COLUMNS, "sigma_uv")}
 
     @classmethod
-    def from_h5_group(cls, g: h5py.Group) -> "EventTable":
-        """Read a table stored by :meth:`to_h5_group`, checking every column and attribute."""
+    def from_h5_group(cls, g: h5py.Group, data: dict[str, np.ndarray] | None = None) -> "EventTable":
+        """Read a table stored by :meth:`to_h5_group`, checking every column and attribute
+        (``data``: its datasets by name, already read, so they are not read again)."""
         missing = [c for c in (*COLUMNS, "sigma_uv") if c not in g]
         if missing:
             raise RigsideError(f"event group must hold datasets {', '.join(COLUMNS)}, sigma_uv; "
                                f"missing {', '.join(missing)}")
-        cols = {c: np.asarray(g[c][()]) for c in COLUMNS}
+        def read(name: str) -> np.ndarray:
+            return np.asarray(data[name] if data is not None else g[name][()])
+        cols = {c: read(c) for c in COLUMNS}
         for c, dt in COLUMNS.items():
             if cols[c].ndim != 1 or not np.can_cast(cols[c].dtype, dt, casting="same_kind"):
                 raise RigsideError(f"event column {c} must be a 1-D array of {np.dtype(dt)}, "
                                    f"got {cols[c].dtype} with shape {cols[c].shape}")
         t = cls(**cols, rate_hz=float(g.attrs["rate_hz"]), n_samples=int(g.attrs["n_samples"]),
-                sigma_uv=np.asarray(g["sigma_uv"][()]), floor_sigma=float(g.attrs["floor_sigma"]),
+                sigma_uv=read("sigma_uv"), floor_sigma=float(g.attrs["floor_sigma"]),
                 polarity=str(g.attrs["polarity"]), excluded=_read_excluded(g, len(g["sigma_uv"])))
         t.check()
         return t
@@ -255,6 +279,15 @@ class EventTable:
             raise RigsideError(f"event file must be a readable HDF5 file, got {str(path)!r}: {exc}") from None
 
 
+_CSV_DIGITS = {"time_s": 6, "amplitude_uv": 3, "amplitude_sigma": 4}
+
+
+def _csv_format(table: EventTable, column: str) -> tuple:
+    """How :func:`rigside.core.io.csv_text.write_rows` formats one column of the event CSV."""
+    values = getattr(table, column)
+    return ("fixed", values, _CSV_DIGITS[column]) if column in _CSV_DIGITS else ("int", values)
+
+
 def _read_excluded(g: h5py.Group, n_channels: int) -> dict[int, str]:
     """The stored excluded channels (none in files written before they were recorded)."""
     text = g.attrs.get("excluded_channels", "{}")
@@ -264,7 +297,8 @@ def _read_excluded(g: h5py.Group, n_channels: int) -> dict[int, str]:
             raise TypeError
         out = {int(c): r for c, r in doc.items()}
     except (TypeError, ValueError, AttributeError, RecursionError):
-        raise RigsideError(f"excluded channels must be a JSON object of channel: flag, got {str(text)[:40]!r}") from None
+        raise RigsideError(f"excluded channels must be a JSON object of channel: flag, "
+                           f"got {str(text)[:40]!r}") from None
     if any(not 0 <= c < n_channels for c in out):
         raise RigsideError(f"excluded channels must lie in 0..{n_channels - 1}, got {sorted(out)}")
     return out

@@ -336,7 +336,7 @@ class Params:
     def save_toml(self, path: str | Path) -> None:
         """Write the parameters as TOML (atomically: a reader sees the old file or the new one)."""
         text = tomli_w.dumps(self.to_dict())
-        atomic_write(path, lambda tmp: tmp.write_text(text, encoding="utf-8"))
+        atomic_write(path, lambda tmp: tmp.write_text(text, encoding="utf-8", newline="\n"))
 
     @classmethod
     def load_toml(cls, path: str | Path) -> "Params":

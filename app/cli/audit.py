@@ -41,7 +41,7 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 
 def run_audit_command(args: argparse.Namespace) -> int:
-    from rigside.core.audit.report import write_audit_report
+    from rigside.core.audit.html_report import write_audit_report
     from rigside.core.audit.run import CAUTION, AuditSettings, FreshUnits, first_pass_units, run_audit
     from rigside.core.audit.table import write_audit_csv
     from rigside.core.io.spike_import_files import load_spikes
@@ -53,7 +53,8 @@ def run_audit_command(args: argparse.Namespace) -> int:
     if out.resolve() == table.resolve():
         raise ParamError(f"report and table must be different files, got {str(out)!r} twice")
     if args.session:
-        given = [f"--{name.replace('_', '-')}" for name in PARAM_OPTIONS if getattr(args, name, None) not in (None, False)]
+        given = [f"--{name.replace('_', '-')}" for name in PARAM_OPTIONS
+                 if getattr(args, name, None) not in (None, False)]
         if given:
             raise ParamError(f"detection options must not be given with --session (the session's own "
                              f"parameters are used), got {', '.join(given)}")

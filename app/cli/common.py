@@ -33,7 +33,8 @@ def add_param_options(p: argparse.ArgumentParser) -> None:
     """Options for filtering and detection; a TOML file gives defaults, options win."""
     g = p.add_argument_group("parameters")
     g.add_argument("--params", metavar="FILE.toml", help="parameter file (TOML); options below override it")
-    g.add_argument("--band", type=float, nargs=2, metavar=("LOW", "HIGH"), help="band-pass edges in Hz (default 300 6000)")
+    g.add_argument("--band", type=float, nargs=2, metavar=("LOW", "HIGH"),
+                   help="band-pass edges in Hz (default 300 6000)")
     g.add_argument("--filter-order", type=int, help="Butterworth order (default 3)")
     g.add_argument("--common-reference", action="store_true", default=None,
                    help="subtract the per-group median across channels after filtering")

@@ -16,7 +16,8 @@ def register(sub: argparse._SubParsersAction) -> None:
                                    "write the detected events (CSV or HDF5) and an optional JSON summary.")
     p.add_argument("recording", help="raw binary (with metadata file or layout options) or HDF5 recording")
     p.add_argument("--out", required=True, metavar="EVENTS.csv|EVENTS.h5", help="event file to write")
-    p.add_argument("--summary", metavar="SUMMARY.json", help="JSON summary: parameters and per-channel noise, threshold, counts")
+    p.add_argument("--summary", metavar="SUMMARY.json",
+                   help="JSON summary: parameters and per-channel noise, threshold, counts")
     p.add_argument("--keep-artefacts", action="store_true", help="also write events flagged as artefacts")
     add_recording_options(p)
     add_param_options(p)

@@ -8,23 +8,39 @@ import sys
 
 from rigside.cli.common import add_recording_options, recording_options
 from rigside.core.errors import RigsideError
+from rigside.core.units.session_open import check_session_file, file_kind
 
 
 def register(sub: argparse._SubParsersAction) -> None:
-    o = sub.add_parser("open", help="open a recording in the window",
-                       description="Open a recording in the rigside window.")
-    o.add_argument("recording", help="recording file")
+    o = sub.add_parser("open", help="open a recording or a session in the window",
+                       description="Open a recording, or a session file (its units, labels, notes and undo "
+                                   "history, with its stored events: nothing is detected again), in the "
+                                   "rigside window. Session files are recognised by their content, not by "
+                                   "their name.")
+    o.add_argument("recording", metavar="FILE", help="recording or session file")
+    o.add_argument("--session", metavar="S.h5",
+                   help="open this session on FILE, the session's recording at a new place (moved or renamed)")
     o.add_argument("--screenshot", metavar="OUT.png", help="render the window after loading to a PNG and exit")
     add_recording_options(o)
-    o.set_defaults(func=lambda a: run_window_command(a.recording, a.screenshot, recording_options(a)))
+    o.set_defaults(func=run_open_command)   # no protected inputs: the window saves the session it opened
     d = sub.add_parser("demo", help="open the bundled demo recording in the window",
                        description="Open the bundled synthetic demo (with ground truth) in the window.")
     d.add_argument("--screenshot", metavar="OUT.png", help="render the window after loading to a PNG and exit")
     d.set_defaults(func=lambda a: run_window_command(None, a.screenshot, None, demo=True))
 
 
+def run_open_command(args: argparse.Namespace) -> int:
+    """Check what FILE (and --session) are before any window exists, then open them."""
+    kind = file_kind(args.recording)
+    if args.session is not None:
+        check_session_file(args.session)
+        if kind == "session":
+            raise RigsideError(f"FILE given with --session must be a recording, got the session {args.recording!r}")
+    return run_window_command(args.recording, args.screenshot, recording_options(args), session=args.session)
+
+
 def run_window_command(path: str | None, screenshot: str | None = None, options: dict | None = None,
-                       demo: bool = False) -> int:
+                       demo: bool = False, session: str | None = None) -> int:
     """Open the window; render offscreen when only a screenshot is wanted and there is no display."""
     headless = (sys.platform.startswith("linux") and not os.environ.get("DISPLAY")
                 and not os.environ.get("WAYLAND_DISPLAY") and not os.environ.get("QT_QPA_PLATFORM"))
@@ -33,5 +49,5 @@ def run_window_command(path: str | None, screenshot: str | None = None, options:
     elif headless:
         raise RigsideError("the window needs a display, got none (no DISPLAY or WAYLAND_DISPLAY): run it in a "
                            "desktop session, under `xvfb-run`, or with --screenshot OUT.png")
-    from rigside.gui.window import run_window
-    return run_window(path, screenshot=screenshot, recording_options=options, demo=demo)
+    from rigside.gui.launch import run_window
+    return run_window(path, screenshot=screenshot, recording_options=options, demo=demo, session=session)

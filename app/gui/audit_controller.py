@@ -14,7 +14,7 @@ from pathlib import Path
 import numpy as np
 from PySide6.QtCore import QObject, Signal
 
-from rigside.core.audit.report import write_audit_report
+from rigside.core.audit.html_report import write_audit_report
 from rigside.core.audit.run import CAUTION, AuditResult, AuditSettings, FreshUnits, first_pass_units, run_audit
 from rigside.core.audit.table import write_audit_csv
 from rigside.core.audit.views import PairView, pair_view
@@ -58,9 +58,9 @@ def audit_job(recording, path: Path, choices: ImportChoices, fresh: FreshUnits |
     report(progress, READ_SHARE, f"{len(spikes):,} spikes of {len(spikes.unit_ids)} units read")
     base = READ_SHARE
     if fresh is None:
+        share = FIRST_PASS_SHARE - READ_SHARE
         fresh = first_pass_units(recording, params, cancel=cancel,
-                                 progress=lambda f, m: report(progress, READ_SHARE + (FIRST_PASS_SHARE - READ_SHARE) * f,
-                                                              f"fresh units: {m}"))
+                                 progress=lambda f, m: report(progress, READ_SHARE + share * f, f"fresh units: {m}"))
         base = FIRST_PASS_SHARE
     return run_audit(recording, spikes, fresh, settings, cancel=cancel,
                      progress=lambda f, m: report(progress, base + (1 - base) * f, m))
@@ -135,7 +135,8 @@ class AuditController(QObject):
         if s is not None:
             return f"the session's {len(s.sorting.unit_ids())} units as curated now"
         p = first_pass_params(self.bench)
-        thr = f"{p.detect.threshold_uv:g} µV" if p.detect.threshold_uv is not None else f"{p.detect.threshold_sigma:g} σ"
+        thr = (f"{p.detect.threshold_uv:g} µV" if p.detect.threshold_uv is not None
+               else f"{p.detect.threshold_sigma:g} σ")
         return f"a fresh first-pass clustering of events re-detected at {thr}"
 
     # ---- running ----------------------------------------------------------------------------

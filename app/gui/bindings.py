@@ -13,7 +13,7 @@ from typing import Any, Callable, Sequence
 from PySide6.QtCore import QObject, QSignalBlocker
 from PySide6.QtWidgets import QAbstractButton, QComboBox, QDoubleSpinBox
 
-from rigside.gui.model import Signal
+from rigside.core.notify import Signal
 
 
 class _Binding(QObject):

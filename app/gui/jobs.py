@@ -13,10 +13,8 @@ from rigside.core.progress import report
 from rigside.core.signal.features import compute_features
 from rigside.core.signal.noise import estimate_noise
 from rigside.core.signal.overview import OverviewBuilder, build_overview
-from rigside.core.signal.pipeline import detect
+from rigside.core.signal.pipeline import NOISE_SHARE, detect
 from rigside.core.synthetic.truth import load_truth
-
-NOISE_SHARE = 0.15
 
 LOOKUP_FLOOR_SIGMA = 3.0
 """Events are kept down to this many sigma so a threshold drag down to it is a look-up."""
@@ -34,8 +32,8 @@ def analyse(recording, params, truth_path: Path | None = None, overview: Overvie
     """
     noise = estimate_noise(recording, params, cancel=cancel,
                            progress=lambda f, m: report(progress, NOISE_SHARE * f, m))
-    events = detect(recording, params, cancel=cancel, noise=noise, overview=overview,
-                    progress=lambda f, m: report(progress, NOISE_SHARE + (1 - NOISE_SHARE) * f, m))
+    # given the noise, detect still reports its own span from NOISE_SHARE to 1
+    events = detect(recording, params, cancel=cancel, noise=noise, overview=overview, progress=progress)
     if overview is not None:
         save_overview(overview)
     try:

@@ -2,65 +2,46 @@
 
 Views subscribe to :class:`Signal` attributes of :class:`Workbench`; a signal holds weak
 references to bound methods, so a closed panel never keeps itself alive through the model.
-Thresholds are stored per channel in sigma multiples; the unit (sigma or microvolts) and
+Thresholds are stored per channel in sigma multiples; the scale (sigma or microvolts) and
 the scope (all channels or one) only say how the next edit is read and how values are shown.
 """
 
 from __future__ import annotations
 
-import weakref
 from dataclasses import dataclass
-from typing import Any, Callable
+from typing import TYPE_CHECKING
 
 import numpy as np
 
+from rigside.core.events import uv_to_sigma
+from rigside.core.notify import Signal
 from rigside.core.signal.rice import sampled_crossing_rate
 
-UNITS = ("sigma", "uv")
+if TYPE_CHECKING:   # the types of Analysis only: no import at run time
+    from rigside.core.events import EventTable
+    from rigside.core.io.recording import Recording
+    from rigside.core.params import Params
+    from rigside.core.signal.features import Features
+    from rigside.core.signal.noise import NoiseEstimate
+    from rigside.core.signal.overview import Overview
+    from rigside.core.synthetic.truth import Truth
+
+SCALES = ("sigma", "uv")
 SCOPES = ("all", "channel")
-
-
-class Signal:
-    """A tiny emitter: callbacks held weakly (bound methods) or strongly (functions)."""
-
-    def __init__(self) -> None:
-        self._slots: list[Callable[[], Callable | None]] = []
-
-    def connect(self, fn: Callable) -> None:
-        if hasattr(fn, "__self__") and hasattr(fn, "__func__"):
-            ref = weakref.WeakMethod(fn)
-        else:
-            ref = (lambda f=fn: f)
-        self._slots.append(ref)
-
-    def emit(self, *args: Any) -> None:
-        """Call every callback; the first error is raised after all have run, so that one
-        failing panel never leaves the others showing the previous state."""
-        first: Exception | None = None
-        for ref in list(self._slots):
-            fn = ref()
-            if fn is not None:
-                try:
-                    fn(*args)
-                except Exception as exc:  # re-raised below, once every callback has run
-                    first = first or exc
-        self._slots = [r for r in self._slots if r() is not None]
-        if first is not None:
-            raise first
 
 
 @dataclass
 class Analysis:
     """Results of the long work for one recording (any may still be missing)."""
 
-    recording: Any = None
-    params: Any = None
-    noise: Any = None
-    events: Any = None
-    features: Any = None
-    truth: Any = None
+    recording: Recording | None = None
+    params: Params | None = None
+    noise: NoiseEstimate | None = None
+    events: EventTable | None = None
+    features: Features | None = None
+    truth: Truth | None = None
     sos: np.ndarray | None = None
-    overview: Any = None        # rigside.core.signal.overview.Overview of the filtered signal, once one exists
+    overview: Overview | None = None        # of the filtered signal, once one exists
     noise_grid: tuple[np.ndarray, np.ndarray] | None = None
 
 
@@ -77,8 +58,8 @@ class Workbench:
 
     Signals: ``recording_changed()``, ``events_changed()``, ``features_changed()``,
     ``truth_changed()``, ``selection_changed()``, ``thresholds_changed(final: bool)``
-    (``final`` is False while a handle is being dragged), ``unit_changed()``,
-    ``view_changed(t0, t1)``, ``show_raw_changed()``, ``overview_changed()``.
+    (``final`` is False while a handle is being dragged), ``scale_changed()`` (the threshold scale or scope
+    changed), ``view_changed(t0, t1)``, ``show_raw_changed()``, ``overview_changed()``.
     """
 
     def __init__(self) -> None:
@@ -89,7 +70,7 @@ class Workbench:
         self.truth_changed = Signal()
         self.selection_changed = Signal()
         self.thresholds_changed = Signal()
-        self.unit_changed = Signal()
+        self.scale_changed = Signal()
         self.view_changed = Signal()
         self.show_raw_changed = Signal()
         self.overview_changed = Signal()
@@ -98,21 +79,22 @@ class Workbench:
         self.group = 0
         self.channel = 0
         self.thresholds_sigma = np.zeros(0)
-        self.unit = "sigma"
+        self.scale = "sigma"
         self.scope = "all"
         self.show_raw = False
         self.view = (0.0, 1.0)
 
     # ---- loading ------------------------------------------------------------------
     @property
-    def recording(self):
+    def recording(self) -> Recording | None:
         return self.analysis.recording
 
     @property
-    def events(self):
+    def events(self) -> EventTable | None:
         return self.analysis.events
 
-    def set_recording(self, recording, params, sos: np.ndarray, overview=None) -> None:
+    def set_recording(self, recording: Recording, params: Params, sos: np.ndarray,
+                      overview: Overview | None = None) -> None:
         """A new recording (with its cached overview, if any): forget results, show its first group."""
         if self.analysis.overview is not None:
             self.analysis.overview.close()
@@ -128,17 +110,17 @@ class Workbench:
         self.selection_changed.emit()
 
     @property
-    def overview(self):
+    def overview(self) -> Overview | None:
         return self.analysis.overview
 
-    def set_overview(self, overview) -> None:
+    def set_overview(self, overview: Overview | None) -> None:
         """Draw zoomed-out traces from this overview (None: from samples only)."""
         if self.analysis.overview is not None and self.analysis.overview is not overview:
             self.analysis.overview.close()
         self.analysis.overview = overview
         self.overview_changed.emit()
 
-    def set_events(self, noise, events) -> None:
+    def set_events(self, noise: NoiseEstimate, events: EventTable) -> None:
         self.analysis.noise = noise
         self.analysis.events = events
         self.analysis.noise_grid = noise_rate_grid(self.analysis.sos, self.recording.rate_hz,
@@ -147,11 +129,11 @@ class Workbench:
         self.events_changed.emit()
         self.thresholds_changed.emit(True)
 
-    def set_features(self, features) -> None:
+    def set_features(self, features: Features) -> None:
         self.analysis.features = features
         self.features_changed.emit()
 
-    def set_truth(self, truth) -> None:
+    def set_truth(self, truth: Truth) -> None:
         self.analysis.truth = truth
         self.truth_changed.emit()
 
@@ -211,52 +193,51 @@ class Workbench:
         noise = self.analysis.noise
         return None if noise is None else np.asarray(noise.sigma_uv)
 
-    def set_unit(self, unit: str) -> None:
-        if unit not in UNITS:
-            raise ValueError(f"threshold unit must be one of {', '.join(UNITS)}, got {unit!r}")
-        if unit != self.unit:
-            self.unit = unit
-            self.unit_changed.emit()
+    def set_scale(self, scale: str) -> None:
+        """Read and show thresholds as sigma multiples ("sigma") or in microvolts ("uv")."""
+        if scale not in SCALES:
+            raise ValueError(f"threshold scale must be one of {', '.join(SCALES)}, got {scale!r}")
+        if scale != self.scale:
+            self.scale = scale
+            self.scale_changed.emit()
 
     def set_scope(self, scope: str) -> None:
         if scope not in SCOPES:
             raise ValueError(f"threshold scope must be one of {', '.join(SCOPES)}, got {scope!r}")
         if scope != self.scope:
             self.scope = scope
-            self.unit_changed.emit()
+            self.scale_changed.emit()
 
     def threshold_value(self, channel: int | None = None) -> float:
-        """The threshold of a channel (default: the selected one) in the current unit."""
+        """The threshold of a channel (default: the selected one) in the current scale."""
         c = self.channel if channel is None else int(channel)
         if c >= len(self.thresholds_sigma):
             return float("nan")
         k = float(self.thresholds_sigma[c])
-        if self.unit == "sigma":
+        if self.scale == "sigma":
             return k
         sigma = self.sigma_uv
         return float("nan") if sigma is None else k * float(sigma[c])
 
-    def set_threshold(self, value: float, final: bool = True, unit: str | None = None) -> None:
-        """Set the threshold from a value in ``unit`` (default: the current unit).
+    def set_threshold(self, value: float, final: bool = True, scale: str | None = None) -> None:
+        """Set the threshold from a value in ``scale`` (default: the current scale).
 
         With scope "all", every channel gets the value (the same sigma multiple, or the
         same microvolts); with scope "channel", only the selected channel changes.
         """
-        unit = unit or self.unit
+        scale = scale or self.scale
         value = float(value)
         if not np.isfinite(value) or value <= 0:
             return
         new = self.thresholds_sigma.copy()
         targets = np.arange(len(new)) if self.scope == "all" else np.array([self.channel])
-        if unit == "sigma":
+        if scale == "sigma":
             new[targets] = value
         else:
             sigma = self.sigma_uv
             if sigma is None:
                 return
-            s = np.asarray(sigma, dtype=np.float64)[targets]
-            with np.errstate(divide="ignore"):
-                new[targets] = np.where(s > 0, value / np.where(s > 0, s, 1.0), np.inf)
+            new[targets] = uv_to_sigma(value, np.asarray(sigma, dtype=np.float64)[targets])
         changed = not np.array_equal(new, self.thresholds_sigma)
         self.thresholds_sigma = new
         if changed or final:
@@ -264,7 +245,7 @@ class Workbench:
 
     def step_threshold(self, factor_steps: int) -> None:
         """Raise (positive) or lower the selected threshold by steps of 0.1 sigma or 1 uV."""
-        step = 0.1 if self.unit == "sigma" else 1.0
+        step = 0.1 if self.scale == "sigma" else 1.0
         self.set_threshold(round(self.threshold_value() + step * factor_steps, 6), final=True)
 
     def noise_rates(self, k_sigma) -> np.ndarray:

@@ -272,6 +272,7 @@ class SessionFlow(QObject):
         if self.ctl.undo_stack.index() == index:
             self.ctl.undo_stack.setClean()
         self.update_title()
+        self.window.remember(str(Path(out).resolve()))
         self.window.statusBar().showMessage(f"Session saved to {out}", 8000)
 
     # ---- opening -----------------------------------------------------------------------------
@@ -279,8 +280,9 @@ class SessionFlow(QObject):
         path = self.pick_file("Open a session", str(self.path.parent) if self.path else "", SESSION_FILTER)
         return self.open(path) if path else False
 
-    def open(self, path: str | Path) -> bool:
-        """Open a session, offering a newer autosave or backup when there is one."""
+    def open(self, path: str | Path, recording: str | Path | None = None) -> bool:
+        """Open a session, offering a newer autosave or backup when there is one; ``recording`` is
+        where its recording is now (a moved file: it must be the same recording)."""
         path = Path(path)
         states = find_states(path)
         valid = [s for s in states if s.error is None]
@@ -306,7 +308,7 @@ class SessionFlow(QObject):
                 f"{newest.saved_utc[:19]} UTC; the session file was saved {choice.saved_utc[:19]} UTC). "
                 "Open the newer state?"):
             choice = newest
-        self._start_load(choice.path, None, title_path=path)
+        self._start_load(choice.path, recording, title_path=path)
         return True
 
     def _start_load(self, file: Path, override, title_path: Path | None) -> None:
@@ -335,7 +337,7 @@ class SessionFlow(QObject):
         result, history = result
         self._pending_open = True
         try:
-            if not self.window.open_path(result.recording.path):
+            if not self.window.open_path(result.recording.path, session=result):
                 return
         finally:
             self._pending_open = False
@@ -343,6 +345,7 @@ class SessionFlow(QObject):
         self.ctl.attach(result, history)
         self._apply_threshold(result)
         self.recovered = title_path is not None and Path(file) != title_path
+        self.window.remember(str(Path(title_path or file).resolve()))
         self.update_title()
         undo = (f"{len(history)} step(s) can be undone" if history is not None
                 else "its journal does not replay to these units, so earlier steps cannot be undone")
@@ -355,5 +358,5 @@ class SessionFlow(QObject):
             bench = self.window.bench
             scope = bench.scope
             bench.set_scope("all")
-            bench.set_threshold(d.threshold_sigma, final=True, unit="sigma")
+            bench.set_threshold(d.threshold_sigma, final=True, scale="sigma")
             bench.set_scope(scope)

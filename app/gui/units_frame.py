@@ -42,6 +42,7 @@ def install_units(window) -> SortingController:
 
     ctl = SortingController(window)
     ctl.files = SessionFlow(ctl, Path(settings().fileName()).parent / "autosave")
+    window.session_opener = ctl.files.open
     window.units = ctl
     bench, runner = window.bench, window.runner
     right, bottom = Qt.DockWidgetArea.RightDockWidgetArea, Qt.DockWidgetArea.BottomDockWidgetArea
@@ -81,30 +82,47 @@ def install_units(window) -> SortingController:
 
 def _build_menus(win, ctl: SortingController, unit_list: UnitListPanel, plane: ClusterPlanePanel) -> None:
     actions = win.actions_by_name
-    bar = win.menuBar()
-
-    def menu_holding(name: str) -> QMenu | None:
-        a = actions.get(name)
-        return next((m for m in bar.findChildren(QMenu) if a is not None and a in m.actions()), None)
 
     def act(name: str, text: str, slot: Callable, keys=(), tip: str = "", menu=None, before=None) -> QAction:
         return add_action(win, actions, name, text, slot, keys, tip, menu, before)
 
-    files = ctl.files
-    file_menu = menu_holding("quit")
-    quit_action = actions.get("quit")
-    if file_menu is not None:
-        act("open_session", "Open a &session…", files.choose_and_open, ["Ctrl+Shift+O"], menu=file_menu,
-            before=quit_action)
-        act("save_session", "&Save the session", files.save, [QKeySequence.StandardKey.Save], menu=file_menu,
-            before=quit_action)
-        act("save_session_as", "Save the session &as…", files.save_as, ["Ctrl+Shift+S"], menu=file_menu,
-            before=quit_action)
-        file_menu.insertSeparator(quit_action)
+    _add_session_items(win, act, ctl.files)
+    _add_edit_menu(win, act, ctl)
+    _add_units_menu(win, act, ctl, unit_list, plane)
 
+
+def _menu_holding(win, name: str) -> QMenu | None:
+    """The menu of the window's menu bar that holds the action ``name`` (None: no such action or menu)."""
+    a = win.actions_by_name.get(name)
+    return next((m for m in win.menuBar().findChildren(QMenu) if a is not None and a in m.actions()), None)
+
+
+def _insert_menu(win, menu: QMenu, before_action: str) -> None:
+    """Put ``menu`` in the menu bar before the menu holding ``before_action`` (at the end without one)."""
+    after = _menu_holding(win, before_action)
+    bar = win.menuBar()
+    bar.insertMenu(after.menuAction(), menu) if after is not None else bar.addMenu(menu)
+
+
+def _add_session_items(win, act: Callable, files: SessionFlow) -> None:
+    """Open, save and save-as of a session in the File menu, above Quit."""
+    file_menu = _menu_holding(win, "quit")
+    if file_menu is None:
+        return
+    quit_action = win.actions_by_name.get("quit")
+    act("open_session", "Open a &session…", files.choose_and_open, ["Ctrl+Shift+O"], menu=file_menu,
+        before=quit_action)
+    act("save_session", "&Save the session", files.save, [QKeySequence.StandardKey.Save], menu=file_menu,
+        before=quit_action)
+    act("save_session_as", "Save the session &as…", files.save_as, ["Ctrl+Shift+S"], menu=file_menu,
+        before=quit_action)
+    file_menu.insertSeparator(quit_action)
+
+
+def _add_edit_menu(win, act: Callable, ctl: SortingController) -> None:
+    """Undo and redo, enabled and named after the curation step they would undo or redo."""
     edit = QMenu("&Edit", win)
-    view_menu = menu_holding("zoom_in")
-    bar.insertMenu(view_menu.menuAction(), edit) if view_menu is not None else bar.addMenu(edit)
+    _insert_menu(win, edit, "zoom_in")
     undo = act("undo", "Undo", ctl.undo, [QKeySequence.StandardKey.Undo], menu=edit)
     redo = act("redo", "Redo", ctl.redo, [QKeySequence.StandardKey.Redo], menu=edit)
     stack = ctl.undo_stack
@@ -114,64 +132,13 @@ def _build_menus(win, ctl: SortingController, unit_list: UnitListPanel, plane: C
         can.connect(a.setEnabled)
         text_changed.connect(lambda t, a=a, w=word: a.setText(f"{w}: {t}" if t else w))
 
+
+def _add_units_menu(win, act: Callable, ctl: SortingController, unit_list: UnitListPanel,
+                    plane: ClusterPlanePanel) -> None:
+    """The Units menu; its commands on one unit or a few also sit in the unit list's context menu."""
     units = QMenu("&Units", win)
-    help_menu = menu_holding("about")
-    bar.insertMenu(help_menu.menuAction(), units) if help_menu is not None else bar.addMenu(units)
-
-    def need(n: int, what: str) -> list[int] | None:
-        sel = ctl.selection
-        if len(sel) < n:
-            win.show_error(f"Cannot {what}", f"{what} needs {n} selected unit{'s' if n > 1 else ''}, got {len(sel)}")
-            return None
-        return sel
-
-    def cluster() -> None:
-        can_limit = False
-        try:
-            events, _, _ = ctl.current_detection()
-            can_limit = ctl.same_events(events)
-        except RigsideError:  # ctl.cluster below shows the message
-            pass
-        if win.interactive:
-            dialog = ClusterDialog(ctl.group_name(int(win.bench.group)), can_limit, win)
-            if dialog.exec() != QDialog.DialogCode.Accepted:
-                return
-            groups = [int(win.bench.group)] if dialog.only_group.isChecked() else None
-            ctl.cluster(spin_count(dialog.k), groups)
-        else:
-            ctl.cluster()
-
-    def recluster() -> None:
-        sel = need(1, "recluster a unit")
-        if sel:
-            dialog = PartsDialog(sel[0], win)
-            if dialog.exec() == QDialog.DialogCode.Accepted:
-                ctl.recluster(sel[0], spin_count(dialog.k))
-
-    def note() -> None:
-        sel = need(1, "write a note")
-        if sel:
-            dialog = NoteDialog(sel[0], ctl.sorting.unit(sel[0]).note, win)
-            if dialog.exec() == QDialog.DialogCode.Accepted:
-                ctl.set_note(sel[0], dialog.text.toPlainText())
-
-    def limits() -> None:
-        dialog = LimitsDialog(ctl.limits, win)
-        if dialog.exec() == QDialog.DialogCode.Accepted:
-            ctl.limits = dialog.values()
-            unit_list.set_limits_text()
-            ctl.metrics_changed.emit()
-
-    def step_unit(step: int) -> None:
-        view = unit_list.table
-        n = unit_list.proxy.rowCount()
-        if n == 0:
-            return
-        current = view.currentIndex().row() if view.currentIndex().isValid() else -1
-        unit_list.select_rows([(current + step) % n])
-        view.setCurrentIndex(unit_list.proxy.index((current + step) % n, 0))
-
-    act("cluster", "&Cluster the detection…", cluster, ["Ctrl+K"], menu=units,
+    _insert_menu(win, units, "about")
+    act("cluster", "&Cluster the detection…", lambda: _cluster(win, ctl), ["Ctrl+K"], menu=units,
         tip="First pass: a Gaussian mixture per channel group on the events at the current threshold")
     units.addSeparator()
     context = [
@@ -180,18 +147,83 @@ def _build_menus(win, ctl: SortingController, unit_list: UnitListPanel, plane: C
         act("choose_outline", "Choose &events by an outline", lambda: plane.start_outline("choose"),
             ["Ctrl+E"], menu=units),
         act("merge", "&Merge the selected units",
-            lambda: (sel := need(2, "merge")) and ctl.merge(sel), ["Ctrl+M"], menu=units),
-        act("recluster", "&Recluster the selected unit…", recluster, ["Ctrl+Shift+K"], menu=units),
-        act("note", "&Note on the selected unit…", note, ["Ctrl+Shift+N"], menu=units),
+            lambda: (sel := _selected(win, ctl, 2, "merge")) and ctl.merge(sel), ["Ctrl+M"], menu=units),
+        act("recluster", "&Recluster the selected unit…", lambda: _recluster(win, ctl), ["Ctrl+Shift+K"],
+            menu=units),
+        act("note", "&Note on the selected unit…", lambda: _write_note(win, ctl), ["Ctrl+Shift+N"], menu=units),
     ]
     context += _label_actions(win, act, units.addMenu("&Label"),
-                              lambda label: (sel := need(1, "label")) and ctl.relabel(sel, label))
+                              lambda label: (sel := _selected(win, ctl, 1, "label")) and ctl.relabel(sel, label))
     units.addSeparator()
-    act("next_unit", "Select the next unit in the list", lambda: step_unit(1), ["Alt+Down"], menu=units)
-    act("previous_unit", "Select the previous unit in the list", lambda: step_unit(-1), ["Alt+Up"], menu=units)
-    act("limits", "Quality &limits…", limits, menu=units)
+    act("next_unit", "Select the next unit in the list", lambda: _step_unit(unit_list, 1), ["Alt+Down"],
+        menu=units)
+    act("previous_unit", "Select the previous unit in the list", lambda: _step_unit(unit_list, -1), ["Alt+Up"],
+        menu=units)
+    act("limits", "Quality &limits…", lambda: _edit_limits(win, ctl, unit_list), menu=units)
     for a in context:
         unit_list.table.addAction(a)
+
+
+def _selected(win, ctl: SortingController, n: int, what: str) -> list[int] | None:
+    """The selected units when there are at least ``n``; otherwise say so and return None."""
+    sel = ctl.selection
+    if len(sel) < n:
+        win.show_error(f"Cannot {what}", f"{what} needs {n} selected unit{'s' if n > 1 else ''}, got {len(sel)}")
+        return None
+    return sel
+
+
+def _cluster(win, ctl: SortingController) -> None:
+    """First pass on the detection: ask for the count and scope when a person is at the window."""
+    can_limit = False
+    try:
+        events, _, _ = ctl.current_detection()
+        can_limit = ctl.same_events(events)
+    except RigsideError:  # ctl.cluster below shows the message
+        pass
+    if win.interactive:
+        dialog = ClusterDialog(ctl.group_name(int(win.bench.group)), can_limit, win)
+        if dialog.exec() != QDialog.DialogCode.Accepted:
+            return
+        groups = [int(win.bench.group)] if dialog.only_group.isChecked() else None
+        ctl.cluster(spin_count(dialog.k), groups)
+    else:
+        ctl.cluster()
+
+
+def _recluster(win, ctl: SortingController) -> None:
+    sel = _selected(win, ctl, 1, "recluster a unit")
+    if sel:
+        dialog = PartsDialog(sel[0], win)
+        if dialog.exec() == QDialog.DialogCode.Accepted:
+            ctl.recluster(sel[0], spin_count(dialog.k))
+
+
+def _write_note(win, ctl: SortingController) -> None:
+    sel = _selected(win, ctl, 1, "write a note")
+    if sel:
+        dialog = NoteDialog(sel[0], ctl.sorting.unit(sel[0]).note, win)
+        if dialog.exec() == QDialog.DialogCode.Accepted:
+            ctl.set_note(sel[0], dialog.text.toPlainText())
+
+
+def _edit_limits(win, ctl: SortingController, unit_list: UnitListPanel) -> None:
+    dialog = LimitsDialog(ctl.limits, win)
+    if dialog.exec() == QDialog.DialogCode.Accepted:
+        ctl.limits = dialog.values()
+        unit_list.set_limits_text()
+        ctl.metrics_changed.emit()
+
+
+def _step_unit(unit_list: UnitListPanel, step: int) -> None:
+    """Select the unit ``step`` rows below (negative: above) the current one, wrapping around."""
+    view = unit_list.table
+    n = unit_list.proxy.rowCount()
+    if n == 0:
+        return
+    current = view.currentIndex().row() if view.currentIndex().isValid() else -1
+    unit_list.select_rows([(current + step) % n])
+    view.setCurrentIndex(unit_list.proxy.index((current + step) % n, 0))
 
 
 def _label_actions(win, act: Callable, menu: QMenu, relabel: Callable[[str], object]) -> list[QAction]:

@@ -3,9 +3,6 @@
 from __future__ import annotations
 
 import logging
-import os
-import sys
-import traceback
 from pathlib import Path
 from typing import Callable, Sequence
 
@@ -26,8 +23,10 @@ from PySide6.QtWidgets import (
 
 from rigside.core.errors import RigsideError
 from rigside.core.params import Params
+from rigside.core.signal.features import Features
 from rigside.core.signal.filtering import design_bandpass
 from rigside.core.signal.overview import load_overview
+from rigside.core.units.session_open import file_kind, stored_noise
 from rigside.gui import jobs, overview_flow, palette
 from rigside.gui.audit_frame import install_audit
 from rigside.gui.export_menu import install_export
@@ -53,6 +52,8 @@ MIN_TRACE_SHARE = 0.4
 """A restored layout must leave the traces at least this share of the window's height."""
 ANALYSIS_LABEL = "Detecting events"
 log = logging.getLogger("rigside")
+
+OPEN_FILTER = "Recordings and sessions (*.bin *.dat *.raw *.h5 *.hdf5);;All files (*)"
 
 EXTENSIONS: tuple[Callable[["MainWindow"], object], ...] = (install_units, install_audit, install_export)
 """Installers run on every new window: each adds its panels, menus and actions."""
@@ -81,6 +82,8 @@ class MainWindow(QMainWindow):
         self.messages: list[QMessageBox] = []
         self.analysis_outcome = "none"
         self._overview_builder = None   # the overview the running detection pass builds, if any
+        self.session_opener: Callable[..., bool] | None = None   # (path, recording=None), by install_units
+        self.setAcceptDrops(True)
 
         self.traces = TracePanel(self.bench, self.runner)
         self.panels["traces"] = self.traces
@@ -143,7 +146,7 @@ class MainWindow(QMainWindow):
                        "misses and false alarms as the threshold moves.</p>")
         title.setWordWrap(True)
         title.setAlignment(Qt.AlignmentFlag.AlignCenter)
-        open_button = QPushButton("Open a recording…")
+        open_button = QPushButton("Open a recording or session…")
         open_button.clicked.connect(self.choose_file)
         demo_button = QPushButton("Open the demo recording")
         demo_button.clicked.connect(self.open_demo)
@@ -229,7 +232,8 @@ class MainWindow(QMainWindow):
             value = [value]
         return [str(v) for v in (value or [])]
 
-    def _remember(self, path: str) -> None:
+    def remember(self, path: str) -> None:
+        """Put a recording or session file first in the recent files."""
         if not self.interactive:
             return
         files = [path] + [f for f in self.recent_files() if f != path]
@@ -249,21 +253,36 @@ class MainWindow(QMainWindow):
     # ---- opening ----------------------------------------------------------------------------
     def choose_file(self) -> None:
         start = self.recent_files()[0] if self.recent_files() else str(Path.home())
-        path, _ = QFileDialog.getOpenFileName(self, "Open a recording", str(Path(start).parent),
-                                              "Recordings (*.bin *.dat *.raw *.h5 *.hdf5);;All files (*)")
+        path, _ = QFileDialog.getOpenFileName(self, "Open a recording or a session", str(Path(start).parent),
+                                              OPEN_FILTER)
         if path:
+            self.open_path(path)
+
+    def dragEnterEvent(self, event) -> None:
+        if dropped_file(event.mimeData()) is not None:
+            event.acceptProposedAction()
+
+    def dropEvent(self, event) -> None:
+        path = dropped_file(event.mimeData())
+        if path is not None:
+            event.acceptProposedAction()
             self.open_path(path)
 
     def open_demo(self) -> bool:
         return self.open_path(str(demo_path()))
 
-    def open_path(self, path: str, options: dict | None = None) -> bool:
-        """Open a recording and start the long work; False (with a message) if it cannot be opened."""
+    def open_path(self, path: str, options: dict | None = None, session=None) -> bool:
+        """Open a recording or a session file (recognised by its layout) and start what is left to
+        compute; False (with a message) if it cannot be opened. With ``session`` (a loaded
+        :class:`~rigside.core.units.session.Session` whose recording is ``path``), its stored events,
+        noise and features are shown instead of detecting again."""
         try:
+            if session is None and file_kind(path) == "session":
+                return self.open_session(path)
             rec = self._open(path, options or {})
             if rec is None:
                 return False
-            params = Params()
+            params = session.params if session is not None else Params()
             sos = design_bandpass(params.filter, rec.rate_hz)
             overview = load_overview(rec, params.filter)
         except (RigsideError, OSError) as exc:
@@ -283,9 +302,28 @@ class MainWindow(QMainWindow):
             return False
         self.central.setCurrentWidget(self.traces)
         self.setWindowTitle(f"rigside — {Path(path).name}")
-        self._remember(str(Path(path).resolve()))
-        self.start_detection()
+        if session is None:
+            self.remember(str(Path(path).resolve()))
+            self.start_detection()
+        else:
+            self.show_stored(session)
         return True
+
+    def open_session(self, path: str, recording: str | None = None) -> bool:
+        """Open a session file (with ``recording``: at that recording, for one that moved)."""
+        if self.session_opener is None:
+            self.show_error("Cannot open the session", "sessions need the unit work, got a window without it")
+            return False
+        return self.session_opener(path, recording=recording)
+
+    def show_stored(self, session) -> None:
+        """A session's events, noise and features in the workbench: nothing is detected again."""
+        b = self.bench
+        events = session.events
+        b.set_events(stored_noise(events), events)
+        data = session.sorting.data
+        b.set_features(Features(data.features, list(data.feature_names)))
+        self.analysis_outcome = "done"
 
     def _open(self, path: str, options: dict):
         return open_with_dialogs(self, path, options)
@@ -355,42 +393,8 @@ class MainWindow(QMainWindow):
         return not self.runner.busy()
 
 
-def _excepthook(kind, value, tb) -> None:
-    traceback.print_exception(kind, value, tb, file=sys.stderr)
-    app = QApplication.instance()
-    win = next((w for w in app.topLevelWidgets() if isinstance(w, MainWindow)), None) if app else None
-    if win is not None:
-        win.show_error("Something went wrong", f"{kind.__name__}: {value}")
-
-
-def run_window(path: str | None, *, screenshot: str | None = None, recording_options: dict | None = None,
-               demo: bool = False) -> int:
-    """Open the window (on ``path``, or the demo); with ``screenshot``, render to a PNG and exit."""
-    if screenshot:
-        os.environ["QT_QPA_PLATFORM"] = "offscreen"
-    app = QApplication.instance() or QApplication(sys.argv[:1])
-    app.setApplicationName("rigside")
-    win = MainWindow(interactive=not screenshot)
-    target = str(demo_path()) if demo else path
-    if screenshot:
-        from rigside.gui.screenshot import capture
-        win.resize(1600, 1000)
-        win.show()
-        code = 0
-        if target is not None:
-            if not win.open_path(target, recording_options):
-                print(f"rigside: {win.last_error[1]}", file=sys.stderr)
-                code = 2
-            elif not win.wait_idle() or win.analysis_outcome != "done" or win.last_error:
-                print(f"rigside: {win.last_error[1] if win.last_error else 'loading did not finish'}",
-                      file=sys.stderr)
-                code = 1
-        if code == 0:
-            capture(win, screenshot)
-        win.close()
-        return code
-    sys.excepthook = _excepthook
-    win.show()
-    if target is not None:
-        QTimer.singleShot(0, lambda: win.open_path(target, recording_options))
-    return app.exec()
+def dropped_file(mime) -> str | None:
+    """The first local file among dropped URLs, or None."""
+    if not mime.hasUrls():
+        return None
+    return next((u.toLocalFile() for u in mime.urls() if u.isLocalFile() and Path(u.toLocalFile()).is_file()), None)

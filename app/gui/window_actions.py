@@ -40,7 +40,7 @@ def build_actions(win) -> dict[str, QAction]:
 
     bar = win.menuBar()
     file_menu = bar.addMenu("&File")
-    act("open", "&Open recording…", win.choose_file, [QKeySequence.StandardKey.Open], menu=file_menu)
+    act("open", "&Open a recording or session…", win.choose_file, [QKeySequence.StandardKey.Open], menu=file_menu)
     act("open_demo", "Open the &demo recording", win.open_demo, ["Ctrl+Shift+D"], menu=file_menu)
     win.recent_menu = file_menu.addMenu("Open &recent")
     win.rebuild_recent_menu()
@@ -74,8 +74,8 @@ def build_actions(win) -> dict[str, QAction]:
     thr = bar.addMenu("&Threshold")
     act("stricter", "Raise the threshold (stricter)", lambda: bench.step_threshold(1), ["Ctrl+Up"], menu=thr)
     act("looser", "Lower the threshold (looser)", lambda: bench.step_threshold(-1), ["Ctrl+Down"], menu=thr)
-    act("unit", "Switch between σ multiples and µV",
-        lambda: bench.set_unit("uv" if bench.unit == "sigma" else "sigma"), ["U"], menu=thr)
+    act("scale", "Switch between σ multiples and µV",
+        lambda: bench.set_scale("uv" if bench.scale == "sigma" else "sigma"), ["U"], menu=thr)
     act("scope", "Switch between all channels and the selected channel",
         lambda: bench.set_scope("channel" if bench.scope == "all" else "all"), ["Ctrl+U"], menu=thr)
     thr.addSeparator()

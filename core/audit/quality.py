@@ -15,9 +15,6 @@ reads contiguous.
 
 from __future__ import annotations
 
-from collections import deque
-from concurrent.futures import Future, ThreadPoolExecutor
-
 import numpy as np
 
 from rigside.core.audit.imported import Placement, to_samples
@@ -25,7 +22,7 @@ from rigside.core.events import EventTable
 from rigside.core.io.recording import Recording
 from rigside.core.io.spike_import import SpikeTrains
 from rigside.core.params import MetricParams, Params
-from rigside.core.progress import CancelFn, Cancelled, ProgressFn, check, report
+from rigside.core.progress import CancelFn, ProgressFn, report, run_bounded
 from rigside.core.quality.unit_table import unit_metrics_for_events, unit_metrics_table
 from rigside.core.signal.features import compute_features
 from rigside.core.signal.filtering import BandPass
@@ -66,22 +63,13 @@ def values_at(bandpass: BandPass, samples: np.ndarray, channels: np.ndarray, chu
         y = bandpass.read(int(samples[a]), int(samples[b - 1]) + 1, None if every else chans)
         out[a:b] = y[samples[a:b] - samples[a], np.searchsorted(chans, channels[a:b])]
 
-    with ThreadPoolExecutor(max_workers=workers) as pool:
-        pending: deque[Future] = deque()
-        try:
-            for k in range(len(bounds)):
-                check(cancel)
-                pending.append(pool.submit(work, k))
-                if len(pending) >= 2 * workers:
-                    pending.popleft().result()
-                    report(progress, (k + 1 - len(pending)) / len(bounds), "reading amplitudes")
-            while pending:
-                check(cancel)
-                pending.popleft().result()
-        except Cancelled:
-            for f in pending:
-                f.cancel()
-            raise
+    done = [0]
+
+    def advance(_: None) -> None:
+        done[0] += 1
+        report(progress, done[0] / len(bounds), "reading amplitudes")
+
+    run_bounded(work, ((k,) for k in range(len(bounds))), workers, advance, cancel)
     report(progress, 1.0, "reading amplitudes")
     return out
 

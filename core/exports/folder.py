@@ -80,4 +80,5 @@ class ExportFolder:
         return self._write_manifest({**manifest, "complete": True, "files": files})
 
     def _write_manifest(self, doc: dict) -> Path:
-        return atomic_write(self.out / MANIFEST, lambda tmp: tmp.write_text(json.dumps(doc, indent=1)))
+        text = json.dumps(doc, indent=1)
+        return atomic_write(self.out / MANIFEST, lambda tmp: tmp.write_text(text, encoding="utf-8", newline="\n"))

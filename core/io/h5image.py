@@ -9,9 +9,20 @@ from __future__ import annotations
 
 import contextlib
 from pathlib import Path
-from typing import Callable, Iterator
+from typing import Callable, Iterator, TypeVar
 
 import h5py
+
+T = TypeVar("T")
+
+
+@contextlib.contextmanager
+def _memory_file(name: str, file_options: dict) -> Iterator[h5py.File]:
+    f = h5py.File(f"{name}.image", "w", driver="core", backing_store=False, **file_options)
+    try:
+        yield f
+    finally:
+        f.close()
 
 
 @contextlib.contextmanager
@@ -21,15 +32,21 @@ def h5_in_memory(tmp: str | Path, **file_options) -> Iterator[h5py.File]:
     ``file_options`` go to :class:`h5py.File` (e.g. ``libver``). Nothing touches the disk
     until the block has finished; then the whole image is written at once.
     """
-    f = h5py.File(f"{tmp}.image", "w", driver="core", backing_store=False, **file_options)
-    try:
+    with _memory_file(str(tmp), file_options) as f:
         yield f
         f.flush()
         image = f.id.get_file_image()
-    finally:
-        f.close()
     with open(tmp, "wb") as fh:
         fh.write(image)
+
+
+def h5_image(fill: Callable[[h5py.File], T], name: str = "image", **file_options) -> tuple[bytes, T]:
+    """Build an HDF5 file in memory with ``fill(f)``; returns its bytes and what ``fill`` returned
+    (write the bytes with ordinary file I/O, e.g. through :func:`rigside.core.io.atomic.atomic_write`)."""
+    with _memory_file(name, file_options) as f:
+        result = fill(f)
+        f.flush()
+        return f.id.get_file_image(), result
 
 
 def write_h5(tmp: str | Path, fill: Callable[[h5py.File], None], **file_options) -> None:

@@ -12,8 +12,9 @@ from __future__ import annotations
 import hashlib
 import math
 import os
+from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
-from typing import Any
+from typing import Any, Mapping
 
 import h5py
 import numpy as np
@@ -75,22 +76,10 @@ def _members(g: h5py.Group, where: str) -> list[tuple[str, Any]]:
     return out
 
 
-def read_verified(f: h5py.File, path: str | Path, size: int | None = None) -> tuple[dict[str, np.ndarray], str]:
-    """Read every dataset of an open file after checking its structure, and hash it all.
-
-    ``size`` is the file's size in bytes (default: the size of ``path`` on disk; give it for
-    a file still being built in memory).
-
-    Returns
-    -------
-    data, digest
-        Arrays by slash path (e.g. ``"sorting/assignments"``) and the SHA-256 hex digest of
-        the structure, attributes (except the root checksum) and data.
-    """
-    size = os.path.getsize(path) if size is None else size
+def _structure(f: h5py.File, size: int, h) -> list[tuple[str, h5py.Dataset]]:
+    """Check the structure and limits of ``f``, hashing groups and their attributes into ``h``;
+    returns the datasets by slash path."""
     budget = MAX_EXPANSION * size + (64 << 20)
-    h = hashlib.sha256()
-    data: dict[str, np.ndarray] = {}
     datasets: list[tuple[str, h5py.Dataset]] = []
     stack: list[tuple[str, h5py.Group, int]] = [("", f, 0)]
     n_objects = 0
@@ -115,16 +104,66 @@ def read_verified(f: h5py.File, path: str | Path, size: int | None = None) -> tu
     if declared > budget:
         raise SessionError(f"session datasets must fit the file's size ({size} bytes), "
                            f"got {declared} bytes declared")
-    for full, ds in datasets:
-        try:
-            arr = ds[()]
-        except (OSError, ValueError, TypeError) as exc:
-            raise SessionError(f"session dataset {full} must be readable, got {exc}") from None
-        arr = np.ascontiguousarray(arr)
-        h.update(b"D" + full.encode("utf-8") + b"\0" + arr.dtype.str.encode() + repr(arr.shape).encode())
-        _hash_attrs(h, ds, full)
-        h.update(arr.tobytes())
-        data[full] = arr
+    return datasets
+
+
+def _raw(arr: np.ndarray) -> memoryview:
+    """The bytes of a C-contiguous array without copying them."""
+    return memoryview(arr.reshape(-1).view(np.uint8))
+
+
+def _data_of(full: str, ds: h5py.Dataset, known: Mapping[str, np.ndarray] | None) -> np.ndarray:
+    if known is not None and full in known:
+        arr = np.ascontiguousarray(known[full])
+        if arr.shape != ds.shape or arr.dtype != ds.dtype:
+            raise ValueError(f"array given for {full} must be what the file stores ({ds.dtype} {ds.shape}), "
+                             f"got {arr.dtype} {arr.shape}")
+        return arr
+    try:
+        arr = ds[()]
+    except (OSError, ValueError, TypeError) as exc:
+        raise SessionError(f"session dataset {full} must be readable, got {exc}") from None
+    return np.ascontiguousarray(arr)
+
+
+def read_verified(f: h5py.File, path: str | Path, size: int | None = None, per_dataset: bool = False,
+                  known: Mapping[str, np.ndarray] | None = None) -> tuple[dict[str, np.ndarray], str]:
+    """Read every dataset of an open file after checking its structure, and hash it all.
+
+    Parameters
+    ----------
+    f, path
+        The open file and its path.
+    size
+        The file's size in bytes (default: the size of ``path`` on disk; give it for a file
+        still being built in memory).
+    per_dataset
+        Hash each dataset's bytes on its own (SHA-256, on worker threads while the next
+        dataset is read) and the structure with those digests (session format 3); otherwise
+        one SHA-256 over everything (formats 1 and 2).
+    known
+        Arrays by slash path that the file holds and the caller already has (a file just
+        written from them): hashed from memory instead of read back.
+
+    Returns
+    -------
+    data, digest
+        Arrays by slash path (e.g. ``"sorting/assignments"``) and the SHA-256 hex digest of
+        the structure, attributes (except the root checksum) and data.
+    """
+    h = hashlib.sha256()
+    datasets = _structure(f, os.path.getsize(path) if size is None else size, h)
+    data: dict[str, np.ndarray] = {}
+    with ThreadPoolExecutor(2) as pool:
+        parts = []
+        for full, ds in datasets:
+            arr = data[full] = _data_of(full, ds, known)
+            parts.append(pool.submit(lambda a: hashlib.sha256(_raw(a)).digest(), arr) if per_dataset else arr)
+        for (full, ds), part in zip(datasets, parts):
+            arr = data[full]
+            h.update(b"D" + full.encode("utf-8") + b"\0" + arr.dtype.str.encode() + repr(arr.shape).encode())
+            _hash_attrs(h, ds, full)
+            h.update(part.result() if per_dataset else _raw(arr))
     return data, h.hexdigest()
 
 
@@ -172,9 +211,11 @@ def text(data: dict[str, np.ndarray], name: str) -> str:
         raise SessionError(f"session dataset {name} must hold UTF-8 text, got undecodable bytes") from None
 
 
-def write_text(g: h5py.Group, name: str, value: str) -> None:
-    """Store text as a uint8 dataset (attributes are limited to 64 KiB)."""
-    g.create_dataset(name, data=np.frombuffer(value.encode("utf-8"), dtype=np.uint8))
+def write_text(g: h5py.Group, name: str, value: str) -> np.ndarray:
+    """Store text as a uint8 dataset (attributes are limited to 64 KiB); returns the stored bytes."""
+    raw = np.frombuffer(value.encode("utf-8"), dtype=np.uint8)
+    g.create_dataset(name, data=raw)
+    return raw
 
 
 def stored_dataset(f: h5py.File, name: str, allow_external: bool,

@@ -97,8 +97,9 @@ class Recording:
         """Raise if float data holds NaN or Inf (integer data cannot)."""
         if self.float_data and stored.size and not np.isfinite(stored).all():
             bad = np.argwhere(~np.isfinite(stored))[0]
+            channel = int(bad[1]) if channels is None else int(channels[bad[1]])
             raise RecordingError(f"recording must hold finite values, got NaN or Inf at sample "
-                                 f"{start + int(bad[0])}, channel {int(bad[1]) if channels is None else int(channels[bad[1]])}")
+                                 f"{start + int(bad[0])}, channel {channel}")
 
     def fingerprint(self) -> str:
         """Size plus a SHA-256 of three 1 MiB blocks (start, middle, end) of the file."""
@@ -206,7 +207,8 @@ class HDF5Recording(Recording):
         attrs = self._ds.attrs
         rate = rate_hz if rate_hz is not None else attrs.get("rate_hz", self._file.attrs.get("rate_hz"))
         if rate is None:
-            raise RecordingError(f"HDF5 recording must carry a 'rate_hz' attribute (or give --rate), got none in {str(path)!r}")
+            raise RecordingError(f"HDF5 recording must carry a 'rate_hz' attribute (or give --rate), "
+                                 f"got none in {str(path)!r}")
         gain = gain_uv if gain_uv is not None else attrs.get("gain_uv", 1.0)
         for what, v in (("rate_hz", rate), ("gain_uv", gain), ("offset_uv", attrs.get("offset_uv", 0.0))):
             if not is_number(v):
@@ -276,7 +278,8 @@ def read_metadata(meta: str | Path) -> Layout:
         if key not in rec:
             raise RecordingError(f"metadata [recording] must give {key}, got none in {str(meta)!r}")
     groups = data.get("group", [])
-    if not isinstance(groups, list) or not all(isinstance(g, dict) and isinstance(g.get("channels"), list) for g in groups):
+    if not isinstance(groups, list) or not all(isinstance(g, dict) and isinstance(g.get("channels"), list)
+                                               for g in groups):
         raise RecordingError("metadata [[group]] entries must each hold a channels list, got "
                              f"{groups!r}"[:200])
     layout = Layout(channels=rec["channels"], rate_hz=rec["rate_hz"], dtype=rec.get("dtype", "int16"),
@@ -294,14 +297,16 @@ def write_metadata(path: str | Path, layout: Layout) -> Path:
     """Write the metadata file of our schema beside the raw file ``path`` (atomically)."""
     layout.validate()
     rec = {"schema": 1, "dtype": layout.dtype, "channels": layout.channels, "rate_hz": float(layout.rate_hz),
-           "gain_uv": float(layout.gain_uv), "offset_uv": float(layout.offset_uv), "offset_counts": float(layout.offset_counts),
+           "gain_uv": float(layout.gain_uv), "offset_uv": float(layout.offset_uv),
+           "offset_counts": float(layout.offset_counts),
            "header_bytes": layout.header_bytes}
     names = layout.group_names or []
     groups = [{"name": str(names[i]) if i < len(names) else f"group {i}", "channels": [int(c) for c in g]}
               for i, g in enumerate(layout.groups or [])]
-    text = "# rigside recording description\n" + tomli_w.dumps({"recording": rec} | ({"group": groups} if groups else {}))
+    table = {"recording": rec} | ({"group": groups} if groups else {})
+    text = "# rigside recording description\n" + tomli_w.dumps(table)
     meta = Path(path).with_name(Path(path).stem + META_SUFFIX)
-    return atomic_write(meta, lambda tmp: tmp.write_text(text, encoding="utf-8"))
+    return atomic_write(meta, lambda tmp: tmp.write_text(text, encoding="utf-8", newline="\n"))
 
 
 def open_recording(path: str | Path, *, channels: int | None = None, rate_hz: float | None = None,

@@ -108,7 +108,7 @@ class SpikeTrains:
                              f"{last:.6g} s (first in unit {unit}){hint}")
 
 
-def finish(times_s, units, source: str, listed=None) -> SpikeTrains:
+def checked_trains(times_s, units, source: str, listed=None) -> SpikeTrains:
     """Check raw columns and build :class:`SpikeTrains` (sorted by unit, stable in time).
 
     Parameters
@@ -143,7 +143,8 @@ def finish(times_s, units, source: str, listed=None) -> SpikeTrains:
         i = int(np.argmax(backwards))
         raise SpikeFileError(f"spike times of each unit in {name} must be sorted in time, got "
                              f"{t[i]:.6g} s before {t[i + 1]:.6g} s in unit {int(u[i])}")
-    empty = () if listed is None else tuple(int(x) for x in np.setdiff1d(_integer_ids(listed, f"unit list of {name}"), u))
+    empty = () if listed is None else tuple(int(x) for x in
+                                            np.setdiff1d(_integer_ids(listed, f"unit list of {name}"), u))
     return SpikeTrains(np.ascontiguousarray(t), np.ascontiguousarray(u), source, empty)
 
 

@@ -1,7 +1,7 @@
 """Readers of the spike-file layouts described in :mod:`rigside.core.io.spike_import`.
 
 Each reader returns ``(times_s, units)`` in file order, plus the listed unit ids for layouts
-that list units apart from their spikes (HDF5 ``unit_ids``, NWB); :func:`rigside.core.io.spike_import.finish`
+that list units apart from their spikes (HDF5 ``unit_ids``, NWB); :func:`rigside.core.io.spike_import.checked_trains`
 checks them. Sizes declared by a file (NumPy headers, HDF5 shapes) are checked against the
 size of the file before anything is allocated, so a small hostile file cannot claim gigabytes.
 """
@@ -19,7 +19,7 @@ import h5py
 import numpy as np
 
 from rigside.core.errors import SpikeFileError
-from rigside.core.io.spike_import import TIME_COLUMNS, SpikeTrains, finish, pick_time_column, to_seconds
+from rigside.core.io.spike_import import TIME_COLUMNS, SpikeTrains, checked_trains, pick_time_column, to_seconds
 
 MAX_EXPANSION = 64
 """Declared array bytes may exceed the file size by at most this factor (plus 64 MiB)."""
@@ -121,6 +121,8 @@ def _parse_block(text: str, order: list[int], dtype: list, cols: dict[str, int],
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", UserWarning)     # a block of comments only is empty
+            # older numpy (2.0, the floor) only warns and truncates when an integer column holds "1.5"
+            warnings.simplefilter("error", DeprecationWarning)
             return np.loadtxt(lines, delimiter=",", usecols=order, dtype=dtype, ndmin=1, comments="#",
                               quotechar='"')
     except ValueError as exc:
@@ -385,5 +387,5 @@ def load_spikes(path: str | Path, rate_hz: float | None = None, group: str | Non
         raise SpikeFileError(f"time offset must be a finite number of seconds, got {time_offset_s!r}")
     kwargs = {"group": group} if suffix in (".h5", ".hdf5") else {}
     times, units, *listed = readers[suffix](path, rate_hz, **kwargs)
-    return finish(np.asarray(times, dtype=np.float64) - float(time_offset_s), units, path.name,
+    return checked_trains(np.asarray(times, dtype=np.float64) - float(time_offset_s), units, path.name,
                   listed[0] if listed else None)

@@ -164,6 +164,25 @@ def _mode(x: np.ndarray) -> int:
     return int(vals[np.argmax(counts)])
 
 
+def main_channel(event_channels: np.ndarray) -> int:
+    """A unit's main channel: the channel on which most of its events were detected.
+
+    Parameters
+    ----------
+    event_channels
+        Detection channel of each of the unit's events (at least one).
+
+    Returns
+    -------
+    int
+        The most frequent channel (the lowest of tied channels). Imported units carry no detection
+        channel; the audit places them by their mean waveform instead (``rigside.core.audit.imported``).
+    """
+    if len(event_channels) == 0:
+        raise RigsideError("a unit's main channel needs events, got none")
+    return _mode(np.asarray(event_channels))
+
+
 class _GroupSpace:
     """Centred float64 features of one channel group, built once and reused for its units."""
 
@@ -189,7 +208,7 @@ class _GroupSpace:
 def unit_metrics_table(times_s: np.ndarray, units: np.ndarray, duration_s: float,
                        amplitudes_uv: np.ndarray, amplitude_sigma: np.ndarray, channel: np.ndarray,
                        sigma_uv: np.ndarray, threshold_sigma, features: np.ndarray | None,
-                       groups_of_units: np.ndarray | None = None, params: MetricParams | None = None,
+                       event_groups: np.ndarray | None = None, params: MetricParams | None = None,
                        progress: ProgressFn = None, cancel: CancelFn = None,
                        only_units=None) -> dict[str, np.ndarray]:
     """Quality metrics of every unit, one row per unit id (sorted).
@@ -216,7 +235,7 @@ def unit_metrics_table(times_s: np.ndarray, units: np.ndarray, duration_s: float
     features
         Events x features (one feature space per channel group), or None when there are none
         (isolation distance and L-ratio are then NaN with a reason).
-    groups_of_units
+    event_groups
         Channel group of each event (None: all events in one group). A unit is compared with
         all other events of the group holding most of its events; its events in other groups
         take no part in isolation distance and L-ratio.
@@ -236,7 +255,7 @@ def unit_metrics_table(times_s: np.ndarray, units: np.ndarray, duration_s: float
     params = params or MetricParams()
     params.validate()
     inp = _Inputs(times_s, units, duration_s, amplitudes_uv, amplitude_sigma, channel, sigma_uv,
-                  threshold_sigma, features, groups_of_units)
+                  threshold_sigma, features, event_groups)
     ids, rows = _unit_rows(inp, only_units)
     unit_groups = [_mode(inp.groups[r]) for r in rows]
     ordered = sorted(range(len(ids)), key=lambda i: unit_groups[i])
@@ -262,7 +281,7 @@ def _dtype(column: str) -> type:
 def _one_unit(inp: _Inputs, params: MetricParams, unit: int, rows: np.ndarray, group: int,
               space: _GroupSpace | None) -> dict:
     t = inp.times[rows]
-    main = _mode(inp.channel[rows])
+    main = main_channel(inp.channel[rows])
     on_main = rows[inp.channel[rows] == main]
     isi = isi_violations(t, inp.duration, params.refractory_ms / 1e3, params.censored_ms / 1e3)
     if space is None:

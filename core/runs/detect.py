@@ -75,7 +75,8 @@ def write_summary(path: Path, rec: Recording, params: Params, events: EventTable
         "rate_hz": rec.rate_hz,
         "artefact_events": int((events.artefact & events.mask(threshold_sigma=thr, include_artefacts=True)).sum()),
         "channels": [{"channel": c, "group": int(rec.channel_group[c]), "noise_uv": float(events.sigma_uv[c]),
-                      "threshold_uv": float(thr[c] * events.sigma_uv[c]) if np.isfinite(thr[c]) and events.sigma_uv[c] > 0 else None,
+                      "threshold_uv": (float(thr[c] * events.sigma_uv[c])
+                                       if np.isfinite(thr[c]) and events.sigma_uv[c] > 0 else None),
                       "events": int(counts[c]), "rate_hz": float(counts[c] / rec.duration_s),
                       "flag": noise.bad.get(c), "excluded": c in events.excluded}
                      for c in range(rec.n_channels)],
@@ -84,4 +85,4 @@ def write_summary(path: Path, rec: Recording, params: Params, events: EventTable
                            for gi in groups_without_usable_channel(rec.groups, events.excluded)],
         "notes": exclusion_notes(rec.groups, rec.group_names, events.excluded),
     }
-    atomic_write(path, lambda tmp: tmp.write_text(json.dumps(doc, indent=2)))
+    atomic_write(path, lambda tmp: tmp.write_text(json.dumps(doc, indent=2), encoding="utf-8", newline="\n"))

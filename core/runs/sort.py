@@ -151,7 +151,7 @@ def sort_recording(recording: Recording, params: Params, checkpoint: Path | None
         if checkpoint is not None:
             _write_checkpoint(checkpoint, key, events, features, recording.content_hash)
     report(progress, a + b, "features ready")
-    sorting = first_pass(events, features, params.cluster, cancel=cancel,
+    sorting = first_pass(events, features, params.cluster, cancel=cancel, workers=params.run.workers,
                          progress=lambda f, m: report(progress, a + b + (1 - a - b) * f, m))
     return events, sorting
 

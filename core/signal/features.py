@@ -2,8 +2,13 @@
 
 Snippets are first aligned to the sub-sample position of their peak (see
 :func:`rigside.core.signal.snippets.align_subsample`). PCA (scikit-learn) is fitted per channel group on a
-seeded random subset of the group's snippets (all usable channels of the group concatenated:
-channels flagged dead or saturated are left out), then applied to every event.
+seeded random subset of the group's snippets (all usable channels of the group concatenated,
+in the group's order: channels flagged dead or saturated are left out), then applied to every
+event. Every event's snippet is cut once, by :func:`rigside.core.signal.snippet_pass.snippet_pass` (chunked
+passes over the filtered recording): first the fit subsets of all groups, held until each
+group's basis is fitted (at most ``pca_fit_events`` snippets per group, whatever the recording
+length), then the other events, projected as they are cut. When every event of every group is
+in its fit subset, the second pass reads nothing.
 Shape features, on the event's own channel: signed peak (uV), trough-to-peak width (ms:
 from the peak to the largest excursion of the opposite sign after it) and energy (mean
 squared amplitude over the window and the group's channels, uV^2).
@@ -19,11 +24,11 @@ from sklearn.decomposition import PCA
 from rigside.core.events import EventTable
 from rigside.core.io.recording import Recording
 from rigside.core.params import Params
-from rigside.core.progress import CancelFn, ProgressFn, check, report
+from rigside.core.progress import CancelFn, ProgressFn, report
+from rigside.core.signal.chunk_pool import single_threaded_pools
 from rigside.core.signal.filtering import BandPass
-from rigside.core.signal.snippets import align_subsample, extract_snippets, snippet_window
-
-BATCH = 50000
+from rigside.core.signal.snippet_pass import own_columns, snippet_pass
+from rigside.core.signal.snippets import snippet_window
 
 
 @dataclass
@@ -75,7 +80,8 @@ def compute_features(recording: Recording, events: EventTable, params: Params, p
     events
         Event table (all groups).
     params
-        ``params.snippets`` sets the window, component count, PCA fit subset and seed.
+        ``params.snippets`` sets the window, component count, PCA fit subset and seed;
+        ``params.run`` the chunk length and worker count of the passes.
     progress, cancel
         Progress callback and cancel check.
     index
@@ -91,29 +97,69 @@ def compute_features(recording: Recording, events: EventTable, params: Params, p
     bp = BandPass(recording, params.filter)
     before, after = snippet_window(sp, recording.rate_hz)
     idx_all = np.arange(len(events)) if index is None else np.asarray(index, dtype=np.int64)
+    order = np.argsort(events.sample[idx_all], kind="stable")
+    sample, group = events.sample[idx_all][order], events.group[idx_all][order]
+    groups = np.unique(group)
+    slot = np.searchsorted(groups, group)
+    channels = [usable_channels(recording.groups[int(g)], events.excluded) for g in groups]
+    own = own_columns(events.channel[idx_all][order], slot, channels, recording.n_channels)
+    fit = _fit_subsets(slot, len(groups), sp.pca_fit_events, sp.seed)
+    chosen = np.sort(np.concatenate(fit)) if len(fit) else np.zeros(0, dtype=np.int64)
+    rest = np.setdiff1d(np.arange(len(sample)), chosen, assume_unique=True)
+    share = len(chosen) / max(1, len(sample))
     out = np.zeros((len(idx_all), sp.n_pcs + 3), dtype=np.float32)
-    rng = np.random.default_rng(sp.seed)
-    groups = np.unique(events.group[idx_all]) if len(idx_all) else []
-    done = 0
-    for g in groups:
-        rows = np.flatnonzero(events.group[idx_all] == g)
-        rows = rows[np.argsort(events.sample[idx_all[rows]], kind="stable")]
-        channels = usable_channels(recording.groups[int(g)], events.excluded)
-        own_col = np.searchsorted(channels, events.channel[idx_all[rows]]) if np.all(np.diff(channels) > 0) \
-            else np.array([int(np.flatnonzero(channels == c)[0]) for c in events.channel[idx_all[rows]]])
-        fit = np.sort(rng.choice(len(rows), size=min(len(rows), sp.pca_fit_events), replace=False))
-        fit_snips = align_subsample(extract_snippets(bp, events.sample[idx_all[rows[fit]]], channels, sp, cancel, pad=1),
-                                    own_col[fit], before)
-        n_comp = min(sp.n_pcs, fit_snips.shape[1] * fit_snips.shape[2], len(fit))
-        pca = PCA(n_components=n_comp, random_state=sp.seed).fit(fit_snips.reshape(len(fit), -1)) if n_comp >= 1 and len(fit) > n_comp else None
-        for b0 in range(0, len(rows), BATCH):
-            check(cancel)
-            part = rows[b0:b0 + BATCH]
-            snips = align_subsample(extract_snippets(bp, events.sample[idx_all[part]], channels, sp, cancel, pad=1),
-                                    own_col[b0:b0 + BATCH], before)
-            if pca is not None:
-                out[part, :n_comp] = pca.transform(snips.reshape(len(part), -1))
-            out[part, sp.n_pcs:] = shape_features(snips, own_col[b0:b0 + BATCH], before, recording.rate_hz)
-            done += len(part)
-            report(progress, done / max(1, len(idx_all)), "computing features")
+    row_of = np.zeros(len(sample), dtype=np.int64)
+    for f in fit:
+        row_of[f] = np.arange(len(f))
+    held = [np.empty((len(f), (before + after) * len(ch)), dtype=np.float32) for f, ch in zip(fit, channels)]
+
+    def cut(which: np.ndarray, put, share0: float, share1: float) -> None:
+        def consume(pos: np.ndarray, aligned: np.ndarray, runs: list[tuple[int, int, int]]) -> None:
+            ev = which[pos]
+            out[order[ev], sp.n_pcs:] = shape_features(aligned, own[ev], before, recording.rate_hz)
+            flat = aligned.reshape(len(pos), -1)
+            for s, a, b in runs:
+                put(s, ev[a:b], flat[a:b])
+        snippet_pass(bp, sample[which], slot[which], own[which], channels, params, consume,
+                     lambda f, m: report(progress, share0 + (share1 - share0) * f, m), cancel)
+
+    def hold(s: int, ev: np.ndarray, flat: np.ndarray) -> None:
+        # a chunk brings all fit events of a group between two times, in time order: one slice
+        first = int(row_of[ev[0]])
+        held[s][first:first + len(ev)] = flat
+
+    cut(chosen, hold, 0.0, share)
+    pcas: list[PCA | None] = []
+    with single_threaded_pools():  # small matrices: one BLAS thread is faster here, and the same everywhere
+        for s, x in enumerate(held):
+            n_comp = min(sp.n_pcs, x.shape[1], len(x))
+            pcas.append(PCA(n_components=n_comp, random_state=sp.seed).fit(x)
+                        if n_comp >= 1 and len(x) > n_comp else None)
+            put_scores(out, order[fit[s]], pcas[s], x)
+            held[s] = None  # the group's subset is projected: free it
+
+    cut(rest, lambda s, ev, flat: put_scores(out, order[ev], pcas[s], flat), share, 1.0)
+    report(progress, 1.0, "features done")
     return Features(out, feature_names(sp.n_pcs))
+
+
+def put_scores(out: np.ndarray, rows: np.ndarray, pca: PCA | None, flat: np.ndarray) -> None:
+    """Write the PCA scores of flattened snippets into the first columns of ``out`` (none without a fit).
+
+    The projection is scikit-learn's ``PCA.transform`` (centre, then project on the components)
+    without its input checks, which cost more than the product on the few events of one chunk.
+    """
+    if pca is not None:
+        scores = flat @ pca.components_.T
+        scores -= pca.mean_.reshape(1, -1) @ pca.components_.T
+        out[rows, :pca.n_components_] = scores
+
+
+def _fit_subsets(slot: np.ndarray, n_slots: int, size: int, seed: int) -> list[np.ndarray]:
+    """Per slot, the positions (in time order) of a seeded random subset of at most ``size`` events."""
+    rng = np.random.default_rng(seed)
+    out = []
+    for s in range(n_slots):
+        rows = np.flatnonzero(slot == s)
+        out.append(rows[np.sort(rng.choice(len(rows), size=min(len(rows), size), replace=False))])
+    return out

@@ -2,27 +2,22 @@
 
 from __future__ import annotations
 
-from collections import deque
-from concurrent.futures import Future, ThreadPoolExecutor
-
 import numpy as np
 
-from rigside.core.events import EventTable
+from rigside.core.events import COLUMNS, EventTable, uv_to_sigma
 from rigside.core.io.content import BackgroundHasher
 from rigside.core.io.recording import Recording
 from rigside.core.params import Params
-from rigside.core.progress import CancelFn, ProgressFn, check, report
+from rigside.core.progress import CancelFn, ProgressFn, report, run_bounded
+from rigside.core.signal.chunk_pool import chunk_bounds
 from rigside.core.signal.detection import BlockEvents, detect_block
 from rigside.core.signal.filtering import BandPass
 from rigside.core.signal.noise import NoiseEstimate, estimate_noise
 from rigside.core.signal.overview import OverviewBuilder
 
-NOISE_SHARE = 0.1  # fraction of the progress bar given to the noise estimate
-
-
-def chunk_bounds(n_samples: int, chunk: int) -> list[tuple[int, int]]:
-    """Consecutive ``[start, stop)`` ranges of at most ``chunk`` samples covering the file."""
-    return [(s, min(s + chunk, n_samples)) for s in range(0, n_samples, chunk)]
+NOISE_SHARE = 0.1
+"""Fraction of a detection's progress bar given to the noise estimate; :func:`detect` reports
+from here to 1 whether it estimates the noise itself or is given it."""
 
 
 def thresholds_sigma(params: Params, sigma_uv: np.ndarray) -> np.ndarray:
@@ -30,8 +25,7 @@ def thresholds_sigma(params: Params, sigma_uv: np.ndarray) -> np.ndarray:
     d = params.detect
     if d.threshold_uv is None:
         return np.full(len(sigma_uv), d.threshold_sigma, dtype=np.float64)
-    with np.errstate(divide="ignore"):
-        return np.where(sigma_uv > 0, d.threshold_uv / np.where(sigma_uv > 0, sigma_uv, 1.0), np.inf)
+    return uv_to_sigma(d.threshold_uv, sigma_uv)
 
 
 def lookup_floor(params: Params, sigma_uv: np.ndarray) -> float:
@@ -99,35 +93,21 @@ def detect(recording: Recording, params: Params, progress: ProgressFn = None, ca
     parts: list[BlockEvents] = []
     hasher = BackgroundHasher(recording.path)
 
-    def collect(future: Future) -> None:
-        parts.append(future.result())
+    def collect(part: BlockEvents) -> None:
+        parts.append(part)
         hasher.advance(len(parts) / len(bounds))
         report(progress, NOISE_SHARE + (1 - NOISE_SHARE) * len(parts) / len(bounds), "detecting")
 
-    with hasher, ThreadPoolExecutor(max_workers=params.run.workers) as pool:
-        pending: deque[Future] = deque()
-        todo = iter(bounds)
-        try:
-            for b in todo:
-                check(cancel)
-                pending.append(pool.submit(work, *b))
-                if len(pending) >= 2 * params.run.workers:
-                    collect(pending.popleft())
-            while pending:
-                check(cancel)
-                collect(pending.popleft())
-            recording.content_hash = hasher.finish()
-        except BaseException:
-            for f in pending:
-                f.cancel()
-            raise
+    with hasher:
+        run_bounded(work, bounds, params.run.workers, collect, cancel)
+        recording.content_hash = hasher.finish()
     return _assemble(parts, recording, sigma, floor, d.polarity, excluded)
 
 
 def _assemble(parts: list[BlockEvents], recording: Recording, sigma: np.ndarray, floor: float,
               polarity: str, excluded: dict[int, str]) -> EventTable:
     cols = {name: np.concatenate([getattr(p, name) for p in parts]) if parts else np.empty(0)
-            for name in ("sample", "channel", "group", "amplitude_uv", "amplitude_sigma", "artefact")}
+            for name in COLUMNS}
     order = np.lexsort((cols["group"], cols["sample"]))
     cols = {k: v[order] for k, v in cols.items()}
     return EventTable(**cols, rate_hz=recording.rate_hz, n_samples=recording.n_samples, sigma_uv=sigma,

@@ -74,10 +74,7 @@ def extract_snippets(bandpass: BandPass, samples: np.ndarray, channels: np.ndarr
             j = max(j, i + 1)
             lo = max(0, int(samples[i]) - before)
             hi = min(n_total, int(samples[j - 1]) + after)
-            y = bandpass.read(lo, hi, channels)
-            idx = samples[i:j, None] + offs[None, :] - lo
-            valid = (idx >= 0) & (idx < hi - lo)
-            out[i:j] = np.where(valid[..., None], y[np.clip(idx, 0, hi - lo - 1)], 0.0)
+            out[i:j] = cut_windows(bandpass.read(lo, hi, channels), lo, samples[i:j], offs)
             i = j
     return out
 
@@ -150,3 +147,38 @@ def align_subsample(padded: np.ndarray, own: np.ndarray, before: int) -> np.ndar
     mid = padded[:, 1:-1]
     ahead = np.where(delta >= 0, padded[:, 2:], padded[:, :-2])
     return (mid + np.abs(delta) * (ahead - mid)).astype(np.float32)
+
+
+def cut_windows(block: np.ndarray, start: int, samples: np.ndarray, offsets: np.ndarray,
+                channels: np.ndarray | None = None) -> np.ndarray:
+    """Windows of a filtered block around peak samples, zero where they leave the block.
+
+    Parameters
+    ----------
+    block
+        Filtered samples x channels, holding file samples ``[start, start + len(block))``.
+    samples
+        Peak samples (file positions).
+    offsets
+        Window sample offsets relative to the peak.
+    channels
+        Columns of ``block`` to cut, in this order: one list for every window ``(C,)``, or one
+        per window ``(len(samples), C)``; all columns when ``None``.
+
+    Returns
+    -------
+    numpy.ndarray
+        float32 ``(len(samples), len(offsets), C)``.
+    """
+    idx = np.asarray(samples, dtype=np.int64)[:, None] + offsets[None, :] - start
+    inside = (idx >= 0) & (idx < len(block))
+    rows = np.clip(idx, 0, len(block) - 1)
+    if channels is None:
+        cut = block[rows]
+    else:  # one flat gather: faster than indexing rows and columns together
+        ch = np.asarray(channels, dtype=np.int64)
+        flat = rows[:, :, None] * block.shape[1] + (ch[None] if ch.ndim == 1 else ch)[:, None, :]
+        cut = np.ascontiguousarray(block).reshape(-1).take(flat)
+    if not inside.all():
+        cut = np.where(inside[..., None], cut, np.float32(0))
+    return cut.astype(np.float32, copy=False)

@@ -257,14 +257,14 @@ def synth_side_files(out: Path) -> list[Path]:
 def write_truth(out: Path, sc: Scenario) -> None:
     """Ground-truth CSV files beside the recording (each written atomically)."""
     def spikes(tmp: Path) -> None:
-        with open(tmp, "w", newline="") as fh:
+        with open(tmp, "w", newline="", encoding="utf-8") as fh:
             w = csv.writer(fh)
             w.writerow(["unit", "sample", "time_s"])
             for s, u in zip(sc.spike_sample, sc.spike_unit):
                 w.writerow([int(u), int(s), f"{s / sc.rate_hz:.6f}"])
 
     def units(tmp: Path) -> None:
-        with open(tmp, "w", newline="") as fh:
+        with open(tmp, "w", newline="", encoding="utf-8") as fh:
             w = csv.writer(fh)
             w.writerow(["unit", "group", "peak_channel", "peak_uv", "rate_hz", "kind"])
             for u in sc.units:

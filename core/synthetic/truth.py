@@ -46,7 +46,8 @@ def load_truth(path: str | Path) -> Truth:
                   unit_peak_uv={int(r["unit"]): float(r["peak_uv"]) for r in rows},
                   unit_kind={int(r["unit"]): r["kind"] for r in rows})
     except (OSError, ValueError, KeyError, UnicodeDecodeError) as exc:
-        raise RigsideError(f"ground truth must be readable CSV files beside the recording, got {str(path)!r}: {exc}") from None
+        raise RigsideError(f"ground truth must be readable CSV files beside the recording, "
+                           f"got {str(path)!r}: {exc}") from None
     if len(t.sample) and np.any(np.diff(t.sample) < 0):
         raise RigsideError(f"ground truth spikes must be sorted by sample, got unsorted rows in {str(path)!r}")
     return t
@@ -90,13 +91,16 @@ def score_curve(events: EventTable, truth: Truth, thresholds_sigma, tolerance_ms
     if units is not None:
         unit_ids = np.intersect1d(unit_ids, np.asarray(units))
     if channels is not None:
-        unit_ids = np.array([u for u in unit_ids if truth.unit_peak_channel[int(u)] in set(np.asarray(channels).tolist())])
+        chosen = set(np.asarray(channels).tolist())
+        unit_ids = np.array([u for u in unit_ids if truth.unit_peak_channel[int(u)] in chosen])
     groups = sorted({truth.unit_group[int(u)] for u in unit_ids})
     ok = ~events.artefact
     if channels is not None:
         ok &= np.isin(events.channel, np.asarray(channels))
     hits, misses, fas = (np.zeros(len(thr), np.int64) for _ in range(3))
-    for g in (groups if units is not None or channels is not None else sorted(set(truth.unit_group.values()) | set(np.unique(events.group[ok]).tolist()))):
+    if units is None and channels is None:   # every group with a true unit or an event
+        groups = sorted(set(truth.unit_group.values()) | set(np.unique(events.group[ok]).tolist()))
+    for g in groups:
         t_true = truth.sample[np.isin(truth.unit, [u for u in unit_ids if truth.unit_group[int(u)] == g])]
         sel = ok & (events.group == g)
         amp, samp = events.amplitude_sigma[sel], events.sample[sel]

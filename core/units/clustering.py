@@ -24,63 +24,43 @@ group, clusters are numbered by decreasing mean peak magnitude.
 
 from __future__ import annotations
 
-import threading
 import warnings
-from contextlib import contextmanager
+from concurrent.futures import ProcessPoolExecutor
+from multiprocessing import get_all_start_methods, get_context
 
 import numpy as np
 from sklearn.exceptions import ConvergenceWarning
 from sklearn.mixture import GaussianMixture
-from threadpoolctl import threadpool_limits
 
 from rigside.core.errors import RigsideError
 from rigside.core.params import ClusterParams
-from rigside.core.progress import CancelFn, ProgressFn, check, report
+from rigside.core.progress import CancelFn, ProgressFn, check, report, run_bounded
+from rigside.core.signal.chunk_pool import single_threaded_pools
 from rigside.core.units.sorting import NO_UNIT
 
 MIN_EVENTS_PER_COMPONENT = 10
 """A fit never uses more components than one per this many fitted events."""
 
-_POOLS_LOCK = threading.Lock()
-_pool_users = 0
-_pool_limiter = None
+WORKER_START = "fork" if "fork" in get_all_start_methods() else "spawn"
+"""How worker processes start: forked where the system can (a few ms; a fresh interpreter
+importing scikit-learn took 1.5-10 s here), so the caller must hold no lock in another thread
+(the command-line sort runs it from its only thread)."""
 
+ASSIGN_BLOCK = 1 << 16
+"""Events assigned to the fitted mixture at a time (bounds the memory of the assignment)."""
 
-@contextmanager
-def single_threaded_pools():
-    """BLAS and OpenMP pools limited to one thread while any caller is inside.
-
-    ``threadpool_limits`` does not act on the calling thread alone: OpenBLAS (the pthreads
-    build in the numpy and scipy wheels) has one pool for the whole process, so other threads'
-    BLAS calls are single-threaded meanwhile; only the OpenMP runtime limits the calling thread.
-    It restores the limits it found on exit, so two overlapping uses from different threads
-    would restore in the wrong order (and leave the process at one thread); here the first
-    caller in sets the limits and the last one out restores them. threadpoolctl also lets only
-    one Python thread control OpenBLAS (the first that set a limit, while it lives): called from
-    another thread, the OpenBLAS limit is left as it is.
-    """
-    global _pool_users, _pool_limiter
-    with _POOLS_LOCK:
-        if _pool_users == 0:
-            _pool_limiter = threadpool_limits(limits=1)
-        _pool_users += 1
-    try:
-        yield
-    finally:
-        with _POOLS_LOCK:
-            _pool_users -= 1
-            if _pool_users == 0:
-                _pool_limiter.restore_original_limits()
-                _pool_limiter = None
-
-
-def _standardise(x: np.ndarray, fit_rows: np.ndarray) -> np.ndarray:
-    """z-scores from the fit rows' mean and sd; constant columns are dropped."""
+def _scaling(x: np.ndarray, fit_rows: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Mean, sd and kept columns of the fit rows (constant columns are dropped)."""
     ref = x[fit_rows].astype(np.float64)
     mean = ref.mean(axis=0)
     sd = ref.std(axis=0)
     keep = sd > 1e-12 * np.maximum(1.0, np.abs(mean))
-    return ((x[:, keep] - mean[keep]) / sd[keep]).astype(np.float64)
+    return mean[keep], sd[keep], keep
+
+
+def _z(x: np.ndarray, scaling: tuple[np.ndarray, np.ndarray, np.ndarray]) -> np.ndarray:
+    mean, sd, keep = scaling
+    return ((x[:, keep] - mean) / sd).astype(np.float64)
 
 
 def _fit(x: np.ndarray, k: int, params: ClusterParams, random_state: int) -> GaussianMixture:
@@ -175,14 +155,14 @@ def _cluster(features: np.ndarray, params: ClusterParams, stream: int, k: int | 
     rng = np.random.default_rng([params.seed, stream])
     fit_rows = np.sort(rng.choice(n, params.fit_events, replace=False)) if n > params.fit_events \
         else np.arange(n)
-    z = _standardise(x, fit_rows)
+    scaling = _scaling(x, fit_rows)
     n_fit = len(fit_rows)
     k_cap = max(1, n_fit // MIN_EVENTS_PER_COMPONENT)
     forced = k if k is not None else params.k
-    if z.shape[1] == 0:
+    if not scaling[2].any():
         return np.zeros(n, dtype=np.int32)
     random_state = int(rng.integers(0, 2**31 - 1))
-    zf = z[fit_rows]
+    zf = _z(x[fit_rows], scaling)
     if forced is not None:
         best = _fit(zf, min(int(forced), n_fit), params, random_state)
     else:
@@ -200,16 +180,33 @@ def _cluster(features: np.ndarray, params: ClusterParams, stream: int, k: int | 
             best = _fit(zf, 1, params, random_state)
     merged = merge_components(best.predict_proba(zf), params.merge_overlap) if forced is None \
         else [[c] for c in range(best.n_components)]
-    tau = best.predict_proba(z)
-    labels = np.column_stack([tau[:, c].sum(axis=1) for c in merged]).argmax(axis=1)
+    labels = _assign(x, scaling, best, merged)
     _, dense = np.unique(labels, return_inverse=True)
     return dense.astype(np.int32)
+
+
+def _assign(x: np.ndarray, scaling, mixture: GaussianMixture, merged: list[list[int]]) -> np.ndarray:
+    """Cluster of largest summed posterior for every event, in blocks of :data:`ASSIGN_BLOCK`.
+
+    Memory stays bounded whatever the event count; the blocks are fixed, so the result does
+    not depend on how the work is spread.
+    """
+    labels = np.empty(len(x), dtype=np.int64)
+    for b0 in range(0, len(x), ASSIGN_BLOCK):
+        tau = mixture.predict_proba(_z(x[b0:b0 + ASSIGN_BLOCK], scaling))
+        labels[b0:b0 + ASSIGN_BLOCK] = np.column_stack([tau[:, c].sum(axis=1) for c in merged]).argmax(axis=1)
+    return labels
+
+
+def _cluster_group(i: int, features: np.ndarray, params: ClusterParams, g: int) -> tuple[int, np.ndarray]:
+    """One group's labels, tagged with its position (runs in worker processes)."""
+    return i, cluster_features(features, params, stream=g)
 
 
 def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np.ndarray,
                            amplitude_uv: np.ndarray, params: ClusterParams,
                            groups: list[int] | None = None, first_id: int = 1,
-                           progress: ProgressFn = None, cancel: CancelFn = None
+                           progress: ProgressFn = None, cancel: CancelFn = None, workers: int = 1
                            ) -> tuple[np.ndarray, dict[int, int]]:
     """Cluster every channel group and number the clusters as units.
 
@@ -228,6 +225,12 @@ def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np
         Id of the first new unit.
     progress, cancel
         Progress callback and cancel check (one step per group).
+    workers
+        Groups clustered at the same time, each in its own process (see :data:`WORKER_START`;
+        scikit-learn's mixture fits on a few thousand events hold the interpreter lock most of
+        the time, so threads ran them slower than one thread: ``bench/bench_sort_path.py
+        --threads``). The result does not depend on it: every group's clustering depends only
+        on its own events and seed.
 
     Returns
     -------
@@ -244,25 +247,35 @@ def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np
     todo = sorted(int(g) for g in np.unique(group)) if groups is None else sorted(set(groups))
     out = np.full(n, NO_UNIT, dtype=np.int32)
     unit_group: dict[int, int] = {}
-    next_id = first_id
     order = np.argsort(group, kind="stable")
     bounds = np.searchsorted(group[order], [todo, np.add(todo, 1)]) if todo else np.zeros((2, 0), int)
-    for i, g in enumerate(todo):
-        check(cancel)
-        report(progress, i / max(1, len(todo)), f"clustering group {g}")
-        rows = order[bounds[0, i]:bounds[1, i]]
-        rows = rows[~artefact[rows]]
-        if len(rows) == 0:
-            continue
-        labels = cluster_features(features[rows], params, stream=g)
+    rows_of = [r[~artefact[r]] for r in (order[bounds[0, i]:bounds[1, i]] for i in range(len(todo)))]
+    busy = [i for i in range(len(todo)) if len(rows_of[i])]
+    state = {"next": first_id, "done": 0}
+
+    def number(result: tuple[int, np.ndarray]) -> None:
+        i, labels = result
+        rows, g = rows_of[i], todo[i]
         n_clusters = int(labels.max()) + 1
         magnitude = np.bincount(labels, np.abs(amplitude_uv[rows].astype(np.float64)), n_clusters)
         magnitude /= np.bincount(labels, minlength=n_clusters)
         rank = np.empty(n_clusters, dtype=np.int32)
         rank[np.argsort(-magnitude, kind="stable")] = np.arange(n_clusters, dtype=np.int32)
-        out[rows] = next_id + rank[labels]
+        out[rows] = state["next"] + rank[labels]
         for r in range(n_clusters):
-            unit_group[next_id + r] = g
-        next_id += n_clusters
+            unit_group[state["next"] + r] = g
+        state["next"] += n_clusters
+        state["done"] += 1
+        report(progress, state["done"] / max(1, len(busy)), f"clustered group {g}")
+
+    report(progress, 0.0, "clustering groups")
+    tasks = ((i, features[rows_of[i]], params, todo[i]) for i in busy)
+    if workers > 1 and len(busy) > 1:
+        processes = ProcessPoolExecutor(min(workers, len(busy)), mp_context=get_context(WORKER_START))
+        run_bounded(_cluster_group, tasks, workers, number, cancel, pool=processes)
+    else:
+        for task in tasks:
+            check(cancel)
+            number(_cluster_group(*task))
     report(progress, 1.0, "clustering done")
     return out, unit_group

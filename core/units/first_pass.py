@@ -14,7 +14,7 @@ from rigside.core.units.sorting import Sorting, SortingData
 
 def first_pass(events: EventTable, features, params: ClusterParams | None = None,
                seed: int | None = None, feature_names=None, progress: ProgressFn = None,
-               cancel: CancelFn = None) -> Sorting:
+               cancel: CancelFn = None, workers: int = 1) -> Sorting:
     """Cluster every channel group and return the sorting, its journal opened by this step.
 
     Parameters
@@ -32,6 +32,8 @@ def first_pass(events: EventTable, features, params: ClusterParams | None = None
         Column names when ``features`` is a plain matrix (default ``f0, f1, ...``).
     progress, cancel
         Progress callback and cancel check.
+    workers
+        Groups clustered at the same time (processes); the sorting does not depend on it.
 
     Returns
     -------
@@ -48,5 +50,5 @@ def first_pass(events: EventTable, features, params: ClusterParams | None = None
     if seed is not None:
         params.seed = seed
     sorting = Sorting(SortingData.from_events(events, values, names))
-    UndoStack(sorting).push(ClusterGroups(params, progress=progress, cancel=cancel))
+    UndoStack(sorting).push(ClusterGroups(params, progress=progress, cancel=cancel, workers=workers))
     return sorting

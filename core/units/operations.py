@@ -44,11 +44,12 @@ class ClusterGroups(Operation):
     kind = "cluster_groups"
 
     def __init__(self, params: ClusterParams | None = None, groups: list[int] | None = None,
-                 progress: ProgressFn = None, cancel: CancelFn = None) -> None:
+                 progress: ProgressFn = None, cancel: CancelFn = None, workers: int = 1) -> None:
         super().__init__()
         self.params = ClusterParams.from_dict((params or ClusterParams()).to_dict())
         self.groups = None if groups is None else sorted({as_int(g, "group") for g in groups})
         self.progress, self.cancel = progress, cancel
+        self.workers = workers  # how the work is spread, not what it gives: not journaled
 
     @property
     def text(self) -> str:
@@ -61,7 +62,7 @@ class ClusterGroups(Operation):
         d = sorting.data
         new, unit_group = first_pass_assignments(d.group, d.artefact, d.features, d.amplitude_uv,
                                                  self.params, self.groups, sorting.next_id,
-                                                 self.progress, self.cancel)
+                                                 self.progress, self.cancel, self.workers)
         todo = np.unique(d.group) if self.groups is None else np.asarray(self.groups)
         rows = np.flatnonzero(np.isin(d.group, todo))
         units_after: dict[int, Unit | None] = {u: None for u, rec in sorting.units.items()

@@ -1,31 +1,36 @@
 """Session files: one HDF5 file of our own layout holding a whole sorting session.
 
-Layout (format version 2)::
+Layout (format version 3): two HDF5 files (see :mod:`rigside.core.units.session_write`)::
 
-    /                 attrs format="rigside session", format_version, program_version,
-                      saved_utc, checksum (SHA-256 of everything else, see rigside.core.io.h5safe)
-    /recording        attrs path, size, fingerprint, description (JSON), content_hash
-                      ("sha256:<hex>" of the whole file, see rigside.core.io.content; may be absent or empty)
-    /params           attrs json (Params.to_dict() as JSON)
-    /events           the event table (EventTable.to_h5_group)
-    /features/values  float32 events x features;   attrs names (JSON list)
-    /sorting/assignments  int32 unit id per event (-1: in no unit)
-    /sorting/unit_id, unit_group (int32)
-    /sorting/labels   UTF-8 JSON list of one label name per unit (uint8 dataset)
-    /sorting/notes    UTF-8 JSON list of one note per unit (uint8 dataset); attrs next_id
-    /journal/lines    UTF-8 JSON lines (uint8 dataset)
+    NAME (state part)  attrs format="rigside session", format_version, program_version, saved_utc,
+                       static_part (file name of the static part beside NAME), static_checksum,
+                       checksum (see rigside.core.io.h5safe.read_verified, per_dataset)
+      /recording       attrs path, size, fingerprint, description (JSON), content_hash
+                       ("sha256:<hex>" of the whole file, see rigside.core.io.content; may be empty)
+      /params          attrs json (Params.to_dict() as JSON)
+      /sorting/assignments  int32 unit id per event (-1: in no unit)
+      /sorting/unit_id, unit_group (int32)
+      /sorting/labels  UTF-8 JSON list of one label name per unit (uint8 dataset)
+      /sorting/notes   UTF-8 JSON list of one note per unit (uint8 dataset); attrs next_id
+      /journal/lines   UTF-8 JSON lines (uint8 dataset)
+    NAME.static-<digest>.h5  attrs format="rigside session static part", format_version, checksum
+      /events          the event table (EventTable.to_h5_group, uncompressed)
+      /features/values float32 events x features;   attrs names (JSON list)
 
+Formats 1 and 2 kept both parts in one file (one SHA-256 over everything); they are still read.
 Format 1 stored labels as codes instead of ``/sorting/labels``; it is still read (see
-:mod:`rigside.core.units.session_labels`). No pickled or executable content is written or accepted. Saving is atomic: a uniquely named
-temporary file beside ``NAME`` is written (built in memory, then written at once), flushed,
-fsynced and renamed over ``NAME``; the previous ``NAME`` (if it verifies) becomes ``NAME.bak`` first, by a hard link where possible. ``NAME.autosave.h5`` is written
-the same way by :func:`save_autosave`; :mod:`rigside.core.units.session_recovery` finds the newest
+:mod:`rigside.core.units.session_labels`). No pickled or executable content is written or accepted.
+Saving is atomic: a uniquely named temporary file beside ``NAME`` is written (built in memory, then
+written at once), flushed, fsynced and renamed over ``NAME``; the previous ``NAME`` (if it verifies)
+becomes ``NAME.bak`` first, by a hard link where possible. Only the state part is written on every
+save; the static part once. ``NAME.autosave.h5`` is a state part written the same way by
+:func:`save_autosave` (it refers to the same static part); :mod:`rigside.core.units.session_recovery`
+finds the newest
 consistent state among the main file, the autosave and the backup.
 """
 
 from __future__ import annotations
 
-import json
 from dataclasses import dataclass, field, replace
 from pathlib import Path
 from types import SimpleNamespace
@@ -38,18 +43,24 @@ from rigside.core.errors import ParamError, RigsideError, SessionError
 from rigside.core.events import COLUMNS, EventTable
 from rigside.core.io.atomic import atomic_copy_bytes, atomic_write, safe_unlink
 from rigside.core.io.content import content_hash
-from rigside.core.io.h5image import h5_in_memory
-from rigside.core.io.h5safe import CHECKSUM_ATTR, array, attr, read_verified, text, write_text
+from rigside.core.io.h5safe import CHECKSUM_ATTR, array, attr, read_verified, text
 from rigside.core.io.recording import Recording
 from rigside.core.params import Params
 from rigside.core.progress import CancelFn, ProgressFn
 from rigside.core.textparse import parse_json
 from rigside.core.units.journal import Journal, utc_now
-from rigside.core.units.session_labels import labels_to_text, read_labels, upgrade_format1_journal
+from rigside.core.units.session_labels import read_labels, upgrade_format1_journal
+from rigside.core.units.session_write import (
+    FORMAT,
+    FORMAT_VERSION,
+    STATIC_CHECKSUM_ATTR,
+    STATIC_FORMAT,
+    STATIC_NAME_ATTR,
+    ensure_static,
+    stored_checksum,
+    write_state,
+)
 from rigside.core.units.sorting import Sorting, SortingData, Unit
-
-FORMAT = "rigside session"
-FORMAT_VERSION = 2
 
 
 class RecordingMoved(SessionError):
@@ -96,6 +107,8 @@ class Session:
     program_version: str = __version__
     saved_utc: str = ""
     source: Path | None = None
+    static_cache: tuple | None = field(default=None, repr=False, compare=False)
+    """(events, features, checksum) of the static part last written or read (set by saving and loading)."""
 
 
 def snapshot(session: Session) -> Session:
@@ -120,36 +133,9 @@ def file_fingerprint(path: str | Path) -> str:
 
 
 # ---- writing -------------------------------------------------------------------------------
-def _write(tmp: Path, s: Session, saved_utc: str) -> None:
-    sorting = s.sorting
-    with h5_in_memory(tmp, libver=("v110", "latest")) as f:
-        f.attrs.update(format=FORMAT, format_version=FORMAT_VERSION, program_version=__version__,
-                       saved_utc=saved_utc)
-        rec = f.create_group("recording")
-        rec.attrs.update(path=s.recording.path, size=np.int64(s.recording.size),
-                         fingerprint=s.recording.fingerprint, content_hash=s.recording.content_hash,
-                         description=json.dumps(s.recording.description, allow_nan=False))
-        f.create_group("params").attrs["json"] = json.dumps(s.params.to_dict(), allow_nan=False)
-        s.events.to_h5_group(f.create_group("events"))
-        feat = f.create_group("features")
-        feat.create_dataset("values", data=sorting.data.features)
-        feat.attrs["names"] = json.dumps(list(sorting.data.feature_names))
-        g = f.create_group("sorting")
-        g.create_dataset("assignments", data=sorting.assignments)
-        units = sorting.units
-        g.create_dataset("unit_id", data=np.array(list(units), dtype=np.int32))
-        g.create_dataset("unit_group", data=np.array([u.group for u in units.values()], dtype=np.int32))
-        write_text(g, "labels", labels_to_text([u.label for u in units.values()]))
-        write_text(g, "notes", json.dumps([u.note for u in units.values()]))
-        g.attrs["next_id"] = np.int64(sorting.next_id)
-        write_text(f.create_group("journal"), "lines", sorting.journal.to_text())
-        f.flush()
-        _, digest = read_verified(f, tmp, size=f.id.get_filesize())
-        f.attrs[CHECKSUM_ATTR] = digest
-
-
-def _save(path: Path, session: Session, keep_backup: bool) -> Path:
+def _save(path: Path, session: Session, keep_backup: bool, main: Path) -> Path:
     saved_utc = utc_now()
+    static = ensure_static(main, session)
 
     def rotate() -> None:
         if keep_backup and path.exists():
@@ -159,7 +145,7 @@ def _save(path: Path, session: Session, keep_backup: bool) -> Path:
                 return          # never let a damaged main file replace the good backup
             atomic_copy_bytes(path, backup_path(path))
 
-    atomic_write(path, lambda tmp: _write(tmp, session, saved_utc), before_replace=rotate)
+    atomic_write(path, lambda tmp: write_state(tmp, session, saved_utc, static), before_replace=rotate)
     session.saved_utc = saved_utc
     return path
 
@@ -171,54 +157,73 @@ def save_session(path: str | Path, session: Session, keep_backup: bool = True) -
     The autosave file, now older than the saved state, is removed.
     """
     path = Path(path)
-    _save(path, session, keep_backup=keep_backup)
+    _save(path, session, keep_backup=keep_backup, main=path)
     safe_unlink(autosave_path(path))
     session.source = path
     return path
 
 
 def save_autosave(path: str | Path, session: Session) -> Path:
-    """Write ``NAME.autosave.h5`` atomically (no backup kept); returns its path."""
-    return _save(autosave_path(path), session, keep_backup=False)
+    """Write ``NAME.autosave.h5`` atomically (no backup kept; only the state part unless the
+    static part beside ``NAME`` is missing); returns its path."""
+    return _save(autosave_path(path), session, keep_backup=False, main=Path(path))
 
 
 # ---- reading -------------------------------------------------------------------------------
-def _open(path: Path) -> tuple[h5py.File, dict, str]:
+def _open(path: Path, fmt: str = FORMAT, what: str = "session file") -> tuple[h5py.File, dict, str, int]:
     if not path.exists():
-        raise SessionError(f"session file must exist, got no file at {str(path)!r}")
+        raise SessionError(f"{what} must exist, got no file at {str(path)!r}")
     try:
         f = h5py.File(path, "r")
     except OSError as exc:
-        raise SessionError(f"session file must be a readable HDF5 file, got {str(path)!r} "
+        raise SessionError(f"{what} must be a readable HDF5 file, got {str(path)!r} "
                            f"(truncated, corrupted or another type: {exc})") from None
     try:
-        fmt = attr(f, "format", str, "")
-        if fmt != FORMAT:
-            raise SessionError(f"session file must have format {FORMAT!r}, got {fmt!r}")
+        found = attr(f, "format", str, "")
+        if found != fmt:
+            raise SessionError(f"{what} must have format {fmt!r}, got {found!r}")
         version = attr(f, "format_version", int, "")
-        if not 1 <= version <= FORMAT_VERSION:
-            raise SessionError(f"session format version must be from 1 to {FORMAT_VERSION}, got {version} "
+        lowest = 1 if fmt == FORMAT else FORMAT_VERSION
+        if not lowest <= version <= FORMAT_VERSION:
+            raise SessionError(f"session format version must be from {lowest} to {FORMAT_VERSION}, got {version} "
                                f"(saved by rigside {f.attrs.get('program_version', '?')}; update rigside)")
-        data, digest = read_verified(f, path)
+        data, digest = read_verified(f, path, per_dataset=version >= 3)
         if digest != attr(f, CHECKSUM_ATTR, str, ""):
-            raise SessionError(f"session file must match its checksum, got different content in "
+            raise SessionError(f"{what} must match its checksum, got different content in "
                                f"{str(path)!r} (corrupted)")
     except BaseException:
         f.close()
         raise
-    return f, data, digest
+    return f, data, digest, version
+
+
+def _static_of(f: h5py.File, path: Path) -> tuple[Path, str]:
+    """Where a format-3 state part says its static part is, and the checksum it must have."""
+    name = attr(f, STATIC_NAME_ATTR, str, "")
+    if name not in ("", ".", "..") and "/" not in name and "\\" not in name:
+        return path.parent / name, attr(f, STATIC_CHECKSUM_ATTR, str, "")
+    raise SessionError(f"session static part must be a file name beside the session, got {name[:80]!r}")
 
 
 def verify_session_file(path: str | Path) -> str:
-    """Check format and checksum of a session file; returns its save time (UTC ISO)."""
+    """Check format and checksum of a session file; returns its save time (UTC ISO).
+
+    For format 3 the static part must exist and carry the checksum the state part names (its
+    data are verified when the session is loaded)."""
+    path = Path(path)
     try:
-        f, _, _ = _open(Path(path))
+        f, _, _, version = _open(path)
+        with f:
+            if version >= 3:
+                static, want = _static_of(f, path)
+                if stored_checksum(static) != want:
+                    raise SessionError(f"session static part must exist with checksum {want[:16]}..., got "
+                                       f"{'a different file' if static.exists() else 'no file'} at {str(static)!r}")
+            return attr(f, "saved_utc", str, "")
     except (OSError, KeyError, ValueError, TypeError, MemoryError) as exc:
         if isinstance(exc, SessionError):
             raise
         raise SessionError(f"session file must be a valid rigside session, got {str(path)!r}: {exc}") from None
-    with f:
-        return attr(f, "saved_utc", str, "")
 
 
 def _check_recording(ref: RecordingRef, session_path: Path, override: str | Path | None) -> RecordingRef:
@@ -238,13 +243,15 @@ def _check_recording(ref: RecordingRef, session_path: Path, override: str | Path
     return RecordingRef(str(target.resolve()), size, fp, ref.description, ref.content_hash)
 
 
-def _interpret(f: h5py.File, data: dict, path: Path) -> tuple[RecordingRef, Session]:
+def _interpret(f: h5py.File, fs: h5py.File, data: dict, path: Path) -> tuple[RecordingRef, Session]:
+    """The session in a state part ``f`` and static part ``fs`` (the same file before format 3)
+    whose datasets ``data`` have been read and verified."""
     g = f["recording"] if "recording" in f else None
     if g is None:
         raise SessionError("session group recording must be present, got none")
     desc = parse_json(attr(g, "description", str, "recording"), "session recording description", SessionError)
     params_dict = parse_json(attr(f["params"], "json", str, "params"), "session parameters", SessionError)
-    names = parse_json(attr(f["features"], "names", str, "features"), "session feature names", SessionError)
+    names = parse_json(attr(fs["features"], "names", str, "features"), "session feature names", SessionError)
     notes = parse_json(text(data, "sorting/notes"), "session notes", SessionError)
     try:
         if not isinstance(params_dict, dict):
@@ -261,11 +268,11 @@ def _interpret(f: h5py.File, data: dict, path: Path) -> tuple[RecordingRef, Sess
     for c, dt in COLUMNS.items():
         array(data, f"events/{c}", np.dtype(dt).str, 1)
     array(data, "events/sigma_uv", "f8", 1)
-    ev = f["events"]
+    ev = fs["events"]
     for a, kind in (("rate_hz", float), ("n_samples", int), ("floor_sigma", float), ("polarity", str)):
         attr(ev, a, kind, "events")
     try:
-        events = EventTable.from_h5_group(ev)
+        events = EventTable.from_h5_group(ev, {k[7:]: v for k, v in data.items() if k.startswith("events/")})
     except RigsideError as exc:
         raise SessionError(f"session {exc}") from None
     values = array(data, "features/values", "f4", 2)
@@ -299,6 +306,22 @@ def _interpret(f: h5py.File, data: dict, path: Path) -> tuple[RecordingRef, Sess
     return ref, session
 
 
+def _read(path: Path) -> tuple[RecordingRef, Session]:
+    f, data, _, version = _open(path)
+    with f:
+        if version < 3:
+            return _interpret(f, f, data, path)
+        static, want = _static_of(f, path)
+        fs, static_data, digest, _ = _open(static, STATIC_FORMAT, "session static part")
+        with fs:
+            if digest != want:
+                raise SessionError(f"session static part must be the one its state was saved with (checksum "
+                                   f"{want[:16]}...), got {digest[:16]}... in {str(static)!r}")
+            ref, session = _interpret(f, fs, {**data, **static_data}, path)
+    session.static_cache = (session.events, session.sorting.data.features, digest)
+    return ref, session
+
+
 def load_session(path: str | Path, recording_path_override: str | Path | None = None,
                  check_recording: bool = True) -> Session:
     """Open a session file, verify it, and check its recording before anything is computed.
@@ -324,9 +347,7 @@ def load_session(path: str | Path, recording_path_override: str | Path | None = 
     """
     path = Path(path)
     try:
-        f, data, _ = _open(path)
-        with f:
-            ref, session = _interpret(f, data, path)
+        ref, session = _read(path)
     except SessionError as exc:
         raise _with_alternatives(exc, path) from None
     except (OSError, KeyError, ValueError, TypeError, MemoryError, UnicodeDecodeError) as exc:

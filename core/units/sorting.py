@@ -7,14 +7,14 @@ announced once, with the units it touched, on :attr:`Sorting.changed`.
 
 from __future__ import annotations
 
-import weakref
 from dataclasses import dataclass, field, replace
-from typing import Callable, Sequence
+from typing import Sequence
 
 import numpy as np
 
 from rigside.core.errors import CurationError, RigsideError
 from rigside.core.events import EventTable
+from rigside.core.notify import Signal
 from rigside.core.units.journal import Journal
 
 NO_UNIT = -1
@@ -31,36 +31,21 @@ AXIS_AMPLITUDE = "event:amplitude_uv"
 FEATURE_AXIS_PREFIX = "feature:"
 
 
-class Signal:
-    """A tiny emitter holding weak references to its callbacks.
+def positions_in(ids: np.ndarray, values: np.ndarray) -> np.ndarray:
+    """Index of each of ``values`` in the sorted, unique ``ids`` (-1 where absent).
 
-    Bound methods are held through :class:`weakref.WeakMethod`, functions through
-    :class:`weakref.ref`; the caller keeps callbacks alive (a lambda passed inline dies at once).
+    A look-up table when the largest id is not far above the number of values (unit ids are),
+    else a binary search; both give the same positions.
     """
-
-    def __init__(self) -> None:
-        self._slots: list[weakref.ref] = []
-
-    def connect(self, callback: Callable) -> None:
-        """Call ``callback`` on every emit, as long as it lives (connecting twice is a no-op)."""
-        try:
-            ref = weakref.WeakMethod(callback) if hasattr(callback, "__func__") else weakref.ref(callback)
-        except TypeError:
-            raise TypeError(f"callback must be a function or bound method, got {callback!r}") from None
-        if all(r() != callback for r in self._slots):
-            self._slots.append(ref)
-
-    def disconnect(self, callback: Callable) -> None:
-        """Stop calling ``callback``."""
-        self._slots = [r for r in self._slots if r() is not None and r() != callback]
-
-    def emit(self, *args) -> None:
-        """Call every live callback with ``args``, in connection order."""
-        live = [(r, r()) for r in self._slots]
-        self._slots = [r for r, f in live if f is not None]
-        for _, f in live:
-            if f is not None:
-                f(*args)
+    if not len(ids):
+        return np.full(len(values), -1, dtype=np.int64)
+    top = int(ids[-1])
+    if 0 <= int(ids[0]) and top <= 4 * len(values) + (1 << 16):
+        table = np.full(top + 1, -1, dtype=np.int64)
+        table[ids] = np.arange(len(ids))
+        return np.where((values >= 0) & (values <= top), table[np.clip(values, 0, top)], -1)
+    pos = np.minimum(np.searchsorted(ids, values), len(ids) - 1)
+    return np.where(ids[pos] == values, pos, -1)
 
 
 @dataclass(frozen=True)
@@ -254,8 +239,8 @@ class Sorting:
         groups = np.asarray([self._units[int(u)].group for u in ids], dtype=np.int64)
         rows = np.flatnonzero(self._assign != NO_UNIT)
         assigned = self._assign[rows]
-        pos = np.minimum(np.searchsorted(ids, assigned), max(len(ids) - 1, 0))
-        known = ids[pos] == assigned if len(ids) else np.zeros(len(rows), bool)
+        pos = positions_in(ids, assigned)
+        known = pos >= 0
         if not known.all():
             raise CurationError(f"assigned unit ids must be in the unit table, got unknown ids "
                                 f"{np.unique(assigned[~known])[:10].tolist()}")

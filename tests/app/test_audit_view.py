@@ -106,6 +106,23 @@ def test_audit_against_the_session_shows_each_pair_as_the_core_computes_it(demo_
     assert r.fresh.source.startswith("session")
     assert r.fresh.sorting is not win.units.sorting          # a frozen copy: curation may go on
     panel = win.audit_panel
+    check_audit_table(win, panel, counts)
+    unit = check_stepping_to_a_lone_spike(win, qtbot, panel, r)
+    check_rows_follow_the_dock(win, qtbot, panel, unit)
+    check_exports(win, tmp_path, path, counts)
+    check_screenshot(win, panel, tmp_path)
+
+    # a unit without a fresh match shows its own side only
+    alone = replace(win.audit.pair, fresh=None)
+    win.audit.pair = alone
+    win.audit.pair_changed.emit()
+    assert "no fresh unit" in panel.plots.header.text()
+    assert set(panel.plots.isi_curves) == set(panel.plots.wave_curves) == {"imported"}
+    assert all(len(panel.plots.amp_items[("fresh", s)].getData()[0]) == 0 for s in (True, False))
+
+
+def check_audit_table(win, panel, counts: dict) -> None:
+    """One row per imported unit with its spike count, the caution, and headers naming what they show."""
     assert win.docks["audit"].isVisible()
     assert sorted(panel.unit_rows()) == sorted(counts)
     spikes_col = [s[1] for s in TABLE_SPECS].index("n_spikes")
@@ -116,7 +133,10 @@ def test_audit_against_the_session_shows_each_pair_as_the_core_computes_it(demo_
     assert "closest\nfresh unit" in headers and "overlap\n(Jaccard)" in headers
     assert not any("agree" in h or "best" in h for h in headers)
 
-    # the first row is chosen on arrival; choose the unit with the most spikes held by one side
+
+def check_stepping_to_a_lone_spike(win, qtbot, panel, r) -> int:
+    """The first row is chosen on arrival; choose the unit with the most spikes held by one side and
+    step the trace view to one of them. Returns the unit."""
     with_match = [u for u in r.imported_ids if r.closest_fresh(int(u)) is not None]
     unit = int(max(with_match, key=lambda u: r.row(int(u))["n_spikes"] - r.row(int(u))["shared_spikes"]))
     panel.select_unit(unit)
@@ -137,8 +157,11 @@ def test_audit_against_the_session_shows_each_pair_as_the_core_computes_it(demo_
     win.bench.set_view(0.0, win.bench.recording.duration_s)            # the rows follow the trace view
     check_trace_rows(win, win.audit.pair)
     win.bench.set_view(t0, t1)
+    return unit
 
-    # the rows stay while the audit view is tabbed behind another, and go when it closes
+
+def check_rows_follow_the_dock(win, qtbot, panel, unit: int) -> None:
+    """The rows stay while the audit view is tabbed behind another, and go when it closes."""
     dock = win.docks["audit"]
     bar = next(b for b in win.findChildren(QTabBar) if dock.windowTitle() in [b.tabText(i) for i in range(b.count())])
     bar.setCurrentIndex([bar.tabText(i) for i in range(bar.count())].index(win.docks["waveforms"].windowTitle()))
@@ -154,7 +177,9 @@ def test_audit_against_the_session_shows_each_pair_as_the_core_computes_it(demo_
     assert win.wait_idle(30)
     check_trace_rows(win, win.audit.pair)
 
-    # exports: the CSV has one row per imported unit, the report is one HTML file
+
+def check_exports(win, tmp_path, path, counts: dict) -> None:
+    """The CSV has one row per imported unit, the report is one HTML file, the input is never replaced."""
     assert win.audit.export("table", tmp_path / "audit.csv")
     assert win.audit.export("report", tmp_path / "audit.html")
     assert win.wait_idle(60)
@@ -165,7 +190,9 @@ def test_audit_against_the_session_shows_each_pair_as_the_core_computes_it(demo_
     assert not win.audit.export("table", path)               # never over the imported file
     assert "must" in win.last_error[1]
 
-    # the screenshot: the audit view across the window's width
+
+def check_screenshot(win, panel, tmp_path) -> None:
+    """The audit view across the window's width shows both sides' colours."""
     right = [d for d in win.docks.values()
              if win.dockWidgetArea(d) == Qt.DockWidgetArea.RightDockWidgetArea and d.isVisible()]
     for d in right:
@@ -182,14 +209,6 @@ def test_audit_against_the_session_shows_each_pair_as_the_core_computes_it(demo_
     out = os.environ.get("RIGSIDE_SCREENSHOT_DIR")
     if out:
         shutil.copy(tmp_path / "audit.png", os.path.join(out, "audit.png"))
-
-    # a unit without a fresh match shows its own side only
-    alone = replace(win.audit.pair, fresh=None)
-    win.audit.pair = alone
-    win.audit.pair_changed.emit()
-    assert "no fresh unit" in panel.plots.header.text()
-    assert set(panel.plots.isi_curves) == set(panel.plots.wave_curves) == {"imported"}
-    assert all(len(panel.plots.amp_items[("fresh", s)].getData()[0]) == 0 for s in (True, False))
 
 
 def test_bad_spike_files_show_a_message_and_a_first_pass_audit_still_works(demo_window, qtbot, tmp_path):
@@ -240,7 +259,8 @@ def test_menu_import_with_its_choices_then_cancel_leaves_no_result(demo_window, 
     monkeypatch.setattr(QFileDialog, "getOpenFileName", staticmethod(lambda *a, **k: (str(path), "")))
     monkeypatch.setattr(AuditImportDialog, "exec", accept)
     started = []
-    monkeypatch.setattr(win.runner, "submit", lambda *a, _orig=win.runner.submit, **k: started.append(a) or _orig(*a, **k))
+    monkeypatch.setattr(win.runner, "submit",
+                        lambda *a, _orig=win.runner.submit, **k: started.append(a) or _orig(*a, **k))
     win.actions_by_name["audit_import"].trigger()
     c = chosen["choices"]
     assert (c.tolerance_ms, c.offset_s, c.rate_hz, c.group, c.use_session) == (0.4, 0.001, win.bench.recording.rate_hz,

@@ -65,8 +65,8 @@ def test_switching_to_microvolts_and_per_channel(demo_window, qtbot):
     b, ev = win.bench, win.bench.events
     panel = win.panels["threshold"]
     k_before = float(b.thresholds_sigma[b.channel])
-    panel.unit.setCurrentIndex(panel.unit.findData("uv"))
-    assert b.unit == "uv"
+    panel.scale.setCurrentIndex(panel.scale.findData("uv"))
+    assert b.scale == "uv"
     # switching the unit changes how values are shown, not the thresholds
     assert abs(panel.value.value() - k_before * ev.sigma_uv[b.channel]) < 0.06
     assert panel.value.suffix() == " µV"
@@ -89,7 +89,7 @@ def test_switching_to_microvolts_and_per_channel(demo_window, qtbot):
     line.sigPositionChangeFinished.emit(line)
     assert abs(b.thresholds_sigma[2] * ev.sigma_uv[2] - 70.0) < 1e-6
     # back to sigma: the field shows sigma multiples of the selected channel
-    panel.unit.setCurrentIndex(panel.unit.findData("sigma"))
+    panel.scale.setCurrentIndex(panel.scale.findData("sigma"))
     assert abs(panel.value.value() - b.thresholds_sigma[2]) < 0.006
 
 

@@ -5,6 +5,7 @@ from __future__ import annotations
 import shutil
 from pathlib import Path
 
+import h5py
 import numpy as np
 from PySide6.QtCore import Qt
 
@@ -211,9 +212,10 @@ def test_a_damaged_session_file_offers_its_backup(demo_window, tmp_path):
     assert ctl.relabel([biggest_unit(ctl)], "multi-unit")
     ctl.files.save(path)                       # the first save becomes the backup
     assert win.wait_idle(60)
-    size = path.stat().st_size
-    with open(path, "r+b") as fh:              # damage the main file
-        fh.seek(size // 2)
+    with h5py.File(path, "r") as f:           # damage the main file inside its stored assignments
+        offset = f["sorting/assignments"].id.get_offset()
+    with open(path, "r+b") as fh:
+        fh.seek(offset)
         fh.write(b"\xff" * 64)
     questions = []
     ctl.files.ask = lambda title, text: questions.append(text) or True

@@ -12,8 +12,9 @@ from PySide6.QtWidgets import QDialog
 from rigside.gui import jobs, palette
 from rigside.gui.dialogs.about import about_text
 from rigside.gui.dialogs.raw_layout import RawLayoutDialog
+from rigside.gui.launch import run_window
 from rigside.gui.screenshot import capture, colour_share, distinct_colours, pixels
-from rigside.gui.window import MainWindow, run_window
+from rigside.gui.window import MainWindow
 
 
 def write_noise(path, seconds: float, channels: int, rate: float = 30000.0, meta: bool = True) -> None:
@@ -108,7 +109,7 @@ def test_layout_and_recent_files_are_restored(qtbot, tmp_path):
     qtbot.addWidget(first)
     first.show()
     first.docks["features"].setVisible(False)
-    first._remember(str(tmp_path / "a.bin"))
+    first.remember(str(tmp_path / "a.bin"))
     first.close()
     second = MainWindow()
     qtbot.addWidget(second)

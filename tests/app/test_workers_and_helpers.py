@@ -102,8 +102,8 @@ def test_model_emits_only_on_change():
     bench.set_view(0.0, 2.0)
     bench.set_view(0.0, 2.0)
     assert seen == [(0.0, 2.0)]
-    with pytest.raises(ValueError, match="threshold unit must be one of"):
-        bench.set_unit("volts")
+    with pytest.raises(ValueError, match="threshold scale must be one of"):
+        bench.set_scale("volts")
 
 
 def test_noise_only_rates_follow_the_sampled_rice_form():
@@ -128,3 +128,27 @@ def test_noise_only_rates_follow_the_sampled_rice_form():
     both = noise_rate_grid(sos, 30000.0, "both")
     np.testing.assert_allclose(np.exp(both[1]) / np.exp(bench.analysis.noise_grid[1]), 2.0)
     assert bench.noise_rates(np.array([np.inf]))[0] == 0.0
+
+
+def test_analysis_progress_is_one_bar_shared_with_detection(tmp_path):
+    """The window's analysis and the command line's detection split the bar the same way:
+    the noise estimate fills [0, NOISE_SHARE], detection the rest (common practice, no source)."""
+    from rigside.core.params import Params
+    from rigside.core.signal.noise import estimate_noise
+    from rigside.core.signal.pipeline import NOISE_SHARE, detect
+    from rigside.gui import jobs
+    from tests.core.helpers import gaussian, write_raw
+
+    rec = write_raw(tmp_path / "r.bin", gaussian(60_000, 2, 10.0))
+    params = Params()
+    params.run.chunk_s = 0.25
+    seen = []
+    jobs.analyse(rec, params, progress=lambda f, m: seen.append((round(f, 9), m)))
+    noise = estimate_noise(rec, params)
+    direct = []
+    detect(rec, params, noise=noise, progress=lambda f, m: direct.append((round(f, 9), m)))
+    rec.close()
+    fractions = [f for f, _ in seen]
+    assert fractions == sorted(fractions) and 0 <= fractions[0] and fractions[-1] <= 1
+    assert all(f <= NOISE_SHARE for f, m in seen if m != "detecting")
+    assert [x for x in seen if x[1] == "detecting"] == [x for x in direct if x[1] == "detecting"]

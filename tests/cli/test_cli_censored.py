@@ -13,7 +13,8 @@ from rigside.core.units.session import load_session
 def rows_and_comments(path):
     with open(path, newline="") as fh:
         lines = fh.read().splitlines()
-    return list(csv.DictReader(line for line in lines if not line.startswith("#"))), [line for line in lines if line.startswith("#")]
+    comments = [line for line in lines if line.startswith("#")]
+    return list(csv.DictReader(line for line in lines if not line.startswith("#"))), comments
 
 
 def test_metrics_and_audit_agree_on_contamination(tmp_path, capsys):

@@ -83,7 +83,8 @@ def test_resume_ignores_a_checkpoint_of_other_parameters(sorted_demo, monkeypatc
     monkeypatch.setattr(sr, "first_pass", lambda *a, **k: (_ for _ in ()).throw(KeyboardInterrupt()))
     assert main(["sort", str(d / "r.bin"), "--session", str(d / "p.h5"), "--quiet"]) == 130
     monkeypatch.undo()
-    assert main(["sort", str(d / "r.bin"), "--session", str(d / "p.h5"), "--threshold", "6", "--resume", "--quiet"]) == 0
+    assert main(["sort", str(d / "r.bin"), "--session", str(d / "p.h5"), "--threshold", "6",
+                 "--resume", "--quiet"]) == 0
     assert np.all(load_session(d / "p.h5").events.amplitude_sigma >= 6)
 
 

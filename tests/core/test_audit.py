@@ -6,13 +6,13 @@ import re
 import numpy as np
 import pytest
 
-from rigside.core.audit.report import audit_report_html, write_audit_report
+from rigside.core.audit.html_report import audit_report_html, write_audit_report
 from rigside.core.audit.run import CAUTION, AuditSettings, first_pass_units, run_audit
 from rigside.core.audit.table import ALL_COLUMNS, write_audit_csv
 from rigside.core.audit.views import pair_view
 from rigside.core.errors import ParamError, RigsideError, SpikeFileError
 from rigside.core.io.recording import open_recording
-from rigside.core.io.spike_import import finish
+from rigside.core.io.spike_import import checked_trains
 from rigside.core.params import Params
 from rigside.core.progress import Cancelled
 from rigside.core.quality.matching import match_times
@@ -45,7 +45,7 @@ def degraded(trains, duration, seed=5):
         keep = np.sort(rng.choice(len(t), len(t) - k, replace=False))
         times.append(np.sort(np.concatenate([t[keep], rng.uniform(0, duration, k)])))
         units.append(np.full(len(times[-1]), u))
-    return finish(np.concatenate(times), np.concatenate(units), "old.csv")
+    return checked_trains(np.concatenate(times), np.concatenate(units), "old.csv")
 
 
 def fresh_vs_truth(fresh, t_true):
@@ -95,7 +95,7 @@ def test_merged_pair_is_flagged(world):
              and min(fresh_vs_truth(fresh, trains[a]), fresh_vs_truth(fresh, trains[b])) >= 0.95]
     a, b = max(pairs, key=lambda p: min(len(trains[p[0]]), len(trains[p[1]])))
     merged = np.sort(np.concatenate([trains[a], trains[b]]))
-    res = run_audit(rec, finish(merged, np.full(len(merged), 50), "merged.csv"), fresh)
+    res = run_audit(rec, checked_trains(merged, np.full(len(merged), 50), "merged.csv"), fresh)
     row = res.row(50)
     # two independent refractory neurons interleave, so intervals under 1.5 ms appear
     # (Hill et al. 2011 estimate; the smaller unit's share is the expected contamination)
@@ -120,7 +120,7 @@ def test_fresh_units_imported_back_agree_exactly(world):
     ids = [u for u in fresh.sorting.unit_ids() if len(fresh.sorting.events_of(u)) >= 30]
     times = np.concatenate([fresh.train(u)[0] for u in ids])
     units = np.concatenate([np.full(len(fresh.train(u)[0]), u + 1000) for u in ids])
-    res = run_audit(rec, finish(times, units, "copy"), fresh)
+    res = run_audit(rec, checked_trains(times, units, "copy"), fresh)
     t = res.table
     np.testing.assert_array_equal(t["unit"], np.array(ids) + 1000)
     np.testing.assert_array_equal(t["closest_fresh_unit"], ids)
@@ -137,7 +137,7 @@ def test_shifted_times_show_in_peak_offset(world):
     rec, truth, fresh, trains = world
     u = max(trains, key=lambda k: fresh_vs_truth(fresh, trains[k]))
     shifted = trains[u] + 0.0004      # times 0.4 ms after the trough: 12 samples at 30 kHz
-    res = run_audit(rec, finish(shifted, np.full(len(shifted), u), "late"), fresh,
+    res = run_audit(rec, checked_trains(shifted, np.full(len(shifted), u), "late"), fresh,
                     AuditSettings(tolerance_ms=0.6))
     row = res.row(u)
     assert row["peak_offset_ms"] == pytest.approx(-0.4, abs=0.05)
@@ -193,17 +193,17 @@ def test_separation_from_time_windows_matches_all_events(world, audited):
 
 def test_bad_inputs(world, tmp_path):
     rec, truth, fresh, trains = world
-    late = finish(np.array([1.0, rec.duration_s + 1]), np.array([1, 1]), "late.csv")
+    late = checked_trains(np.array([1.0, rec.duration_s + 1]), np.array([1, 1]), "late.csv")
     with pytest.raises(SpikeFileError, match="within the recording"):
         run_audit(rec, late, fresh)
     with pytest.raises(ParamError, match="tolerance"):
-        run_audit(rec, finish(np.array([1.0]), np.array([1]), "x"), fresh, AuditSettings(tolerance_ms=0))
+        run_audit(rec, checked_trains(np.array([1.0]), np.array([1]), "x"), fresh, AuditSettings(tolerance_ms=0))
     write_synth(tmp_path / "other.bin", 2.0, 16, 1)
     other = open_recording(tmp_path / "other.bin")
     with pytest.raises(RigsideError, match="must come from this recording"):
-        run_audit(other, finish(np.array([1.0]), np.array([1]), "x"), fresh)
+        run_audit(other, checked_trains(np.array([1.0]), np.array([1]), "x"), fresh)
     with pytest.raises(Cancelled):
-        run_audit(rec, finish(np.array([1.0, 2.0]), np.array([1, 1]), "x"), fresh, cancel=lambda: True)
+        run_audit(rec, checked_trains(np.array([1.0, 2.0]), np.array([1, 1]), "x"), fresh, cancel=lambda: True)
 
 
 def test_unit_without_any_match(world):
@@ -213,7 +213,7 @@ def test_unit_without_any_match(world):
     t = np.sort(rng.uniform(0, rec.duration_s, 5))
     all_fresh = np.sort(np.concatenate([fresh.train(u)[0] for u in fresh.sorting.unit_ids()]))
     t = t[[len(match_times(np.array([x]), all_fresh, TOL)[0]) == 0 for x in t]]
-    res = run_audit(rec, finish(t, np.full(len(t), 9), "lonely"), fresh)
+    res = run_audit(rec, checked_trains(t, np.full(len(t), 9), "lonely"), fresh)
     row = res.row(9)
     assert res.closest_fresh(9) is None and row["closest_fresh_unit"] == -1
     assert row["false_positive_estimate"] == 1.0 and np.isnan(row["miss_estimate"])

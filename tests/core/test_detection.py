@@ -80,7 +80,8 @@ def test_look_up_equals_fresh_detection(tmp_path, mode):
         fresh_keep = fresh.mask(threshold_sigma=k) if mode == "sigma" else fresh.mask(threshold_uv=k * 10.0)
         np.testing.assert_array_equal(table.sample[keep], fresh.sample[fresh_keep])
         np.testing.assert_array_equal(table.channel[keep], fresh.channel[fresh_keep])
-        assert table.counts(**({"threshold_sigma": k} if mode == "sigma" else {"threshold_uv": k * 10.0})).sum() == keep.sum()
+        given = {"threshold_sigma": k} if mode == "sigma" else {"threshold_uv": k * 10.0}
+        assert table.counts(**given).sum() == keep.sum()
 
 
 def test_result_does_not_depend_on_chunking_or_threads(tmp_path):

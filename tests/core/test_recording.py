@@ -114,8 +114,10 @@ def test_nan_in_float_data_is_reported_with_place(tmp_path):
     ("not toml [[[", "valid TOML"),
     ("[recording]\nchannels = 2\n", "must give rate_hz"),
     ("[recording]\nchannels = 2\nrate_hz = 30000\nmystery = 1\n", "keys must be among"),
-    ("[recording]\nchannels = 2\nrate_hz = 30000\n[[group]]\nchannels = [0, 5]\n", "group channels must be integers from 0 to 1"),
-    ("[recording]\nchannels = 2\nrate_hz = 30000\n[[group]]\nchannels = [0]\n[[group]]\nchannels = [0]\n", "must not overlap"),
+    ("[recording]\nchannels = 2\nrate_hz = 30000\n[[group]]\nchannels = [0, 5]\n",
+     "group channels must be integers from 0 to 1"),
+    ("[recording]\nchannels = 2\nrate_hz = 30000\n[[group]]\nchannels = [0]\n[[group]]\nchannels = [0]\n",
+     "must not overlap"),
     ("[recording]\nchannels = 2\nrate_hz = -1\n", "sampling rate"),
 ])
 def test_hostile_metadata(tmp_path, text, match):

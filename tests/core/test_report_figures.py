@@ -65,7 +65,7 @@ def test_ids_are_unique_across_figures_of_one_page():
 DRAW_BLOCKED = """
 import sys
 import tests.block_qt
-import rigside.core.audit.report
+import rigside.core.audit.html_report
 assert "matplotlib" not in sys.modules, "importing the report must not import matplotlib"
 import numpy as np
 from rigside.core.audit.report_figures import overlap_figure

@@ -65,7 +65,8 @@ def test_neighbour_correlation_and_sampled_rates():
 def test_bivariate_term_by_independent_integration():
     # Phi2(-k,-k; rho) checked by direct numerical integration of the bivariate normal density
     rho, k = neighbour_correlation(SOS, FS), 3.0
-    dens = lambda y, x: np.exp(-(x * x - 2 * rho * x * y + y * y) / (2 * (1 - rho ** 2))) / (2 * np.pi * np.sqrt(1 - rho ** 2))
+    dens = lambda y, x: (np.exp(-(x * x - 2 * rho * x * y + y * y) / (2 * (1 - rho ** 2)))
+                         / (2 * np.pi * np.sqrt(1 - rho ** 2)))
     both, _ = integrate.dblquad(dens, -12, -k, -12, -k)
     want = FS * (stats.norm.cdf(-k) - both)
     assert float(sampled_crossing_rate(SOS, FS, k)) == pytest.approx(want, rel=1e-4)

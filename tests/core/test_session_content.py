@@ -1,7 +1,6 @@
 """Sessions whose checksum is valid but whose content is hostile or out of range are refused
 with one SessionError line, never a traceback from deeper code."""
 
-import h5py
 import numpy as np
 import pytest
 
@@ -9,7 +8,7 @@ from rigside.core.errors import SessionError
 from rigside.core.textparse import MAX_NESTING, nesting, parse_json
 from rigside.core.units.session import load_session, save_session
 
-from .test_session import copy_session, made, reseal  # noqa: F401  (module fixture and helpers)
+from .test_session import copy_session, edit_session, made, reseal  # noqa: F401  (module fixture and helpers)
 
 DEEP = "[" * 50_000 + "]" * 50_000
 
@@ -58,7 +57,7 @@ def test_valid_checksum_with_hostile_content_is_refused(made, tmp_path, name):  
     raw, s = made
     p = save_session(tmp_path / "h.h5", copy_session(s))
     mutate, message = CONTENT[name]
-    with h5py.File(p, "r+") as f:
+    with edit_session(p) as f:
         mutate(f)
     reseal(p)
     with pytest.raises(SessionError, match=message) as info:

@@ -43,7 +43,7 @@ def test_a_format_1_session_saved_again_stores_labels_by_name(tmp_path):
     s = load_session(FORMAT1, recording_path_override=DEMO)
     p = save_session(tmp_path / "again.h5", s)
     with h5py.File(p, "r") as f:
-        assert f.attrs["format_version"] == 2 and "unit_label" not in f["sorting"]
+        assert f.attrs["format_version"] == 3 and "unit_label" not in f["sorting"]
         assert bytes(f["sorting/labels"][()]).decode().count("not neural") == 2
     back = load_session(p, check_recording=False)
     assert {u: rec.label for u, rec in back.sorting.units.items()} == EXPECTED

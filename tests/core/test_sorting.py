@@ -20,7 +20,7 @@ from rigside.core.units.operations import (
     operation_from_record,
 )
 from rigside.core.units.polygon import points_in_polygon
-from rigside.core.units.sorting import AXIS_AMPLITUDE, AXIS_TIME, NO_UNIT, Signal, Sorting, Unit
+from rigside.core.units.sorting import AXIS_AMPLITUDE, AXIS_TIME, NO_UNIT, Sorting, Unit
 
 from .sorting_data import make_events
 
@@ -235,21 +235,6 @@ def test_relabel_and_note_touch_only_their_unit(base):
     assert len(seen) == 2
 
 
-def test_signal_functions_and_disconnect():
-    sig = Signal()
-    got = []
-
-    def f(x):
-        got.append(x)
-
-    sig.connect(f)
-    sig.connect(f)
-    sig.emit(1)
-    sig.disconnect(f)
-    sig.emit(2)
-    assert got == [1]
-
-
 def test_journal_replay_refuses_inconsistent_entries(base):
     s, stack = fresh(base)
     u0, u1 = unit_of_cluster(base, s, 0), unit_of_cluster(base, s, 1)
@@ -332,3 +317,16 @@ def test_steps_applied_out_of_order_are_refused(base):
     with pytest.raises(CurationError, match="state the step was computed for"):
         first.undo(s)                      # the later step must be undone first
     assert same(s, before)
+
+
+def test_positions_in_agrees_with_a_dictionary_on_both_paths():
+    from rigside.core.units.sorting import positions_in
+
+    rng = np.random.default_rng(4)
+    for top in (300, 2**31 - 3):          # a look-up table, then a binary search
+        ids = np.unique(np.r_[rng.integers(1, 300, 40), top]).astype(np.int64)
+        values = np.r_[rng.choice(ids, 500), rng.integers(-5, 400, 200), [top + 1, -1]]
+        values = values.astype(np.int32 if top < 2**30 else np.int64)
+        where = {int(u): i for i, u in enumerate(ids)}     # common practice, no source: a plain mapping
+        assert positions_in(ids, values).tolist() == [where.get(int(v), -1) for v in values]
+    assert positions_in(np.zeros(0, np.int64), np.array([1, 2])).tolist() == [-1, -1]

@@ -9,7 +9,7 @@ import numpy as np
 import pytest
 
 from rigside.core.errors import SpikeFileError
-from rigside.core.io.spike_import import finish
+from rigside.core.io.spike_import import checked_trains
 from rigside.core.io.spike_import_files import load_spikes
 
 UNITS = np.array([3, 1, 3, 1, 7])
@@ -135,13 +135,13 @@ def test_times_beyond_the_recording(tmp_path):
 
 def test_finish_checks_types_and_lengths():
     with pytest.raises(SpikeFileError, match="must be numbers"):
-        finish(np.array(["0.1"]), np.array([1]), "x")
+        checked_trains(np.array(["0.1"]), np.array([1]), "x")
     with pytest.raises(SpikeFileError, match="must be integers"):
-        finish(np.array([0.1]), np.array(["a"]), "x")
+        checked_trains(np.array([0.1]), np.array(["a"]), "x")
     with pytest.raises(SpikeFileError, match="one unit per spike"):
-        finish(np.array([0.1, 0.2]), np.array([1]), "x")
+        checked_trains(np.array([0.1, 0.2]), np.array([1]), "x")
     with pytest.raises(SpikeFileError, match="at least one spike"):
-        finish(np.zeros(0), np.zeros(0, int), "x")
+        checked_trains(np.zeros(0), np.zeros(0, int), "x")
 
 
 def test_unknown_suffix_missing_file_and_group_misuse(tmp_path):

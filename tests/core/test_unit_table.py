@@ -10,7 +10,14 @@ from scipy import optimize, stats
 from rigside.core.errors import ParamError, RigsideError
 from rigside.core.events import EventTable
 from rigside.core.progress import Cancelled
-from rigside.core.quality.unit_table import CAUTION, COLUMNS, MetricParams, unit_metrics_for_events, unit_metrics_table
+from rigside.core.quality.unit_table import (
+    CAUTION,
+    COLUMNS,
+    MetricParams,
+    main_channel,
+    unit_metrics_for_events,
+    unit_metrics_table,
+)
 from rigside.core.quality.unit_table_io import (
     DEFAULT_LIMITS,
     Limit,
@@ -242,3 +249,15 @@ def test_undefined_numbers_are_their_own_state_in_the_flag_text():
     assert text[1] == "contamination > 0.1; isolation_distance < 20"
     assert text[2] == "contamination undefined: too few events; isolation_distance undefined: too few events"
     assert "<" not in text[2] and ">" not in text[2]
+
+
+def test_main_channel_is_the_most_frequent_detection_channel():
+    """The one main-channel rule (common practice, no source): the mode of the detection
+    channels, the lowest channel on ties, checked against scipy.stats.mode."""
+    rng = np.random.default_rng(3)
+    for _ in range(20):
+        ch = rng.integers(0, 6, size=int(rng.integers(1, 40)))
+        assert main_channel(ch) == int(stats.mode(ch, keepdims=False).mode)
+    assert main_channel(np.array([4, 2, 4, 2])) == 2
+    with pytest.raises(RigsideError, match="needs events"):
+        main_channel(np.array([], dtype=np.int64))

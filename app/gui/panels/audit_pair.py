@@ -45,8 +45,9 @@ def key_text(pair: PairView | None) -> str:
     """The symbol key, naming the two units."""
     imp = f"imported unit {pair.imported.unit}" if pair else "imported unit"
     fresh = f"fresh unit {pair.fresh.unit}" if pair and pair.fresh else "fresh unit"
-    return palette.key([("● ——", IMPORTED, f"{imp}, spike shared"), ("✕", IMPORTED, "imported only (possible false positive)"),
-                        ("○ - -", FRESH, f"{fresh}, spike shared"), ("▼", FRESH, "fresh only (possible miss)")]) + " &nbsp; (trace view: a tick per shared spike)"
+    entries = [("● ——", IMPORTED, f"{imp}, spike shared"), ("✕", IMPORTED, "imported only (possible false positive)"),
+               ("○ - -", FRESH, f"{fresh}, spike shared"), ("▼", FRESH, "fresh only (possible miss)")]
+    return palette.key(entries) + " &nbsp; (trace view: a tick per shared spike)"
 
 
 def sides_of(pair: PairView | None) -> list[tuple[str, UnitView]]:
@@ -91,7 +92,8 @@ class AuditPairPlots(QWidget):
         self.header.setTextFormat(Qt.TextFormat.RichText)
         self.key = QLabel(key_text(None))
         self.waveforms = palette.make_plot("time from spike (ms), one block per channel", "filtered signal (µV)")
-        self.isi = palette.make_plot("interval between consecutive spikes (ms); grey: refractory window", "intervals (count)")
+        self.isi = palette.make_plot("interval between consecutive spikes (ms); grey: refractory window",
+                                     "intervals (count)")
         self.amplitude = palette.make_plot("time in the recording (s)", "amplitude (µV)")
         self.refractory = pg.LinearRegionItem(movable=False, brush=pg.mkBrush(*palette.GREY, 50),
                                               pen=palette.pen(palette.GREY))

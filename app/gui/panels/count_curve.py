@@ -26,7 +26,7 @@ class CountCurvePanel(Panel):
         self._build()
         bench.events_changed.connect(self._redraw)
         bench.selection_changed.connect(self._on_selection)
-        bench.unit_changed.connect(self._redraw)
+        bench.scale_changed.connect(self._redraw)
         bench.thresholds_changed.connect(self._on_thresholds)
         bench.truth_changed.connect(self._request_scores)
         bench.recording_changed.connect(self._on_recording)
@@ -85,7 +85,7 @@ class CountCurvePanel(Panel):
 
     def _x(self, k: np.ndarray) -> np.ndarray:
         b = self.bench
-        return k if b.unit == "sigma" else k * float(b.sigma_uv[b.channel])
+        return k if b.scale == "sigma" else k * float(b.sigma_uv[b.channel])
 
     def _on_recording(self) -> None:
         self.scores = None
@@ -119,8 +119,8 @@ class CountCurvePanel(Panel):
         highest = max(float(np.nanmax(rate)) if np.any(rate > 0) else 1.0, float(noise[0]))
         self.rate_plot.setYRange(np.log10(lowest), np.log10(highest * 2), padding=0)
         self.rate_plot.setXRange(x[0], x[-1], padding=0.02)
-        unit = "× noise σ" if b.unit == "sigma" else "µV"
-        palette.style_plot(self.rate_plot, f"threshold on ch {c} ({unit})", "events / s (log)")
+        scale = "× noise σ" if b.scale == "sigma" else "µV"
+        palette.style_plot(self.rate_plot, f"threshold on ch {c} ({scale})", "events / s (log)")
         self.note.setText(f"ch {c}: where the detected curve meets the dashed one, noise alone would "
                           "give as many crossings (Gaussian noise through this filter assumed). Each event "
                           "counts once, on the group channel where it peaks.")

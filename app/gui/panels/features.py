@@ -13,7 +13,7 @@ from rigside.gui.panels.base import Panel
 POINT_LIMIT = 20_000
 DENSITY_BINS = 256
 TIME = "time_s"
-UNITS = {"peak_uv": "µV", "width_ms": "ms", "energy_uv2": "µV²", TIME: "s"}
+MEASURED_IN = {"peak_uv": "µV", "width_ms": "ms", "energy_uv2": "µV²", TIME: "s"}
 
 
 def density(x: np.ndarray, y: np.ndarray, x_range, y_range, bins: int = DENSITY_BINS) -> np.ndarray:
@@ -157,7 +157,7 @@ class FeaturePanel(Panel):
 
 
 def _label(name: str) -> str:
-    unit = UNITS.get(name)
+    measured_in = MEASURED_IN.get(name)
     pretty = {"peak_uv": "peak", "width_ms": "trough-to-peak width", "energy_uv2": "energy", TIME: "time"}
     text = pretty.get(name, name)
-    return f"{text} ({unit})" if unit else f"{text} (score)"
+    return f"{text} ({measured_in})" if measured_in else f"{text} (score)"

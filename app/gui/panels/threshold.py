@@ -114,7 +114,7 @@ class ThresholdPanel(Panel):
         bench.events_changed.connect(self._on_events)
         bench.thresholds_changed.connect(self._on_thresholds)
         bench.selection_changed.connect(self._on_thresholds)
-        bench.unit_changed.connect(self._on_unit)
+        bench.scale_changed.connect(self._on_scale)
 
     def _build(self) -> None:
         b = self.bench
@@ -123,19 +123,19 @@ class ThresholdPanel(Panel):
         self.value.setKeyboardTracking(False)
         self.value.setDecimals(2)
         self.value.setToolTip("Detection threshold of the selected channel (Ctrl+Up / Ctrl+Down)")
-        self.unit = QComboBox()
-        self.unit.addItem("× noise σ", "sigma")
-        self.unit.addItem("µV", "uv")
-        self.unit.setToolTip("Read and show the threshold as multiples of the channel's noise "
+        self.scale = QComboBox()
+        self.scale.addItem("× noise σ", "sigma")
+        self.scale.addItem("µV", "uv")
+        self.scale.setToolTip("Read and show the threshold as multiples of the channel's noise "
                              "sigma or in microvolts (U)")
         self.scope = QComboBox()
         self.scope.addItem("all channels", "all")
         self.scope.addItem("selected channel only", "channel")
         self.scope.setToolTip("Apply a new threshold to every channel or only to the selected one")
         SpinBinding(self.value, b.threshold_value, lambda v: b.set_threshold(v, final=True),
-                    [b.thresholds_changed, b.unit_changed, b.selection_changed, b.events_changed])
-        ComboBinding(self.unit, lambda: b.unit, b.set_unit, [b.unit_changed])
-        ComboBinding(self.scope, lambda: b.scope, b.set_scope, [b.unit_changed])
+                    [b.thresholds_changed, b.scale_changed, b.selection_changed, b.events_changed])
+        ComboBinding(self.scale, lambda: b.scale, b.set_scale, [b.scale_changed])
+        ComboBinding(self.scope, lambda: b.scope, b.set_scope, [b.scale_changed])
         self.redetect = QPushButton("Detect again below the floor")
         self.redetect.setToolTip("The threshold is below the lowest stored event amplitude: "
                                  "detect again down to it")
@@ -150,7 +150,7 @@ class ThresholdPanel(Panel):
         form = QFormLayout()
         row = QHBoxLayout()
         row.addWidget(self.value, 1)
-        row.addWidget(self.unit)
+        row.addWidget(self.scale)
         form.addRow("Threshold:", row)
         form.addRow("Applies to:", self.scope)
         self.table_model = ChannelTable(b, self)
@@ -173,7 +173,7 @@ class ThresholdPanel(Panel):
 
     def _on_recording(self) -> None:
         self.table_model.reset()
-        self._on_unit()
+        self._on_scale()
         self.summary.setTextFormat(Qt.TextFormat.RichText)
         self.summary.setText("Measuring noise and detecting events…")
 
@@ -182,8 +182,8 @@ class ThresholdPanel(Panel):
         self.summary.setTextFormat(Qt.TextFormat.PlainText)
         self.summary.setText(text)
 
-    def _on_unit(self) -> None:
-        uv = self.bench.unit == "uv"
+    def _on_scale(self) -> None:
+        uv = self.bench.scale == "uv"
         with QSignalBlocker(self.value):
             self.value.setRange(0.1, 100000.0 if uv else 100.0)
             self.value.setSingleStep(1.0 if uv else 0.1)
@@ -201,7 +201,8 @@ class ThresholdPanel(Panel):
                                 "Rice's formula).")
         self._on_thresholds()
         self.table.resizeColumnsToContents()
-        self.table.setColumnWidth(7, max(self.table.columnWidth(7), self.fontMetrics().horizontalAdvance("0.00088") + 16))
+        rate_width = self.fontMetrics().horizontalAdvance("0.00088") + 16
+        self.table.setColumnWidth(7, max(self.table.columnWidth(7), rate_width))
 
     def _on_thresholds(self, final: bool = True) -> None:
         """The summary follows every move; during a drag the table is redrawn at most every

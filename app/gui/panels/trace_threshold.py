@@ -87,7 +87,7 @@ class ThresholdHandle:
         b = self.bench
         off = self.panel.offsets[self.panel.lane[b.channel]]
         uv = abs(self.handle.value() - off)
-        return uv / float(b.sigma_uv[b.channel]) if b.unit == "sigma" else uv
+        return uv / float(b.sigma_uv[b.channel]) if b.scale == "sigma" else uv
 
     def _on_moved(self, _line=None) -> None:
         if not self._placing and self.bench.events is not None:

@@ -40,7 +40,7 @@ class TracePanel(Panel):
         bench.selection_changed.connect(self._on_selection)
         bench.events_changed.connect(self._on_events)
         bench.thresholds_changed.connect(self._on_thresholds)
-        bench.unit_changed.connect(self.threshold.update_handle)
+        bench.scale_changed.connect(self.threshold.update_handle)
         bench.view_changed.connect(self._on_view)
         bench.show_raw_changed.connect(self._on_raw)
         bench.overview_changed.connect(self._on_overview)

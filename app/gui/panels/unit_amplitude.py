@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pyqtgraph as pg
 
+from rigside.core.quality.unit_table import main_channel
 from rigside.gui import palette
 from rigside.gui.panels.unit_view_base import UnitView
 
@@ -26,8 +27,7 @@ class AmplitudeView(UnitView):
         m = self.ctl.metrics.get(unit)
         if m is not None:
             return int(m["main_channel"])
-        ch = self.ctl.events.channel[self.ctl.sorting.events_of(unit)]
-        return int(np.bincount(ch).argmax())
+        return main_channel(self.ctl.events.channel[self.ctl.sorting.events_of(unit)])
 
     def draw(self, units: list[int]) -> None:
         pi = self.plot.getPlotItem()

@@ -54,8 +54,8 @@ class CorrelogramView(UnitView):
         pc = self.cross.getPlotItem()
         if len(units) < 2:
             pc.setTitle("cross: select 2 units", size="9pt")
-            self.status.setText(f"Bins of {bin_s * 1e3:g} ms up to ±{window_s * 1e3:g} ms; shaded in auto: ± refractory "
-                                f"period.")
+            self.status.setText(f"Bins of {bin_s * 1e3:g} ms up to ±{window_s * 1e3:g} ms; "
+                                "shaded in auto: ± refractory period.")
             return
         a, b = units[0], units[1]
         counts, edges = crosscorrelogram(self.unit_times(a), self.unit_times(b), bin_s, window_s)

@@ -156,7 +156,7 @@ def write_audit_report(result: AuditResult, path: str | Path, title: str = "Audi
     html = audit_report_html(result, title)
 
     def write(tmp: Path) -> None:
-        with open(tmp, "w", encoding="utf-8") as fh:
+        with open(tmp, "w", encoding="utf-8", newline="\n") as fh:
             fh.write(html)
 
     return atomic_write(path, write)

@@ -1,0 +1,80 @@
+"""Starting the window from the command line: on a file or the demo, or rendered to a PNG."""
+
+from __future__ import annotations
+
+import os
+import sys
+import traceback
+from typing import Callable
+
+from PySide6.QtCore import QTimer
+from PySide6.QtWidgets import QApplication
+
+from rigside.gui.window import MainWindow
+from rigside.sample_data import demo_path
+
+
+def _excepthook(kind, value, tb) -> None:
+    traceback.print_exception(kind, value, tb, file=sys.stderr)
+    app = QApplication.instance()
+    win = next((w for w in app.topLevelWidgets() if isinstance(w, MainWindow)), None) if app else None
+    if win is not None:
+        win.show_error("Something went wrong", f"{kind.__name__}: {value}")
+
+
+def run_window(path: str | None, *, screenshot: str | None = None, recording_options: dict | None = None,
+               demo: bool = False, session: str | None = None) -> int:
+    """Open the window (on ``path``, a recording or a session, or the demo; with ``session``, that
+    session on the recording ``path``); with ``screenshot``, render to a PNG and exit."""
+    if screenshot:
+        os.environ["QT_QPA_PLATFORM"] = "offscreen"
+    app = QApplication.instance() or QApplication(sys.argv[:1])
+    app.setApplicationName("rigside")
+    win = MainWindow(interactive=not screenshot)
+    target = str(demo_path()) if demo else path
+
+    def open_target() -> bool:
+        if session is not None:
+            return win.open_session(session, recording=target)
+        return win.open_path(target, recording_options)
+
+    if screenshot:
+        return _render(win, target, open_target, screenshot)
+    sys.excepthook = _excepthook
+    win.show()
+    if target is not None:
+        QTimer.singleShot(0, open_target)
+    return app.exec()
+
+
+def _show_a_unit(win: MainWindow) -> None:
+    """In a rendered session, select the unit with the most events among the shown channels, so
+    its quality plots are drawn beside the unit list."""
+    ctl = getattr(win, "units", None)
+    if ctl is None or ctl.sorting is None or ctl.selection:
+        return
+    counts = ctl.sorting.counts()
+    shown = [u for u in counts if ctl.sorting.unit(u).group == win.bench.group] or list(counts)
+    if shown:
+        ctl.set_selection([max(shown, key=counts.get)])
+        win.wait_idle()
+
+
+def _render(win: MainWindow, target: str | None, open_target: Callable[[], bool], screenshot: str) -> int:
+    from rigside.gui.screenshot import capture
+    win.resize(1600, 1000)
+    win.show()
+    code = 0
+    if target is not None:
+        if not open_target():
+            print(f"rigside: {win.last_error[1]}", file=sys.stderr)
+            code = 2
+        elif not win.wait_idle() or win.analysis_outcome != "done" or win.last_error:
+            print(f"rigside: {win.last_error[1] if win.last_error else 'loading did not finish'}",
+                  file=sys.stderr)
+            code = 1
+    if code == 0:
+        _show_a_unit(win)
+        capture(win, screenshot)
+    win.close()
+    return code

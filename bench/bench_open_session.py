@@ -1,0 +1,90 @@
+"""Opening a sorted session against opening its raw recording, whole commands.
+
+Makes a synthetic recording in a temporary folder (``rigside synth``), sorts it headless
+(``rigside sort``), then measures, each in its own process (wall time and the process's peak
+resident memory from ``os.wait4``):
+- ``rigside open SESSION --screenshot OUT.png``: the whole command, to a complete window with
+  units and quality numbers (target: 3 s and 1 GB for 64 channels x 600 s);
+- the raw recording in the window: time from ``open_path`` to the first paint (traces and
+  threshold; target 2 s) and to the complete window (detection and features done), against
+  the time of ``rigside sort`` on it.
+
+Run: python bench/bench_open_session.py [--channels 64] [--seconds 600] [--keep DIR]
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import os
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+RAW_OPEN = """
+import json, os, sys, time
+os.environ["QT_QPA_PLATFORM"] = "offscreen"
+from PySide6.QtWidgets import QApplication
+from rigside.gui.window import MainWindow
+app = QApplication([])
+win = MainWindow(interactive=False)
+win.resize(1600, 1000)
+win.show()
+app.processEvents()
+t0 = time.perf_counter()
+assert win.open_path(sys.argv[1])
+win.repaint()
+app.processEvents()
+first = time.perf_counter() - t0
+assert win.wait_idle(3600) and win.analysis_outcome == "done", win.last_error
+print(json.dumps({"first_paint_s": first, "complete_s": time.perf_counter() - t0}))
+win.close()
+"""
+
+
+def measured(cmd: list[str]) -> tuple[float, float, str]:
+    """Wall seconds, peak RSS (MB, the child's own, from ``os.wait4``) and stdout of one command."""
+    t0 = time.perf_counter()
+    p = subprocess.Popen(cmd, stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True)
+    out = p.stdout.read()
+    err = p.stderr.read()
+    _, status, usage = os.wait4(p.pid, 0)
+    wall = time.perf_counter() - t0
+    if os.waitstatus_to_exitcode(status) != 0:
+        raise SystemExit(f"{' '.join(cmd)} failed: {err.strip()[-400:]}")
+    return wall, usage.ru_maxrss / 1024, out
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
+    ap.add_argument("--channels", type=int, default=64)
+    ap.add_argument("--seconds", type=float, default=600.0)
+    ap.add_argument("--keep", metavar="DIR", help="work in DIR (reused when it holds the files)")
+    a = ap.parse_args()
+    rigside = [sys.executable, "-m", "rigside"]
+    with tempfile.TemporaryDirectory() as tmp:
+        work = Path(a.keep or tmp)
+        work.mkdir(parents=True, exist_ok=True)
+        rec, session = work / "rec.bin", work / "rec.session.h5"
+        if not rec.exists():
+            measured([*rigside, "synth", str(rec), "--channels", str(a.channels), "--seconds", str(a.seconds),
+                      "--quiet"])
+        sort_s = float("nan")
+        if not session.exists():
+            sort_s, sort_mb, out = measured([*rigside, "sort", str(rec), "--session", str(session), "--quiet"])
+            print(f"sort: {sort_s:.1f} s, peak {sort_mb:.0f} MB  ({out.strip()})")
+        print(f"recording: {a.channels} channels x {a.seconds:g} s, {rec.stat().st_size / 1e6:.0f} MB")
+        open_s, open_mb, _ = measured([*rigside, "open", str(session), "--screenshot", str(work / "s.png")])
+        print(f"open SESSION --screenshot (whole command, complete window): {open_s:.1f} s, peak {open_mb:.0f} MB "
+              f"(target 3 s, 1000 MB at 64 x 600 s)")
+        raw_s, raw_mb, out = measured([sys.executable, "-c", RAW_OPEN, str(rec)])
+        r = json.loads(out.strip().splitlines()[-1])
+        print(f"raw recording in the window: first paint {r['first_paint_s']:.2f} s (target 2 s), complete "
+              f"{r['complete_s']:.1f} s (target: sort time {sort_s:.1f} s), process {raw_s:.1f} s, "
+              f"peak {raw_mb:.0f} MB")
+
+
+if __name__ == "__main__":
+    main()

@@ -1,0 +1,49 @@
+"""Chunks of a recording (or other tasks) worked on by a bounded pool, results taken in order."""
+
+from __future__ import annotations
+
+import threading
+from contextlib import contextmanager
+from typing import TypeVar
+
+from threadpoolctl import threadpool_limits
+
+T = TypeVar("T")
+
+
+def chunk_bounds(n_samples: int, chunk: int) -> list[tuple[int, int]]:
+    """Consecutive ``[start, stop)`` ranges of at most ``chunk`` samples covering the file."""
+    return [(s, min(s + chunk, n_samples)) for s in range(0, n_samples, chunk)]
+
+
+_POOLS_LOCK = threading.Lock()
+_pool_users = 0
+_pool_limiter = None
+
+
+@contextmanager
+def single_threaded_pools():
+    """BLAS and OpenMP pools limited to one thread while any caller is inside.
+
+    ``threadpool_limits`` does not act on the calling thread alone: OpenBLAS (the pthreads
+    build in the numpy and scipy wheels) has one pool for the whole process, so other threads'
+    BLAS calls are single-threaded meanwhile; only the OpenMP runtime limits the calling thread.
+    It restores the limits it found on exit, so two overlapping uses from different threads
+    would restore in the wrong order (and leave the process at one thread); here the first
+    caller in sets the limits and the last one out restores them. threadpoolctl also lets only
+    one Python thread control OpenBLAS (the first that set a limit, while it lives): called from
+    another thread, the OpenBLAS limit is left as it is.
+    """
+    global _pool_users, _pool_limiter
+    with _POOLS_LOCK:
+        if _pool_users == 0:
+            _pool_limiter = threadpool_limits(limits=1)
+        _pool_users += 1
+    try:
+        yield
+    finally:
+        with _POOLS_LOCK:
+            _pool_users -= 1
+            if _pool_users == 0:
+                _pool_limiter.restore_original_limits()
+                _pool_limiter = None

@@ -1,0 +1,115 @@
+"""Writing session files of format 3: a static part written once, a state part on every save.
+
+Events and features never change after the first pass, so they live in a static part,
+``NAME.static-<digest>.h5``, named by the first 16 hex digits of its checksum. It is written
+(atomically) only when no file of that name holds that checksum yet; a new sorting saved under
+the same name gets a new static part and never disturbs the one an older state (a backup)
+refers to. The state part (recording, parameters, assignments, units, journal) is the file the
+user names; every save and autosave writes it whole and atomically. It records the static
+part's file name and checksum, so it belongs to exactly one static part.
+
+Checksums are computed from the arrays being written (per dataset, see
+:func:`rigside.core.io.h5safe.read_verified`), never by reading a file back.
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+from typing import Any
+
+import h5py
+import numpy as np
+
+from rigside.core import __version__
+from rigside.core.io.atomic import atomic_write
+from rigside.core.io.h5image import h5_image, h5_in_memory
+from rigside.core.io.h5safe import CHECKSUM_ATTR, read_verified, write_text
+from rigside.core.units.session_labels import labels_to_text
+
+FORMAT = "rigside session"
+STATIC_FORMAT = "rigside session static part"
+FORMAT_VERSION = 3
+STATIC_NAME_ATTR, STATIC_CHECKSUM_ATTR = "static_part", "static_checksum"
+LIBVER = ("v110", "latest")
+
+
+def static_path(main: str | Path, digest: str) -> Path:
+    """``NAME.static-<16 hex digits>.h5`` beside the main file ``NAME``."""
+    p = Path(main)
+    return p.with_name(f"{p.name}.static-{digest[:16]}.h5")
+
+
+def _seal(f: h5py.File, known: dict[str, np.ndarray]) -> str:
+    """Store and return the checksum of an in-memory file, hashing ``known`` from memory."""
+    f.flush()
+    _, digest = read_verified(f, "", size=f.id.get_filesize(), per_dataset=True, known=known)
+    f.attrs[CHECKSUM_ATTR] = digest
+    return digest
+
+
+def _fill_static(f: h5py.File, session: Any) -> str:
+    data = session.sorting.data
+    f.attrs.update(format=STATIC_FORMAT, format_version=FORMAT_VERSION)
+    stored = session.events.to_h5_group(f.create_group("events"), compress=False)
+    known = {f"events/{k}": v for k, v in stored.items()}
+    feat = f.create_group("features")
+    feat.create_dataset("values", data=data.features)
+    feat.attrs["names"] = json.dumps(list(data.feature_names))
+    known["features/values"] = data.features
+    return _seal(f, known)
+
+
+def stored_checksum(path: Path) -> str | None:
+    """The checksum attribute of the HDF5 file at ``path`` (None if absent or unreadable)."""
+    try:
+        with h5py.File(path, "r") as f:
+            value = f.attrs.get(CHECKSUM_ATTR)
+    except (OSError, KeyError, ValueError):
+        return None
+    return value if isinstance(value, str) else None
+
+
+def ensure_static(main: Path, session: Any) -> tuple[str, str]:
+    """Write the session's static part beside ``main`` unless it is there already.
+
+    The checksum is kept on the session (with the arrays it was computed from), so later
+    saves neither rebuild nor rewrite it. Returns the static part's file name and checksum.
+    """
+    cache = session.static_cache
+    image = None
+    if cache is not None and cache[0] is session.events and cache[1] is session.sorting.data.features:
+        digest = cache[2]
+    else:
+        image, digest = h5_image(lambda f: _fill_static(f, session), libver=LIBVER)
+    target = static_path(main, digest)
+    if stored_checksum(target) != digest:
+        if image is None:
+            image, _ = h5_image(lambda f: _fill_static(f, session), libver=LIBVER)
+        atomic_write(target, lambda tmp: tmp.write_bytes(image))
+    session.static_cache = (session.events, session.sorting.data.features, digest)
+    return target.name, digest
+
+
+def write_state(tmp: Path, session: Any, saved_utc: str, static: tuple[str, str]) -> None:
+    """Write the state part of ``session`` to ``tmp`` (built in memory, written at once)."""
+    sorting, ref = session.sorting, session.recording
+    units = sorting.units
+    with h5_in_memory(tmp, libver=LIBVER) as f:
+        f.attrs.update(format=FORMAT, format_version=FORMAT_VERSION, program_version=__version__,
+                       saved_utc=saved_utc, **{STATIC_NAME_ATTR: static[0], STATIC_CHECKSUM_ATTR: static[1]})
+        rec = f.create_group("recording")
+        rec.attrs.update(path=ref.path, size=np.int64(ref.size), fingerprint=ref.fingerprint,
+                         content_hash=ref.content_hash, description=json.dumps(ref.description, allow_nan=False))
+        f.create_group("params").attrs["json"] = json.dumps(session.params.to_dict(), allow_nan=False)
+        g = f.create_group("sorting")
+        known = {"sorting/assignments": np.ascontiguousarray(sorting.assignments),
+                 "sorting/unit_id": np.array(list(units), dtype=np.int32),
+                 "sorting/unit_group": np.array([u.group for u in units.values()], dtype=np.int32)}
+        for name, arr in known.items():
+            g.create_dataset(name.split("/")[1], data=arr)
+        known["sorting/labels"] = write_text(g, "labels", labels_to_text([u.label for u in units.values()]))
+        known["sorting/notes"] = write_text(g, "notes", json.dumps([u.note for u in units.values()]))
+        g.attrs["next_id"] = np.int64(sorting.next_id)
+        known["journal/lines"] = write_text(f.create_group("journal"), "lines", sorting.journal.to_text())
+        _seal(f, known)
