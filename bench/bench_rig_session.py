@@ -5,7 +5,7 @@ metrics, export, and the audit of 100 imported units (made from the session's ow
 some spikes dropped and some added); detection also runs in process. For every stage it prints
 the wall time, its multiple of real time, the ratio to a plain baseline measured in the same run
 (scipy / numpy / scikit-learn written the obvious way) and the peak memory of the command (the
-child's own max RSS from wait4), at each file length given.
+child's own VmHWM), at each file length given.
 
     python bench/bench_rig_session.py [--seconds 150 600] [--hour] [--channels 64] [--workdir DIR]
 
@@ -43,19 +43,26 @@ MARGIN = 3000            # samples each side of a baseline chunk for the filter 
 SNIPPET = (-10, 22)      # samples around an event cut by the baseline sort
 
 
+CHILD = ("import runpy, sys\n"
+         "sys.argv = ['rigside'] + sys.argv[1:]\n"
+         "try:\n"
+         "    runpy.run_module('rigside', run_name='__main__')\n"
+         "finally:\n"
+         "    hwm = [x for x in open('/proc/self/status') if x.startswith('VmHWM')]\n"
+         "    print('VMHWM', hwm[0].split()[1] if hwm else 0, file=sys.stderr)\n")
+"""The command, reporting its own peak RSS (VmHWM, kB): the wait4 figure of a child starts from the
+parent's peak at fork on Linux, so it would carry the benchmark's own memory."""
+
+
 def run_command(*argv: str | Path) -> tuple[float, float]:
     """Wall seconds and peak RSS (MB) of ``rigside ARGV`` in a fresh process."""
-    cmd = [sys.executable, "-m", "rigside", *map(str, argv)]
+    cmd = [sys.executable, "-c", CHILD, *map(str, argv)]
     t = time.perf_counter()
-    proc = subprocess.Popen(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
-    _, status, usage = os.wait4(proc.pid, 0)
+    proc = subprocess.run(cmd, stdout=subprocess.DEVNULL, stderr=subprocess.PIPE, text=True)
     wall = time.perf_counter() - t
-    proc.returncode = os.waitstatus_to_exitcode(status)
-    err = proc.stderr.read().decode(errors="replace")
-    proc.stderr.close()
     if proc.returncode != 0:
-        raise RuntimeError(f"{' '.join(cmd)} failed ({proc.returncode}): {err[-800:]}")
-    return wall, usage.ru_maxrss / 1024
+        raise RuntimeError(f"rigside {' '.join(map(str, argv))} failed ({proc.returncode}): {proc.stderr[-800:]}")
+    return wall, int(proc.stderr.rsplit("VMHWM", 1)[1].split()[0]) / 1024
 
 
 def timed(fn, *args):

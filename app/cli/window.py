@@ -8,7 +8,6 @@ import sys
 
 from rigside.cli.common import add_recording_options, recording_options
 from rigside.core.errors import RigsideError
-from rigside.core.units.session_open import check_session_file, file_kind
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -31,6 +30,8 @@ def register(sub: argparse._SubParsersAction) -> None:
 
 def run_open_command(args: argparse.Namespace) -> int:
     """Check what FILE (and --session) are before any window exists, then open them."""
+    from rigside.core.units.session_open import check_session_file, file_kind
+
     kind = file_kind(args.recording)
     if args.session is not None:
         check_session_file(args.session)
