@@ -124,7 +124,7 @@ class Runner(QObject):
             if slot is None or job.slot == slot:
                 job.cancel()
 
-    def shutdown(self, timeout_ms: int = 10000) -> None:
+    def shutdown(self, timeout_ms: int = 60000) -> None:
         """Cancel every job and wait for the threads to end."""
         for job in list(self._running):
             job.cancel()

@@ -130,6 +130,8 @@ def test_a_session_whose_recording_moved_opens_with_session(sorted_session, rend
     moved = _copy_demo(tmp_path / "moved")
     s2 = tmp_path / "s.h5"
     shutil.copy(session, s2)
+    for part in session.parent.glob(session.name + ".static-*"):   # a session is copied with its static part
+        shutil.copy(part, tmp_path / part.name)
     original = rec.parent.rename(rec.parent.with_name("gone"))
     try:
         assert main(["open", str(s2), "--screenshot", str(tmp_path / "a.png")]) == 1
