@@ -39,15 +39,23 @@ SESSION_FILTER = "rigside sessions (*.h5);;All files (*)"
 
 
 def _load_job(path: Path, override, progress=None, cancel=None):
-    """Load a session (quick recording check), hash the recording's whole content (full check)
-    and rebuild the undo history from the journal, off the GUI thread: ``(session, history)``;
-    the expected refusals come back as values (their kind matters)."""
+    """Load a session (quick recording check) and rebuild the undo history from the journal, off
+    the GUI thread: ``(session, history)``; the expected refusals come back as values (their kind
+    matters). The whole-content check runs after the session is shown (:func:`_content_job`)."""
     try:
         session = load_session(path, recording_path_override=override)
-        check_recording_content(session, progress, cancel)
     except (RecordingMoved, RecordingChanged, SessionError) as exc:
         return exc
     return session, rebuild_history(session.sorting, progress, cancel)
+
+
+def _content_job(session, progress=None, cancel=None):
+    """Hash the session's recording whole (the full check): None, or the :class:`RecordingChanged`."""
+    try:
+        check_recording_content(session, progress, cancel)
+    except RecordingChanged as exc:
+        return exc
+    return None
 
 
 def _save_job(path: Path, session, progress=None, cancel=None):
@@ -327,9 +335,7 @@ class SessionFlow(QObject):
                 self.window.show_error("Recording not found", str(result))
             return
         if isinstance(result, RecordingChanged):
-            self.window.show_error("The recording has changed",
-                                   f"{result} Nothing was loaded or computed; open the original recording "
-                                   f"file, or start a new sorting of this one.")
+            self._report_changed(result, "Nothing was loaded or computed")
             return
         if isinstance(result, SessionError):
             self.window.show_error("Cannot open the session", str(result))
@@ -351,6 +357,22 @@ class SessionFlow(QObject):
                 else "its journal does not replay to these units, so earlier steps cannot be undone")
         self.window.statusBar().showMessage(f"Opened {Path(file).name}: {len(result.sorting.units)} units; "
                                             f"{undo}.", 10000)
+        if result.recording.content_hash:
+            self.window.runner.submit("session_content", "Checking the recording's content", _content_job, result,
+                                      on_done=lambda r: self._content_checked(r, result))
+
+    def _content_checked(self, changed, session) -> None:
+        """The whole-content check of an opened session's recording came back: a changed recording
+        closes the session (its stored events would not be this file's)."""
+        if changed is None or self.ctl.session is not session:
+            return
+        self.ctl.attach(None)
+        self._report_changed(changed, "The session was closed without saving")
+
+    def _report_changed(self, changed: RecordingChanged, outcome: str) -> None:
+        self.window.show_error("The recording has changed",
+                               f"{changed} {outcome}; open the original recording file, or start a new "
+                               f"sorting of this one.")
 
     def _apply_threshold(self, session) -> None:
         d = session.params.detect

@@ -13,6 +13,7 @@ from typing import Any, Iterable
 
 from rigside.core.errors import CurationError
 from rigside.core.progress import check, report
+from rigside.core.units.journal import Journal
 from rigside.core.units.operations import ClusterGroups, operation_from_record
 from rigside.core.units.sorting import Sorting
 
@@ -34,6 +35,8 @@ class UndoStack:
         """Do a new step and journal it."""
         op.do(self.sorting)
         op.journal_seq = self.sorting.journal.record("do", op)["seq"]
+        if op.journal_seq == 0:
+            self.sorting.origin = self.sorting.state()
 
     def revert(self, op) -> None:
         """Undo a step and journal it."""
@@ -133,10 +136,21 @@ def rebuild_history(sorting: Sorting, progress=None, cancel=None) -> list | None
     The journal's opening step (the first pass) is left out: there is no earlier state to return
     to. Returns None when the replay does not reproduce ``sorting`` exactly, so that no history
     is offered that would not undo to the recorded states.
+
+    When the sorting knows its :attr:`~Sorting.origin` (the state after the opening step) and
+    no later entry undoes or redoes that step, the replay starts there instead of redoing the
+    first pass.
     """
-    fresh = Sorting(sorting.data)
+    entries = sorting.journal.entries
+    origin = sorting.origin
+    if origin is not None and entries and entries[0]["action"] == "do" and all(
+            e.get("ref") != 0 for e in entries[1:]):
+        fresh = Sorting.from_state(sorting.data, origin, Journal(entries[:1]))
+        fresh.origin, entries = origin, entries[1:]
+    else:
+        fresh = Sorting(sorting.data)
     try:
-        stack = _replay_stack(sorting.journal.entries, fresh, progress, cancel)
+        stack = _replay_stack(entries, fresh, progress, cancel)
     except CurationError:
         return None
     if not fresh.state_equal(sorting):

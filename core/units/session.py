@@ -51,6 +51,7 @@ from rigside.core.textparse import parse_json
 from rigside.core.units.journal import Journal, utc_now
 from rigside.core.units.session_labels import read_labels, upgrade_format1_journal
 from rigside.core.units.session_write import (
+    FIRST_PASS,
     FORMAT,
     FORMAT_VERSION,
     STATIC_CHECKSUM_ATTR,
@@ -60,7 +61,7 @@ from rigside.core.units.session_write import (
     stored_checksum,
     write_state,
 )
-from rigside.core.units.sorting import Sorting, SortingData, Unit
+from rigside.core.units.sorting import Sorting, SortingData, SortingState, Unit
 
 
 class RecordingMoved(SessionError):
@@ -108,7 +109,8 @@ class Session:
     saved_utc: str = ""
     source: Path | None = None
     static_cache: tuple | None = field(default=None, repr=False, compare=False)
-    """(events, features, checksum) of the static part last written or read (set by saving and loading)."""
+    """(events, features, first-pass state, checksum) of the static part last written or read (set by
+    saving and loading)."""
 
 
 def snapshot(session: Session) -> Session:
@@ -252,7 +254,6 @@ def _interpret(f: h5py.File, fs: h5py.File, data: dict, path: Path) -> tuple[Rec
     desc = parse_json(attr(g, "description", str, "recording"), "session recording description", SessionError)
     params_dict = parse_json(attr(f["params"], "json", str, "params"), "session parameters", SessionError)
     names = parse_json(attr(fs["features"], "names", str, "features"), "session feature names", SessionError)
-    notes = parse_json(text(data, "sorting/notes"), "session notes", SessionError)
     try:
         if not isinstance(params_dict, dict):
             raise ParamError(f"parameters must be a table, got {str(params_dict)[:40]!r}")
@@ -278,32 +279,43 @@ def _interpret(f: h5py.File, fs: h5py.File, data: dict, path: Path) -> tuple[Rec
     values = array(data, "features/values", "f4", 2)
     if not np.isfinite(values).all():
         raise SessionError("session dataset features/values must hold finite numbers, got NaN or infinite values")
-    assign = array(data, "sorting/assignments", "i4", 1)
-    ids = array(data, "sorting/unit_id", "i4", 1)
-    groups = array(data, "sorting/unit_group", "i4", 1)
     version = attr(f, "format_version", int, "")
-    labels = read_labels(data, version)
-    if not (isinstance(names, list) and all(isinstance(n, str) for n in names)
-            and isinstance(notes, list) and all(isinstance(n, str) for n in notes)):
-        raise SessionError("feature names and notes must be lists of text, got other values")
+    if not (isinstance(names, list) and all(isinstance(n, str) for n in names)):
+        raise SessionError("feature names must be a list of text, got other values")
+    if len(values) != len(events):
+        raise SessionError(f"session arrays must agree in length ({len(events)} events), got features "
+                           f"{values.shape}")
+    journal = Journal.from_text(text(data, "journal/lines"))
+    if version == 1:
+        journal = Journal(upgrade_format1_journal(journal.entries))
+    sorting_data = SortingData.from_events(events, values, names)
+    sorting = Sorting.from_state(sorting_data, _read_state(f, "sorting", data, version, events), journal)
+    if FIRST_PASS in fs:
+        sorting.origin = Sorting.from_state(sorting_data, _read_state(fs, FIRST_PASS, data, version, events)).state()
+    session = Session(ref, params, events, sorting, attr(f, "program_version", str, ""),
+                      attr(f, "saved_utc", str, ""), path)
+    return ref, session
+
+
+def _read_state(f: h5py.File, at: str, data: dict, version: int, events: EventTable) -> SortingState:
+    """The sorting state stored in group ``at`` of ``f`` (its datasets read and verified in ``data``)."""
+    assign = array(data, f"{at}/assignments", "i4", 1)
+    ids = array(data, f"{at}/unit_id", "i4", 1)
+    groups = array(data, f"{at}/unit_group", "i4", 1)
+    labels = read_labels(data, version, at)
+    notes = parse_json(text(data, f"{at}/notes"), "session notes", SessionError)
+    if not (isinstance(notes, list) and all(isinstance(n, str) for n in notes)):
+        raise SessionError("notes must be a list of text, got other values")
     m = len(ids)
-    if len(values) != len(events) or len(assign) != len(events) or not (
-            len(groups) == len(labels) == len(notes) == m) or len(np.unique(ids)) != m:
+    if len(assign) != len(events) or not (len(groups) == len(labels) == len(notes) == m) or len(np.unique(ids)) != m:
         raise SessionError(f"session arrays must agree in length ({len(events)} events, {m} units), got "
-                           f"features {values.shape}, assignments {assign.shape}, unit columns "
-                           f"{len(groups)}/{len(labels)}/{len(notes)} with unique ids")
+                           f"assignments {assign.shape}, unit columns {len(groups)}/{len(labels)}/{len(notes)} "
+                           f"with unique ids in {at}")
     if m and not (groups.min() >= 0 and groups.max() < events.n_channels and ids.min() >= 1):
         raise SessionError(f"unit ids must be at least 1 and unit groups from 0 to {events.n_channels - 1}, "
                            f"got ids {int(ids.min())}.. and groups {int(groups.min())}..{int(groups.max())}")
     units = {int(u): Unit(int(gr), la, note) for u, gr, la, note in zip(ids, groups, labels, notes)}
-    journal = Journal.from_text(text(data, "journal/lines"))
-    if version == 1:
-        journal = Journal(upgrade_format1_journal(journal.entries))
-    sorting = Sorting(SortingData.from_events(events, values, names), assign, units,
-                      attr(f["sorting"], "next_id", int, "sorting"), journal)
-    session = Session(ref, params, events, sorting, attr(f, "program_version", str, ""),
-                      attr(f, "saved_utc", str, ""), path)
-    return ref, session
+    return SortingState(assign, units, attr(f[at], "next_id", int, at))
 
 
 def _read(path: Path) -> tuple[RecordingRef, Session]:
@@ -318,7 +330,8 @@ def _read(path: Path) -> tuple[RecordingRef, Session]:
                 raise SessionError(f"session static part must be the one its state was saved with (checksum "
                                    f"{want[:16]}...), got {digest[:16]}... in {str(static)!r}")
             ref, session = _interpret(f, fs, {**data, **static_data}, path)
-    session.static_cache = (session.events, session.sorting.data.features, digest)
+    s = session.sorting
+    session.static_cache = (session.events, s.data.features, s.origin, digest)
     return ref, session
 
 

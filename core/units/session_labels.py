@@ -30,15 +30,15 @@ def labels_to_text(labels: list[str]) -> str:
     return json.dumps(labels)
 
 
-def read_labels(data: dict, version: int) -> list[str]:
-    """One label name per unit from a verified session file of format ``version``."""
+def read_labels(data: dict, version: int, group: str = "sorting") -> list[str]:
+    """One label name per unit of ``group`` from a verified session file of format ``version``."""
     if version == 1:
-        codes = array(data, "sorting/unit_label", "u1", 1)
+        codes = array(data, f"{group}/unit_label", "u1", 1)
         if len(codes) and codes.max() >= len(FORMAT1_LABELS):
             raise SessionError(f"unit label codes must be below {len(FORMAT1_LABELS)}, got {int(codes.max())}")
         return [_current(FORMAT1_LABELS[int(c)]) for c in codes]
     try:
-        names = json.loads(text(data, "sorting/labels"))
+        names = json.loads(text(data, f"{group}/labels"))
     except json.JSONDecodeError as exc:
         raise SessionError(f"session unit labels must be a JSON list, got {exc}") from None
     if not isinstance(names, list) or not all(isinstance(n, str) and n in LABELS for n in names):

@@ -32,6 +32,8 @@ STATIC_FORMAT = "rigside session static part"
 FORMAT_VERSION = 3
 STATIC_NAME_ATTR, STATIC_CHECKSUM_ATTR = "static_part", "static_checksum"
 LIBVER = ("v110", "latest")
+FIRST_PASS = "first_pass"
+"""Static-part group holding the sorting right after its first pass (for rebuilding the undo history)."""
 
 
 def static_path(main: str | Path, digest: str) -> Path:
@@ -57,7 +59,25 @@ def _fill_static(f: h5py.File, session: Any) -> str:
     feat.create_dataset("values", data=data.features)
     feat.attrs["names"] = json.dumps(list(data.feature_names))
     known["features/values"] = data.features
+    origin = session.sorting.origin
+    if origin is not None:
+        known.update(_write_units(f.create_group(FIRST_PASS), origin.assignments, origin.units, origin.next_id))
     return _seal(f, known)
+
+
+def _write_units(g: h5py.Group, assignments: np.ndarray, units: dict, next_id: int) -> dict[str, np.ndarray]:
+    """Assignments, unit columns and id counter of one sorting state into ``g``; returns the
+    arrays written by dataset path (for the checksum)."""
+    known = {"assignments": np.ascontiguousarray(assignments),
+             "unit_id": np.array(list(units), dtype=np.int32),
+             "unit_group": np.array([u.group for u in units.values()], dtype=np.int32)}
+    for name, arr in known.items():
+        g.create_dataset(name, data=arr)
+    known["labels"] = write_text(g, "labels", labels_to_text([u.label for u in units.values()]))
+    known["notes"] = write_text(g, "notes", json.dumps([u.note for u in units.values()]))
+    g.attrs["next_id"] = np.int64(next_id)
+    prefix = g.name.lstrip("/")
+    return {f"{prefix}/{k}": v for k, v in known.items()}
 
 
 def stored_checksum(path: Path) -> str | None:
@@ -78,8 +98,8 @@ def ensure_static(main: Path, session: Any) -> tuple[str, str]:
     """
     cache = session.static_cache
     image = None
-    if cache is not None and cache[0] is session.events and cache[1] is session.sorting.data.features:
-        digest = cache[2]
+    if cache is not None and all(a is b for a, b in zip(cache[:3], _static_key(session))):
+        digest = cache[3]
     else:
         image, digest = h5_image(lambda f: _fill_static(f, session), libver=LIBVER)
     target = static_path(main, digest)
@@ -87,14 +107,18 @@ def ensure_static(main: Path, session: Any) -> tuple[str, str]:
         if image is None:
             image, _ = h5_image(lambda f: _fill_static(f, session), libver=LIBVER)
         atomic_write(target, lambda tmp: tmp.write_bytes(image))
-    session.static_cache = (session.events, session.sorting.data.features, digest)
+    session.static_cache = (*_static_key(session), digest)
     return target.name, digest
+
+
+def _static_key(session: Any) -> tuple:
+    """What a static part is made of, compared by identity: events, features, first-pass state."""
+    return (session.events, session.sorting.data.features, session.sorting.origin)
 
 
 def write_state(tmp: Path, session: Any, saved_utc: str, static: tuple[str, str]) -> None:
     """Write the state part of ``session`` to ``tmp`` (built in memory, written at once)."""
     sorting, ref = session.sorting, session.recording
-    units = sorting.units
     with h5_in_memory(tmp, libver=LIBVER) as f:
         f.attrs.update(format=FORMAT, format_version=FORMAT_VERSION, program_version=__version__,
                        saved_utc=saved_utc, **{STATIC_NAME_ATTR: static[0], STATIC_CHECKSUM_ATTR: static[1]})
@@ -102,14 +126,6 @@ def write_state(tmp: Path, session: Any, saved_utc: str, static: tuple[str, str]
         rec.attrs.update(path=ref.path, size=np.int64(ref.size), fingerprint=ref.fingerprint,
                          content_hash=ref.content_hash, description=json.dumps(ref.description, allow_nan=False))
         f.create_group("params").attrs["json"] = json.dumps(session.params.to_dict(), allow_nan=False)
-        g = f.create_group("sorting")
-        known = {"sorting/assignments": np.ascontiguousarray(sorting.assignments),
-                 "sorting/unit_id": np.array(list(units), dtype=np.int32),
-                 "sorting/unit_group": np.array([u.group for u in units.values()], dtype=np.int32)}
-        for name, arr in known.items():
-            g.create_dataset(name.split("/")[1], data=arr)
-        known["sorting/labels"] = write_text(g, "labels", labels_to_text([u.label for u in units.values()]))
-        known["sorting/notes"] = write_text(g, "notes", json.dumps([u.note for u in units.values()]))
-        g.attrs["next_id"] = np.int64(sorting.next_id)
+        known = _write_units(f.create_group("sorting"), sorting.assignments, sorting.units, sorting.next_id)
         known["journal/lines"] = write_text(f.create_group("journal"), "lines", sorting.journal.to_text())
         _seal(f, known)

@@ -65,6 +65,15 @@ class Unit:
             raise CurationError(f"unit note must be text, got {type(self.note).__name__}")
 
 
+@dataclass(frozen=True, eq=False)
+class SortingState:
+    """A sorting's assignments (read-only), unit table and id counter at one moment."""
+
+    assignments: np.ndarray
+    units: dict[int, Unit]
+    next_id: int
+
+
 @dataclass(frozen=True)
 class Change:
     """What one applied delta touched (unit ids; :data:`NO_UNIT` stands for "in no unit")."""
@@ -166,6 +175,9 @@ class Sorting:
         The :class:`rigside.core.units.journal.Journal` of operations applied to this sorting.
     revision
         Incremented by every applied delta (including undo).
+    origin
+        The :class:`SortingState` right after the journal's opening step (the first pass), kept
+        so that the undo history can be rebuilt without redoing that step; None if unknown.
     """
 
     def __init__(self, data: SortingData, assignments: np.ndarray | None = None,
@@ -180,6 +192,7 @@ class Sorting:
         self.journal = journal if journal is not None else Journal()
         self.changed = Signal()
         self.revision = 0
+        self.origin: SortingState | None = None
         self._members: dict[int, np.ndarray] = {}
         self.validate()
 
@@ -254,7 +267,18 @@ class Sorting:
     def copy(self) -> "Sorting":
         """An independent copy (same read-only data; assignments, units and journal copied),
         e.g. for saving on a worker thread while curation goes on."""
-        return Sorting(self.data, self._assign, self._units, self.next_id, type(self.journal)(self.journal.entries))
+        twin = Sorting(self.data, self._assign, self._units, self.next_id, type(self.journal)(self.journal.entries))
+        twin.origin = self.origin
+        return twin
+
+    def state(self) -> SortingState:
+        """The current assignments (a read-only copy), unit table and id counter."""
+        return SortingState(_frozen(self._assign.copy()), dict(self._units), self.next_id)
+
+    @classmethod
+    def from_state(cls, data: SortingData, state: SortingState, journal=None) -> "Sorting":
+        """A sorting of ``data`` in ``state`` (validated)."""
+        return cls(data, state.assignments, state.units, state.next_id, journal)
 
     def state_equal(self, other: "Sorting") -> bool:
         """Same assignments (bitwise), unit table and id counter."""

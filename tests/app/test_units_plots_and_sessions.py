@@ -183,8 +183,9 @@ def test_moved_recording_is_asked_for_and_changed_one_is_refused(demo_window, tm
     assert asked and "Where is the recording" in asked[0]
     assert ctl.sorting.state_equal(saved)
     assert str(win.bench.recording.path) == str(moved / rec.name)
-    # a changed recording: said before anything is computed, and nothing is loaded; the byte changed
-    # lies outside the blocks the quick fingerprint reads, so only the whole-content hash sees it
+    # a changed recording: the whole-content check runs after the session is shown and closes it with
+    # a message; the byte changed lies outside the blocks the quick fingerprint reads, so only the
+    # whole-content hash sees it
     before = file_fingerprint(moved / rec.name)
     with open(moved / rec.name, "r+b") as fh:     # in place: the window still has the file open
         fh.seek(1_200_000)
