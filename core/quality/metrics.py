@@ -15,7 +15,6 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.optimize import brentq
 from scipy.special import log_ndtr, ndtr
 
 from rigside.core.errors import ParamError
@@ -291,6 +290,20 @@ _A_MAX = 8.0
 """Largest cut position fitted, in SD above the mean: a missed fraction of 1 - 6e-16."""
 
 
+def _cut_position(ratio: float, lo: float) -> float:
+    """The cut position ``a`` in ``[lo, _A_MAX]`` where :func:`_excess_ratio` (increasing in ``a``)
+    equals ``ratio``, by bisection to 1e-12 (as ``scipy.optimize.brentq`` would give it, without the
+    second of importing scipy.optimize into every window and command)."""
+    a, b = lo, _A_MAX
+    while b - a > 1e-12 + 1e-14 * abs(a):
+        mid = 0.5 * (a + b)
+        if _excess_ratio(mid) < ratio:
+            a = mid
+        else:
+            b = mid
+    return 0.5 * (a + b)
+
+
 def missed_fraction(amplitudes: np.ndarray, threshold: float, min_events: int = 20) -> MissedFraction:
     """Fraction of a unit's spikes estimated lost below the detection threshold.
 
@@ -336,7 +349,7 @@ def missed_fraction(amplitudes: np.ndarray, threshold: float, min_events: int = 
         return MissedFraction(math.nan, f"amplitudes spread too widely above the threshold for a "
                                         f"cut Gaussian (SD {math.sqrt(v):.4g} vs mean excess {m:.4g})")
     lo = -(2.0 / math.sqrt(ratio) + 10.0)
-    cut = brentq(lambda c: _excess_ratio(c) - ratio, lo, _A_MAX, xtol=1e-12, rtol=1e-14)
+    cut = _cut_position(ratio, lo)
     sd = m / (_mills(cut) - cut)
     mean = theta - cut * sd
     if mean <= 0:
