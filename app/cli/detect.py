@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+from contextlib import closing
 
 from rigside.cli.common import add_param_options, add_recording_options, open_from_args, params_from_args
 from rigside.cli.progressbar import TextProgress
@@ -44,13 +45,8 @@ def run_detect(args: argparse.Namespace) -> int:
     if args.summary:
         check_output(args.summary, args.recording, suffixes=(".json",))
     params = params_from_args(args)
-    rec = open_from_args(args)
-    bar = TextProgress(not args.quiet)
-    try:
+    with closing(open_from_args(args)) as rec, TextProgress(not args.quiet) as bar:
         done = detect_to_files(rec, params, out, args.summary, args.keep_artefacts, progress=bar)
-    finally:
-        bar.close()
-        rec.close()
     why = (f" ({done.artefacts_left_out:,} artefacts left out; --keep-artefacts writes them)"
            if done.artefacts_left_out else "")
     print(f"{len(done.events):,} events{why} on {rec.n_channels} channels in {rec.duration_s:.2f} s -> {out}")
@@ -69,12 +65,9 @@ def run_synth(args: argparse.Namespace) -> int:
         raise ParamError(f"synthetic channel count must be from 1 to 1024, got {args.channels}")
     if not 1000 <= args.rate <= 100000:
         raise ParamError(f"synthetic sampling rate must be between 1000 and 100000 Hz, got {args.rate:g} Hz")
-    bar = TextProgress(not args.quiet)
-    try:
+    with TextProgress(not args.quiet) as bar:
         sc = write_synth(out, args.seconds, args.channels, args.seed, args.rate, progress=bar,
                          overwrite=args.overwrite)
-    finally:
-        bar.close()
     print(f"{len(sc.spike_sample)} spikes of {len(sc.units)} units, {args.channels} channels, "
           f"{args.seconds:g} s -> {out} (+ metadata and ground truth)")
     return 0

@@ -3,11 +3,10 @@
 from __future__ import annotations
 
 import argparse
-from pathlib import Path
+from contextlib import closing
 
-from rigside.cli.common import add_param_options, add_recording_options, open_from_args, params_from_args
+from rigside.cli.common import add_param_options, add_recording_options, check_folder, open_from_args, params_from_args
 from rigside.cli.progressbar import TextProgress
-from rigside.core.errors import ParamError
 from rigside.core.io.atomic import check_output
 
 
@@ -50,14 +49,9 @@ def run_sort_command(args: argparse.Namespace) -> int:
     if args.seed is not None:
         params.cluster.seed = args.seed
     params.cluster.validate()
-    rec = open_from_args(args)
-    bar = TextProgress(not args.quiet)
-    try:
+    with closing(open_from_args(args)) as rec, TextProgress(not args.quiet) as bar:
         session, backup = run_sort(rec, params, args.session, resume=args.resume, progress=bar,
                                    overwrite=args.overwrite)
-    finally:
-        bar.close()
-        rec.close()
     n_units = len(session.sorting.units)
     ev = session.events
     n_art = int(ev.artefact.sum())
@@ -73,17 +67,10 @@ def run_export_command(args: argparse.Namespace) -> int:
     from rigside.core.exports.units import export_units
     from rigside.core.units.session import load_session
 
-    out = Path(args.out)
-    if out.exists() and not out.is_dir():
-        raise ParamError(f"export target must be a folder, got the file {str(out)!r}")
-    if not out.parent.exists():
-        raise ParamError(f"export folder's parent must exist, got {str(out.parent)!r}")
+    out = check_folder(args.out, "export")
     session = load_session(args.session, check_recording=False)
-    bar = TextProgress(not args.quiet)
-    try:
+    with TextProgress(not args.quiet) as bar:
         written = export_units(session, out, bin_ms=args.bin_ms, progress=bar)
-    finally:
-        bar.close()
     n = sum(len(v) for v in written.values())
     print(f"{n} files -> {out}")
     return 0

@@ -13,6 +13,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import Callable
 
 import numpy as np
 from scipy.special import log_ndtr, ndtr
@@ -241,13 +242,8 @@ def snr(amplitudes_uv: np.ndarray, sigma_uv: float) -> MetricValue:
 
     NaN with a reason when there are no amplitudes or the channel's sigma is 0.
     """
-    a = float_1d(amplitudes_uv, "amplitudes")
-    sigma = positive("channel noise sigma", sigma_uv, unit="uV", allow_zero=True)
-    if len(a) == 0:
-        return undefined("the unit has no events")
-    if sigma == 0:
-        return undefined("the channel's noise sigma is 0 (dead channel)")
-    return MetricValue(float(np.abs(a).mean() / sigma))
+    return _size_over_noise(amplitudes_uv, "amplitudes", lambda a: np.abs(a).mean(), "the unit has no events",
+                            sigma_uv, "channel noise sigma", "the channel's noise sigma is 0 (dead channel)")
 
 
 def snr_peak_to_peak(mean_waveform: np.ndarray, residual_sd: float) -> MetricValue:
@@ -257,13 +253,21 @@ def snr_peak_to_peak(mean_waveform: np.ndarray, residual_sd: float) -> MetricVal
     ``residual_sd`` is the SD of all samples of the unit's waveforms minus the mean waveform
     (same channel, same units). NaN with a reason when it is 0 or the waveform is empty.
     """
-    w = float_1d(mean_waveform, "mean waveform")
-    sd = positive("residual SD", residual_sd, unit="uV", allow_zero=True)
-    if len(w) == 0:
-        return undefined("the mean waveform is empty")
-    if sd == 0:
-        return undefined("the residual SD is 0")
-    return MetricValue(float((w.max() - w.min()) / (2 * sd)))
+    return _size_over_noise(mean_waveform, "mean waveform", lambda w: (w.max() - w.min()) / 2,
+                            "the mean waveform is empty", residual_sd, "residual SD", "the residual SD is 0")
+
+
+def _size_over_noise(values, name: str, size: Callable[[np.ndarray], float], why_empty: str, noise,
+                     noise_name: str, why_zero: str) -> MetricValue:
+    """``size(values) / noise`` (values checked as 1-D, noise as at least 0 uV), undefined with
+    ``why_empty`` when there are no values and with ``why_zero`` when the noise is 0."""
+    v = float_1d(values, name)
+    n = positive(noise_name, noise, unit="uV", allow_zero=True)
+    if len(v) == 0:
+        return undefined(why_empty)
+    if n == 0:
+        return undefined(why_zero)
+    return MetricValue(float(size(v) / n))
 
 
 @dataclass(frozen=True)
