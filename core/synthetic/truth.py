@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import csv
+import io
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -35,9 +36,11 @@ def load_truth(path: str | Path) -> Truth:
     try:
         with open(path, newline="") as fh:
             header = fh.readline().strip()
+            body = fh.read()
         if header != TRUTH_HEADER:
             raise ValueError(f"its first line must be {TRUTH_HEADER!r}, got {header[:60]!r}")
-        spikes = np.loadtxt(path, delimiter=",", skiprows=1, usecols=(0, 1), dtype=np.int64, ndmin=2)
+        spikes = (np.loadtxt(io.StringIO(body), delimiter=",", usecols=(0, 1), dtype=np.int64, ndmin=2)
+                  if body.strip() else np.zeros((0, 2), np.int64))   # a noise-only recording has no spikes
         with open(units_path, newline="") as fh:
             rows = list(csv.DictReader(fh))
         t = Truth(sample=spikes[:, 1], unit=spikes[:, 0].astype(np.int32),
