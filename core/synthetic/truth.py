@@ -84,7 +84,8 @@ def score_curve(events: EventTable, truth: Truth, thresholds_sigma, tolerance_ms
     tolerance_ms
         Matching tolerance.
     channels
-        If given, only events on these channels and units whose peak channel is among them.
+        If given, only events on these channels and units whose peak channel is among them; events
+        in a group without such a unit are false alarms.
     units
         If given, only these true units count (events of their groups only).
     """
@@ -101,8 +102,8 @@ def score_curve(events: EventTable, truth: Truth, thresholds_sigma, tolerance_ms
     if channels is not None:
         ok &= np.isin(events.channel, np.asarray(channels))
     hits, misses, fas = (np.zeros(len(thr), np.int64) for _ in range(3))
-    if units is None and channels is None:   # every group with a true unit or an event
-        groups = sorted(set(truth.unit_group.values()) | set(np.unique(events.group[ok]).tolist()))
+    if units is None:   # every group with a chosen true unit or a chosen event (false alarms count everywhere)
+        groups = sorted(set(groups) | set(np.unique(events.group[ok]).tolist()))
     for g in groups:
         t_true = truth.sample[np.isin(truth.unit, [u for u in unit_ids if truth.unit_group[int(u)] == g])]
         sel = ok & (events.group == g)
