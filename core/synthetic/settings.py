@@ -24,6 +24,10 @@ MAX_SECONDS = 24 * 3600.0
 MAX_CHANNELS = 1024
 MAX_UNITS = 512
 SECTION = "practice_recording"
+DEMO_RATES_HZ = (1.0, 2.0, 3.0, 5.0, 8.0, 10.0, 12.0, 15.0, 20.0, 25.0, 30.0, 40.0)
+"""The demo's twelve firing rates; other rate ranges rescale them on a log scale."""
+TRUTH_ROW_BYTES = 22
+"""About the length of one ground-truth row (unit, sample, time in seconds)."""
 LABELS = {"seconds": "length in seconds", "channels": "channel count", "group_size": "bundle size",
           "rate_hz": "sampling rate in Hz", "units": "unit count", "amplitude_uv": "peak amplitude range in uV",
           "snr": "SNR range", "rates_hz": "firing rate range in Hz", "noise_uv": "noise SD in uV",
@@ -77,6 +81,20 @@ class SynthSettings:
     def raw_bytes(self) -> int:
         """Size of the int16 raw file these settings write."""
         return self.n_samples() * self.channels * 2
+
+    def rates(self) -> list[float]:
+        """The twelve firing rates units take in turn: the demo's, rescaled to ``rates_hz`` on a log scale."""
+        lo, hi = self.rates_hz
+        if (lo, hi) == (DEMO_RATES_HZ[0], DEMO_RATES_HZ[-1]):
+            return list(DEMO_RATES_HZ)
+        top = math.log(DEMO_RATES_HZ[-1])
+        return [lo * (hi / lo) ** (math.log(r) / top) for r in DEMO_RATES_HZ]
+
+    def estimated_bytes(self) -> int:
+        """About how much the recording takes on disk: the raw file plus its ground truth."""
+        rates = self.rates()
+        spikes = self.n_units() * sum(rates) / len(rates) * self.seconds * (1 + self.overlap_fraction)
+        return self.raw_bytes() + int(spikes * TRUTH_ROW_BYTES)
 
     def validate(self) -> SynthSettings:
         """Check every value; raise :class:`ParamError` with one line naming the first bad one."""

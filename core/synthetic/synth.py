@@ -28,7 +28,6 @@ from rigside.core.synthetic.scenario import Scenario, Unit
 from rigside.core.synthetic.settings import SynthSettings, settings_path
 
 GAIN_UV = 0.195  # microvolts per bit of the int16 file (a common amplifier step)
-RATES_HZ = (1.0, 2.0, 3.0, 5.0, 8.0, 10.0, 12.0, 15.0, 20.0, 25.0, 30.0, 40.0)
 LOOK_ALIKE_AT = (5, 12)   # the look-alike pair's amplitude: 5/12 of the way up the range (100 uV in 50-170 uV)
 REFRACTORY_S = 0.002
 
@@ -85,15 +84,6 @@ def amplitude_range(settings: SynthSettings) -> tuple[float, float]:
     return settings.snr[0] * sigma, settings.snr[1] * sigma
 
 
-def rate_values(rates_hz: tuple[float, float]) -> np.ndarray:
-    """Twelve firing rates: the demo's 1-40 Hz set, rescaled on a log scale to another range."""
-    demo = np.asarray(RATES_HZ)
-    lo, hi = rates_hz
-    if (lo, hi) == (demo[0], demo[-1]):
-        return demo
-    return lo * (hi / lo) ** (np.log(demo) / np.log(demo[-1]))
-
-
 def build_scenario(settings: SynthSettings) -> Scenario:
     """Build a scenario from its settings: units, footprints and every spike time.
 
@@ -111,7 +101,7 @@ def build_scenario(settings: SynthSettings) -> Scenario:
     rng = np.random.default_rng(s.seed)
     groups = groups_of_size(s.channels, s.group_size)
     n_samples = s.n_samples()
-    rates = rng.permutation(rate_values(s.rates_hz))
+    rates = rng.permutation(np.asarray(s.rates()))
     units = _make_units(rng, s, groups, rates)
     times, labels, scales = [], [], []
     for u in units:

@@ -27,6 +27,10 @@ from rigside.core.synthetic.truth import Truth, score_curve
 
 MISS_ONSET_FRACTION = 0.05
 """A unit "starts to be missed" at the threshold where this share of its spikes falls below it."""
+STEP_SIGMA = 0.25
+"""Spacing of the practice curve's thresholds (noise sigma)."""
+SPAN_SIGMA = 9.0
+TOLERANCE_MS = 0.5
 CSV_COLUMNS = ("threshold_sigma", "events_per_s", "hits", "misses", "false_alarms", "expected_noise_per_s",
                "miss_fraction", "false_alarms_per_s")
 
@@ -150,6 +154,21 @@ def miss_onsets(events: EventTable, truth: Truth, channels, tolerance_ms: float 
             onset = fit.mean + fit.sd * float(ndtri(MISS_ONSET_FRACTION))
             out.append(MissOnset(u, int(np.sum(u_true == u)), fit.mean, fit.sd, onset, fit.reason))
     return out
+
+
+def practice_tradeoff(events: EventTable, truth: Truth, channels, sos: np.ndarray, progress=None,
+                      cancel=None) -> tuple[Tradeoff, list[MissOnset]]:
+    """The curve from the events' floor up in :data:`STEP_SIGMA` steps, at least :data:`SPAN_SIGMA`
+    and past every unit's fitted mean amplitude (at most 40 sigma), with the units' miss onsets.
+
+    ``progress`` and ``cancel`` are accepted for the window's job runner (the work is short).
+    """
+    onsets = miss_onsets(events, truth, channels, TOLERANCE_MS)
+    means = [o.mean_sigma for o in onsets if np.isfinite(o.mean_sigma)]
+    floor = events.floor_sigma
+    top = min(max([floor + SPAN_SIGMA] + [m + 1.5 for m in means]), 40.0)
+    grid = floor + STEP_SIGMA * np.arange(int(np.ceil((top - floor) / STEP_SIGMA)) + 1)
+    return tradeoff_curve(events, truth, grid, channels, sos, TOLERANCE_MS), onsets
 
 
 def write_tradeoff_csv(path: str | Path, curve: Tradeoff) -> Path:
