@@ -10,6 +10,7 @@ from scipy import signal
 from rigside.core.errors import ParamError
 from rigside.core.io.recording import open_recording
 from rigside.core.params import FilterParams
+from rigside.core.progress import Cancelled
 from rigside.core.signal.filtering import design_bandpass
 from rigside.core.signal.noise import robust_sigma
 from rigside.core.synthetic.render import band_noise_sigma, render
@@ -121,3 +122,22 @@ def test_overlap_fraction_adds_near_coincident_spikes_within_a_bundle():
     more, _ = close_pairs(0.2)
     # about a fifth of the spikes gain a partner (fewer where the partner's refractory period drops it)
     assert more - base > 0.12 * n
+
+
+def test_size_estimate_is_close_to_what_is_written(tmp_path):
+    s = SynthSettings(seconds=20.0, channels=8, rates_hz=(5.0, 30.0), seed=3)
+    write_practice(tmp_path / "s.bin", s)
+    assert (tmp_path / "s.bin").stat().st_size == s.raw_bytes() == 20 * 30000 * 8 * 2
+    written = sum(f.stat().st_size for f in tmp_path.iterdir())
+    assert abs(s.estimated_bytes() - written) < 0.02 * written   # the truth rows are a small, rough share
+
+
+def test_a_cancelled_write_leaves_no_file(tmp_path):
+    calls = []
+
+    def cancel() -> bool:
+        calls.append(1)
+        return len(calls) > 2          # after the second chunk
+    with pytest.raises(Cancelled):
+        write_practice(tmp_path / "c.bin", SynthSettings(seconds=10.0, channels=4), cancel=cancel)
+    assert list(tmp_path.iterdir()) == []
