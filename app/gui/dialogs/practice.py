@@ -23,19 +23,10 @@ from PySide6.QtWidgets import (
 from rigside.core.errors import RigsideError
 from rigside.core.synthetic.settings import COLOURS, MAX_CHANNELS, MAX_SECONDS, MAX_UNITS, SynthSettings
 from rigside.core.synthetic.synth import synth_side_files
+from rigside.gui.dialogs.fields import double_spin
 
 AMPLITUDE_KINDS = ("peak amplitude (µV)", "SNR (× noise σ in the band)")
 PER_BUNDLE = "3 per bundle"
-
-
-def _spin(low: float, high: float, value: float, decimals: int = 1, suffix: str = "", step: float = 1.0):
-    box = QDoubleSpinBox()
-    box.setRange(low, high)
-    box.setDecimals(decimals)
-    box.setSingleStep(step)
-    box.setValue(value)
-    box.setSuffix(suffix)
-    return box
 
 
 def _int_spin(low: int, high: int, value: int, special: str = "") -> QSpinBox:
@@ -75,26 +66,26 @@ class PracticeDialog(QDialog):
         row.addWidget(self.folder, 1)
         row.addWidget(browse)
         self.name = QLineEdit("practice.bin")
-        self.seconds = _spin(0.1, MAX_SECONDS, d.seconds, 1, " s")
+        self.seconds = double_spin(d.seconds, 0.1, MAX_SECONDS, 1, " s")
         self.channels = _int_spin(1, MAX_CHANNELS, d.channels)
         self.group_size = _int_spin(1, 64, d.group_size)
-        self.rate = _spin(1000.0, 100000.0, d.rate_hz, 0, " Hz", 1000.0)
+        self.rate = double_spin(d.rate_hz, 1000.0, 100000.0, 0, " Hz", step=1000.0)
         self.units = _int_spin(-1, MAX_UNITS, -1 if d.units is None else d.units, PER_BUNDLE)
         self.units.setToolTip("0 makes a noise-only recording")
         self.amplitude_kind = QComboBox()
         self.amplitude_kind.addItems(list(AMPLITUDE_KINDS))
         lo, hi = d.amplitude_uv if d.snr is None else d.snr
         self.amplitude_kind.setCurrentIndex(0 if d.snr is None else 1)
-        self.amp_low, self.amp_high = _spin(0.1, 5000.0, lo), _spin(0.1, 5000.0, hi)
-        self.rate_low, self.rate_high = (_spin(0.01, 200.0, v, 2, " Hz") for v in d.rates_hz)
-        self.noise = _spin(0.0, 1000.0, d.noise_uv, 1, " µV")
+        self.amp_low, self.amp_high = double_spin(lo, 0.1, 5000.0), double_spin(hi, 0.1, 5000.0)
+        self.rate_low, self.rate_high = (double_spin(v, 0.01, 200.0, 2, " Hz") for v in d.rates_hz)
+        self.noise = double_spin(d.noise_uv, 0.0, 1000.0, 1, " µV")
         self.colour = QComboBox()
         self.colour.addItems(list(COLOURS))
         self.colour.setCurrentText(d.noise_colour)
-        self.hum = _spin(0.0, 5000.0, d.hum_uv, 1, " µV")
-        self.drift = _spin(0.0, 5000.0, d.drift_uv, 1, " µV")
-        self.artefacts = _spin(0.0, 600.0, d.artefacts_per_min, 1, " per min")
-        self.overlap = _spin(0.0, 0.5, d.overlap_fraction, 2, "", 0.05)
+        self.hum = double_spin(d.hum_uv, 0.0, 5000.0, 1, " µV")
+        self.drift = double_spin(d.drift_uv, 0.0, 5000.0, 1, " µV")
+        self.artefacts = double_spin(d.artefacts_per_min, 0.0, 600.0, 1, " per min")
+        self.overlap = double_spin(d.overlap_fraction, 0.0, 0.5, 2, step=0.05)
         self.seed = _int_spin(0, 2 ** 31 - 1, min(d.seed, 2 ** 31 - 1))
         self.size = QLabel("")
         self.problem = QLabel("")
