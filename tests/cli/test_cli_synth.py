@@ -5,9 +5,11 @@ from __future__ import annotations
 import numpy as np
 
 from rigside.cli.main import main
+from rigside.core.io.atomic import stale_temporaries
 from rigside.core.synthetic.settings import SynthSettings
 from rigside.core.synthetic.truth import load_truth
 from rigside.sample_data import demo_path
+from tests.cli.test_cli_failing_writes import LIMITED, assert_one_line, needs_resource, run_child
 
 QUIET = ["--quiet"]
 
@@ -62,3 +64,11 @@ def test_the_settings_file_given_is_never_replaced(tmp_path, capsys):
                  "--overwrite", *QUIET]) == 2
     assert "must not be one of the inputs" in capsys.readouterr().err
     assert (tmp_path / "a.synth.toml").read_bytes() == before
+
+
+@needs_resource
+def test_a_full_disk_while_writing_is_one_line_and_leaves_no_file(tmp_path):
+    # the file size limit stands in for a full disk (common practice, no source)
+    proc = run_child(LIMITED, 200_000, "synth", tmp_path / "big.bin", "--seconds", "5", "--quiet")
+    assert_one_line(proc, "rigside synth: error:")
+    assert list(tmp_path.iterdir()) == [] and not stale_temporaries(tmp_path / "big.bin")
