@@ -133,14 +133,22 @@ def series_timing(g: h5py.Group, n_samples: int) -> tuple[float, float]:
     period = (last - first) / (n_samples - 1)
     if not (math.isfinite(period) and period > 0):
         raise RecordingError(f"NWB timestamps must increase, got {first:g} s first and {last:g} s last")
+    previous = first
     for lo in range(0, n_samples, TIMESTAMP_BLOCK):
         block = np.asarray(ts[lo:lo + TIMESTAMP_BLOCK], dtype=np.float64)
+        steps = np.diff(block, prepend=previous)[1 if lo == 0 else 0:]
+        uneven = np.flatnonzero(~(np.abs(steps - period) <= 2 * REGULAR_SHARE * period))
         drift = np.abs(block - (first + period * np.arange(lo, lo + len(block))))
-        if not np.all(drift <= REGULAR_SHARE * period):
-            k = lo + int(np.argmax(~(drift <= REGULAR_SHARE * period)))
+        if len(uneven) or not np.all(drift <= REGULAR_SHARE * period):
+            if len(uneven):
+                k = lo + int(uneven[0]) + (1 if lo == 0 else 0)
+                where = f"{float(ts[k]) - float(ts[k - 1]):.6g} s between samples {k - 1} and {k}"
+            else:
+                k = lo + int(np.argmax(~(drift <= REGULAR_SHARE * period)))
+                where = f"sample {k} {float(drift[k - lo]) / period:.2f} sample periods off the even spacing"
             raise RecordingError(f"NWB timestamps must be evenly spaced (a fixed sampling rate), got irregular "
-                                 f"timestamps: sample {k} at {float(ts[k]):.9g} s is "
-                                 f"{float(drift[k - lo]) / period:.2f} sample periods off (gaps or jitter)")
+                                 f"timestamps: {where} (mean spacing {period:.6g} s)")
+        previous = float(block[-1])
     return 1.0 / period, first
 
 
