@@ -148,3 +148,23 @@ def test_truncated_nwb_file_is_refused(tmp_path):
     path.write_bytes(raw[: len(raw) // 2])
     with pytest.raises(RecordingError):
         open_recording(path)
+
+
+def test_per_channel_gains_detect_like_the_same_microvolts_in_a_raw_file(tmp_path):
+    from tests.core.helpers import write_raw
+    data = counts(60000, 4, seed=3)
+    planted = np.arange(1000, 60000, 2000)
+    shape = np.array([0.2, 0.5, 0.9, 1.0, 0.9, 0.5, 0.2])        # a 0.2 ms trough on channel 1
+    for t in planted:
+        data[t - 3:t + 4, 1] -= np.round(2500 * shape).astype(np.int16)
+    cc = np.array([1.0, 2.0, 0.5, 1.5])
+    rec = open_recording(write_nwb(tmp_path / "g.nwb", data, conversion=0.195e-6, channel_conversion=cc))
+    uv = (data.astype(np.float64) * cc * 0.195).astype(np.float32)
+    raw = write_raw(tmp_path / "g.bin", uv)
+    a, b = detect(rec, Params()), detect(raw, Params())
+    np.testing.assert_array_equal(a.sample, b.sample)
+    np.testing.assert_array_equal(a.channel, b.channel)
+    np.testing.assert_allclose(a.amplitude_uv, b.amplitude_uv, rtol=1e-5, atol=1e-3)
+    found = a.sample[a.channel == 1]
+    near = np.abs(found[None, :] - planted[:, None]).min(axis=1) <= 3      # within 0.1 ms
+    assert near.mean() >= 0.95, near.mean()
