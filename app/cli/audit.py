@@ -21,7 +21,7 @@ def register(sub: argparse._SubParsersAction) -> None:
                                    "data and to fresh units (a session's curated units, or a first-pass "
                                    "clustering), and write an HTML report and a CSV table, one row per "
                                    "imported unit. See docs/audit.md for the accepted files and columns.")
-    p.add_argument("recording", help="raw binary (with metadata file or layout options) or HDF5 recording")
+    p.add_argument("recording", help="raw binary (with metadata file or layout options), HDF5 or NWB recording")
     p.add_argument("--sorted", required=True, metavar="SPIKES",
                    help="earlier spike times: .csv/.txt, .npy, .npz, .h5/.hdf5 or .nwb")
     p.add_argument("--session", metavar="SESSION.h5",

@@ -14,7 +14,7 @@ def register(sub: argparse._SubParsersAction) -> None:
     p = sub.add_parser("detect", help="filter, measure noise and detect events in a recording",
                        description="Band-pass the recording, estimate each channel's robust noise and "
                                    "write the detected events (CSV or HDF5) and an optional JSON summary.")
-    p.add_argument("recording", help="raw binary (with metadata file or layout options) or HDF5 recording")
+    p.add_argument("recording", help="raw binary (with metadata file or layout options), HDF5 or NWB recording")
     p.add_argument("--out", required=True, metavar="EVENTS.csv|EVENTS.h5", help="event file to write")
     p.add_argument("--summary", metavar="SUMMARY.json",
                    help="JSON summary: parameters and per-channel noise, threshold, counts")
