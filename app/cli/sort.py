@@ -1,11 +1,11 @@
-"""`rigside sort` and `rigside export`."""
+"""`rigside sort`."""
 
 from __future__ import annotations
 
 import argparse
 from contextlib import closing
 
-from rigside.cli.common import add_param_options, add_recording_options, check_folder, open_from_args, params_from_args
+from rigside.cli.common import add_param_options, add_recording_options, open_from_args, params_from_args
 from rigside.cli.progressbar import TextProgress
 from rigside.core.io.atomic import check_output
 
@@ -24,17 +24,6 @@ def register(sub: argparse._SubParsersAction) -> None:
     add_recording_options(p)
     add_param_options(p)
     p.set_defaults(func=run_sort_command, inputs=("recording", "params"))
-
-    e = sub.add_parser("export", help="write spike times per unit and a binned spike matrix",
-                       description="Write into DIR, from a session: unit_times.csv (columns unit,label,time_s), "
-                                   "unit_<id>.npy (spike times in seconds, one file per unit), binned.h5 "
-                                   "(spike counts, units x bins of --bin-ms) and export.json (what was "
-                                   "written, from which session).")
-    e.add_argument("session", help="session file")
-    e.add_argument("--out", required=True, metavar="DIR", help="folder to write (created if missing)")
-    e.add_argument("--bin-ms", type=float, default=1.0, help="bin width of the spike matrix (default 1 ms)")
-    e.add_argument("--quiet", action="store_true", help="no progress bar")
-    e.set_defaults(func=run_export_command, inputs=("session",))
 
 
 def run_sort_command(args: argparse.Namespace) -> int:
@@ -60,17 +49,4 @@ def run_sort_command(args: argparse.Namespace) -> int:
           + (f" (previous session kept as {backup})" if backup else ""))
     for note in exclusion_notes(rec.groups, rec.group_names, ev.excluded):
         print(f"note: {note}")
-    return 0
-
-
-def run_export_command(args: argparse.Namespace) -> int:
-    from rigside.core.exports.units import export_units
-    from rigside.core.units.session import load_session
-
-    out = check_folder(args.out, "export")
-    session = load_session(args.session, check_recording=False)
-    with TextProgress(not args.quiet) as bar:
-        written = export_units(session, out, bin_ms=args.bin_ms, progress=bar)
-    n = sum(len(v) for v in written.values())
-    print(f"{n} files -> {out}")
     return 0
