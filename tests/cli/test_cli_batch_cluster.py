@@ -32,9 +32,16 @@ def recordings(tmp_path_factory):
 
 
 @contextlib.contextmanager
-def cluster(n_workers=2):
+def local_cluster(n_workers):
     with distributed.LocalCluster(n_workers=n_workers, threads_per_worker=1, processes=True, host="127.0.0.1",
                                   dashboard_address=":0") as c:
+        yield c
+
+
+@pytest.fixture(scope="module")
+def cluster():
+    """Two worker processes, shared by the tests of this module (each start costs seconds)."""
+    with local_cluster(2) as c:
         yield c
 
 
@@ -56,11 +63,10 @@ def assert_same_as_sequential(d, out):
     assert not list(out.glob(".*.tmp"))   # no temporary file left behind
 
 
-def test_cluster_batch_writes_what_the_sequential_engine_writes(recordings, capsys):
+def test_cluster_batch_writes_what_the_sequential_engine_writes(recordings, cluster, capsys):
     d, files = recordings
-    with cluster() as c:
-        code = main(["batch", *files, "--out-dir", str(d / "cluster"), "--engine", "dask",
-                     "--scheduler", c.scheduler_address])
+    code = main(["batch", *files, "--out-dir", str(d / "cluster"), "--engine", "dask",
+                 "--scheduler", cluster.scheduler_address])
     assert code == 2   # the broken recording failed, the others were done
     assert_same_as_sequential(d, d / "cluster")
     captured = capsys.readouterr()
@@ -79,6 +85,7 @@ class BlockFirstAttempt(distributed.WorkerPlugin):
     def setup(self, worker):
         from rigside.core.runs import batch_task
         real, plugin = batch_task._detect_one, self
+        self.restore = lambda: setattr(batch_task, "_detect_one", real)
 
         def detect_one(path, *args):
             if path == plugin.target:
@@ -94,6 +101,9 @@ class BlockFirstAttempt(distributed.WorkerPlugin):
             return real(path, *args)
         batch_task._detect_one = detect_one
 
+    def teardown(self, worker):
+        self.restore()
+
 
 def wait_for(path, limit_s=120.0):
     deadline = time.monotonic() + limit_s
@@ -102,23 +112,26 @@ def wait_for(path, limit_s=120.0):
         time.sleep(0.05)
 
 
-def test_a_worker_killed_mid_task_is_replaced_and_the_batch_completes(recordings, tmp_path):
+def test_a_worker_killed_mid_task_is_replaced_and_the_batch_completes(recordings, cluster, tmp_path):
     d, files = recordings
     out = tmp_path / "out"
     started, retried = str(tmp_path / "started"), str(tmp_path / "retried")
-    with cluster() as c, distributed.Client(c, set_as_default=False) as client:
+    with distributed.Client(cluster, set_as_default=False) as client:
         client.register_plugin(BlockFirstAttempt(files[2], started, retried, str(out / "r1.events.csv")))
-        codes = []
-        run = threading.Thread(target=lambda: codes.append(main([
-            "batch", *files, "--out-dir", str(out), "--engine", "dask", "--scheduler", c.scheduler_address,
-            "--quiet"])))
-        run.start()
-        wait_for(started)
-        killed = int(open(started).read())
-        assert killed in {w.process.pid for w in c.workers.values()}   # a worker process, not this one
-        os.kill(killed, signal.SIGKILL)
-        run.join(timeout=120)
-        assert not run.is_alive() and codes == [2]
+        try:
+            codes = []
+            run = threading.Thread(target=lambda: codes.append(main([
+                "batch", *files, "--out-dir", str(out), "--engine", "dask", "--scheduler", cluster.scheduler_address,
+                "--quiet"])))
+            run.start()
+            wait_for(started)
+            killed = int(open(started).read())
+            assert killed in {w.process.pid for w in cluster.workers.values()}   # a worker process, not this one
+            os.kill(killed, signal.SIGKILL)
+            run.join(timeout=120)
+            assert not run.is_alive() and codes == [2]
+        finally:
+            client.unregister_worker_plugin(BlockFirstAttempt.name)
     assert int(open(retried).read()) != killed   # the task ran again in another process
     assert_same_as_sequential(d, out)
 
@@ -177,7 +190,7 @@ def test_bad_scheduler_address_is_one_line_within_the_timeout(recordings, tmp_pa
 def test_a_scheduler_without_workers_is_refused(recordings, tmp_path, capsys):
     d, files = recordings
     out = tmp_path / "out"
-    with cluster(n_workers=0) as c:
+    with local_cluster(0) as c:
         line = refuses(["batch", files[0], "--out-dir", str(out), "--engine", "dask", "--scheduler",
                         c.scheduler_address, "--connect-timeout", "1", "--quiet"], capsys, out)
     assert "must have a worker" in line and "dask worker" in line
