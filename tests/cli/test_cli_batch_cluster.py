@@ -73,6 +73,18 @@ def test_cluster_batch_writes_what_the_sequential_engine_writes(recordings, clus
     assert "3 of 3 tasks done" in captured.err and "2 of 3 recordings done" in captured.out
 
 
+def test_cancel_stops_waiting_and_writes_no_table(recordings, cluster, tmp_path):
+    from rigside.core.params import Params
+    from rigside.core.progress import Cancelled
+    from rigside.core.runs.batch import run_batch
+    d, files = recordings
+    seen = []
+    with pytest.raises(Cancelled):
+        run_batch(files, tmp_path, Params(), engine="dask", scheduler=cluster.scheduler_address,
+                  progress=lambda f, m: seen.append(m), cancel=lambda: bool(seen))
+    assert seen == ["0 of 3 tasks done"] and not (tmp_path / "batch.csv").exists()
+
+
 class BlockFirstAttempt(distributed.WorkerPlugin):
     """On a worker: the first attempt at ``target`` leaves a half-written output, writes its worker's
     pid to ``started`` and waits to be killed; a later attempt writes its pid to ``retried`` and runs."""
