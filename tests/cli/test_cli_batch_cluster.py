@@ -148,6 +148,33 @@ def test_a_worker_killed_mid_task_is_replaced_and_the_batch_completes(recordings
     assert_same_as_sequential(d, out)
 
 
+class OtherVersion(distributed.WorkerPlugin):
+    """On a worker: rigside claims another version while the plugin is registered."""
+
+    name = "other-version"
+
+    def setup(self, worker):
+        import rigside.core
+        self.real, rigside.core.__version__ = rigside.core.__version__, "0.0.0-other"
+
+    def teardown(self, worker):
+        import rigside.core
+        rigside.core.__version__ = self.real
+
+
+def test_workers_running_another_rigside_are_refused(recordings, cluster, tmp_path, capsys):
+    d, files = recordings
+    out = tmp_path / "out"
+    with distributed.Client(cluster, set_as_default=False) as client:
+        client.register_plugin(OtherVersion())
+        try:
+            line = refuses(["batch", files[0], "--out-dir", str(out), "--engine", "dask", "--scheduler",
+                            cluster.scheduler_address, "--quiet"], capsys, out)
+        finally:
+            client.unregister_worker_plugin(OtherVersion.name)
+    assert "must run rigside" in line and "0.0.0-other on tcp://127.0.0.1:" in line
+
+
 def refuses(args, capsys, out):
     """Exit 2 with one error line, and no output folder made."""
     assert main(args) == 2
