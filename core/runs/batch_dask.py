@@ -82,29 +82,41 @@ def _worker_version() -> str:
 
 def _connect(address: str, timeout_s: float):
     """A client of the scheduler at ``address`` with at least one worker running this rigside."""
-    from rigside.core import __version__
-
     check_scheduler(address, timeout_s)
     distributed = _need("distributed")
-    client = distributed.Client(address, timeout=timeout_s, set_as_default=False)
+    try:
+        client = distributed.Client(address, timeout=timeout_s, set_as_default=False)
+    except Exception as exc:  # the scheduler went away between the probe and the client
+        raise ParamError(f"dask scheduler must accept a client at {address!r} within {timeout_s:g} s, "
+                         f"got {type(exc).__name__}: {str(exc)[:200]}") from None
+    try:
+        _check_workers(client, address, timeout_s)
+    except BaseException:
+        client.close()
+        raise
+    return client
+
+
+def _check_workers(client, address: str, timeout_s: float) -> None:
+    from rigside.core import __version__
+
     try:
         client.wait_for_workers(1, timeout=timeout_s)
-    except (TimeoutError, asyncio.TimeoutError):
-        client.close()
+    except TimeoutError:
         raise ParamError(f"dask scheduler at {address!r} must have a worker within {timeout_s:g} s, got none "
                          f"(start one with: dask worker {address})") from None
+    except OSError as exc:
+        raise ParamError(f"dask scheduler at {address!r} must stay reachable, got {type(exc).__name__}: "
+                         f"{str(exc)[:200]}") from None
     try:
         versions = client.run(_worker_version)
-    except Exception as exc:  # the workers could not even load rigside's function
-        client.close()
-        raise ParamError(f"every dask worker must have rigside installed, got {type(exc).__name__}: "
+    except Exception as exc:  # the workers could not even load rigside's function, or went away
+        raise ParamError(f"every dask worker must have rigside installed and answer, got {type(exc).__name__}: "
                          f"{str(exc)[:200]}") from None
     other = {w: v for w, v in versions.items() if v != __version__}
     if other:
-        client.close()
         raise ParamError(f"every dask worker must run rigside {__version__}, got "
                          + ", ".join(f"{v} on {w}" for w, v in sorted(other.items())))
-    return client
 
 
 def on_scheduler(jobs: Jobs, out_dir: Path, params: Params, layout: dict, fmt: str, inputs: tuple[str, ...],
@@ -152,14 +164,16 @@ def on_scheduler(jobs: Jobs, out_dir: Path, params: Params, layout: dict, fmt: s
                 i = done.get(timeout=CANCEL_POLL_S)
             except queue.Empty:
                 continue
-            outcomes[i] = _outcome(futures[i], jobs[i][0], time.perf_counter() - started)
+            lost = client.status != "running"
+            outcomes[i] = _outcome(futures[i], jobs[i][0], time.perf_counter() - started, lost)
             finished += 1
             report(progress, finished / len(jobs), f"{finished} of {len(jobs)} tasks done")
     return outcomes
 
 
-def _outcome(fut, given: str, seconds: float) -> BatchOutcome:
-    """The task's outcome under the path as given, or a "failed" one saying why the task failed."""
+def _outcome(fut, given: str, seconds: float, lost: bool = False) -> BatchOutcome:
+    """The task's outcome under the path as given, or a "failed" one saying why the task failed
+    (``lost``: the connection to the scheduler is gone)."""
     if fut.status == "finished":
         outcome = fut.result()
         outcome.recording = given
@@ -167,6 +181,8 @@ def _outcome(fut, given: str, seconds: float) -> BatchOutcome:
     if fut.status == "error":
         exc = fut.exception()
         reason = f"{type(exc).__name__}: {exc}"
+    elif lost:
+        reason = f"the connection to the scheduler was lost (the task was {fut.status})"
     else:
         reason = f"the task was {fut.status} on the cluster"
     return BatchOutcome(given, "failed", 0, 0.0, seconds, f"dask task failed: {reason}")
