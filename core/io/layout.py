@@ -1,5 +1,5 @@
-"""How a raw binary file is laid out (channels, rate, sample type, scaling, header, groups),
-with the checks every layout passes before a file is opened."""
+"""How a raw binary file is laid out (channels, rate, sample type, scaling, header, groups, site
+positions), with the checks every layout passes before a file is opened."""
 
 from __future__ import annotations
 
@@ -24,6 +24,9 @@ class Layout:
     offset_counts: float = 0.0
     groups: list[list[int]] | None = None
     group_names: list[str] | None = None
+    x_um: list[float] | None = None
+    y_um: list[float] | None = None
+    shank: list[int] | None = None
 
     @property
     def total_offset_uv(self) -> float:
@@ -47,6 +50,8 @@ class Layout:
             raise RecordingError(f"offset in stored counts must be a finite number, got {self.offset_counts!r}")
         if self.groups is not None:
             check_groups(self.groups, self.channels)
+        if self.x_um is not None or self.y_um is not None or self.shank is not None:
+            check_positions(self.x_um, self.y_um, self.shank, self.channels)
 
 
 def is_integer(v) -> bool:
@@ -75,6 +80,35 @@ def check_groups(groups: list[list[int]], n_channels: int) -> None:
             if c in seen:
                 raise RecordingError(f"channel groups must not overlap, got channel {c} twice")
             seen.add(int(c))
+
+
+def check_positions(x_um, y_um, shank, n_channels: int, where: str = "") -> None:
+    """Site positions must give one finite ``x_um`` and ``y_um`` per channel (and optionally one
+    integer ``shank`` from 0), with no two channels at one position on one shank."""
+    if x_um is None or y_um is None:
+        given = [n for n, v in (("x_um", x_um), ("y_um", y_um), ("shank", shank)) if v is not None]
+        raise RecordingError(f"site positions must give both x_um and y_um{where}, got only {' and '.join(given)}")
+    shank = [0] * n_channels if shank is None else shank
+    for name, values in (("x_um", x_um), ("y_um", y_um), ("shank", shank)):
+        if not isinstance(values, (list, tuple)) or len(values) != n_channels:
+            size = len(values) if isinstance(values, (list, tuple)) else type(values).__name__
+            raise RecordingError(f"site positions {name} must hold one value per channel ({n_channels}){where}, "
+                                 f"got {size}")
+    for name, values in (("x_um", x_um), ("y_um", y_um)):
+        for v in values:
+            if not (is_number(v) and math.isfinite(v) and abs(v) <= 1e6):
+                raise RecordingError(f"site positions {name} must be finite numbers of at most 1e6 um{where}, "
+                                     f"got {v!r}")
+    bad = next((s for s in shank if not (is_integer(s) and 0 <= s < 4096)), None)
+    if bad is not None:
+        raise RecordingError(f"site shanks must be integers from 0 to 4095{where}, got {bad!r}")
+    seen: dict[tuple, int] = {}
+    for c, key in enumerate(zip(shank, x_um, y_um)):
+        key = (int(key[0]), float(key[1]), float(key[2]))
+        if key in seen:
+            raise RecordingError(f"two channels must not share one position on one shank{where}, got channels "
+                                 f"{seen[key]} and {c} at x={key[1]:g}, y={key[2]:g} um on shank {key[0]}")
+        seen[key] = c
 
 
 def groups_of_size(n_channels: int, size: int) -> list[list[int]]:

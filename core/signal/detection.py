@@ -33,6 +33,8 @@ class BlockEvents:
     amplitude_uv: np.ndarray
     amplitude_sigma: np.ndarray
     artefact: np.ndarray
+    x_um: np.ndarray | None = None   # event positions (probes only)
+    y_um: np.ndarray | None = None
 
 
 @numba.njit(nogil=True, cache=True, fastmath=True)

@@ -66,7 +66,7 @@ def triphasic(t_ms: np.ndarray, pre: float, post: float, post_delay: float, widt
     return w / -w[np.argmin(np.abs(t_ms))]
 
 
-def _spike_train(rng: np.random.Generator, rate: float, duration: float, kind: str):
+def spike_train(rng: np.random.Generator, rate: float, duration: float, kind: str):
     """Spike times (s) and amplitude scales for one unit: Poisson with a refractory period,
     or bursts of 2-5 spikes 3-5 ms apart with decreasing amplitude."""
     if kind == "bursting":
@@ -141,7 +141,7 @@ def make_scenario(seconds: float = 60.0, channels: int = 16, seed: int = 0,
             units.append(Unit(uid, gi, np.asarray(g), fp, template, rate, kind, amp))
     times, labels, scales = [], [], []
     for u in units:
-        t, sc = _spike_train(rng, u.rate_hz, seconds, u.kind)
+        t, sc = spike_train(rng, u.rate_hz, seconds, u.kind)
         if u.kind == "drifting":
             sc = sc * (1.0 - 0.4 * t / seconds)
         times.append(t)
@@ -157,7 +157,7 @@ def make_scenario(seconds: float = 60.0, channels: int = 16, seed: int = 0,
                     np.concatenate(scales)[order], artefacts.astype(np.int64), seed)
 
 
-class _Background:
+class Background:
     """Coloured noise, shared bundle noise, mains hum and slow drift, streamed chunk by chunk."""
 
     def __init__(self, sc: Scenario):
@@ -197,6 +197,13 @@ def _add_events(x: np.ndarray, start: int, sc: Scenario) -> None:
         a0, a1 = max(0, i0), min(n, i0 + tlen)
         if a1 > a0:
             x[a0:a1, unit.channels] += w[a0 - i0:a1 - i0]
+    add_artefacts(x, start, sc)
+
+
+def add_artefacts(x: np.ndarray, start: int, sc) -> None:
+    """Add the scenario's movement artefacts (a damped 300 Hz pulse on every channel, gains drawn
+    from ``sc.seed``) to the chunk ``x`` starting at sample ``start``."""
+    n = len(x)
     alen = int(0.004 * sc.rate_hz)
     ta = np.arange(alen) / sc.rate_hz
     pulse = (np.sin(2 * np.pi * 300 * ta) * np.exp(-ta / 0.0015)).astype(np.float32)
@@ -211,7 +218,7 @@ def _add_events(x: np.ndarray, start: int, sc: Scenario) -> None:
 
 def render(sc: Scenario, chunk_s: float = 2.0, progress: ProgressFn = None, cancel: CancelFn = None):
     """Yield ``(start, microvolts float32 chunk)`` covering the scenario in order."""
-    bg = _Background(sc)
+    bg = Background(sc)
     chunk = max(1, int(chunk_s * sc.rate_hz))
     for start in range(0, sc.n_samples, chunk):
         check(cancel)
@@ -231,11 +238,7 @@ def write_synth(out: str | Path, seconds: float = 60.0, channels: int = 16, seed
     and ``<stem>.truth_units.csv`` (one row per unit). The raw file is written to a
     temporary name and renamed when complete. Existing files are refused unless ``overwrite``.
     """
-    out = Path(out)
-    existing = [str(f) for f in (out, *synth_side_files(out)) if f.exists() or f.is_symlink()]
-    if existing and not overwrite:
-        raise ParamError(f"synthetic recording files must not exist yet (give --overwrite to replace them), "
-                         f"got {', '.join(existing)}")
+    out = refuse_existing(out, overwrite)
     sc = make_scenario(seconds, channels, seed, rate_hz)
     def write(tmp: Path) -> None:
         with open(tmp, "wb") as fh:
@@ -247,6 +250,16 @@ def write_synth(out: str | Path, seconds: float = 60.0, channels: int = 16, seed
                                                               for i in range(len(sc.groups))]))
     write_truth(out, sc)
     return sc
+
+
+def refuse_existing(out: str | Path, overwrite: bool) -> Path:
+    """``out`` as a path, after refusing existing output files unless ``overwrite``."""
+    out = Path(out)
+    existing = [str(f) for f in (out, *synth_side_files(out)) if f.exists() or f.is_symlink()]
+    if existing and not overwrite:
+        raise ParamError(f"synthetic recording files must not exist yet (give --overwrite to replace them), "
+                         f"got {', '.join(existing)}")
+    return out
 
 
 def synth_side_files(out: Path) -> list[Path]:
