@@ -2,7 +2,9 @@
 
 Each event stores its peak in microvolts (signed) and in multiples of its channel's
 noise sigma, so counts and masks for any threshold at or above the table's floor come
-from a look-up, without re-reading the recording.
+from a look-up, without re-reading the recording. Events of a recording with site positions
+(a probe) also hold an estimated position, ``x_um`` and ``y_um`` (:data:`POSITION_COLUMNS`);
+tables without positions have neither column, in memory or in files.
 """
 
 from __future__ import annotations
@@ -33,6 +35,8 @@ COLUMNS = {
 writer and builder of event tables follows."""
 CSV_COLUMNS = ("sample", "time_s", *(c for c in COLUMNS if c != "sample"))
 """Columns of the event CSV: the stored ones with ``time_s`` after ``sample``."""
+POSITION_COLUMNS = ("x_um", "y_um")
+"""Optional float32 columns of events on a probe (after the others, in memory and in files)."""
 MAX_SAMPLES = 2**48
 """Longest recording an event table may describe (about 300 years at 30 kHz)."""
 
@@ -92,6 +96,8 @@ class EventTable(EventColumns):
         "negative", "positive" or "both".
     excluded
         Channel -> flag ("dead", "saturated") for channels left out of detection.
+    x_um, y_um
+        Estimated position of each event (micrometres) on a probe, or None (no positions).
     """
 
     rate_hz: float
@@ -100,6 +106,8 @@ class EventTable(EventColumns):
     floor_sigma: float
     polarity: str = "negative"
     excluded: dict[int, str] = field(default_factory=dict)
+    x_um: np.ndarray | None = None
+    y_um: np.ndarray | None = None
     _by_channel: dict = field(default_factory=dict, repr=False, compare=False)
 
     def __post_init__(self) -> None:
@@ -107,13 +115,22 @@ class EventTable(EventColumns):
             setattr(self, name, np.ascontiguousarray(getattr(self, name), dtype=dtype))
         self.sigma_uv = np.asarray(self.sigma_uv, dtype=np.float64)
         self.excluded = {int(c): str(r) for c, r in self.excluded.items()}
+        if (self.x_um is None) != (self.y_um is None):
+            raise RigsideError("event positions must give both x_um and y_um or neither, got one")
+        for c in self.columns[len(COLUMNS):]:
+            setattr(self, c, np.ascontiguousarray(getattr(self, c), dtype=np.float32))
         n = len(self.sample)
-        if any(len(getattr(self, c)) != n for c in COLUMNS):
+        if any(len(getattr(self, c)) != n for c in self.columns):
             raise RigsideError("event columns must all have the same length, got "
-                               + ", ".join(f"{c}={len(getattr(self, c))}" for c in COLUMNS))
+                               + ", ".join(f"{c}={len(getattr(self, c))}" for c in self.columns))
 
     def __len__(self) -> int:
         return len(self.sample)
+
+    @property
+    def columns(self) -> tuple[str, ...]:
+        """The stored columns of this table: :data:`COLUMNS`, then :data:`POSITION_COLUMNS` when it has them."""
+        return (*COLUMNS, *POSITION_COLUMNS) if self.x_um is not None else tuple(COLUMNS)
 
     @property
     def n_channels(self) -> int:
@@ -185,22 +202,25 @@ class EventTable(EventColumns):
 
     def subset(self, keep: np.ndarray) -> "EventTable":
         """A new table holding the rows selected by a mask or index array."""
-        cols = {c: getattr(self, c)[keep] for c in COLUMNS}
+        cols = {c: getattr(self, c)[keep] for c in self.columns}
         return EventTable(**cols, rate_hz=self.rate_hz, n_samples=self.n_samples,
                           sigma_uv=self.sigma_uv.copy(), floor_sigma=self.floor_sigma,
                           polarity=self.polarity, excluded=dict(self.excluded))
 
     # ---- files -------------------------------------------------------------------------
     def write_csv(self, path: str | Path) -> None:
-        """Write ``sample,time_s,channel,group,amplitude_uv,amplitude_sigma,artefact`` atomically.
+        """Write ``sample,time_s,channel,group,amplitude_uv,amplitude_sigma,artefact`` (and
+        ``x_um,y_um`` on a probe) atomically.
 
-        Rows end in CRLF; times have 6 decimals, amplitudes 3 (uV) and 4 (sigma); formatted in
-        blocks (:func:`rigside.core.io.csv_text.write_rows`).
+        Rows end in CRLF; times have 6 decimals, amplitudes 3 (uV) and 4 (sigma), positions 2;
+        formatted in blocks (:func:`rigside.core.io.csv_text.write_rows`).
         """
+        names = CSV_COLUMNS + self.columns[len(COLUMNS):]
+
         def write(tmp: Path) -> None:
             with open(tmp, "wb") as fh:
-                fh.write((",".join(CSV_COLUMNS) + "\r\n").encode("ascii"))
-                write_rows(fh, [_csv_format(self, c) for c in CSV_COLUMNS], "\r\n")
+                fh.write((",".join(names) + "\r\n").encode("ascii"))
+                write_rows(fh, [_csv_format(self, c) for c in names], "\r\n")
         atomic_write(path, write)
 
     def write_h5(self, path: str | Path, group: str = "events") -> None:
@@ -215,14 +235,14 @@ class EventTable(EventColumns):
     def to_h5_group(self, g: h5py.Group, compress: bool = True) -> dict[str, np.ndarray]:
         """Store columns and context in an open HDF5 group (columns gzip-compressed unless
         ``compress`` is False); returns the stored arrays by dataset name."""
-        for c in COLUMNS:
+        for c in self.columns:
             g.create_dataset(c, data=getattr(self, c), compression="gzip", compression_opts=1,
                              shuffle=True) if len(self) and compress else g.create_dataset(c, data=getattr(self, c))
         g.create_dataset("sigma_uv", data=self.sigma_uv)
         g.attrs.update(rate_hz=self.rate_hz, n_samples=self.n_samples,
                        floor_sigma=self.floor_sigma, polarity=self.polarity,
                        excluded_channels=json.dumps({str(c): r for c, r in self.excluded.items()}))
-        return {c: getattr(self, c) for c in (*COLUMNS, "sigma_uv")}
+        return {c: getattr(self, c) for c in (*self.columns, "sigma_uv")}
 
     @classmethod
     def from_h5_group(cls, g: h5py.Group, data: dict[str, np.ndarray] | None = None) -> "EventTable":
@@ -234,8 +254,9 @@ class EventTable(EventColumns):
                                f"missing {', '.join(missing)}")
         def read(name: str) -> np.ndarray:
             return np.asarray(data[name] if data is not None else g[name][()])
-        cols = {c: read(c) for c in COLUMNS}
-        for c, dt in COLUMNS.items():
+        optional = POSITION_COLUMNS if all(c in g for c in POSITION_COLUMNS) else ()
+        cols = {c: read(c) for c in (*COLUMNS, *optional)}
+        for c, dt in (*COLUMNS.items(), *((c, np.float32) for c in optional)):
             if cols[c].ndim != 1 or not np.can_cast(cols[c].dtype, dt, casting="same_kind"):
                 raise RigsideError(f"event column {c} must be a 1-D array of {np.dtype(dt)}, "
                                    f"got {cols[c].dtype} with shape {cols[c].shape}")
@@ -277,6 +298,8 @@ class EventTable(EventColumns):
         if not (np.isfinite(self.amplitude_uv).all() and not np.isnan(a).any() and (a >= 0).all()):
             raise RigsideError("event amplitudes must be finite numbers (in sigma: at least 0), "
                                "got NaN, infinite or negative values")
+        if self.x_um is not None and not (np.isfinite(self.x_um).all() and np.isfinite(self.y_um).all()):
+            raise RigsideError("event positions must be finite numbers of micrometres, got NaN or infinite values")
 
     @classmethod
     def read_h5(cls, path: str | Path, group: str = "events") -> "EventTable":
@@ -289,7 +312,7 @@ class EventTable(EventColumns):
             raise RigsideError(f"event file must be a readable HDF5 file, got {str(path)!r}: {exc}") from None
 
 
-_CSV_DIGITS = {"time_s": 6, "amplitude_uv": 3, "amplitude_sigma": 4}
+_CSV_DIGITS = {"time_s": 6, "amplitude_uv": 3, "amplitude_sigma": 4, "x_um": 2, "y_um": 2}
 
 
 def _csv_format(table: EventTable, column: str) -> tuple:

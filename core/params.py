@@ -247,6 +247,19 @@ class ClusterParams:
 
 
 @dataclass
+class ProbeParams:
+    """Probe recordings (with site positions): each site's neighbourhood is the sites of its shank
+    within ``radius_um`` (see :mod:`rigside.core.signal.neighbourhoods`)."""
+
+    radius_um: float = 50.0
+
+    def validate(self) -> None:
+        _finite("neighbourhood radius", self.radius_um)
+        _require(0 < self.radius_um <= 10_000,
+                 f"neighbourhood radius must be above 0 and at most 10000 um, got {self.radius_um:g} um")
+
+
+@dataclass
 class RunParams:
     """Streaming: chunk length and worker threads."""
 
@@ -268,6 +281,7 @@ class Params:
     snippets: SnippetParams = field(default_factory=SnippetParams)
     cluster: ClusterParams = field(default_factory=ClusterParams)
     metrics: MetricParams = field(default_factory=MetricParams)
+    probe: ProbeParams = field(default_factory=ProbeParams)
     run: RunParams = field(default_factory=RunParams)
 
     def validate(self, rate_hz: float | None = None) -> None:
@@ -278,6 +292,7 @@ class Params:
         self.snippets.validate()
         self.cluster.validate()
         self.metrics.validate()
+        self.probe.validate()
         self.run.validate()
 
     def check_memory(self, rate_hz: float, n_channels: int) -> None:

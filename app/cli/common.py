@@ -31,6 +31,9 @@ def add_recording_options(p: argparse.ArgumentParser) -> None:
     g.add_argument("--series", metavar="NAME", help="NWB ElectricalSeries (name or path) when the file holds several")
     g.add_argument("--allow-external", action="store_true", default=None,
                    help="read HDF5 samples kept in other files (external links, external storage, virtual datasets)")
+    g.add_argument("--positions", metavar="FILE.csv",
+                   help="probe site positions (columns channel,x_um,y_um and optionally shank; overrides the "
+                        "metadata file's [probe] table or the HDF5 attributes)")
 
 
 def add_param_options(p: argparse.ArgumentParser) -> None:
@@ -47,6 +50,8 @@ def add_param_options(p: argparse.ArgumentParser) -> None:
     thr.add_argument("--threshold-uv", type=float, metavar="V", help="threshold in microvolts")
     g.add_argument("--polarity", choices=POLARITIES, help="spike polarity (default negative)")
     g.add_argument("--dead-time-ms", type=float, metavar="MS", help="dead time in ms (default 1)")
+    g.add_argument("--radius-um", type=float, metavar="UM",
+                   help="probe neighbourhood radius in micrometres (default 50; recordings with site positions)")
     g.add_argument("--workers", type=int, help="worker threads (default 2)")
     g.add_argument("--chunk-s", type=float, help="chunk length in seconds (default 1)")
     g.add_argument("--quiet", action="store_true", help="no progress bar")
@@ -69,6 +74,8 @@ def params_from_args(args: argparse.Namespace) -> Params:
         params.detect.polarity = args.polarity
     if args.dead_time_ms is not None:
         params.detect.dead_time_ms = args.dead_time_ms
+    if args.radius_um is not None:
+        params.probe.radius_um = args.radius_um
     if args.workers is not None:
         params.run.workers = args.workers
     if args.chunk_s is not None:
@@ -100,7 +107,8 @@ def recording_options(args: argparse.Namespace) -> dict:
                               ("gain_uv", args.gain_uv), ("offset_uv", args.offset_uv),
                               ("offset_counts", args.offset_counts), ("header_bytes", args.header_bytes),
                               ("group_size", args.group_size), ("dataset", args.dataset), ("series", args.series),
-                              ("allow_external", args.allow_external or None)) if v is not None}
+                              ("allow_external", args.allow_external or None),
+                              ("positions", args.positions)) if v is not None}
 
 
 def command_inputs(args: argparse.Namespace) -> list[str]:
@@ -114,6 +122,6 @@ def command_inputs(args: argparse.Namespace) -> list[str]:
             paths.append(v)
             if name in ("recording", "recordings"):
                 paths += [str(f) for f in side_files(v)]
-    return paths
+    return paths + ([args.positions] if getattr(args, "positions", None) else [])
 
 

@@ -3,8 +3,10 @@
 from __future__ import annotations
 
 import argparse
+import math
 
 from rigside.cli.progressbar import TextProgress
+from rigside.core.errors import ParamError
 from rigside.core.io.atomic import check_output
 from rigside.core.synthetic.settings import COLOURS, SynthSettings, settings_path
 
@@ -15,6 +17,7 @@ SINGLE = {"seconds": "seconds", "channels": "channels", "group_size": "group_siz
           "drift_uv": "drift_uv", "artefacts_per_min": "artefacts_per_min",
           "overlap_fraction": "overlap_fraction", "seed": "seed"}
 """Command-line option (argparse name) -> settings key."""
+PROBE_DEFAULTS = {"sites": 64, "columns": 2, "pitch_um": 20.0, "shanks": 1, "drift_um": 0.0}
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -51,6 +54,16 @@ def register(sub: argparse._SubParsersAction) -> None:
     s.add_argument("--seed", type=int, help=f"random seed (default {d.seed})")
     s.add_argument("--overwrite", action="store_true", help="replace existing files of the same name")
     s.add_argument("--quiet", action="store_true", help="no progress bar")
+    g = s.add_argument_group("probe scenario (--probe: sites with positions instead of 4-wire bundles; "
+                             "--seconds, --rate and --seed apply, the other settings do not)")
+    g.add_argument("--probe", action="store_true", help="write a probe recording with site positions")
+    g.add_argument("--sites", type=int, help=f"site count over all shanks (default {PROBE_DEFAULTS['sites']})")
+    g.add_argument("--columns", type=int, help=f"columns of sites per shank (default {PROBE_DEFAULTS['columns']})")
+    g.add_argument("--pitch-um", type=float, metavar="UM",
+                   help=f"site spacing across and along the shank (default {PROBE_DEFAULTS['pitch_um']:g} um)")
+    g.add_argument("--shanks", type=int, help=f"shank count (default {PROBE_DEFAULTS['shanks']})")
+    g.add_argument("--drift-um", type=float, metavar="UM",
+                   help="movement of every unit along the probe over the recording (default 0 um)")
     s.set_defaults(func=run_synth, inputs=("settings",))
 
 
@@ -71,11 +84,44 @@ def settings_from_args(args: argparse.Namespace) -> SynthSettings:
 def run_synth(args: argparse.Namespace) -> int:
     from rigside.core.synthetic.synth import write_practice
 
+    given = [k for k in PROBE_DEFAULTS if getattr(args, k) is not None]
+    if given and not args.probe:
+        raise ParamError(f"probe options must come with --probe, got --{given[0].replace('_', '-')} without it")
     out = check_output(args.out, args.settings)
+    if args.probe:
+        return _run_probe(out, args)
     check_output(settings_path(out), args.settings)   # the settings written beside OUT never replace the input
     settings = settings_from_args(args)
     with TextProgress(not args.quiet) as bar:
         sc = write_practice(out, settings, progress=bar, overwrite=args.overwrite)
     print(f"{len(sc.spike_sample)} spikes of {len(sc.units)} units, {settings.channels} channels, "
           f"{settings.seconds:g} s -> {out} (+ metadata, ground truth and settings)")
+    return 0
+
+
+def _run_probe(out, args: argparse.Namespace) -> int:
+    """The probe scenario with the command's options (each checked: one line, exit 2)."""
+    from rigside.core.synthetic.probe_synth import write_probe_synth
+
+    bundle_only = [o for o in (*SINGLE, *PAIRS, "settings") if getattr(args, o) is not None
+                   and o not in ("seconds", "rate", "seed")]
+    if bundle_only:
+        raise ParamError(f"--probe takes --seconds, --rate and --seed of the practice settings, got "
+                         f"--{bundle_only[0].replace('_', '-')}")
+    base = SynthSettings.from_dict({k: v for k, v in (("seconds", args.seconds), ("rate_hz", args.rate),
+                                                      ("seed", args.seed)) if v is not None})
+    o = {k: PROBE_DEFAULTS[k] if getattr(args, k) is None else getattr(args, k) for k in PROBE_DEFAULTS}
+    if not (1 <= o["shanks"] <= 16 and 1 <= o["columns"] <= 16 and 1 <= o["sites"] <= 1024
+            and o["sites"] % (o["shanks"] * o["columns"]) == 0):
+        raise ParamError(f"probe sites must be from 1 to 1024 and a multiple of shanks x columns (shanks and "
+                         f"columns from 1 to 16), got {o['sites']} sites, {o['shanks']} shanks, {o['columns']} columns")
+    if not (math.isfinite(o["pitch_um"]) and 1 <= o["pitch_um"] <= 1000):
+        raise ParamError(f"probe pitch must be between 1 and 1000 um, got {o['pitch_um']:g} um")
+    if not (math.isfinite(o["drift_um"]) and abs(o["drift_um"]) <= 1000):
+        raise ParamError(f"probe drift must be at most 1000 um either way, got {o['drift_um']:g} um")
+    with TextProgress(not args.quiet) as bar:
+        sc = write_probe_synth(out, base.seconds, seed=base.seed, rate_hz=base.rate_hz, progress=bar,
+                               overwrite=args.overwrite, **o)
+    print(f"{len(sc.spike_sample)} spikes of {len(sc.units)} units, {len(sc.positions)} sites on "
+          f"{int(sc.shank.max()) + 1} shank(s), {base.seconds:g} s -> {out} (+ metadata and ground truth)")
     return 0

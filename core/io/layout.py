@@ -1,5 +1,5 @@
-"""How a raw binary file is laid out (channels, rate, sample type, scaling, header, groups,
-and optionally where each channel sits), with the checks every layout passes before a file is opened."""
+"""How a raw binary file is laid out (channels, rate, sample type, scaling, header, groups, site
+positions), with the checks every layout passes before a file is opened."""
 
 from __future__ import annotations
 
@@ -25,10 +25,8 @@ class Layout:
     groups: list[list[int]] | None = None
     group_names: list[str] | None = None
     x_um: list[float] | None = None
-    """Channel positions (micrometres, one per channel; with ``y_um``), when the file says them."""
     y_um: list[float] | None = None
     shank: list[int] | None = None
-    """Shank of each channel (positions are distinct within a shank); None: one shank."""
 
     @property
     def total_offset_uv(self) -> float:
@@ -84,28 +82,32 @@ def check_groups(groups: list[list[int]], n_channels: int) -> None:
             seen.add(int(c))
 
 
-def check_positions(x_um, y_um, shank, n_channels: int) -> None:
-    """Positions must come as ``x_um`` and ``y_um`` (and optionally ``shank``) with one finite
-    value per channel, and no two channels may sit at one position on one shank."""
+def check_positions(x_um, y_um, shank, n_channels: int, where: str = "") -> None:
+    """Site positions must give one finite ``x_um`` and ``y_um`` per channel (and optionally one
+    integer ``shank`` from 0), with no two channels at one position on one shank."""
     if x_um is None or y_um is None:
-        raise RecordingError("channel positions must give both x_um and y_um, got only one of them")
+        given = [n for n, v in (("x_um", x_um), ("y_um", y_um), ("shank", shank)) if v is not None]
+        raise RecordingError(f"site positions must give both x_um and y_um{where}, got only {' and '.join(given)}")
+    shank = [0] * n_channels if shank is None else shank
     for name, values in (("x_um", x_um), ("y_um", y_um), ("shank", shank)):
-        if values is not None and len(values) != n_channels:
-            raise RecordingError(f"channel positions {name} must hold one value per channel ({n_channels}), "
-                                 f"got {len(values)}")
+        if not isinstance(values, (list, tuple)) or len(values) != n_channels:
+            size = len(values) if isinstance(values, (list, tuple)) else type(values).__name__
+            raise RecordingError(f"site positions {name} must hold one value per channel ({n_channels}){where}, "
+                                 f"got {size}")
     for name, values in (("x_um", x_um), ("y_um", y_um)):
-        for c, v in enumerate(values):
-            if not (is_number(v) and math.isfinite(v)):
-                raise RecordingError(f"channel position {name} must be a finite number, got {v!r} for channel {c}")
-    shanks = shank if shank is not None else [0] * n_channels
-    if not all(is_integer(s) for s in shanks):
-        raise RecordingError(f"shank numbers must be integers, got {next(s for s in shanks if not is_integer(s))!r}")
+        for v in values:
+            if not (is_number(v) and math.isfinite(v) and abs(v) <= 1e6):
+                raise RecordingError(f"site positions {name} must be finite numbers of at most 1e6 um{where}, "
+                                     f"got {v!r}")
+    bad = next((s for s in shank if not (is_integer(s) and 0 <= s < 4096)), None)
+    if bad is not None:
+        raise RecordingError(f"site shanks must be integers from 0 to 4095{where}, got {bad!r}")
     seen: dict[tuple, int] = {}
-    for c, key in enumerate(zip(shanks, x_um, y_um)):
+    for c, key in enumerate(zip(shank, x_um, y_um)):
         key = (int(key[0]), float(key[1]), float(key[2]))
         if key in seen:
-            raise RecordingError(f"channels must sit at distinct positions on a shank, got channels {seen[key]} "
-                                 f"and {c} both at x = {key[1]:g} um, y = {key[2]:g} um on shank {key[0]}")
+            raise RecordingError(f"two channels must not share one position on one shank{where}, got channels "
+                                 f"{seen[key]} and {c} at x={key[1]:g}, y={key[2]:g} um on shank {key[0]}")
         seen[key] = c
 
 

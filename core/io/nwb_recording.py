@@ -86,6 +86,8 @@ class NWBRecording(Recording):
         self.rate_hz = self.layout.rate_hz
         self.position_note = electrodes.position_note
         self._init_groups(electrodes.groups, electrodes.group_names)
+        if electrodes.x_um is not None:
+            self.set_positions(electrodes.x_um, electrodes.y_um, electrodes.shank)
 
     def read_stored(self, start, stop, channels=None):
         """Samples as stored, or in microvolts before the offset when channels have their own gains."""

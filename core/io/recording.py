@@ -20,6 +20,12 @@ Raw binary files are described by a metadata file of our own schema beside the d
     [[group]]
     name = "bundle A"
     channels = [0, 1, 2, 3]
+    [probe]                # optional: site positions, one entry per channel
+    x_um = [0.0, 20.0, 0.0, 20.0]
+    y_um = [0.0, 0.0, 20.0, 20.0]
+    shank = [0, 0, 0, 0]   # optional (one shank)
+
+With positions and no groups, each shank is one group (see :mod:`rigside.core.io.positions`).
 """
 
 from __future__ import annotations
@@ -31,6 +37,7 @@ import numpy as np
 import tomli_w
 
 from rigside.core.errors import RecordingError
+from rigside.core.io import positions as sites
 from rigside.core.io.atomic import atomic_write
 from rigside.core.io.h5safe import stored_dataset
 from rigside.core.io.hdf5_datasets import choose_dataset
@@ -75,6 +82,8 @@ class RawRecording(Recording):
         self._frame = frame
         self._file = PositionalFile(self.path)
         self._init_groups(layout.groups, layout.group_names)
+        if layout.x_um is not None:
+            self.set_positions(layout.x_um, layout.y_um, layout.shank)
 
     def read_stored(self, start, stop, channels=None):
         """Positional reads (thread-safe); a file that shrank gives RecordingError, not a crash."""
@@ -95,7 +104,8 @@ class RawRecording(Recording):
 
 class HDF5Recording(Recording):
     """A 2-D dataset (samples x channels) with attributes ``rate_hz`` (required),
-    ``gain_uv``, ``offset_uv`` and optionally ``channel_group`` (group index per channel)."""
+    ``gain_uv``, ``offset_uv`` and optionally ``channel_group`` (group index per channel) and
+    ``x_um``, ``y_um``, ``shank`` (site positions, one per channel)."""
 
     def __init__(self, path: str | Path, dataset: str | None = None, rate_hz: float | None = None,
                  gain_uv: float | None = None, groups: list[list[int]] | None = None,
@@ -146,6 +156,9 @@ class HDF5Recording(Recording):
                                      f"got shape {cg.shape}")
             groups = [np.flatnonzero(cg == g).tolist() for g in np.unique(cg)]
         self._init_groups(groups, None)
+        found = sites.probe_from_attrs(attrs, self.n_channels, repr(str(path)))
+        if found is not None:
+            self.set_positions(*found)
 
     def read_stored(self, start, stop, channels=None):
         try:
@@ -185,6 +198,7 @@ def read_metadata(meta: str | Path) -> Layout:
     if not isinstance(rec, dict):
         raise RecordingError(f"metadata file must have a [recording] table, got none in {str(meta)!r}")
     known = {"schema", "dtype", "channels", "rate_hz", "gain_uv", "offset_uv", "offset_counts", "header_bytes"}
+    probe = sites.probe_from_table(data["probe"], repr(str(meta))) if "probe" in data else (None, None, None)
     unknown = set(rec) - known
     if unknown:
         raise RecordingError(f"metadata [recording] keys must be among {', '.join(sorted(known))}, "
@@ -203,7 +217,8 @@ def read_metadata(meta: str | Path) -> Layout:
                     gain_uv=rec.get("gain_uv", 1.0), offset_uv=rec.get("offset_uv", 0.0),
                     header_bytes=rec.get("header_bytes", 0), offset_counts=rec.get("offset_counts", 0.0),
                     groups=[g["channels"] for g in groups] or None,
-                    group_names=[str(g.get("name", f"group {i}")) for i, g in enumerate(groups)] or None)
+                    group_names=[str(g.get("name", f"group {i}")) for i, g in enumerate(groups)] or None,
+                    x_um=probe[0], y_um=probe[1], shank=probe[2])
     if isinstance(layout.rate_hz, int):
         layout.rate_hz = float(layout.rate_hz)
     layout.validate()
@@ -221,23 +236,38 @@ def write_metadata(path: str | Path, layout: Layout) -> Path:
     groups = [{"name": str(names[i]) if i < len(names) else f"group {i}", "channels": [int(c) for c in g]}
               for i, g in enumerate(layout.groups or [])]
     table = {"recording": rec} | ({"group": groups} if groups else {})
+    if layout.x_um is not None:
+        table["probe"] = sites.probe_to_table(layout.x_um, layout.y_um, layout.shank)
     text = "# rigside recording description\n" + tomli_w.dumps(table)
     meta = Path(path).with_name(Path(path).stem + META_SUFFIX)
     return atomic_write(meta, lambda tmp: tmp.write_text(text, encoding="utf-8", newline="\n"))
+
+
+def _override_positions(rec: Recording, positions: str | Path | None) -> None:
+    """Apply a positions CSV file to an opened HDF5 or NWB recording (closing it if the file is refused)."""
+    if positions is None:
+        return
+    try:
+        rec.set_positions(*sites.read_positions_csv(positions, rec.n_channels))
+    except RecordingError:
+        rec.close()
+        raise
 
 
 def open_recording(path: str | Path, *, channels: int | None = None, rate_hz: float | None = None,
                    dtype: str | None = None, gain_uv: float | None = None, offset_uv: float | None = None,
                    group_size: int | None = None, dataset: str | None = None, header_bytes: int | None = None,
                    offset_counts: float | None = None, allow_external: bool = False,
-                   series: str | None = None) -> Recording:
+                   series: str | None = None, positions: str | Path | None = None) -> Recording:
     """Open a recording read-only, choosing the reader from the file.
 
     HDF5 files are recognised by their signature, NWB files among them by their root mark (an
     ``ElectricalSeries``, chosen with ``series`` when there are several: :class:`NWBRecording`);
     anything else is raw binary described by its metadata file, with any keyword given here
     overriding the file. HDF5 samples kept in other files are refused unless ``allow_external``
-    (:func:`rigside.core.io.h5safe.stored_dataset`).
+    (:func:`rigside.core.io.h5safe.stored_dataset`). ``positions`` names a positions CSV file
+    (:func:`rigside.core.io.positions.read_positions_csv`) that overrides the positions of the
+    metadata file, HDF5 attributes or NWB electrodes table.
     """
     p = Path(path)
     if not p.exists():
@@ -254,6 +284,7 @@ def open_recording(path: str | Path, *, channels: int | None = None, rate_hz: fl
         rec = NWBRecording(p, series=series, allow_external=allow_external)
         if group_size is not None:
             rec._init_groups(groups_of_size(rec.n_channels, group_size), None)
+        _override_positions(rec, positions)
         return rec
     if series is not None:
         raise RecordingError(f"--series chooses an ElectricalSeries of an NWB file, got {str(path)!r}, "
@@ -262,6 +293,7 @@ def open_recording(path: str | Path, *, channels: int | None = None, rate_hz: fl
         rec = HDF5Recording(p, dataset=dataset, rate_hz=rate_hz, gain_uv=gain_uv, allow_external=allow_external)
         if group_size is not None:
             rec._init_groups(groups_of_size(rec.n_channels, group_size), None)
+        _override_positions(rec, positions)
         return rec
     meta = metadata_path(p)
     if meta is not None:
@@ -279,4 +311,7 @@ def open_recording(path: str | Path, *, channels: int | None = None, rate_hz: fl
     if group_size is not None:
         layout.groups = groups_of_size(layout.channels, group_size)
         layout.group_names = None
+    if positions is not None:
+        layout.validate()
+        layout.x_um, layout.y_um, layout.shank = sites.read_positions_csv(positions, layout.channels)
     return RawRecording(p, layout)

@@ -9,6 +9,7 @@ from pathlib import Path
 import numpy as np
 
 from rigside.core.errors import RecordingError
+from rigside.core.io import positions as sites
 from rigside.core.io.layout import check_groups
 
 
@@ -23,8 +24,12 @@ class Recording:
     group_names: list[str]
     float_data: bool = False
     content_hash: str | None = None   # "sha256:<hex>" of the whole file once a full pass computed it
+    positions: np.ndarray | None = None   # (channels, 2) float64 x_um, y_um of each site, or None
+    shank: np.ndarray | None = None       # shank of each site (int64) when positions are known
+    groups_given: bool = False
 
     def _init_groups(self, groups: list[list[int]] | None, names: list[str] | None) -> None:
+        self.groups_given = bool(groups)
         groups = groups if groups else [list(range(self.n_channels))]
         check_groups(groups, self.n_channels)
         grouped = {c for g in groups for c in g}
@@ -36,6 +41,15 @@ class Recording:
         self.channel_group = np.empty(self.n_channels, dtype=np.int32)
         for gi, g in enumerate(self.groups):
             self.channel_group[g] = gi
+
+    def set_positions(self, x_um, y_um, shank=None) -> None:
+        """Give every channel a site position (checked); without given groups, each shank becomes a group."""
+        self.positions, self.shank = sites.site_arrays(x_um, y_um, shank, self.n_channels)
+        if not self.groups_given:
+            shanks = np.unique(self.shank).tolist()
+            self._init_groups([np.flatnonzero(self.shank == k).tolist() for k in shanks],
+                              [f"shank {k}" for k in shanks])
+            self.groups_given = False
 
     @property
     def duration_s(self) -> float:
@@ -83,9 +97,12 @@ class Recording:
 
     def describe(self) -> dict:
         """Plain description for summaries and sessions."""
-        return {"path": str(self.path), "format": type(self).__name__, "n_samples": self.n_samples,
-                "n_channels": self.n_channels, "rate_hz": self.rate_hz,
-                "groups": [g.tolist() for g in self.groups], "group_names": self.group_names}
+        out = {"path": str(self.path), "format": type(self).__name__, "n_samples": self.n_samples,
+               "n_channels": self.n_channels, "rate_hz": self.rate_hz,
+               "groups": [g.tolist() for g in self.groups], "group_names": self.group_names}
+        if self.positions is not None:
+            out |= sites.probe_to_table(self.positions[:, 0], self.positions[:, 1], self.shank)
+        return out
 
     def truth_path(self) -> Path | None:
         """Ground-truth spike file written beside a synthetic recording, if any."""

@@ -15,12 +15,22 @@ a window of them as an artefact.
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numba
 import numpy as np
 
 from rigside.core.events import EventColumns
 
 POLARITY_CODE = {"negative": 0, "positive": 1, "both": 2}
+
+
+@dataclass
+class BlockEvents(EventColumns):
+    """Events found in one block of a probe: the stored columns and each event's position."""
+
+    x_um: np.ndarray | None = None
+    y_um: np.ndarray | None = None
 
 
 @numba.njit(nogil=True, cache=True, fastmath=True)

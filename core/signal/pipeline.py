@@ -1,11 +1,15 @@
-"""The streaming runner: noise, then detection over chunks in parallel threads."""
+"""The streaming runner: noise, then detection over chunks in parallel threads.
+
+Recordings without site positions are detected group by group (:mod:`rigside.core.signal.detection`);
+recordings with positions (probes) over overlapping neighbourhoods (:mod:`rigside.core.signal.probe_detection`).
+"""
 
 from __future__ import annotations
 
 import numpy as np
 
 from rigside.core.errors import RigsideError
-from rigside.core.events import COLUMNS, EventColumns, EventTable, uv_to_sigma
+from rigside.core.events import COLUMNS, POSITION_COLUMNS, EventColumns, EventTable, uv_to_sigma
 from rigside.core.io.content import BackgroundHasher
 from rigside.core.io.recording import Recording
 from rigside.core.params import Params
@@ -13,8 +17,10 @@ from rigside.core.progress import CancelFn, ProgressFn, report, run_bounded
 from rigside.core.signal.chunk_pool import chunk_bounds
 from rigside.core.signal.detection import detect_block
 from rigside.core.signal.filtering import BandPass
+from rigside.core.signal.neighbourhoods import neighbourhoods
 from rigside.core.signal.noise import NoiseEstimate, estimate_noise
 from rigside.core.signal.overview import OverviewBuilder
+from rigside.core.signal.probe_detection import POSITION_WINDOW_MS, detect_probe_block
 
 NOISE_SHARE = 0.1
 """Fraction of a detection's progress bar given to the noise estimate; :func:`detect` reports
@@ -98,7 +104,8 @@ def detect(recording: Recording, params: Params, progress: ProgressFn = None, ca
     Returns
     -------
     EventTable
-        Every event down to the look-up floor (see :func:`lookup_floor`), sorted by time.
+        Every event down to the look-up floor (see :func:`lookup_floor`), sorted by time; on a
+        recording with site positions, one event per spatio-temporal peak with its position.
         Channels flagged dead or saturated (``NoiseEstimate.excluded``) hold no events.
         ``EventTable.mask`` with the detection threshold selects the detected events.
         The pass also hashes the whole file (``recording.content_hash``) and raises
@@ -119,7 +126,10 @@ def detect(recording: Recording, params: Params, progress: ProgressFn = None, ca
     rate = recording.rate_hz
     dead = int(round(d.dead_time_ms * rate / 1000))
     art_w = int(round(d.artefact_window_ms * rate / 1000))
-    ctx = max(dead, art_w) + 2
+    half = int(round(POSITION_WINDOW_MS * rate / 1000))
+    probe = recording.positions is not None
+    nbh = neighbourhoods(recording.positions, recording.shank, params.probe.radius_um) if probe else None
+    ctx = max(dead, art_w, half if probe else 0) + 2
     chunk = max(int(params.run.chunk_s * rate), 4 * ctx)
     bounds = chunk_bounds(recording.n_samples, chunk)
 
@@ -128,6 +138,10 @@ def detect(recording: Recording, params: Params, progress: ProgressFn = None, ca
         y = bp.read(lo, hi)
         if overview is not None:
             overview.add(y, lo, start, stop)
+        if probe:
+            return detect_probe_block(y, lo, start - lo, stop - lo, live_sigma, nbh, recording.positions,
+                                      recording.channel_group, d.polarity, floor, dead, d.artefact_sigma,
+                                      d.artefact_channel_fraction, art_w, half)
         return detect_block(y, lo, start - lo, stop - lo, live_sigma, recording.groups, d.polarity, floor,
                             dead, d.artefact_sigma, d.artefact_channel_fraction, art_w)
 
@@ -147,8 +161,9 @@ def detect(recording: Recording, params: Params, progress: ProgressFn = None, ca
 
 def _assemble(parts: list[EventColumns], recording: Recording, sigma: np.ndarray, floor: float,
               polarity: str, excluded: dict[int, str]) -> EventTable:
+    names = (*COLUMNS, *POSITION_COLUMNS) if recording.positions is not None else tuple(COLUMNS)
     cols = {name: np.concatenate([getattr(p, name) for p in parts]) if parts else np.empty(0)
-            for name in COLUMNS}
+            for name in names}
     order = np.lexsort((cols["group"], cols["sample"]))
     cols = {k: v[order] for k, v in cols.items()}
     return EventTable(**cols, rate_hz=recording.rate_hz, n_samples=recording.n_samples, sigma_uv=sigma,

@@ -29,7 +29,7 @@ def pink_filter(rate_hz: float) -> np.ndarray:
     return signal.butter(1, PINK_CORNER_HZ, "lowpass", fs=rate_hz, output="sos")
 
 
-class _Background:
+class Background:
     """White noise (with, when coloured, a low-frequency part and noise shared by a bundle),
     mains hum and slow drift, streamed chunk by chunk."""
 
@@ -76,6 +76,13 @@ def _add_events(x: np.ndarray, start: int, sc: Scenario) -> None:
         a0, a1 = max(0, i0), min(n, i0 + tlen)
         if a1 > a0:
             x[a0:a1, unit.channels] += w[a0 - i0:a1 - i0]
+    add_artefacts(x, start, sc)
+
+
+def add_artefacts(x: np.ndarray, start: int, sc) -> None:
+    """Add the scenario's movement artefacts (a damped 300 Hz pulse on every channel, gains drawn
+    from ``sc.seed``) to the chunk ``x`` starting at sample ``start``."""
+    n = len(x)
     alen = int(0.004 * sc.rate_hz)
     ta = np.arange(alen) / sc.rate_hz
     pulse = (np.sin(2 * np.pi * 300 * ta) * np.exp(-ta / 0.0015)).astype(np.float32)
@@ -91,7 +98,7 @@ def _add_events(x: np.ndarray, start: int, sc: Scenario) -> None:
 def render(sc: Scenario, chunk_s: float = 2.0, progress: ProgressFn = None,
            cancel: CancelFn = None) -> Iterator[tuple[int, np.ndarray]]:
     """Yield ``(start, microvolts float32 chunk)`` covering the scenario in order."""
-    bg = _Background(sc)
+    bg = Background(sc)
     chunk = max(1, int(chunk_s * sc.rate_hz))
     for start in range(0, sc.n_samples, chunk):
         check(cancel)

@@ -40,7 +40,7 @@ def triphasic(t_ms: np.ndarray, pre: float, post: float, post_delay: float, widt
     return w / -w[np.argmin(np.abs(t_ms))]
 
 
-def _spike_train(rng: np.random.Generator, rate: float, duration: float, kind: str):
+def spike_train(rng: np.random.Generator, rate: float, duration: float, kind: str):
     """Spike times (s) and amplitude scales for one unit: Poisson with a refractory period,
     or bursts of 2-5 spikes 3-5 ms apart with decreasing amplitude."""
     if kind == "bursting":
@@ -105,7 +105,7 @@ def build_scenario(settings: SynthSettings) -> Scenario:
     units = _make_units(rng, s, groups, rates)
     times, labels, scales = [], [], []
     for u in units:
-        t, sc = _spike_train(rng, u.rate_hz, s.seconds, u.kind)
+        t, sc = spike_train(rng, u.rate_hz, s.seconds, u.kind)
         if u.kind == "drifting":
             sc = sc * (1.0 - 0.4 * t / s.seconds)
         times.append(t)
@@ -216,12 +216,8 @@ def write_practice(out: str | Path, settings: SynthSettings, progress: ProgressF
     Scenario
         The ground truth that was written.
     """
-    out = Path(out)
     settings.validate()
-    existing = [str(f) for f in (out, *synth_side_files(out)) if f.exists() or f.is_symlink()]
-    if existing and not overwrite:
-        raise ParamError(f"synthetic recording files must not exist yet (give --overwrite to replace them), "
-                         f"got {', '.join(existing)}")
+    out = refuse_existing(out, overwrite)
     sc = build_scenario(settings)
 
     def write(tmp: Path) -> None:
@@ -236,6 +232,16 @@ def write_practice(out: str | Path, settings: SynthSettings, progress: ProgressF
     write_truth(out, sc)
     settings.save(settings_path(out))
     return sc
+
+
+def refuse_existing(out: str | Path, overwrite: bool) -> Path:
+    """``out`` as a path, after refusing existing output files unless ``overwrite``."""
+    out = Path(out)
+    existing = [str(f) for f in (out, *synth_side_files(out)) if f.exists() or f.is_symlink()]
+    if existing and not overwrite:
+        raise ParamError(f"synthetic recording files must not exist yet (give --overwrite to replace them), "
+                         f"got {', '.join(existing)}")
+    return out
 
 
 def synth_side_files(out: Path) -> list[Path]:

@@ -28,13 +28,18 @@ def pair(tmp_path_factory):
     x = [float(10 * (c % 2)) for c in range(8)]
     y = [float(20 * (c // 2)) for c in range(8)]
     write_nwb(d / "demo.nwb", data, conversion=GAIN_UV * 1e-6, groups=groups, positions=(x, y), chunks=(30000, 8))
+    # the raw copy gets the same site positions (one shank per electrode group, as the NWB reader takes them)
+    shank = [next(i for i, g in enumerate(groups) if c in g) for c in range(8)]
+    (d / "sites.csv").write_text("channel,x_um,y_um,shank\n" + "".join(
+        f"{c},{x[c]},{y[c]},{shank[c]}\n" for c in range(8)), encoding="utf-8")
     raw.close()
     return d
 
 
 def test_detect_on_nwb_gives_the_raw_events_at_the_planted_spikes(pair, capsys):
     d = pair
-    assert main(["detect", str(d / "demo.bin"), "--out", str(d / "raw.csv"), "--quiet"]) == 0
+    assert main(["detect", str(d / "demo.bin"), "--positions", str(d / "sites.csv"), "--out", str(d / "raw.csv"),
+                 "--quiet"]) == 0
     assert main(["detect", str(d / "demo.nwb"), "--out", str(d / "nwb.csv"), "--summary", str(d / "s.json"),
                  "--quiet"]) == 0
     assert (d / "nwb.csv").read_bytes() == (d / "raw.csv").read_bytes()      # exactly the same events
@@ -54,7 +59,8 @@ def test_sort_and_batch_take_nwb_recordings(pair, capsys):
     d = pair
     assert main(["sort", str(d / "demo.nwb"), "--session", str(d / "s.h5"), "--quiet"]) == 0
     assert "units in 2 groups" in capsys.readouterr().out
-    assert main(["detect", str(d / "demo.bin"), "--out", str(d / "alone.csv"), "--quiet"]) == 0
+    assert main(["detect", str(d / "demo.bin"), "--positions", str(d / "sites.csv"), "--out", str(d / "alone.csv"),
+                 "--quiet"]) == 0
     assert main(["batch", str(d / "demo.nwb"), "--out-dir", str(d / "b"), "--quiet"]) == 0
     assert (d / "b" / "demo.events.csv").read_bytes() == (d / "alone.csv").read_bytes()
 

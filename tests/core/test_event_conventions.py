@@ -45,10 +45,12 @@ def test_one_event_column_list(tmp_path):
     import csv
     from dataclasses import fields
 
-    from rigside.core.events import COLUMNS, CSV_COLUMNS, EventColumns, EventTable
+    from rigside.core.events import COLUMNS, CSV_COLUMNS, POSITION_COLUMNS, EventColumns, EventTable
+    from rigside.core.signal.detection import BlockEvents
 
     stored = [f.name for f in fields(EventColumns)]
     assert stored == list(COLUMNS) == [f.name for f in fields(EventTable)][:len(COLUMNS)]
+    assert [f.name for f in fields(BlockEvents)] == list(COLUMNS) + list(POSITION_COLUMNS)
     n = 3
     table = EventTable(sample=np.arange(n, dtype=np.int64) * 30, channel=np.zeros(n, np.int32),
                        group=np.zeros(n, np.int32), amplitude_uv=np.full(n, -50.5, np.float32),

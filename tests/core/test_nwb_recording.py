@@ -58,7 +58,7 @@ def test_electrode_groups_and_positions_become_the_layout(tmp_path):
 def test_placeholder_positions_are_not_taken(tmp_path):
     # every electrode at 0, 0 (a common placeholder): kept out of the layout, and said so
     rec = open_recording(write_nwb(tmp_path / "r.nwb", counts(), positions=([0.0] * 8, [0.0] * 8)))
-    assert rec.layout.x_um is None and "distinct positions" in rec.describe()["positions"]
+    assert rec.layout.x_um is None and "must not share one position" in rec.describe()["positions"]
     nan = open_recording(write_nwb(tmp_path / "n.nwb", counts(), positions=([np.nan] * 8, Y)))
     assert nan.layout.x_um is None and "finite" in nan.describe()["positions"]
 
@@ -69,7 +69,7 @@ def test_layout_positions_are_validated():
     Layout(channels=2, rate_hz=30000.0, x_um=[0.0, 0.0], y_um=[0.0, 0.0], shank=[0, 1]).validate()
     for bad, msg in ((dict(x_um=[0.0, 0.0]), "both"), (dict(x_um=[0.0], y_um=[0.0]), "one value per channel"),
                      (dict(x_um=[0.0, np.inf], y_um=[0.0, 1.0]), "finite"),
-                     (dict(x_um=[1.0, 1.0], y_um=[2.0, 2.0]), "distinct"),
+                     (dict(x_um=[1.0, 1.0], y_um=[2.0, 2.0]), "must not share"),
                      (dict(x_um=[1.0, 1.0], y_um=[2.0, 3.0], shank=[0, 0.5]), "integers")):
         with pytest.raises(RecordingError, match=msg):
             Layout(channels=2, rate_hz=30000.0, **bad).validate()

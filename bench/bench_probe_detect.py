@@ -1,0 +1,122 @@
+"""Benchmark of `rigside detect` on synthetic 384-site, 30 kHz int16 probe recordings.
+
+Prints, from one run: throughput in multiples of real time of the whole command (a fresh process,
+start-up and noise estimate included) at two file lengths (4x apart) with each command's peak RSS
+(VmHWM), the pipeline in-process, and the speed ratio against a plain numpy/scipy baseline measured
+in the same run on the same file (whole-array scipy.signal.sosfiltfilt, median noise, a running
+maximum over time by scipy.ndimage.maximum_filter1d, then the maximum over each site's
+neighbourhood with numpy). It also times building the neighbourhoods with the k-d tree against
+an all-pairs distance matrix, and prints the mean neighbourhood size (the per-sample cost of the
+search is sites x that size, not sites^2).
+
+    python bench/bench_probe_detect.py [--seconds 10] [--workdir DIR]
+"""
+
+from __future__ import annotations
+
+import argparse
+import subprocess
+import sys
+import tempfile
+import time
+from pathlib import Path
+
+import numpy as np
+from scipy import ndimage, signal
+
+ROOT = Path(__file__).resolve().parents[1]
+sys.path.insert(0, str(ROOT))
+
+from rigside.core.io.recording import open_recording  # noqa: E402
+from rigside.core.params import Params  # noqa: E402
+from rigside.core.signal.neighbourhoods import neighbourhoods  # noqa: E402
+from rigside.core.signal.pipeline import detect  # noqa: E402
+from rigside.core.synthetic.probe_synth import write_probe_synth  # noqa: E402
+
+SITES = 384
+
+
+def run_detect(path: Path) -> tuple[float, float]:
+    """Wall time and own peak RSS (MB, VmHWM) of `rigside detect` in a fresh process."""
+    code = ("import sys; from rigside.cli.main import main; rc = main(sys.argv[1:]); "
+            "print('HWM', [l for l in open('/proc/self/status') if l.startswith('VmHWM')][0].split()[1]); "
+            "sys.exit(rc)")
+    t = time.perf_counter()
+    r = subprocess.run([sys.executable, "-c", code, "detect", str(path), "--out", str(path.with_suffix(".h5")),
+                        "--quiet"], cwd=ROOT, capture_output=True, text=True, check=True)
+    wall = time.perf_counter() - t
+    return wall, int(r.stdout.split("HWM")[1].split()[0].strip("'],")) / 1024
+
+
+def baseline(path: Path, seconds: float, radius_um: float) -> tuple[float, int]:
+    """Plain numpy/scipy spatio-temporal peaks on the first ``seconds``: wall time and event count."""
+    rec = open_recording(path)
+    n = int(seconds * rec.rate_hz)
+    t = time.perf_counter()
+    x = rec.read(0, n).astype(np.float64)
+    sos = signal.butter(3, [300, 6000], "bandpass", fs=rec.rate_hz, output="sos")
+    y = signal.sosfiltfilt(sos, x, axis=0).astype(np.float32)
+    z = -y / (np.median(np.abs(y), axis=0) / 0.6745).astype(np.float32)
+    dead = int(round(0.001 * rec.rate_hz))
+    in_time = ndimage.maximum_filter1d(z, 2 * dead + 1, axis=0)
+    nb = neighbourhoods(rec.positions, rec.shank, radius_um)
+    best = np.empty_like(z)
+    for c in range(rec.n_channels):
+        best[:, c] = in_time[:, nb.of(c)].max(axis=1)
+    count = int(((z >= 4.5) & (z == best)).sum())
+    return time.perf_counter() - t, count
+
+
+def neighbourhood_build(positions, shank, radius_um) -> tuple[float, float]:
+    """Seconds to build the neighbourhoods with the k-d tree, and with an all-pairs distance matrix."""
+    t = time.perf_counter()
+    for _ in range(20):
+        neighbourhoods(positions, shank, radius_um)
+    tree = (time.perf_counter() - t) / 20
+    t = time.perf_counter()
+    for _ in range(20):
+        d = np.hypot(*(positions[:, None, :] - positions[None, :, :]).transpose(2, 0, 1))
+        [np.flatnonzero((d[c] <= radius_um) & (shank == shank[c])) for c in range(len(positions))]
+    return tree, (time.perf_counter() - t) / 20
+
+
+def main() -> None:
+    ap = argparse.ArgumentParser(description=__doc__, formatter_class=argparse.RawDescriptionHelpFormatter)
+    ap.add_argument("--seconds", type=float, default=10.0, help="length of the short file (the long is 4x)")
+    ap.add_argument("--workdir", help="where to write the recordings (default: a temporary folder)")
+    a = ap.parse_args()
+    work = Path(a.workdir or tempfile.mkdtemp(prefix="rigside-bench-probe-"))
+    short, long_ = work / "short.bin", work / "long.bin"
+    for p, s in ((short, a.seconds), (long_, 4 * a.seconds)):
+        if not p.exists():
+            write_probe_synth(p, seconds=s, sites=SITES, seed=1)
+    run_detect(short)  # warm the compiled kernels' cache
+    w_s, m_s = run_detect(short)
+    w_l, m_l = run_detect(long_)
+    rec = open_recording(long_)
+    detect(rec, Params())  # warm
+    t = time.perf_counter()
+    events = detect(rec, Params())
+    w_p = time.perf_counter() - t
+    base_s = min(a.seconds, 4.0)
+    w_b, n_b = baseline(short, base_s, Params().probe.radius_um)
+    tree, pairs = neighbourhood_build(rec.positions, rec.shank, Params().probe.radius_um)
+    sizes = neighbourhoods(rec.positions, rec.shank, Params().probe.radius_um).sizes
+    print(f"{SITES} sites (2 columns, 20 um pitch), 30 kHz, int16; short file {a.seconds:g} s, "
+          f"long {4 * a.seconds:g} s")
+    print(f"detect, short: {w_s:6.2f} s wall = {a.seconds / w_s:6.1f}x real time, peak RSS {m_s:6.0f} MB")
+    print(f"detect, long : {w_l:6.2f} s wall = {4 * a.seconds / w_l:6.1f}x real time, peak RSS {m_l:6.0f} MB")
+    print(f"peak memory ratio long/short: {m_l / m_s:.2f} (flat = 1.0)")
+    print(f"pipeline in-process, long: {w_p:6.2f} s = {rec.duration_s / w_p:6.1f}x real time "
+          f"({len(events):,} events down to the floor)")
+    print(f"numpy/scipy baseline in-process on {base_s:g} s: {w_b:.2f} s = {base_s / w_b:.2f}x real time "
+          f"({n_b:,} peaks)")
+    print(f"speed ratio pipeline / baseline (per recorded second, both in-process): "
+          f"{(w_b / base_s) / (w_p / rec.duration_s):.1f}x")
+    print(f"neighbourhoods: k-d tree {tree * 1e3:.2f} ms, all-pairs matrix {pairs * 1e3:.2f} ms "
+          f"(ratio {pairs / tree:.1f}x); mean neighbourhood {sizes.mean():.1f} sites, largest {sizes.max()}")
+    print("(command wall times include interpreter start-up, about 1-3 s, and the noise estimate)")
+
+
+if __name__ == "__main__":
+    main()
