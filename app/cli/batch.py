@@ -3,9 +3,14 @@
 from __future__ import annotations
 
 import argparse
-from pathlib import Path
 
-from rigside.cli.common import add_param_options, add_recording_options, params_from_args, recording_options
+from rigside.cli.common import (
+    add_param_options,
+    add_recording_options,
+    check_folder,
+    params_from_args,
+    recording_options,
+)
 from rigside.cli.progressbar import TextProgress
 from rigside.core.errors import ParamError, RigsideError
 from rigside.core.runs.batch import ENGINES, check_engine
@@ -37,28 +42,22 @@ def register(sub: argparse._SubParsersAction) -> None:
 def run_batch_command(args: argparse.Namespace) -> int:
     from rigside.core.runs.batch import run_batch
 
-    out = Path(args.out_dir)
-    if out.exists() and not out.is_dir():
-        raise ParamError(f"batch output must be a folder, got the file {str(out)!r}")
-    if not out.parent.exists():
-        raise ParamError(f"batch output folder's parent must exist, got {str(out.parent)!r}")
+    out = check_folder(args.out_dir, "batch output")
     if not 1 <= args.processes <= 256:
         raise ParamError(f"process count must be from 1 to 256, got {args.processes}")
     params = params_from_args(args)
     check_engine(args.engine, args.scheduler, args.connect_timeout)
     made = not out.exists()
     out.mkdir(exist_ok=True)
-    bar = TextProgress(not args.quiet)
     try:
-        outcomes = run_batch(args.recordings, out, params, recording_options(args), args.format, args.engine,
-                             args.processes, progress=bar, scheduler=args.scheduler,
-                             connect_timeout_s=args.connect_timeout)
+        with TextProgress(not args.quiet) as bar:
+            outcomes = run_batch(args.recordings, out, params, recording_options(args), args.format,
+                                 args.engine, args.processes, progress=bar, scheduler=args.scheduler,
+                                 connect_timeout_s=args.connect_timeout)
     except RigsideError:
         if made and not any(out.iterdir()):
             out.rmdir()   # refused before writing anything: leave no trace
         raise
-    finally:
-        bar.close()
     failed = [o for o in outcomes if o.status != "done"]
     for o in failed:
         print(f"failed: {o.recording}: {o.message}")
