@@ -1,7 +1,8 @@
 """Benchmark of `batch` on a dask.distributed cluster against the sequential engine.
 
 Generates N recordings in a temporary folder (`rigside synth`), then times in this process:
-1. the baseline: the sequential engine (one recording after another, `--workers` threads each);
+1. the baseline: the sequential engine (one recording after another, `--workers` threads each),
+   after one detection in this process;
 2. the same batch on a LocalCluster on the loopback interface (worker processes with one Dask
    thread each), after every worker has detected on one recording (imports and compiled kernels
    loaded), which is printed on its own with the cluster's start-up.
@@ -27,12 +28,6 @@ from rigside.core.runs.batch_task import run_one  # noqa: E402
 from rigside.core.synthetic.synth import write_synth  # noqa: E402
 
 
-def timed(fn) -> float:
-    t = time.perf_counter()
-    fn()
-    return time.perf_counter() - t
-
-
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--recordings", type=int, default=4)
@@ -51,15 +46,19 @@ def main() -> None:
         params = Params()
         for name in ("seq", "warm", "cluster"):
             (d / name).mkdir()
-        seq = timed(lambda: run_batch(files, d / "seq", params))
+        run_one(files[0], str(d / "warm"), params, {}, "csv")   # this process warm too (imports, kernels)
+        t = time.perf_counter()
+        run_batch(files, d / "seq", params)
+        seq = time.perf_counter() - t
         t = time.perf_counter()
         with distributed.LocalCluster(n_workers=args.workers, threads_per_worker=1, processes=True,
                                       host="127.0.0.1", dashboard_address=":0") as c:
-            start = time.perf_counter() - t
+            start, t = time.perf_counter() - t, time.perf_counter()
             with distributed.Client(c, set_as_default=False) as client:   # every worker detects once
-                warm = timed(lambda: client.run(run_one, files[0], str(d / "warm"), params, {}, "csv"))
-            cl = timed(lambda: run_batch(files, d / "cluster", params, engine="dask",
-                                         scheduler=c.scheduler_address))
+                client.run(run_one, files[0], str(d / "warm"), params, {}, "csv")
+            warm, t = time.perf_counter() - t, time.perf_counter()
+            run_batch(files, d / "cluster", params, engine="dask", scheduler=c.scheduler_address)
+            cl = time.perf_counter() - t
         same = all((d / "seq" / f"rec{i}.events.csv").read_bytes() == (d / "cluster" / f"rec{i}.events.csv")
                    .read_bytes() for i in range(args.recordings))
     print(f"{args.recordings} recordings of {args.seconds:g} s x {args.channels} channels, "
