@@ -74,11 +74,8 @@ def run_synth(args: argparse.Namespace) -> int:
     out = check_output(args.out, args.settings)
     check_output(settings_path(out), args.settings)   # the settings written beside OUT never replace the input
     settings = settings_from_args(args)
-    bar = TextProgress(not args.quiet)
-    try:
+    with TextProgress(not args.quiet) as bar:
         sc = write_practice(out, settings, progress=bar, overwrite=args.overwrite)
-    finally:
-        bar.close()
     print(f"{len(sc.spike_sample)} spikes of {len(sc.units)} units, {settings.channels} channels, "
           f"{settings.seconds:g} s -> {out} (+ metadata, ground truth and settings)")
     return 0
