@@ -24,10 +24,22 @@ _PROLOG = re.compile(r"^.*?(?=<svg)", re.S)
 _GROUP_ID = re.compile(r'<g id="[^"]*"')
 
 
-def _figure(width_in: float, height_in: float):
+MAX_POINTS = 2000
+"""Most spikes drawn per side in the amplitude figure (every k-th spike beyond that)."""
+
+
+def _figure(width_in: float, height_in: float, constrained: bool = False, top_in: float = 0.3):
+    """A bare figure. Per-unit figures get fixed margins in inches: the constrained layout engine
+    cost four times the rest of a small figure (a 100-unit report spent minutes in it); only the
+    one overlap matrix with its colour bar uses it."""
     from matplotlib.figure import Figure  # lazy: about a second to import
 
-    return Figure(figsize=(width_in, height_in), layout="constrained")
+    if constrained:
+        return Figure(figsize=(width_in, height_in), layout="constrained")
+    fig = Figure(figsize=(width_in, height_in))
+    fig.subplots_adjust(left=0.62 / width_in, right=1 - 0.12 / width_in, bottom=0.5 / height_in,
+                        top=1 - top_in / height_in, wspace=0.12)
+    return fig
 
 
 def svg_of(fig) -> str:
@@ -51,7 +63,7 @@ def overlap_figure(matrix: np.ndarray, row_ids, col_ids: np.ndarray) -> str:
     """Overlap (Jaccard index, 0 to 1) of imported units (rows: ids or names) with fresh units (columns),
     with a colour bar."""
     m = np.asarray(matrix, float)
-    fig = _figure(min(12.0, 2.4 + 0.16 * m.shape[1]), min(12.0, 1.6 + 0.16 * m.shape[0]))
+    fig = _figure(min(12.0, 2.4 + 0.16 * m.shape[1]), min(12.0, 1.6 + 0.16 * m.shape[0]), constrained=True)
     ax = fig.add_subplot()
     cells = ax.pcolormesh(np.ma.masked_less_equal(m, 0.0), vmin=0.0, vmax=1.0, cmap="viridis", edgecolors="face",
                           linewidth=0.2)
@@ -78,7 +90,7 @@ def waveform_figure(sides: list[tuple[WaveformSummary, str]]) -> str:
     """
     first = sides[0][0]
     channels = [int(c) for c in first.channels]
-    fig = _figure(1.0 + 1.25 * len(channels), 2.3)
+    fig = _figure(1.0 + 1.25 * len(channels), 2.3, top_in=0.55)
     axes = fig.subplots(1, len(channels), sharey=True, squeeze=False)[0]
     for summary, color in sides:
         column = {int(c): k for k, c in enumerate(summary.channels)}
@@ -120,13 +132,15 @@ def amplitude_figure(sides: list[tuple[np.ndarray, np.ndarray, str]], duration_s
     """Spike amplitude over the recording: (times in s, amplitudes in uV, colour) per side."""
     fig = _figure(3.8, 2.3)
     ax = fig.add_subplot()
+    step = max(1, -(-max(len(t) for t, _, _ in sides) // MAX_POINTS))
     for t, a, color in sides:
+        t, a = t[::step], a[::step]
         ax.plot(t, a, linestyle="none", marker="o", markersize=1.6, markeredgewidth=0, color=color, alpha=0.6,
                 label=SIDE_LABELS.get(color))
     ax.set_xlim(0, duration_s)
     ax.set_xlabel("time in recording (s)")
     ax.set_ylabel("amplitude (µV)")
-    ax.set_title("amplitude over time")
+    ax.set_title("amplitude over time" + (f" (every {step}th spike)" if step > 1 else ""))
     ax.legend(fontsize=6, frameon=False, markerscale=3)
     _small_text(ax)
     return svg_of(fig)
