@@ -150,7 +150,7 @@ def write_imperfect_sorting(truth_path: str | Path, out: str | Path, share: floa
         rows += [(int(u), float(x)) for x in np.sort(np.concatenate([t[keep], extra]))]
 
     def write(tmp: Path) -> None:
-        with open(tmp, "w", newline="") as fh:
+        with open(tmp, "w", encoding="utf-8", newline="") as fh:
             w = csv.writer(fh)
             w.writerow(["unit", "time_s"])
             w.writerows((u, f"{x:.6f}") for u, x in rows)
