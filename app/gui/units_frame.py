@@ -25,7 +25,10 @@ from rigside.gui.settings_store import settings
 from rigside.gui.sorting_controller import SortingController
 from rigside.gui.window_actions import add_action
 
-UNIT_LIST_WIDTH = 740
+UNIT_LIST_WIDTH = 600
+"""Narrowest the unit list is first shown (pixels); wider when its columns need it."""
+UNIT_LIST_SHARE = 0.5
+"""Largest share of the window's width the unit list takes when first shown."""
 UNIT_PLOTS_HEIGHT = 560
 LABEL_KEYS = ("0", "1", "2", "3")
 """Keys of the labels in :data:`rigside.core.units.sorting.LABELS` order, active while the unit list has focus."""
@@ -54,7 +57,12 @@ def install_units(window) -> SortingController:
              window.add_panel(plane, bottom, tab_with=window.docks.get("features"))]
     window.unit_panels = {"list": unit_list, "plots": plots, "plane": plane}
 
-    sized = []
+    sized: set[str] = set()   # room for the units the first time there are some; later the user's layout stays
+
+    def fit_unit_list() -> None:
+        """Every column of the unit list in view (within a share of the window's width)."""
+        want = min(max(UNIT_LIST_WIDTH, unit_list.wanted_width()), int(UNIT_LIST_SHARE * window.width()))
+        window.resizeDocks([docks[0]], [want], Qt.Orientation.Horizontal)
 
     def show_unit_docks() -> None:
         if ctl.sorting is None:
@@ -62,11 +70,17 @@ def install_units(window) -> SortingController:
         for d in docks:
             d.show()
             d.raise_()
-        if not sized:   # room for the units the first time there are some; later the user's layout stays
-            sized.append(True)
-            window.resizeDocks([docks[0]], [UNIT_LIST_WIDTH], Qt.Orientation.Horizontal)
+        if "docks" not in sized:
+            sized.add("docks")
+            fit_unit_list()
             window.resizeDocks([docks[1]], [UNIT_PLOTS_HEIGHT], Qt.Orientation.Vertical)
+
+    def fit_to_numbers() -> None:
+        if "docks" in sized and "numbers" not in sized and ctl.metrics:   # the numbers widen their columns
+            sized.add("numbers")
+            fit_unit_list()
     ctl.sorting_replaced.connect(show_unit_docks)
+    ctl.metrics_changed.connect(fit_to_numbers)
 
     def colour_selected_events(*_: object) -> None:
         """Selected units' events in one colour each in the workbench's own views too."""

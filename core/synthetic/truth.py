@@ -11,6 +11,7 @@ import numpy as np
 
 from rigside.core.errors import RigsideError
 from rigside.core.events import EventTable
+from rigside.core.io.atomic import atomic_write
 from rigside.core.quality.matching import match_times
 
 TRUTH_HEADER = "unit,sample,time_s"
@@ -115,3 +116,48 @@ def score_curve(events: EventTable, truth: Truth, thresholds_sigma, tolerance_ms
             misses[i] += len(t_true) - n_hit
             fas[i] += len(det) - n_hit
     return Score(thr, hits, misses, fas)
+
+
+def write_imperfect_sorting(truth_path: str | Path, out: str | Path, share: float = 0.1,
+                            seed: int = 1) -> dict[int, int]:
+    """Write a made-up earlier sorting of a synthetic recording: every true unit with ``share`` of its
+    spikes dropped and as many extra spikes added at random times (the size of error a hand sorting
+    makes; common practice, no source).
+
+    Parameters
+    ----------
+    truth_path
+        The ``<stem>.truth.csv`` written by :mod:`rigside.core.synthetic.synth`.
+    out
+        CSV to write atomically (columns ``unit,time_s``, times with 6 decimals).
+    share
+        Fraction of each unit's spikes dropped, and count of extra ones, from 0 to 1.
+    seed
+        Seed of the random choices.
+
+    Returns
+    -------
+    dict
+        Spike count written per unit.
+    """
+    if not 0 <= share <= 1:
+        raise RigsideError(f"share of changed spikes must be from 0 to 1, got {share!r}")
+    truth = np.genfromtxt(truth_path, delimiter=",", names=True)
+    duration = float(truth["time_s"].max())
+    rng = np.random.default_rng(seed)
+    rows: list[tuple[int, float]] = []
+    for u in np.unique(truth["unit"]).astype(int):
+        t = truth["time_s"][truth["unit"] == u]
+        n = int(len(t) * share)
+        keep = np.sort(rng.choice(len(t), size=len(t) - n, replace=False))
+        extra = rng.uniform(0.01, duration, size=n)
+        rows += [(int(u), float(x)) for x in np.sort(np.concatenate([t[keep], extra]))]
+
+    def write(tmp: Path) -> None:
+        with open(tmp, "w", encoding="utf-8", newline="") as fh:
+            w = csv.writer(fh)
+            w.writerow(["unit", "time_s"])
+            w.writerows((u, f"{x:.6f}") for u, x in rows)
+    atomic_write(out, write)
+    units = [u for u, _ in rows]
+    return {u: units.count(u) for u in dict.fromkeys(units)}

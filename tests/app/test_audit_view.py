@@ -14,6 +14,7 @@ from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QDialog, QFileDialog, QTabBar
 
 from rigside.core.audit.views import PairView, UnitView, pair_view
+from rigside.core.synthetic.truth import write_imperfect_sorting
 from rigside.gui.audit_controller import AUDIT_LABEL
 from rigside.gui.dialogs.audit_import import AuditImportDialog
 from rigside.gui.panels.audit_pair import FRESH, IMPORTED, TRACE_KEY, shown_channels
@@ -26,24 +27,8 @@ from tests.app.units_helpers import cluster_demo
 def old_sorting(tmp_path, name: str = "old.csv", seed: int = 1) -> tuple:
     """The demo's true units with 10% of each unit's spikes removed and 10% extra spikes added
     at random times (the size of error expert sorting makes; common practice, no source)."""
-    truth = np.genfromtxt(demo_path().with_name("demo.truth.csv"), delimiter=",", names=True)
-    duration = truth["time_s"].max()
-    rng = np.random.default_rng(seed)
-    units, times = [], []
-    for u in np.unique(truth["unit"]).astype(int):
-        t = truth["time_s"][truth["unit"] == u]
-        keep = np.sort(rng.choice(len(t), size=len(t) - len(t) // 10, replace=False))
-        extra = rng.uniform(0.01, duration, size=len(t) // 10)
-        mine = np.sort(np.concatenate([t[keep], extra]))
-        units.append(np.full(len(mine), u))
-        times.append(mine)
     path = tmp_path / name
-    with open(path, "w", newline="") as fh:
-        w = csv.writer(fh)
-        w.writerow(["unit", "time_s"])
-        for u, t in zip(np.concatenate(units), np.concatenate(times)):
-            w.writerow([int(u), f"{t:.6f}"])
-    return path, {int(u[0]): len(u) for u in units}
+    return path, write_imperfect_sorting(demo_path().with_name("demo.truth.csv"), path, 0.1, seed)
 
 
 def wait_audit(win, qtbot) -> None:

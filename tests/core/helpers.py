@@ -22,3 +22,19 @@ def write_raw(path: Path, data: np.ndarray, rate_hz: float = 30000.0, gain_uv: f
 
 def gaussian(n: int, channels: int, sigma: float = 1.0, seed: int = 0) -> np.ndarray:
     return (np.random.default_rng(seed).standard_normal((n, channels)) * sigma).astype(np.float32)
+
+
+def write_nwb_units(path: Path, spike_times: dict[int, np.ndarray], description: str = "earlier sorting") -> None:
+    """An NWB file whose units table holds these spike times (s) per unit id (written by pynwb, the
+    reference implementation; the test is skipped without the nwb extra)."""
+    from datetime import datetime, timezone
+
+    import pytest
+
+    pynwb = pytest.importorskip("pynwb")
+    nwb = pynwb.NWBFile(session_description=description, identifier=Path(path).stem,
+                        session_start_time=datetime(2020, 1, 1, tzinfo=timezone.utc))
+    for u, t in spike_times.items():
+        nwb.add_unit(spike_times=t, id=u)
+    with pynwb.NWBHDF5IO(str(path), "w") as io:
+        io.write(nwb)

@@ -60,6 +60,15 @@ def copy_session(s: Session) -> Session:
     return Session(RecordingRef(**vars(s.recording)), s.params, s.events, sorting)
 
 
+def flip_bit(path, dataset: str, byte: int, mask: int) -> None:
+    """Flip the ``mask`` bits of one byte of an HDF5 file, ``byte`` bytes into the stored data of ``dataset``."""
+    with h5py.File(path, "r") as f:
+        offset = f[dataset].id.get_offset()
+    data = bytearray(Path(path).read_bytes())
+    data[offset + byte] ^= mask
+    Path(path).write_bytes(bytes(data))
+
+
 def static_of(path) -> Path:
     """The static part a format-3 session file refers to."""
     with h5py.File(path, "r") as f:
@@ -162,11 +171,7 @@ def test_truncated_flipped_and_wrong_type_files_are_refused_and_backup_kept(made
     assert "other saved states exist" in str(info.value) and ".bak" in str(info.value)
     # a flipped bit inside the assignments' stored bytes
     p.write_bytes(data)
-    with h5py.File(p, "r") as f:
-        offset = f["sorting/assignments"].id.get_offset()
-    flipped = bytearray(data)
-    flipped[offset + 17] ^= 0x04
-    p.write_bytes(bytes(flipped))
+    flip_bit(p, "sorting/assignments", 17, 0x04)
     with pytest.raises(SessionError, match="checksum"):
         load_session(p)
     # saving over a damaged main file must not replace the good backup with it

@@ -25,7 +25,7 @@ from rigside.core.units.session import (
 )
 
 from .sorting_data import make_events
-from .test_session import copy_session, made, reseal, static_of  # noqa: F401  (module fixture and helpers)
+from .test_session import copy_session, flip_bit, made, reseal, static_of  # noqa: F401  (module fixture and helpers)
 
 
 def _stamp(path):
@@ -90,11 +90,7 @@ def test_missing_damaged_or_foreign_static_parts_are_refused(made, tmp_path):  #
     p = save_session(tmp_path / "a.h5", copy_session(s))
     static = static_of(p)
     good = static.read_bytes()
-    with h5py.File(static, "r") as f:
-        offset = f["features/values"].id.get_offset()
-    flipped = bytearray(good)
-    flipped[offset + 5] ^= 0x10
-    static.write_bytes(bytes(flipped))
+    flip_bit(static, "features/values", 5, 0x10)
     with pytest.raises(SessionError, match="static part must match its checksum"):
         load_session(p)
     events, x, names, _ = make_events(n=900, n_groups=2, clusters=2, seed=78)

@@ -2,7 +2,6 @@
 clear messages (invented data)."""
 
 import zipfile
-from datetime import datetime, timezone
 
 import h5py
 import numpy as np
@@ -11,6 +10,8 @@ import pytest
 from rigside.core.errors import SpikeFileError
 from rigside.core.io.spike_import import checked_trains
 from rigside.core.io.spike_import_files import load_spikes
+
+from .helpers import write_nwb_units
 
 UNITS = np.array([3, 1, 3, 1, 7])
 TIMES = np.array([0.10, 0.20, 0.25, 0.40, 0.05])
@@ -78,14 +79,7 @@ def test_hdf5_group_layout(tmp_path):
 
 
 def test_nwb_units_table(tmp_path):
-    pynwb = pytest.importorskip("pynwb")   # the nwb extra
-    NWBHDF5IO, NWBFile = pynwb.NWBHDF5IO, pynwb.NWBFile
-    nwb = NWBFile(session_description="earlier sorting", identifier="t1",
-                  session_start_time=datetime(2020, 1, 1, tzinfo=timezone.utc))
-    for u in (1, 3, 7):
-        nwb.add_unit(spike_times=np.sort(TIMES[UNITS == u]), id=u)
-    with NWBHDF5IO(str(tmp_path / "a.nwb"), "w") as io:
-        io.write(nwb)
+    write_nwb_units(tmp_path / "a.nwb", {u: np.sort(TIMES[UNITS == u]) for u in (1, 3, 7)})
     expect(load_spikes(tmp_path / "a.nwb"))
 
 
@@ -250,12 +244,7 @@ def test_hdf5_hostile_and_broken(tmp_path):
 
 
 def test_nwb_broken(tmp_path):
-    pynwb = pytest.importorskip("pynwb")   # the nwb extra
-    NWBHDF5IO, NWBFile = pynwb.NWBHDF5IO, pynwb.NWBFile
-    nwb = NWBFile(session_description="no units", identifier="t2",
-                  session_start_time=datetime(2020, 1, 1, tzinfo=timezone.utc))
-    with NWBHDF5IO(str(tmp_path / "empty.nwb"), "w") as io:
-        io.write(nwb)
+    write_nwb_units(tmp_path / "empty.nwb", {}, "no units")
     with pytest.raises(SpikeFileError, match="units table"):
         load_spikes(tmp_path / "empty.nwb")
     with h5py.File(tmp_path / "plain.nwb", "w") as f:

@@ -3,9 +3,10 @@
 
 import h5py
 import numpy as np
-import pytest
 
 from rigside.core.io.spike_import_files import load_spikes
+
+from .helpers import write_nwb_units
 
 BIG = 2**63 - 1
 
@@ -32,16 +33,6 @@ def test_listed_units_without_spikes_are_named(tmp_path):
 
 
 def test_nwb_units_without_spikes_are_named(tmp_path):
-    from datetime import datetime, timezone
-
-    pynwb = pytest.importorskip("pynwb")   # the nwb extra
-
-    NWBHDF5IO, NWBFile = pynwb.NWBHDF5IO, pynwb.NWBFile
-    nwb = NWBFile(session_description="earlier sorting", identifier="t2",
-                  session_start_time=datetime(2020, 1, 1, tzinfo=timezone.utc))
-    nwb.add_unit(spike_times=[0.1, 0.2], id=5)
-    nwb.add_unit(spike_times=[], id=6)
-    with NWBHDF5IO(str(tmp_path / "a.nwb"), "w") as io:
-        io.write(nwb)
+    write_nwb_units(tmp_path / "a.nwb", {5: [0.1, 0.2], 6: []})
     s = load_spikes(tmp_path / "a.nwb")
     assert s.unit_ids.tolist() == [5] and s.empty_units == (6,)

@@ -16,7 +16,6 @@ from PySide6.QtCore import Qt
 from PySide6.QtWidgets import (
     QAbstractItemView,
     QHBoxLayout,
-    QHeaderView,
     QLabel,
     QProgressBar,
     QPushButton,
@@ -35,6 +34,7 @@ from rigside.gui import palette
 from rigside.gui.audit_controller import AUDIT_LABEL, AuditController
 from rigside.gui.panels.audit_pair import AuditPairPlots
 from rigside.gui.panels.base import Panel
+from rigside.gui.panels.table_columns import fit_columns
 
 # (header, table column, scale, format)
 TABLE_SPECS = (
@@ -53,6 +53,8 @@ TABLE_SPECS = (
     ("notes", "notes", 1, ""),
 )
 UNIT_ROLE = Qt.ItemDataRole.UserRole + 1
+NOTES_WIDTH = 320
+"""Widest the notes column is fitted to its notes (pixels); the whole text is in its tooltip."""
 
 
 class SortItem(QTableWidgetItem):
@@ -133,8 +135,7 @@ class AuditPanel(Panel):
         self.table.setSelectionBehavior(QAbstractItemView.SelectionBehavior.SelectRows)
         self.table.setSelectionMode(QAbstractItemView.SelectionMode.SingleSelection)
         self.table.setSortingEnabled(True)
-        self.table.horizontalHeader().setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
-        self.table.horizontalHeader().setStretchLastSection(True)
+        self.table.horizontalHeader().sortIndicatorChanged.connect(self._fit_columns)
         self.table.itemSelectionChanged.connect(self._on_row)
         self.plots = AuditPairPlots(bench)
 
@@ -213,10 +214,14 @@ class AuditPanel(Panel):
         self.table.setSortingEnabled(True)
         self.table.sortByColumn(0, Qt.SortOrder.AscendingOrder)
         self.table.blockSignals(False)
+        self._fit_columns()
         if len(ids):
             self.select_unit(int(ids[0]))
         else:
             self.plots.show_pair(None)
+
+    def _fit_columns(self, *_) -> None:
+        fit_columns(self.table, {len(TABLE_SPECS) - 1: NOTES_WIDTH})
 
     def unit_rows(self) -> list[int]:
         """Imported unit of each table row, in the order shown."""

@@ -19,7 +19,7 @@ from PySide6.QtCore import (
     Qt,
 )
 from PySide6.QtGui import QBrush, QColor, QFont
-from PySide6.QtWidgets import QAbstractItemView, QHeaderView, QLabel, QTableView, QVBoxLayout
+from PySide6.QtWidgets import QAbstractItemView, QLabel, QTableView, QVBoxLayout
 
 from rigside.core.numbers import format_number
 from rigside.core.quality.unit_table import CAUTION, COLUMNS
@@ -27,8 +27,11 @@ from rigside.core.quality.unit_table_io import reason_column
 from rigside.core.units.sorting import LABELS
 from rigside.gui import palette
 from rigside.gui.panels.base import Panel
+from rigside.gui.panels.table_columns import fit_columns, table_width
 
 SORT_ROLE = Qt.ItemDataRole.UserRole + 1
+NOTE_WIDTH = 240
+"""Widest the note column is fitted to its notes (pixels); the whole note is in its tooltip."""
 
 
 def plain_tooltip(text: str) -> str:
@@ -43,14 +46,14 @@ COLUMN_SPECS = (
     ("group", "group", 1, "", "channel group"),
     ("label", "label", 1, "", "unreviewed, single unit, multi-unit or not neural (keys 0-3)"),
     ("events", "n_events", 1, "d", COLUMNS["n_events"]),
-    ("rate Hz", "rate_hz", 1, ".2f", COLUMNS["rate_hz"]),
-    ("contam. %", "contamination", 100, ".1f", COLUMNS["contamination"]),
-    ("iso. dist.", "isolation_distance", 1, ".1f", COLUMNS["isolation_distance"]),
+    ("rate\nHz", "rate_hz", 1, ".2f", COLUMNS["rate_hz"]),
+    ("contam.\n%", "contamination", 100, ".1f", COLUMNS["contamination"]),
+    ("iso.\ndist.", "isolation_distance", 1, ".1f", COLUMNS["isolation_distance"]),
     ("L-ratio", "l_ratio", 1, ".3g", COLUMNS["l_ratio"]),
     ("SNR", "snr", 1, ".1f", COLUMNS["snr"]),
-    ("missed %", "missed_fraction", 100, ".1f", COLUMNS["missed_fraction"]),
-    ("present %", "presence_ratio", 100, ".0f", COLUMNS["presence_ratio"]),
-    ("drift %", "amplitude_change_fraction", 100, "+.1f", COLUMNS["amplitude_change_fraction"]),
+    ("missed\n%", "missed_fraction", 100, ".1f", COLUMNS["missed_fraction"]),
+    ("present\n%", "presence_ratio", 100, ".0f", COLUMNS["presence_ratio"]),
+    ("drift\n%", "amplitude_change_fraction", 100, "+.1f", COLUMNS["amplitude_change_fraction"]),
     ("note", "note", 1, "", "free-text note"),
 )
 METRIC_KEYS = tuple(spec[1] for spec in COLUMN_SPECS[5:12])
@@ -200,8 +203,7 @@ class UnitListPanel(Panel):
         self.table.verticalHeader().setVisible(False)
         self.table.verticalHeader().setDefaultSectionSize(22)
         header = self.table.horizontalHeader()
-        header.setSectionResizeMode(QHeaderView.ResizeMode.ResizeToContents)
-        header.setStretchLastSection(True)
+        header.sortIndicatorChanged.connect(self._fit_columns)
         self.table.setContextMenuPolicy(Qt.ContextMenuPolicy.ActionsContextMenu)
         self.table.selectionModel().selectionChanged.connect(self._on_table_selection)
         self.summary = QLabel("No units yet: cluster the detection (Units menu) or open a session.")
@@ -232,6 +234,7 @@ class UnitListPanel(Panel):
             self.model.rebuild()
         finally:
             self._syncing = False
+        self._fit_columns()
         self._show_selection()
         s = self.ctl.sorting
         if s is None:
@@ -272,6 +275,14 @@ class UnitListPanel(Panel):
         finally:
             self._syncing = False
         self.table.viewport().update()
+
+    def _fit_columns(self, *_) -> None:
+        fit_columns(self.table, {len(COLUMN_SPECS) - 1: NOTE_WIDTH})
+
+    def wanted_width(self) -> int:
+        """Width (pixels) showing every column without a horizontal scrollbar."""
+        margins = self.layout().contentsMargins()
+        return table_width(self.table) + margins.left() + margins.right()
 
     def select_rows(self, rows: list[int]) -> None:
         """Select table rows as shown (view order), as a user's clicks would."""
