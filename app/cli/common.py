@@ -3,8 +3,10 @@
 from __future__ import annotations
 
 import argparse
+from pathlib import Path
 from typing import TYPE_CHECKING
 
+from rigside.core.errors import ParamError
 from rigside.core.io.layout import DTYPES
 from rigside.core.params import POLARITIES, Params
 
@@ -73,6 +75,17 @@ def params_from_args(args: argparse.Namespace) -> Params:
         params.run.chunk_s = args.chunk_s
     params.validate()
     return params
+
+
+def check_folder(path: str, what: str) -> Path:
+    """An output folder that is not a file and whose parent exists (it may be created), or :class:`ParamError`
+    naming it ``what`` (e.g. "export")."""
+    out = Path(path)
+    if out.exists() and not out.is_dir():
+        raise ParamError(f"{what} must be a folder, got the file {str(out)!r}")
+    if not out.parent.exists():
+        raise ParamError(f"{what} folder's parent must exist, got {str(out.parent)!r}")
+    return out
 
 
 def open_from_args(args: argparse.Namespace, path: str | None = None) -> Recording:

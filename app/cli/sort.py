@@ -1,13 +1,12 @@
-"""`rigside sort` and `rigside export`."""
+"""`rigside sort`."""
 
 from __future__ import annotations
 
 import argparse
-from pathlib import Path
+from contextlib import closing
 
 from rigside.cli.common import add_param_options, add_recording_options, open_from_args, params_from_args
 from rigside.cli.progressbar import TextProgress
-from rigside.core.errors import ParamError
 from rigside.core.io.atomic import check_output
 
 
@@ -26,17 +25,6 @@ def register(sub: argparse._SubParsersAction) -> None:
     add_param_options(p)
     p.set_defaults(func=run_sort_command, inputs=("recording", "params"))
 
-    e = sub.add_parser("export", help="write spike times per unit and a binned spike matrix",
-                       description="Write into DIR, from a session: unit_times.csv (columns unit,label,time_s), "
-                                   "unit_<id>.npy (spike times in seconds, one file per unit), binned.h5 "
-                                   "(spike counts, units x bins of --bin-ms) and export.json (what was "
-                                   "written, from which session).")
-    e.add_argument("session", help="session file")
-    e.add_argument("--out", required=True, metavar="DIR", help="folder to write (created if missing)")
-    e.add_argument("--bin-ms", type=float, default=1.0, help="bin width of the spike matrix (default 1 ms)")
-    e.add_argument("--quiet", action="store_true", help="no progress bar")
-    e.set_defaults(func=run_export_command, inputs=("session",))
-
 
 def run_sort_command(args: argparse.Namespace) -> int:
     from rigside.core.runs.sort import check_new_session, run_sort
@@ -50,14 +38,9 @@ def run_sort_command(args: argparse.Namespace) -> int:
     if args.seed is not None:
         params.cluster.seed = args.seed
     params.cluster.validate()
-    rec = open_from_args(args)
-    bar = TextProgress(not args.quiet)
-    try:
+    with closing(open_from_args(args)) as rec, TextProgress(not args.quiet) as bar:
         session, backup = run_sort(rec, params, args.session, resume=args.resume, progress=bar,
                                    overwrite=args.overwrite)
-    finally:
-        bar.close()
-        rec.close()
     n_units = len(session.sorting.units)
     ev = session.events
     n_art = int(ev.artefact.sum())
@@ -66,24 +49,4 @@ def run_sort_command(args: argparse.Namespace) -> int:
           + (f" (previous session kept as {backup})" if backup else ""))
     for note in exclusion_notes(rec.groups, rec.group_names, ev.excluded):
         print(f"note: {note}")
-    return 0
-
-
-def run_export_command(args: argparse.Namespace) -> int:
-    from rigside.core.exports.units import export_units
-    from rigside.core.units.session import load_session
-
-    out = Path(args.out)
-    if out.exists() and not out.is_dir():
-        raise ParamError(f"export target must be a folder, got the file {str(out)!r}")
-    if not out.parent.exists():
-        raise ParamError(f"export folder's parent must exist, got {str(out.parent)!r}")
-    session = load_session(args.session, check_recording=False)
-    bar = TextProgress(not args.quiet)
-    try:
-        written = export_units(session, out, bin_ms=args.bin_ms, progress=bar)
-    finally:
-        bar.close()
-    n = sum(len(v) for v in written.values())
-    print(f"{n} files -> {out}")
     return 0

@@ -1,5 +1,7 @@
-"""File > Export in the window: spike times (export folder), the unit table (metrics CSV) and,
-once an audit exists, its HTML report and table. Writing runs on the window's job runner.
+"""File > Export in the window: spike times (export folder), the units as an NWB file (new, or a copy
+of an NWB recording), the unit table (metrics CSV), once an audit exists its HTML report and table,
+and any plot on screen as a picture (PNG or SVG) or, for the count curve and the quality histograms,
+its numbers (CSV; see :mod:`rigside.gui.plot_export`). Writing runs on the window's job runner.
 
 ``install_export(window)`` adds the submenu; it is one of the window's extensions and runs after
 the units and audit installers (it reuses the audit's own save actions).
@@ -9,19 +11,30 @@ from __future__ import annotations
 
 from pathlib import Path
 
-from PySide6.QtWidgets import QFileDialog, QMenu
+from PySide6.QtCore import QObject
+from PySide6.QtWidgets import QApplication, QFileDialog, QMenu
 
 from rigside.core.errors import RigsideError
+from rigside.core.exports.nwb import export_nwb, is_nwb_file
 from rigside.core.exports.units import export_units
 from rigside.core.io.atomic import check_output
 from rigside.core.quality.unit_table import sorting_unit_table
 from rigside.core.quality.unit_table_io import write_unit_table_csv
 from rigside.core.signal.pipeline import thresholds_sigma
 from rigside.core.units.session import snapshot
+from rigside.gui.plot_export import (
+    IMAGE_FILTER,
+    PlotTarget,
+    focused_view,
+    image_bytes,
+    plot_targets,
+    write_bytes_job,
+    write_table_job,
+)
 from rigside.gui.save_folder import remember_folder, suggested_path
 from rigside.gui.window_actions import add_action
 
-EXPORT_SLOT = "export"
+EXPORT_SLOT, NWB_SLOT, PLOT_SLOT = "export", "export_nwb", "export_plot"
 
 
 def _spike_times_job(session, out_dir: Path, progress=None, cancel=None):
@@ -35,6 +48,30 @@ def _unit_table_job(session, out: Path, metric_params, progress=None, cancel=Non
     return write_unit_table_csv(table, out, metric_params)
 
 
+def _nwb_job(session, recording, out: Path, into_copy, metric_params, progress=None, cancel=None):
+    return export_nwb(session, recording, out, into_copy=into_copy, metric_params=metric_params,
+                      progress=progress, cancel=cancel)
+
+
+def _file_name(text: str) -> str:
+    return "".join(ch if ch.isalnum() or ch in "-_" else "_" for ch in text).strip("_")[:60] or "plot"
+
+
+class _FocusTracker(QObject):
+    """Remembers the plot view of the window that last took the keyboard focus (a click gives it);
+    a child of the window, so the connection ends with it."""
+
+    def __init__(self, window):
+        super().__init__(window)
+        self.last = None
+        QApplication.instance().focusChanged.connect(self._changed)
+
+    def _changed(self, _old, new) -> None:
+        view = focused_view(new)
+        if view is not None and view.window() is self.parent():
+            self.last = view
+
+
 class Exporter:
     """The export actions; ``pick_folder(title, start)`` and ``pick_file(title, start, filter)``
     are attributes so tests can answer the dialogs."""
@@ -43,6 +80,12 @@ class Exporter:
         self.window = window
         self.pick_folder = lambda title, start: QFileDialog.getExistingDirectory(window, title, start)
         self.pick_file = lambda title, start, filt: QFileDialog.getSaveFileName(window, title, start, filt)[0]
+        self.focus = _FocusTracker(window)
+
+    @property
+    def last_view(self):
+        """The plot clicked last (it comes first in the plot menus)."""
+        return self.focus.last
 
     def _session(self):
         s = self.window.units.session
@@ -87,12 +130,93 @@ class Exporter:
                                   on_done=lambda p: self._done(f"Unit table written to {p}"))
         return True
 
+    def nwb(self, into_copy: bool = False) -> bool:
+        """Ask for an .nwb file and write the units into it (``into_copy``: a copy of the NWB recording)."""
+        s = self._session()
+        if s is None:
+            return False
+        rec = self.window.bench.recording
+        title = "Cannot write the NWB file"
+        if rec is None or Path(rec.path).resolve() != Path(s.recording.path).resolve():
+            self.window.show_error(title, "the NWB file's mean waveforms need the session's recording open, got "
+                                          f"{'none' if rec is None else Path(rec.path).name}")
+            return False
+        if into_copy and not is_nwb_file(rec.path):
+            self.window.show_error(title, f"adding the units to a copy needs a recording in NWB, got {rec.path.name}")
+            return False
+        source = Path(s.recording.path)
+        path = self.pick_file("Export the units as NWB", str(suggested_path(source, source.stem + "_units.nwb")),
+                              "NWB file (*.nwb)")
+        if not path:
+            return False
+        try:
+            out = check_output(path, s.recording.path, s.source, suffixes=(".nwb",))
+        except RigsideError as exc:
+            self.window.show_error(title, str(exc))
+            return False
+        remember_folder(out.parent)
+        self.window.runner.submit(NWB_SLOT, "Writing the NWB file", _nwb_job, snapshot(s), rec, out,
+                                  rec.path if into_copy else None, self.window.units.metric_settings(),
+                                  on_done=lambda p: self._done(f"NWB file written to {p}"))
+        return True
+
+    def _plot_path(self, target: PlotTarget, suffix: str, filt: str) -> Path | None:
+        rec = self.window.bench.recording
+        near = Path(rec.path) if rec is not None else Path.home() / "plot"
+        path = self.pick_file(f"Save {target.name}", str(suggested_path(near, _file_name(target.name) + suffix)), filt)
+        if not path:
+            return None
+        suffixes = (".png", ".svg") if suffix == ".png" else (".csv",)
+        protected = [rec.path if rec is not None else None, getattr(self.window.units.session, "source", None)]
+        try:
+            out = check_output(path, *protected, suffixes=suffixes)
+        except RigsideError as exc:
+            self.window.show_error("Cannot save the plot", str(exc))
+            return None
+        remember_folder(out.parent)
+        return out
+
+    def save_plot(self, target: PlotTarget) -> bool:
+        """Ask for a .png or .svg file and write the picture of ``target`` into it."""
+        out = self._plot_path(target, ".png", IMAGE_FILTER)
+        if out is None:
+            return False
+        self.window.runner.submit(PLOT_SLOT, "Saving the plot", write_bytes_job, out, image_bytes(target, out),
+                                  on_done=lambda p: self._done(f"Plot saved as {p}"))
+        return True
+
+    def save_plot_data(self, target: PlotTarget) -> bool:
+        """Ask for a .csv file and write the numbers ``target`` draws into it."""
+        table = target.table()
+        if table is None:
+            self.window.show_error("Nothing to save", f"{target.name} must show numbers to save, got none")
+            return False
+        out = self._plot_path(target, ".csv", "CSV table (*.csv)")
+        if out is None:
+            return False
+        self.window.runner.submit(PLOT_SLOT, "Saving the plot's numbers", write_table_job, out, table,
+                                  on_done=lambda p: self._done(f"Plot numbers saved as {p}"))
+        return True
+
+    def fill_plot_menu(self, menu: QMenu, numbers: bool) -> None:
+        """List the plots on screen in ``menu`` (with ``numbers``: those whose numbers can be saved)."""
+        menu.clear()
+        for target in plot_targets(self.window, self.last_view):
+            if numbers and target.table() is None:
+                continue
+            text = target.name + ("  (last clicked)" if target.view is self.last_view else "")
+            act = menu.addAction(text.replace("&", "&&"))
+            act.triggered.connect(lambda _=False, t=target: (self.save_plot_data if numbers else self.save_plot)(t))
+        if menu.isEmpty():
+            menu.addAction("no plot on screen" if not numbers else "no count curve or histogram on screen").\
+                setEnabled(False)
+
     def _done(self, message: str) -> None:
         self.window.statusBar().showMessage(message, 10000)
 
 
 def install_export(window) -> Exporter:
-    """Add File > Export (spike times, unit table, audit report and table) before Quit."""
+    """Add File > Export (spike times, NWB, unit table, audit report and table, plots) before Quit."""
     exporter = Exporter(window)
     window.exporter = exporter
     actions = window.actions_by_name
@@ -103,17 +227,31 @@ def install_export(window) -> Exporter:
     file_menu.insertSeparator(quit_action)
     times = add_action(window, actions, "export_spike_times", "&Spike times (export folder)…", exporter.spike_times,
                        tip="spike_times.csv, one .npy per unit, binned.h5 and export.json in a folder", menu=menu)
+    nwb = add_action(window, actions, "export_nwb", "&NWB file of the units…", exporter.nwb,
+                     tip="Units table (spike times, electrodes, label, quality columns, mean waveforms) and "
+                         "provenance in a new NWB file", menu=menu)
+    nwb_copy = add_action(window, actions, "export_nwb_copy", "NWB: units added to a &copy of the recording…",
+                          lambda: exporter.nwb(into_copy=True),
+                          tip="A copy of the NWB recording with the units table added", menu=menu)
     table = add_action(window, actions, "export_unit_table", "&Unit table (metrics CSV)…", exporter.unit_table,
                        tip="One row of quality numbers per unit, with the settings in # lines", menu=menu)
     menu.addSeparator()
     for name in ("audit_report", "audit_table"):
         if name in actions:
             menu.addAction(actions[name])
+    menu.addSeparator()
+    window.plot_image_menu = menu.addMenu("&Plot as PNG or SVG")
+    window.plot_image_menu.aboutToShow.connect(lambda: exporter.fill_plot_menu(window.plot_image_menu, False))
+    window.plot_data_menu = menu.addMenu("Plot &numbers as CSV (count curve, histograms)")
+    window.plot_data_menu.aboutToShow.connect(lambda: exporter.fill_plot_menu(window.plot_data_menu, True))
 
     def enable() -> None:
         has_units = window.units.session is not None
-        for a in (times, table):
+        for a in (times, table, nwb):
             a.setEnabled(has_units)
+        rec = window.bench.recording
+        nwb_copy.setEnabled(has_units and rec is not None and is_nwb_file(rec.path))
+    window.bench.recording_changed.connect(enable)
     window.units.sorting_replaced.connect(enable)
     enable()
     return exporter

@@ -16,7 +16,7 @@ from rigside.core.io.spike_import import SpikeTrains
 from rigside.core.params import Params
 from rigside.core.progress import CancelFn, ProgressFn, check, report
 from rigside.core.signal.filtering import BandPass
-from rigside.core.signal.snippets import extract_snippets, snippet_times_ms, snippet_window
+from rigside.core.signal.snippets import extract_snippets, snippet_times_ms, snippet_window, spread_subsample
 
 BATCH_VALUES = 25_000_000
 """Most snippet values (float32) held at once while placing units (100 MB)."""
@@ -54,13 +54,6 @@ class Placement:
     group: int
     peak_offset_ms: float
     waveform: WaveformSummary
-
-
-def spread_subsample(n: int, k: int) -> np.ndarray:
-    """Up to ``k`` indices of ``0..n-1`` spread evenly over the range."""
-    if n <= k:
-        return np.arange(n)
-    return np.unique(np.round(np.linspace(0, n - 1, k)).astype(np.int64))
 
 
 def to_samples(times_s: np.ndarray, rate_hz: float, n_samples: int) -> np.ndarray:

@@ -38,6 +38,8 @@ from rigside.core.units.sorting import LABELS, Sorting
 
 MAX_COUNT = np.iinfo(np.uint16).max
 CSV_NAME, BINNED_NAME = "unit_times.csv", "binned.h5"
+TIME_DECIMALS = 7
+"""Decimals of a second in ``unit_times.csv`` (0.1 microsecond)."""
 MAX_MATRIX_BYTES = 32 << 30
 """Largest uncompressed spike matrix (units x bins x 2 bytes) an export may declare."""
 BLOCK_BINS = 1 << 20
@@ -118,7 +120,7 @@ def write_unit_times(path: str | Path, trains: dict[int, np.ndarray], labels: di
             for u, t in trains.items():
                 check(cancel)
                 write_rows(fh, [("int", np.full(len(t), u)), ("text", np.zeros(len(t), np.int64), [labels[u]]),
-                                ("fixed", t, 7)])
+                                ("fixed", t, TIME_DECIMALS)])
     return atomic_write(path, write)
 
 

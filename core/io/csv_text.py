@@ -129,6 +129,44 @@ def _format_block(n, layout, ints, floats, codes, words, word_ends, newline, out
     return p
 
 
+@numba.njit(cache=True, nogil=True)
+def _fixed_kernel(x, d, out):
+    power = np.int64(10) ** d
+    for i in range(len(x)):
+        v = x[i]
+        n = _scaled(abs(v), power)
+        out[i] = math.copysign(n / power, v)      # both exact integers: one correctly rounded division
+
+
+def fixed_values(values: np.ndarray, decimals: int) -> np.ndarray:
+    """The numbers the ``("fixed", values, decimals)`` text reads back as: ``float(format(v, f".{decimals}f"))``
+    of every value, computed exactly (the same integer of ``10**-decimals`` the text writes, then
+    one correctly rounded division), so another export can hold exactly the CSV's numbers.
+
+    Parameters
+    ----------
+    values
+        Finite numbers.
+    decimals
+        Decimals written (0 to 7).
+
+    Returns
+    -------
+    numpy.ndarray
+        float64, one per value.
+    """
+    v = np.asarray(values, dtype=np.float64).ravel()
+    if not 0 <= decimals <= _MAX_DECIMALS:
+        raise ValueError(f"decimals must be from 0 to {_MAX_DECIMALS}, got {decimals}")
+    if not np.all(np.isfinite(v)):
+        raise ValueError("fixed-decimal values must be finite, got NaN or infinite values")
+    if len(v) and np.abs(v).max() >= 2.0 ** 53 / 10 ** decimals:    # beyond exact integer division
+        return np.array([float(format(x, f".{decimals}f")) for x in v.tolist()], dtype=np.float64)
+    out = np.empty_like(v)
+    _fixed_kernel(v, decimals, out)
+    return out
+
+
 def _check(columns: Sequence[tuple]) -> int:
     lengths = {len(c[1]) for c in columns}
     if len(lengths) != 1:

@@ -17,7 +17,8 @@ T = TypeVar("T")
 
 
 @contextlib.contextmanager
-def _memory_file(name: str, file_options: dict) -> Iterator[h5py.File]:
+def memory_file(name: str, file_options: dict) -> Iterator[h5py.File]:
+    """An HDF5 file open for writing in memory only (take its bytes with ``f.id.get_file_image()``)."""
     f = h5py.File(f"{name}.image", "w", driver="core", backing_store=False, **file_options)
     try:
         yield f
@@ -32,7 +33,7 @@ def h5_in_memory(tmp: str | Path, **file_options) -> Iterator[h5py.File]:
     ``file_options`` go to :class:`h5py.File` (e.g. ``libver``). Nothing touches the disk
     until the block has finished; then the whole image is written at once.
     """
-    with _memory_file(str(tmp), file_options) as f:
+    with memory_file(str(tmp), file_options) as f:
         yield f
         f.flush()
         image = f.id.get_file_image()
@@ -43,7 +44,7 @@ def h5_in_memory(tmp: str | Path, **file_options) -> Iterator[h5py.File]:
 def h5_image(fill: Callable[[h5py.File], T], name: str = "image", **file_options) -> tuple[bytes, T]:
     """Build an HDF5 file in memory with ``fill(f)``; returns its bytes and what ``fill`` returned
     (write the bytes with ordinary file I/O, e.g. through :func:`rigside.core.io.atomic.atomic_write`)."""
-    with _memory_file(name, file_options) as f:
+    with memory_file(name, file_options) as f:
         result = fill(f)
         f.flush()
         return f.id.get_file_image(), result

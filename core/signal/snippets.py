@@ -24,6 +24,13 @@ def snippet_times_ms(params: SnippetParams, rate_hz: float) -> np.ndarray:
     return np.arange(-before, after) * 1000.0 / rate_hz
 
 
+def spread_subsample(n: int, k: int) -> np.ndarray:
+    """Up to ``k`` indices of ``0..n-1`` spread evenly over the range."""
+    if n <= k:
+        return np.arange(n)
+    return np.unique(np.round(np.linspace(0, n - 1, k)).astype(np.int64))
+
+
 def extract_snippets(bandpass: BandPass, samples: np.ndarray, channels: np.ndarray,
                      params: SnippetParams, cancel: CancelFn = None, pad: int = 0) -> np.ndarray:
     """Filtered snippets around peak samples, on the given channels.

@@ -103,3 +103,18 @@ def test_unit_times_csv_same_bytes_as_before(tmp_path):
     old = "unit,label,time_s\n" + "".join(
         "".join(f"{u},{rec.label},{x:.7f}\n" for x in ev.time_s[sorting.events_of(u)]) for u, rec in units.items())
     assert out["csv"][0].read_bytes() == old.encode()
+
+
+@pytest.mark.parametrize("decimals", [0, 3, 7])
+def test_fixed_values_are_the_numbers_the_text_reads_back_as(decimals):
+    # reference: float(format(x, ".Nf")), CPython's correctly rounded formatting and parsing
+    rng = np.random.default_rng(decimals)
+    rates = rng.choice([30000.0, 24414.0625, 20000.0, 32000.0, 1234.5], 50000)
+    x = np.concatenate([rng.integers(0, 10**9, 50000) / rates, rng.normal(0, 1e3, 20000),
+                        [0.0, -0.0, -1e-9, 2.5e-7, 0.5, 1.5, 2.0**53 / 10**decimals * 1.5]])
+    got = csv_text.fixed_values(x, decimals)
+    ref = np.array([float(format(v, f".{decimals}f")) for v in x.tolist()])
+    np.testing.assert_array_equal(got, ref)
+    assert np.array_equal(np.signbit(got), np.signbit(ref))
+    with pytest.raises(ValueError, match="finite"):
+        csv_text.fixed_values(np.array([np.nan]), decimals)

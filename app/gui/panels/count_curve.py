@@ -23,6 +23,8 @@ class CountCurvePanel(Panel):
         super().__init__(bench, runner, parent)
         self._placing = False
         self.scores = None
+        self.curve: dict | None = None
+        """The numbers of the curve drawn last (see :meth:`plot_table`)."""
         self._build()
         bench.events_changed.connect(self._redraw)
         bench.selection_changed.connect(self._on_selection)
@@ -87,8 +89,25 @@ class CountCurvePanel(Panel):
         b = self.bench
         return k if b.scale == "sigma" else k * float(b.sigma_uv[b.channel])
 
+    def plot_table(self, view) -> dict | None:
+        """The count-versus-threshold curve drawn last, as a described table (None before detection)."""
+        c = self.curve
+        if c is None or view is not self.layout_widget:
+            return None
+        meanings = {"threshold_sigma": "threshold in multiples of the channel's robust noise sigma",
+                    "threshold_uv": "the same threshold in microvolts [uV]",
+                    "events_per_s": "detected events on the channel at or above the threshold, per second "
+                                    "of recording [1/s]",
+                    "noise_sampled_per_s": "expected crossings of noise alone in the sampled, filtered data [1/s]",
+                    "noise_rice_per_s": "expected crossings of noise alone, Rice's formula for the continuous "
+                                        "filtered signal [1/s]"}
+        return {"title": [f"rigside count versus threshold, channel {c['channel']}, "
+                          f"{self.bench.events.duration_s:g} s of recording"],
+                "meanings": meanings, "table": {k: c[k] for k in meanings}}
+
     def _on_recording(self) -> None:
         self.scores = None
+        self.curve = None
         for item in (self.observed, self.sampled, self.continuous, self.hits, self.misses, self.false_alarms):
             item.setData([], [])
         self.truth_plot.setVisible(False)
@@ -115,6 +134,8 @@ class CountCurvePanel(Panel):
         factor = 2.0 if ev.polarity == "both" else 1.0
         cont = factor * rice_rate(b.analysis.sos, ev.rate_hz, k)
         self.continuous.setData(x, cont)
+        self.curve = {"channel": c, "threshold_sigma": k, "threshold_uv": k * float(b.sigma_uv[c]),
+                      "events_per_s": rate, "noise_sampled_per_s": noise, "noise_rice_per_s": cont}
         lowest = 0.5 / dur
         highest = max(float(np.nanmax(rate)) if np.any(rate > 0) else 1.0, float(noise[0]))
         self.rate_plot.setYRange(np.log10(lowest), np.log10(highest * 2), padding=0)
@@ -154,7 +175,7 @@ class CountCurvePanel(Panel):
     # ---- ground truth ---------------------------------------------------------------------
     def _request_scores(self) -> None:
         b = self.bench
-        truth, ev = b.analysis.truth, b.events
+        truth, ev = b.shown_truth, b.events
         if truth is None or ev is None:
             self.truth_plot.setVisible(False)
             self.truth_key.setVisible(False)
@@ -170,7 +191,7 @@ class CountCurvePanel(Panel):
 
     def _draw_scores(self) -> None:
         s = self.scores
-        if s is None or self.bench.analysis.truth is None:
+        if s is None or self.bench.shown_truth is None:
             return
         self.truth_plot.setVisible(True)
         self.truth_key.setVisible(True)

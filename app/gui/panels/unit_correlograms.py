@@ -7,7 +7,7 @@ from PySide6.QtWidgets import QHBoxLayout
 
 from rigside.core.quality.correlograms import autocorrelogram, crosscorrelogram
 from rigside.gui import palette
-from rigside.gui.panels.unit_view_base import UnitView, spin, step_curve
+from rigside.gui.panels.unit_view_base import UnitView, histogram_table, spin, step_curve
 
 
 class CorrelogramView(UnitView):
@@ -27,6 +27,18 @@ class CorrelogramView(UnitView):
         self.finish_layout()
         self.pair: tuple[int, int] | None = None
         self.cross_counts = None
+        self.autos: dict[int, tuple] = {}
+        """Bin edges (ms) and counts of each autocorrelogram drawn last; ``cross`` the cross-correlogram's."""
+        self.cross_drawn: tuple | None = None
+
+    def plot_table(self, view) -> dict | None:
+        """The drawn correlograms of one of the two plots as a described table (None when empty)."""
+        if view is self.auto and self.autos:
+            rows = [("auto", u, "", edges, counts) for u, (edges, counts) in self.autos.items()]
+            return histogram_table("rigside autocorrelograms", rows)
+        if view is self.cross and self.cross_drawn is not None:
+            return histogram_table("rigside cross-correlogram", [self.cross_drawn])
+        return None
 
     def _bins(self) -> tuple[float, float]:
         bin_s = self.bin_ms.value() / 1e3
@@ -37,7 +49,7 @@ class CorrelogramView(UnitView):
         for w in (self.auto, self.cross):
             w.getPlotItem().clear()
             w.getPlotItem().setTitle(None)
-        self.pair, self.cross_counts = None, None
+        self.pair, self.cross_counts, self.autos, self.cross_drawn = None, None, {}, None
         if not units:
             return
         bin_s, window_s = self._bins()
@@ -49,6 +61,7 @@ class CorrelogramView(UnitView):
         pa.addItem(shade)
         for u in units:
             counts, edges = autocorrelogram(self.unit_times(u), bin_s, window_s)
+            self.autos[u] = (edges * 1e3, counts)
             pa.addItem(step_curve(edges, counts, self.ctl.unit_colour(u), 1e3))
         pa.setTitle("auto", size="9pt")
         pc = self.cross.getPlotItem()
@@ -60,6 +73,7 @@ class CorrelogramView(UnitView):
         a, b = units[0], units[1]
         counts, edges = crosscorrelogram(self.unit_times(a), self.unit_times(b), bin_s, window_s)
         self.pair, self.cross_counts = (a, b), counts
+        self.cross_drawn = ("cross", a, b, edges * 1e3, counts)
         pc.addItem(pg.PlotCurveItem(edges * 1e3, counts.astype(float), stepMode="center", fillLevel=0,
                                     brush=pg.mkBrush(*palette.GREY, 90), pen=palette.pen(palette.BLACK, 1.4)))
         pc.addItem(pg.InfiniteLine(0, angle=90, pen=palette.pen(palette.GREY, dash=True)))

@@ -10,7 +10,7 @@ from rigside.core.params import censored_note
 from rigside.core.quality.correlograms import isi_histogram
 from rigside.core.quality.metrics import isi_violations
 from rigside.gui import palette
-from rigside.gui.panels.unit_view_base import UnitView, spin, step_curve
+from rigside.gui.panels.unit_view_base import UnitView, histogram_table, spin, step_curve
 
 
 class IsiView(UnitView):
@@ -27,11 +27,20 @@ class IsiView(UnitView):
         self.finish_layout(self.plot)
         self.curves: list[pg.PlotCurveItem] = []
         self.violations: dict[int, int] = {}
+        self.histograms: dict[int, tuple] = {}
+        """Bin edges (ms) and counts of each unit drawn last."""
+
+    def plot_table(self, view) -> dict | None:
+        """The drawn ISI histograms as a described table (None when no unit is shown)."""
+        if view is not self.plot or not self.histograms:
+            return None
+        rows = [("isi", u, "", edges, counts) for u, (edges, counts) in self.histograms.items()]
+        return histogram_table("rigside inter-spike interval histograms", rows)
 
     def draw(self, units: list[int]) -> None:
         pi = self.plot.getPlotItem()
         pi.clear()
-        self.curves, self.violations = [], {}
+        self.curves, self.violations, self.histograms = [], {}, {}
         if not units:
             return
         mp = self.ctl.metric_settings()
@@ -42,6 +51,7 @@ class IsiView(UnitView):
         for u in units:
             t = self.unit_times(u)
             counts, edges = isi_histogram(t, self.bin_ms.value() / 1e3, self.max_ms.value() / 1e3)
+            self.histograms[u] = (edges * 1e3, counts)
             curve = step_curve(edges, counts, self.ctl.unit_colour(u), 1e3)
             pi.addItem(curve)
             self.curves.append(curve)

@@ -93,3 +93,29 @@ def step_curve(edges: np.ndarray, counts: np.ndarray, colour, scale: float = 1.0
     """A histogram as a stepped outline (x in ``edges * scale``)."""
     return pg.PlotCurveItem(np.asarray(edges) * scale, np.asarray(counts, dtype=np.float64), stepMode="center",
                             pen=palette.pen(colour, 1.6))
+
+
+HISTOGRAM_MEANINGS = {
+    "histogram": "isi (intervals between consecutive spikes of a unit), auto (autocorrelogram of a unit) or "
+                 "cross (spikes of unit B at lags after spikes of unit A)",
+    "unit": "the unit (unit A of a cross-correlogram)",
+    "other_unit": "unit B of a cross-correlogram (empty otherwise)",
+    "bin_start_ms": "start of the bin [ms]",
+    "bin_end_ms": "end of the bin [ms]",
+    "count": "intervals or spike pairs in the bin [count]",
+}
+
+
+def histogram_table(title: str, rows: list[tuple[str, int, int | str, np.ndarray, np.ndarray]]) -> dict:
+    """A described table of drawn histograms: ``rows`` of (kind, unit, other unit or "", edges in ms,
+    counts); one line per bin (see :data:`HISTOGRAM_MEANINGS`)."""
+    table: dict[str, list] = {k: [] for k in HISTOGRAM_MEANINGS}
+    for kind, unit, other, edges, counts in rows:
+        n = len(counts)
+        table["histogram"] += [kind] * n
+        table["unit"] += [unit] * n
+        table["other_unit"] += [other] * n
+        table["bin_start_ms"] += list(edges[:-1])
+        table["bin_end_ms"] += list(edges[1:])
+        table["count"] += [int(v) for v in counts]
+    return {"title": [title], "meanings": HISTOGRAM_MEANINGS, "table": table}
