@@ -102,8 +102,10 @@ class NWBRecording(Recording):
         return block if channels is None else block[:, channels]
 
     def describe(self) -> dict:
-        """The plain description, with the series, its start time and where positions came from."""
-        return super().describe() | {"series": self.series, "start_time_s": self.start_time_s,
+        """The plain description, with the series (its name as NWB names it, and its path in the file),
+        its start time and where positions came from."""
+        return super().describe() | {"series": self.series.rsplit("/", 1)[-1], "series_path": self.series,
+                                     "start_time_s": self.start_time_s,
                                      "positions": self.position_note}
 
     def close(self) -> None:

@@ -7,8 +7,7 @@ import csv
 
 from rigside.core.io.spike_import import natural_key
 from rigside.gui.panels.audit_pair import TRACE_KEY
-from tests.app.test_audit_view import old_sorting, wait_audit
-from tests.app.units_helpers import cluster_demo
+from tests.app.test_audit_view import audit_of, old_sorting
 
 
 def unit_name(u: int) -> str:
@@ -30,12 +29,8 @@ def named_sorting(tmp_path) -> tuple:
 
 def test_named_units_keep_their_names_everywhere(demo_window, qtbot, tmp_path):
     win = demo_window
-    cluster_demo(win)
     path, counts = named_sorting(tmp_path)
-    assert win.audit.start(path)
-    wait_audit(win, qtbot)
-    r = win.audit.result
-    assert r is not None, win.last_error
+    r = audit_of(win, qtbot, path)
     panel = win.audit_panel
     shown = [panel.table.item(i, 0).text() for i in range(panel.table.rowCount())]
     assert shown == sorted(counts, key=natural_key)                  # as given, in natural order

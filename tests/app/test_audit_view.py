@@ -37,6 +37,16 @@ def wait_audit(win, qtbot) -> None:
     assert win.wait_idle(60)
 
 
+def audit_of(win, qtbot, path):
+    """Cluster the demo, audit ``path`` against its session in the window and return the result."""
+    cluster_demo(win)
+    assert win.audit.start(path)
+    wait_audit(win, qtbot)
+    r = win.audit.result
+    assert r is not None, win.last_error
+    return r
+
+
 def split(curve) -> list[np.ndarray]:
     """The finite pieces of a NaN-separated curve."""
     y = np.asarray(curve.yData)
@@ -82,12 +92,8 @@ def check_trace_rows(win, pv) -> None:
 
 def test_audit_against_the_session_shows_each_pair_as_the_core_computes_it(demo_window, qtbot, tmp_path):
     win = demo_window
-    cluster_demo(win)
     path, counts = old_sorting(tmp_path)
-    assert win.audit.start(path)
-    wait_audit(win, qtbot)
-    r = win.audit.result
-    assert r is not None, win.last_error
+    r = audit_of(win, qtbot, path)
     assert r.fresh.source.startswith("session")
     assert r.fresh.sorting is not win.units.sorting          # a frozen copy: curation may go on
     panel = win.audit_panel

@@ -59,6 +59,13 @@ def test_sort_and_batch_take_nwb_recordings(pair, capsys):
     d = pair
     assert main(["sort", str(d / "demo.nwb"), "--session", str(d / "s.h5"), "--quiet"]) == 0
     assert "units in 2 groups" in capsys.readouterr().out
+    # the units added to a copy of the NWB recording itself, on its series' electrodes
+    assert main(["export", str(d / "s.h5"), "--nwb", str(d / "with_units.nwb"), "--into-copy", "--quiet"]) == 0
+    import pynwb
+    assert pynwb.validate(path=str(d / "with_units.nwb")) == []         # the standard's own check
+    with pynwb.NWBHDF5IO(str(d / "with_units.nwb"), "r") as io:
+        nwb = io.read()
+        assert "raw" in nwb.acquisition and len(nwb.units) > 0
     assert main(["detect", str(d / "demo.bin"), "--positions", str(d / "sites.csv"), "--out", str(d / "alone.csv"),
                  "--quiet"]) == 0
     assert main(["batch", str(d / "demo.nwb"), "--out-dir", str(d / "b"), "--quiet"]) == 0

@@ -90,7 +90,9 @@ def test_several_series_need_a_name(tmp_path):
     path = write_nwb(tmp_path / "s.nwb", counts(), series=("raw_a", "raw_b"))
     with pytest.raises(RecordingError, match="--series.*acquisition/raw_a, acquisition/raw_b"):
         open_recording(path)
-    assert open_recording(path, series="raw_b").series == "acquisition/raw_b"
+    chosen = open_recording(path, series="raw_b")
+    assert chosen.series == "acquisition/raw_b"
+    assert chosen.describe()["series"] == "raw_b" and chosen.describe()["series_path"] == "acquisition/raw_b"
     assert open_recording(path, series="/acquisition/raw_a").series == "acquisition/raw_a"
     with pytest.raises(RecordingError, match="--series must name one"):
         open_recording(path, series="lfp")
