@@ -44,6 +44,30 @@ win.close()
 """
 
 
+BASELINE = """
+import os, sys
+os.environ["QT_QPA_PLATFORM"] = "offscreen"
+import h5py, numpy as np
+import pyqtgraph as pg
+from PySide6.QtWidgets import QApplication
+app = QApplication([])
+arrays = {}
+for name in sys.argv[1:3]:
+    with h5py.File(name, "r") as f:
+        f.visititems(lambda k, v: arrays.setdefault(k, v[()]) if isinstance(v, h5py.Dataset) else None)
+x = np.fromfile(sys.argv[3], dtype=np.int16, count=30000 * int(sys.argv[4])).reshape(-1, int(sys.argv[4]))
+w = pg.PlotWidget()
+w.resize(1600, 1000)
+for c in range(x.shape[1]):
+    w.plot(x[:, c].astype(np.float32) + 400 * c)
+w.show()
+app.processEvents()
+w.grab().save(sys.argv[5])
+"""
+"""The plain floor of opening a session, written the obvious way: start Qt and pyqtgraph, read every
+dataset of the session's two files with h5py, plot one second of every channel and save the PNG."""
+
+
 def measured(cmd: list[str]) -> tuple[float, float, str]:
     """Wall seconds, peak RSS (MB, the child's own, from ``os.wait4``) and stdout of one command."""
     t0 = time.perf_counter()
@@ -76,9 +100,13 @@ def main() -> None:
             sort_s, sort_mb, out = measured([*rigside, "sort", str(rec), "--session", str(session), "--quiet"])
             print(f"sort: {sort_s:.1f} s, peak {sort_mb:.0f} MB  ({out.strip()})")
         print(f"recording: {a.channels} channels x {a.seconds:g} s, {rec.stat().st_size / 1e6:.0f} MB")
+        static = next(work.glob(session.name + ".static-*.h5"))
+        base_s, base_mb, _ = measured([sys.executable, "-c", BASELINE, str(session), str(static), str(rec),
+                                       str(a.channels), str(work / "baseline.png")])
         open_s, open_mb, _ = measured([*rigside, "open", str(session), "--screenshot", str(work / "s.png")])
         print(f"open SESSION --screenshot (whole command, complete window): {open_s:.1f} s, peak {open_mb:.0f} MB "
-              f"(target 3 s, 1000 MB at 64 x 600 s)")
+              f"(target 3 s, 1000 MB at 64 x 600 s); baseline (Qt + h5py read of both files + one plot) "
+              f"{base_s:.1f} s, {base_mb:.0f} MB: ratio {open_s / base_s:.2f}")
         raw_s, raw_mb, out = measured([sys.executable, "-c", RAW_OPEN, str(rec)])
         r = json.loads(out.strip().splitlines()[-1])
         print(f"raw recording in the window: first paint {r['first_paint_s']:.2f} s (target 2 s), complete "

@@ -58,14 +58,30 @@ def uv_to_sigma(threshold_uv, sigma_uv) -> np.ndarray:
 
 
 @dataclass
-class EventTable:
+class EventColumns:
+    """The stored columns of events (:data:`COLUMNS`), one entry per event: what detection finds in
+    a block, and the first fields of :class:`EventTable`.
+
+    ``amplitude_uv`` is the signed peak of the filtered trace, ``amplitude_sigma`` its magnitude
+    divided by the channel's noise sigma.
+    """
+
+    sample: np.ndarray
+    channel: np.ndarray
+    group: np.ndarray
+    amplitude_uv: np.ndarray
+    amplitude_sigma: np.ndarray
+    artefact: np.ndarray
+
+
+@dataclass
+class EventTable(EventColumns):
     """Detected events and the context needed to interpret them.
 
     Attributes
     ----------
     sample, channel, group, amplitude_uv, amplitude_sigma, artefact
-        One entry per event. ``amplitude_uv`` is the signed peak of the filtered trace,
-        ``amplitude_sigma`` its magnitude divided by the channel's noise sigma.
+        One entry per event (see :class:`EventColumns`).
     rate_hz, n_samples
         Sampling rate and length of the recording.
     sigma_uv
@@ -78,12 +94,6 @@ class EventTable:
         Channel -> flag ("dead", "saturated") for channels left out of detection.
     """
 
-    sample: np.ndarray
-    channel: np.ndarray
-    group: np.ndarray
-    amplitude_uv: np.ndarray
-    amplitude_sigma: np.ndarray
-    artefact: np.ndarray
     rate_hz: float
     n_samples: int
     sigma_uv: np.ndarray

@@ -36,6 +36,19 @@ def _finite(name: str, value: float) -> None:
              f"{name} must be a finite number, got {value!r}")
 
 
+def _positive(name: str, value: float, unit: str, zero_allowed: bool = False) -> None:
+    """A finite number above 0 (at least 0 with ``zero_allowed``) in ``unit`` (values in sigma shown bare)."""
+    _finite(name, value)
+    shown = f"{value:g}" if unit == "sigma" else f"{value:g} {unit}"
+    _require(value >= 0 if zero_allowed else value > 0,
+             f"{name} must be {'at least' if zero_allowed else 'above'} 0 {unit}, got {shown}")
+
+
+def _between(name: str, value: float, low: float, high: float, unit: str) -> None:
+    _finite(name, value)
+    _require(low <= value <= high, f"{name} must be between {low:g} and {high:g} {unit}, got {value:g} {unit}")
+
+
 def _integer(name: str, value: Any, low: int, high: int) -> None:
     _require(isinstance(value, int) and not isinstance(value, bool) and low <= value <= high,
              f"{name} must be an integer from {low} to {high}, got {value!r}")
@@ -51,9 +64,8 @@ class FilterParams:
     common_reference: bool = False
 
     def validate(self, rate_hz: float | None = None) -> None:
-        _finite("band low edge", self.low_hz)
+        _positive("band low edge", self.low_hz, "Hz")
         _finite("band high edge", self.high_hz)
-        _require(self.low_hz > 0, f"band low edge must be above 0 Hz, got {self.low_hz:g} Hz")
         _require(self.high_hz > self.low_hz,
                  f"band high edge must be above the low edge ({self.low_hz:g} Hz), got {self.high_hz:g} Hz")
         _integer("filter order", self.order, 1, 8)
@@ -100,31 +112,19 @@ class DetectParams:
     artefact_window_ms: float = 0.5
 
     def validate(self) -> None:
-        _finite("threshold", self.threshold_sigma)
-        _require(self.threshold_sigma > 0,
-                 f"threshold must be above 0 sigma, got {self.threshold_sigma:g}")
+        _positive("threshold", self.threshold_sigma, "sigma")
         if self.threshold_uv is not None:
-            _finite("threshold in microvolts", self.threshold_uv)
-            _require(self.threshold_uv > 0,
-                     f"threshold in microvolts must be above 0 uV, got {self.threshold_uv:g} uV")
+            _positive("threshold in microvolts", self.threshold_uv, "uV")
         _require(self.polarity in POLARITIES,
                  f"polarity must be one of {', '.join(POLARITIES)}, got {self.polarity!r}")
-        _finite("dead time", self.dead_time_ms)
-        _require(0 <= self.dead_time_ms <= 100,
-                 f"dead time must be between 0 and 100 ms, got {self.dead_time_ms:g} ms")
+        _between("dead time", self.dead_time_ms, 0, 100, "ms")
         if self.floor_sigma is not None:
-            _finite("look-up floor", self.floor_sigma)
-            _require(self.floor_sigma > 0,
-                     f"look-up floor must be above 0 sigma, got {self.floor_sigma:g}")
+            _positive("look-up floor", self.floor_sigma, "sigma")
         _finite("artefact channel fraction", self.artefact_channel_fraction)
         _require(0 < self.artefact_channel_fraction <= 1,
                  f"artefact channel fraction must be in (0, 1], got {self.artefact_channel_fraction:g}")
-        _finite("artefact level", self.artefact_sigma)
-        _require(self.artefact_sigma > 0,
-                 f"artefact level must be above 0 sigma, got {self.artefact_sigma:g}")
-        _finite("artefact window", self.artefact_window_ms)
-        _require(self.artefact_window_ms >= 0,
-                 f"artefact window must be at least 0 ms, got {self.artefact_window_ms:g} ms")
+        _positive("artefact level", self.artefact_sigma, "sigma")
+        _positive("artefact window", self.artefact_window_ms, "ms", zero_allowed=True)
 
 
 @dataclass
@@ -138,10 +138,8 @@ class SnippetParams:
     seed: int = 0
 
     def validate(self) -> None:
-        _finite("snippet start", self.before_ms)
-        _finite("snippet end", self.after_ms)
-        _require(self.before_ms >= 0, f"snippet start must be at least 0 ms, got {self.before_ms:g} ms")
-        _require(self.after_ms > 0, f"snippet end must be above 0 ms, got {self.after_ms:g} ms")
+        _positive("snippet start", self.before_ms, "ms", zero_allowed=True)
+        _positive("snippet end", self.after_ms, "ms")
         _require(self.before_ms + self.after_ms <= 20,
                  f"snippet length must be at most 20 ms, got {self.before_ms + self.after_ms:g} ms")
         _integer("number of principal components", self.n_pcs, 1, 20)
@@ -161,15 +159,12 @@ class MetricParams:
     missed_min_events: int = 20
 
     def validate(self) -> None:
-        _finite("refractory period", self.refractory_ms)
-        _require(self.refractory_ms > 0, f"refractory period must be above 0 ms, got {self.refractory_ms:g} ms")
-        _finite("censored period", self.censored_ms)
-        _require(self.censored_ms >= 0, f"censored period must be at least 0 ms, got {self.censored_ms:g} ms")
+        _positive("refractory period", self.refractory_ms, "ms")
+        _positive("censored period", self.censored_ms, "ms", zero_allowed=True)
         _require(self.censored_ms < self.refractory_ms,
                  f"censored period must be shorter than the refractory period ({self.refractory_ms:g} ms), "
                  f"got {self.censored_ms:g} ms")
-        _finite("presence bin", self.presence_bin_s)
-        _require(self.presence_bin_s > 0, f"presence bin must be above 0 s, got {self.presence_bin_s:g} s")
+        _positive("presence bin", self.presence_bin_s, "s")
         for name, v in (("presence minimum bin count", self.presence_min_bins),
                         ("missed-spike minimum event count", self.missed_min_events)):
             _require(isinstance(v, int) and not isinstance(v, bool) and v >= 1,
@@ -259,9 +254,7 @@ class RunParams:
     workers: int = 2
 
     def validate(self) -> None:
-        _finite("chunk length", self.chunk_s)
-        _require(0.01 <= self.chunk_s <= 60,
-                 f"chunk length must be between 0.01 and 60 s, got {self.chunk_s:g} s")
+        _between("chunk length", self.chunk_s, 0.01, 60, "s")
         _integer("worker count", self.workers, 1, 64)
 
 

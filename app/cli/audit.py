@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+from contextlib import closing
 
 from rigside.cli.common import add_param_options, add_recording_options, open_from_args, params_from_args
 from rigside.cli.progressbar import TextProgress
@@ -20,7 +21,7 @@ def register(sub: argparse._SubParsersAction) -> None:
                                    "data and to fresh units (a session's curated units, or a first-pass "
                                    "clustering), and write an HTML report and a CSV table, one row per "
                                    "imported unit. See docs/audit.md for the accepted files and columns.")
-    p.add_argument("recording", help="raw binary (with metadata file or layout options) or HDF5 recording")
+    p.add_argument("recording", help="raw binary (with metadata file or layout options), HDF5 or NWB recording")
     p.add_argument("--sorted", required=True, metavar="SPIKES",
                    help="earlier spike times: .csv/.txt, .npy, .npz, .h5/.hdf5 or .nwb")
     p.add_argument("--session", metavar="SESSION.h5",
@@ -61,9 +62,7 @@ def run_audit_command(args: argparse.Namespace) -> int:
     settings = AuditSettings(tolerance_ms=args.tolerance_ms)
     settings.validate()
     params = params_from_args(args)
-    rec = open_from_args(args)
-    bar = TextProgress(not args.quiet)
-    try:
+    with closing(open_from_args(args)) as rec, TextProgress(not args.quiet) as bar:
         spikes = load_spikes(args.sorted, rate_hz=args.sorted_rate or rec.rate_hz, group=args.sorted_group,
                              time_offset_s=args.sorted_offset_s)
         spikes.check_within(rec.duration_s, rec.rate_hz)
@@ -78,9 +77,6 @@ def run_audit_command(args: argparse.Namespace) -> int:
         base = 0.0 if args.session else 0.5
         result = run_audit(rec, spikes, fresh, settings,
                            progress=lambda f, m: bar(base + (1 - base) * f, m))
-    finally:
-        bar.close()
-        rec.close()
     write_audit_csv(result, table, CAUTION)
     write_audit_report(result, out)
     print(f"{len(result.imported_ids)} imported units ({len(spikes)} spikes) audited against "

@@ -1,14 +1,19 @@
-"""`rigside batch`: detection over many recordings, locally or on Dask."""
+"""`rigside batch`: detection over many recordings, locally or on Dask (local processes or a cluster)."""
 
 from __future__ import annotations
 
 import argparse
-from pathlib import Path
 
-from rigside.cli.common import add_param_options, add_recording_options, params_from_args, recording_options
+from rigside.cli.common import (
+    add_param_options,
+    add_recording_options,
+    check_folder,
+    params_from_args,
+    recording_options,
+)
 from rigside.cli.progressbar import TextProgress
-from rigside.core.errors import ParamError
-from rigside.core.runs.batch import ENGINES
+from rigside.core.errors import ParamError, RigsideError
+from rigside.core.runs.batch import ENGINES, check_engine
 
 
 def register(sub: argparse._SubParsersAction) -> None:
@@ -20,8 +25,15 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--out-dir", required=True, metavar="DIR", help="folder for the outputs (created if missing)")
     p.add_argument("--format", choices=("csv", "h5"), default="csv", help="event file format (default csv)")
     p.add_argument("--engine", choices=ENGINES, default="local",
-                   help="local: one recording after another; dask: one task per recording on local processes")
-    p.add_argument("--processes", type=int, default=2, help="processes for the dask engine (default 2)")
+                   help="local: one recording after another; dask: one task per recording, on local "
+                        "processes or with --scheduler on a running Dask cluster")
+    p.add_argument("--processes", type=int, default=2,
+                   help="local processes for the dask engine without --scheduler (default 2)")
+    p.add_argument("--scheduler", metavar="ADDRESS",
+                   help="running dask.distributed scheduler (e.g. tcp://host:8786) whose workers run the tasks; "
+                        "recordings and --out-dir must be at the same paths on every worker")
+    p.add_argument("--connect-timeout", type=float, default=10.0, metavar="SECONDS",
+                   help="limit for reaching the scheduler and finding a worker there (default 10)")
     add_recording_options(p)
     add_param_options(p)
     p.set_defaults(func=run_batch_command, inputs=("recordings", "params"))
@@ -30,21 +42,22 @@ def register(sub: argparse._SubParsersAction) -> None:
 def run_batch_command(args: argparse.Namespace) -> int:
     from rigside.core.runs.batch import run_batch
 
-    out = Path(args.out_dir)
-    if out.exists() and not out.is_dir():
-        raise ParamError(f"batch output must be a folder, got the file {str(out)!r}")
-    if not out.parent.exists():
-        raise ParamError(f"batch output folder's parent must exist, got {str(out.parent)!r}")
+    out = check_folder(args.out_dir, "batch output")
     if not 1 <= args.processes <= 256:
         raise ParamError(f"process count must be from 1 to 256, got {args.processes}")
     params = params_from_args(args)
+    check_engine(args.engine, args.scheduler, args.connect_timeout)
+    made = not out.exists()
     out.mkdir(exist_ok=True)
-    bar = TextProgress(not args.quiet)
     try:
-        outcomes = run_batch(args.recordings, out, params, recording_options(args), args.format, args.engine,
-                             args.processes, progress=bar)
-    finally:
-        bar.close()
+        with TextProgress(not args.quiet) as bar:
+            outcomes = run_batch(args.recordings, out, params, recording_options(args), args.format,
+                                 args.engine, args.processes, progress=bar, scheduler=args.scheduler,
+                                 connect_timeout_s=args.connect_timeout)
+    except RigsideError:
+        if made and not any(out.iterdir()):
+            out.rmdir()   # refused before writing anything: leave no trace
+        raise
     failed = [o for o in outcomes if o.status != "done"]
     for o in failed:
         print(f"failed: {o.recording}: {o.message}")

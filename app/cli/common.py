@@ -3,8 +3,10 @@
 from __future__ import annotations
 
 import argparse
+from pathlib import Path
 from typing import TYPE_CHECKING
 
+from rigside.core.errors import ParamError
 from rigside.core.io.layout import DTYPES
 from rigside.core.params import POLARITIES, Params
 
@@ -14,7 +16,8 @@ if TYPE_CHECKING:
 
 def add_recording_options(p: argparse.ArgumentParser) -> None:
     """Options describing a raw recording (override its metadata file)."""
-    g = p.add_argument_group("recording layout (raw binary files; override the metadata file)")
+    g = p.add_argument_group("recording layout (raw binary files; override the metadata file; NWB files describe "
+                             "themselves)")
     g.add_argument("--channels", type=int, help="number of interleaved channels")
     g.add_argument("--rate", type=float, metavar="HZ", help="sampling rate in Hz")
     g.add_argument("--dtype", choices=DTYPES, help="sample type (little-endian)")
@@ -25,6 +28,7 @@ def add_recording_options(p: argparse.ArgumentParser) -> None:
     g.add_argument("--header-bytes", type=int, metavar="N", help="bytes to skip at the start of the file")
     g.add_argument("--group-size", type=int, metavar="K", help="K consecutive channels form one group")
     g.add_argument("--dataset", help="HDF5 dataset path (samples x channels)")
+    g.add_argument("--series", metavar="NAME", help="NWB ElectricalSeries (name or path) when the file holds several")
     g.add_argument("--allow-external", action="store_true", default=None,
                    help="read HDF5 samples kept in other files (external links, external storage, virtual datasets)")
 
@@ -73,6 +77,17 @@ def params_from_args(args: argparse.Namespace) -> Params:
     return params
 
 
+def check_folder(path: str, what: str) -> Path:
+    """An output folder that is not a file and whose parent exists (it may be created), or :class:`ParamError`
+    naming it ``what`` (e.g. "export")."""
+    out = Path(path)
+    if out.exists() and not out.is_dir():
+        raise ParamError(f"{what} must be a folder, got the file {str(out)!r}")
+    if not out.parent.exists():
+        raise ParamError(f"{what} folder's parent must exist, got {str(out.parent)!r}")
+    return out
+
+
 def open_from_args(args: argparse.Namespace, path: str | None = None) -> Recording:
     """Open the command's recording with the layout options applied."""
     from rigside.core.io.recording import open_recording
@@ -84,7 +99,7 @@ def recording_options(args: argparse.Namespace) -> dict:
     return {k: v for k, v in (("channels", args.channels), ("rate_hz", args.rate), ("dtype", args.dtype),
                               ("gain_uv", args.gain_uv), ("offset_uv", args.offset_uv),
                               ("offset_counts", args.offset_counts), ("header_bytes", args.header_bytes),
-                              ("group_size", args.group_size), ("dataset", args.dataset),
+                              ("group_size", args.group_size), ("dataset", args.dataset), ("series", args.series),
                               ("allow_external", args.allow_external or None)) if v is not None}
 
 

@@ -3,9 +3,10 @@
 from __future__ import annotations
 
 import argparse
+from contextlib import closing
 from pathlib import Path
 
-from rigside.cli.common import add_recording_options, recording_options
+from rigside.cli.common import add_recording_options, check_folder, recording_options
 from rigside.cli.progressbar import TextProgress
 from rigside.core.errors import ParamError
 
@@ -33,13 +34,6 @@ def register(sub: argparse._SubParsersAction) -> None:
     e.set_defaults(func=run_export_command, inputs=("session", "recording"))
 
 
-def _check_folder(out: Path) -> None:
-    if out.exists() and not out.is_dir():
-        raise ParamError(f"export target must be a folder, got the file {str(out)!r}")
-    if not out.parent.exists():
-        raise ParamError(f"export folder's parent must exist, got {str(out.parent)!r}")
-
-
 def _export_nwb(args: argparse.Namespace, bar: TextProgress) -> Path:
     from rigside.core.exports.nwb import export_nwb, is_nwb_file
     from rigside.core.io.atomic import check_output
@@ -54,12 +48,9 @@ def _export_nwb(args: argparse.Namespace, bar: TextProgress) -> Path:
     source = session.recording.path
     if args.into_copy and not is_nwb_file(source):
         raise ParamError(f"--into-copy needs a session whose recording is an NWB file, got {source!r}")
-    rec = open_recording(source, **recording_options(args))
-    try:
+    with closing(open_recording(source, **recording_options(args))) as rec:
         return export_nwb(session, rec, args.nwb, into_copy=source if args.into_copy else None,
                           n_waveforms=args.waveform_events, progress=bar)
-    finally:
-        rec.close()
 
 
 def run_export_command(args: argparse.Namespace) -> int:
@@ -70,11 +61,8 @@ def run_export_command(args: argparse.Namespace) -> int:
         raise ParamError("export needs --out DIR, --nwb OUT.nwb or both, got neither")
     if args.into_copy and args.nwb is None:
         raise ParamError("--into-copy needs --nwb OUT.nwb, got no --nwb")
-    out = Path(args.out) if args.out is not None else None
-    if out is not None:
-        _check_folder(out)
-    bar = TextProgress(not args.quiet)
-    try:
+    out = check_folder(args.out, "export") if args.out is not None else None
+    with TextProgress(not args.quiet) as bar:
         if args.nwb is not None:
             written_nwb = _export_nwb(args, bar)
             print(f"NWB file -> {written_nwb}")
@@ -82,6 +70,4 @@ def run_export_command(args: argparse.Namespace) -> int:
             session = load_session(args.session, check_recording=False)
             written = export_units(session, out, bin_ms=args.bin_ms, progress=bar)
             print(f"{sum(len(v) for v in written.values())} files -> {out}")
-    finally:
-        bar.close()
     return 0

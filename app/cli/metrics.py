@@ -42,11 +42,8 @@ def run_metrics(args: argparse.Namespace) -> int:
         params.metrics.refractory_ms = args.refractory_ms
     mp = metric_settings(params, args.censored_ms)
     events, sorting = session.events, session.sorting
-    bar = TextProgress(not args.quiet)
-    try:
+    with TextProgress(not args.quiet) as bar:
         table = sorting_unit_table(events, sorting, thresholds_sigma(params, events.sigma_uv), mp, progress=bar)
-    finally:
-        bar.close()
     write_unit_table_csv(table, out, mp)
     flagged = table["unit"][flag_units(table, DEFAULT_LIMITS)["any"]]
     undefined = table["unit"][np.logical_or.reduce(list(undefined_units(table, DEFAULT_LIMITS).values()))]

@@ -7,7 +7,8 @@ import time
 
 
 class TextProgress:
-    """Callable ``(fraction, message)`` drawing a bar on stderr at most ten times a second."""
+    """Callable ``(fraction, message)`` drawing a bar on stderr at most ten times a second; as a
+    context manager it closes the bar (ends its line) on the way out, error or not."""
 
     def __init__(self, enabled: bool = True, stream=None):
         self.enabled = enabled
@@ -32,6 +33,12 @@ class TextProgress:
         bar = f"[{'#' * filled}{'.' * (width - filled)}] {fraction * 100:5.1f}% {message}"
         self.stream.write(f"\r{bar:<60}" if tty else bar + "\n")
         self.stream.flush()
+
+    def __enter__(self) -> "TextProgress":
+        return self
+
+    def __exit__(self, *exc: object) -> None:
+        self.close()
 
     def close(self) -> None:
         if self.enabled and self.stream.isatty():

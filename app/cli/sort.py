@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+from contextlib import closing
 
 from rigside.cli.common import add_param_options, add_recording_options, open_from_args, params_from_args
 from rigside.cli.progressbar import TextProgress
@@ -37,14 +38,9 @@ def run_sort_command(args: argparse.Namespace) -> int:
     if args.seed is not None:
         params.cluster.seed = args.seed
     params.cluster.validate()
-    rec = open_from_args(args)
-    bar = TextProgress(not args.quiet)
-    try:
+    with closing(open_from_args(args)) as rec, TextProgress(not args.quiet) as bar:
         session, backup = run_sort(rec, params, args.session, resume=args.resume, progress=bar,
                                    overwrite=args.overwrite)
-    finally:
-        bar.close()
-        rec.close()
     n_units = len(session.sorting.units)
     ev = session.events
     n_art = int(ev.artefact.sum())

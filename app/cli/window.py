@@ -19,7 +19,9 @@ def register(sub: argparse._SubParsersAction) -> None:
     o.add_argument("recording", metavar="FILE", help="recording or session file")
     o.add_argument("--session", metavar="S.h5",
                    help="open this session on FILE, the session's recording at a new place (moved or renamed)")
-    o.add_argument("--screenshot", metavar="OUT.png", help="render the window after loading to a PNG and exit")
+    o.add_argument("--screenshot", metavar="OUT.png",
+                   help="render the window after loading to a PNG and exit (a session's recording is checked by "
+                        "its quick fingerprint only, not hashed whole)")
     add_recording_options(o)
     o.set_defaults(func=run_open_command)   # no protected inputs: the window saves the session it opened
     d = sub.add_parser("demo", help="open the bundled demo recording in the window",
@@ -50,5 +52,16 @@ def run_window_command(path: str | None, screenshot: str | None = None, options:
     elif headless:
         raise RigsideError("the window needs a display, got none (no DISPLAY or WAYLAND_DISPLAY): run it in a "
                            "desktop session, under `xvfb-run`, or with --screenshot OUT.png")
+    _import_the_engine()
     from rigside.gui.launch import run_window
     return run_window(path, screenshot=screenshot, recording_options=options, demo=demo, session=session)
+
+
+def _import_the_engine() -> None:
+    """Import the numeric modules the window uses before Qt: PySide6 hooks the import of every module
+    imported after it (it inspects the module for its own feature switches), which cost about a fifth of
+    the window's start-up when numpy, numba, scipy and h5py came after it."""
+    import rigside.core.audit.run  # noqa: F401
+    import rigside.core.quality.unit_table  # noqa: F401
+    import rigside.core.signal.features  # noqa: F401
+    import rigside.core.units.session_open  # noqa: F401

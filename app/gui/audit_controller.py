@@ -11,7 +11,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 from pathlib import Path
 
-import numpy as np
 from PySide6.QtCore import QObject, Signal
 
 from rigside.core.audit.html_report import write_audit_report
@@ -23,6 +22,7 @@ from rigside.core.io.atomic import check_output
 from rigside.core.io.spike_import_files import load_spikes
 from rigside.core.params import Params
 from rigside.core.progress import report
+from rigside.core.signal.pipeline import params_at_thresholds
 from rigside.core.units.session import snapshot
 
 AUDIT_SLOT, PAIR_SLOT, EXPORT_SLOT = "audit", "audit_pair", "audit_export"
@@ -79,16 +79,13 @@ def write_job(kind: str, result: AuditResult, path: Path, progress=None, cancel=
 def first_pass_params(bench) -> Params:
     """The workbench's parameters at its threshold (one value for every channel, in σ or µV;
     the parameter default when thresholds differ between channels), without the look-up floor."""
-    params = Params.from_dict(bench.analysis.params.to_dict())
+    ev = bench.events
+    try:
+        params = params_at_thresholds(bench.analysis.params, bench.thresholds_sigma,
+                                      None if ev is None else ev.sigma_uv)
+    except RigsideError:
+        params = Params.from_dict(bench.analysis.params.to_dict())
     params.detect.floor_sigma = None
-    thr = np.asarray(bench.thresholds_sigma, dtype=np.float64)
-    if len(thr) and np.all(np.isfinite(thr)) and np.allclose(thr, thr[0]):
-        params.detect.threshold_sigma, params.detect.threshold_uv = float(thr[0]), None
-    elif bench.events is not None and len(thr):
-        uv = thr * bench.events.sigma_uv
-        live = np.isfinite(uv) & (bench.events.sigma_uv > 0)
-        if live.any() and np.allclose(uv[live], uv[live][0]):
-            params.detect.threshold_uv = float(uv[live][0])
     return params
 
 

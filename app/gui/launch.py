@@ -61,7 +61,11 @@ def _show_a_unit(win: MainWindow) -> None:
 
 
 def _render(win: MainWindow, target: str | None, open_target: Callable[[], bool], screenshot: str) -> int:
+    """Open, wait for the complete window, save the PNG. A session's recording gets the quick
+    fingerprint check only: the picture changes nothing, and hashing the whole file would take
+    longer than the rest (its content hash is checked when the session is opened to work on)."""
     from rigside.gui.screenshot import capture
+    win.units.files.check_content = False
     win.resize(1600, 1000)
     win.show()
     code = 0

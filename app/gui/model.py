@@ -57,7 +57,8 @@ class Workbench:
     """The view state shared by every panel.
 
     Signals: ``recording_changed()``, ``events_changed()``, ``features_changed()``,
-    ``truth_changed()``, ``selection_changed()``, ``thresholds_changed(final: bool)``
+    ``truth_changed()`` (also when ground truth is hidden or revealed), ``selection_changed()``,
+    ``thresholds_changed(final: bool)``
     (``final`` is False while a handle is being dragged), ``scale_changed()`` (the threshold scale or scope
     changed), ``view_changed(t0, t1)``, ``show_raw_changed()``, ``overview_changed()``.
     """
@@ -82,6 +83,7 @@ class Workbench:
         self.scale = "sigma"
         self.scope = "all"
         self.show_raw = False
+        self.truth_hidden = False
         self.view = (0.0, 1.0)
 
     # ---- loading ------------------------------------------------------------------
@@ -136,6 +138,16 @@ class Workbench:
     def set_truth(self, truth: Truth) -> None:
         self.analysis.truth = truth
         self.truth_changed.emit()
+
+    @property
+    def shown_truth(self) -> Truth | None:
+        """The ground truth the views may show: None while it is hidden (the newcomer guesses first)."""
+        return None if self.truth_hidden else self.analysis.truth
+
+    def set_truth_hidden(self, hidden: bool) -> None:
+        if bool(hidden) != self.truth_hidden:
+            self.truth_hidden = bool(hidden)
+            self.truth_changed.emit()
 
     # ---- selection ----------------------------------------------------------------
     def show_group(self, index: int) -> None:

@@ -102,6 +102,7 @@ class SessionFlow(QObject):
         self._last_autosave = -float("inf")
         self._pending_open = False
         self._incoming_path: Path | None = None
+        self.check_content = True       # hash an opened session's recording whole (off for screenshots)
         self.ask = self._ask
         self.pick_file = self._pick_file
         self.timer = QTimer(self, interval=AUTOSAVE_CHECK_MS)
@@ -357,7 +358,7 @@ class SessionFlow(QObject):
                 else "its journal does not replay to these units, so earlier steps cannot be undone")
         self.window.statusBar().showMessage(f"Opened {Path(file).name}: {len(result.sorting.units)} units; "
                                             f"{undo}.", 10000)
-        if result.recording.content_hash:
+        if result.recording.content_hash and self.check_content:
             self.window.runner.submit("session_content", "Checking the recording's content", _content_job, result,
                                       on_done=lambda r: self._content_checked(r, result))
 

@@ -13,11 +13,12 @@ from PySide6.QtCore import QObject, Signal
 from PySide6.QtGui import QUndoStack
 
 from rigside.core.errors import RigsideError
-from rigside.core.params import Params, metric_settings
+from rigside.core.params import metric_settings
 from rigside.core.quality.unit_table import unit_metrics_for_events
 from rigside.core.quality.unit_table_io import DEFAULT_LIMITS, flag_units
 from rigside.core.signal.features import Features
 from rigside.core.signal.pipeline import thresholds_sigma
+from rigside.core.units.event_rows import MISSING, Detection, detection_at, session_rows
 from rigside.core.units.first_pass import first_pass
 from rigside.core.units.history import UndoStack
 from rigside.core.units.operations import (
@@ -69,7 +70,8 @@ class SortingController(QObject):
     Qt signals: ``replacing()`` just before the held session is let go, ``sorting_replaced()``
     (a new sorting, or none), ``units_changed(change)``
     after every step, undo or redo (a :class:`rigside.core.units.sorting.Change`), ``metrics_changed()``,
-    ``selection_changed()`` (units), ``events_selected()`` (events chosen by an outline).
+    ``selection_changed()`` (units), ``events_selected()`` (events chosen by an outline), ``rows_changed()``
+    (the session's events were mapped again onto the workbench's event table: ``rows``).
     """
 
     replacing = Signal()
@@ -78,6 +80,7 @@ class SortingController(QObject):
     metrics_changed = Signal()
     selection_changed = Signal()
     events_selected = Signal()
+    rows_changed = Signal()
 
     def __init__(self, window):
         super().__init__(window)
@@ -92,6 +95,9 @@ class SortingController(QObject):
         self.selection: list[int] = []
         self.selected_events = np.zeros(0, dtype=np.int64)
         self._stale: dict[int, int] = {}   # unit -> sorting revision when its numbers went stale
+        self.rows: np.ndarray | None = None
+        """Row of the workbench's event table of each session event (see :func:`session_rows`), or None."""
+        self.bench.events_changed.connect(self._update_rows)
 
     # ---- reading ----------------------------------------------------------------------------
     @property
@@ -109,23 +115,27 @@ class SortingController(QObject):
         except ValueError:
             return None
 
-    def selected_rows_in(self, events) -> dict[int, np.ndarray]:
-        """Rows of another event table (e.g. the workbench's, stored down to its look-up floor)
-        holding each selected unit's events, matched by sample and channel; for views that
-        colour the selected units' events."""
-        if self.sorting is None or events is None:
+    @property
+    def holds_rows(self) -> bool:
+        """True when the workbench's event table holds every event of the session (``rows`` complete)."""
+        return self.rows is not None and bool(np.all(self.rows != MISSING))
+
+    def selected_rows(self) -> dict[int, np.ndarray]:
+        """Rows of the workbench's event table holding each selected unit's events (sorted; events the
+        table does not hold are left out), for views that colour the selected units' events."""
+        if self.sorting is None or self.rows is None:
             return {}
-        n_ch = max(int(events.channel.max(initial=0)), int(self.events.channel.max(initial=0))) + 1
-        keys = events.sample.astype(np.int64) * n_ch + events.channel
-        order = np.argsort(keys, kind="stable")
         out = {}
         for u in self.selection:
-            idx = self.sorting.events_of(u)
-            mine = self.events.sample[idx].astype(np.int64) * n_ch + self.events.channel[idx]
-            pos = np.minimum(np.searchsorted(keys, mine, sorter=order), len(keys) - 1)
-            found = order[pos][keys[order[pos]] == mine] if len(keys) else np.zeros(0, dtype=np.int64)
-            out[u] = np.sort(found)
+            r = self.rows[self.sorting.events_of(u)]
+            out[u] = np.sort(r[r != MISSING])
         return out
+
+    def _update_rows(self) -> None:
+        """Map the session's events onto the workbench's table (once per session and table)."""
+        table = self.bench.events
+        self.rows = None if self.session is None or table is None else session_rows(self.session, table)
+        self.rows_changed.emit()
 
     def group_name(self, group: int) -> str:
         names = self.session.recording.description.get("group_names") if self.session else None
@@ -178,13 +188,14 @@ class SortingController(QObject):
             self.undo_stack.setClean()
             self._stale = {u: session.sorting.revision for u in session.sorting.unit_ids()}
             self._refresh_metrics()
+        self._update_rows()
         self.sorting_replaced.emit()
         self.selection_changed.emit()
         self.events_selected.emit()
 
-    def current_detection(self):
-        """Events at the workbench's threshold (artefacts kept, they go to no unit), their
-        features and the parameters, or :class:`RigsideError` saying what is missing."""
+    def current_detection(self) -> Detection:
+        """Events at the workbench's threshold (:func:`rigside.core.units.event_rows.detection_at`), or
+        :class:`RigsideError` saying what is missing."""
         b = self.bench
         if b.recording is None or b.events is None:
             raise RigsideError("clustering needs detected events, got none (open a recording and wait "
@@ -193,42 +204,27 @@ class SortingController(QObject):
         if f is None or len(f.values) != len(b.events):
             raise RigsideError("clustering needs the events' features, got none yet (wait until they "
                                "are computed)")
-        thr = np.asarray(b.thresholds_sigma, dtype=np.float64)
-        params = Params.from_dict(b.analysis.params.to_dict())
-        if np.allclose(thr, thr[0]):
-            params.detect.threshold_sigma, params.detect.threshold_uv = float(thr[0]), None
-        else:
-            uv = thr * b.events.sigma_uv
-            live = np.isfinite(uv) & (b.events.sigma_uv > 0)
-            if not live.any() or not np.allclose(uv[live], uv[live][0]):
-                raise RigsideError("clustering needs one threshold for every channel (in σ or µV), got "
-                                   "thresholds set per channel")
-            params.detect.threshold_uv = float(uv[live][0])
-        keep = b.events.mask(threshold_sigma=thresholds_sigma(params, b.events.sigma_uv),
-                             include_artefacts=True)
-        if not keep.any():
-            raise RigsideError("clustering needs events at the current threshold, got none")
-        return b.events.subset(keep), Features(f.values[keep], list(f.names)), params
+        return detection_at(b.events, f, b.analysis.params, b.thresholds_sigma)
 
-    def same_events(self, events) -> bool:
-        mine = self.events
-        return (mine is not None and len(mine) == len(events) and np.array_equal(mine.sample, events.sample)
-                and np.array_equal(mine.channel, events.channel))
+    def holds_detection(self, detection: Detection) -> bool:
+        """True when the session's events are exactly these rows of the workbench's table."""
+        return self.rows is not None and np.array_equal(self.rows, detection.rows)
 
     def cluster(self, k: int | None = None, groups: list[int] | None = None) -> bool:
         """Cluster the current detection: a new sorting, or one undoable step when the
         sorting already holds exactly these events."""
         try:
-            events, features, params = self.current_detection()
+            detection = self.current_detection()
+            params = detection.params
             params.cluster.k = k
             params.cluster.validate()
         except RigsideError as exc:
             self.window.show_error("Cannot cluster", str(exc))
             return False
-        if self.same_events(events):
+        if self.holds_detection(detection):
             return self.run_step(ClusterGroups(params.cluster, groups))
-        recording = self.bench.recording
-        self.runner.submit("sorting", "Clustering", _first_pass_job, events, features, params.cluster,
+        recording, events = self.bench.recording, detection.events
+        self.runner.submit("sorting", "Clustering", _first_pass_job, events, detection.features, params.cluster,
                            on_done=lambda s: self._new_sorting(recording, params, events, s))
         return True
 

@@ -70,11 +70,10 @@ def install_units(window) -> SortingController:
 
     def colour_selected_events(*_: object) -> None:
         """Selected units' events in one colour each in the workbench's own views too."""
-        rows = ctl.selected_rows_in(bench.events)
-        sets = [(r, ctl.unit_colour(u)) for u, r in rows.items()]
+        sets = [(r, ctl.unit_colour(u)) for u, r in ctl.selected_rows().items()]
         for name in ("features", "traces"):
             window.panels[name].highlight(sets)
-    for signal in (ctl.selection_changed, ctl.units_changed, ctl.sorting_replaced):
+    for signal in (ctl.selection_changed, ctl.units_changed, ctl.sorting_replaced, ctl.rows_changed):
         signal.connect(colour_selected_events)
     _build_menus(window, ctl, unit_list, plane)
     return ctl
@@ -177,8 +176,7 @@ def _cluster(win, ctl: SortingController) -> None:
     """First pass on the detection: ask for the count and scope when a person is at the window."""
     can_limit = False
     try:
-        events, _, _ = ctl.current_detection()
-        can_limit = ctl.same_events(events)
+        can_limit = ctl.holds_detection(ctl.current_detection())
     except RigsideError:  # ctl.cluster below shows the message
         pass
     if win.interactive:

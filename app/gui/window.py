@@ -39,6 +39,7 @@ from rigside.gui.panels.rate_strip import RateStripPanel
 from rigside.gui.panels.threshold import ThresholdPanel
 from rigside.gui.panels.traces import TracePanel
 from rigside.gui.panels.waveforms import WaveformPanel
+from rigside.gui.practice_frame import install_practice
 from rigside.gui.settings_store import settings
 from rigside.gui.task_status import TaskStatus
 from rigside.gui.units_frame import install_units
@@ -46,8 +47,7 @@ from rigside.gui.window_actions import build_actions
 from rigside.gui.workers import Runner
 from rigside.sample_data import demo_path
 
-LAYOUT_VERSION = 1
-MAX_RECENT = 8
+LAYOUT_VERSION, MAX_RECENT = 1, 8
 MIN_TRACE_SHARE = 0.4
 """A restored layout must leave the traces at least this share of the window's height."""
 ANALYSIS_LABEL = "Detecting events"
@@ -55,7 +55,7 @@ log = logging.getLogger("rigside")
 
 OPEN_FILTER = "Recordings and sessions (*.bin *.dat *.raw *.h5 *.hdf5);;All files (*)"
 
-EXTENSIONS: tuple[Callable[["MainWindow"], object], ...] = (install_units, install_audit, install_export)
+EXTENSIONS: tuple[Callable[..., object], ...] = (install_units, install_audit, install_export, install_practice)
 """Installers run on every new window: each adds its panels, menus and actions."""
 
 
@@ -94,7 +94,6 @@ class MainWindow(QMainWindow):
         self.setCorner(Qt.Corner.BottomRightCorner, Qt.DockWidgetArea.RightDockWidgetArea)
         self.setCorner(Qt.Corner.TopRightCorner, Qt.DockWidgetArea.RightDockWidgetArea)
         self.setDockNestingEnabled(True)
-
         threshold = self.add_panel(ThresholdPanel(self.bench, self.runner), Qt.DockWidgetArea.RightDockWidgetArea)
         curve = self.add_panel(CountCurvePanel(self.bench, self.runner), Qt.DockWidgetArea.RightDockWidgetArea)
         self.splitDockWidget(threshold, curve, Qt.Orientation.Vertical)
@@ -143,7 +142,8 @@ class MainWindow(QMainWindow):
                        "<p>Open a recording to see its filtered traces, drag the detection threshold and "
                        "watch counts, rates and markers follow.</p>"
                        "<p>The demo is a synthetic 16-channel recording with known units: it shows hits, "
-                       "misses and false alarms as the threshold moves.</p>")
+                       "misses and false alarms as the threshold moves (File > New practice recording makes "
+                       "others).</p>")
         title.setWordWrap(True)
         title.setAlignment(Qt.AlignmentFlag.AlignCenter)
         open_button = QPushButton("Open a recording or session…")

@@ -64,7 +64,7 @@ def _summary(result: AuditResult) -> str:
         for c in SUMMARY:
             v = t[c][i]
             if c == "unit":
-                cells.append(f'<td><a href="#u{int(u)}">{int(u)}</a></td>')
+                cells.append(f'<td><a href="#u{int(result.imported_ids[i])}">{escape(str(u))}</a></td>')
             elif c == "closest_fresh_unit":
                 cells.append(f"<td>{'' if _best(result, i) is None else int(v)}</td>")
             else:
@@ -84,7 +84,8 @@ def _matrix(result: AuditResult) -> str:
         return "<p>No fresh unit overlaps (Jaccard) at least 0.05 with any imported unit.</p>"
     note = "" if len(keep) == a.shape[1] else (f"<p>Showing the {len(keep)} of {a.shape[1]} fresh units "
                                                f"overlapping (Jaccard) at least 0.05 with some imported unit.</p>")
-    return note + overlap_figure(a[:, keep], result.imported_ids, result.fresh_ids[keep])
+    return note + overlap_figure(a[:, keep], [result.unit_name(u) for u in result.imported_ids],
+                                 result.fresh_ids[keep])
 
 
 def _waveforms(imp: WaveformSummary, fresh: WaveformSummary | None) -> str:
@@ -127,7 +128,7 @@ def _unit_section(result: AuditResult, i: int) -> str:
     plots += _isi(result.imported_train(unit)[0], t_fresh, result.fresh.params.metrics.refractory_ms)
     plots += _amplitudes(result, unit, best)
     match = f"closest fresh unit {best}" if best is not None else "no fresh unit shares its spikes"
-    return (f'<div class="unit" id="u{unit}"><h3>Imported unit {unit} ({match})</h3>'
+    return (f'<div class="unit" id="u{unit}"><h3>Imported unit {escape(result.unit_name(unit))} ({match})</h3>'
             f'<p>{escape(str(row["notes"]))}</p><div>{plots}</div><table>{facts}</table></div>')
 
 

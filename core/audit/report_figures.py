@@ -47,8 +47,9 @@ def _small_text(ax) -> None:
     ax.title.set_size(9)
 
 
-def overlap_figure(matrix: np.ndarray, row_ids: np.ndarray, col_ids: np.ndarray) -> str:
-    """Overlap (Jaccard index, 0 to 1) of imported units (rows) with fresh units (columns), with a colour bar."""
+def overlap_figure(matrix: np.ndarray, row_ids, col_ids: np.ndarray) -> str:
+    """Overlap (Jaccard index, 0 to 1) of imported units (rows: ids or names) with fresh units (columns),
+    with a colour bar."""
     m = np.asarray(matrix, float)
     fig = _figure(min(12.0, 2.4 + 0.16 * m.shape[1]), min(12.0, 1.6 + 0.16 * m.shape[0]))
     ax = fig.add_subplot()
@@ -57,7 +58,7 @@ def overlap_figure(matrix: np.ndarray, row_ids: np.ndarray, col_ids: np.ndarray)
     ax.set_facecolor("#e8e8e8")
     ax.invert_yaxis()
     ax.set_xticks(np.arange(m.shape[1]) + 0.5, [str(int(u)) for u in col_ids], rotation=90)
-    ax.set_yticks(np.arange(m.shape[0]) + 0.5, [str(int(u)) for u in row_ids])
+    ax.set_yticks(np.arange(m.shape[0]) + 0.5, [str(u) for u in row_ids])
     ax.set_xlabel("fresh unit")
     ax.set_ylabel("imported unit")
     ax.set_title("grey: no shared spikes")

@@ -135,8 +135,9 @@ class AuditResult:
     matches, overlap
         Shared spikes and overlap (Jaccard), imported x fresh.
     table
-        One row per imported unit (ascending id): the audit columns and the quality numbers
-        (see :data:`rigside.core.audit.table.AUDIT_COLUMNS`).
+        One row per imported unit (ascending id, natural order of names): the audit columns and
+        the quality numbers (see :data:`rigside.core.audit.table.AUDIT_COLUMNS`); its ``unit``
+        column holds the ids as the file gives them (names, for named units).
     fresh_table
         Quality numbers of the fresh units that are some imported unit's closest fresh unit.
     placements
@@ -159,6 +160,10 @@ class AuditResult:
     placements: dict[int, Placement]
     fresh_waveforms: dict[int, WaveformSummary]
     imported_amplitude_uv: np.ndarray
+
+    def unit_name(self, unit: int) -> str:
+        """An imported unit as the file gives it (its name, or its id as text)."""
+        return self.spikes.unit_name(unit)
 
     def _index(self, unit: int) -> int:
         i = int(np.searchsorted(self.imported_ids, unit))
@@ -277,7 +282,8 @@ def run_audit(recording: Recording, spikes: SpikeTrains, fresh: FreshUnits,
         fresh_waves[int(u)] = summarise(snips, chans, snippet_times_ms(params.snippets, recording.rate_hz))
     report(progress, 1.0, "audit done")
     table = audit_rows(imp_ids, fresh_ids, matches, overlap, best, n_imp, n_fresh, support, placements,
-                       quality, {int(u): sorting.unit(int(u)).label for u in fresh_ids}, settings)
+                       quality, {int(u): sorting.unit(int(u)).label for u in fresh_ids}, settings,
+                       spikes.shown_ids(imp_ids))
     return AuditResult(spikes, fresh, settings, imp_ids, fresh_ids, matches, overlap, table, fresh_table,
                        placements, fresh_waves, amplitude)
 

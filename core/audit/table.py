@@ -20,7 +20,7 @@ from rigside.core.quality.unit_table_io import quality_flag_text, write_describe
 from rigside.core.units.sorting import NO_UNIT
 
 AUDIT_COLUMNS: dict[str, str] = {
-    "unit": "imported unit id",
+    "unit": "imported unit id (its name when the file names its units)",
     "n_spikes": "imported spikes of the unit [count]",
     "peak_offset_ms": "time of the mean waveform's extremum on the main channel relative to the "
                       "imported times [ms]",
@@ -56,11 +56,13 @@ TEXT_COLUMNS = frozenset({"closest_fresh_label", "miss_estimate_reason", "spread
 
 
 def audit_rows(imp_ids, fresh_ids, matches, overlap, best, n_imp, n_fresh, support, placements,
-               quality: dict[str, np.ndarray], labels: dict[int, str], settings) -> dict[str, np.ndarray]:
+               quality: dict[str, np.ndarray], labels: dict[int, str], settings,
+               shown_ids: np.ndarray | None = None) -> dict[str, np.ndarray]:
     """Assemble the audit table (see :data:`AUDIT_COLUMNS`) from the computed pieces.
 
     ``best`` holds, per imported unit, the column index of its closest fresh unit in ``fresh_ids``
-    (-1: none); ``quality`` is the imported units' quality table in the same row order.
+    (-1: none); ``quality`` is the imported units' quality table in the same row order;
+    ``shown_ids`` are the imported units as the file gives them (names; default ``imp_ids``).
     """
     m = len(imp_ids)
     has = best >= 0
@@ -69,7 +71,7 @@ def audit_rows(imp_ids, fresh_ids, matches, overlap, best, n_imp, n_fresh, suppo
     shared = np.where(has, matches[rows, col] if matches.size else 0, 0)
     best_n = np.where(has, n_fresh[col] if len(n_fresh) else 0, 0)
     t: dict[str, np.ndarray] = {
-        "unit": np.asarray(imp_ids, dtype=np.int64),
+        "unit": np.asarray(imp_ids, dtype=np.int64) if shown_ids is None else shown_ids,
         "n_spikes": np.asarray(n_imp, dtype=np.int64),
         "peak_offset_ms": np.array([placements[int(u)].peak_offset_ms for u in imp_ids]),
         "matched_fraction": np.asarray(support, dtype=np.float64),
@@ -89,11 +91,11 @@ def audit_rows(imp_ids, fresh_ids, matches, overlap, best, n_imp, n_fresh, suppo
     is_best_of: dict[int, list[int]] = {}
     for i in range(m):
         if has[i]:
-            is_best_of.setdefault(int(best[i]), []).append(int(imp_ids[i]))
+            is_best_of.setdefault(int(best[i]), []).append(i)
     for i in range(m):
         big = [j for j in np.argsort(-shares[i], kind="stable") if shares[i, j] >= settings.spread_share]
         spread.append("; ".join(f"{int(fresh_ids[j])} ({100 * shares[i, j]:.0f}%)" for j in big))
-        notes.append(_notes(i, big, has, best, t, is_best_of, imp_ids, fresh_ids, settings))
+        notes.append(_notes(i, big, has, best, t, is_best_of, t["unit"], fresh_ids, settings))
     t["spread_over"] = np.array(spread, dtype=object)
     t["notes"] = np.array(notes, dtype=object)
     t["quality_flags"] = np.array(quality_flag_text(quality), dtype=object)
@@ -109,7 +111,7 @@ def _notes(i, big, has, best, t, is_best_of, imp_ids, fresh_ids, settings) -> st
     else:
         if t["overlap_jaccard"][i] < settings.weak_overlap:
             out.append(f"weak overlap with the closest fresh unit (Jaccard {t['overlap_jaccard'][i]:.2f})")
-        others = [u for u in is_best_of[int(best[i])] if u != int(imp_ids[i])]
+        others = [imp_ids[k] for k in is_best_of[int(best[i])] if k != i]
         if others:
             out.append(f"fresh unit {int(fresh_ids[best[i]])} is also the closest fresh unit of imported unit(s) "
                        f"{', '.join(map(str, others))}: possibly split")
@@ -124,7 +126,7 @@ def _notes(i, big, has, best, t, is_best_of, imp_ids, fresh_ids, settings) -> st
 
 
 def _cell(column: str, value) -> str:
-    if column in TEXT_COLUMNS or column.endswith("_reason"):
+    if column in TEXT_COLUMNS or column.endswith("_reason") or isinstance(value, str):
         return str(value)
     if column == "closest_fresh_unit":
         return "" if int(value) == NO_UNIT else str(int(value))
@@ -154,4 +156,6 @@ def write_audit_csv(result, path: str | Path, caution: str) -> Path:
               f"imported: {result.spikes.source}; compared with: {result.fresh.source}",
               caution, QUALITY_CAUTION, f"settings: {settings}", censored_note(mp)]
     text = TEXT_COLUMNS | {c for c in ALL_COLUMNS if c.endswith("_reason")}
+    if result.spikes.names:
+        text = text | {"unit"}                     # names as given, guarded like every text cell
     return write_described_csv(path, header, ALL_COLUMNS, list(ALL_COLUMNS), t, _cell, text)

@@ -7,6 +7,7 @@ from pathlib import Path
 import h5py
 
 from rigside.core.errors import RecordingError
+from rigside.core.io.nwb_series import is_nwb, series_paths
 
 
 def two_d_datasets(f: h5py.File) -> list[str]:
@@ -21,10 +22,11 @@ def two_d_datasets(f: h5py.File) -> list[str]:
 
 
 def recording_candidates(path: str | Path) -> list[str]:
-    """The 2-D datasets of the HDF5 file ``path`` that could hold the recording ([] if not HDF5)."""
+    """The 2-D datasets of the HDF5 file ``path`` that could hold the recording ([] if not HDF5);
+    for an NWB file, its ``ElectricalSeries``."""
     try:
         with h5py.File(path, "r") as f:
-            return two_d_datasets(f)
+            return series_paths(f) if is_nwb(f) else two_d_datasets(f)
     except (OSError, RuntimeError, ValueError):
         return []
 

@@ -1,5 +1,5 @@
-"""How a raw binary file is laid out (channels, rate, sample type, scaling, header, groups),
-with the checks every layout passes before a file is opened."""
+"""How a raw binary file is laid out (channels, rate, sample type, scaling, header, groups,
+and optionally where each channel sits), with the checks every layout passes before a file is opened."""
 
 from __future__ import annotations
 
@@ -24,6 +24,11 @@ class Layout:
     offset_counts: float = 0.0
     groups: list[list[int]] | None = None
     group_names: list[str] | None = None
+    x_um: list[float] | None = None
+    """Channel positions (micrometres, one per channel; with ``y_um``), when the file says them."""
+    y_um: list[float] | None = None
+    shank: list[int] | None = None
+    """Shank of each channel (positions are distinct within a shank); None: one shank."""
 
     @property
     def total_offset_uv(self) -> float:
@@ -47,6 +52,8 @@ class Layout:
             raise RecordingError(f"offset in stored counts must be a finite number, got {self.offset_counts!r}")
         if self.groups is not None:
             check_groups(self.groups, self.channels)
+        if self.x_um is not None or self.y_um is not None or self.shank is not None:
+            check_positions(self.x_um, self.y_um, self.shank, self.channels)
 
 
 def is_integer(v) -> bool:
@@ -75,6 +82,31 @@ def check_groups(groups: list[list[int]], n_channels: int) -> None:
             if c in seen:
                 raise RecordingError(f"channel groups must not overlap, got channel {c} twice")
             seen.add(int(c))
+
+
+def check_positions(x_um, y_um, shank, n_channels: int) -> None:
+    """Positions must come as ``x_um`` and ``y_um`` (and optionally ``shank``) with one finite
+    value per channel, and no two channels may sit at one position on one shank."""
+    if x_um is None or y_um is None:
+        raise RecordingError("channel positions must give both x_um and y_um, got only one of them")
+    for name, values in (("x_um", x_um), ("y_um", y_um), ("shank", shank)):
+        if values is not None and len(values) != n_channels:
+            raise RecordingError(f"channel positions {name} must hold one value per channel ({n_channels}), "
+                                 f"got {len(values)}")
+    for name, values in (("x_um", x_um), ("y_um", y_um)):
+        for c, v in enumerate(values):
+            if not (is_number(v) and math.isfinite(v)):
+                raise RecordingError(f"channel position {name} must be a finite number, got {v!r} for channel {c}")
+    shanks = shank if shank is not None else [0] * n_channels
+    if not all(is_integer(s) for s in shanks):
+        raise RecordingError(f"shank numbers must be integers, got {next(s for s in shanks if not is_integer(s))!r}")
+    seen: dict[tuple, int] = {}
+    for c, key in enumerate(zip(shanks, x_um, y_um)):
+        key = (int(key[0]), float(key[1]), float(key[2]))
+        if key in seen:
+            raise RecordingError(f"channels must sit at distinct positions on a shank, got channels {seen[key]} "
+                                 f"and {c} both at x = {key[1]:g} um, y = {key[2]:g} um on shank {key[0]}")
+        seen[key] = c
 
 
 def groups_of_size(n_channels: int, size: int) -> list[list[int]]:

@@ -19,14 +19,9 @@ import h5py
 import numpy as np
 
 from rigside.core.errors import SpikeFileError
-from rigside.core.io.spike_import import TIME_COLUMNS, SpikeTrains, checked_trains, pick_time_column, to_seconds
-
-MAX_EXPANSION = 64
-"""Declared array bytes may exceed the file size by at most this factor (plus 64 MiB)."""
-
-
-def _budget(path: Path) -> int:
-    return MAX_EXPANSION * os.path.getsize(path) + (64 << 20)
+from rigside.core.io import spike_import as si
+from rigside.core.io.spike_import import NamedIds, SpikeTrains, checked_trains, declared_budget, pick_time_column
+from rigside.core.io.spike_import_nwb import read_nwb
 
 
 # ---- CSV ------------------------------------------------------------------------------
@@ -115,26 +110,63 @@ def _csv_header(blocks, name: str) -> tuple[list[str], int, str]:
                          f"time_s, time_ms or sample), got an empty file")
 
 
-def _parse_block(text: str, order: list[int], dtype: list, cols: dict[str, int], done: int, name: str) -> np.ndarray:
-    """The chosen columns of one block (an empty array for a block without data rows)."""
+class _NamedUnits(Exception):
+    """A unit cell holds a name, not an integer: the file is read again keeping the names."""
+
+
+def _names_a_unit(text: str, column: int) -> bool:
+    """True when some data line of ``text`` has a unit cell that is text, not a number."""
+    for line in text.splitlines():
+        line = line.strip()
+        if line and not line.startswith("#"):
+            cells = _cells(line)
+            if column < len(cells) and cells[column] and not si.is_number_text(cells[column]):
+                return True
+    return False
+
+
+def _loadtxt(text: str, usecols, dtype) -> np.ndarray:
     lines = io.StringIO(text, newline=None) if _plain_breaks(text) else io.StringIO("\n".join(text.splitlines()))
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", UserWarning)     # a block of comments only is empty
+        # older numpy (2.0, the floor) only warns and truncates when an integer column holds "1.5"
+        warnings.simplefilter("error", DeprecationWarning)
+        return np.loadtxt(lines, delimiter=",", usecols=usecols, dtype=dtype, ndmin=1, comments="#", quotechar='"')
+
+
+def _parse_block(text: str, cols: dict[str, int], tcol: str, named: bool, done: int,
+                 name: str) -> tuple[np.ndarray, np.ndarray]:
+    """Unit and time columns of one block (empty arrays for a block without data rows); unit
+    cells as text when ``named``, else as integers (raising :class:`_NamedUnits` at a name)."""
+    tkind = "i8" if tcol == "sample" else "f8"
     try:
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore", UserWarning)     # a block of comments only is empty
-            # older numpy (2.0, the floor) only warns and truncates when an integer column holds "1.5"
-            warnings.simplefilter("error", DeprecationWarning)
-            return np.loadtxt(lines, delimiter=",", usecols=order, dtype=dtype, ndmin=1, comments="#",
-                              quotechar='"')
+        if named:
+            return _loadtxt(text, [cols["unit"]], str), _loadtxt(text, [cols[tcol]], tkind)
+        dtype = [("unit", "i8"), ("time", tkind)]
+        order = sorted(cols.values())
+        data = _loadtxt(text, order, dtype if order == list(cols.values()) else dtype[::-1])
+        return data["unit"], data["time"]
     except ValueError as exc:
-        where = _first_bad_line(text.splitlines(), cols, done) or str(exc)
+        if not named and _names_a_unit(text, cols["unit"]):
+            raise _NamedUnits from None
+        where = _first_bad_line(text.splitlines(), cols if not named else {tcol: cols[tcol]}, done) or str(exc)
         raise SpikeFileError(f"{name} must hold a unit and a time in every row, got {where}") from None
 
 
-def read_csv(path: Path, rate_hz: float | None) -> tuple[np.ndarray, np.ndarray]:
+def read_csv(path: Path, rate_hz: float | None) -> tuple[np.ndarray, np.ndarray | NamedIds]:
     """CSV with a header row naming ``unit`` and one time column; ``#`` lines are comments.
 
     Parsed block by block (:data:`CSV_BLOCK_BYTES`), keeping only the two columns as arrays.
+    Unit cells are integers, or names (a file holding one name is read again keeping every
+    unit cell as its name).
     """
+    try:
+        return _read_csv(path, rate_hz, named=False)
+    except _NamedUnits:
+        return _read_csv(path, rate_hz, named=True)
+
+
+def _read_csv(path: Path, rate_hz: float | None, named: bool) -> tuple[np.ndarray, np.ndarray | NamedIds]:
     blocks = _text_blocks(path)
     names, done, text = _csv_header(blocks, path.name)
     if "unit" not in names:
@@ -142,16 +174,17 @@ def read_csv(path: Path, rate_hz: float | None) -> tuple[np.ndarray, np.ndarray]
                              f"{', '.join(names)[:120]!r}")
     tcol = pick_time_column(names, path.name)
     cols = {"unit": names.index("unit"), tcol: names.index(tcol)}
-    dtype = [("unit", "i8"), ("time", "i8" if tcol == "sample" else "f8")]
-    order = sorted(cols.values())
-    if order != list(cols.values()):
-        dtype = dtype[::-1]
+    codes: dict[str, int] = {}
     units, times = [], []
     while True:
-        data = _parse_block(text, order, dtype, cols, done, path.name)
-        units.append(data["unit"])
-        times.append(data["time"])
-        del data, text
+        unit, time = _parse_block(text, cols, tcol, named, done, path.name)
+        if named:
+            distinct, inverse = np.unique(np.char.strip(unit), return_inverse=True)
+            lut = np.array([codes.setdefault(str(n), len(codes)) for n in distinct], dtype=np.int64)
+            unit = lut[inverse] if len(unit) else np.zeros(0, dtype=np.int64)
+        units.append(unit)
+        times.append(time)
+        del unit, time, text
         try:
             done, text = next(blocks)
         except StopIteration:
@@ -162,7 +195,7 @@ def read_csv(path: Path, rate_hz: float | None) -> tuple[np.ndarray, np.ndarray]
     del units
     time = np.concatenate(times)
     del times
-    return to_seconds(tcol, time, rate_hz, path.name), unit
+    return si.to_seconds(tcol, time, rate_hz, path.name), NamedIds(unit, tuple(codes)) if named else unit
 
 
 # ---- NumPy ----------------------------------------------------------------------------
@@ -207,7 +240,7 @@ def read_npy(path: Path, rate_hz: float | None) -> tuple[np.ndarray, np.ndarray]
 
 def read_npz(path: Path, rate_hz: float | None) -> tuple[np.ndarray, np.ndarray]:
     """An .npz archive of 1-D arrays ``unit`` and one time array (and optional ``rate_hz``)."""
-    budget = _budget(path)
+    budget = declared_budget(path)
     try:
         with zipfile.ZipFile(path) as zf:
             names = {n[:-4]: n for n in zf.namelist() if n.endswith(".npy")}
@@ -250,7 +283,7 @@ def _columns(data: dict, info: dict, rate_hz: float | None, source: str) -> tupl
     for key in ("unit", tcol):
         if np.asarray(data[key]).ndim != 1:
             raise SpikeFileError(f"{key} of {source} must be a 1-D array, got shape {np.shape(data[key])}")
-    return to_seconds(tcol, data[tcol], rate_hz, source), np.asarray(data["unit"])
+    return si.to_seconds(tcol, data[tcol], rate_hz, source), np.asarray(data["unit"])
 
 
 # ---- HDF5 (our layout) ----------------------------------------------------------------
@@ -283,13 +316,13 @@ def read_h5(path: Path, rate_hz: float | None, group: str | None = None) -> tupl
                 if link is None or not isinstance(link, h5py.HardLink) or not isinstance(f[group], h5py.Group):
                     raise SpikeFileError(f"HDF5 group of {path.name} must exist in the file, got {group!r}")
             g = f[group or "/"]
-            names = [n for n in g if n in TIME_COLUMNS or n in ("unit", "unit_ids")]
+            names = [n for n in g if n in si.TIME_COLUMNS or n in ("unit", "unit_ids")]
             if "unit" not in names:
                 raise SpikeFileError(f"{source} must hold a dataset named unit, got {', '.join(sorted(g))[:120]}")
             tcol = pick_time_column(names, source)
             sets = {n: _h5_dataset(g, n, source) for n in names}
             declared = sum(ds.size * ds.dtype.itemsize for ds in sets.values())
-            if declared > _budget(path):
+            if declared > declared_budget(path):
                 raise SpikeFileError(f"{source} must declare datasets that fit the file "
                                      f"({os.path.getsize(path)} bytes), got {declared} bytes declared")
             if "rate_hz" in g.attrs:
@@ -304,51 +337,8 @@ def read_h5(path: Path, rate_hz: float | None, group: str | None = None) -> tupl
         if len(unknown):
             raise SpikeFileError(f"units of {source} must be listed in unit_ids, got unknown units "
                                  f"{unknown[:10].tolist()}")
-        return to_seconds(tcol, data[tcol], rate_hz, source), units, known
-    return to_seconds(tcol, data[tcol], rate_hz, source), units
-
-
-# ---- NWB ------------------------------------------------------------------------------
-def read_nwb(path: Path, rate_hz: float | None = None) -> tuple[np.ndarray, ...]:
-    """The units table of an NWB file: ``spike_times`` (seconds) of every unit id."""
-    if not h5py.is_hdf5(path):
-        raise SpikeFileError(f"{path.name} must be an NWB (HDF5) file, got another type or a truncated file")
-    try:
-        import pynwb
-    except ImportError:
-        raise SpikeFileError("reading NWB files needs the pynwb package, got none installed "
-                             "(pip install pynwb)") from None
-    try:
-        with warnings.catch_warnings():
-            warnings.simplefilter("ignore")        # namespace-version notices of old files
-            with pynwb.NWBHDF5IO(str(path), "r") as nio:
-                nwb = nio.read()
-                table = nwb.units
-                if table is None or "spike_times" not in table.colnames:
-                    raise SpikeFileError(f"{path.name} must hold a units table with spike_times, got none")
-                col = table["spike_times"]
-                values, ends = col.target.data, col.data
-                for what, ds in (("spike_times", values), ("spike_times_index", ends)):
-                    arr_kind = np.dtype(ds.dtype).kind
-                    if arr_kind not in "iuf" or len(ds.shape) != 1:
-                        raise SpikeFileError(f"{path.name}: {what} must be a 1-D numeric column, got "
-                                             f"{ds.dtype} with shape {ds.shape}")
-                if values.shape[0] * 8 + ends.shape[0] * 8 > _budget(path):
-                    raise SpikeFileError(f"{path.name}: units table must fit the file size, got "
-                                         f"{values.shape[0]} spikes declared")
-                times = np.asarray(values[:], dtype=np.float64)
-                ends = np.asarray(ends[:], dtype=np.int64)
-                ids = np.asarray(table.id[:])
-    except SpikeFileError:
-        raise
-    except Exception as exc:   # pynwb/hdmf raise many types for broken files; report them all
-        raise SpikeFileError(f"{path.name} must be a readable NWB file, got {type(exc).__name__}: {exc}") from None
-    if len(ids) != len(ends) or (len(ends) and (np.any(np.diff(ends) < 0) or ends[0] < 0
-                                                or ends[-1] != len(times))):
-        raise SpikeFileError(f"{path.name}: the units table index must split the {len(times)} spike times "
-                             f"into {len(ids)} units, got inconsistent offsets")
-    counts = np.diff(np.concatenate([[0], ends]))
-    return times, np.repeat(ids, counts), ids
+        return si.to_seconds(tcol, data[tcol], rate_hz, source), units, known
+    return si.to_seconds(tcol, data[tcol], rate_hz, source), units
 
 
 def load_spikes(path: str | Path, rate_hz: float | None = None, group: str | None = None,

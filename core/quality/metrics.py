@@ -13,9 +13,9 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import Callable
 
 import numpy as np
-from scipy.optimize import brentq
 from scipy.special import log_ndtr, ndtr
 
 from rigside.core.errors import ParamError
@@ -242,13 +242,8 @@ def snr(amplitudes_uv: np.ndarray, sigma_uv: float) -> MetricValue:
 
     NaN with a reason when there are no amplitudes or the channel's sigma is 0.
     """
-    a = float_1d(amplitudes_uv, "amplitudes")
-    sigma = positive("channel noise sigma", sigma_uv, unit="uV", allow_zero=True)
-    if len(a) == 0:
-        return undefined("the unit has no events")
-    if sigma == 0:
-        return undefined("the channel's noise sigma is 0 (dead channel)")
-    return MetricValue(float(np.abs(a).mean() / sigma))
+    return _size_over_noise(amplitudes_uv, "amplitudes", lambda a: np.abs(a).mean(), "the unit has no events",
+                            sigma_uv, "channel noise sigma", "the channel's noise sigma is 0 (dead channel)")
 
 
 def snr_peak_to_peak(mean_waveform: np.ndarray, residual_sd: float) -> MetricValue:
@@ -258,13 +253,21 @@ def snr_peak_to_peak(mean_waveform: np.ndarray, residual_sd: float) -> MetricVal
     ``residual_sd`` is the SD of all samples of the unit's waveforms minus the mean waveform
     (same channel, same units). NaN with a reason when it is 0 or the waveform is empty.
     """
-    w = float_1d(mean_waveform, "mean waveform")
-    sd = positive("residual SD", residual_sd, unit="uV", allow_zero=True)
-    if len(w) == 0:
-        return undefined("the mean waveform is empty")
-    if sd == 0:
-        return undefined("the residual SD is 0")
-    return MetricValue(float((w.max() - w.min()) / (2 * sd)))
+    return _size_over_noise(mean_waveform, "mean waveform", lambda w: (w.max() - w.min()) / 2,
+                            "the mean waveform is empty", residual_sd, "residual SD", "the residual SD is 0")
+
+
+def _size_over_noise(values, name: str, size: Callable[[np.ndarray], float], why_empty: str, noise,
+                     noise_name: str, why_zero: str) -> MetricValue:
+    """``size(values) / noise`` (values checked as 1-D, noise as at least 0 uV), undefined with
+    ``why_empty`` when there are no values and with ``why_zero`` when the noise is 0."""
+    v = float_1d(values, name)
+    n = positive(noise_name, noise, unit="uV", allow_zero=True)
+    if len(v) == 0:
+        return undefined(why_empty)
+    if n == 0:
+        return undefined(why_zero)
+    return MetricValue(float(size(v) / n))
 
 
 @dataclass(frozen=True)
@@ -289,6 +292,20 @@ def _excess_ratio(a: float) -> float:
 
 _A_MAX = 8.0
 """Largest cut position fitted, in SD above the mean: a missed fraction of 1 - 6e-16."""
+
+
+def _cut_position(ratio: float, lo: float) -> float:
+    """The cut position ``a`` in ``[lo, _A_MAX]`` where :func:`_excess_ratio` (increasing in ``a``)
+    equals ``ratio``, by bisection to 1e-12 (as ``scipy.optimize.brentq`` would give it, without the
+    second of importing scipy.optimize into every window and command)."""
+    a, b = lo, _A_MAX
+    while b - a > 1e-12 + 1e-14 * abs(a):
+        mid = 0.5 * (a + b)
+        if _excess_ratio(mid) < ratio:
+            a = mid
+        else:
+            b = mid
+    return 0.5 * (a + b)
 
 
 def missed_fraction(amplitudes: np.ndarray, threshold: float, min_events: int = 20) -> MissedFraction:
@@ -336,7 +353,7 @@ def missed_fraction(amplitudes: np.ndarray, threshold: float, min_events: int = 
         return MissedFraction(math.nan, f"amplitudes spread too widely above the threshold for a "
                                         f"cut Gaussian (SD {math.sqrt(v):.4g} vs mean excess {m:.4g})")
     lo = -(2.0 / math.sqrt(ratio) + 10.0)
-    cut = brentq(lambda c: _excess_ratio(c) - ratio, lo, _A_MAX, xtol=1e-12, rtol=1e-14)
+    cut = _cut_position(ratio, lo)
     sd = m / (_mills(cut) - cut)
     mean = theta - cut * sd
     if mean <= 0:

@@ -1,4 +1,5 @@
-"""Detection over many recordings: one after another here, or as tasks on Dask.
+"""Detection over many recordings: one after another here, or as tasks on Dask (local processes
+or a running ``dask.distributed`` scheduler, see :mod:`rigside.core.runs.batch_dask`).
 
 Each recording gets ``<stem>.events.csv`` (or ``.h5``) and ``<stem>.summary.json`` in the
 output folder (recordings sharing a stem, such as ``day1/rec.bin`` and ``day2/rec.bin``, are named
@@ -9,35 +10,24 @@ processed is reported with its error and does not stop the others. ``batch.csv``
 from __future__ import annotations
 
 import csv
-import time
-from dataclasses import dataclass
 from pathlib import Path
 
-from rigside.core.errors import ParamError, RigsideError
-from rigside.core.io.atomic import atomic_write, check_not_input, protect_inputs, protected_inputs
+from rigside.core.errors import ParamError
+from rigside.core.io.atomic import (
+    atomic_write,
+    check_not_input,
+    protect_inputs,
+    protected_inputs,
+    safe_unlink,
+    stale_temporaries,
+)
 from rigside.core.params import Params
 from rigside.core.progress import CancelFn, ProgressFn, check, report
+from rigside.core.runs.batch_task import BatchOutcome, outputs_of, run_one
 
 ENGINES = ("local", "dask")
 """The engines (the heavy stages are imported inside the functions: naming the engines in a
 command's help loads no numerics)."""
-
-
-@dataclass
-class BatchOutcome:
-    """What happened to one recording."""
-
-    recording: str
-    status: str          # "done" or "failed"
-    events: int
-    duration_s: float
-    seconds: float
-    message: str = ""
-
-
-def outputs_of(stem: str, out_dir: str | Path, fmt: str) -> tuple[Path, Path]:
-    """The event file and summary written for one recording of output name ``stem``."""
-    return Path(out_dir) / f"{stem}.events.{fmt}", Path(out_dir) / f"{stem}.summary.json"
 
 
 def output_names(paths: list[str | Path]) -> list[str]:
@@ -64,33 +54,6 @@ def output_names(paths: list[str | Path]) -> list[str]:
 
 
 
-def run_one(path: str, out_dir: str, params: Params, layout: dict, fmt: str = "csv",
-            stem: str | None = None, inputs: tuple[str, ...] = ()) -> BatchOutcome:
-    """Detect on one recording and write its outputs (named ``stem``, default the file's stem);
-    errors become a "failed" outcome. ``inputs`` are protected from every write
-    (see :func:`rigside.core.io.atomic.protect_inputs`)."""
-    start = time.perf_counter()
-    stem = stem or Path(path).name.split(".")[0] or "recording"
-    try:
-        with protect_inputs(inputs):
-            return _detect_one(path, stem, out_dir, params, layout, fmt, start)
-    except (RigsideError, OSError) as exc:
-        return BatchOutcome(str(path), "failed", 0, 0.0, time.perf_counter() - start, str(exc))
-
-
-def _detect_one(path: str, stem: str, out_dir: str, params: Params, layout: dict, fmt: str,
-                start: float) -> BatchOutcome:
-    from rigside.core.io.recording import open_recording
-    from rigside.core.runs.detect import detect_to_files
-
-    rec = open_recording(path, **layout)
-    try:
-        done = detect_to_files(rec, params, *outputs_of(stem, out_dir, fmt))
-        return BatchOutcome(str(path), "done", len(done.events), rec.duration_s, time.perf_counter() - start)
-    finally:
-        rec.close()
-
-
 def _protected(paths: list[str], stems: list[str], out_dir: Path, fmt: str) -> tuple[str, ...]:
     """Every input of the batch (recordings, their side files, the command's own inputs),
     after checking that no planned output is one of them."""
@@ -105,9 +68,21 @@ def _protected(paths: list[str], stems: list[str], out_dir: Path, fmt: str) -> t
     return inputs
 
 
+def check_engine(engine: str, scheduler: str | None = None, connect_timeout_s: float = 10.0) -> None:
+    """Raise :class:`ParamError` for an unknown engine, a scheduler without the dask engine or a
+    timeout outside (0, 600] s."""
+    if engine not in ENGINES:
+        raise ParamError(f"batch engine must be one of {', '.join(ENGINES)}, got {engine!r}")
+    if scheduler is not None and engine != "dask":
+        raise ParamError(f"a scheduler address must come with the dask engine, got the {engine} engine")
+    if not 0 < connect_timeout_s <= 600:
+        raise ParamError(f"scheduler timeout must be above 0 and at most 600 s, got {connect_timeout_s:g}")
+
+
 def run_batch(paths: list[str], out_dir: str | Path, params: Params, layout: dict | None = None,
               fmt: str = "csv", engine: str = "local", workers: int = 2, progress: ProgressFn = None,
-              cancel: CancelFn = None) -> list[BatchOutcome]:
+              cancel: CancelFn = None, scheduler: str | None = None,
+              connect_timeout_s: float = 10.0) -> list[BatchOutcome]:
     """Detect on every recording and write a ``batch.csv`` of outcomes.
 
     Parameters
@@ -124,20 +99,24 @@ def run_batch(paths: list[str], out_dir: str | Path, params: Params, layout: dic
         "csv" or "h5" for the event files.
     engine
         "local": one recording after another, each using ``params.run.workers`` threads;
-        "dask": one Dask task per recording on ``workers`` local processes.
+        "dask": one Dask task per recording, on ``workers`` local processes or, with
+        ``scheduler``, on that running ``dask.distributed`` scheduler's workers.
     workers
-        Processes for the Dask engine.
+        Processes for the Dask engine without a scheduler.
     progress, cancel
-        Progress callback (per finished recording) and cancel check (between recordings;
-        with Dask, before the tasks start).
+        Progress callback (per finished recording) and cancel check (between recordings; with
+        local Dask processes before the tasks start; on a scheduler while waiting for tasks).
+    scheduler
+        Address of a running Dask scheduler (``tcp://host:8786``), for the "dask" engine only.
+    connect_timeout_s
+        Limit for reaching the scheduler and finding a worker there.
 
     Returns
     -------
     list of BatchOutcome
-        In the order of ``paths``.
+        In the order of ``paths``; outputs are the same whichever engine wrote them.
     """
-    if engine not in ENGINES:
-        raise ParamError(f"batch engine must be one of {', '.join(ENGINES)}, got {engine!r}")
+    check_engine(engine, scheduler, connect_timeout_s)
     if fmt not in ("csv", "h5"):
         raise ParamError(f"event format must be csv or h5, got {fmt!r}")
     if not paths:
@@ -149,30 +128,34 @@ def run_batch(paths: list[str], out_dir: str | Path, params: Params, layout: dic
     layout = layout or {}
     params.validate()
     inputs = _protected(paths, stems, out_dir, fmt)
+    jobs = [(str(p), s) for p, s in zip(paths, stems)]
     if engine == "dask":
-        outcomes = _on_dask(paths, stems, out_dir, params, layout, fmt, workers, cancel, inputs)
+        from rigside.core.runs import batch_dask
+        if scheduler is None:
+            outcomes = batch_dask.on_local_processes(jobs, out_dir, params, layout, fmt, workers, inputs, cancel)
+        else:
+            outcomes = batch_dask.on_scheduler(jobs, out_dir, params, layout, fmt, inputs, scheduler,
+                                               connect_timeout_s, progress, cancel)
     else:
         outcomes = []
-        for i, p in enumerate(paths):
+        for i, (p, s) in enumerate(jobs):
             check(cancel)
-            outcomes.append(run_one(str(p), str(out_dir), params, layout, fmt, stems[i], inputs))
+            outcomes.append(run_one(p, str(out_dir), params, layout, fmt, s, inputs))
             report(progress, (i + 1) / len(paths), f"{i + 1} of {len(paths)} recordings")
     with protect_inputs(inputs):
+        _remove_leftovers(stems, out_dir, fmt)
         write_outcomes(out_dir / "batch.csv", outcomes)
     report(progress, 1.0, "batch done")
     return outcomes
 
 
-def _on_dask(paths, stems, out_dir, params, layout, fmt, workers, cancel, inputs) -> list[BatchOutcome]:
-    try:
-        import dask
-    except ImportError:
-        raise ParamError("the dask engine needs the dask package, got none installed "
-                         "(pip install 'rigside[dask]')") from None
-    check(cancel)
-    tasks = [dask.delayed(run_one)(str(p), str(out_dir), params, layout, fmt, s, inputs)
-             for p, s in zip(paths, stems)]
-    return list(dask.compute(*tasks, scheduler="processes", num_workers=max(1, workers)))
+def _remove_leftovers(stems: list[str], out_dir: Path, fmt: str) -> None:
+    """Delete the temporary files of this batch's outputs that a stopped process left behind
+    (a worker killed while writing); every task has ended, so none is still being written."""
+    for stem in stems:
+        for out in outputs_of(stem, out_dir, fmt):
+            for tmp in stale_temporaries(out):
+                safe_unlink(tmp)
 
 
 def write_outcomes(path: Path, outcomes: list[BatchOutcome]) -> Path:

@@ -15,24 +15,12 @@ a window of them as an artefact.
 
 from __future__ import annotations
 
-from dataclasses import dataclass
-
 import numba
 import numpy as np
 
+from rigside.core.events import EventColumns
+
 POLARITY_CODE = {"negative": 0, "positive": 1, "both": 2}
-
-
-@dataclass
-class BlockEvents:
-    """Events found in one block (samples relative to the recording)."""
-
-    sample: np.ndarray
-    channel: np.ndarray
-    group: np.ndarray
-    amplitude_uv: np.ndarray
-    amplitude_sigma: np.ndarray
-    artefact: np.ndarray
 
 
 @numba.njit(nogil=True, cache=True, fastmath=True)
@@ -137,7 +125,7 @@ def _grow(a, cap):
 
 def detect_block(y: np.ndarray, first_sample: int, lo: int, hi: int, sigma_uv: np.ndarray,
                  groups: list[np.ndarray], polarity: str, floor_sigma: float, dead_samples: int,
-                 artefact_sigma: float, artefact_fraction: float, artefact_window: int) -> BlockEvents:
+                 artefact_sigma: float, artefact_fraction: float, artefact_window: int) -> EventColumns:
     """Find events with peak sample in ``[lo, hi)`` of a filtered block.
 
     Parameters
@@ -162,8 +150,9 @@ def detect_block(y: np.ndarray, first_sample: int, lo: int, hi: int, sigma_uv: n
 
     Returns
     -------
-    BlockEvents
-        Events sorted by group then time (the caller re-sorts the whole table by time).
+    EventColumns
+        Events found in the block (samples relative to the recording), sorted by group then time
+        (the caller re-sorts the whole table by time).
     """
     with np.errstate(divide="ignore"):
         inv = np.where(sigma_uv > 0, 1.0 / np.where(sigma_uv > 0, sigma_uv, 1.0), 0.0).astype(np.float32)
@@ -175,8 +164,8 @@ def detect_block(y: np.ndarray, first_sample: int, lo: int, hi: int, sigma_uv: n
     live_groups = [(gi, g) for gi, g in live_groups if len(g)]
     if not live_groups:
         empty = np.empty(0)
-        return BlockEvents(empty.astype(np.int64), empty.astype(np.int32), empty.astype(np.int32),
-                           empty.astype(np.float32), empty.astype(np.float32), empty.astype(np.bool_))
+        return EventColumns(empty.astype(np.int64), empty.astype(np.int32), empty.astype(np.int32),
+                            empty.astype(np.float32), empty.astype(np.float32), empty.astype(np.bool_))
     group_index = np.array([gi for gi, _ in live_groups], dtype=np.int32)
     gch = np.concatenate([g for _, g in live_groups]).astype(np.int64)
     goff = np.concatenate([[0], np.cumsum([len(g) for _, g in live_groups])]).astype(np.int64)
@@ -184,4 +173,4 @@ def detect_block(y: np.ndarray, first_sample: int, lo: int, hi: int, sigma_uv: n
                                        POLARITY_CODE[polarity], gch, goff, np.float32(floor_sigma),
                                        int(dead_samples), int(lo), int(hi), np.float32(artefact_sigma),
                                        art_count, int(artefact_window))
-    return BlockEvents(t + first_sample, c, group_index[g], a, s, art)
+    return EventColumns(t + first_sample, c, group_index[g], a, s, art)

@@ -17,9 +17,9 @@ squared amplitude over the window and the group's channels, uV^2).
 from __future__ import annotations
 
 from dataclasses import dataclass
+from typing import TYPE_CHECKING
 
 import numpy as np
-from sklearn.decomposition import PCA
 
 from rigside.core.events import EventTable
 from rigside.core.io.recording import Recording
@@ -29,6 +29,9 @@ from rigside.core.signal.chunk_pool import single_threaded_pools
 from rigside.core.signal.filtering import BandPass
 from rigside.core.signal.snippet_pass import own_columns, snippet_pass
 from rigside.core.signal.snippets import snippet_window
+
+if TYPE_CHECKING:  # scikit-learn costs seconds to import: only the fit below needs it
+    from sklearn.decomposition import PCA
 
 
 @dataclass
@@ -129,6 +132,8 @@ def compute_features(recording: Recording, events: EventTable, params: Params, p
         held[s][first:first + len(ev)] = flat
 
     cut(chosen, hold, 0.0, share)
+    from sklearn.decomposition import PCA
+
     pcas: list[PCA | None] = []
     with single_threaded_pools():  # small matrices: one BLAS thread is faster here, and the same everywhere
         for s, x in enumerate(held):

@@ -19,11 +19,11 @@ import math
 
 import numba
 import numpy as np
-from scipy import signal
 
 from rigside.core.errors import RecordingError
 from rigside.core.io.recording import Recording
 from rigside.core.params import FilterParams
+from rigside.core.signal.butterworth import bandpass_sos
 
 
 def design_bandpass(params: FilterParams, rate_hz: float) -> np.ndarray:
@@ -39,17 +39,16 @@ def design_bandpass(params: FilterParams, rate_hz: float) -> np.ndarray:
     Returns
     -------
     numpy.ndarray
-        ``(n_sections, 6)`` array as from ``scipy.signal.butter(..., output='sos')``.
+        ``(n_sections, 6)`` array, the same as ``scipy.signal.butter(..., output='sos')``
+        (:mod:`rigside.core.signal.butterworth`).
     """
     params.validate(rate_hz)
-    return signal.butter(params.order, [params.low_hz, params.high_hz], btype="bandpass",
-                         fs=rate_hz, output="sos")
+    return bandpass_sos(params.order, params.low_hz, params.high_hz, rate_hz)
 
 
 def settle_samples(sos: np.ndarray, tolerance: float = 1e-9) -> int:
     """Samples for the slowest pole's transient to fall below ``tolerance``."""
-    _, poles, _ = signal.sos2zpk(sos)
-    r = float(np.max(np.abs(poles)))
+    r = max(float(np.max(np.abs(np.roots(section[3:])), initial=0.0)) for section in np.asarray(sos))
     return max(64, int(math.ceil(math.log(tolerance) / math.log(r))))
 
 

@@ -4,13 +4,14 @@ from __future__ import annotations
 
 import numpy as np
 
-from rigside.core.events import COLUMNS, EventTable, uv_to_sigma
+from rigside.core.errors import RigsideError
+from rigside.core.events import COLUMNS, EventColumns, EventTable, uv_to_sigma
 from rigside.core.io.content import BackgroundHasher
 from rigside.core.io.recording import Recording
 from rigside.core.params import Params
 from rigside.core.progress import CancelFn, ProgressFn, report, run_bounded
 from rigside.core.signal.chunk_pool import chunk_bounds
-from rigside.core.signal.detection import BlockEvents, detect_block
+from rigside.core.signal.detection import detect_block
 from rigside.core.signal.filtering import BandPass
 from rigside.core.signal.noise import NoiseEstimate, estimate_noise
 from rigside.core.signal.overview import OverviewBuilder
@@ -26,6 +27,46 @@ def thresholds_sigma(params: Params, sigma_uv: np.ndarray) -> np.ndarray:
     if d.threshold_uv is None:
         return np.full(len(sigma_uv), d.threshold_sigma, dtype=np.float64)
     return uv_to_sigma(d.threshold_uv, sigma_uv)
+
+
+def params_at_thresholds(params: Params, thresholds: np.ndarray, sigma_uv: np.ndarray | None) -> Params:
+    """A copy of ``params`` detecting at per-channel thresholds, stated as one value for every channel.
+
+    Parameters
+    ----------
+    params
+        The parameters to copy (left unchanged).
+    thresholds
+        Threshold per channel, in sigma multiples (infinite on a dead channel).
+    sigma_uv
+        Noise sigma per channel in microvolts (None: not measured yet, only one sigma multiple will do).
+
+    Returns
+    -------
+    Params
+        The copy with ``detect.threshold_sigma`` set when every channel has the same finite multiple,
+        else with ``detect.threshold_uv`` set when every live channel (sigma above zero) has the same
+        microvolts.
+
+    Raises
+    ------
+    RigsideError
+        When the thresholds are neither one sigma multiple nor one value in microvolts.
+    """
+    out = Params.from_dict(params.to_dict())
+    thr = np.asarray(thresholds, dtype=np.float64)
+    if len(thr) and np.all(np.isfinite(thr)) and np.allclose(thr, thr[0]):
+        out.detect.threshold_sigma, out.detect.threshold_uv = float(thr[0]), None
+        return out
+    if sigma_uv is not None and len(thr):
+        sigma = np.asarray(sigma_uv, dtype=np.float64)
+        live = np.isfinite(thr) & (sigma > 0)
+        uv = np.where(live, thr, 0.0) * sigma
+        if live.any() and np.allclose(uv[live], uv[live][0]):
+            out.detect.threshold_uv = float(uv[live][0])
+            return out
+    raise RigsideError("detecting at these thresholds needs one value for every channel (in σ or µV), got "
+                       "thresholds set per channel")
 
 
 def lookup_floor(params: Params, sigma_uv: np.ndarray) -> float:
@@ -82,7 +123,7 @@ def detect(recording: Recording, params: Params, progress: ProgressFn = None, ca
     chunk = max(int(params.run.chunk_s * rate), 4 * ctx)
     bounds = chunk_bounds(recording.n_samples, chunk)
 
-    def work(start: int, stop: int) -> BlockEvents:
+    def work(start: int, stop: int) -> EventColumns:
         lo, hi = max(0, start - ctx), min(recording.n_samples, stop + ctx)
         y = bp.read(lo, hi)
         if overview is not None:
@@ -90,10 +131,10 @@ def detect(recording: Recording, params: Params, progress: ProgressFn = None, ca
         return detect_block(y, lo, start - lo, stop - lo, live_sigma, recording.groups, d.polarity, floor,
                             dead, d.artefact_sigma, d.artefact_channel_fraction, art_w)
 
-    parts: list[BlockEvents] = []
+    parts: list[EventColumns] = []
     hasher = BackgroundHasher(recording.path)
 
-    def collect(part: BlockEvents) -> None:
+    def collect(part: EventColumns) -> None:
         parts.append(part)
         hasher.advance(len(parts) / len(bounds))
         report(progress, NOISE_SHARE + (1 - NOISE_SHARE) * len(parts) / len(bounds), "detecting")
@@ -104,7 +145,7 @@ def detect(recording: Recording, params: Params, progress: ProgressFn = None, ca
     return _assemble(parts, recording, sigma, floor, d.polarity, excluded)
 
 
-def _assemble(parts: list[BlockEvents], recording: Recording, sigma: np.ndarray, floor: float,
+def _assemble(parts: list[EventColumns], recording: Recording, sigma: np.ndarray, floor: float,
               polarity: str, excluded: dict[int, str]) -> EventTable:
     cols = {name: np.concatenate([getattr(p, name) for p in parts]) if parts else np.empty(0)
             for name in COLUMNS}

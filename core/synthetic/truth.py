@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import csv
+import io
 from dataclasses import dataclass
 from pathlib import Path
 
@@ -35,9 +36,11 @@ def load_truth(path: str | Path) -> Truth:
     try:
         with open(path, newline="") as fh:
             header = fh.readline().strip()
+            body = fh.read()
         if header != TRUTH_HEADER:
             raise ValueError(f"its first line must be {TRUTH_HEADER!r}, got {header[:60]!r}")
-        spikes = np.loadtxt(path, delimiter=",", skiprows=1, usecols=(0, 1), dtype=np.int64, ndmin=2)
+        spikes = (np.loadtxt(io.StringIO(body), delimiter=",", usecols=(0, 1), dtype=np.int64, ndmin=2)
+                  if body.strip() else np.zeros((0, 2), np.int64))   # a noise-only recording has no spikes
         with open(units_path, newline="") as fh:
             rows = list(csv.DictReader(fh))
         t = Truth(sample=spikes[:, 1], unit=spikes[:, 0].astype(np.int32),
@@ -81,7 +84,8 @@ def score_curve(events: EventTable, truth: Truth, thresholds_sigma, tolerance_ms
     tolerance_ms
         Matching tolerance.
     channels
-        If given, only events on these channels and units whose peak channel is among them.
+        If given, only events on these channels and units whose peak channel is among them; events
+        in a group without such a unit are false alarms.
     units
         If given, only these true units count (events of their groups only).
     """
@@ -98,8 +102,8 @@ def score_curve(events: EventTable, truth: Truth, thresholds_sigma, tolerance_ms
     if channels is not None:
         ok &= np.isin(events.channel, np.asarray(channels))
     hits, misses, fas = (np.zeros(len(thr), np.int64) for _ in range(3))
-    if units is None and channels is None:   # every group with a true unit or an event
-        groups = sorted(set(truth.unit_group.values()) | set(np.unique(events.group[ok]).tolist()))
+    if units is None:   # every group with a chosen true unit or a chosen event (false alarms count everywhere)
+        groups = sorted(set(groups) | set(np.unique(events.group[ok]).tolist()))
     for g in groups:
         t_true = truth.sample[np.isin(truth.unit, [u for u in unit_ids if truth.unit_group[int(u)] == g])]
         sel = ok & (events.group == g)

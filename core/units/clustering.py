@@ -27,16 +27,18 @@ from __future__ import annotations
 import warnings
 from concurrent.futures import ProcessPoolExecutor
 from multiprocessing import get_all_start_methods, get_context
+from typing import TYPE_CHECKING
 
 import numpy as np
-from sklearn.exceptions import ConvergenceWarning
-from sklearn.mixture import GaussianMixture
 
 from rigside.core.errors import RigsideError
 from rigside.core.params import ClusterParams
 from rigside.core.progress import CancelFn, ProgressFn, check, report, run_bounded
 from rigside.core.signal.chunk_pool import single_threaded_pools
 from rigside.core.units.sorting import NO_UNIT
+
+if TYPE_CHECKING:
+    from sklearn.mixture import GaussianMixture
 
 MIN_EVENTS_PER_COMPONENT = 10
 """A fit never uses more components than one per this many fitted events."""
@@ -63,7 +65,18 @@ def _z(x: np.ndarray, scaling: tuple[np.ndarray, np.ndarray, np.ndarray]) -> np.
     return ((x[:, keep] - mean) / sd).astype(np.float64)
 
 
+def _mixture_classes():
+    """scikit-learn's mixture class and its convergence warning, imported on first use (seconds
+    of import a window that only opens a session never pays); called before worker processes are
+    forked, so that they inherit the import."""
+    from sklearn.exceptions import ConvergenceWarning
+    from sklearn.mixture import GaussianMixture
+
+    return GaussianMixture, ConvergenceWarning
+
+
 def _fit(x: np.ndarray, k: int, params: ClusterParams, random_state: int) -> GaussianMixture:
+    GaussianMixture, ConvergenceWarning = _mixture_classes()
     gm = GaussianMixture(n_components=k, covariance_type="full", max_iter=params.max_iter,
                          tol=params.tol, reg_covar=1e-6, random_state=random_state)
     with warnings.catch_warnings():
@@ -238,6 +251,7 @@ def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np
         Unit id per event (int32) and the channel group of every new unit id.
     """
     params.validate()
+    _mixture_classes()
     group = np.asarray(group)
     n = len(group)
     if features.ndim != 2 or len(features) != n or len(artefact) != n or len(amplitude_uv) != n:

@@ -14,7 +14,8 @@ from rigside.core.io.hdf5_datasets import recording_candidates
 from rigside.core.signal.noise import NoiseEstimate
 from rigside.core.units.session import FORMAT
 
-EXPECTED = ("a recording (raw samples, or HDF5 with a 2-D dataset of samples) or a rigside session "
+EXPECTED = ("a recording (raw samples, HDF5 with a 2-D dataset of samples, or NWB with an ElectricalSeries) or a "
+            "rigside session "
             f"(HDF5 with format {FORMAT!r})")
 
 

@@ -1,6 +1,8 @@
 """Writing session files of format 3: a static part written once, a state part on every save.
 
-Events and features never change after the first pass, so they live in a static part,
+Events, features and the first pass's own result (``first_pass``: the state the journal's
+opening step produced, from which reopening replays the curation) never change after the first
+pass, so they live in a static part,
 ``NAME.static-<digest>.h5``, named by the first 16 hex digits of its checksum. It is written
 (atomically) only when no file of that name holds that checksum yet; a new sorting saved under
 the same name gets a new static part and never disturbs the one an older state (a backup)

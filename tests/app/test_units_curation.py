@@ -249,7 +249,7 @@ def test_selected_units_are_coloured_in_the_feature_and_trace_views(demo_window)
     u = max((v for v, rec in ctl.sorting.units.items() if rec.group == shown_group), key=counts.get)
     ctl.set_selection([u])
     feats = win.panels["features"]
-    rows = ctl.selected_rows_in(win.bench.events)[u]
+    rows = ctl.selected_rows()[u]
     # the highlighted points are the unit's events shown in the panel (its group, at the threshold)
     ev = win.bench.events
     visible = rows[(ev.group[rows] == shown_group) & win.bench.mask()[rows]]

@@ -81,7 +81,7 @@ def test_quality_plots_show_the_selected_units(demo_window, qtbot, tmp_path):
         swatch = model.data(model.index(model.row_of(u), 0), Qt.ItemDataRole.DecorationRole)
         assert (swatch.red(), swatch.green(), swatch.blue()) == colour
     # other views can find the selected units' events in the workbench's own event table
-    rows = ctl.selected_rows_in(win.bench.events)
+    rows = ctl.selected_rows()
     for u in pair:
         mine = s.events_of(u)
         assert len(rows[u]) == len(mine)

@@ -28,7 +28,8 @@ def loaded_after(*argv: str) -> set[str]:
 
 
 @pytest.mark.parametrize("argv", [("--help",), ("detect", "--help"), ("sort", "--help"), ("metrics", "--help"),
-                                  ("audit", "--help"), ("batch", "--help"), ("open", "--help")])
+                                  ("audit", "--help"), ("batch", "--help"), ("open", "--help"),
+                                  ("synth", "--help")])
 def test_help_imports_no_heavy_package(argv):
     loaded = loaded_after(*argv)
     assert "rigside" in loaded  # the probe did run the command line

@@ -2,10 +2,12 @@
 table and the window (common practice, no source: threshold / noise sigma, dead channels never cross)."""
 
 import numpy as np
+import pytest
 
+from rigside.core.errors import RigsideError
 from rigside.core.events import uv_to_sigma
 from rigside.core.params import Params
-from rigside.core.signal.pipeline import thresholds_sigma
+from rigside.core.signal.pipeline import params_at_thresholds, thresholds_sigma
 
 
 def test_microvolts_become_sigma_multiples_and_dead_channels_never_cross():
@@ -21,15 +23,32 @@ def test_detection_parameters_in_microvolts():
     np.testing.assert_allclose(thresholds_sigma(params, sigma), [5.0, np.inf, 2.0])
 
 
+def test_parameters_at_per_channel_thresholds_state_one_value():
+    """One sigma multiple, else one microvolt value on the live channels (30 uV = 5 x 6 = 2 x 15); per-channel
+    values that are neither are refused; the parameters given are left as they were."""
+    params = Params()
+    sigma = np.array([6.0, 0.0, 15.0])
+    same = params_at_thresholds(params, np.full(3, 4.5), sigma)
+    assert (same.detect.threshold_sigma, same.detect.threshold_uv) == (4.5, None)
+    uv = params_at_thresholds(params, np.array([5.0, np.inf, 2.0]), sigma)
+    assert uv.detect.threshold_uv == pytest.approx(30.0)
+    np.testing.assert_allclose(thresholds_sigma(uv, sigma), [5.0, np.inf, 2.0])
+    assert params.detect.threshold_uv is None and params.detect.threshold_sigma == Params().detect.threshold_sigma
+    with pytest.raises(RigsideError, match="one value for every channel"):
+        params_at_thresholds(params, np.array([5.0, 4.0, 4.0]), sigma)
+    with pytest.raises(RigsideError, match="one value for every channel"):
+        params_at_thresholds(params, np.array([5.0, 4.0, 4.0]), None)
+
+
 def test_one_event_column_list(tmp_path):
-    """The CSV header, the block builder and the stored columns all follow events.COLUMNS."""
+    """The CSV header, the block detection returns and the stored columns all follow events.COLUMNS."""
     import csv
     from dataclasses import fields
 
-    from rigside.core.events import COLUMNS, CSV_COLUMNS, EventTable
-    from rigside.core.signal.detection import BlockEvents
+    from rigside.core.events import COLUMNS, CSV_COLUMNS, EventColumns, EventTable
 
-    assert [f.name for f in fields(BlockEvents)] == list(COLUMNS)
+    stored = [f.name for f in fields(EventColumns)]
+    assert stored == list(COLUMNS) == [f.name for f in fields(EventTable)][:len(COLUMNS)]
     n = 3
     table = EventTable(sample=np.arange(n, dtype=np.int64) * 30, channel=np.zeros(n, np.int32),
                        group=np.zeros(n, np.int32), amplitude_uv=np.full(n, -50.5, np.float32),

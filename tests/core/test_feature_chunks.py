@@ -7,9 +7,9 @@ fitted on the same seeded subset (reference implementation: scikit-learn).
 
 import numpy as np
 import pytest
+import sklearn.decomposition
 from sklearn.decomposition import PCA
 
-import rigside.core.signal.features as features_module
 from rigside.core.errors import RigsideError
 from rigside.core.params import Params
 from rigside.core.signal.chunk_pool import single_threaded_pools
@@ -76,7 +76,7 @@ def captured_fit_inputs(monkeypatch):
         def fit(self, x, y=None):
             seen.append(np.array(x))
             return super().fit(x)
-    monkeypatch.setattr(features_module, "PCA", Recording)
+    monkeypatch.setattr(sklearn.decomposition, "PCA", Recording)   # read by the fit at call time
     return seen
 
 

@@ -254,3 +254,13 @@ def test_missed_fraction_undefined_cases():
     assert "no spread" in missed_fraction(np.full(50, 90.0), 80.0).reason
     with pytest.raises(RigsideError, match="finite"):
         missed_fraction(np.append(x, np.nan), 80.0)
+
+
+def test_cut_position_equals_scipy_brentq():
+    # the missed-fraction fit's root, found by bisection, against scipy.optimize.brentq on the same
+    # equation (near the largest cut the ratio is flat, so the roots agree to 1e-8, not 1e-12)
+    from rigside.core.quality.metrics import _A_MAX, _cut_position, _excess_ratio
+    for ratio in np.geomspace(1e-4, 0.999 * _excess_ratio(_A_MAX), 60):
+        lo = -(2.0 / math.sqrt(ratio) + 10.0)
+        want = optimize.brentq(lambda c, r=ratio: _excess_ratio(c) - r, lo, _A_MAX, xtol=1e-12, rtol=1e-14)
+        assert _cut_position(ratio, lo) == pytest.approx(want, abs=1e-8)

@@ -136,8 +136,12 @@ def test_times_beyond_the_recording(tmp_path):
 def test_finish_checks_types_and_lengths():
     with pytest.raises(SpikeFileError, match="must be numbers"):
         checked_trains(np.array(["0.1"]), np.array([1]), "x")
-    with pytest.raises(SpikeFileError, match="must be integers"):
-        checked_trains(np.array([0.1]), np.array(["a"]), "x")
+    with pytest.raises(SpikeFileError, match="integers or names, got '1.5'"):
+        checked_trains(np.array([0.1]), np.array(["1.5"]), "x")       # a number, not a name
+    with pytest.raises(SpikeFileError, match="integers or names, got an empty id"):
+        checked_trains(np.array([0.1]), np.array([" "]), "x")
+    with pytest.raises(SpikeFileError, match="must be whole numbers"):
+        checked_trains(np.array([0.1]), np.array([0.5]), "x")
     with pytest.raises(SpikeFileError, match="one unit per spike"):
         checked_trains(np.array([0.1, 0.2]), np.array([1]), "x")
     with pytest.raises(SpikeFileError, match="at least one spike"):

@@ -8,7 +8,6 @@ from PySide6.QtWidgets import (
     QCheckBox,
     QDialog,
     QDialogButtonBox,
-    QDoubleSpinBox,
     QFormLayout,
     QLabel,
     QLineEdit,
@@ -17,16 +16,7 @@ from PySide6.QtWidgets import (
 )
 
 from rigside.gui.audit_controller import ImportChoices
-
-
-def _spin(value: float, low: float, high: float, decimals: int, suffix: str, tip: str) -> QDoubleSpinBox:
-    s = QDoubleSpinBox()
-    s.setRange(low, high)
-    s.setDecimals(decimals)
-    s.setValue(value)
-    s.setSuffix(suffix)
-    s.setToolTip(tip)
-    return s
+from rigside.gui.dialogs.fields import double_spin
 
 
 class AuditImportDialog(QDialog):
@@ -40,15 +30,15 @@ class AuditImportDialog(QDialog):
         intro = QLabel(f"<b>{path.name}</b><br>Columns: <code>unit</code> and one of <code>time_s</code>, "
                        "<code>time_ms</code> or <code>sample</code> (see docs/audit.md).")
         intro.setWordWrap(True)
-        self.rate = _spin(recording_rate_hz, 1.0, 1e7, 3, " Hz",
+        self.rate = double_spin(recording_rate_hz, 1.0, 1e7, 3, " Hz",
                           "sampling rate of a 'sample' column (a rate stored in the file wins)")
         self.group = QLineEdit()
         self.group.setPlaceholderText("the file's root")
         self.group.setToolTip("HDF5 group holding the unit and time datasets")
         self.group.setEnabled(path.suffix.lower() in (".h5", ".hdf5"))
-        self.offset = _spin(0.0, -1e6, 1e6, 6, " s", "subtracted from every imported time (a clock that "
+        self.offset = double_spin(0.0, -1e6, 1e6, 6, " s", "subtracted from every imported time (a clock that "
                             "started before the recording)")
-        self.tolerance = _spin(0.5, 0.01, 5.0, 2, " ms", "largest distance between matched spikes")
+        self.tolerance = double_spin(0.5, 0.01, 5.0, 2, " ms", "largest distance between matched spikes")
         self.use_session = QCheckBox(session_text or "no session of this recording is open")
         self.use_session.setChecked(session_text is not None)
         self.use_session.setEnabled(session_text is not None)

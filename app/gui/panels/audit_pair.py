@@ -10,6 +10,8 @@ side has a row of ticks, one per shared spike, with those symbols for the spikes
 
 from __future__ import annotations
 
+import html
+
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import Qt
@@ -43,11 +45,16 @@ def scatter(side: str, shared: bool) -> pg.ScatterPlotItem:
 
 def key_text(pair: PairView | None) -> str:
     """The symbol key, naming the two units."""
-    imp = f"imported unit {pair.imported.unit}" if pair else "imported unit"
+    imp = f"imported unit {html.escape(shown_unit(pair, 'imported'))}" if pair else "imported unit"
     fresh = f"fresh unit {pair.fresh.unit}" if pair and pair.fresh else "fresh unit"
     entries = [("● ——", IMPORTED, f"{imp}, spike shared"), ("✕", IMPORTED, "imported only (possible false positive)"),
                ("○ - -", FRESH, f"{fresh}, spike shared"), ("▼", FRESH, "fresh only (possible miss)")]
     return palette.key(entries) + " &nbsp; (trace view: a tick per shared spike)"
+
+
+def shown_unit(pair: PairView, name: str) -> str:
+    """A side's unit as shown: the imported unit as its file gives it (a name, for named units)."""
+    return str(pair.row["unit"]) if name == "imported" else str(pair.fresh.unit)
 
 
 def sides_of(pair: PairView | None) -> list[tuple[str, UnitView]]:
@@ -60,7 +67,7 @@ def sides_of(pair: PairView | None) -> list[tuple[str, UnitView]]:
 def trace_rows(pair: PairView | None) -> list[tuple]:
     """Rows for :meth:`app.panels.traces.TracePanel.set_spike_rows`: each side's spikes, those
     the other side lacks flagged and drawn with the side's symbol for them."""
-    return [(f"{name} {side.unit}", side.times_s, ~side.shared, colour_of(name), SYMBOLS[(name, False)][0])
+    return [(f"{name} {shown_unit(pair, name)}", side.times_s, ~side.shared, colour_of(name), SYMBOLS[(name, False)][0])
             for name, side in sides_of(pair)]
 
 

@@ -38,7 +38,7 @@ from rigside.gui.panels.base import Panel
 
 # (header, table column, scale, format)
 TABLE_SPECS = (
-    ("imported\nunit", "unit", 1, "d"),
+    ("imported\nunit", "unit", 1, ""),
     ("spikes", "n_spikes", 1, "d"),
     ("backed by\nevents (%)", "matched_fraction", 100, ".1f"),
     ("closest\nfresh unit", "closest_fresh_unit", 1, ""),
@@ -204,7 +204,8 @@ class AuditPanel(Panel):
         for i, u in enumerate(ids):
             row = r.row(int(u))
             for j, (_, key, scale, fmt) in enumerate(TABLE_SPECS):
-                item = cell(row, key, scale, fmt)
+                # the unit as the file gives it, sorted by its code (ascending ids, natural order of names)
+                item = SortItem(str(row["unit"]), float(u)) if key == "unit" else cell(row, key, scale, fmt)
                 item.setData(UNIT_ROLE, int(u))
                 if key != "notes":
                     item.setTextAlignment(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
@@ -241,7 +242,7 @@ class AuditPanel(Panel):
     @staticmethod
     def _header(pv, r) -> str:
         row = pv.row
-        imp = (f"<b style='color:{palette.hex_colour(palette.BLUE)}'>Imported unit {pv.imported.unit}</b> "
+        imp = (f"<b style='color:{palette.hex_colour(palette.BLUE)}'>Imported unit {html.escape(str(row['unit']))}</b> "
                f"({row['n_spikes']} spikes, main channel {row['main_channel']})")
         if pv.fresh is None:
             return imp + ": no fresh unit shares a spike with it."

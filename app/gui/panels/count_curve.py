@@ -180,7 +180,7 @@ class CountCurvePanel(Panel):
     # ---- ground truth ---------------------------------------------------------------------
     def _request_scores(self) -> None:
         b = self.bench
-        truth, ev = b.analysis.truth, b.events
+        truth, ev = b.shown_truth, b.events
         if truth is None or ev is None:
             self.truth_plot.setVisible(False)
             self.truth_key.setVisible(False)
@@ -196,7 +196,7 @@ class CountCurvePanel(Panel):
 
     def _draw_scores(self) -> None:
         s = self.scores
-        if s is None or self.bench.analysis.truth is None:
+        if s is None or self.bench.shown_truth is None:
             return
         self.truth_plot.setVisible(True)
         self.truth_key.setVisible(True)
