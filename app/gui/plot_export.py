@@ -9,6 +9,7 @@ every file is written by the window's job runner, atomically.
 
 from __future__ import annotations
 
+import html
 import math
 from dataclasses import dataclass
 from pathlib import Path
@@ -16,7 +17,7 @@ from pathlib import Path
 import pyqtgraph as pg
 import pyqtgraph.exporters as pg_exporters
 from PySide6.QtCore import QBuffer, QByteArray, QIODevice, QRectF, QSize
-from PySide6.QtGui import QPainter
+from PySide6.QtGui import QColor, QImage, QPainter, QTextDocument
 from PySide6.QtSvg import QSvgGenerator
 from PySide6.QtWidgets import QApplication, QWidget
 
@@ -36,9 +37,14 @@ class PlotTarget:
     view: pg.GraphicsView
     owner: QWidget | None
 
+    def caption(self) -> str:
+        """Rich text above the picture: the plot's name and its colour key, if its view gives one."""
+        key = self.owner.plot_key(self.view) if hasattr(self.owner, "plot_key") else ""
+        return f"<b>{html.escape(self.name)}</b>" + (f"<br>{key}" if key else "")
+
     def table(self) -> dict | None:
         """The plot's numbers as ``{"title": lines, "meanings": {column: text}, "table": {column: values}}``."""
-        return None if self.owner is None else self.owner.plot_table(self.view)
+        return self.owner.plot_table(self.view) if hasattr(self.owner, "plot_table") else None
 
 
 def _owner(view: QWidget, panel: QWidget) -> tuple[QWidget | None, QWidget | None]:
@@ -46,7 +52,7 @@ def _owner(view: QWidget, panel: QWidget) -> tuple[QWidget | None, QWidget | Non
     owner = titled = None
     w = view.parentWidget()
     while w is not None:
-        if owner is None and hasattr(w, "plot_table"):
+        if owner is None and (hasattr(w, "plot_table") or hasattr(w, "plot_key")):
             owner = w
         if titled is None and w is not panel and getattr(w, "title", ""):
             titled = w
@@ -90,12 +96,34 @@ def _visible_rect(view: pg.GraphicsView) -> QRectF:
     return view.mapToScene(view.viewport().rect()).boundingRect()
 
 
-def png_bytes(view: pg.GraphicsView) -> bytes:
-    """The plot as PNG (pyqtgraph's image exporter, :data:`PNG_SCALE` times its size on screen)."""
+def _caption(text: str, width: float) -> QTextDocument:
+    doc = QTextDocument()
+    doc.setDocumentMargin(4)
+    doc.setHtml(text)
+    doc.setTextWidth(width)
+    return doc
+
+
+def png_bytes(view: pg.GraphicsView, caption: str = "") -> bytes:
+    """The plot as PNG (pyqtgraph's image exporter, :data:`PNG_SCALE` times its size on screen),
+    under the rich-text ``caption``."""
     exporter = pg_exporters.ImageExporter(view.scene())
-    width = max(1, view.viewport().width()) * PNG_SCALE
-    exporter.parameters()["width"] = width
-    image = exporter.export(toBytes=True)
+    width = max(1, view.viewport().width())
+    exporter.parameters()["width"] = width * PNG_SCALE
+    plot = exporter.export(toBytes=True)
+    doc = _caption(caption, width)
+    top = math.ceil(doc.size().height() * PNG_SCALE) if caption else 0
+    image = QImage(plot.width(), top + plot.height(), QImage.Format.Format_ARGB32)
+    image.fill(QColor("white"))
+    painter = QPainter(image)
+    try:
+        if caption:
+            painter.scale(PNG_SCALE, PNG_SCALE)
+            doc.drawContents(painter)
+            painter.resetTransform()
+        painter.drawImage(0, top, plot)
+    finally:
+        painter.end()
     data = QByteArray()
     buffer = QBuffer(data)
     buffer.open(QIODevice.OpenModeFlag.WriteOnly)
@@ -104,22 +132,26 @@ def png_bytes(view: pg.GraphicsView) -> bytes:
     return bytes(data)
 
 
-def svg_bytes(view: pg.GraphicsView, title: str) -> bytes:
-    """The plot as SVG, drawn by Qt's SVG generator (pyqtgraph's own SVG exporter cannot read the paths
-    this Qt writes)."""
+def svg_bytes(view: pg.GraphicsView, title: str, caption: str = "") -> bytes:
+    """The plot as SVG under the rich-text ``caption``, drawn by Qt's SVG generator (pyqtgraph's own
+    SVG exporter cannot read the paths this Qt writes)."""
     source = _visible_rect(view)
+    doc = _caption(caption, source.width())
+    top = math.ceil(doc.size().height()) if caption else 0
     data = QByteArray()
     buffer = QBuffer(data)
     buffer.open(QIODevice.OpenModeFlag.WriteOnly)
     generator = QSvgGenerator()
     generator.setOutputDevice(buffer)
-    generator.setSize(QSize(math.ceil(source.width()), math.ceil(source.height())))
-    generator.setViewBox(QRectF(0, 0, source.width(), source.height()))
+    generator.setSize(QSize(math.ceil(source.width()), math.ceil(source.height()) + top))
+    generator.setViewBox(QRectF(0, 0, source.width(), source.height() + top))
     generator.setTitle(title)
     generator.setDescription("a plot of the rigside window")
     painter = QPainter(generator)
     try:
-        view.scene().render(painter, QRectF(0, 0, source.width(), source.height()), source)
+        if caption:
+            doc.drawContents(painter)
+        view.scene().render(painter, QRectF(0, top, source.width(), source.height()), source)
     finally:
         painter.end()
     buffer.close()
@@ -129,7 +161,10 @@ def svg_bytes(view: pg.GraphicsView, title: str) -> bytes:
 def image_bytes(target: PlotTarget, path: Path) -> bytes:
     """The picture of ``target`` in the format ``path``'s suffix names (.png or .svg)."""
     QApplication.processEvents()      # pending redraws first: the file shows what the screen shows
-    return svg_bytes(target.view, target.name) if path.suffix.lower() == ".svg" else png_bytes(target.view)
+    caption = target.caption()
+    if path.suffix.lower() == ".svg":
+        return svg_bytes(target.view, target.name, caption)
+    return png_bytes(target.view, caption)
 
 
 def write_bytes_job(path: Path, data: bytes, progress=None, cancel=None) -> Path:

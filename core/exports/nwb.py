@@ -4,7 +4,8 @@ A new file (:func:`export_nwb` without ``into_copy``) holds:
 
 - a device ``recording_device``, one ``ElectrodeGroup`` per channel group of the layout (the
   group's name, location ``unknown``) and the ``electrodes`` table, one row per recording channel
-  (row id = channel index; ``rel_x``/``rel_y`` when the recording gives channel positions);
+  (row id = channel index; ``rel_x``/``rel_y`` in micrometres when the layout gives channel
+  positions, ``x_um``/``y_um``);
 - the ``units`` table: ``spike_times`` (s), ``electrodes`` (the unit's group channels),
   ``electrode_group``, ``waveform_mean`` / ``waveform_sd`` (volts, as the standard fixes; samples x
   group channels, see :mod:`rigside.core.exports.nwb_content`), ``label`` and ``note`` (curation),
@@ -96,27 +97,40 @@ def _new_file(recording):
     groups = [nwb.create_electrode_group(name=name, description=f"channels {', '.join(map(str, g))}",
                                          location="unknown", device=device)
               for name, g in zip(names, recording.groups)]
-    positions = getattr(recording, "positions", None)
+    layout = getattr(recording, "layout", None)
+    x, y = getattr(layout, "x_um", None), getattr(layout, "y_um", None)
     for c in range(recording.n_channels):
-        at = {} if positions is None else {"rel_x": float(positions[c][0]), "rel_y": float(positions[c][1])}
+        at = {} if x is None or y is None else {"rel_x": float(x[c]), "rel_y": float(y[c])}
         nwb.add_electrode(group=groups[int(recording.channel_group[c])], location="unknown", id=c, **at)
     rows = np.arange(recording.n_channels)
     return nwb, rows, [groups[int(recording.channel_group[c])] for c in rows]
 
 
+def _series_named(nwb, wanted: str | None):
+    """The ElectricalSeries at path or name ``wanted`` (``acquisition/NAME``, ``processing/MODULE/.../NAME`` or
+    ``NAME``), or the file's only one."""
+    pynwb = _pynwb()
+    found = [o for o in nwb.objects.values() if isinstance(o, pynwb.ecephys.ElectricalSeries)]
+    hits = found
+    if wanted:
+        parts = wanted.strip("/").split("/")
+        hits = [o for o in found if o.name == parts[-1]]
+        if len(hits) > 1 and len(parts) > 1:
+            parent = "root" if parts[-2] == "acquisition" else parts[-2]
+            hits = [o for o in hits if o.parent is not None and o.parent.name == parent]
+    if len(hits) != 1:
+        names = ", ".join(sorted(o.name for o in found)) or "none"
+        raise RigsideError(f"NWB series must be one ElectricalSeries of the file ({names}), got {wanted!r}")
+    return hits[0]
+
+
 def _series_rows(nwb, recording, series: str | None):
     """Electrodes-table rows and electrode groups of each recording channel in an NWB recording."""
-    pynwb = _pynwb()
-    found = {name: obj for name, obj in nwb.acquisition.items() if isinstance(obj, pynwb.ecephys.ElectricalSeries)}
-    name = series or recording.describe().get("series")
-    if name is None and len(found) == 1:
-        name = next(iter(found))
-    if name not in found:
-        raise RigsideError(f"NWB series must be one of {', '.join(sorted(found)) or 'none'}, got {name!r}")
-    es = found[name]
+    desc = recording.describe()
+    es = _series_named(nwb, series or desc.get("series_path") or desc.get("series"))
     rows = np.asarray(es.electrodes.data[:], dtype=np.int64)
     if len(rows) != recording.n_channels:
-        raise RigsideError(f"NWB series {name!r} must have one electrode per recording channel "
+        raise RigsideError(f"NWB series {es.name!r} must have one electrode per recording channel "
                            f"({recording.n_channels}), got {len(rows)}")
     table = es.electrodes.table
     return rows, [table["group"][int(r)] for r in rows]

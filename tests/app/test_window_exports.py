@@ -101,6 +101,7 @@ def test_plots_saved_as_png_and_svg(demo_window, tmp_path):
     assert win.wait_idle(60)
     image = QImage(str(png))
     assert image.width() == 2 * curve.layout_widget.viewport().width()     # twice the size on screen
+    assert image.height() > 2 * curve.layout_widget.viewport().height()   # with the caption (name, key) above
     colours = {image.pixel(x, y) for x in range(0, image.width(), 7) for y in range(0, image.height(), 7)}
     assert len(colours) > 3                                                  # a drawing, not a blank page
     svg = tmp_path / "curve.svg"

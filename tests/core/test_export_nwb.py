@@ -204,3 +204,23 @@ def test_without_pynwb_the_export_is_one_message(sorted_session, tmp_path, monke
     with pytest.raises(RigsideError, match="needs the pynwb package"):
         export_nwb(session, rec, tmp_path / "n.nwb")
     assert not (tmp_path / "n.nwb").exists()
+
+
+def test_a_new_file_keeps_the_channel_positions_of_the_layout(sorted_session, tmp_path):
+    from tests.core.nwb_files import write_nwb
+    session, raw = _open(sorted_session)
+    x = np.arange(raw.n_channels) * 20.0
+    y = np.arange(raw.n_channels)[::-1] * 12.5
+    src = write_nwb(tmp_path / "rec.nwb", raw.read_stored(0, raw.n_samples), rate_hz=raw.rate_hz,
+                    conversion=raw.layout.gain_uv * 1e-6, groups=[list(map(int, g)) for g in raw.groups],
+                    positions=(x, y))
+    rec = open_recording(src)
+    run_sort(rec, Params(), tmp_path / "s.h5")
+    nwb_session = load_session(tmp_path / "s.h5")
+    out = export_nwb(nwb_session, rec, tmp_path / "units.nwb")
+    assert pynwb.validate(path=str(out)) == []                      # the standard's own check
+    with pynwb.NWBHDF5IO(str(out), "r") as io:
+        electrodes = io.read().electrodes
+        np.testing.assert_array_equal(electrodes["rel_x"][:], x)
+        np.testing.assert_array_equal(electrodes["rel_y"][:], y)
+    rec.close()

@@ -89,6 +89,11 @@ class CountCurvePanel(Panel):
         b = self.bench
         return k if b.scale == "sigma" else k * float(b.sigma_uv[b.channel])
 
+    def plot_key(self, view) -> str:
+        """The colour key of the curves (rich text), for saved pictures."""
+        keys = [self.key.text()] + ([self.truth_key.text()] if self.truth_plot.isVisible() else [])
+        return "<br>".join(keys)
+
     def plot_table(self, view) -> dict | None:
         """The count-versus-threshold curve drawn last, as a described table (None before detection)."""
         c = self.curve

@@ -75,6 +75,11 @@ class UnitView(QWidget):
     def shown_units(self) -> list[int]:
         return self.ctl.selection[:MAX_SHOWN]
 
+    def plot_key(self, view) -> str:
+        """The colour of each unit shown (rich text), for saved pictures."""
+        units = self.shown_units() if self.ctl.sorting is not None else []
+        return palette.key([("■", self.ctl.unit_colour(u), f"unit {u}") for u in units])
+
     def unit_times(self, unit: int) -> np.ndarray:
         s = self.ctl.sorting
         return np.sort(s.data.time_s[s.events_of(unit)])
