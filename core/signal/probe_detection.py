@@ -30,31 +30,35 @@ POSITION_WINDOW_MS = 0.2
 
 
 @numba.njit(nogil=True, cache=True, fastmath=True)
-def _signed_sigma(y, inv_sigma, polarity, art_level, art_count):
-    """Polarity-signed amplitude in sigma of every sample, and the running count of artefact samples."""
+def _artefact_counts(y, inv_sigma, art_level, art_count):
+    """Running count of artefact samples (enough live sites beyond the level, either sign)."""
     n, nc = y.shape
-    z = np.empty((n, nc), dtype=np.float32)
     art_cum = np.zeros(n + 1, dtype=np.int64)
-    sign = np.float32(-1.0) if polarity == 0 else np.float32(1.0)
     for t in range(n):
         cnt = 0
         for c in range(nc):
-            v = y[t, c] * inv_sigma[c]
-            a = abs(v)
-            cnt += 1 if a >= art_level and inv_sigma[c] > 0 else 0
-            z[t, c] = a if polarity == 2 else v * sign
+            cnt += 1 if abs(y[t, c] * inv_sigma[c]) >= art_level and inv_sigma[c] > 0 else 0
         art_cum[t + 1] = art_cum[t] + (1 if cnt >= art_count else 0)
-    return z, art_cum
+    return art_cum
+
+
+@numba.njit(nogil=True, cache=True, inline="always")
+def _z(y, inv_sigma, polarity, t, c):
+    """Polarity-signed amplitude in sigma of one sample (computed where needed, never stored)."""
+    v = y[t, c] * inv_sigma[c]
+    if polarity == 2:
+        return abs(v)
+    return -v if polarity == 0 else v
 
 
 @numba.njit(nogil=True, cache=True)
-def _is_peak(z, t, c, e, w, nb_off, nb_mem):
+def _is_peak(y, inv_sigma, polarity, t, c, e, w, nb_off, nb_mem):
     """Whether ``z[t, c] = e`` beats every sample of its neighbourhood within +/- ``w`` (ties: earlier
     sample, then lower channel). The own channel is checked first: it rejects most candidates."""
-    n = z.shape[0]
+    n = y.shape[0]
     j0, j1 = max(0, t - w), min(n, t + w + 1)
     for j in range(j0, j1):
-        v = z[j, c]
+        v = _z(y, inv_sigma, polarity, j, c)
         if v > e or (v == e and j < t):
             return False
     for k in range(nb_off[c], nb_off[c + 1]):
@@ -62,7 +66,7 @@ def _is_peak(z, t, c, e, w, nb_off, nb_mem):
         if d == c:
             continue
         for j in range(j0, j1):
-            v = z[j, d]
+            v = _z(y, inv_sigma, polarity, j, d)
             if v > e or (v == e and (j < t or (j == t and d < c))):
                 return False
     return True
@@ -97,7 +101,7 @@ def _centre(y, inv_sigma, polarity, t, c, half, nb_off, nb_mem, xs, ys):
 def _probe_block(y, inv_sigma, polarity, nb_off, nb_mem, xs, ys, floor, dead, lo, hi,
                  art_level, art_count, art_window, half):
     n, nc = y.shape
-    z, art_cum = _signed_sigma(y, inv_sigma, polarity, art_level, art_count)
+    art_cum = _artefact_counts(y, inv_sigma, art_level, art_count)
     w = max(dead, 1)
     cap = 1024
     out_t = np.empty(cap, dtype=np.int64)
@@ -110,8 +114,8 @@ def _probe_block(y, inv_sigma, polarity, nb_off, nb_mem, xs, ys, floor, dead, lo
     m = 0
     for t in range(lo, hi):
         for c in range(nc):
-            e = z[t, c]
-            if e < floor or not _is_peak(z, t, c, e, w, nb_off, nb_mem):
+            e = _z(y, inv_sigma, polarity, t, c)
+            if e < floor or not _is_peak(y, inv_sigma, polarity, t, c, e, w, nb_off, nb_mem):
                 continue
             if m == cap:
                 cap *= 2

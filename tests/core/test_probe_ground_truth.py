@@ -99,3 +99,18 @@ def test_scenario_layout_decay_drift_and_overlaps():
         assert np.diff(t[sc.spike_unit == u]).min() >= 0.002 * sc.rate_hz - 1
     again = make_probe_scenario(seconds=10, sites=64, drift_um=30.0, seed=1)
     np.testing.assert_array_equal(again.spike_sample, sc.spike_sample)
+
+
+def test_bundled_probe_demo_is_the_documented_command_and_detects_its_units():
+    from rigside.sample_data import probe_demo_path
+
+    rec = open_recording(probe_demo_path())
+    sc = make_probe_scenario(seconds=2, sites=32, seed=0)
+    truth = load_truth(rec.truth_path())
+    np.testing.assert_array_equal(truth.sample, sc.spike_sample)       # made by the command in its docstring
+    np.testing.assert_array_equal(rec.positions, sc.positions)
+    ev = detect(rec, Params())
+    scored = ev.subset(ev.mask(threshold_sigma=4.5))
+    s = score_probe(scored, rec.positions, sc.spike_sample, sc.spike_unit, np.column_stack(unit_positions(sc)))
+    strong = [u for u in truth.unit_group if snr(truth, ev, u) >= 5]
+    assert s.spike_found[np.isin(sc.spike_unit, strong)].mean() >= 0.9 and s.precision >= 0.95
