@@ -52,7 +52,9 @@ def add_param_options(p: argparse.ArgumentParser) -> None:
     g.add_argument("--dead-time-ms", type=float, metavar="MS", help="dead time in ms (default 1)")
     g.add_argument("--radius-um", type=float, metavar="UM",
                    help="probe neighbourhood radius in micrometres (default 50; recordings with site positions)")
-    g.add_argument("--workers", type=int, help="worker threads (default 2)")
+    g.add_argument("--workers", type=int, metavar="N",
+                   help="threads reading, filtering and cutting chunks, and processes clustering channel "
+                        "groups at the same time (default 2)")
     g.add_argument("--chunk-s", type=float, help="chunk length in seconds (default 1)")
     g.add_argument("--quiet", action="store_true", help="no progress bar")
 

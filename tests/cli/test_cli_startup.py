@@ -49,3 +49,11 @@ def test_metrics_help_carries_the_caution():
     out = subprocess.run([sys.executable, "-m", "rigside", "metrics", "--help"], capture_output=True, text=True,
                          check=True).stdout
     assert "single unit" in " ".join(out.split()) and CAUTION.split()[0] in out
+
+
+def test_workers_help_says_it_also_sets_the_clustering_processes():
+    # first_pass spreads channel groups over this many processes (rigside.core.units.clustering)
+    out = subprocess.run([sys.executable, "-m", "rigside", "sort", "--help"], capture_output=True, text=True,
+                         check=True).stdout
+    text = " ".join(out.split())
+    assert "--workers N threads" in text and "processes clustering channel groups" in text
