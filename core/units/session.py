@@ -58,6 +58,7 @@ from rigside.core.units.session_write import (
     STATIC_FORMAT,
     STATIC_NAME_ATTR,
     ensure_static,
+    prune_static_parts,
     stored_checksum,
     write_state,
 )
@@ -156,11 +157,13 @@ def save_session(path: str | Path, session: Session, keep_backup: bool = True) -
     """Save atomically, keeping the previous good file as ``NAME.bak`` (unless ``keep_backup``
     is False: the caller has kept it elsewhere).
 
-    The autosave file, now older than the saved state, is removed.
+    The autosave file, now older than the saved state, is removed, and so are static parts of
+    earlier sortings no session file refers to any more.
     """
     path = Path(path)
     _save(path, session, keep_backup=keep_backup, main=path)
     safe_unlink(autosave_path(path))
+    prune_static_parts(path, [path, backup_path(path), autosave_path(path)])
     session.source = path
     return path
 

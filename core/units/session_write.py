@@ -8,7 +8,9 @@ pass, so they live in a static part,
 the same name gets a new static part and never disturbs the one an older state (a backup)
 refers to. The state part (recording, parameters, assignments, units, journal) is the file the
 user names; every save and autosave writes it whole and atomically. It records the static
-part's file name and checksum, so it belongs to exactly one static part.
+part's file name and checksum, so it belongs to exactly one static part. After a save, static parts
+of earlier sortings that no session file in the folder names any more are deleted
+(:func:`prune_static_parts`).
 
 Checksums are computed from the arrays being written (per dataset, see
 :func:`rigside.core.io.h5safe.read_verified`), never by reading a file back.
@@ -17,6 +19,7 @@ Checksums are computed from the arrays being written (per dataset, see
 from __future__ import annotations
 
 import json
+import re
 from pathlib import Path
 from typing import Any
 
@@ -24,7 +27,7 @@ import h5py
 import numpy as np
 
 from rigside.core import __version__
-from rigside.core.io.atomic import atomic_write
+from rigside.core.io.atomic import atomic_write, safe_unlink
 from rigside.core.io.h5image import h5_image, h5_in_memory
 from rigside.core.io.h5safe import CHECKSUM_ATTR, read_verified, write_text
 from rigside.core.units.session_labels import labels_to_text
@@ -131,3 +134,45 @@ def write_state(tmp: Path, session: Any, saved_utc: str, static: tuple[str, str]
         known = _write_units(f.create_group("sorting"), sorting.assignments, sorting.units, sorting.next_id)
         known["journal/lines"] = write_text(f.create_group("journal"), "lines", sorting.journal.to_text())
         _seal(f, known)
+
+
+def _attrs(path: Path) -> dict | None:
+    """Root attributes of the HDF5 file at ``path`` (None if it is not one or cannot be read)."""
+    try:
+        with h5py.File(path, "r") as f:
+            return dict(f.attrs)
+    except (OSError, KeyError, ValueError):
+        return None
+
+
+def prune_static_parts(main: str | Path, states: list[Path]) -> list[Path]:
+    """Delete the static parts beside ``main`` that no session file in its folder refers to.
+
+    Only files named ``NAME.static-<16 hex digits>.h5`` whose own attributes say they are a
+    static part with that checksum are candidates (nothing else is ever deleted). Every session
+    state file in the folder (any HDF5 file, whatever its name, whose format is a session's)
+    keeps the part it names; if one of ``states`` (the main file, its backup, its autosave)
+    exists but cannot be read, nothing is deleted. Returns the deleted paths.
+    """
+    main = Path(main)
+    pattern = re.compile(rf"^{re.escape(main.name)}\.static-([0-9a-f]{{16}})\.h5$")
+    candidates, referred = {}, set()
+    for p in main.parent.iterdir():
+        m = pattern.match(p.name)
+        if m:
+            candidates[p] = m.group(1)
+        elif (p.is_file() and h5py.is_hdf5(p)) or p in states:   # any name: NAME.bak.3, copies, temporaries
+            attrs = _attrs(p)
+            if attrs is None and p in states:
+                return []
+            if attrs is not None and attrs.get("format") == FORMAT:
+                referred.add(str(attrs.get(STATIC_NAME_ATTR, "")))
+    removed = []
+    for p, digest in sorted(candidates.items()):
+        attrs = _attrs(p)
+        ours = attrs is not None and attrs.get("format") == STATIC_FORMAT and \
+            str(attrs.get(CHECKSUM_ATTR, "")).startswith(digest)
+        if ours and p.name not in referred:
+            safe_unlink(p)
+            removed.append(p)
+    return removed
