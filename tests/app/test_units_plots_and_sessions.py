@@ -17,7 +17,7 @@ from rigside.gui.settings_store import settings
 from rigside.gui.sorting_controller import SELECTION_COLOURS
 from rigside.gui.window import MainWindow
 from rigside.sample_data import demo_path
-from tests.app.units_helpers import biggest_unit, cluster_demo
+from tests.app.units_helpers import biggest_unit, cluster_demo, select_biggest_pair
 
 
 def brute_force_lags(a: np.ndarray, b: np.ndarray, bin_s: float, window_s: float) -> np.ndarray:
@@ -33,11 +33,8 @@ def test_quality_plots_show_the_selected_units(demo_window, qtbot, tmp_path):
     ctl = win.units
     cluster_demo(win)
     s = ctl.sorting
-    counts = s.counts()
-    group = s.unit(biggest_unit(ctl)).group
-    pair = sorted((u for u in s.units if s.unit(u).group == group), key=counts.get, reverse=True)[:2]
-    ctl.set_selection(pair)
-    assert win.wait_idle(60)
+    pair = select_biggest_pair(win)
+    counts, group = s.counts(), s.unit(pair[0]).group
     plots = win.unit_panels["plots"]
     # ISI: one outline per unit, the refractory window shaded, violations counted as the core counts them
     mp = ctl.metric_settings()

@@ -11,7 +11,7 @@ import numpy as np
 import pytest
 from PySide6.QtGui import QImage
 
-from tests.app.units_helpers import biggest_unit, cluster_demo
+from tests.app.units_helpers import cluster_demo, select_biggest_pair
 
 
 def export_menu(win):
@@ -35,17 +35,6 @@ def show_panel(panel) -> None:
         dock = dock.parentWidget()
     dock.show()
     dock.raise_()
-
-
-def selected_pair(win):
-    ctl = win.units
-    s = ctl.sorting
-    counts = s.counts()
-    group = s.unit(biggest_unit(ctl)).group
-    pair = sorted((u for u in s.units if s.unit(u).group == group), key=counts.get, reverse=True)[:2]
-    ctl.set_selection(pair)
-    assert win.wait_idle(60)
-    return pair
 
 
 def test_nwb_from_the_menu_passes_the_validator(demo_window, tmp_path):
@@ -145,7 +134,7 @@ def test_quality_histograms_as_csv(demo_window, tmp_path):
     cluster_demo(win)
     plots = win.unit_panels["plots"]
     show_panel(plots)
-    pair = selected_pair(win)
+    pair = select_biggest_pair(win)
     out = tmp_path / "isi.csv"
     win.exporter.pick_file = lambda title, start, filt: str(out)
     action, texts = menu_action(win.plot_data_menu, "Unit quality plots: Inter-spike intervals")

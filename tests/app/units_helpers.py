@@ -23,6 +23,18 @@ def biggest_unit(ctl) -> int:
     return max(counts, key=counts.get)
 
 
+def select_biggest_pair(win) -> list[int]:
+    """Select the two largest units of the biggest unit's group and wait for the plots."""
+    ctl = win.units
+    s = ctl.sorting
+    counts = s.counts()
+    group = s.unit(biggest_unit(ctl)).group
+    pair = sorted((u for u in s.units if s.unit(u).group == group), key=counts.get, reverse=True)[:2]
+    ctl.set_selection(pair)
+    assert win.wait_idle(60)
+    return pair
+
+
 def click_data(plot_widget: pg.PlotWidget, x: float, y: float, qtbot) -> None:
     """A left click at data coordinates (x, y) of a plot, through the real mouse path."""
     vb = plot_widget.getPlotItem().getViewBox()
