@@ -110,5 +110,6 @@ def test_export_help_names_exactly_the_files_written(sorted_demo, capsys):
     capsys.readouterr()
     with pytest.raises(SystemExit):
         main(["export", "--help"])
-    named = set(re.findall(r"[\w<>]+\.(?:csv|npy|h5|json)", " ".join(capsys.readouterr().out.split())))
+    description = capsys.readouterr().out.split("positional arguments:")[0].split("\n\n", 1)[1]  # not usage, options
+    named = set(re.findall(r"[\w<>]+\.(?:csv|npy|h5|json)", " ".join(description.split())))
     assert named == written == {"unit_times.csv", "unit_<id>.npy", "binned.h5", "export.json"}
