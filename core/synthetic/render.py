@@ -9,7 +9,6 @@ from __future__ import annotations
 from typing import Iterator
 
 import numpy as np
-from scipy import signal
 
 from rigside.core.progress import CancelFn, ProgressFn, check, report
 from rigside.core.synthetic.scenario import Scenario
@@ -26,6 +25,8 @@ DRIFT_LOW_SHARE = 1.0 / 3.0
 
 def pink_filter(rate_hz: float) -> np.ndarray:
     """The first-order low-pass that colours the low-frequency part of the background."""
+    from scipy import signal  # here: scipy.signal costs seconds of every window's start-up
+
     return signal.butter(1, PINK_CORNER_HZ, "lowpass", fs=rate_hz, output="sos")
 
 
@@ -52,6 +53,8 @@ class Background:
         x = self.rng.standard_normal((n, c), dtype=np.float32) * self.white_sd
         if self.coloured:
             slow = self.rng.standard_normal((n, c), dtype=np.float32) * self.pink_sd
+            from scipy import signal
+
             pink, self.zi = signal.sosfilt(self.sos_pink, slow, axis=0, zi=self.zi)
             shared = self.rng.standard_normal((n, len(self.sc.groups)), dtype=np.float32) * self.shared_sd
             x = x + pink.astype(np.float32)
@@ -117,6 +120,8 @@ def band_noise_sigma(settings, sos: np.ndarray) -> float:
     Hum and drift lie far below the band and are left out.
     """
     rate = settings.rate_hz
+    from scipy import signal
+
     f, h = signal.sosfreqz(sos, worN=1 << 15, fs=rate)
     band = np.abs(h) ** 4
     var = settings.noise_uv ** 2 * float(np.mean(band))
