@@ -29,7 +29,7 @@ from rigside.core.io.recording import TRUTH_SUFFIXES, Layout, write_metadata
 from rigside.core.progress import CancelFn, ProgressFn, check, report
 from rigside.core.synthetic.render import TEMPLATE_MS, Background, add_artefacts
 from rigside.core.synthetic.settings import SynthSettings
-from rigside.core.synthetic.synth import GAIN_UV, refuse_existing, spike_train, triphasic
+from rigside.core.synthetic.synth import GAIN_UV, refuse_existing, spike_train, triphasic, write_truth_spikes
 
 DECAY_UM = 25.0
 """Length constant (um) of the exponential amplitude decay with distance from a unit."""
@@ -243,13 +243,6 @@ UNIT_HEADER = ("unit", "group", "peak_channel", "peak_uv", "rate_hz", "kind",
 
 def write_probe_truth(out: Path, sc) -> None:
     """Write the two ground-truth CSV files of a :class:`~rigside.core.synthetic.probe_synth.ProbeScenario`."""
-    def spikes(tmp: Path) -> None:
-        with open(tmp, "w", newline="", encoding="utf-8") as fh:
-            w = csv.writer(fh)
-            w.writerow(["unit", "sample", "time_s"])
-            for s, u in zip(sc.spike_sample, sc.spike_unit):
-                w.writerow([int(u), int(s), f"{s / sc.rate_hz:.6f}"])
-
     def units(tmp: Path) -> None:
         with open(tmp, "w", newline="", encoding="utf-8") as fh:
             w = csv.writer(fh)
@@ -260,5 +253,5 @@ def write_probe_truth(out: Path, sc) -> None:
                 w.writerow([u.unit, u.shank, peak, f"{u.amplitude_uv * gains[peak]:.1f}", f"{u.rate_hz:g}",
                             "probe", u.shank, f"{u.x_um:.2f}", f"{u.y_um:.2f}", f"{sc.drift_um:g}",
                             f"{u.amplitude_uv:.1f}"])
-    atomic_write(out.with_name(out.stem + TRUTH_SUFFIXES[0]), spikes)
+    write_truth_spikes(out, sc)
     atomic_write(out.with_name(out.stem + TRUTH_SUFFIXES[1]), units)

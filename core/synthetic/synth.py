@@ -250,15 +250,20 @@ def synth_side_files(out: Path) -> list[Path]:
             + [settings_path(out)])
 
 
-def write_truth(out: Path, sc: Scenario) -> None:
-    """Ground-truth CSV files beside the recording (each written atomically)."""
+def write_truth_spikes(out: Path, sc) -> None:
+    """The ground-truth spike file ``<stem>.truth.csv`` (``unit,sample,time_s``) of any scenario
+    with ``spike_sample``, ``spike_unit`` and ``rate_hz``, written atomically."""
     def spikes(tmp: Path) -> None:
         with open(tmp, "w", newline="", encoding="utf-8") as fh:
             w = csv.writer(fh)
             w.writerow(["unit", "sample", "time_s"])
             for s, u in zip(sc.spike_sample, sc.spike_unit):
                 w.writerow([int(u), int(s), f"{s / sc.rate_hz:.6f}"])
+    atomic_write(out.with_name(out.stem + TRUTH_SUFFIXES[0]), spikes)
 
+
+def write_truth(out: Path, sc: Scenario) -> None:
+    """Ground-truth CSV files beside the recording (each written atomically)."""
     def units(tmp: Path) -> None:
         with open(tmp, "w", newline="", encoding="utf-8") as fh:
             w = csv.writer(fh)
@@ -266,5 +271,5 @@ def write_truth(out: Path, sc: Scenario) -> None:
             for u in sc.units:
                 w.writerow([u.unit, u.group, int(u.channels[np.argmax(u.footprint)]), f"{u.amplitude_uv:.1f}",
                             f"{u.rate_hz:g}", u.kind])
-    atomic_write(out.with_name(out.stem + TRUTH_SUFFIXES[0]), spikes)
+    write_truth_spikes(out, sc)
     atomic_write(out.with_name(out.stem + TRUTH_SUFFIXES[1]), units)
