@@ -115,16 +115,11 @@ class Exporter:
         if s is None:
             return False
         rec = Path(s.recording.path)
-        path = self.pick_file("Export the unit table", str(suggested_path(rec, rec.stem + "_units.csv")),
-                              "CSV table (*.csv)")
-        if not path:
+        out = self._ask_output("Export the unit table", suggested_path(rec, rec.stem + "_units.csv"),
+                               "CSV table (*.csv)", (".csv",), (s.recording.path, s.source),
+                               "Cannot write the unit table")
+        if out is None:
             return False
-        try:
-            out = check_output(path, s.recording.path, s.source, suffixes=(".csv",))
-        except RigsideError as exc:
-            self.window.show_error("Cannot write the unit table", str(exc))
-            return False
-        remember_folder(out.parent)
         self.window.runner.submit(EXPORT_SLOT, "Exporting the unit table", _unit_table_job, snapshot(s), out,
                                   self.window.units.metric_settings(),
                                   on_done=lambda p: self._done(f"Unit table written to {p}"))
@@ -145,36 +140,37 @@ class Exporter:
             self.window.show_error(title, f"adding the units to a copy needs a recording in NWB, got {rec.path.name}")
             return False
         source = Path(s.recording.path)
-        path = self.pick_file("Export the units as NWB", str(suggested_path(source, source.stem + "_units.nwb")),
-                              "NWB file (*.nwb)")
-        if not path:
+        out = self._ask_output("Export the units as NWB", suggested_path(source, source.stem + "_units.nwb"),
+                               "NWB file (*.nwb)", (".nwb",), (s.recording.path, s.source), title)
+        if out is None:
             return False
-        try:
-            out = check_output(path, s.recording.path, s.source, suffixes=(".nwb",))
-        except RigsideError as exc:
-            self.window.show_error(title, str(exc))
-            return False
-        remember_folder(out.parent)
         self.window.runner.submit(NWB_SLOT, "Writing the NWB file", _nwb_job, snapshot(s), rec, out,
                                   rec.path if into_copy else None, self.window.units.metric_settings(),
                                   on_done=lambda p: self._done(f"NWB file written to {p}"))
         return True
 
-    def _plot_path(self, target: PlotTarget, suffix: str, filt: str) -> Path | None:
-        rec = self.window.bench.recording
-        near = Path(rec.path) if rec is not None else Path.home() / "plot"
-        path = self.pick_file(f"Save {target.name}", str(suggested_path(near, _file_name(target.name) + suffix)), filt)
+    def _ask_output(self, title: str, start: Path, filt: str, suffixes: tuple[str, ...], protected,
+                    error_title: str) -> Path | None:
+        """Ask for an output file; None if none was chosen or it would replace one of ``protected``
+        (the inputs) or lacks one of ``suffixes`` (said in an error box)."""
+        path = self.pick_file(title, str(start), filt)
         if not path:
             return None
-        suffixes = (".png", ".svg") if suffix == ".png" else (".csv",)
-        protected = [rec.path if rec is not None else None, getattr(self.window.units.session, "source", None)]
         try:
             out = check_output(path, *protected, suffixes=suffixes)
         except RigsideError as exc:
-            self.window.show_error("Cannot save the plot", str(exc))
+            self.window.show_error(error_title, str(exc))
             return None
         remember_folder(out.parent)
         return out
+
+    def _plot_path(self, target: PlotTarget, suffix: str, filt: str) -> Path | None:
+        rec = self.window.bench.recording
+        near = Path(rec.path) if rec is not None else Path.home() / "plot"
+        suffixes = (".png", ".svg") if suffix == ".png" else (".csv",)
+        protected = (rec.path if rec is not None else None, getattr(self.window.units.session, "source", None))
+        return self._ask_output(f"Save {target.name}", suggested_path(near, _file_name(target.name) + suffix), filt,
+                                suffixes, protected, "Cannot save the plot")
 
     def save_plot(self, target: PlotTarget) -> bool:
         """Ask for a .png or .svg file and write the picture of ``target`` into it."""

@@ -16,7 +16,7 @@ from PySide6.QtWidgets import (
 )
 
 from rigside.gui.audit_controller import ImportChoices
-from rigside.gui.dialogs.fields import double_spin
+from rigside.gui.fields import double_spin
 
 
 class AuditImportDialog(QDialog):

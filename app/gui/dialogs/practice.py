@@ -23,7 +23,7 @@ from PySide6.QtWidgets import (
 from rigside.core.errors import RigsideError
 from rigside.core.synthetic.settings import COLOURS, MAX_CHANNELS, MAX_SECONDS, MAX_UNITS, SynthSettings
 from rigside.core.synthetic.synth import synth_side_files
-from rigside.gui.dialogs.fields import double_spin
+from rigside.gui.fields import double_spin
 
 AMPLITUDE_KINDS = ("peak amplitude (µV)", "SNR (× noise σ in the band)")
 PER_BUNDLE = "3 per bundle"

@@ -11,6 +11,7 @@ import pyqtgraph as pg
 from PySide6.QtWidgets import QDoubleSpinBox, QHBoxLayout, QLabel, QVBoxLayout, QWidget
 
 from rigside.gui import palette
+from rigside.gui.fields import double_spin
 
 MAX_SHOWN = 6
 """At most this many selected units are drawn (the first ones selected)."""
@@ -18,15 +19,9 @@ MAX_SHOWN = 6
 
 def spin(value: float, low: float, high: float, step: float, suffix: str, decimals: int = 1,
          tip: str = "") -> QDoubleSpinBox:
-    s = QDoubleSpinBox()
-    s.setRange(low, high)
-    s.setDecimals(decimals)
-    s.setSingleStep(step)
-    s.setValue(value)
-    s.setSuffix(suffix)
+    """A plot's number field (:func:`rigside.gui.fields.double_spin`) that reports once editing ends."""
+    s = double_spin(value, low, high, decimals, suffix, tip, step)
     s.setKeyboardTracking(False)
-    if tip:
-        s.setToolTip(tip)
     return s
 
 

@@ -1,4 +1,4 @@
-"""Input fields the dialogs share."""
+"""Number fields the dialogs and panels share."""
 
 from __future__ import annotations
 
