@@ -18,6 +18,7 @@ import numpy as np
 from rigside.core.errors import CurationError, ParamError
 from rigside.core.progress import CancelFn, ProgressFn
 from rigside.core.units.clustering import ClusterParams, cluster_features, first_pass_assignments
+from rigside.core.units.dismissals import DismissSuggestion
 from rigside.core.units.operation_base import (
     MAX_NOTE_CHARS,
     Operation,
@@ -312,7 +313,7 @@ class SetNote(Operation):
 
 
 OPERATIONS: dict[str, type[Operation]] = {c.kind: c for c in (
-    ClusterGroups, SplitByPolygon, MergeUnits, MoveEvents, ReclusterUnit, Relabel, SetNote)}
+    ClusterGroups, SplitByPolygon, MergeUnits, MoveEvents, ReclusterUnit, Relabel, SetNote, DismissSuggestion)}
 
 
 def operation_from_record(rec: Any) -> Operation:
