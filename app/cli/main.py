@@ -11,9 +11,9 @@ from rigside.core.io.atomic import protect_inputs
 from rigside.core.progress import Cancelled
 
 EXIT_OK, EXIT_FAILURE, EXIT_INPUT, EXIT_CANCELLED = 0, 1, 2, 130
-COMMAND_MODULES = ("detect", "synth", "batch", "sort", "export", "metrics", "audit", "window")
+COMMAND_MODULES = ("detect", "synth", "batch", "sort", "export", "metrics", "suggest", "audit", "window")
 COMMAND_HOME = {"detect": "detect", "synth": "synth", "batch": "batch", "sort": "sort", "export": "export",
-                "metrics": "metrics", "audit": "audit", "open": "window", "demo": "window"}
+                "metrics": "metrics", "suggest": "suggest", "audit": "audit", "open": "window", "demo": "window"}
 """Module registering each command: running one command imports only its module (start-up time)."""
 
 

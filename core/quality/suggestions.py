@@ -149,15 +149,16 @@ def pc_columns(names) -> list[int]:
 
 
 def mean_waveforms(recording, events: EventTable, params: Params, sorting: Sorting, units, n_per_unit: int = 200,
-                   cancel: CancelFn = None) -> dict[int, np.ndarray]:
+                   progress: ProgressFn = None, cancel: CancelFn = None) -> dict[int, np.ndarray]:
     """Mean filtered waveform (samples x the group's channels, float64) of each unit, from at
     most ``n_per_unit`` of its events spread over the recording."""
     from rigside.core.signal.filtering import BandPass
 
     bandpass = BandPass(recording, params.filter)
     out = {}
-    for u in units:
+    for i, u in enumerate(units):
         check(cancel)
+        report(progress, i / max(1, len(units)), f"mean waveform of unit {u}")
         idx = sorting.events_of(u)
         snips, _ = event_snippets(recording, events, params, idx[spread_subsample(len(idx), n_per_unit)], bandpass,
                                   cancel)
