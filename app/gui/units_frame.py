@@ -23,6 +23,7 @@ from rigside.gui.panels.units import UnitListPanel
 from rigside.gui.session_flow import SessionFlow
 from rigside.gui.settings_store import settings
 from rigside.gui.sorting_controller import SortingController
+from rigside.gui.suggestions_frame import install_suggestions
 from rigside.gui.window_actions import add_action
 
 UNIT_LIST_WIDTH = 600
@@ -90,6 +91,7 @@ def install_units(window) -> SortingController:
     for signal in (ctl.selection_changed, ctl.units_changed, ctl.sorting_replaced, ctl.rows_changed):
         signal.connect(colour_selected_events)
     _build_menus(window, ctl, unit_list, plane)
+    install_suggestions(window, ctl)
     return ctl
 
 
