@@ -17,6 +17,22 @@ def _wait_listed(win, qtbot):
     qtbot.waitUntil(lambda: not win.runner.busy() and ctl.revision == units.sorting.revision, timeout=60000)
 
 
+def _holder_of_look_alikes(win) -> set[int]:
+    """Units holding most of the demo's look-alike pair's spikes (matched within 0.5 ms by sample)."""
+    truth, sorting, events = win.bench.analysis.truth, win.units.sorting, win.units.events
+    pair = [u for u, kind in truth.unit_kind.items() if kind == "look-alike"]
+    tol = int(round(0.0005 * events.rate_hz))
+    out = set()
+    for u in pair:
+        spikes = truth.sample[truth.unit == u]
+        i = np.clip(np.searchsorted(events.sample, spikes), 1, len(events.sample) - 1)
+        near = np.where(spikes - events.sample[i - 1] < events.sample[i] - spikes, i - 1, i)
+        hit = np.abs(events.sample[near] - spikes) <= tol
+        ids, counts = np.unique(sorting.assignments[near[hit]], return_counts=True)
+        out.add(int(ids[np.argmax(counts)]))
+    return out
+
+
 def _choose(panel, qtbot, row: int) -> None:
     rect = panel.table.visualItemRect(panel.table.item(row, 1))
     qtbot.mouseClick(panel.table.viewport(), Qt.MouseButton.LeftButton, pos=rect.center())
@@ -30,6 +46,9 @@ def test_suggestions_are_listed_with_evidence_accepted_rejected_and_undone(demo_
     win.docks["suggestions"].raise_()
     _wait_listed(win, qtbot)
     assert ctl.active and win.docks["suggestions"].isVisible()
+    # the demo's look-alike pair is in the list: as a merge of two units, or as a split of the one holding both
+    holders = _holder_of_look_alikes(win)
+    assert any(set(s.units) == holders for s in ctl.suggestions), (holders, [s.text for s in ctl.suggestions])
     assert ctl.with_waveforms and ctl.suggestions, ctl.status
     assert panel.table.rowCount() == len(ctl.suggestions)
     assert "score" in panel.table.item(0, 1).toolTip() and panel.table.item(0, 3).text()
