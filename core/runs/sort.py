@@ -1,4 +1,4 @@
-"""Headless sorting run: detection, features, first-pass clustering, session — resumable.
+"""Headless sorting run: detection, features, first-pass clustering, the overlap pass, session — resumable.
 
 After each long stage the run writes a checkpoint beside the session
 (``NAME.checkpoint.h5``: the event table, the features once computed, the parameters, the
@@ -25,13 +25,15 @@ from rigside.core.io.recording import Recording
 from rigside.core.params import Params
 from rigside.core.progress import CancelFn, ProgressFn, report
 from rigside.core.signal.features import Features, compute_features, feature_names
+from rigside.core.signal.overlaps import recover_overlaps
 from rigside.core.signal.pipeline import detect, thresholds_sigma
 from rigside.core.textparse import parse_json
 from rigside.core.units.first_pass import first_pass
+from rigside.core.units.recovered import with_recovered
 from rigside.core.units.session import RecordingRef, Session, save_session
 from rigside.core.units.sorting import Sorting
 
-STAGE_SHARES = (0.45, 0.35, 0.2)  # detection, features, clustering: shares of the progress bar
+STAGE_SHARES = (0.42, 0.33, 0.15, 0.1)  # detection, features, clustering, overlaps: shares of the progress bar
 
 
 def checkpoint_path(session_path: str | Path) -> Path:
@@ -117,7 +119,10 @@ def sort_recording(recording: Recording, params: Params, checkpoint: Path | None
         The recording (read-only).
     params
         Pipeline parameters (``params.cluster`` for the first pass). The events kept are
-        those at the detection threshold, artefacts included (they go to no unit).
+        those at the detection threshold, artefacts included (they go to no unit). With
+        ``params.overlaps.enabled`` (and no site positions), the spikes hidden by overlaps are
+        recovered after the first pass (:mod:`rigside.core.signal.overlaps`, joined by
+        :func:`rigside.core.units.recovered.with_recovered`).
     checkpoint
         File to save the events and features in after each long stage (none if ``None``).
     resume
@@ -132,7 +137,7 @@ def sort_recording(recording: Recording, params: Params, checkpoint: Path | None
     """
     params.validate(recording.rate_hz)
     key = _key(recording, params) if checkpoint is not None else ""
-    a, b, _ = STAGE_SHARES
+    a, b, c, _ = STAGE_SHARES
     events, features = (None, None)
     if checkpoint is not None and resume:
         events, features = _read_checkpoint(checkpoint, key, recording, params,
@@ -152,7 +157,13 @@ def sort_recording(recording: Recording, params: Params, checkpoint: Path | None
             _write_checkpoint(checkpoint, key, events, features, recording.content_hash)
     report(progress, a + b, "features ready")
     sorting = first_pass(events, features, params.cluster, cancel=cancel, workers=params.run.workers,
-                         progress=lambda f, m: report(progress, a + b + (1 - a - b) * f, m))
+                         progress=lambda f, m: report(progress, a + b + c * f, m))
+    if params.overlaps.enabled and recording.positions is None:
+        if features.bases is None:  # read from a checkpoint: the PCA bases are fitted again
+            features = compute_features(recording, events, params, cancel=cancel)
+        found = recover_overlaps(recording, events, features, sorting.assignments, params, cancel=cancel,
+                                 progress=lambda f, m: report(progress, a + b + c + (1 - a - b - c) * f, m))
+        events, _, sorting = with_recovered(events, features, sorting, found)
     return events, sorting
 
 

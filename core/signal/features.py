@@ -36,10 +36,12 @@ if TYPE_CHECKING:  # scikit-learn costs seconds to import: only the fit below ne
 
 @dataclass
 class Features:
-    """Feature matrix (events x features, float32) and the name of each column."""
+    """Feature matrix (events x features, float32) and the name of each column; ``bases`` maps each
+    channel group to its fitted PCA when the features were just computed (None when read from a file)."""
 
     values: np.ndarray
     names: list[str]
+    bases: dict[int, PCA] | None = None
 
     def column(self, name: str) -> np.ndarray:
         return self.values[:, self.names.index(name)]
@@ -145,7 +147,7 @@ def compute_features(recording: Recording, events: EventTable, params: Params, p
 
     cut(rest, lambda s, ev, flat: put_scores(out, order[ev], pcas[s], flat), share, 1.0)
     report(progress, 1.0, "features done")
-    return Features(out, feature_names(sp.n_pcs))
+    return Features(out, feature_names(sp.n_pcs), {int(g): p for g, p in zip(groups, pcas) if p is not None})
 
 
 def put_scores(out: np.ndarray, rows: np.ndarray, pca: PCA | None, flat: np.ndarray) -> None:
