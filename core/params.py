@@ -263,15 +263,18 @@ class ProbeParams:
 
 @dataclass
 class OverlapParams:
-    """The second pass of ``sort`` (:mod:`rigside.core.signal.overlaps`); ``max_misfit`` is the largest mean
-    squared misfit (in noise variances per sample) a found spike may leave after its unit's template."""
+    """The second pass of ``sort`` (:mod:`rigside.core.signal.overlaps`): ``max_misfit`` is the largest mean
+    squared misfit (noise variances per sample) the two fitted templates may leave, ``min_share`` the least
+    amplitude of a found spike as a share of the event it overlaps."""
 
     enabled: bool = True
-    max_misfit: float = 2.0
+    max_misfit: float = 4.0
+    min_share: float = 0.45
 
     def validate(self) -> None:
         _require(isinstance(self.enabled, bool), f"overlap pass switch must be true or false, got {self.enabled!r}")
         _between("template misfit", self.max_misfit, 0.1, 100, "noise variances")
+        _between("overlap amplitude share", self.min_share, 0, 10, "")
 
 
 @dataclass

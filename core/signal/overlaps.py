@@ -39,7 +39,8 @@ from rigside.core.signal.chunk_pool import chunk_bounds
 from rigside.core.signal.features import Features, put_scores, shape_features, usable_channels
 from rigside.core.signal.filtering import BandPass
 from rigside.core.signal.pipeline import thresholds_sigma
-from rigside.core.signal.snippets import align_subsample, cut_windows, snippet_window
+from rigside.core.signal.snippet_pass import own_columns
+from rigside.core.signal.snippets import align_subsample, cut_windows, peak_offset, snippet_window
 
 SCALE_RANGE = (0.6, 1.6)
 """Amplitude scale a template may take when fitted to a found spike (common practice, no source)."""
@@ -76,11 +77,12 @@ class _Group:
     group: int
     channels: np.ndarray          # usable channels, in snippet column order
     units: np.ndarray             # unit ids of the group
-    templates: np.ndarray         # (units, samples, channels) float32, microvolts
-    scaled: np.ndarray            # the same in noise sigmas, float64
-    cross: np.ndarray             # (units, units, 2 dead + 1): <template i shifted by d, template j>
+    scaled: np.ndarray            # templates (units, samples, channels) in noise sigmas, float64
+    slopes: np.ndarray            # their time derivative (per sample), for sub-sample shifts
     sample: np.ndarray            # assigned events: samples (sorted), ...
-    template_of: np.ndarray       # ... the template index of each ...
+    template_of: np.ndarray       # ... the template index of each, ...
+    own: np.ndarray               # ... the column of its channel, its amplitude (sigma) ...
+    amplitude: np.ndarray
     rows: np.ndarray              # ... and its row of the event table
     taken: np.ndarray             # samples of every event of the group (sorted)
     pca: object                   # the group's PCA basis (for the recovered events' features)
@@ -121,7 +123,7 @@ def recover_overlaps(recording: Recording, events: EventTable, features: Feature
     rate = recording.rate_hz
     before, after = snippet_window(params.snippets, rate)
     dead = int(round(params.detect.dead_time_ms * rate / 1000))
-    groups = _groups(recording, events, features, assignments, before + after, dead)
+    groups = _groups(recording, events, features, assignments, before + after)
     margin = 2 * (before + after + dead) + 2
     bounds = chunk_bounds(recording.n_samples, max(int(params.run.chunk_s * rate), margin))
     starts = np.array([b[0] for b in bounds], dtype=np.int64)
@@ -150,7 +152,7 @@ def recover_overlaps(recording: Recording, events: EventTable, features: Feature
 
 
 def _groups(recording: Recording, events: EventTable, features: Features, assignments: np.ndarray,
-            length: int, dead: int) -> list[_Group]:
+            length: int) -> list[_Group]:
     """Templates and event samples of every group with units (templates from the PCA basis)."""
     out = []
     sigma = np.asarray(events.sigma_uv, dtype=np.float64)
@@ -169,18 +171,11 @@ def _groups(recording: Recording, events: EventTable, features: Features, assign
         scores /= np.bincount(template_of, minlength=len(units))[:, None]
         templates = (pca.mean_ + scores @ pca.components_).reshape(len(units), length, len(channels))
         scaled = templates / sigma[channels]
-        out.append(_Group(g, channels, units, templates.astype(np.float32), scaled, _shifted_products(scaled, dead),
-                          events.sample[assigned], template_of, np.flatnonzero(assigned), events.sample[in_group], pca))
-    return out
-
-
-def _shifted_products(t: np.ndarray, dead: int) -> np.ndarray:
-    """``out[i, j, d + dead]``: the product of template i shifted by d samples with template j."""
-    k, length, _ = t.shape
-    out = np.zeros((k, k, 2 * dead + 1))
-    for d in range(-min(dead, length - 1), min(dead, length - 1) + 1):
-        a, b = (t[:, :length - d], t[:, d:]) if d >= 0 else (t[:, -d:], t[:, :length + d])
-        out[:, :, d + dead] = np.einsum("ilc,jlc->ij", a, b)
+        own = own_columns(events.channel[assigned], np.zeros(int(assigned.sum()), np.int64), [channels],
+                          recording.n_channels)
+        out.append(_Group(g, channels, units, scaled, np.gradient(scaled, axis=1), events.sample[assigned],
+                          template_of, own, events.amplitude_sigma[assigned], np.flatnonzero(assigned),
+                          events.sample[in_group], pca))
     return out
 
 
@@ -189,12 +184,15 @@ def _search(y: np.ndarray, lo: int, span: tuple[int, int], g: _Group, sigma: np.
     """The recovered events of one group whose peak lies in ``span`` (file samples) of a filtered block."""
     (start, stop), (before, after) = span, window
     length = before + after
-    resid = y[:, g.channels].astype(np.float32, copy=True)
-    a, b = np.searchsorted(g.sample, [lo + before, lo + len(y) - after])
-    rows = (g.sample[a:b, None] - lo + np.arange(-before, after)[None, :]).ravel()
-    np.subtract.at(resid, rows, g.templates[g.template_of[a:b]].reshape(-1, len(g.channels)))
+    sig = sigma[g.channels].astype(np.float32)
+    scaled = y[:, g.channels] / sig
+    a, b = np.searchsorted(g.sample, [lo + before + 1, lo + len(y) - after - 1])
+    at = g.sample[a:b] - lo
+    own = scaled[at[:, None] + np.arange(-1, 2)[None, :], g.own[a:b, None]]
+    shift = peak_offset(own[:, 0], own[:, 1], own[:, 2])
+    placed = g.scaled[g.template_of[a:b]] - shift[:, None, None] * g.slopes[g.template_of[a:b]]
+    np.subtract.at(scaled, (at[:, None] + np.arange(-before, after)[None, :]).ravel(), placed.reshape(-1, len(sig)))
     polarity = params.detect.polarity
-    scaled = resid / sigma[g.channels].astype(np.float32)
     signed = -scaled if polarity == "negative" else scaled if polarity == "positive" else np.abs(scaled)
     column = np.argmax(signed, axis=1)
     env = signed[np.arange(len(signed)), column]
@@ -202,22 +200,25 @@ def _search(y: np.ndarray, lo: int, span: tuple[int, int], g: _Group, sigma: np.
     t = np.flatnonzero(peak & (env >= thr[g.channels][column]))
     t = t[(lo + t >= start) & (lo + t < stop) & (t >= before + dead + 1) & (t + after + dead + 1 <= len(y))]
     e, near = _nearest(g.sample, lo + t)
-    keep = (near >= 1) & (near <= dead) & (_nearest(g.taken, lo + t)[1] >= 1)
+    keep = (near >= 1) & (near <= dead) & (_nearest(g.taken, lo + t)[1] >= 1) \
+        & (env[t] >= params.overlaps.min_share * g.amplitude[e])
     t, e = t[keep], e[keep]
     x = cut_windows(scaled, lo, lo + t, np.arange(-before - dead, after + dead)).astype(np.float64)
-    unit_e, unit_c, ok = _pair_fit(x, g.sample[e] - lo - t, g.template_of[e], g, dead,
-                                   params.overlaps.max_misfit, thr[g.channels][column[t]] ** 2)
+    col_t = column[t]
+    shift_c = peak_offset(scaled[t - 1, col_t], scaled[t, col_t], scaled[t + 1, col_t])
+    unit_e, unit_c, ok = _pair_fit(x, g.sample[e] - lo - t, g, dead, params.overlaps.max_misfit,
+                                   thr[g.channels][col_t] ** 2, (shift[e - a], shift_c, g.template_of[e]))
     for k in np.flatnonzero(ok):         # a unit fires once within the dead time: no second spike of it
         others = g.sample[(g.template_of == unit_c[k]) & (g.sample != g.sample[e[k]])]
         ok[k] = _nearest(others, lo + t[k:k + 1])[1][0] > dead
-    t, e, unit_e, unit_c = t[ok], e[ok], unit_e[ok], unit_c[ok]
-    own = column[t]
-    aligned = align_subsample(cut_windows(resid, lo, lo + t, np.arange(-before - 1, after + 1)), own, before)
+    t, e, unit_e, unit_c, col_t = t[ok], e[ok], unit_e[ok], unit_c[ok], col_t[ok]
+    resid = scaled * sig
+    aligned = align_subsample(cut_windows(resid, lo, lo + t, np.arange(-before - 1, after + 1)), col_t, before)
     feats = np.zeros((len(t), n_features), dtype=np.float32)
-    feats[:, -3:] = shape_features(aligned, own, before, rate)
+    feats[:, -3:] = shape_features(aligned, col_t, before, rate)
     put_scores(feats, np.arange(len(t)), g.pca, aligned.reshape(len(t), length * len(g.channels)))
-    cols = EventColumns(sample=lo + t.astype(np.int64), channel=g.channels[own].astype(np.int32),
-                        group=np.full(len(t), g.group, np.int32), amplitude_uv=resid[t, own],
+    cols = EventColumns(sample=lo + t.astype(np.int64), channel=g.channels[col_t].astype(np.int32),
+                        group=np.full(len(t), g.group, np.int32), amplitude_uv=resid[t, col_t],
                         amplitude_sigma=env[t].astype(np.float32), artefact=np.zeros(len(t), bool))
     return _Found(cols, g.units[unit_c].astype(np.int32), feats, g.rows[e], g.units[unit_e].astype(np.int32))
 
@@ -232,41 +233,46 @@ def _nearest(sorted_samples: np.ndarray, at: np.ndarray) -> tuple[np.ndarray, np
     return np.where(dl <= dr, left, right), np.minimum(dl, dr)
 
 
-def _pair_fit(x: np.ndarray, shift: np.ndarray, unit_e: np.ndarray, g: _Group, dead: int, max_misfit: float,
-              min_gain: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+def _pair_fit(x: np.ndarray, offset: np.ndarray, g: _Group, dead: int, max_misfit: float, min_gain: np.ndarray,
+              fractions: tuple[np.ndarray, np.ndarray, np.ndarray]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Two spikes of two different units fitted to each window: one at the existing event, one at the find.
 
     ``x`` is the residual (noise sigmas) around each find, ``(n, length + 2 dead, channels)``, with the
-    find's peak at ``before + dead``; ``shift`` is the existing event's offset from the find and
-    ``unit_e`` the template subtracted there. Every pair of templates (i at the event, j at the find,
-    i != j) is fitted with least-squares amplitudes (clipped to :data:`SCALE_RANGE`). Returns the best
-    pair's templates and whether it is accepted: its mean squared misfit is at most ``max_misfit`` and
-    it explains at least ``min_gain`` (noise variances) more than the best single template at the event.
+    find's peak at ``before + dead``; ``offset`` is the existing event's offset from the find; ``fractions``
+    holds the sub-sample peak positions of the event and the find, and the template subtracted at the
+    event. Every pair of templates (i at the event, j at the find, i != j), each shifted to its sub-sample
+    peak, is fitted with least-squares amplitudes (clipped to :data:`SCALE_RANGE`). Returns the best pair
+    and whether it is accepted: its mean squared misfit is at most ``max_misfit`` and it explains at least
+    ``min_gain`` (noise variances) more than the best single template at the event.
     """
     n, (k, length, _) = len(x), g.scaled.shape
     if n == 0 or k < 2:
         return np.zeros(n, np.int64), np.zeros(n, np.int64), np.zeros(n, bool)
-    gram = g.cross[:, :, dead]
-    seg = (dead + shift)[:, None] + np.arange(length)[None, :]
-    xe = np.take_along_axis(x, seg[:, :, None], axis=1)
-    xa0 = np.einsum("nlc,klc->nk", xe, g.scaled)
-    xa = xa0 + gram[unit_e]                                        # the event's own template added back
-    xb = np.einsum("nlc,klc->nk", x[:, dead:dead + length], g.scaled) + g.cross[unit_e, :, dead + shift]
-    xx = np.sum(x ** 2, axis=(1, 2)) + 2 * xa0[np.arange(n), unit_e] + gram[unit_e, unit_e]
-    aa, ab = np.diag(gram), np.moveaxis(g.cross[:, :, dead + shift], 2, 0)      # ab: (n, i, j)
-    det = aa[None, :, None] * aa[None, None, :] - ab ** 2
+    shift_e, shift_c, unit_e = fractions
+    at_e = np.zeros((n, k) + x.shape[1:])
+    at_c = np.zeros_like(at_e)
+    for m in range(n):
+        o = dead + int(offset[m])
+        at_e[m, :, o:o + length] = g.scaled - shift_e[m] * g.slopes
+        at_c[m, :, dead:dead + length] = g.scaled - shift_c[m] * g.slopes
+    x = x + at_e[np.arange(n), unit_e]                            # the event's own template added back
+    xa, xb = np.einsum("nwc,nkwc->nk", x, at_e), np.einsum("nwc,nkwc->nk", x, at_c)
+    aa, bb = np.einsum("nkwc,nkwc->nk", at_e, at_e), np.einsum("nkwc,nkwc->nk", at_c, at_c)
+    ab = np.einsum("niwc,njwc->nij", at_e, at_c)
+    xx = np.sum(x ** 2, axis=(1, 2))
+    det = aa[:, :, None] * bb[:, None, :] - ab ** 2
     with np.errstate(divide="ignore", invalid="ignore"):
-        sa = np.clip((xa[:, :, None] * aa[None, None, :] - xb[:, None, :] * ab) / det, *SCALE_RANGE)
-        sb = np.clip((xb[:, None, :] * aa[None, :, None] - xa[:, :, None] * ab) / det, *SCALE_RANGE)
-    err = (xx[:, None, None] - 2 * sa * xa[:, :, None] - 2 * sb * xb[:, None, :] + sa ** 2 * aa[None, :, None]
-           + sb ** 2 * aa[None, None, :] + 2 * sa * sb * ab)
+        sa = np.clip((xa[:, :, None] * bb[:, None, :] - xb[:, None, :] * ab) / det, *SCALE_RANGE)
+        sb = np.clip((xb[:, None, :] * aa[:, :, None] - xa[:, :, None] * ab) / det, *SCALE_RANGE)
+    err = (xx[:, None, None] - 2 * sa * xa[:, :, None] - 2 * sb * xb[:, None, :] + sa ** 2 * aa[:, :, None]
+           + sb ** 2 * bb[:, None, :] + 2 * sa * sb * ab)
     err[:, np.arange(k), np.arange(k)] = np.inf
     err[~np.isfinite(err)] = np.inf
     best = np.argmin(err.reshape(n, -1), axis=1)
     i, j = np.divmod(best, k)
     pair = err.reshape(n, -1)[np.arange(n), best]
-    single_scale = np.clip(xa / aa[None, :], *SCALE_RANGE)
-    single = np.min(xx[:, None] - 2 * single_scale * xa + single_scale ** 2 * aa[None, :], axis=1)
+    single_scale = np.clip(xa / aa, *SCALE_RANGE)
+    single = np.min(xx[:, None] - 2 * single_scale * xa + single_scale ** 2 * aa, axis=1)
     ok = (pair / (x.shape[1] * x.shape[2]) <= max_misfit) & (single - pair >= min_gain)
     return i, j, ok
 
