@@ -28,7 +28,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.ndimage import maximum_filter1d
 
 from rigside.core.errors import RigsideError
 from rigside.core.events import EventColumns, EventTable
@@ -38,9 +37,9 @@ from rigside.core.progress import CancelFn, ProgressFn, report, run_bounded
 from rigside.core.signal.chunk_pool import chunk_bounds
 from rigside.core.signal.features import Features, put_scores, shape_features, usable_channels
 from rigside.core.signal.filtering import BandPass
+from rigside.core.signal.overlap_kernel import POLARITY_CODES, group_finds
 from rigside.core.signal.pipeline import thresholds_sigma
-from rigside.core.signal.snippet_pass import own_columns
-from rigside.core.signal.snippets import align_subsample, cut_windows, peak_offset, snippet_window
+from rigside.core.signal.snippets import align_subsample, peak_offset, snippet_window
 
 SCALE_RANGE = (0.6, 1.6)
 """Amplitude scale a template may take when fitted to a found spike (common practice, no source)."""
@@ -79,12 +78,7 @@ class _Group:
     units: np.ndarray             # unit ids of the group
     scaled: np.ndarray            # templates (units, samples, channels) in noise sigmas, float64
     slopes: np.ndarray            # their time derivative (per sample), for sub-sample shifts
-    sample: np.ndarray            # assigned events: samples (sorted), ...
-    template_of: np.ndarray       # ... the template index of each, ...
-    own: np.ndarray               # ... the column of its channel, its amplitude (sigma) ...
-    amplitude: np.ndarray
-    rows: np.ndarray              # ... and its row of the event table
-    taken: np.ndarray             # samples of every event of the group (sorted)
+    samples_of: list              # sorted samples of each unit's events
     pca: object                   # the group's PCA basis (for the recovered events' features)
 
 
@@ -104,7 +98,7 @@ def recover_overlaps(recording: Recording, events: EventTable, features: Feature
     assignments
         Unit id of every event (-1: none), e.g. the first pass's.
     params
-        ``detect`` (thresholds, dead time, polarity), ``snippets`` (window), ``overlaps.max_misfit``,
+        ``detect`` (thresholds, dead time, polarity), ``snippets`` (window), ``overlaps``,
         ``filter`` and ``run`` (chunks and workers).
     progress, cancel
         Progress callback (fraction of chunks done) and cancel check.
@@ -124,43 +118,66 @@ def recover_overlaps(recording: Recording, events: EventTable, features: Feature
     before, after = snippet_window(params.snippets, rate)
     dead = int(round(params.detect.dead_time_ms * rate / 1000))
     groups = _groups(recording, events, features, assignments, before + after)
+    slot = {g.group: i for i, g in enumerate(groups)}
+    rows = np.flatnonzero(np.isin(events.group, list(slot)))          # events of groups with units
+    template = np.full(len(events), -1, np.int64)
+    for g in groups:
+        in_g = np.flatnonzero((events.group == g.group) & (assignments >= 0))
+        template[in_g] = np.searchsorted(g.units, assignments[in_g])
+    sample, group = events.sample[rows], np.array([slot.get(int(x), -1) for x in events.group[rows]], np.int64)
     margin = 2 * (before + after + dead) + 2
     bounds = chunk_bounds(recording.n_samples, max(int(params.run.chunk_s * rate), margin))
-    starts = np.array([b[0] for b in bounds], dtype=np.int64)
-    at = np.searchsorted(starts, np.concatenate([g.sample for g in groups] or [[]]).astype(np.int64), "right") - 1
+    at = np.searchsorted([b[0] for b in bounds], sample, "right") - 1
     busy = np.unique(np.clip(np.concatenate([at - 1, at, at + 1]), 0, len(bounds) - 1))  # finds may cross an edge
-    work_list = [(int(i), 0) for i in busy]
     bp = BandPass(recording, params.filter)
     thr = thresholds_sigma(params, events.sigma_uv)
     sigma = np.asarray(events.sigma_uv, dtype=np.float64)
-    parts: list[_Found] = []
-    n_features = features.values.shape[1]
+    found: list[list] = [[] for _ in groups]
+    done = [0]
 
-    def work(i: int, _: int):
+    def work(i: int, _: int) -> list:
         start, stop = bounds[i]
         lo, hi = max(0, start - margin), min(recording.n_samples, stop + margin)
         y = bp.read(lo, hi)
-        return [_search(y, lo, (start, stop), g, sigma, thr, dead, (before, after), params, n_features,
-                        rate) for g in groups]
+        a, b = np.searchsorted(sample, [lo, hi])
+        pos, ev = sample[a:b] - lo, rows[a:b]
+        inner = np.clip(pos, 1, len(y) - 2)
+        ch = events.channel[ev]
+        shift = peak_offset(y[inner - 1, ch], y[inner, ch], y[inner + 1, ch])
+        out = []
+        for gi, g in enumerate(groups):
+            m = group[a:b] == gi
+            if m.any():
+                r, col, env, near, win, snip = group_finds(
+                    y, lo, start, stop, g.channels, sigma[g.channels], thr[g.channels], pos[m], template[ev[m]],
+                    shift[m], events.amplitude_sigma[ev[m]], g.scaled.astype(np.float32),
+                    g.slopes.astype(np.float32), before, after, dead, POLARITY_CODES[params.detect.polarity],
+                    params.overlaps.min_share)
+                out.append((gi, lo + r, col, env, ev[m][near], shift[m][near], win, snip))
+        return out
 
-    def collect(found) -> None:
-        parts.extend(found)
-        report(progress, len(parts) / max(1, len(groups) * len(work_list)), "looking for overlapping spikes")
+    def collect(part: list) -> None:
+        for item in part:
+            found[item[0]].append(item[1:])
+        done[0] += 1
+        report(progress, done[0] / len(busy), "looking for overlapping spikes")
 
-    run_bounded(work, work_list, params.run.workers, collect, cancel)
+    run_bounded(work, [(int(i), 0) for i in busy], params.run.workers, collect, cancel)
+    n_features = features.values.shape[1]
+    parts = [_fit_group(g, [np.concatenate(x) for x in zip(*found[gi])], events, template, dead, (before, after),
+                        params, n_features, rate) for gi, g in enumerate(groups) if found[gi]]
     return _assemble(parts, n_features, dead, assignments)
 
 
 def _groups(recording: Recording, events: EventTable, features: Features, assignments: np.ndarray,
             length: int) -> list[_Group]:
-    """Templates and event samples of every group with units (templates from the PCA basis)."""
+    """Templates of every group with units (from the PCA basis) and the samples of each unit."""
     out = []
     sigma = np.asarray(events.sigma_uv, dtype=np.float64)
     for g in np.unique(events.group):
         g = int(g)
         pca = features.bases.get(g)
-        in_group = events.group == g
-        assigned = in_group & (assignments >= 0)
+        assigned = (events.group == g) & (assignments >= 0)
         if pca is None or not assigned.any():
             continue
         channels = usable_channels(recording.groups[g], events.excluded)
@@ -171,56 +188,37 @@ def _groups(recording: Recording, events: EventTable, features: Features, assign
         scores /= np.bincount(template_of, minlength=len(units))[:, None]
         templates = (pca.mean_ + scores @ pca.components_).reshape(len(units), length, len(channels))
         scaled = templates / sigma[channels]
-        own = own_columns(events.channel[assigned], np.zeros(int(assigned.sum()), np.int64), [channels],
-                          recording.n_channels)
-        out.append(_Group(g, channels, units, scaled, np.gradient(scaled, axis=1), events.sample[assigned],
-                          template_of, own, events.amplitude_sigma[assigned], np.flatnonzero(assigned),
-                          events.sample[in_group], pca))
+        samples = events.sample[assigned]
+        out.append(_Group(g, channels, units, scaled, np.gradient(scaled, axis=1),
+                          [samples[template_of == i] for i in range(len(units))], pca))
     return out
 
 
-def _search(y: np.ndarray, lo: int, span: tuple[int, int], g: _Group, sigma: np.ndarray, thr: np.ndarray,
-            dead: int, window: tuple[int, int], params: Params, n_features: int, rate: float) -> _Found:
-    """The recovered events of one group whose peak lies in ``span`` (file samples) of a filtered block."""
-    (start, stop), (before, after) = span, window
-    length = before + after
-    sig = sigma[g.channels].astype(np.float32)
-    scaled = y[:, g.channels] / sig
-    a, b = np.searchsorted(g.sample, [lo + before + 1, lo + len(y) - after - 1])
-    at = g.sample[a:b] - lo
-    own = scaled[at[:, None] + np.arange(-1, 2)[None, :], g.own[a:b, None]]
-    shift = peak_offset(own[:, 0], own[:, 1], own[:, 2])
-    placed = g.scaled[g.template_of[a:b]] - shift[:, None, None] * g.slopes[g.template_of[a:b]]
-    np.subtract.at(scaled, (at[:, None] + np.arange(-before, after)[None, :]).ravel(), placed.reshape(-1, len(sig)))
-    polarity = params.detect.polarity
-    signed = -scaled if polarity == "negative" else scaled if polarity == "positive" else np.abs(scaled)
-    column = np.argmax(signed, axis=1)
-    env = signed[np.arange(len(signed)), column]
-    peak = env >= maximum_filter1d(env, 2 * dead + 1, mode="nearest")
-    t = np.flatnonzero(peak & (env >= thr[g.channels][column]))
-    t = t[(lo + t >= start) & (lo + t < stop) & (t >= before + dead + 1) & (t + after + dead + 1 <= len(y))]
-    e, near = _nearest(g.sample, lo + t)
-    keep = (near >= 1) & (near <= dead) & (_nearest(g.taken, lo + t)[1] >= 1) \
-        & (env[t] >= params.overlaps.min_share * g.amplitude[e])
-    t, e = t[keep], e[keep]
-    x = cut_windows(scaled, lo, lo + t, np.arange(-before - dead, after + dead)).astype(np.float64)
-    col_t = column[t]
-    shift_c = peak_offset(scaled[t - 1, col_t], scaled[t, col_t], scaled[t + 1, col_t])
-    unit_e, unit_c, ok = _pair_fit(x, g.sample[e] - lo - t, g, dead, params.overlaps.max_misfit,
-                                   thr[g.channels][col_t] ** 2, (shift[e - a], shift_c, g.template_of[e]))
+def _fit_group(g: _Group, finds: list[np.ndarray], events: EventTable, template: np.ndarray, dead: int,
+               window: tuple[int, int], params: Params, n_features: int, rate: float) -> _Found:
+    """Pair fits, the one-spike-per-dead-time rule and features of one group's candidate finds."""
+    sample, col, env, partner, shift_e, x, snip = finds
+    before, after = window
+    mid = before + dead
+    shift_c = peak_offset(x[np.arange(len(x)), mid - 1, col], x[np.arange(len(x)), mid, col],
+                          x[np.arange(len(x)), mid + 1, col])
+    thr = thresholds_sigma(params, events.sigma_uv)[g.channels][col]
+    unit_e, unit_c, ok = _pair_fit(x.astype(np.float64), events.sample[partner] - sample, g, dead,
+                                   params.overlaps.max_misfit, thr ** 2, (shift_e, shift_c, template[partner]))
     for k in np.flatnonzero(ok):         # a unit fires once within the dead time: no second spike of it
-        others = g.sample[(g.template_of == unit_c[k]) & (g.sample != g.sample[e[k]])]
-        ok[k] = _nearest(others, lo + t[k:k + 1])[1][0] > dead
-    t, e, unit_e, unit_c, col_t = t[ok], e[ok], unit_e[ok], unit_c[ok], col_t[ok]
-    resid = scaled * sig
-    aligned = align_subsample(cut_windows(resid, lo, lo + t, np.arange(-before - 1, after + 1)), col_t, before)
-    feats = np.zeros((len(t), n_features), dtype=np.float32)
-    feats[:, -3:] = shape_features(aligned, col_t, before, rate)
-    put_scores(feats, np.arange(len(t)), g.pca, aligned.reshape(len(t), length * len(g.channels)))
-    cols = EventColumns(sample=lo + t.astype(np.int64), channel=g.channels[col_t].astype(np.int32),
-                        group=np.full(len(t), g.group, np.int32), amplitude_uv=resid[t, col_t],
-                        amplitude_sigma=env[t].astype(np.float32), artefact=np.zeros(len(t), bool))
-    return _Found(cols, g.units[unit_c].astype(np.int32), feats, g.rows[e], g.units[unit_e].astype(np.int32))
+        mine = g.samples_of[unit_c[k]]
+        ok[k] = _nearest(mine[mine != events.sample[partner[k]]], sample[k:k + 1])[1][0] > dead
+    sample, col, env, partner, unit_e, unit_c, snip = (v[ok] for v in (sample, col, env, partner, unit_e, unit_c,
+                                                                       snip))
+    aligned = align_subsample(snip, col, before)
+    feats = np.zeros((len(sample), n_features), dtype=np.float32)
+    feats[:, -3:] = shape_features(aligned, col, before, rate)
+    put_scores(feats, np.arange(len(sample)), g.pca, aligned.reshape(len(sample), -1))
+    cols = EventColumns(sample=sample.astype(np.int64), channel=g.channels[col].astype(np.int32),
+                        group=np.full(len(sample), g.group, np.int32), amplitude_uv=snip[:, before + 1][
+                            np.arange(len(sample)), col], amplitude_sigma=env.astype(np.float32),
+                        artefact=np.zeros(len(sample), bool))
+    return _Found(cols, g.units[unit_c].astype(np.int32), feats, partner, g.units[unit_e].astype(np.int32))
 
 
 def _nearest(sorted_samples: np.ndarray, at: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
