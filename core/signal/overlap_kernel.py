@@ -17,6 +17,20 @@ POLARITY_CODES = {"negative": 0, "positive": 1, "both": 2}
 
 
 @numba.njit(nogil=True, cache=True)
+def _envelope(resid, needed, polarity):
+    """Polarity-signed largest value over the channels of each needed row, and its column."""
+    env = np.full(len(resid), -np.inf, np.float32)
+    col = np.zeros(len(resid), np.int64)
+    for t in range(len(resid)):
+        if needed[t]:
+            for c in range(resid.shape[1]):
+                v = -resid[t, c] if polarity == 0 else resid[t, c] if polarity == 1 else abs(resid[t, c])
+                if v > env[t]:
+                    env[t], col[t] = v, c
+    return env, col
+
+
+@numba.njit(nogil=True, cache=True)
 def group_finds(y, lo, start, stop, channels, sigma, thr, pos, tmpl, shift, amp, templates, slopes,
                 before, after, dead, polarity, min_share):
     """Candidate finds of one group in one block (see the module docstring).
@@ -57,15 +71,7 @@ def group_finds(y, lo, start, stop, channels, sigma, thr, pos, tmpl, shift, amp,
         for t in range(max(0, p - dead), min(n_t, p + dead + 1)):
             if abs(t - p) < best_d[t]:
                 best_d[t], best_e[t] = abs(t - p), e
-    env = np.full(n_t, -np.inf, np.float32)
-    col = np.zeros(n_t, np.int64)
-    for t in range(n_t):
-        if not needed[t]:
-            continue
-        for c in range(c_n):
-            v = -resid[t, c] if polarity == 0 else resid[t, c] if polarity == 1 else abs(resid[t, c])
-            if v > env[t]:
-                env[t], col[t] = v, c
+    env, col = _envelope(resid, needed, polarity)
     rows = np.empty(n_t, np.int64)
     n = 0
     for t in range(before + dead + 1, n_t - after - dead - 1):

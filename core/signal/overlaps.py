@@ -118,13 +118,8 @@ def recover_overlaps(recording: Recording, events: EventTable, features: Feature
     before, after = snippet_window(params.snippets, rate)
     dead = int(round(params.detect.dead_time_ms * rate / 1000))
     groups = _groups(recording, events, features, assignments, before + after)
-    slot = {g.group: i for i, g in enumerate(groups)}
-    rows = np.flatnonzero(np.isin(events.group, list(slot)))          # events of groups with units
-    template = np.full(len(events), -1, np.int64)
-    for g in groups:
-        in_g = np.flatnonzero((events.group == g.group) & (assignments >= 0))
-        template[in_g] = np.searchsorted(g.units, assignments[in_g])
-    sample, group = events.sample[rows], np.array([slot.get(int(x), -1) for x in events.group[rows]], np.int64)
+    rows, group, template = _event_slots(events, assignments, groups)
+    sample = events.sample[rows]
     margin = 2 * (before + after + dead) + 2
     bounds = chunk_bounds(recording.n_samples, max(int(params.run.chunk_s * rate), margin))
     at = np.searchsorted([b[0] for b in bounds], sample, "right") - 1
@@ -167,6 +162,20 @@ def recover_overlaps(recording: Recording, events: EventTable, features: Feature
     parts = [_fit_group(g, [np.concatenate(x) for x in zip(*found[gi])], events, template, dead, (before, after),
                         params, n_features, rate) for gi, g in enumerate(groups) if found[gi]]
     return _assemble(parts, n_features, dead, assignments)
+
+
+def _event_slots(events: EventTable, assignments: np.ndarray,
+                 groups: list[_Group]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Rows of the events of groups with units (time order), the index of their group in ``groups``,
+    and every event's template row in its group (-1 when in no unit)."""
+    slot = np.full(int(events.group.max()) + 1 if len(events) else 0, -1, np.int64)
+    slot[[g.group for g in groups]] = np.arange(len(groups))
+    rows = np.flatnonzero(slot[events.group] >= 0) if len(groups) else np.zeros(0, np.int64)
+    template = np.full(len(events), -1, np.int64)
+    for g in groups:
+        in_g = np.flatnonzero((events.group == g.group) & (assignments >= 0))
+        template[in_g] = np.searchsorted(g.units, assignments[in_g])
+    return rows, slot[events.group[rows]], template
 
 
 def _groups(recording: Recording, events: EventTable, features: Features, assignments: np.ndarray,
