@@ -217,6 +217,9 @@ def _fit_group(g: _Group, finds: list[np.ndarray], events: EventTable, template:
     for k in np.flatnonzero(ok):         # a unit fires once within the dead time: no second spike of it
         mine = g.samples_of[unit_c[k]]
         ok[k] = _nearest(mine[mine != events.sample[partner[k]]], sample[k:k + 1])[1][0] > dead
+    if not ok.any():
+        return _Found(_empty(), np.zeros(0, np.int32), np.zeros((0, n_features), np.float32),
+                      np.zeros(0, np.int64), np.zeros(0, np.int32))
     sample, col, env, partner, unit_e, unit_c, snip = (v[ok] for v in (sample, col, env, partner, unit_e, unit_c,
                                                                        snip))
     aligned = align_subsample(snip, col, before)
