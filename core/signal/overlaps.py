@@ -3,15 +3,18 @@
 Detection keeps one event per peak of a group's envelope within ± the dead time, so when two units
 of one group fire within the dead time of each other only the larger spike is an event. After the
 first pass, each unit's template (its mean aligned waveform on its group's usable channels, from
-the PCA basis of its group and the unit's mean scores: the mean snippet projected on that basis)
-is subtracted at every one of its events from the filtered recording, and the residual is searched
-near those events (within ± the dead time) for peaks of the group envelope that pass the channel's
-detection threshold and are the largest within ± the dead time of the residual. Each such peak is
-matched against the templates of its group's units (amplitude scaled by least squares within
-:data:`SCALE_RANGE`); it is recovered when the best template leaves a mean squared misfit of at most
-``params.overlaps.max_misfit`` noise variances, and kept only if that unit has no event (detected or
-recovered) within ± the dead time of it (a unit cannot fire twice within the dead time, so such a
-peak would be its own spike subtracted imperfectly) and no event of the group sits on its sample.
+the PCA basis of its group and the unit's mean scores: the mean snippet projected on that basis),
+shifted to each event's sub-sample peak, is subtracted at every one of its events from the filtered
+recording, and the residual is searched near those events (within ± the dead time, not on an event)
+for peaks of the group envelope that pass the channel's detection threshold, reach
+``params.overlaps.min_share`` of the nearest event's amplitude (a large spike subtracted imperfectly
+leaves a residual in proportion to its size) and are the largest within ± the dead time. Each such
+peak is fitted together with that event as two spikes of two different units of the group (every
+pair of templates, least-squares amplitudes within :data:`SCALE_RANGE`); the best pair is kept when it
+leaves a mean squared misfit of at most ``params.overlaps.max_misfit`` noise variances per sample and
+explains more than the event alone (by the threshold squared), and when the found spike's unit has no
+other event within ± the dead time (a unit cannot fire twice within the dead time). The pair fit may
+give the event itself another unit: the event's waveform was distorted by the overlap.
 
 Template subtraction as a way of resolving overlapping spikes: Segev R, Goodhouse J, Puchalla J,
 Berry MJ II (2004), "Recording spikes from a large fraction of the ganglion cells in a retinal
