@@ -4,7 +4,10 @@ Each event stores its peak in microvolts (signed) and in multiples of its channe
 noise sigma, so counts and masks for any threshold at or above the table's floor come
 from a look-up, without re-reading the recording. Events of a recording with site positions
 (a probe) also hold an estimated position, ``x_um`` and ``y_um`` (:data:`POSITION_COLUMNS`);
-tables without positions have neither column, in memory or in files.
+tables without positions have neither column, in memory or in files. Tables of a sort whose
+second pass ran hold ``recovered`` (:data:`RECOVERED`): True for an event found in the residual
+after template subtraction (:mod:`rigside.core.signal.overlaps`), not by detection; files
+written before it (and tables without the pass) have no such column, and every event is detected.
 """
 
 from __future__ import annotations
@@ -37,6 +40,10 @@ CSV_COLUMNS = ("sample", "time_s", *(c for c in COLUMNS if c != "sample"))
 """Columns of the event CSV: the stored ones with ``time_s`` after ``sample``."""
 POSITION_COLUMNS = ("x_um", "y_um")
 """Optional float32 columns of events on a probe (after the others, in memory and in files)."""
+RECOVERED = "recovered"
+"""Optional bool column: the event was recovered by the overlap pass (after :data:`COLUMNS`, before positions)."""
+OPTIONAL_COLUMNS = {RECOVERED: np.bool_, "x_um": np.float32, "y_um": np.float32}
+"""Optional columns and their dtypes, in file order (each stored only when the table has it)."""
 MAX_SAMPLES = 2**48
 """Longest recording an event table may describe (about 300 years at 30 kHz)."""
 
@@ -98,6 +105,10 @@ class EventTable(EventColumns):
         Channel -> flag ("dead", "saturated") for channels left out of detection.
     x_um, y_um
         Estimated position of each event (micrometres) on a probe, or None (no positions).
+    recovered
+        True for events recovered by the overlap pass, or None (every event detected). Look-up
+        counts (:meth:`counts`, :meth:`count_curve`) hold detected events only; :meth:`mask` selects by
+        amplitude, recovered events included.
     """
 
     rate_hz: float
@@ -108,6 +119,7 @@ class EventTable(EventColumns):
     excluded: dict[int, str] = field(default_factory=dict)
     x_um: np.ndarray | None = None
     y_um: np.ndarray | None = None
+    recovered: np.ndarray | None = None
     _by_channel: dict = field(default_factory=dict, repr=False, compare=False)
 
     def __post_init__(self) -> None:
@@ -118,7 +130,7 @@ class EventTable(EventColumns):
         if (self.x_um is None) != (self.y_um is None):
             raise RigsideError("event positions must give both x_um and y_um or neither, got one")
         for c in self.columns[len(COLUMNS):]:
-            setattr(self, c, np.ascontiguousarray(getattr(self, c), dtype=np.float32))
+            setattr(self, c, np.ascontiguousarray(getattr(self, c), dtype=OPTIONAL_COLUMNS[c]))
         n = len(self.sample)
         if any(len(getattr(self, c)) != n for c in self.columns):
             raise RigsideError("event columns must all have the same length, got "
@@ -129,8 +141,13 @@ class EventTable(EventColumns):
 
     @property
     def columns(self) -> tuple[str, ...]:
-        """The stored columns of this table: :data:`COLUMNS`, then :data:`POSITION_COLUMNS` when it has them."""
-        return (*COLUMNS, *POSITION_COLUMNS) if self.x_um is not None else tuple(COLUMNS)
+        """The stored columns of this table: :data:`COLUMNS`, then those of :data:`OPTIONAL_COLUMNS` it has."""
+        return (*COLUMNS, *(c for c in OPTIONAL_COLUMNS if getattr(self, c) is not None))
+
+    @property
+    def detected(self) -> np.ndarray:
+        """Mask of the events found by detection (all but the recovered ones)."""
+        return np.ones(len(self), dtype=bool) if self.recovered is None else ~self.recovered
 
     @property
     def n_channels(self) -> int:
@@ -176,7 +193,7 @@ class EventTable(EventColumns):
         """
         cache = self._by_channel
         if not cache:
-            ok = ~self.artefact
+            ok = ~self.artefact & self.detected
             order = np.lexsort((self.amplitude_sigma[ok], self.channel[ok]))
             ch = self.channel[ok][order]
             amp = self.amplitude_sigma[ok][order]
@@ -209,8 +226,8 @@ class EventTable(EventColumns):
 
     # ---- files -------------------------------------------------------------------------
     def write_csv(self, path: str | Path) -> None:
-        """Write ``sample,time_s,channel,group,amplitude_uv,amplitude_sigma,artefact`` (and
-        ``x_um,y_um`` on a probe) atomically.
+        """Write ``sample,time_s,channel,group,amplitude_uv,amplitude_sigma,artefact`` (then
+        ``recovered`` when the table has it, and ``x_um,y_um`` on a probe) atomically.
 
         Rows end in CRLF; times have 6 decimals, amplitudes 3 (uV) and 4 (sigma), positions 2;
         formatted in blocks (:func:`rigside.core.io.csv_text.write_rows`).
@@ -254,9 +271,10 @@ class EventTable(EventColumns):
                                f"missing {', '.join(missing)}")
         def read(name: str) -> np.ndarray:
             return np.asarray(data[name] if data is not None else g[name][()])
-        optional = POSITION_COLUMNS if all(c in g for c in POSITION_COLUMNS) else ()
+        optional = [c for c in OPTIONAL_COLUMNS if c in g and (c not in POSITION_COLUMNS
+                                                                 or all(p in g for p in POSITION_COLUMNS))]
         cols = {c: read(c) for c in (*COLUMNS, *optional)}
-        for c, dt in (*COLUMNS.items(), *((c, np.float32) for c in optional)):
+        for c, dt in (*COLUMNS.items(), *((c, OPTIONAL_COLUMNS[c]) for c in optional)):
             if cols[c].ndim != 1 or not np.can_cast(cols[c].dtype, dt, casting="same_kind"):
                 raise RigsideError(f"event column {c} must be a 1-D array of {np.dtype(dt)}, "
                                    f"got {cols[c].dtype} with shape {cols[c].shape}")

@@ -7,7 +7,7 @@ from __future__ import annotations
 
 import dataclasses
 import math
-from dataclasses import asdict, dataclass, field, fields, replace
+from dataclasses import asdict, dataclass, field, fields
 from pathlib import Path
 from typing import Any
 
@@ -15,7 +15,6 @@ import tomli_w
 
 from rigside.core.errors import ParamError
 from rigside.core.io.atomic import atomic_write
-from rigside.core.numbers import format_number
 from rigside.core.textparse import parse_toml
 
 POLARITIES = ("negative", "positive", "both")
@@ -97,7 +96,8 @@ class NoiseParams:
 class DetectParams:
     """Threshold detection.
 
-    ``threshold_sigma`` is used unless ``threshold_uv`` is set. ``floor_sigma`` is the
+    ``threshold_sigma`` is used unless ``threshold_uv`` is set, and both unless
+    ``channel_thresholds_sigma`` (one sigma multiple per channel) is. ``floor_sigma`` is the
     lowest threshold kept in the event table so that any higher threshold is a look-up;
     ``None`` means "the detection threshold itself".
     """
@@ -110,9 +110,15 @@ class DetectParams:
     artefact_channel_fraction: float = 0.5
     artefact_sigma: float = 5.0
     artefact_window_ms: float = 0.5
+    channel_thresholds_sigma: list[float] | None = None
 
     def validate(self) -> None:
         _positive("threshold", self.threshold_sigma, "sigma")
+        per = self.channel_thresholds_sigma
+        _require(per is None or (isinstance(per, list) and len(per) > 0),
+                 f"per-channel thresholds must be a non-empty list, got {per!r}")
+        for value in per or ():
+            _positive("per-channel threshold", value, "sigma")
         if self.threshold_uv is not None:
             _positive("threshold in microvolts", self.threshold_uv, "uV")
         _require(self.polarity in POLARITIES,
@@ -206,18 +212,14 @@ class ClusterParams:
 
     def validate(self) -> None:
         """Raise :class:`ParamError` for any value out of range."""
-        def integer(name: str, value: Any, low: int, high: int) -> None:
-            if not (isinstance(value, int) and not isinstance(value, bool) and low <= value <= high):
-                raise ParamError(f"{name} must be an integer from {low} to {high}, got {value!r}")
-
         if self.k is not None:
-            integer("forced cluster count", self.k, 1, 64)
-        integer("smallest cluster count", self.k_min, 1, 64)
-        integer("largest cluster count", self.k_max, self.k_min, 64)
-        integer("search patience", self.patience, 1, 64)
-        integer("clustering fit sample", self.fit_events, 100, 1_000_000)
-        integer("EM iteration limit", self.max_iter, 1, 100_000)
-        integer("clustering seed", self.seed, 0, 2**32 - 1)
+            _integer("forced cluster count", self.k, 1, 64)
+        _integer("smallest cluster count", self.k_min, 1, 64)
+        _integer("largest cluster count", self.k_max, self.k_min, 64)
+        _integer("search patience", self.patience, 1, 64)
+        _integer("clustering fit sample", self.fit_events, 100, 1_000_000)
+        _integer("EM iteration limit", self.max_iter, 1, 100_000)
+        _integer("clustering seed", self.seed, 0, 2**32 - 1)
         if not (isinstance(self.tol, (int, float)) and math.isfinite(self.tol) and self.tol > 0):
             raise ParamError(f"EM tolerance must be a finite number above 0, got {self.tol!r}")
         if not (isinstance(self.merge_overlap, (int, float)) and 0 <= self.merge_overlap <= 1):
@@ -260,6 +262,22 @@ class ProbeParams:
 
 
 @dataclass
+class OverlapParams:
+    """The second pass of ``sort`` (:mod:`rigside.core.signal.overlaps`): ``max_misfit`` is the largest mean
+    squared misfit (noise variances per sample) the two fitted templates may leave, ``min_share`` the least
+    amplitude of a found spike as a share of the event it overlaps."""
+
+    enabled: bool = True
+    max_misfit: float = 4.0
+    min_share: float = 0.45
+
+    def validate(self) -> None:
+        _require(isinstance(self.enabled, bool), f"overlap pass switch must be true or false, got {self.enabled!r}")
+        _between("template misfit", self.max_misfit, 0.1, 100, "noise variances")
+        _between("overlap amplitude share", self.min_share, 0, 10, "")
+
+
+@dataclass
 class RunParams:
     """Streaming: chunk length and worker threads."""
 
@@ -282,6 +300,7 @@ class Params:
     cluster: ClusterParams = field(default_factory=ClusterParams)
     metrics: MetricParams = field(default_factory=MetricParams)
     probe: ProbeParams = field(default_factory=ProbeParams)
+    overlaps: OverlapParams = field(default_factory=OverlapParams)
     run: RunParams = field(default_factory=RunParams)
 
     def validate(self, rate_hz: float | None = None) -> None:
@@ -293,6 +312,7 @@ class Params:
         self.cluster.validate()
         self.metrics.validate()
         self.probe.validate()
+        self.overlaps.validate()
         self.run.validate()
 
     def check_memory(self, rate_hz: float, n_channels: int) -> None:
@@ -356,37 +376,3 @@ class Params:
         except UnicodeDecodeError as exc:
             raise ParamError(f"parameter file must be valid TOML (UTF-8 text), got {str(path)!r}: {exc}") from None
         return cls.from_dict(parse_toml(text, f"parameter file {str(path)!r}", ParamError))
-
-
-def metric_settings(params: Params, censored_ms: float | None = None) -> MetricParams:
-    """The metric settings every command and the window use, with the one censored-period rule.
-
-    The censored period is ``censored_ms`` when given; otherwise ``params.metrics.censored_ms``
-    when set (above 0); otherwise the detection dead time, since intervals shorter than it cannot
-    be seen (kept below the refractory period).
-
-    Parameters
-    ----------
-    params
-        All parameters (``metrics`` and ``detect.dead_time_ms`` are used).
-    censored_ms
-        An explicit censored period (e.g. from the command line); 0 is then taken as 0.
-
-    Returns
-    -------
-    MetricParams
-        A validated copy.
-    """
-    mp = replace(params.metrics)
-    if censored_ms is not None:
-        mp.censored_ms = censored_ms
-    elif mp.censored_ms == 0.0:
-        mp.censored_ms = min(params.detect.dead_time_ms, 0.99 * mp.refractory_ms)
-    mp.validate()
-    return mp
-
-
-def censored_note(mp: MetricParams) -> str:
-    """The sentence every output carries about the censored period used."""
-    return (f"censored period {format_number(mp.censored_ms)} ms (the detection dead time unless set); "
-            f"refractory period {format_number(mp.refractory_ms)} ms")

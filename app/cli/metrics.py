@@ -7,8 +7,8 @@ import sys
 
 from rigside.cli.progressbar import TextProgress
 from rigside.core.io.atomic import check_output
-from rigside.core.params import censored_note, metric_settings
 from rigside.core.quality.caution import CAUTION
+from rigside.core.quality.metric_settings import censored_note, metric_settings
 
 
 def register(sub: argparse._SubParsersAction) -> None:

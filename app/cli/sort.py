@@ -19,6 +19,9 @@ def register(sub: argparse._SubParsersAction) -> None:
     p.add_argument("--clusters", type=int, metavar="K", help="force K clusters per group (default: chosen by BIC)")
     p.add_argument("--seed", type=int, help="clustering seed (default 0)")
     p.add_argument("--resume", action="store_true", help="continue an interrupted run from its checkpoint")
+    p.add_argument("--no-overlap-pass", action="store_true",
+                   help="skip the second pass that recovers spikes hidden by overlaps (template subtraction; "
+                        "on by default, [overlaps] enabled in the parameter file)")
     p.add_argument("--overwrite", action="store_true",
                    help="replace an existing session (it is kept as NAME.bak, or NAME.bak.1, ... if taken)")
     add_recording_options(p)
@@ -37,6 +40,8 @@ def run_sort_command(args: argparse.Namespace) -> int:
         params.cluster.k = args.clusters
     if args.seed is not None:
         params.cluster.seed = args.seed
+    if args.no_overlap_pass:
+        params.overlaps.enabled = False
     params.cluster.validate()
     with closing(open_from_args(args)) as rec, TextProgress(not args.quiet) as bar:
         session, backup = run_sort(rec, params, args.session, resume=args.resume, progress=bar,
@@ -45,6 +50,8 @@ def run_sort_command(args: argparse.Namespace) -> int:
     ev = session.events
     n_art = int(ev.artefact.sum())
     why = f" ({n_art:,} artefacts kept for sorting, in no unit)" if n_art else ""
+    if ev.recovered is not None:
+        why += f" ({int(ev.recovered.sum()):,} recovered from overlaps)"
     print(f"{len(ev):,} events{why}, {n_units} units in {len(rec.groups)} groups -> {args.session}"
           + (f" (previous session kept as {backup})" if backup else ""))
     for note in exclusion_notes(rec.groups, rec.group_names, ev.excluded):

@@ -77,8 +77,8 @@ def write_job(kind: str, result: AuditResult, path: Path, progress=None, cancel=
 
 
 def first_pass_params(bench) -> Params:
-    """The workbench's parameters at its threshold (one value for every channel, in σ or µV;
-    the parameter default when thresholds differ between channels), without the look-up floor."""
+    """The workbench's parameters at its threshold (one value for every channel, in σ or µV, or one
+    per channel; the parameter default when a live channel has none), without the look-up floor."""
     ev = bench.events
     try:
         params = params_at_thresholds(bench.analysis.params, bench.thresholds_sigma,

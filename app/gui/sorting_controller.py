@@ -13,7 +13,7 @@ from PySide6.QtCore import QObject, Signal
 from PySide6.QtGui import QUndoStack
 
 from rigside.core.errors import RigsideError
-from rigside.core.params import metric_settings
+from rigside.core.quality.metric_settings import metric_settings
 from rigside.core.quality.unit_table import unit_metrics_for_events
 from rigside.core.quality.unit_table_io import DEFAULT_LIMITS, flag_units
 from rigside.core.signal.features import Features

@@ -26,8 +26,8 @@ from rigside.core.audit.report_figures import (
 from rigside.core.audit.run import CAUTION, AuditResult
 from rigside.core.io.atomic import atomic_write
 from rigside.core.numbers import format_number
-from rigside.core.params import censored_note, metric_settings
 from rigside.core.quality.correlograms import isi_histogram
+from rigside.core.quality.metric_settings import censored_note, metric_settings
 from rigside.core.quality.unit_table import CAUTION as QUALITY_CAUTION
 from rigside.core.units.journal import utc_now
 

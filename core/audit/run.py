@@ -27,10 +27,11 @@ from rigside.core.errors import ParamError, RigsideError
 from rigside.core.events import EventTable
 from rigside.core.io.recording import Recording
 from rigside.core.io.spike_import import SpikeTrains
-from rigside.core.params import Params, metric_settings
+from rigside.core.params import Params
 from rigside.core.progress import CancelFn, ProgressFn, check, report
 from rigside.core.quality.matching import jaccard, match_times, shared_spike_matrix
 from rigside.core.quality.metric_inputs import positive
+from rigside.core.quality.metric_settings import metric_settings
 from rigside.core.quality.unit_table import unit_metrics_for_events
 from rigside.core.runs.sort import sort_recording
 from rigside.core.signal.features import Features

@@ -13,7 +13,7 @@ from pathlib import Path
 
 import numpy as np
 
-from rigside.core.params import censored_note, metric_settings
+from rigside.core.quality.metric_settings import censored_note, metric_settings
 from rigside.core.quality.unit_table import CAUTION as QUALITY_CAUTION
 from rigside.core.quality.unit_table import COLUMNS as QUALITY_COLUMNS
 from rigside.core.quality.unit_table_io import quality_flag_text, write_described_csv

@@ -20,8 +20,9 @@ from rigside.core import __version__
 from rigside.core.errors import RigsideError
 from rigside.core.exports.units import TIME_DECIMALS
 from rigside.core.io.csv_text import fixed_values
-from rigside.core.params import MetricParams, metric_settings
+from rigside.core.params import MetricParams
 from rigside.core.progress import CancelFn, ProgressFn, check, report
+from rigside.core.quality.metric_settings import metric_settings
 from rigside.core.quality.unit_table import COLUMNS, sorting_unit_table
 from rigside.core.signal.filtering import BandPass
 from rigside.core.signal.pipeline import thresholds_sigma

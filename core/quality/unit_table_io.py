@@ -19,7 +19,7 @@ import numpy as np
 
 from rigside.core.errors import ParamError, RigsideError
 from rigside.core.io.atomic import atomic_write
-from rigside.core.params import censored_note
+from rigside.core.quality.metric_settings import censored_note
 from rigside.core.quality.unit_table import CAUTION, COLUMNS, INT_COLUMNS, MetricParams
 
 

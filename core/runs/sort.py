@@ -1,4 +1,4 @@
-"""Headless sorting run: detection, features, first-pass clustering, session — resumable.
+"""Headless sorting run: detection, features, first-pass clustering, the overlap pass, session — resumable.
 
 After each long stage the run writes a checkpoint beside the session
 (``NAME.checkpoint.h5``: the event table, the features once computed, the parameters, the
@@ -24,14 +24,16 @@ from rigside.core.io.h5safe import read_verified
 from rigside.core.io.recording import Recording
 from rigside.core.params import Params
 from rigside.core.progress import CancelFn, ProgressFn, report
-from rigside.core.signal.features import Features, compute_features, feature_names
+from rigside.core.signal.features import Basis, Features, compute_features, feature_names
+from rigside.core.signal.overlaps import recover_overlaps
 from rigside.core.signal.pipeline import detect, thresholds_sigma
 from rigside.core.textparse import parse_json
 from rigside.core.units.first_pass import first_pass
+from rigside.core.units.recovered import with_recovered
 from rigside.core.units.session import RecordingRef, Session, save_session
 from rigside.core.units.sorting import Sorting
 
-STAGE_SHARES = (0.45, 0.35, 0.2)  # detection, features, clustering: shares of the progress bar
+STAGE_SHARES = (0.42, 0.33, 0.15, 0.1)  # detection, features, clustering, overlaps: shares of the progress bar
 
 
 def checkpoint_path(session_path: str | Path) -> Path:
@@ -54,6 +56,9 @@ def _write_checkpoint(path: Path, key: str, events: EventTable, features: Featur
         if features is not None:
             f.create_dataset("features", data=features.values)
             f.attrs["feature_names"] = json.dumps(features.names)
+            for g, basis in (features.bases or {}).items():   # the overlap pass of a resumed run needs them
+                f.create_dataset(f"bases/{g}/mean", data=basis.mean_)
+                f.create_dataset(f"bases/{g}/components", data=basis.components_)
     atomic_write(path, lambda tmp: write_h5(tmp, fill))
 
 
@@ -90,10 +95,25 @@ def _read_checkpoint(path: Path, key: str, recording: Recording, params: Params,
                     or values.shape != (len(events), len(names)) or not np.isfinite(values).all():
                 raise RigsideError(f"features must be finite float32 of shape ({len(events)}, {len(names)}) "
                                    f"named as the parameters say, got {values.dtype} {values.shape}")
-            return events, Features(values, names)
+            return events, Features(values, names, _bases(data, values.shape[1] - 3))
         except (RigsideError, OSError, KeyError, ValueError, TypeError) as exc:
             raise RigsideError(f"checkpoint {str(path)!r} must hold this recording's events and features, "
                                f"got {exc}; delete it or run without --resume") from None
+
+
+def _bases(data: dict[str, np.ndarray], n_pcs: int) -> dict[int, Basis]:
+    """The PCA bases stored in a checkpoint (``bases/<group>/mean`` and ``components``), checked."""
+    out = {}
+    for key in data:
+        if key.startswith("bases/") and key.endswith("/mean"):
+            g = key.split("/")[1]
+            mean, comp = data[key], data.get(f"bases/{g}/components")
+            if not g.isdigit() or comp is None or mean.ndim != 1 or comp.ndim != 2 or comp.shape[1] != len(mean) \
+                    or not 1 <= len(comp) <= n_pcs or not (np.isfinite(mean).all() and np.isfinite(comp).all()):
+                raise RigsideError(f"PCA basis of group {g} must be a finite mean and at most {n_pcs} components "
+                                   f"of its length, got other arrays")
+            out[int(g)] = Basis(mean, comp)
+    return out
 
 
 def _check_fits(events: EventTable, recording: Recording) -> None:
@@ -117,7 +137,10 @@ def sort_recording(recording: Recording, params: Params, checkpoint: Path | None
         The recording (read-only).
     params
         Pipeline parameters (``params.cluster`` for the first pass). The events kept are
-        those at the detection threshold, artefacts included (they go to no unit).
+        those at the detection threshold, artefacts included (they go to no unit). With
+        ``params.overlaps.enabled`` (and no site positions), the spikes hidden by overlaps are
+        recovered after the first pass (:mod:`rigside.core.signal.overlaps`, joined by
+        :func:`rigside.core.units.recovered.with_recovered`).
     checkpoint
         File to save the events and features in after each long stage (none if ``None``).
     resume
@@ -132,7 +155,7 @@ def sort_recording(recording: Recording, params: Params, checkpoint: Path | None
     """
     params.validate(recording.rate_hz)
     key = _key(recording, params) if checkpoint is not None else ""
-    a, b, _ = STAGE_SHARES
+    a, b, c, _ = STAGE_SHARES
     events, features = (None, None)
     if checkpoint is not None and resume:
         events, features = _read_checkpoint(checkpoint, key, recording, params,
@@ -152,7 +175,11 @@ def sort_recording(recording: Recording, params: Params, checkpoint: Path | None
             _write_checkpoint(checkpoint, key, events, features, recording.content_hash)
     report(progress, a + b, "features ready")
     sorting = first_pass(events, features, params.cluster, cancel=cancel, workers=params.run.workers,
-                         progress=lambda f, m: report(progress, a + b + (1 - a - b) * f, m))
+                         progress=lambda f, m: report(progress, a + b + c * f, m))
+    if params.overlaps.enabled and recording.positions is None:
+        found = recover_overlaps(recording, events, features, sorting.assignments, params, cancel=cancel,
+                                 progress=lambda f, m: report(progress, a + b + c + (1 - a - b - c) * f, m))
+        events, _, sorting = with_recovered(events, features, sorting, found)
     return events, sorting
 
 

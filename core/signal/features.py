@@ -34,12 +34,26 @@ if TYPE_CHECKING:  # scikit-learn costs seconds to import: only the fit below ne
     from sklearn.decomposition import PCA
 
 
+@dataclass(frozen=True)
+class Basis:
+    """A channel group's fitted PCA: the mean and the components (rows) of its flattened snippets."""
+
+    mean_: np.ndarray
+    components_: np.ndarray
+
+    @property
+    def n_components_(self) -> int:
+        return len(self.components_)
+
+
 @dataclass
 class Features:
-    """Feature matrix (events x features, float32) and the name of each column."""
+    """Feature matrix (events x features, float32) and the name of each column; ``bases`` maps each
+    channel group to its PCA basis when known (features just computed, or a checkpoint holding them)."""
 
     values: np.ndarray
     names: list[str]
+    bases: dict[int, Basis] | None = None
 
     def column(self, name: str) -> np.ndarray:
         return self.values[:, self.names.index(name)]
@@ -145,10 +159,11 @@ def compute_features(recording: Recording, events: EventTable, params: Params, p
 
     cut(rest, lambda s, ev, flat: put_scores(out, order[ev], pcas[s], flat), share, 1.0)
     report(progress, 1.0, "features done")
-    return Features(out, feature_names(sp.n_pcs))
+    return Features(out, feature_names(sp.n_pcs),
+                    {int(g): Basis(p.mean_, p.components_) for g, p in zip(groups, pcas) if p is not None})
 
 
-def put_scores(out: np.ndarray, rows: np.ndarray, pca: PCA | None, flat: np.ndarray) -> None:
+def put_scores(out: np.ndarray, rows: np.ndarray, pca: PCA | Basis | None, flat: np.ndarray) -> None:
     """Write the PCA scores of flattened snippets into the first columns of ``out`` (none without a fit).
 
     The projection is scikit-learn's ``PCA.transform`` (centre, then project on the components)

@@ -8,7 +8,7 @@ from __future__ import annotations
 
 import numpy as np
 
-from rigside.core.errors import RigsideError
+from rigside.core.errors import ParamError, RigsideError
 from rigside.core.events import COLUMNS, POSITION_COLUMNS, EventColumns, EventTable, uv_to_sigma
 from rigside.core.io.content import BackgroundHasher
 from rigside.core.io.recording import Recording
@@ -28,8 +28,14 @@ from here to 1 whether it estimates the noise itself or is given it."""
 
 
 def thresholds_sigma(params: Params, sigma_uv: np.ndarray) -> np.ndarray:
-    """Per-channel detection threshold in sigma (inf on dead channels in microvolt mode)."""
+    """Per-channel detection threshold in sigma (inf on dead channels in microvolt mode); the stored
+    per-channel thresholds (``detect.channel_thresholds_sigma``) when there are any."""
     d = params.detect
+    if d.channel_thresholds_sigma is not None:
+        if len(d.channel_thresholds_sigma) != len(sigma_uv):
+            raise ParamError(f"per-channel thresholds must give one value per channel ({len(sigma_uv)}), "
+                             f"got {len(d.channel_thresholds_sigma)}")
+        return np.asarray(d.channel_thresholds_sigma, dtype=np.float64)
     if d.threshold_uv is None:
         return np.full(len(sigma_uv), d.threshold_sigma, dtype=np.float64)
     return uv_to_sigma(d.threshold_uv, sigma_uv)
@@ -52,27 +58,33 @@ def params_at_thresholds(params: Params, thresholds: np.ndarray, sigma_uv: np.nd
     Params
         The copy with ``detect.threshold_sigma`` set when every channel has the same finite multiple,
         else with ``detect.threshold_uv`` set when every live channel (sigma above zero) has the same
-        microvolts.
+        microvolts, else with ``detect.channel_thresholds_sigma`` holding the thresholds (a dead
+        channel, which holds no events, keeps the highest live threshold there: files hold finite numbers).
 
     Raises
     ------
     RigsideError
-        When the thresholds are neither one sigma multiple nor one value in microvolts.
+        When a live channel's threshold is not a finite number above 0.
     """
     out = Params.from_dict(params.to_dict())
+    out.detect.channel_thresholds_sigma = None
     thr = np.asarray(thresholds, dtype=np.float64)
     if len(thr) and np.all(np.isfinite(thr)) and np.allclose(thr, thr[0]):
         out.detect.threshold_sigma, out.detect.threshold_uv = float(thr[0]), None
         return out
-    if sigma_uv is not None and len(thr):
-        sigma = np.asarray(sigma_uv, dtype=np.float64)
-        live = np.isfinite(thr) & (sigma > 0)
-        uv = np.where(live, thr, 0.0) * sigma
-        if live.any() and np.allclose(uv[live], uv[live][0]):
+    sigma = np.ones(len(thr)) if sigma_uv is None else np.asarray(sigma_uv, dtype=np.float64)
+    live = sigma > 0
+    if len(thr) and live.any():
+        uv = np.where(live & np.isfinite(thr), thr, 0.0) * sigma
+        if sigma_uv is not None and np.all(np.isfinite(thr[live])) and np.allclose(uv[live], uv[live][0]):
             out.detect.threshold_uv = float(uv[live][0])
             return out
-    raise RigsideError("detecting at these thresholds needs one value for every channel (in σ or µV), got "
-                       "thresholds set per channel")
+        if np.all(np.isfinite(thr[live]) & (thr[live] > 0)):
+            out.detect.channel_thresholds_sigma = np.where(live, thr, thr[live].max()).tolist()
+            out.detect.threshold_uv = None
+            return out
+    raise RigsideError(f"per-channel thresholds must be finite numbers above 0 sigma on live channels, got "
+                       f"{thr[live].tolist()[:8] if len(thr) else 'none'}")
 
 
 def lookup_floor(params: Params, sigma_uv: np.ndarray) -> float:

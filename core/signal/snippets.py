@@ -146,14 +146,19 @@ def align_subsample(padded: np.ndarray, own: np.ndarray, before: int) -> np.ndar
         return padded[:, 1:-1]
     k = before + 1
     trace = padded[np.arange(n), :, own]
-    ym, y0, yp = trace[:, k - 1], trace[:, k], trace[:, k + 1]
-    denom = ym - 2 * y0 + yp
-    with np.errstate(divide="ignore", invalid="ignore"):
-        delta = np.where(np.abs(denom) > 1e-12, 0.5 * (ym - yp) / denom, 0.0)
-    delta = np.clip(np.nan_to_num(delta), -0.5, 0.5).astype(np.float32)[:, None, None]
+    delta = peak_offset(trace[:, k - 1], trace[:, k], trace[:, k + 1])[:, None, None]
     mid = padded[:, 1:-1]
     ahead = np.where(delta >= 0, padded[:, 2:], padded[:, :-2])
     return (mid + np.abs(delta) * (ahead - mid)).astype(np.float32)
+
+
+def peak_offset(ym: np.ndarray, y0: np.ndarray, yp: np.ndarray) -> np.ndarray:
+    """Sub-sample position of peaks (float32, -0.5..0.5 samples from the peak sample): the vertex of the
+    parabola through the samples before, at and after each peak (0 where they lie on a line)."""
+    denom = ym - 2 * y0 + yp
+    with np.errstate(divide="ignore", invalid="ignore"):
+        delta = np.where(np.abs(denom) > 1e-12, 0.5 * (ym - yp) / denom, 0.0)
+    return np.clip(np.nan_to_num(delta), -0.5, 0.5).astype(np.float32)
 
 
 def cut_windows(block: np.ndarray, start: int, samples: np.ndarray, offsets: np.ndarray,

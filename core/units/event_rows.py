@@ -83,7 +83,8 @@ def detection_at(table: EventTable, features: Features, params: Params, threshol
     params
         Parameters of the detection (copied, not changed).
     thresholds
-        Threshold per channel in sigma multiples, one value for every channel in sigma or microvolts.
+        Threshold per channel in sigma multiples (one value for every channel in sigma or microvolts,
+        or values set per channel: then kept per channel in the parameters).
 
     Returns
     -------
@@ -93,7 +94,7 @@ def detection_at(table: EventTable, features: Features, params: Params, threshol
     Raises
     ------
     RigsideError
-        When the thresholds are not one value for every channel, or no event reaches them.
+        When a live channel's threshold is not a finite number above 0, or no event reaches them.
     """
     at = params_at_thresholds(params, thresholds, table.sigma_uv)
     keep = table.mask(threshold_sigma=thresholds_sigma(at, table.sigma_uv), include_artefacts=True)

@@ -17,6 +17,7 @@ import numpy as np
 
 from rigside.core.errors import CurationError, ParamError
 from rigside.core.progress import CancelFn, ProgressFn
+from rigside.core.units.assign_events import AssignEvents
 from rigside.core.units.clustering import ClusterParams, cluster_features, first_pass_assignments
 from rigside.core.units.dismissals import DismissSuggestion
 from rigside.core.units.operation_base import (
@@ -40,7 +41,8 @@ def _cluster_params(data: Any) -> ClusterParams:
         raise CurationError(str(exc)) from None
 
 class ClusterGroups(Operation):
-    """Cluster channel groups afresh (all groups: the first pass), replacing their units."""
+    """Cluster channel groups afresh (all groups: the first pass), replacing their units; the groups'
+    events recovered by the overlap pass take no part and go to no unit."""
 
     kind = "cluster_groups"
 
@@ -61,7 +63,8 @@ class ClusterGroups(Operation):
 
     def _compute(self, sorting: Sorting) -> Delta:
         d = sorting.data
-        new, unit_group = first_pass_assignments(d.group, d.artefact, d.features, d.amplitude_uv,
+        # recovered events take no part: the clusters of the detected events stay what they were
+        new, unit_group = first_pass_assignments(d.group, d.artefact | d.recovered, d.features, d.amplitude_uv,
                                                  self.params, self.groups, sorting.next_id,
                                                  self.progress, self.cancel, self.workers)
         todo = np.unique(d.group) if self.groups is None else np.asarray(self.groups)
@@ -313,7 +316,8 @@ class SetNote(Operation):
 
 
 OPERATIONS: dict[str, type[Operation]] = {c.kind: c for c in (
-    ClusterGroups, SplitByPolygon, MergeUnits, MoveEvents, ReclusterUnit, Relabel, SetNote, DismissSuggestion)}
+    ClusterGroups, SplitByPolygon, MergeUnits, MoveEvents, ReclusterUnit, Relabel, SetNote, DismissSuggestion,
+    AssignEvents)}
 
 
 def operation_from_record(rec: Any) -> Operation:

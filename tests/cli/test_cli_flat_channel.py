@@ -65,6 +65,8 @@ def test_detect_says_why_its_count_differs_from_sort(flat, capsys):
     s = load_session(flat / "d.h5")
     n_art = int(s.events.artefact.sum())
     n_detect = int(detect_line.split()[0].replace(",", ""))
-    assert n_art > 0 and n_detect + n_art == len(s.events)
+    n_found = int(s.events.recovered.sum())          # events the overlap pass of sort recovered
+    assert n_art > 0 and n_detect + n_art + n_found == len(s.events)
+    assert f"({n_found:,} recovered from overlaps)" in sort_line
     assert f"({n_art:,} artefacts left out; --keep-artefacts writes them)" in detect_line
     assert f"{len(s.events):,} events ({n_art:,} artefacts kept for sorting, in no unit)" in sort_line

@@ -25,7 +25,7 @@ def test_detection_parameters_in_microvolts():
 
 def test_parameters_at_per_channel_thresholds_state_one_value():
     """One sigma multiple, else one microvolt value on the live channels (30 uV = 5 x 6 = 2 x 15); per-channel
-    values that are neither are refused; the parameters given are left as they were."""
+    values that are neither are stored per channel; the parameters given are left as they were."""
     params = Params()
     sigma = np.array([6.0, 0.0, 15.0])
     same = params_at_thresholds(params, np.full(3, 4.5), sigma)
@@ -34,10 +34,15 @@ def test_parameters_at_per_channel_thresholds_state_one_value():
     assert uv.detect.threshold_uv == pytest.approx(30.0)
     np.testing.assert_allclose(thresholds_sigma(uv, sigma), [5.0, np.inf, 2.0])
     assert params.detect.threshold_uv is None and params.detect.threshold_sigma == Params().detect.threshold_sigma
-    with pytest.raises(RigsideError, match="one value for every channel"):
-        params_at_thresholds(params, np.array([5.0, 4.0, 4.0]), sigma)
-    with pytest.raises(RigsideError, match="one value for every channel"):
-        params_at_thresholds(params, np.array([5.0, 4.0, 4.0]), None)
+    per = params_at_thresholds(params, np.array([5.0, 4.0, 4.0]), sigma)
+    # the dead channel (sigma 0) holds no events; it keeps the highest live threshold, a finite number
+    assert per.detect.channel_thresholds_sigma == [5.0, 5.0, 4.0] and per.detect.threshold_uv is None
+    np.testing.assert_array_equal(thresholds_sigma(per, sigma), [5.0, 5.0, 4.0])
+    assert params_at_thresholds(params, np.array([5.0, 4.0, 4.0]), None).detect.channel_thresholds_sigma \
+        == [5.0, 4.0, 4.0]
+    assert params_at_thresholds(per, np.full(3, 4.5), sigma).detect.channel_thresholds_sigma is None
+    with pytest.raises(RigsideError, match="finite numbers above 0 sigma on live channels"):
+        params_at_thresholds(params, np.array([5.0, 4.0, np.inf]), sigma)
 
 
 def test_one_event_column_list(tmp_path):

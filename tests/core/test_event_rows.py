@@ -86,9 +86,12 @@ def test_a_session_of_the_table_itself_holds_every_row(made):
     np.testing.assert_array_equal(session_rows(session, table), np.arange(len(table)))
 
 
-def test_no_event_at_the_threshold_or_thresholds_per_channel_are_refused(made):
+def test_no_event_at_the_threshold_is_refused_and_thresholds_per_channel_are_kept(made):
     table, features, _, _ = made
     with pytest.raises(RigsideError, match="events at the current threshold, got none"):
         detection_at(table, features, Params(), np.full(8, 50.0))
-    with pytest.raises(RigsideError, match="one value for every channel"):
-        detection_at(table, features, Params(), np.array([5.0, 6.0] * 4))
+    thresholds = np.array([5.0, 6.0] * 4)
+    det = detection_at(table, features, Params(), thresholds)
+    assert det.params.detect.channel_thresholds_sigma == thresholds.tolist()
+    want = table.amplitude_sigma >= thresholds.astype(np.float32)[table.channel]   # numpy reference
+    np.testing.assert_array_equal(det.rows, np.flatnonzero(want))

@@ -6,8 +6,8 @@ import html
 
 import pyqtgraph as pg
 
-from rigside.core.params import censored_note
 from rigside.core.quality.correlograms import isi_histogram
+from rigside.core.quality.metric_settings import censored_note
 from rigside.core.quality.metrics import isi_violations
 from rigside.gui import palette
 from rigside.gui.panels.unit_view_base import UnitView, histogram_table, spin, step_curve
