@@ -183,21 +183,19 @@ class ClusterParams:
 
     Attributes
     ----------
-    k
-        Forced number of clusters per group; ``None`` chooses it by BIC.
-    k_min, k_max
-        Range of cluster counts tried by the BIC search.
-    patience
-        Stop the search after this many successive k without a lower BIC.
-    fit_events
-        Largest number of events of one group used to fit the mixture.
-    max_iter, tol
-        EM iteration limit and convergence tolerance (scikit-learn meaning).
+    k, k_min, k_max, patience
+        Forced number of clusters per group (``None``: chosen by BIC over ``k_min..k_max``, the
+        search stopped after ``patience`` successive k without a lower BIC).
+    fit_events, max_iter, tol, seed
+        Largest fit subsample of one group; EM limits (scikit-learn meaning); seed of the
+        subsample and of the mixture initialisation.
     merge_overlap
-        Components are merged while their estimated misclassification probability exceeds
-        this (0..1; 1 never merges).
-    seed
-        Seed of the subsample and of the mixture initialisation.
+        Components merge while their misclassification probability exceeds this (1: never).
+    min_unit_events, min_unit_share, fragment_fit, split_test
+        Fragments (clusters under max(``min_unit_events``, ``min_unit_share`` x the group's
+        events)) are not units; their events join the best-fitting unit within the
+        ``fragment_fit`` chi-square quantile, else stay unassigned; ``split_test`` re-examines
+        every unit (see :mod:`rigside.core.units.refine`).
     """
 
     k: int | None = None
@@ -209,6 +207,10 @@ class ClusterParams:
     tol: float = 1e-3
     merge_overlap: float = 0.02
     seed: int = 0
+    min_unit_events: int = 20
+    min_unit_share: float = 0.02
+    fragment_fit: float = 0.99
+    split_test: bool = True
 
     def validate(self) -> None:
         """Raise :class:`ParamError` for any value out of range."""
@@ -224,6 +226,12 @@ class ClusterParams:
             raise ParamError(f"EM tolerance must be a finite number above 0, got {self.tol!r}")
         if not (isinstance(self.merge_overlap, (int, float)) and 0 <= self.merge_overlap <= 1):
             raise ParamError(f"merge overlap must be a number from 0 to 1, got {self.merge_overlap!r}")
+        integer("smallest unit size", self.min_unit_events, 1, 1_000_000)
+        for what, v in (("smallest unit share", self.min_unit_share), ("fragment fit quantile", self.fragment_fit)):
+            if not (isinstance(v, (int, float)) and not isinstance(v, bool) and 0 <= v < 1):
+                raise ParamError(f"{what} must be a number from 0 to below 1, got {v!r}")
+        if not isinstance(self.split_test, bool):
+            raise ParamError(f"split test must be true or false, got {self.split_test!r}")
 
     def to_dict(self) -> dict[str, Any]:
         """Plain dict (``k`` omitted when ``None``)."""
@@ -240,7 +248,7 @@ class ClusterParams:
             raise ParamError(f"clustering parameter must be one of {', '.join(sorted(known))}, "
                              f"got {', '.join(unknown)}")
         out = cls(**data)
-        for name in ("tol", "merge_overlap"):
+        for name in ("tol", "merge_overlap", "min_unit_share", "fragment_fit"):
             value = getattr(out, name)
             if isinstance(value, int) and not isinstance(value, bool):
                 setattr(out, name, float(value))

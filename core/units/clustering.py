@@ -24,7 +24,6 @@ group, clusters are numbered by decreasing mean peak magnitude.
 
 from __future__ import annotations
 
-import warnings
 from concurrent.futures import ProcessPoolExecutor
 from multiprocessing import get_all_start_methods, get_context
 from typing import TYPE_CHECKING
@@ -35,6 +34,8 @@ from rigside.core.errors import RigsideError
 from rigside.core.params import ClusterParams
 from rigside.core.progress import CancelFn, ProgressFn, check, report, run_bounded
 from rigside.core.signal.chunk_pool import single_threaded_pools
+from rigside.core.units.mixture import fit_mixture, merge_components, mixture_classes
+from rigside.core.units.refine import absorb_fragments, smallest_unit, split_clusters
 from rigside.core.units.sorting import NO_UNIT
 
 if TYPE_CHECKING:
@@ -63,61 +64,6 @@ def _scaling(x: np.ndarray, fit_rows: np.ndarray) -> tuple[np.ndarray, np.ndarra
 def _z(x: np.ndarray, scaling: tuple[np.ndarray, np.ndarray, np.ndarray]) -> np.ndarray:
     mean, sd, keep = scaling
     return ((x[:, keep] - mean) / sd).astype(np.float64)
-
-
-def _mixture_classes():
-    """scikit-learn's mixture class and its convergence warning, imported on first use (seconds
-    of import a window that only opens a session never pays); called before worker processes are
-    forked, so that they inherit the import."""
-    from sklearn.exceptions import ConvergenceWarning
-    from sklearn.mixture import GaussianMixture
-
-    return GaussianMixture, ConvergenceWarning
-
-
-def _fit(x: np.ndarray, k: int, params: ClusterParams, random_state: int) -> GaussianMixture:
-    GaussianMixture, ConvergenceWarning = _mixture_classes()
-    gm = GaussianMixture(n_components=k, covariance_type="full", max_iter=params.max_iter,
-                         tol=params.tol, reg_covar=1e-6, random_state=random_state)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", ConvergenceWarning)
-        gm.fit(x)
-    return gm
-
-
-def merge_components(posterior: np.ndarray, threshold: float) -> list[list[int]]:
-    """Merge mixture components by directly estimated misclassification probabilities.
-
-    Parameters
-    ----------
-    posterior
-        Posterior probability of every component (events x components).
-    threshold
-        Merge while the largest pairwise misclassification probability exceeds this.
-
-    Returns
-    -------
-    list of lists
-        Component indices of each resulting cluster.
-    """
-    clusters = [[k] for k in range(posterior.shape[1])]
-    tau = np.asarray(posterior, dtype=np.float64).copy()
-    while tau.shape[1] > 1:
-        hard = tau.argmax(axis=1)
-        weight = tau.sum(axis=0)
-        # p[a, b]: posterior weight of cluster a on events classified as b, over a's weight
-        p = np.stack([np.bincount(hard, tau[:, a], tau.shape[1]) for a in range(tau.shape[1])])
-        p /= np.where(weight > 0, weight, 1.0)[:, None]
-        np.fill_diagonal(p, 0.0)
-        pair = np.maximum(p, p.T)
-        a, b = np.unravel_index(np.argmax(pair), pair.shape)
-        if pair[a, b] <= threshold:
-            break
-        a, b = min(a, b), max(a, b)
-        clusters[a] += clusters.pop(b)
-        tau[:, a] += tau[:, b]
-        tau = np.delete(tau, b, axis=1)
-    return clusters
 
 
 def cluster_features(features: np.ndarray, params: ClusterParams, stream: int = 0,
@@ -155,7 +101,8 @@ def cluster_features(features: np.ndarray, params: ClusterParams, stream: int = 
         return _cluster(features, params, stream, k)
 
 
-def _cluster(features: np.ndarray, params: ClusterParams, stream: int, k: int | None) -> np.ndarray:
+def _cluster(features: np.ndarray, params: ClusterParams, stream: int, k: int | None,
+             channel: np.ndarray | None = None, refine: bool = False) -> np.ndarray:
     x = np.asarray(features)
     n = len(x)
     if n == 0:
@@ -169,33 +116,43 @@ def _cluster(features: np.ndarray, params: ClusterParams, stream: int, k: int | 
     fit_rows = np.sort(rng.choice(n, params.fit_events, replace=False)) if n > params.fit_events \
         else np.arange(n)
     scaling = _scaling(x, fit_rows)
-    n_fit = len(fit_rows)
-    k_cap = max(1, n_fit // MIN_EVENTS_PER_COMPONENT)
     forced = k if k is not None else params.k
     if not scaling[2].any():
-        return np.zeros(n, dtype=np.int32)
+        return (np.full(n, -1, dtype=np.int32) if refine and n < smallest_unit(params, n)
+                else np.zeros(n, dtype=np.int32))
     random_state = int(rng.integers(0, 2**31 - 1))
     zf = _z(x[fit_rows], scaling)
-    if forced is not None:
-        best = _fit(zf, min(int(forced), n_fit), params, random_state)
-    else:
-        best, best_bic, worse = None, np.inf, 0
-        for kk in range(params.k_min, min(params.k_max, k_cap) + 1):
-            gm = _fit(zf, kk, params, random_state)
-            bic = gm.bic(zf)
-            if bic < best_bic:
-                best, best_bic, worse = gm, bic, 0
-            else:
-                worse += 1
-                if worse >= params.patience:
-                    break
-        if best is None:
-            best = _fit(zf, 1, params, random_state)
+    best = _search(zf, params, random_state, forced)
     merged = merge_components(best.predict_proba(zf), params.merge_overlap) if forced is None \
         else [[c] for c in range(best.n_components)]
     labels = _assign(x, scaling, best, merged)
-    _, dense = np.unique(labels, return_inverse=True)
-    return dense.astype(np.int32)
+    if refine and forced is None:
+        z = _z(x, scaling)
+        labels = absorb_fragments(z, labels, best, merged, params)
+        if params.split_test:
+            labels = split_clusters(z, labels, channel, params, rng)
+    used = labels >= 0
+    dense = np.full(n, -1, dtype=np.int32)
+    dense[used] = np.unique(labels[used], return_inverse=True)[1].ravel()
+    return dense
+
+
+def _search(zf: np.ndarray, params: ClusterParams, random_state: int, forced: int | None) -> GaussianMixture:
+    """The mixture of ``forced`` components, or of the count of lowest BIC (searched upwards)."""
+    if forced is not None:
+        return fit_mixture(zf, min(int(forced), len(zf)), params, random_state)
+    k_cap = max(1, len(zf) // MIN_EVENTS_PER_COMPONENT)
+    best, best_bic, worse = None, np.inf, 0
+    for kk in range(params.k_min, min(params.k_max, k_cap) + 1):
+        gm = fit_mixture(zf, kk, params, random_state)
+        bic = gm.bic(zf)
+        if bic < best_bic:
+            best, best_bic, worse = gm, bic, 0
+        else:
+            worse += 1
+            if worse >= params.patience:
+                break
+    return best if best is not None else fit_mixture(zf, 1, params, random_state)
 
 
 def _assign(x: np.ndarray, scaling, mixture: GaussianMixture, merged: list[list[int]]) -> np.ndarray:
@@ -211,17 +168,19 @@ def _assign(x: np.ndarray, scaling, mixture: GaussianMixture, merged: list[list[
     return labels
 
 
-def _cluster_group(i: int, features: np.ndarray, params: ClusterParams, g: int) -> tuple[int, np.ndarray]:
-    """One group's labels, tagged with its position (runs in worker processes)."""
-    return i, cluster_features(features, params, stream=g)
+def _cluster_group(i: int, features: np.ndarray, channel: np.ndarray | None, params: ClusterParams,
+                   g: int) -> tuple[int, np.ndarray]:
+    """One group's labels (-1: unassigned), tagged with its position (runs in worker processes)."""
+    with single_threaded_pools():
+        return i, _cluster(features, params, g, None, channel, refine=True)
 
 
 def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np.ndarray,
                            amplitude_uv: np.ndarray, params: ClusterParams,
                            groups: list[int] | None = None, first_id: int = 1,
-                           progress: ProgressFn = None, cancel: CancelFn = None, workers: int = 1
-                           ) -> tuple[np.ndarray, dict[int, int]]:
-    """Cluster every channel group and number the clusters as units.
+                           progress: ProgressFn = None, cancel: CancelFn = None, workers: int = 1,
+                           channel: np.ndarray | None = None) -> tuple[np.ndarray, dict[int, int]]:
+    """Cluster every channel group, keep the clusters fit to be units (:mod:`.refine`), number them.
 
     Parameters
     ----------
@@ -240,24 +199,25 @@ def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np
         Progress callback and cancel check (one step per group).
     workers
         Groups clustered at the same time, each in its own process (see :data:`WORKER_START`;
-        scikit-learn's mixture fits on a few thousand events hold the interpreter lock most of
-        the time, so threads ran them slower than one thread: ``bench/bench_sort_path.py
-        --threads``). The result does not depend on it: every group's clustering depends only
-        on its own events and seed.
+        threads ran the mixture fits slower: ``bench/bench_sort_path.py --threads``). The result
+        does not depend on it: every group's clustering depends only on its own events and seed.
+    channel
+        Main (detection) channel of every event, for the split test (None: features alone).
 
     Returns
     -------
     assignments, unit_group
-        Unit id per event (int32) and the channel group of every new unit id.
+        Unit id per event (int32; :data:`NO_UNIT` for artefacts and for the unassigned events
+        of fragments) and the channel group of every new unit id.
     """
     params.validate()
-    _mixture_classes()
+    mixture_classes()
     group = np.asarray(group)
     n = len(group)
-    if features.ndim != 2 or len(features) != n or len(artefact) != n or len(amplitude_uv) != n:
-        raise RigsideError(f"features and event columns must have one row per event ({n}), got "
-                           f"features {features.shape}, artefact {len(artefact)}, "
-                           f"amplitude {len(amplitude_uv)}")
+    lengths = {len(features), len(artefact), len(amplitude_uv)} | ({len(channel)} if channel is not None else set())
+    if features.ndim != 2 or lengths != {n}:
+        raise RigsideError(f"features and event columns must have one row per event ({n}), got features "
+                           f"{features.shape}, artefact {len(artefact)}, amplitude {len(amplitude_uv)}")
     todo = sorted(int(g) for g in np.unique(group)) if groups is None else sorted(set(groups))
     out = np.full(n, NO_UNIT, dtype=np.int32)
     unit_group: dict[int, int] = {}
@@ -269,10 +229,11 @@ def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np
 
     def number(result: tuple[int, np.ndarray]) -> None:
         i, labels = result
-        rows, g = rows_of[i], todo[i]
-        n_clusters = int(labels.max()) + 1
+        used = labels >= 0
+        rows, g, labels = rows_of[i][used], todo[i], labels[used]
+        n_clusters = int(labels.max()) + 1 if len(labels) else 0
         magnitude = np.bincount(labels, np.abs(amplitude_uv[rows].astype(np.float64)), n_clusters)
-        magnitude /= np.bincount(labels, minlength=n_clusters)
+        magnitude /= np.maximum(np.bincount(labels, minlength=n_clusters), 1)
         rank = np.empty(n_clusters, dtype=np.int32)
         rank[np.argsort(-magnitude, kind="stable")] = np.arange(n_clusters, dtype=np.int32)
         out[rows] = state["next"] + rank[labels]
@@ -283,7 +244,8 @@ def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np
         report(progress, state["done"] / max(1, len(busy)), f"clustered group {g}")
 
     report(progress, 0.0, "clustering groups")
-    tasks = ((i, features[rows_of[i]], params, todo[i]) for i in busy)
+    tasks = ((i, features[rows_of[i]], None if channel is None else np.asarray(channel)[rows_of[i]], params, todo[i])
+             for i in busy)
     if workers > 1 and len(busy) > 1:
         processes = ProcessPoolExecutor(min(workers, len(busy)), mp_context=get_context(WORKER_START))
         run_bounded(_cluster_group, tasks, workers, number, cancel, pool=processes)

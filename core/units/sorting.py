@@ -109,12 +109,13 @@ class Delta:
 
 
 class SortingData:
-    """Read-only per-event inputs of a sorting: features, times, peaks, groups, artefacts, and which
-    events the overlap pass recovered (``recovered``; all False without it)."""
+    """Read-only per-event inputs of a sorting: features, times, peaks, groups, artefacts, which
+    events the overlap pass recovered (``recovered``; all False without it) and main (detection)
+    channels (``channel`` None when unknown: the first pass then splits on the features alone)."""
 
     def __init__(self, features: np.ndarray, feature_names: Sequence[str], time_s: np.ndarray,
                  amplitude_uv: np.ndarray, group: np.ndarray, artefact: np.ndarray,
-                 recovered: np.ndarray | None = None) -> None:
+                 recovered: np.ndarray | None = None, channel: np.ndarray | None = None) -> None:
         self.features = _frozen(np.asarray(features, dtype=np.float32))
         self.feature_names = tuple(str(n) for n in feature_names)
         n = len(self.features)
@@ -129,8 +130,9 @@ class SortingData:
         self.artefact = _frozen(np.asarray(artefact, dtype=np.bool_))
         self.recovered = _frozen(np.zeros(n, dtype=np.bool_) if recovered is None
                                  else np.asarray(recovered, dtype=np.bool_))
+        self.channel = None if channel is None else _frozen(np.asarray(channel, dtype=np.int32))
         lengths = {len(self.time_s), len(self.amplitude_uv), len(self.group), len(self.artefact),
-                   len(self.recovered)}
+                   len(self.recovered)} | (set() if self.channel is None else {len(self.channel)})
         if lengths != {n}:
             raise RigsideError(f"features and event columns must have one row per event ({n}), got "
                                f"lengths {sorted(lengths)}")
@@ -143,7 +145,7 @@ class SortingData:
                     ) -> "SortingData":
         """Inputs from an event table and its feature matrix."""
         return cls(features, feature_names, events.time_s, events.amplitude_uv, events.group,
-                   events.artefact, events.recovered)
+                   events.artefact, recovered=events.recovered, channel=events.channel)
 
     def __len__(self) -> int:
         return len(self.group)

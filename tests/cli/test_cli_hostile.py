@@ -27,7 +27,7 @@ def one_line_error(capsys, argv, message):
 
 def test_export_refuses_bins_that_would_not_fit(sorted_small, capsys):
     out = sorted_small / "exp"
-    one_line_error(capsys, ["export", sorted_small / "s.h5", "--out", out, "--bin-ms", "1e-6"],
+    one_line_error(capsys, ["export", sorted_small / "s.h5", "--out", out, "--bin-ms", "1e-7"],
                    "bin width must give at most")
     assert not out.exists()
 

@@ -23,10 +23,15 @@ from rigside.core.runs.sort import run_sort
 from rigside.core.signal.snippets import snippet_window
 from rigside.core.synthetic.synth import write_synth
 from rigside.core.units.history import UndoStack
-from rigside.core.units.operations import Relabel
+from rigside.core.units.operations import MoveEvents, Relabel
 from rigside.core.units.session import load_session, save_session
+from rigside.core.units.sorting import NO_UNIT
 
 pynwb = pytest.importorskip("pynwb")   # the nwb extra
+
+
+EDGE = 3000
+"""Samples at either end of the file where the whole-file filter and ours pad differently."""
 
 
 @pytest.fixture(scope="module")
@@ -35,10 +40,16 @@ def sorted_session(tmp_path_factory):
     write_synth(d / "r.bin", seconds=6, channels=8, seed=4)
     rec = open_recording(d / "r.bin")
     run_sort(rec, Params(), d / "s.h5")
+    n_samples = rec.n_samples
     rec.close()
     session = load_session(d / "s.h5")
     first, second = sorted(session.sorting.units)[:2]
     stack = UndoStack(session.sorting)
+    # events near the file's ends leave their units (a move to no unit), so that every unit's mean
+    # waveform can be compared with the whole-file filter below
+    sample = session.events.sample
+    edge = np.flatnonzero(((sample < EDGE) | (sample > n_samples - EDGE)) & (session.sorting.assignments >= 0))
+    stack.push(MoveEvents(edge, NO_UNIT))
     stack.push(Relabel([first], "single unit"))
     stack.push(Relabel([second], "not neural"))
     save_session(d / "s.h5", session)
@@ -94,7 +105,7 @@ def test_mean_waveform_matches_scipy_filtering(sorted_session, tmp_path):
     filtered = signal.sosfiltfilt(sos, rec.read(0, rec.n_samples).astype(np.float64), axis=0)
     before, after = snippet_window(session.params.snippets, rec.rate_hz)
     ev = session.events
-    margin = 3000    # away from the file's ends, where the two paddings differ
+    margin = EDGE    # away from the file's ends, where the two paddings differ
     compared = 0
     with pynwb.NWBHDF5IO(str(out), "r") as io:
         units = io.read().units

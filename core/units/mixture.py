@@ -1,0 +1,72 @@
+"""Gaussian mixtures of the first pass: fitting (scikit-learn, imported on first use) and the
+merging of overlapping components by directly estimated misclassification probabilities."""
+
+from __future__ import annotations
+
+import warnings
+from typing import TYPE_CHECKING
+
+import numpy as np
+
+from rigside.core.params import ClusterParams
+
+if TYPE_CHECKING:
+    from sklearn.mixture import GaussianMixture
+
+
+def mixture_classes():
+    """scikit-learn's mixture class and its convergence warning, imported on first use (seconds
+    of import a window that only opens a session never pays); called before worker processes are
+    forked, so that they inherit the import."""
+    from sklearn.exceptions import ConvergenceWarning
+    from sklearn.mixture import GaussianMixture
+
+    return GaussianMixture, ConvergenceWarning
+
+
+def fit_mixture(x: np.ndarray, k: int, params: ClusterParams, random_state: int,
+                means_init: np.ndarray | None = None) -> GaussianMixture:
+    """A full-covariance mixture of ``k`` components fitted to ``x`` (EM limits from ``params``;
+    started from k-means, or from ``means_init``)."""
+    GaussianMixture, ConvergenceWarning = mixture_classes()
+    gm = GaussianMixture(n_components=k, covariance_type="full", max_iter=params.max_iter,
+                         tol=params.tol, reg_covar=1e-6, random_state=random_state, means_init=means_init)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ConvergenceWarning)
+        gm.fit(x)
+    return gm
+
+
+def merge_components(posterior: np.ndarray, threshold: float) -> list[list[int]]:
+    """Merge mixture components by directly estimated misclassification probabilities.
+
+    Parameters
+    ----------
+    posterior
+        Posterior probability of every component (events x components).
+    threshold
+        Merge while the largest pairwise misclassification probability exceeds this.
+
+    Returns
+    -------
+    list of lists
+        Component indices of each resulting cluster.
+    """
+    clusters = [[k] for k in range(posterior.shape[1])]
+    tau = np.asarray(posterior, dtype=np.float64).copy()
+    while tau.shape[1] > 1:
+        hard = tau.argmax(axis=1)
+        weight = tau.sum(axis=0)
+        # p[a, b]: posterior weight of cluster a on events classified as b, over a's weight
+        p = np.stack([np.bincount(hard, tau[:, a], tau.shape[1]) for a in range(tau.shape[1])])
+        p /= np.where(weight > 0, weight, 1.0)[:, None]
+        np.fill_diagonal(p, 0.0)
+        pair = np.maximum(p, p.T)
+        a, b = np.unravel_index(np.argmax(pair), pair.shape)
+        if pair[a, b] <= threshold:
+            break
+        a, b = min(a, b), max(a, b)
+        clusters[a] += clusters.pop(b)
+        tau[:, a] += tau[:, b]
+        tau = np.delete(tau, b, axis=1)
+    return clusters

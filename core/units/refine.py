@@ -1,0 +1,160 @@
+"""What the first pass does with a group's clusters before they are offered as units.
+
+Two steps, in this order, on the standardised features of one channel group (see
+:mod:`rigside.core.units.clustering`):
+
+1. **Fragments.** A cluster with fewer than max(``min_unit_events``, ``min_unit_share`` x the
+   group's clustered events) events is too small to be judged (its isolation and refractory
+   numbers mean little) and is not offered as a unit. Each of its events joins the remaining
+   cluster whose mixture component fits it best (largest weighted density among the components
+   of the remaining clusters) when the fit is good: the squared Mahalanobis distance to that
+   component is at most the ``fragment_fit`` quantile of the chi-square distribution with as
+   many degrees of freedom as features (the distribution of that distance for events truly
+   drawn from the component; common practice, no source). Every other event stays
+   *unassigned*: in no unit (id -1) but not an artefact, in the group's unassigned pool, from
+   which the curator can move events into a unit. A group whose clusters are all fragments
+   keeps all its events unassigned.
+2. **Split test** (``split_test``). Every remaining cluster is re-examined on its own events (a
+   seeded subsample of at most ``fit_events``): a two-component mixture (started once from
+   k-means and, when a second main channel holds at least ``min_unit_events`` events and a
+   tenth of the cluster, once from the means of the events of its two main channels) is
+   compared with one component by BIC (Schwarz 1978). The cluster is split when two components
+   win, their estimated misclassification probability is at most ``merge_overlap`` (the same
+   DEMP criterion that merged components, Hennig 2010, so a split is never one the merging
+   step would undo) and both parts keep at least the smallest unit size. Parts are tested again
+   while the group has fewer than ``k_max`` clusters.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from rigside.core.params import ClusterParams
+from rigside.core.units.mixture import fit_mixture, merge_components
+
+SECOND_CHANNEL_SHARE = 0.1
+"""Share of a cluster's events a second main channel must hold to start a split from the channels."""
+
+
+def smallest_unit(params: ClusterParams, n_group: int) -> int:
+    """Fewest events a first-pass unit of a group of ``n_group`` clustered events may have."""
+    return max(params.min_unit_events, int(np.ceil(params.min_unit_share * n_group)))
+
+
+def component_fit(z: np.ndarray, mixture) -> tuple[np.ndarray, np.ndarray]:
+    """Weighted log density and squared Mahalanobis distance of every event to every component
+    of a full-covariance scikit-learn mixture (events x components)."""
+    n, d = z.shape
+    k = len(mixture.weights_)
+    logp, d2 = np.empty((n, k)), np.empty((n, k))
+    for c in range(k):
+        chol = mixture.precisions_cholesky_[c]
+        y = (z - mixture.means_[c]) @ chol
+        d2[:, c] = np.einsum("ij,ij->i", y, y)
+        logp[:, c] = (np.log(mixture.weights_[c]) - 0.5 * d2[:, c] + np.log(np.diag(chol)).sum()
+                      - 0.5 * d * np.log(2 * np.pi))
+    return logp, d2
+
+
+def absorb_fragments(z: np.ndarray, labels: np.ndarray, mixture, merged: list[list[int]],
+                     params: ClusterParams) -> np.ndarray:
+    """Labels with the fragments' events moved to the best-fitting kept cluster or to -1.
+
+    Parameters
+    ----------
+    z
+        Standardised features of the group's clustered events.
+    labels
+        Cluster (index into ``merged``) of every event.
+    mixture
+        The fitted mixture; ``merged`` lists the components of each cluster.
+    params
+        ``min_unit_events``, ``min_unit_share`` and ``fragment_fit``.
+
+    Returns
+    -------
+    np.ndarray
+        int64 labels, -1 for unassigned events (cluster indices unchanged otherwise).
+    """
+    from scipy.stats import chi2
+
+    labels = np.asarray(labels, dtype=np.int64).copy()
+    sizes = np.bincount(labels, minlength=len(merged))
+    small = sizes < smallest_unit(params, len(labels))
+    if not small.any():
+        return labels
+    rows = np.flatnonzero(small[labels])
+    kept = [c for c in range(len(merged)) if not small[c]]
+    if not kept:
+        labels[rows] = -1
+        return labels
+    comps = np.asarray([comp for c in kept for comp in merged[c]])
+    owner = np.asarray([c for c in kept for _ in merged[c]])
+    logp, d2 = component_fit(z[rows], mixture)
+    best = logp[:, comps].argmax(axis=1)
+    good = d2[:, comps][np.arange(len(rows)), best] <= chi2.ppf(params.fragment_fit, z.shape[1])
+    labels[rows] = np.where(good, owner[best], -1)
+    return labels
+
+
+def split_clusters(z: np.ndarray, labels: np.ndarray, channel: np.ndarray | None, params: ClusterParams,
+                   rng: np.random.Generator) -> np.ndarray:
+    """Labels after the split test (see the module docstring); -1 labels are left alone.
+
+    Parameters
+    ----------
+    z
+        Standardised features of the group's clustered events.
+    labels
+        Cluster of every event (0..m-1, -1 unassigned).
+    channel
+        Main (detection) channel of every event, or None to use the features alone.
+    params
+        ``fit_events``, ``merge_overlap``, ``k_max`` and the smallest unit size.
+    rng
+        Source of the subsamples and of the fits' random states.
+
+    Returns
+    -------
+    np.ndarray
+        int64 labels; a split cluster keeps its index for one part, the other part is numbered
+        after the existing clusters.
+    """
+    labels = np.asarray(labels, dtype=np.int64).copy()
+    least = smallest_unit(params, len(labels))
+    todo = sorted(int(c) for c in np.unique(labels[labels >= 0]))
+    n_clusters = len(todo)
+    while todo and n_clusters < params.k_max:
+        c = todo.pop(0)
+        idx = np.flatnonzero(labels == c)
+        part = two_parts(z[idx], None if channel is None else channel[idx], params, rng, least)
+        if part is not None:
+            labels[idx[part]] = n_clusters
+            todo += [c, n_clusters]
+            n_clusters += 1
+    return labels
+
+
+def two_parts(z: np.ndarray, channel: np.ndarray | None, params: ClusterParams, rng: np.random.Generator,
+              least: int) -> np.ndarray | None:
+    """Mask of the second part when one cluster's events clearly hold two (else None)."""
+    n = len(z)
+    if n < 2 * least:
+        return None
+    fit = np.sort(rng.choice(n, params.fit_events, replace=False)) if n > params.fit_events else np.arange(n)
+    zf = z[fit]
+    state = int(rng.integers(0, 2**31 - 1))
+    one = fit_mixture(zf, 1, params, state)
+    starts = [None]
+    if channel is not None:
+        counts = np.bincount(channel[fit])
+        top = np.argsort(-counts, kind="stable")[:2]
+        if len(top) == 2 and counts[top[1]] >= max(params.min_unit_events, SECOND_CHANNEL_SHARE * len(fit)):
+            starts.append(np.stack([zf[channel[fit] == t].mean(axis=0) for t in top]))
+    two = min((fit_mixture(zf, 2, params, state, means_init=m) for m in starts), key=lambda gm: gm.bic(zf))
+    if two.bic(zf) >= one.bic(zf) or len(merge_components(two.predict_proba(zf), params.merge_overlap)) < 2:
+        return None
+    second = two.predict(z) == 1
+    if min(int(second.sum()), n - int(second.sum())) < least:
+        return None
+    return second
