@@ -20,6 +20,7 @@ from __future__ import annotations
 
 import json
 import re
+from concurrent.futures import Future, ThreadPoolExecutor
 from pathlib import Path
 from typing import Any
 
@@ -27,9 +28,9 @@ import h5py
 import numpy as np
 
 from rigside.core import __version__
-from rigside.core.io.atomic import atomic_write, safe_unlink
-from rigside.core.io.h5image import h5_image, h5_in_memory
-from rigside.core.io.h5safe import CHECKSUM_ATTR, read_verified, write_text
+from rigside.core.io.atomic import atomic_write_named, safe_unlink
+from rigside.core.io.h5image import Store, h5_direct, h5_in_memory
+from rigside.core.io.h5safe import CHECKSUM_ATTR, dataset_digest, read_verified, write_text
 from rigside.core.units.session_labels import labels_to_text
 
 FORMAT = "rigside session"
@@ -47,37 +48,51 @@ def static_path(main: str | Path, digest: str) -> Path:
     return p.with_name(f"{p.name}.static-{digest[:16]}.h5")
 
 
-def _seal(f: h5py.File, known: dict[str, np.ndarray]) -> str:
-    """Store and return the checksum of an in-memory file, hashing ``known`` from memory."""
+def _seal(f: h5py.File, known: dict[str, np.ndarray], size: int, digests: dict[str, Future] | None = None) -> str:
+    """Store and return the checksum of a file being built, hashing ``known`` from memory."""
     f.flush()
-    _, digest = read_verified(f, "", size=f.id.get_filesize(), per_dataset=True, known=known)
+    _, digest = read_verified(f, "", size=size, per_dataset=True, known=known, digests=digests)
     f.attrs[CHECKSUM_ATTR] = digest
     return digest
 
 
-def _fill_static(f: h5py.File, session: Any) -> str:
+def _fill_static(f: h5py.File, store: Store, session: Any, pool: ThreadPoolExecutor) -> str:
+    """The static part into ``f``; each array is hashed on ``pool`` while the next is written."""
     data = session.sorting.data
+    known: dict[str, np.ndarray] = {}
+    digests: dict[str, Future] = {}
+
+    def hashed(g: h5py.Group, name: str, arr: np.ndarray) -> h5py.Dataset:
+        full = f"{g.name.strip('/')}/{name}"
+        known[full] = arr = np.ascontiguousarray(arr)
+        digests[full] = pool.submit(dataset_digest, arr)
+        return store(g, name, arr)
+
     f.attrs.update(format=STATIC_FORMAT, format_version=FORMAT_VERSION)
-    stored = session.events.to_h5_group(f.create_group("events"), compress=False)
-    known = {f"events/{k}": v for k, v in stored.items()}
+    session.events.to_h5_group(f.create_group("events"), store=hashed)
     feat = f.create_group("features")
-    feat.create_dataset("values", data=data.features)
+    hashed(feat, "values", data.features)
     feat.attrs["names"] = json.dumps(list(data.feature_names))
-    known["features/values"] = data.features
     origin = session.sorting.origin
     if origin is not None:
-        known.update(_write_units(f.create_group(FIRST_PASS), origin.assignments, origin.units, origin.next_id))
-    return _seal(f, known)
+        known.update(_write_units(f.create_group(FIRST_PASS), origin.assignments, origin.units, origin.next_id,
+                                  hashed))
+    return _seal(f, known, f.id.get_filesize(), digests)
 
 
-def _write_units(g: h5py.Group, assignments: np.ndarray, units: dict, next_id: int) -> dict[str, np.ndarray]:
-    """Assignments, unit columns and id counter of one sorting state into ``g``; returns the
-    arrays written by dataset path (for the checksum)."""
+def _write_units(g: h5py.Group, assignments: np.ndarray, units: dict, next_id: int,
+                 store: Store | None = None) -> dict[str, np.ndarray]:
+    """Assignments, unit columns and id counter of one sorting state into ``g`` (large arrays by
+    ``store``, see :func:`rigside.core.io.h5image.h5_direct`); returns the arrays written by
+    dataset path (for the checksum)."""
     known = {"assignments": np.ascontiguousarray(assignments),
              "unit_id": np.array(list(units), dtype=np.int32),
              "unit_group": np.array([u.group for u in units.values()], dtype=np.int32)}
     for name, arr in known.items():
-        g.create_dataset(name, data=arr)
+        if store is None:
+            g.create_dataset(name, data=arr)
+        else:
+            store(g, name, arr)
     known["labels"] = write_text(g, "labels", labels_to_text([u.label for u in units.values()]))
     known["notes"] = write_text(g, "notes", json.dumps([u.note for u in units.values()]))
     g.attrs["next_id"] = np.int64(next_id)
@@ -99,21 +114,31 @@ def ensure_static(main: Path, session: Any) -> tuple[str, str]:
     """Write the session's static part beside ``main`` unless it is there already.
 
     The checksum is kept on the session (with the arrays it was computed from), so later
-    saves neither rebuild nor rewrite it. Returns the static part's file name and checksum.
+    saves neither rebuild nor rewrite it; a session without one writes its static part
+    (hashing each array while the next is written) and keeps it unless a file of that name
+    holds that checksum already. Returns the static part's file name and checksum.
     """
     cache = session.static_cache
-    image = None
     if cache is not None and all(a is b for a, b in zip(cache[:3], _static_key(session))):
         digest = cache[3]
+        if stored_checksum(static_path(main, digest)) != digest:
+            _write_static(main, session)
     else:
-        image, digest = h5_image(lambda f: _fill_static(f, session), libver=LIBVER)
-    target = static_path(main, digest)
-    if stored_checksum(target) != digest:
-        if image is None:
-            image, _ = h5_image(lambda f: _fill_static(f, session), libver=LIBVER)
-        atomic_write(target, lambda tmp: tmp.write_bytes(image))
+        digest = _write_static(main, session)
     session.static_cache = (*_static_key(session), digest)
-    return target.name, digest
+    return static_path(main, digest).name, digest
+
+
+def _write_static(main: Path, session: Any) -> str:
+    """Write the static part beside ``main`` atomically, named by its checksum; returns the checksum."""
+    def write(tmp: Path) -> str:
+        with ThreadPoolExecutor(2) as pool, h5_direct(tmp, libver=LIBVER) as (f, store):
+            return _fill_static(f, store, session, pool)
+
+    def name(digest: str) -> Path | None:
+        target = static_path(main, digest)
+        return None if stored_checksum(target) == digest else target
+    return atomic_write_named(main, write, name)[1]
 
 
 def _static_key(session: Any) -> tuple:
@@ -133,7 +158,7 @@ def write_state(tmp: Path, session: Any, saved_utc: str, static: tuple[str, str]
         f.create_group("params").attrs["json"] = json.dumps(session.params.to_dict(), allow_nan=False)
         known = _write_units(f.create_group("sorting"), sorting.assignments, sorting.units, sorting.next_id)
         known["journal/lines"] = write_text(f.create_group("journal"), "lines", sorting.journal.to_text())
-        _seal(f, known)
+        _seal(f, known, f.id.get_filesize())
 
 
 def _attrs(path: Path) -> dict | None:
