@@ -14,7 +14,7 @@ import math
 import os
 from concurrent.futures import Future, ThreadPoolExecutor
 from pathlib import Path
-from typing import Any, Mapping
+from typing import Any, Callable, Mapping
 
 import h5py
 import numpy as np
@@ -224,11 +224,15 @@ def text(data: dict[str, np.ndarray], name: str) -> str:
         raise SessionError(f"session dataset {name} must hold UTF-8 text, got undecodable bytes") from None
 
 
-def write_text(g: h5py.Group, name: str, value: str) -> np.ndarray:
-    """Store text as a uint8 dataset (attributes are limited to 64 KiB); returns the stored bytes."""
+def write_text(g: h5py.Group, name: str, value: str,
+               store: Callable[[h5py.Group, str, np.ndarray], object] | None = None) -> None:
+    """Store text as a uint8 dataset (attributes are limited to 64 KiB), by ``store(g, name, bytes)``
+    if given."""
     raw = np.frombuffer(value.encode("utf-8"), dtype=np.uint8)
-    g.create_dataset(name, data=raw)
-    return raw
+    if store is None:
+        g.create_dataset(name, data=raw)
+    else:
+        store(g, name, raw)
 
 
 def stored_dataset(f: h5py.File, name: str, allow_external: bool,
