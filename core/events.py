@@ -16,6 +16,7 @@ import json
 import math
 from dataclasses import dataclass, field
 from pathlib import Path
+from typing import Callable
 
 import h5py
 import numpy as np
@@ -67,6 +68,16 @@ def uv_to_sigma(threshold_uv, sigma_uv) -> np.ndarray:
     uv = np.broadcast_to(np.asarray(threshold_uv, dtype=np.float64), sigma.shape)
     return np.where(sigma > 0, uv / np.where(sigma > 0, sigma, 1.0), np.inf)
 
+
+
+def _plain(g: h5py.Group, name: str, arr: np.ndarray) -> h5py.Dataset:
+    return g.create_dataset(name, data=arr)
+
+
+def _compressed(g: h5py.Group, name: str, arr: np.ndarray) -> h5py.Dataset:
+    if not len(arr):
+        return _plain(g, name, arr)
+    return g.create_dataset(name, data=arr, compression="gzip", compression_opts=1, shuffle=True)
 
 @dataclass
 class EventColumns:
@@ -249,13 +260,16 @@ class EventTable(EventColumns):
             g.create_dataset("time_s", data=self.time_s)
         atomic_write(path, lambda tmp: write_h5(tmp, fill))
 
-    def to_h5_group(self, g: h5py.Group, compress: bool = True) -> dict[str, np.ndarray]:
-        """Store columns and context in an open HDF5 group (columns gzip-compressed unless
-        ``compress`` is False); returns the stored arrays by dataset name."""
+    def to_h5_group(self, g: h5py.Group, store: Callable[[h5py.Group, str, np.ndarray], object] | None = None
+                    ) -> dict[str, np.ndarray]:
+        """Store columns and context in an open HDF5 group; returns the stored arrays by dataset name.
+
+        Each array is stored by ``store(g, name, array)`` (e.g. uncompressed, straight to the
+        file, see :func:`rigside.core.io.h5image.h5_direct`); by default columns are
+        gzip-compressed datasets."""
         for c in self.columns:
-            g.create_dataset(c, data=getattr(self, c), compression="gzip", compression_opts=1,
-                             shuffle=True) if len(self) and compress else g.create_dataset(c, data=getattr(self, c))
-        g.create_dataset("sigma_uv", data=self.sigma_uv)
+            (store or _compressed)(g, c, getattr(self, c))
+        (store or _plain)(g, "sigma_uv", self.sigma_uv)
         g.attrs.update(rate_hz=self.rate_hz, n_samples=self.n_samples,
                        floor_sigma=self.floor_sigma, polarity=self.polarity,
                        excluded_channels=json.dumps({str(c): r for c, r in self.excluded.items()}))

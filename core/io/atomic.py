@@ -19,9 +19,11 @@ import glob
 import os
 import tempfile
 from pathlib import Path
-from typing import Callable, Iterable, Iterator
+from typing import Callable, Iterable, Iterator, TypeVar
 
 from rigside.core.errors import ParamError, RigsideError
+
+T = TypeVar("T")
 
 _INPUTS: contextvars.ContextVar[tuple[tuple[str, tuple[int, int] | None, str], ...]] = \
     contextvars.ContextVar("rigside_inputs", default=())
@@ -143,24 +145,44 @@ def atomic_write(path: str | Path, write: Callable[[Path], None],
         is untouched; an ``OSError`` becomes :class:`WriteError`.
     """
     path = check_not_input(path)
+    atomic_write_named(path, write, lambda _: path, before_replace)
+    return path
+
+
+def atomic_write_named(beside: str | Path, write: Callable[[Path], T], name: Callable[[T], Path | None],
+                       before_replace: Callable[[], None] | None = None) -> tuple[Path | None, T]:
+    """Write a file atomically whose name depends on what was written (e.g. its checksum).
+
+    ``write(tmp)`` fills a temporary file beside ``beside`` and returns a value; ``name(value)``
+    gives the final path (checked as in :func:`atomic_write`), or None when no file is wanted
+    after all (the temporary file is removed). Returns the final path (or None) and the value;
+    errors are handled as in :func:`atomic_write`.
+    """
+    beside = Path(beside)
     try:
-        tmp = temporary_beside(path)
+        tmp = temporary_beside(beside)
     except OSError as exc:
-        raise _write_failed(path, exc) from None
+        raise _write_failed(beside, exc) from None
+    final: Path | None = beside
     try:
-        write(tmp)
+        value = write(tmp)
+        final = name(value)
+        if final is None:
+            tmp.unlink()
+            return None, value
+        final = check_not_input(final)
         fsync_file(tmp)
         if before_replace is not None:
             before_replace()
-        os.replace(tmp, path)
+        os.replace(tmp, final)
     except OSError as exc:
         tmp.unlink(missing_ok=True)
-        raise _write_failed(path, exc) from None
+        raise _write_failed(final or beside, exc) from None
     except BaseException:
         tmp.unlink(missing_ok=True)
         raise
-    fsync_dir(path.parent)
-    return path
+    fsync_dir(final.parent)
+    return final, value
 
 
 def atomic_copy_bytes(src: str | Path, dst: str | Path) -> None:

@@ -12,9 +12,9 @@ from __future__ import annotations
 import hashlib
 import math
 import os
-from concurrent.futures import ThreadPoolExecutor
+from concurrent.futures import Future, ThreadPoolExecutor
 from pathlib import Path
-from typing import Any, Mapping
+from typing import Any, Callable, Mapping
 
 import h5py
 import numpy as np
@@ -112,6 +112,11 @@ def _raw(arr: np.ndarray) -> memoryview:
     return memoryview(arr.reshape(-1).view(np.uint8))
 
 
+def dataset_digest(arr: np.ndarray) -> bytes:
+    """SHA-256 of an array's bytes in C order (a dataset's part of a format-3 checksum)."""
+    return hashlib.sha256(_raw(np.ascontiguousarray(arr))).digest()
+
+
 def _data_of(full: str, ds: h5py.Dataset, known: Mapping[str, np.ndarray] | None) -> np.ndarray:
     if known is not None and full in known:
         arr = np.ascontiguousarray(known[full])
@@ -127,7 +132,8 @@ def _data_of(full: str, ds: h5py.Dataset, known: Mapping[str, np.ndarray] | None
 
 
 def read_verified(f: h5py.File, path: str | Path, size: int | None = None, per_dataset: bool = False,
-                  known: Mapping[str, np.ndarray] | None = None) -> tuple[dict[str, np.ndarray], str]:
+                  known: Mapping[str, np.ndarray] | None = None,
+                  digests: Mapping[str, Future] | None = None) -> tuple[dict[str, np.ndarray], str]:
     """Read every dataset of an open file after checking its structure, and hash it all.
 
     Parameters
@@ -144,6 +150,9 @@ def read_verified(f: h5py.File, path: str | Path, size: int | None = None, per_d
     known
         Arrays by slash path that the file holds and the caller already has (a file just
         written from them): hashed from memory instead of read back.
+    digests
+        :func:`dataset_digest` of some of ``known``, already being computed (futures), e.g. while
+        the file was written (``per_dataset`` only).
 
     Returns
     -------
@@ -158,7 +167,11 @@ def read_verified(f: h5py.File, path: str | Path, size: int | None = None, per_d
         parts = []
         for full, ds in datasets:
             arr = data[full] = _data_of(full, ds, known)
-            parts.append(pool.submit(lambda a: hashlib.sha256(_raw(a)).digest(), arr) if per_dataset else arr)
+            if not per_dataset:
+                parts.append(arr)
+            else:
+                given = digests is not None and full in digests and known is not None and full in known
+                parts.append(digests[full] if given else pool.submit(dataset_digest, arr))
         for (full, ds), part in zip(datasets, parts):
             arr = data[full]
             h.update(b"D" + full.encode("utf-8") + b"\0" + arr.dtype.str.encode() + repr(arr.shape).encode())
@@ -211,11 +224,15 @@ def text(data: dict[str, np.ndarray], name: str) -> str:
         raise SessionError(f"session dataset {name} must hold UTF-8 text, got undecodable bytes") from None
 
 
-def write_text(g: h5py.Group, name: str, value: str) -> np.ndarray:
-    """Store text as a uint8 dataset (attributes are limited to 64 KiB); returns the stored bytes."""
+def write_text(g: h5py.Group, name: str, value: str,
+               store: Callable[[h5py.Group, str, np.ndarray], object] | None = None) -> None:
+    """Store text as a uint8 dataset (attributes are limited to 64 KiB), by ``store(g, name, bytes)``
+    if given."""
     raw = np.frombuffer(value.encode("utf-8"), dtype=np.uint8)
-    g.create_dataset(name, data=raw)
-    return raw
+    if store is None:
+        g.create_dataset(name, data=raw)
+    else:
+        store(g, name, raw)
 
 
 def stored_dataset(f: h5py.File, name: str, allow_external: bool,

@@ -18,18 +18,20 @@ Checksums are computed from the arrays being written (per dataset, see
 
 from __future__ import annotations
 
+import contextlib
 import json
 import re
+from concurrent.futures import Future, ThreadPoolExecutor
 from pathlib import Path
-from typing import Any
+from typing import Any, Iterator
 
 import h5py
 import numpy as np
 
 from rigside.core import __version__
-from rigside.core.io.atomic import atomic_write, safe_unlink
-from rigside.core.io.h5image import h5_image, h5_in_memory
-from rigside.core.io.h5safe import CHECKSUM_ATTR, read_verified, write_text
+from rigside.core.io.atomic import atomic_write_named, safe_unlink
+from rigside.core.io.h5image import Store, h5_direct
+from rigside.core.io.h5safe import CHECKSUM_ATTR, dataset_digest, read_verified, write_text
 from rigside.core.units.session_labels import labels_to_text
 
 FORMAT = "rigside session"
@@ -47,42 +49,59 @@ def static_path(main: str | Path, digest: str) -> Path:
     return p.with_name(f"{p.name}.static-{digest[:16]}.h5")
 
 
-def _seal(f: h5py.File, known: dict[str, np.ndarray]) -> str:
-    """Store and return the checksum of an in-memory file, hashing ``known`` from memory."""
-    f.flush()
-    _, digest = read_verified(f, "", size=f.id.get_filesize(), per_dataset=True, known=known)
-    f.attrs[CHECKSUM_ATTR] = digest
-    return digest
+class _Hashed:
+    """Stores arrays into a file being written (:func:`rigside.core.io.h5image.h5_direct`), each
+    hashed on a worker thread while the next is written, then seals the file with its checksum."""
+
+    def __init__(self, f: h5py.File, store: Store, pool: ThreadPoolExecutor) -> None:
+        self.f, self.store, self.pool = f, store, pool
+        self.known: dict[str, np.ndarray] = {}
+        self.digests: dict[str, Future] = {}
+
+    def __call__(self, g: h5py.Group, name: str, arr: np.ndarray) -> h5py.Dataset:
+        full = f"{g.name.strip('/')}/{name}"
+        self.known[full] = arr = np.ascontiguousarray(arr)
+        self.digests[full] = self.pool.submit(dataset_digest, arr)
+        return self.store(g, name, arr)
+
+    def seal(self) -> str:
+        """Store and return the file's checksum (the arrays hashed from memory, never read back)."""
+        self.f.flush()
+        _, digest = read_verified(self.f, "", size=self.f.id.get_filesize(), per_dataset=True, known=self.known,
+                                  digests=self.digests)
+        self.f.attrs[CHECKSUM_ATTR] = digest
+        return digest
 
 
-def _fill_static(f: h5py.File, session: Any) -> str:
+@contextlib.contextmanager
+def _written(tmp: Path) -> Iterator[tuple[h5py.File, _Hashed]]:
+    with ThreadPoolExecutor(2) as pool, h5_direct(tmp, libver=LIBVER) as (f, store):
+        yield f, _Hashed(f, store, pool)
+
+
+def _fill_static(tmp: Path, session: Any) -> str:
+    """Write the static part to ``tmp``; returns its checksum."""
     data = session.sorting.data
-    f.attrs.update(format=STATIC_FORMAT, format_version=FORMAT_VERSION)
-    stored = session.events.to_h5_group(f.create_group("events"), compress=False)
-    known = {f"events/{k}": v for k, v in stored.items()}
-    feat = f.create_group("features")
-    feat.create_dataset("values", data=data.features)
-    feat.attrs["names"] = json.dumps(list(data.feature_names))
-    known["features/values"] = data.features
-    origin = session.sorting.origin
-    if origin is not None:
-        known.update(_write_units(f.create_group(FIRST_PASS), origin.assignments, origin.units, origin.next_id))
-    return _seal(f, known)
+    with _written(tmp) as (f, store):
+        f.attrs.update(format=STATIC_FORMAT, format_version=FORMAT_VERSION)
+        session.events.to_h5_group(f.create_group("events"), store=store)
+        feat = f.create_group("features")
+        store(feat, "values", data.features)
+        feat.attrs["names"] = json.dumps(list(data.feature_names))
+        origin = session.sorting.origin
+        if origin is not None:
+            _write_units(f.create_group(FIRST_PASS), origin.assignments, origin.units, origin.next_id, store)
+        return store.seal()
 
 
-def _write_units(g: h5py.Group, assignments: np.ndarray, units: dict, next_id: int) -> dict[str, np.ndarray]:
-    """Assignments, unit columns and id counter of one sorting state into ``g``; returns the
-    arrays written by dataset path (for the checksum)."""
-    known = {"assignments": np.ascontiguousarray(assignments),
-             "unit_id": np.array(list(units), dtype=np.int32),
-             "unit_group": np.array([u.group for u in units.values()], dtype=np.int32)}
-    for name, arr in known.items():
-        g.create_dataset(name, data=arr)
-    known["labels"] = write_text(g, "labels", labels_to_text([u.label for u in units.values()]))
-    known["notes"] = write_text(g, "notes", json.dumps([u.note for u in units.values()]))
+def _write_units(g: h5py.Group, assignments: np.ndarray, units: dict, next_id: int, store: Store) -> None:
+    """Assignments, unit columns and id counter of one sorting state into ``g`` (each dataset by ``store``)."""
+    store(g, "assignments", assignments)
+    store(g, "unit_id", np.array(list(units), dtype=np.int32))
+    store(g, "unit_group", np.array([u.group for u in units.values()], dtype=np.int32))
+    write_text(g, "labels", labels_to_text([u.label for u in units.values()]), store)
+    write_text(g, "notes", json.dumps([u.note for u in units.values()]), store)
     g.attrs["next_id"] = np.int64(next_id)
-    prefix = g.name.lstrip("/")
-    return {f"{prefix}/{k}": v for k, v in known.items()}
 
 
 def stored_checksum(path: Path) -> str | None:
@@ -99,21 +118,27 @@ def ensure_static(main: Path, session: Any) -> tuple[str, str]:
     """Write the session's static part beside ``main`` unless it is there already.
 
     The checksum is kept on the session (with the arrays it was computed from), so later
-    saves neither rebuild nor rewrite it. Returns the static part's file name and checksum.
+    saves neither rebuild nor rewrite it; a session without one writes its static part
+    (hashing each array while the next is written) and keeps it unless a file of that name
+    holds that checksum already. Returns the static part's file name and checksum.
     """
     cache = session.static_cache
-    image = None
     if cache is not None and all(a is b for a, b in zip(cache[:3], _static_key(session))):
         digest = cache[3]
+        if stored_checksum(static_path(main, digest)) != digest:
+            _write_static(main, session)
     else:
-        image, digest = h5_image(lambda f: _fill_static(f, session), libver=LIBVER)
-    target = static_path(main, digest)
-    if stored_checksum(target) != digest:
-        if image is None:
-            image, _ = h5_image(lambda f: _fill_static(f, session), libver=LIBVER)
-        atomic_write(target, lambda tmp: tmp.write_bytes(image))
+        digest = _write_static(main, session)
     session.static_cache = (*_static_key(session), digest)
-    return target.name, digest
+    return static_path(main, digest).name, digest
+
+
+def _write_static(main: Path, session: Any) -> str:
+    """Write the static part beside ``main`` atomically, named by its checksum; returns the checksum."""
+    def name(digest: str) -> Path | None:
+        target = static_path(main, digest)
+        return None if stored_checksum(target) == digest else target
+    return atomic_write_named(main, lambda tmp: _fill_static(tmp, session), name)[1]
 
 
 def _static_key(session: Any) -> tuple:
@@ -122,18 +147,18 @@ def _static_key(session: Any) -> tuple:
 
 
 def write_state(tmp: Path, session: Any, saved_utc: str, static: tuple[str, str]) -> None:
-    """Write the state part of ``session`` to ``tmp`` (built in memory, written at once)."""
+    """Write the state part of ``session`` to ``tmp``."""
     sorting, ref = session.sorting, session.recording
-    with h5_in_memory(tmp, libver=LIBVER) as f:
+    with _written(tmp) as (f, store):
         f.attrs.update(format=FORMAT, format_version=FORMAT_VERSION, program_version=__version__,
                        saved_utc=saved_utc, **{STATIC_NAME_ATTR: static[0], STATIC_CHECKSUM_ATTR: static[1]})
         rec = f.create_group("recording")
         rec.attrs.update(path=ref.path, size=np.int64(ref.size), fingerprint=ref.fingerprint,
                          content_hash=ref.content_hash, description=json.dumps(ref.description, allow_nan=False))
         f.create_group("params").attrs["json"] = json.dumps(session.params.to_dict(), allow_nan=False)
-        known = _write_units(f.create_group("sorting"), sorting.assignments, sorting.units, sorting.next_id)
-        known["journal/lines"] = write_text(f.create_group("journal"), "lines", sorting.journal.to_text())
-        _seal(f, known)
+        _write_units(f.create_group("sorting"), sorting.assignments, sorting.units, sorting.next_id, store)
+        write_text(f.create_group("journal"), "lines", sorting.journal.to_text(), store)
+        store.seal()
 
 
 def _attrs(path: Path) -> dict | None:

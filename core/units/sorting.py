@@ -31,21 +31,25 @@ AXIS_AMPLITUDE = "event:amplitude_uv"
 FEATURE_AXIS_PREFIX = "feature:"
 
 
-def positions_in(ids: np.ndarray, values: np.ndarray) -> np.ndarray:
-    """Index of each of ``values`` in the sorted, unique ``ids`` (-1 where absent).
+def groups_of(assignments: np.ndarray, ids: np.ndarray, groups: np.ndarray) -> np.ndarray:
+    """The channel group of each event's unit (int32): ``groups[k]`` for unit ``ids[k]`` (sorted,
+    unique), -1 for events in no unit, -2 for ids not in ``ids``.
 
-    A look-up table when the largest id is not far above the number of values (unit ids are),
-    else a binary search; both give the same positions.
+    A look-up table by id when the largest id is not far above the number of events (unit ids
+    are), else a binary search; both give the same groups.
     """
+    a = np.asarray(assignments)
+    lo, hi = (int(a.min()), int(a.max())) if len(a) else (NO_UNIT, NO_UNIT)
+    if lo >= NO_UNIT and hi <= 4 * len(a) + (1 << 16):
+        table = np.full(hi + 2, -2, dtype=np.int32)
+        table[0] = -1
+        inside = ids <= hi
+        table[ids[inside] + 1] = groups[inside]
+        return table[a + 1]
     if not len(ids):
-        return np.full(len(values), -1, dtype=np.int64)
-    top = int(ids[-1])
-    if 0 <= int(ids[0]) and top <= 4 * len(values) + (1 << 16):
-        table = np.full(top + 1, -1, dtype=np.int64)
-        table[ids] = np.arange(len(ids))
-        return np.where((values >= 0) & (values <= top), table[np.clip(values, 0, top)], -1)
-    pos = np.minimum(np.searchsorted(ids, values), len(ids) - 1)
-    return np.where(ids[pos] == values, pos, -1)
+        return np.where(a == NO_UNIT, -1, -2).astype(np.int32)
+    pos = np.minimum(np.searchsorted(ids, a), len(ids) - 1)
+    return np.where(ids[pos] == a, groups[pos], np.where(a == NO_UNIT, -1, -2)).astype(np.int32)
 
 
 @dataclass(frozen=True)
@@ -257,16 +261,14 @@ class Sorting:
                                     f"got {u!r}: {type(rec).__name__}")
         ids = np.asarray(self.unit_ids(), dtype=np.int64)
         groups = np.asarray([self._units[int(u)].group for u in ids], dtype=np.int64)
-        rows = np.flatnonzero(self._assign != NO_UNIT)
-        assigned = self._assign[rows]
-        pos = positions_in(ids, assigned)
-        known = pos >= 0
-        if not known.all():
+        found = groups_of(self._assign, ids, groups)
+        unknown = found == -2
+        if unknown.any():
             raise CurationError(f"assigned unit ids must be in the unit table, got unknown ids "
-                                f"{np.unique(assigned[~known])[:10].tolist()}")
-        wrong = groups[pos] != self.data.group[rows]
+                                f"{np.unique(self._assign[unknown])[:10].tolist()}")
+        wrong = (found != self.data.group) & (found >= 0)
         if wrong.any():
-            first = int(rows[np.argmax(wrong)])
+            first = int(np.argmax(wrong))
             raise CurationError(f"events must belong to units of their own channel group, got event "
                                 f"{first} of group {int(self.data.group[first])} in unit "
                                 f"{int(self._assign[first])}")

@@ -319,14 +319,18 @@ def test_steps_applied_out_of_order_are_refused(base):
     assert same(s, before)
 
 
-def test_positions_in_agrees_with_a_dictionary_on_both_paths():
-    from rigside.core.units.sorting import positions_in
+def test_groups_of_agrees_with_a_dictionary_on_both_paths():
+    from rigside.core.units.sorting import groups_of
 
     rng = np.random.default_rng(4)
     for top in (300, 2**31 - 3):          # a look-up table, then a binary search
         ids = np.unique(np.r_[rng.integers(1, 300, 40), top]).astype(np.int64)
-        values = np.r_[rng.choice(ids, 500), rng.integers(-5, 400, 200), [top + 1, -1]]
+        groups = rng.integers(0, 16, len(ids))
+        values = np.r_[rng.choice(ids, 500), rng.integers(-5, 400, 200), [top, -1]]
         values = values.astype(np.int32 if top < 2**30 else np.int64)
-        where = {int(u): i for i, u in enumerate(ids)}     # common practice, no source: a plain mapping
-        assert positions_in(ids, values).tolist() == [where.get(int(v), -1) for v in values]
-    assert positions_in(np.zeros(0, np.int64), np.array([1, 2])).tolist() == [-1, -1]
+        group = dict(zip(ids.tolist(), groups.tolist()))  # common practice, no source: a plain mapping
+        group[-1] = -1
+        got = groups_of(values, ids, groups)
+        assert got.dtype == np.int32 and got.tolist() == [group.get(int(v), -2) for v in values]
+    assert groups_of(np.array([1, -1, 2]), np.zeros(0, np.int64), np.zeros(0, np.int64)).tolist() == [-2, -1, -2]
+    assert groups_of(np.array([-7, 1]), np.array([1]), np.array([3])).tolist() == [-2, 3]
