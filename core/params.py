@@ -226,7 +226,7 @@ class ClusterParams:
             raise ParamError(f"EM tolerance must be a finite number above 0, got {self.tol!r}")
         if not (isinstance(self.merge_overlap, (int, float)) and 0 <= self.merge_overlap <= 1):
             raise ParamError(f"merge overlap must be a number from 0 to 1, got {self.merge_overlap!r}")
-        integer("smallest unit size", self.min_unit_events, 1, 1_000_000)
+        _integer("smallest unit size", self.min_unit_events, 1, 1_000_000)
         for what, v in (("smallest unit share", self.min_unit_share), ("fragment fit quantile", self.fragment_fit)):
             if not (isinstance(v, (int, float)) and not isinstance(v, bool) and 0 <= v < 1):
                 raise ParamError(f"{what} must be a number from 0 to below 1, got {v!r}")
