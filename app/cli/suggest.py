@@ -36,7 +36,7 @@ def register(sub: argparse._SubParsersAction) -> None:
 def run_suggest(args: argparse.Namespace) -> int:
     from rigside.core.io.atomic import check_output
     from rigside.core.io.recording import open_recording
-    from rigside.core.params import metric_settings
+    from rigside.core.quality.metric_settings import metric_settings
     from rigside.core.quality.suggestions import SuggestParams, mean_waveforms, suggest, write_suggestions_csv
     from rigside.core.units.session import RecordingMoved, check_recording_content, load_session
 

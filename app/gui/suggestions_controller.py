@@ -15,7 +15,7 @@ from pathlib import Path
 
 from PySide6.QtCore import QObject, QTimer, Signal
 
-from rigside.core.params import metric_settings
+from rigside.core.quality.metric_settings import metric_settings
 from rigside.core.quality.suggestions import Suggestion, SuggestParams, mean_waveforms, suggest
 from rigside.core.units.dismissals import key_of
 
