@@ -33,9 +33,15 @@ from rigside.core.units.polygon import check_polygon, points_in_polygon
 from rigside.core.units.sorting import LABELS, NO_UNIT, Delta, Sorting, Unit
 
 
+BEFORE_FRAGMENT_RULE = {"min_unit_events": 1, "min_unit_share": 0.0, "split_test": False}
+"""Settings that replay a record written before the fragment rule and the split test as it ran then."""
+
+
 def _cluster_params(data: Any) -> ClusterParams:
     """Clustering settings from a journal record; bad values are a refused step."""
     try:
+        if isinstance(data, dict) and "min_unit_events" not in data:
+            data = {**BEFORE_FRAGMENT_RULE, **data}
         return ClusterParams.from_dict(data)
     except ParamError as exc:
         raise CurationError(str(exc)) from None
