@@ -1,7 +1,8 @@
 """First-pass clustering of event features, one channel group at a time.
 
 Each group's features are standardised (z-scores from a fitted subsample) and modelled by a
-Gaussian mixture with full covariances (scikit-learn ``GaussianMixture``). The number of
+Gaussian mixture with full covariances (:mod:`rigside.core.units.em`: scikit-learn's
+``GaussianMixture`` algorithm, compiled). The number of
 components is the one with the lowest Bayesian information criterion (Schwarz 1978) over
 ``k_min..k_max``, searched upwards and stopped after ``patience`` successive values of k that
 do not improve it; ``k`` may also be forced. The mixture is fitted on a random subsample of at
@@ -26,7 +27,6 @@ from __future__ import annotations
 
 from concurrent.futures import ProcessPoolExecutor
 from multiprocessing import get_all_start_methods, get_context
-from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -34,12 +34,10 @@ from rigside.core.errors import RigsideError
 from rigside.core.params import ClusterParams
 from rigside.core.progress import CancelFn, ProgressFn, check, report, run_bounded
 from rigside.core.signal.chunk_pool import single_threaded_pools
-from rigside.core.units.mixture import fit_mixture, merge_components, mixture_classes
+from rigside.core.units.em import Mixture, warm_up
+from rigside.core.units.mixture import fit_mixture, merge_components
 from rigside.core.units.refine import absorb_fragments, smallest_unit, split_clusters
 from rigside.core.units.sorting import NO_UNIT
-
-if TYPE_CHECKING:
-    from sklearn.mixture import GaussianMixture
 
 MIN_EVENTS_PER_COMPONENT = 10
 """A fit never uses more components than one per this many fitted events."""
@@ -137,7 +135,7 @@ def _cluster(features: np.ndarray, params: ClusterParams, stream: int, k: int | 
     return dense
 
 
-def _search(zf: np.ndarray, params: ClusterParams, random_state: int, forced: int | None) -> GaussianMixture:
+def _search(zf: np.ndarray, params: ClusterParams, random_state: int, forced: int | None) -> Mixture:
     """The mixture of ``forced`` components, or of the count of lowest BIC (searched upwards)."""
     if forced is not None:
         return fit_mixture(zf, min(int(forced), len(zf)), params, random_state)
@@ -155,7 +153,7 @@ def _search(zf: np.ndarray, params: ClusterParams, random_state: int, forced: in
     return best if best is not None else fit_mixture(zf, 1, params, random_state)
 
 
-def _assign(x: np.ndarray, scaling, mixture: GaussianMixture, merged: list[list[int]]) -> np.ndarray:
+def _assign(x: np.ndarray, scaling, mixture: Mixture, merged: list[list[int]]) -> np.ndarray:
     """Cluster of largest summed posterior for every event, in blocks of :data:`ASSIGN_BLOCK`.
 
     Memory stays bounded whatever the event count; the blocks are fixed, so the result does
@@ -211,7 +209,7 @@ def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np
         of fragments) and the channel group of every new unit id.
     """
     params.validate()
-    mixture_classes()
+    warm_up()
     group = np.asarray(group)
     n = len(group)
     lengths = {len(features), len(artefact), len(amplitude_uv)} | ({len(channel)} if channel is not None else set())

@@ -1,40 +1,20 @@
-"""Gaussian mixtures of the first pass: fitting (scikit-learn, imported on first use) and the
+"""Gaussian mixtures of the first pass: fitting (:mod:`rigside.core.units.em`) and the
 merging of overlapping components by directly estimated misclassification probabilities."""
 
 from __future__ import annotations
 
-import warnings
-from typing import TYPE_CHECKING
-
 import numpy as np
 
 from rigside.core.params import ClusterParams
-
-if TYPE_CHECKING:
-    from sklearn.mixture import GaussianMixture
-
-
-def mixture_classes():
-    """scikit-learn's mixture class and its convergence warning, imported on first use (seconds
-    of import a window that only opens a session never pays); called before worker processes are
-    forked, so that they inherit the import."""
-    from sklearn.exceptions import ConvergenceWarning
-    from sklearn.mixture import GaussianMixture
-
-    return GaussianMixture, ConvergenceWarning
+from rigside.core.units.em import Mixture, fit_em
 
 
 def fit_mixture(x: np.ndarray, k: int, params: ClusterParams, random_state: int,
-                means_init: np.ndarray | None = None) -> GaussianMixture:
+                means_init: np.ndarray | None = None) -> Mixture:
     """A full-covariance mixture of ``k`` components fitted to ``x`` (EM limits from ``params``;
     started from k-means, or from ``means_init``)."""
-    GaussianMixture, ConvergenceWarning = mixture_classes()
-    gm = GaussianMixture(n_components=k, covariance_type="full", max_iter=params.max_iter,
-                         tol=params.tol, reg_covar=1e-6, random_state=random_state, means_init=means_init)
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", ConvergenceWarning)
-        gm.fit(x)
-    return gm
+    return fit_em(x, k, max_iter=params.max_iter, tol=params.tol, reg_covar=1e-6, random_state=random_state,
+                  means_init=means_init)
 
 
 def merge_components(posterior: np.ndarray, threshold: float) -> list[list[int]]:

@@ -20,12 +20,14 @@ Layout (format version 3): two HDF5 files (see :mod:`rigside.core.units.session_
 Formats 1 and 2 kept both parts in one file (one SHA-256 over everything); they are still read.
 Format 1 stored labels as codes instead of ``/sorting/labels``; it is still read (see
 :mod:`rigside.core.units.session_labels`). No pickled or executable content is written or accepted.
-Saving is atomic: a uniquely named temporary file beside ``NAME`` is written (built in memory, then
-written at once), flushed, fsynced and renamed over ``NAME``; the previous ``NAME`` (if it verifies)
-becomes ``NAME.bak`` first, by a hard link where possible. Only the state part is written on every
-save; the static part once. ``NAME.autosave.h5`` is a state part written the same way by
-:func:`save_autosave` (it refers to the same static part); :mod:`rigside.core.units.session_recovery`
-finds the newest
+Saving is atomic: a uniquely named temporary file beside ``NAME`` is written (the HDF5 library builds
+only the metadata and small datasets, in memory; each large array goes from memory straight to its
+reserved place in the file, hashed meanwhile on a worker thread, see
+:func:`rigside.core.io.h5image.h5_direct`), flushed, fsynced and renamed over ``NAME``; the previous
+``NAME`` (if it verifies) becomes ``NAME.bak`` first, by a hard link where possible. Only the state
+part is written on every save; the static part once. ``NAME.autosave.h5`` is a state part written
+the same way by :func:`save_autosave` (it refers to the same static part);
+:mod:`rigside.core.units.session_recovery` finds the newest
 consistent state among the main file, the autosave and the backup.
 """
 

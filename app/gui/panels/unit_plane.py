@@ -159,7 +159,9 @@ class ClusterPlanePanel(Panel):
         self._show_chosen()
         units = ", ".join(str(u) for u in self.ctl.selection) or "none (select units in the unit list)"
         n_art = int(s.data.artefact[in_group].sum())
+        n_free = int(np.sum((assigned == NO_UNIT) & ~s.data.artefact[in_group]))
         why = f" ({n_art:,} artefacts kept for sorting, in no unit)" if n_art else ""
+        why += f" ({n_free:,} unassigned: outline them to move them into a unit)" if n_free else ""
         self.status.setText(f"{self.ctl.group_name(g)}: {len(in_group):,} events{why} (grey: not selected). "
                             f"Selected units: {units}.")
 

@@ -1,0 +1,51 @@
+"""The first pass's fragment rule and split test on invented clusters with known membership."""
+
+import numpy as np
+from scipy.stats import chi2
+from sklearn.metrics import adjusted_rand_score
+
+from rigside.core.params import ClusterParams
+from rigside.core.units.em import fit_em
+from rigside.core.units.refine import absorb_fragments, smallest_unit, split_clusters
+
+
+def test_smallest_unit_is_the_larger_of_count_and_share():
+    p = ClusterParams(min_unit_events=20, min_unit_share=0.02)
+    assert smallest_unit(p, 500) == 20 and smallest_unit(p, 5000) == 100
+
+
+def test_fragment_events_join_a_unit_only_within_the_chi_square_bound():
+    rng = np.random.default_rng(0)
+    big = rng.normal(size=(2000, 3))
+    near = rng.normal(scale=0.3, size=(6, 3)) + [0.5, 0.0, 0.0]       # inside the big cluster's bulk
+    far = rng.normal(scale=0.3, size=(6, 3)) + [30.0, 0.0, 0.0]       # nowhere near it
+    z = np.vstack([big, near, far])
+    labels = np.r_[np.zeros(2000, int), np.ones(6, int), np.full(6, 2)]
+    mixture = fit_em(z, 3, random_state=0)
+    merged = [[int(c)] for c in np.argsort(-mixture.weights_)]          # cluster 0 = the big component
+    out = absorb_fragments(z, labels, mixture, merged, ClusterParams(min_unit_events=20, fragment_fit=0.99))
+    # reference: the squared Mahalanobis distance to the big component against scipy's chi-square quantile
+    big_c = merged[0][0]
+    y = (z - mixture.means_[big_c]) @ mixture.precisions_cholesky_[big_c]
+    inside = np.einsum("ij,ij->i", y, y) <= chi2.ppf(0.99, 3)
+    assert np.all(out[:2000] == 0)
+    np.testing.assert_array_equal(out[2000:] == 0, inside[2000:])
+    assert np.all(out[2006:] == -1) and np.all(out[2000:2006] == 0)
+
+
+def test_split_test_separates_two_units_merged_into_one_cluster():
+    rng = np.random.default_rng(1)
+    a = rng.normal(size=(600, 4)) + [4, 0, 0, 0]
+    b = rng.normal(size=(600, 4)) - [4, 0, 0, 0]
+    z = np.vstack([a, b])
+    truth = np.r_[np.zeros(600, int), np.ones(600, int)]
+    p = ClusterParams(min_unit_events=20, min_unit_share=0.02)
+    out = split_clusters(z, np.zeros(len(z), np.int64), None, p, np.random.default_rng(0))
+    assert len(np.unique(out)) == 2
+    assert adjusted_rand_score(truth, out) > 0.99     # reference: scikit-learn's adjusted Rand index
+
+
+def test_split_test_leaves_one_gaussian_whole():
+    z = np.random.default_rng(2).normal(size=(1200, 4))
+    out = split_clusters(z, np.zeros(len(z), np.int64), None, ClusterParams(), np.random.default_rng(0))
+    assert np.all(out == 0)
