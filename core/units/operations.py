@@ -32,7 +32,6 @@ from rigside.core.units.operation_base import (
 from rigside.core.units.polygon import check_polygon, points_in_polygon
 from rigside.core.units.sorting import LABELS, NO_UNIT, Delta, Sorting, Unit
 
-
 BEFORE_FRAGMENT_RULE = {"min_unit_events": 1, "min_unit_share": 0.0, "split_test": False}
 """Settings that replay a record written before the fragment rule and the split test as it ran then."""
 

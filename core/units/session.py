@@ -25,9 +25,8 @@ only the metadata and small datasets, in memory; each large array goes from memo
 reserved place in the file, hashed meanwhile on a worker thread, see
 :func:`rigside.core.io.h5image.h5_direct`), flushed, fsynced and renamed over ``NAME``; the previous
 ``NAME`` (if it verifies) becomes ``NAME.bak`` first, by a hard link where possible. Only the state
-part is written on every save; the static part once. ``NAME.autosave.h5`` is a state part written
-the same way by :func:`save_autosave` (it refers to the same static part);
-:mod:`rigside.core.units.session_recovery` finds the newest
+part is written on every save; the static part once. ``NAME.autosave.h5``, by :func:`save_autosave`,
+is a state part of the same static part; :mod:`rigside.core.units.session_recovery` finds the newest
 consistent state among the main file, the autosave and the backup.
 """
 
