@@ -208,8 +208,11 @@ def fit_em(x: np.ndarray, k: int, max_iter: int = 100, tol: float = 1e-3, reg_co
 
 
 def warm_up() -> None:
-    """Import the k-means initialisation and load the compiled steps (before worker processes fork,
-    so that they inherit both)."""
+    """Import the k-means initialisation and load the compiled steps, before worker processes fork, so
+    that they inherit both. No k-means runs here: its thread-pool state would not survive the fork."""
     import sklearn.cluster  # noqa: F401
 
-    fit_em(np.array([[0.0], [1.0], [2.0], [3.0]]), 1, max_iter=1)
+    xt, resp = np.zeros((1, 2)), np.ones((1, 2))
+    nk, means, covs = np.empty(1), np.empty((1, 1)), np.empty((1, 1, 1))
+    _m_step(xt, resp, 1e-6, _EPS, nk, means, covs)
+    _e_step(xt, means, np.ones((1, 1, 1)), np.zeros(1), resp)
