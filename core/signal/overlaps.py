@@ -111,12 +111,7 @@ def recover_overlaps(recording: Recording, events: EventTable, features: Feature
     Recovered
         The recovered events, their units and features.
     """
-    if features.bases is None:
-        raise RigsideError("the overlap pass needs the PCA basis of each group, got features without one")
-    assignments = np.asarray(assignments)
-    if len(assignments) != len(events) or len(features.values) != len(events):
-        raise RigsideError(f"assignments and features must have one row per event ({len(events)}), got "
-                           f"{len(assignments)} and {len(features.values)}")
+    assignments = _checked(events, features, assignments)
     rate = recording.rate_hz
     before, after = snippet_window(params.snippets, rate)
     dead = int(round(params.detect.dead_time_ms * rate / 1000))
@@ -128,9 +123,7 @@ def recover_overlaps(recording: Recording, events: EventTable, features: Feature
     at = np.searchsorted([b[0] for b in bounds], sample, "right") - 1
     busy = np.unique(np.clip(np.concatenate([at - 1, at, at + 1]), 0, len(bounds) - 1))  # finds may cross an edge
     bp = BandPass(recording, params.filter)
-    read = np.unique(np.concatenate([g.channels for g in groups])) if groups else np.zeros(0, np.int64)
-    column = np.full(recording.n_channels, -1, np.int64)
-    column[read] = np.arange(len(read))  # only the channels of groups with two units or more are filtered
+    read, column = _read_channels(groups, recording.n_channels)
     thr = thresholds_sigma(params, events.sigma_uv)
     sigma = np.asarray(events.sigma_uv, dtype=np.float64)
     found: list[list] = [[] for _ in groups]
@@ -169,6 +162,24 @@ def recover_overlaps(recording: Recording, events: EventTable, features: Feature
     parts = [_fit_group(g, [np.concatenate(x) for x in zip(*found[gi])], events, template, dead, (before, after),
                         params, n_features, rate) for gi, g in enumerate(groups) if found[gi]]
     return _assemble(parts, n_features, dead, assignments)
+
+
+def _checked(events: EventTable, features: Features, assignments: np.ndarray) -> np.ndarray:
+    if features.bases is None:
+        raise RigsideError("the overlap pass needs the PCA basis of each group, got features without one")
+    assignments = np.asarray(assignments)
+    if len(assignments) != len(events) or len(features.values) != len(events):
+        raise RigsideError(f"assignments and features must have one row per event ({len(events)}), got "
+                           f"{len(assignments)} and {len(features.values)}")
+    return assignments
+
+
+def _read_channels(groups: list[_Group], n_channels: int) -> tuple[np.ndarray, np.ndarray]:
+    """The channels filtered (those of the groups taking part) and each channel's column among them."""
+    read = np.unique(np.concatenate([g.channels for g in groups])) if groups else np.zeros(0, np.int64)
+    column = np.full(n_channels, -1, np.int64)
+    column[read] = np.arange(len(read))
+    return read, column
 
 
 def _event_slots(events: EventTable, assignments: np.ndarray,
