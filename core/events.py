@@ -97,10 +97,9 @@ class EventColumns:
 
 
 def _channel_amplitude_keys(channel: np.ndarray, amplitude_sigma: np.ndarray) -> np.ndarray:
-    """One int64 per (channel, float32 amplitude) that sorts as the pairs do: the channel in the
-    high 32 bits, below it the amplitude's bit pattern made order-preserving (negative floats
-    have their magnitude bits flipped, then the sign bit is offset away). Infinite thresholds
-    (dead channels) sort above every finite amplitude, as they compare."""
+    """One int64 per (channel, float32 amplitude) sorting as the pairs do: the channel in the high
+    32 bits, below it the amplitude's bits made order-preserving (negative floats' magnitude bits
+    flipped, the sign offset away); infinite thresholds sort above every finite amplitude."""
     bits = np.asarray(amplitude_sigma, dtype=np.float32).view(np.int32).astype(np.int64)
     ordered = np.where(bits < 0, bits ^ 0x7FFFFFFF, bits) + (1 << 31)
     return (np.asarray(channel, dtype=np.int64) << 32) | ordered
@@ -143,6 +142,7 @@ class EventTable(EventColumns):
     recovered: np.ndarray | None = None
     _by_channel: dict = field(default_factory=dict, repr=False, compare=False)
     _keys: tuple | None = field(default=None, repr=False, compare=False)
+    _by_sample: tuple | None = field(default=None, repr=False, compare=False)
 
     def __post_init__(self) -> None:
         for name, dtype in COLUMNS.items():
@@ -224,21 +224,30 @@ class EventTable(EventColumns):
             self._by_channel = cache
         return cache[channel]
 
+    def rows_on(self, channels: np.ndarray, start: int, stop: int) -> np.ndarray:
+        """Rows of events on ``channels`` with sample in ``[start, stop)``, by channel, each in time order."""
+        found = self._by_sample
+        if found is None:
+            order = np.argsort(self.channel, kind="stable")
+            found = self._by_sample = (order, np.searchsorted(self.channel[order], np.arange(self.n_channels + 1)),
+                                       self.sample[order])
+        order, edges, samples = found
+        parts = [order[edges[c]:edges[c + 1]][slice(*np.searchsorted(samples[edges[c]:edges[c + 1]], [start, stop]))]
+                 for c in channels]
+        return np.concatenate(parts) if parts else np.empty(0, dtype=np.int64)
+
     def _channel_keys(self) -> tuple[np.ndarray, np.ndarray]:
-        """Sorted keys of the non-artefact events (:func:`_channel_amplitude_keys`) and the first
-        index of each channel's among them; built on first use and published whole (thread-safe)."""
+        """Sorted keys of the non-artefact events and each channel's first index (built once, thread-safe)."""
         found = self._keys
         if found is None:
             ok = ~self.artefact & self.detected
             keys = np.sort(_channel_amplitude_keys(self.channel[ok], self.amplitude_sigma[ok]))
             edges = np.searchsorted(keys, np.arange(self.n_channels + 1, dtype=np.int64) << 32)
-            found = (keys, edges)
-            self._keys = found
+            found = self._keys = (keys, edges)
         return found
 
     def counts(self, threshold_sigma=None, threshold_uv=None) -> np.ndarray:
-        """Non-artefact event count per channel at the threshold: one sorted look-up for all
-        channels at once (a million events on 384 channels in well under a millisecond)."""
+        """Non-artefact event count per channel at the threshold (one sorted look-up for all channels)."""
         thr = self.thresholds_sigma(threshold_sigma, threshold_uv).astype(np.float32)
         keys, edges = self._channel_keys()
         at = np.searchsorted(keys, _channel_amplitude_keys(np.arange(self.n_channels), thr), side="left")
