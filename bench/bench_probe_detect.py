@@ -7,7 +7,7 @@ user waits), the pipeline in-process split into noise estimate, filtering and pe
 the speed ratio against a plain numpy/scipy baseline measured
 in the same run on the same file (whole-array scipy.signal.sosfiltfilt, median noise, a running
 maximum over time by scipy.ndimage.maximum_filter1d, then the maximum over each site's
-neighbourhood with numpy). It also times building the neighbourhoods with the k-d tree against
+neighbourhood with numpy). It also times building the neighbourhoods on the cell grid against
 an all-pairs distance matrix, and prints the mean neighbourhood size (the per-sample cost of the
 search is sites x that size, not sites^2).
 
@@ -56,11 +56,11 @@ def run_detect(path: Path) -> tuple[float, float, float]:
 
 
 def stages(rec, params: Params) -> tuple[float, float, float]:
-    """CPU seconds of this thread for the noise estimate, and per recorded second for filtering
-    1 s chunks and for the peak search on them (one thread each, no pool)."""
-    c = time.thread_time()
+    """CPU seconds of the process for the noise estimate (its worker threads included), and per
+    recorded second for filtering 1 s chunks and for the peak search on them (one thread, no pool)."""
+    c = time.process_time()
     noise = estimate_noise(rec, params)
-    t_noise = time.thread_time() - c
+    t_noise = time.process_time() - c
     bp = BandPass(rec, params.filter)
     nbh = neighbourhoods(rec.positions, rec.shank, params.probe.radius_um)
     rate, n = int(rec.rate_hz), min(rec.n_samples, int(8 * rec.rate_hz))
@@ -101,7 +101,7 @@ def baseline(path: Path, seconds: float, radius_um: float) -> tuple[float, int]:
 
 
 def neighbourhood_build(positions, shank, radius_um) -> tuple[float, float]:
-    """Seconds to build the neighbourhoods with the k-d tree, and with an all-pairs distance matrix."""
+    """Seconds to build the neighbourhoods on the cell grid, and with an all-pairs distance matrix."""
     t = time.perf_counter()
     for _ in range(20):
         neighbourhoods(positions, shank, radius_um)
@@ -153,7 +153,7 @@ def main() -> None:
           f"({n_b:,} peaks)")
     print(f"speed ratio pipeline / baseline (per recorded second, both in-process): "
           f"{(w_b / base_s) / (w_p / rec.duration_s):.1f}x")
-    print(f"neighbourhoods: k-d tree {tree * 1e3:.2f} ms, all-pairs matrix {pairs * 1e3:.2f} ms "
+    print(f"neighbourhoods: cell grid {tree * 1e3:.2f} ms, all-pairs matrix {pairs * 1e3:.2f} ms "
           f"(ratio {pairs / tree:.1f}x); mean neighbourhood {sizes.mean():.1f} sites, largest {sizes.max()}")
     print("(command wall times include interpreter start-up, about 1-3 s, and the noise estimate)")
 
