@@ -27,10 +27,13 @@ Two steps, in this order, on the standardised features of one channel group (see
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 
 from rigside.core.params import ClusterParams
-from rigside.core.units.mixture import fit_mixture, merge_components
+from rigside.core.units.em import Mixture
+from rigside.core.units.mixture import fit_mixture, misclassification
 
 SECOND_CHANNEL_SHARE = 0.1
 """Share of a cluster's events a second main channel must hold to start a split from the channels."""
@@ -135,12 +138,53 @@ def split_clusters(z: np.ndarray, labels: np.ndarray, channel: np.ndarray | None
     return labels
 
 
-def two_parts(z: np.ndarray, channel: np.ndarray | None, params: ClusterParams, rng: np.random.Generator,
-              least: int) -> np.ndarray | None:
-    """Mask of the second part when one cluster's events clearly hold two (else None)."""
+@dataclass(frozen=True)
+class TwoPartTest:
+    """One cluster's events fitted by one and by two Gaussians (the split test's numbers).
+
+    ``delta_bic_per_event``: BIC(one) - BIC(two) over the fitted events, per event (positive
+    favours two; Schwarz 1978, Ann. Stat. 6:461-464); ``misclassification``: the two parts'
+    directly estimated misclassification probability (:func:`~rigside.core.units.mixture.misclassification`);
+    ``second``: mask of the events in the second part; ``mixture``: the two-part fit;
+    ``from_channels``: the fit kept was started from the two main channels.
+    """
+
+    delta_bic_per_event: float
+    misclassification: float
+    second: np.ndarray
+    mixture: Mixture
+    from_channels: bool
+
+    @property
+    def smaller_part(self) -> float:
+        """Share of the events in the smaller part."""
+        k = int(self.second.sum())
+        return min(k, len(self.second) - k) / max(1, len(self.second))
+
+    def splits(self, params: ClusterParams, least: int) -> bool:
+        """True when the first pass splits on this test: two parts win BIC, do not overlap by more
+        than ``merge_overlap`` and both hold at least ``least`` events."""
+        k = int(self.second.sum())
+        return (self.delta_bic_per_event > 0 and self.misclassification <= params.merge_overlap
+                and min(k, len(self.second) - k) >= least)
+
+
+def two_part_test(z: np.ndarray, channel: np.ndarray | None, params: ClusterParams,
+                   rng: np.random.Generator) -> TwoPartTest:
+    """Fit one and two Gaussians to one cluster's standardised features (see the module docstring).
+
+    Parameters
+    ----------
+    z
+        Standardised features of the cluster's events (at least two events).
+    channel
+        Main (detection) channel of every event, or None to start from k-means only.
+    params
+        ``fit_events`` (the seeded subsample fitted), ``min_unit_events`` and the EM limits.
+    rng
+        Source of the subsample and of the fits' random state.
+    """
     n = len(z)
-    if n < 2 * least:
-        return None
     fit = np.sort(rng.choice(n, params.fit_events, replace=False)) if n > params.fit_events else np.arange(n)
     zf = z[fit]
     state = int(rng.integers(0, 2**31 - 1))
@@ -151,10 +195,18 @@ def two_parts(z: np.ndarray, channel: np.ndarray | None, params: ClusterParams, 
         top = np.argsort(-counts, kind="stable")[:2]
         if len(top) == 2 and counts[top[1]] >= max(params.min_unit_events, SECOND_CHANNEL_SHARE * len(fit)):
             starts.append(np.stack([zf[channel[fit] == t].mean(axis=0) for t in top]))
-    two = min((fit_mixture(zf, 2, params, state, means_init=m) for m in starts), key=lambda gm: gm.bic(zf))
-    if two.bic(zf) >= one.bic(zf) or len(merge_components(two.predict_proba(zf), params.merge_overlap)) < 2:
+    fits = [fit_mixture(zf, 2, params, state, means_init=m) for m in starts]
+    bics = [gm.bic(zf) for gm in fits]
+    best = int(np.argmin(bics))
+    two = fits[best]
+    return TwoPartTest((one.bic(zf) - bics[best]) / len(zf), float(misclassification(two.predict_proba(zf))[0, 1]),
+                       two.predict(z) == 1, two, best == 1)
+
+
+def two_parts(z: np.ndarray, channel: np.ndarray | None, params: ClusterParams, rng: np.random.Generator,
+              least: int) -> np.ndarray | None:
+    """Mask of the second part when one cluster's events clearly hold two (else None)."""
+    if len(z) < 2 * least:
         return None
-    second = two.predict(z) == 1
-    if min(int(second.sum()), n - int(second.sum())) < least:
-        return None
-    return second
+    test = two_part_test(z, channel, params, rng)
+    return test.second if test.splits(params, least) else None
