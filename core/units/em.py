@@ -32,9 +32,8 @@ fused multiply-add; infinities and NaN keep their meaning."""
 
 
 @numba.njit(cache=True, nogil=True, fastmath=_FAST)
-def _e_step(xt, means, prec_chol, log_weight_det, resp):  # pragma: no cover - compiled
-    """Responsibilities into ``resp`` (components x events) from features ``xt`` (features x events);
-    returns the summed log-likelihood of the events."""
+def _log_densities(xt, means, prec_chol, log_weight_det, resp):  # pragma: no cover - compiled
+    """Weighted log density of every component at every event into ``resp`` (components x events)."""
     d, n = xt.shape
     k = means.shape[0]
     const = -0.5 * d * math.log(2.0 * math.pi)
@@ -54,6 +53,15 @@ def _e_step(xt, means, prec_chol, log_weight_det, resp):  # pragma: no cover - c
                 resp[c, i] += y[i] * y[i]
         for i in range(n):
             resp[c, i] = const - 0.5 * resp[c, i] + log_weight_det[c]
+
+
+@numba.njit(cache=True, nogil=True, fastmath=_FAST)
+def _e_step(xt, means, prec_chol, log_weight_det, resp):  # pragma: no cover - compiled
+    """Responsibilities into ``resp`` (components x events) from features ``xt`` (features x events);
+    returns the summed log-likelihood of the events."""
+    n = xt.shape[1]
+    k = means.shape[0]
+    _log_densities(xt, means, prec_chol, log_weight_det, resp)
     top = resp[0].copy()
     for c in range(1, k):
         for i in range(n):
@@ -122,6 +130,16 @@ class Mixture:
         xt = np.ascontiguousarray(np.asarray(x, dtype=np.float64).T)
         out = np.empty((self.n_components, xt.shape[1]))
         return out, _e_step(xt, self.means_, self.precisions_cholesky_, _log_weight_det(self), out)
+
+    def log_densities(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Weighted log density log(w_c N(x | mu_c, S_c)) and squared Mahalanobis distance of every
+        row of ``x`` to every component (both events x components), from the compiled E step."""
+        xt = np.ascontiguousarray(np.asarray(x, dtype=np.float64).T)
+        out = np.empty((self.n_components, xt.shape[1]))
+        lwd = _log_weight_det(self)
+        _log_densities(xt, self.means_, self.precisions_cholesky_, lwd, out)
+        const = -0.5 * xt.shape[0] * math.log(2.0 * math.pi)
+        return out.T, (-2.0 * (out - lwd[:, None] - const)).T
 
     def predict_proba(self, x: np.ndarray) -> np.ndarray:
         """Posterior probability of every component for every row of ``x`` (events x components)."""

@@ -44,22 +44,7 @@ def smallest_unit(params: ClusterParams, n_group: int) -> int:
     return max(params.min_unit_events, int(np.ceil(params.min_unit_share * n_group)))
 
 
-def component_fit(z: np.ndarray, mixture) -> tuple[np.ndarray, np.ndarray]:
-    """Weighted log density and squared Mahalanobis distance of every event to every component
-    of a full-covariance scikit-learn mixture (events x components)."""
-    n, d = z.shape
-    k = len(mixture.weights_)
-    logp, d2 = np.empty((n, k)), np.empty((n, k))
-    for c in range(k):
-        chol = mixture.precisions_cholesky_[c]
-        y = (z - mixture.means_[c]) @ chol
-        d2[:, c] = np.einsum("ij,ij->i", y, y)
-        logp[:, c] = (np.log(mixture.weights_[c]) - 0.5 * d2[:, c] + np.log(np.diag(chol)).sum()
-                      - 0.5 * d * np.log(2 * np.pi))
-    return logp, d2
-
-
-def absorb_fragments(z: np.ndarray, labels: np.ndarray, mixture, merged: list[list[int]],
+def absorb_fragments(z: np.ndarray, labels: np.ndarray, mixture: Mixture, merged: list[list[int]],
                      params: ClusterParams) -> np.ndarray:
     """Labels with the fragments' events moved to the best-fitting kept cluster or to -1.
 
@@ -93,7 +78,7 @@ def absorb_fragments(z: np.ndarray, labels: np.ndarray, mixture, merged: list[li
         return labels
     comps = np.asarray([comp for c in kept for comp in merged[c]])
     owner = np.asarray([c for c in kept for _ in merged[c]])
-    logp, d2 = component_fit(z[rows], mixture)
+    logp, d2 = mixture.log_densities(z[rows])
     best = logp[:, comps].argmax(axis=1)
     good = d2[:, comps][np.arange(len(rows)), best] <= chi2.ppf(params.fragment_fit, z.shape[1])
     labels[rows] = np.where(good, owner[best], -1)

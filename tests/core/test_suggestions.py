@@ -24,7 +24,7 @@ from rigside.core.quality.suggestions import CSV_COLUMNS, SuggestParams, suggest
 from rigside.core.units.dismissals import DismissSuggestion, dismissed_keys
 from rigside.core.units.history import UndoStack, rebuild_history
 from rigside.core.units.journal import Journal
-from rigside.core.units.operations import Relabel
+from rigside.core.units.operations import Relabel, operation_from_record
 from rigside.core.units.sorting import Sorting
 
 from .suggestion_data import suggestion_sorting
@@ -139,7 +139,13 @@ def test_accepting_a_split_makes_the_parts_its_evidence_was_computed_on():
     test = split_test(sorting.data.features[rows], events.channel[rows], ClusterParams(), u, clustered)
     assert split.evidence["smaller_part"] == test.smaller_part
     assert split.evidence["delta_bic_per_event"] == test.delta_bic_per_event
-    UndoStack(sorting).push(split.operation())
+    twin = sorting.copy()
+    op = split.operation()
+    UndoStack(sorting).push(op)
+    # the journal record rebuilds the same step: replayed on a copy, the same parts and ids
+    again = operation_from_record(Journal.from_text(sorting.journal.to_text()).entries[-1]["op"])
+    UndoStack(twin).push(again)
+    assert twin.state_equal(sorting) and again.text == op.text == f"Split unit {u} in two"
     new = max(sorting.units)
     moved = sorting.assignments[rows] == new
     assert np.array_equal(moved, test.parts == 1) or np.array_equal(moved, test.parts == 0)
