@@ -175,6 +175,26 @@ def _precision_cholesky(covs: np.ndarray) -> np.ndarray:
     return out
 
 
+def partition_mixture(x: np.ndarray, labels: np.ndarray, k: int, reg_covar: float = 1e-6) -> Mixture:
+    """The mixture of a hard partition: each of the ``k`` parts' share, mean and covariance (plus
+    ``reg_covar`` on the diagonal), by one M step on the parts as responsibilities.
+
+    Parameters
+    ----------
+    x
+        Events x features.
+    labels
+        Part (0..k-1) of every event (a part of one event gets the covariance ``reg_covar`` times
+        the identity).
+    """
+    x = np.ascontiguousarray(x, dtype=np.float64)
+    n, d = x.shape
+    resp = (np.arange(k)[:, None] == np.asarray(labels)[None, :]).astype(np.float64)
+    nk, means, covs = np.empty(k), np.empty((k, d)), np.empty((k, d, d))
+    _m_step(np.ascontiguousarray(x.T), resp, reg_covar, _EPS, nk, means, covs)
+    return Mixture(nk / n, means, covs, _precision_cholesky(covs), 0, False)
+
+
 def fit_em(x: np.ndarray, k: int, max_iter: int = 100, tol: float = 1e-3, reg_covar: float = 1e-6,
            random_state: int = 0, means_init: np.ndarray | None = None) -> Mixture:
     """Fit a ``k``-component full-covariance Gaussian mixture to ``x`` by EM.
@@ -208,11 +228,11 @@ def fit_em(x: np.ndarray, k: int, max_iter: int = 100, tol: float = 1e-3, reg_co
         warnings.simplefilter("ignore", ConvergenceWarning)
         labels = KMeans(n_clusters=k, n_init=1, random_state=random_state).fit(x).labels_
     xt = np.ascontiguousarray(x.T)
-    resp = (np.arange(k)[:, None] == labels[None, :]).astype(np.float64)  # the k-means partition
+    m = partition_mixture(x, labels, k, reg_covar)      # the k-means partition
+    if means_init is not None:
+        m.means_ = np.ascontiguousarray(means_init, dtype=np.float64).copy()
+    resp = np.empty((k, n))
     nk, means, covs = np.empty(k), np.empty((k, d)), np.empty((k, d, d))
-    _m_step(xt, resp, reg_covar, _EPS, nk, means, covs)
-    start = means if means_init is None else np.ascontiguousarray(means_init, dtype=np.float64).copy()
-    m = Mixture(nk / n, start, covs.copy(), _precision_cholesky(covs), 0, False)
     lower = -np.inf
     for it in range(1, max_iter + 1):
         previous = lower

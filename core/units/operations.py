@@ -34,6 +34,8 @@ from rigside.core.units.sorting import LABELS, NO_UNIT, Delta, Sorting, Unit
 
 BEFORE_FRAGMENT_RULE = {"min_unit_events": 1, "min_unit_share": 0.0, "split_test": False}
 """Settings that replay a record written before the fragment rule and the split test as it ran then."""
+BEFORE_SPLIT_FRAGMENTS = {"split_fragments": False}
+"""... and one written before split parts too small to be units went by the fragment rule."""
 
 
 def _cluster_params(data: Any) -> ClusterParams:
@@ -41,6 +43,8 @@ def _cluster_params(data: Any) -> ClusterParams:
     try:
         if isinstance(data, dict) and "min_unit_events" not in data:
             data = {**BEFORE_FRAGMENT_RULE, **data}
+        if isinstance(data, dict) and "split_fragments" not in data:
+            data = {**BEFORE_SPLIT_FRAGMENTS, **data}
         return ClusterParams.from_dict(data)
     except ParamError as exc:
         raise CurationError(str(exc)) from None

@@ -21,8 +21,11 @@ Two steps, in this order, on the standardised features of one channel group (see
    compared with one component by BIC (Schwarz 1978). The cluster is split when two components
    win, their estimated misclassification probability is at most ``merge_overlap`` (the same
    DEMP criterion that merged components, Hennig 2010, so a split is never one the merging
-   step would undo) and both parts keep at least the smallest unit size. Parts are tested again
-   while the group has fewer than ``k_max`` clusters.
+   step would undo). When both parts keep at least the smallest unit size, both are units and
+   are tested again while the group has fewer than ``k_max`` clusters; otherwise (with
+   ``split_fragments``) the small part is a fragment, and its events go by step 1's rule to the
+   Gaussian (mean and covariance of its events) of the cluster that fits them best, or stay
+   unassigned.
 """
 
 from __future__ import annotations
@@ -32,7 +35,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from rigside.core.params import ClusterParams
-from rigside.core.units.em import Mixture
+from rigside.core.units.em import Mixture, partition_mixture
 from rigside.core.units.mixture import fit_mixture, misclassification
 
 SECOND_CHANNEL_SHARE = 0.1
@@ -53,7 +56,7 @@ def absorb_fragments(z: np.ndarray, labels: np.ndarray, mixture: Mixture, merged
     z
         Standardised features of the group's clustered events.
     labels
-        Cluster (index into ``merged``) of every event.
+        Cluster (index into ``merged``) of every event; -1 (already unassigned) is left alone.
     mixture
         The fitted mixture; ``merged`` lists the components of each cluster.
     params
@@ -67,11 +70,12 @@ def absorb_fragments(z: np.ndarray, labels: np.ndarray, mixture: Mixture, merged
     from scipy.stats import chi2
 
     labels = np.asarray(labels, dtype=np.int64).copy()
-    sizes = np.bincount(labels, minlength=len(merged))
+    inside = labels >= 0
+    sizes = np.bincount(labels[inside], minlength=len(merged))
     small = sizes < smallest_unit(params, len(labels))
     if not small.any():
         return labels
-    rows = np.flatnonzero(small[labels])
+    rows = np.flatnonzero(inside)[small[labels[inside]]]
     kept = [c for c in range(len(merged)) if not small[c]]
     if not kept:
         labels[rows] = -1
@@ -106,21 +110,32 @@ def split_clusters(z: np.ndarray, labels: np.ndarray, channel: np.ndarray | None
     -------
     np.ndarray
         int64 labels; a split cluster keeps its index for one part, the other part is numbered
-        after the existing clusters.
+        after the existing clusters. A part too small to be a unit is a fragment: its events go by
+        the fragment rule (:func:`absorb_fragments`) to the best-fitting cluster's Gaussian or to -1.
     """
     labels = np.asarray(labels, dtype=np.int64).copy()
     least = smallest_unit(params, len(labels))
     todo = sorted(int(c) for c in np.unique(labels[labels >= 0]))
-    n_clusters = len(todo)
-    while todo and n_clusters < params.k_max:
+    n_clusters = n_units = len(todo)
+    while todo and n_units < params.k_max:
         c = todo.pop(0)
         idx = np.flatnonzero(labels == c)
-        part = two_parts(z[idx], None if channel is None else channel[idx], params, rng, least)
-        if part is not None:
-            labels[idx[part]] = n_clusters
+        if len(idx) < 2 * least:
+            continue
+        test = two_part_test(z[idx], None if channel is None else channel[idx], params, rng)
+        unit_split = test.splits(params, least)
+        if not (test.apart(params) and 0 < test.smaller_part and (unit_split or params.split_fragments)):
+            continue
+        labels[idx[test.second]] = n_clusters
+        if unit_split:
             todo += [c, n_clusters]
-            n_clusters += 1
-    return labels
+            n_units += 1
+        n_clusters += 1     # otherwise one part is a fragment, the other stays as tested
+    used = labels >= 0
+    if np.bincount(labels[used], minlength=n_clusters).min(initial=least) >= least:
+        return labels
+    parts = partition_mixture(z[used], labels[used], n_clusters)
+    return absorb_fragments(z, labels, parts, [[c] for c in range(n_clusters)], params)
 
 
 @dataclass(frozen=True)
@@ -146,12 +161,15 @@ class TwoPartTest:
         k = int(self.second.sum())
         return min(k, len(self.second) - k) / max(1, len(self.second))
 
+    def apart(self, params: ClusterParams) -> bool:
+        """Two parts win BIC and do not overlap by more than ``merge_overlap``."""
+        return self.delta_bic_per_event > 0 and self.misclassification <= params.merge_overlap
+
     def splits(self, params: ClusterParams, least: int) -> bool:
-        """True when the first pass splits on this test: two parts win BIC, do not overlap by more
-        than ``merge_overlap`` and both hold at least ``least`` events."""
+        """True when the first pass splits on this test into two units: the parts are :meth:`apart`
+        and both hold at least ``least`` events."""
         k = int(self.second.sum())
-        return (self.delta_bic_per_event > 0 and self.misclassification <= params.merge_overlap
-                and min(k, len(self.second) - k) >= least)
+        return self.apart(params) and min(k, len(self.second) - k) >= least
 
 
 def two_part_test(z: np.ndarray, channel: np.ndarray | None, params: ClusterParams,
@@ -186,12 +204,3 @@ def two_part_test(z: np.ndarray, channel: np.ndarray | None, params: ClusterPara
     two = fits[best]
     return TwoPartTest((one.bic(zf) - bics[best]) / len(zf), float(misclassification(two.predict_proba(zf))[0, 1]),
                        two.predict(z) == 1, two, best == 1)
-
-
-def two_parts(z: np.ndarray, channel: np.ndarray | None, params: ClusterParams, rng: np.random.Generator,
-              least: int) -> np.ndarray | None:
-    """Mask of the second part when one cluster's events clearly hold two (else None)."""
-    if len(z) < 2 * least:
-        return None
-    test = two_part_test(z, channel, params, rng)
-    return test.second if test.splits(params, least) else None
