@@ -92,3 +92,4 @@ def test_unassigned_rows_are_listed_inspected_and_moved_into_a_unit_with_undo(de
     win.actions_by_name["merge"].trigger()
     assert "unassigned row is no unit" in win.last_error[1]
     assert np.array_equal(s.assignments, before)
+    assert win.wait_idle(60)                                # the plots' redraws end before the window closes
