@@ -196,6 +196,8 @@ class ClusterParams:
         events)) are not units; their events join the best-fitting unit within the
         ``fragment_fit`` chi-square quantile, else stay unassigned; ``split_test`` re-examines
         every unit (see :mod:`rigside.core.units.refine`).
+    split_fragments
+        A split test part too small to be a unit goes by the fragment rule (off: no such split).
     """
 
     k: int | None = None
@@ -211,6 +213,7 @@ class ClusterParams:
     min_unit_share: float = 0.02
     fragment_fit: float = 0.99
     split_test: bool = True
+    split_fragments: bool = True
 
     def validate(self) -> None:
         """Raise :class:`ParamError` for any value out of range."""
@@ -232,6 +235,8 @@ class ClusterParams:
                 raise ParamError(f"{what} must be a number from 0 to below 1, got {v!r}")
         if not isinstance(self.split_test, bool):
             raise ParamError(f"split test must be true or false, got {self.split_test!r}")
+        if not isinstance(self.split_fragments, bool):
+            raise ParamError(f"split fragments must be true or false, got {self.split_fragments!r}")
 
     def to_dict(self) -> dict[str, Any]:
         """Plain dict (``k`` omitted when ``None``)."""

@@ -60,7 +60,7 @@ def run_suggest(args: argparse.Namespace) -> int:
                 waveforms = mean_waveforms(rec, session.events, session.params, sorting, big,
                                            settings.waveform_events, lambda f, m: bar(0.3 + 0.2 * f, m))
         found = suggest(session.events, sorting, metric_settings(session.params), waveforms, settings,
-                        progress=lambda f, m: bar(0.5 + 0.5 * f, m))
+                        progress=lambda f, m: bar(0.5 + 0.5 * f, m), cluster=session.params.cluster)
     write_suggestions_csv(out, found)
     merges = sum(s.kind == "merge" for s in found)
     print(f"{merges} merge and {len(found) - merges} split suggestions -> {out}"

@@ -31,7 +31,7 @@ from rigside.core.units.operations import (
     SplitByPolygon,
 )
 from rigside.core.units.session import RecordingRef, Session
-from rigside.core.units.sorting import NO_UNIT
+from rigside.core.units.sorting import NO_UNIT, pool_group, pool_id
 from rigside.gui import palette
 from rigside.gui.curation import StepCommand
 
@@ -136,6 +136,11 @@ class SortingController(QObject):
         table = self.bench.events
         self.rows = None if self.session is None or table is None else session_rows(self.session, table)
         self.rows_changed.emit()
+
+    def unit_name(self, unit: int) -> str:
+        """"unit 7", or "unassigned in tetrode 2" for a pool id."""
+        g = pool_group(unit)
+        return f"unit {unit}" if g is None else f"unassigned in {self.group_name(g)}"
 
     def group_name(self, group: int) -> str:
         names = self.session.recording.description.get("group_names") if self.session else None
@@ -328,9 +333,15 @@ class SortingController(QObject):
             return False
 
     # ---- selection --------------------------------------------------------------------------
+    def selectable(self) -> set[int]:
+        """Ids that can be selected: the units and the :func:`pool_id` of every non-empty unassigned pool."""
+        s = self.sorting
+        return set() if s is None else set(s.units) | {pool_id(g) for g in s.pool_counts()}
+
     def set_selection(self, units) -> None:
-        """Select units (order kept: the first two form the pair of the cross-correlogram)."""
-        known = self.sorting.units if self.sorting is not None else {}
+        """Select units or unassigned pools (order kept: the first two form the pair of the
+        cross-correlogram)."""
+        known = self.selectable()
         new = list(dict.fromkeys(int(u) for u in units if int(u) in known))
         if new != self.selection:
             self.selection = new
@@ -350,8 +361,9 @@ class SortingController(QObject):
                 self._stale[u] = self.sorting.revision
         if len(self.selected_events):
             self.select_events(np.zeros(0, dtype=np.int64))
-        if any(u not in units for u in self.selection):
-            self.selection = [u for u in self.selection if u in units]
+        known = self.selectable()
+        if any(u not in known for u in self.selection):
+            self.selection = [u for u in self.selection if u in known]
             self.selection_changed.emit()
         self._refresh_metrics()
         self.units_changed.emit(change)

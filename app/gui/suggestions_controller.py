@@ -4,7 +4,7 @@
 (a new sorting, a step, an undo or redo) in the ``suggestions`` job, on a copy of the sorting,
 while its panel is in view (a change made while it is hidden is weighed when it is shown again),
 with mean waveforms when the workbench holds the session's recording. Accepting a suggestion
-runs its step (a merge, or reclustering the unit into two) and rejecting it runs a
+runs its step (a merge, or the split into the two parts of its evidence) and rejecting it runs a
 :class:`~rigside.core.units.dismissals.DismissSuggestion`, both through the sorting controller's
 undo stack, so the journal records them and Edit > Undo takes them back.
 """
@@ -30,7 +30,7 @@ def _suggest_job(recording, session, sorting, params: SuggestParams, progress=No
         waveforms = mean_waveforms(recording, session.events, session.params, sorting, big, params.waveform_events,
                                    lambda f, m: progress(0.5 * f, m) if progress else None, cancel)
     return suggest(session.events, sorting, metric_settings(session.params), waveforms, params,
-                   lambda f, m: progress(0.5 + 0.5 * f, m) if progress else None, cancel)
+                   lambda f, m: progress(0.5 + 0.5 * f, m) if progress else None, cancel, session.params.cluster)
 
 
 class SuggestionsController(QObject):
@@ -113,8 +113,8 @@ class SuggestionsController(QObject):
         return False
 
     def accept(self, s: Suggestion) -> bool:
-        """Do the suggested step (merge, or recluster into two) through the undo stack."""
-        return self._current(s) and self.units.run_step(s.operation(self.units.session.params.cluster))
+        """Do the suggested step (merge, or split in two) through the undo stack."""
+        return self._current(s) and self.units.run_step(s.operation())
 
     def reject(self, s: Suggestion) -> bool:
         """Remember in the session that this suggestion was rejected (an undoable step)."""

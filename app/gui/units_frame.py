@@ -15,7 +15,7 @@ from PySide6.QtGui import QAction, QKeySequence
 from PySide6.QtWidgets import QDialog, QMenu
 
 from rigside.core.errors import RigsideError
-from rigside.core.units.sorting import LABELS
+from rigside.core.units.sorting import LABELS, pool_group
 from rigside.gui.dialogs.unit_dialogs import ClusterDialog, LimitsDialog, NoteDialog, PartsDialog, spin_count
 from rigside.gui.panels.unit_plane import ClusterPlanePanel
 from rigside.gui.panels.unit_plots import UnitPlotsPanel
@@ -180,10 +180,14 @@ def _add_units_menu(win, act: Callable, ctl: SortingController, unit_list: UnitL
 
 
 def _selected(win, ctl: SortingController, n: int, what: str) -> list[int] | None:
-    """The selected units when there are at least ``n``; otherwise say so and return None."""
-    sel = ctl.selection
+    """The selected units (unassigned pools left out) when there are at least ``n``; otherwise say so
+    and return None."""
+    sel = [u for u in ctl.selection if pool_group(u) is None]
     if len(sel) < n:
-        win.show_error(f"Cannot {what}", f"{what} needs {n} selected unit{'s' if n > 1 else ''}, got {len(sel)}")
+        pools = " (an unassigned row is no unit: outline its events and move them into one)" \
+            if len(sel) < len(ctl.selection) else ""
+        win.show_error(f"Cannot {what}",
+                       f"{what} needs {n} selected unit{'s' if n > 1 else ''}, got {len(sel)}{pools}")
         return None
     return sel
 

@@ -8,13 +8,15 @@ gathers them for the units of a sorting. Undefined evidence is a
 from __future__ import annotations
 
 import math
-import warnings
 from dataclasses import dataclass
 
 import numpy as np
 
 from rigside.core.errors import RigsideError
+from rigside.core.params import ClusterParams
 from rigside.core.quality.metric_inputs import MetricValue, undefined
+from rigside.core.units.clustering import unit_two_parts
+from rigside.core.units.refine import smallest_unit
 
 MIN_EXPECTED_PAIRS = 5.0
 """Fewest pairs expected in the refractory window by chance for its dip to be given."""
@@ -201,33 +203,36 @@ def _mahalanobis(x: np.ndarray, y: np.ndarray) -> float:
 
 @dataclass(frozen=True)
 class SplitTest:
-    """A two-part Gaussian mixture against one Gaussian on a unit's features.
+    """The first pass's split test on one unit (:func:`rigside.core.units.clustering.unit_two_parts`).
 
     ``delta_bic_per_event``: BIC(1) - BIC(2) (positive favours two parts; Schwarz 1978, Ann.
-    Stat. 6:461-464) over the events fitted, divided by their count; ``overlap``: Bhattacharyya
-    coefficient of the two fitted parts; ``smaller_part``: the smaller part's weight; ``parts``:
-    the part (0 or 1) of every event of ``x_all``.
+    Stat. 6:461-464) over the events fitted, divided by their count; ``misclassification``: the
+    parts' directly estimated misclassification probability (Hennig 2010); ``overlap``:
+    Bhattacharyya coefficient of the two fitted parts; ``smaller_part``: the smaller part's share
+    of the events; ``parts``: the part (0 or 1) of every event, as accepting the split makes them;
+    ``first_pass_splits``: the first pass would split on these numbers.
     """
 
     delta_bic_per_event: float
+    misclassification: float
     overlap: float
     smaller_part: float
     parts: np.ndarray
+    first_pass_splits: bool
 
 
-def split_test(x_fit: np.ndarray, x_all: np.ndarray, seed: int = 0) -> SplitTest:
-    """Fit one and two full-covariance Gaussians (scikit-learn ``GaussianMixture``) to the
-    standardised ``x_fit`` and give every row of ``x_all`` (same columns) its part."""
-    from sklearn.exceptions import ConvergenceWarning
-    from sklearn.mixture import GaussianMixture
-
-    x = np.asarray(x_fit, dtype=np.float64)
-    mean, sd = x.mean(axis=0), np.where(x.std(axis=0) > 0, x.std(axis=0), 1.0)
-    x = (x - mean) / sd
-    with warnings.catch_warnings():
-        warnings.simplefilter("ignore", ConvergenceWarning)
-        one = GaussianMixture(1, covariance_type="full", reg_covar=1e-6, random_state=seed).fit(x)
-        two = GaussianMixture(2, covariance_type="full", reg_covar=1e-6, n_init=2, random_state=seed).fit(x)
-    overlap = bhattacharyya_coefficient(two.means_[0], two.covariances_[0], two.means_[1], two.covariances_[1])
-    parts = two.predict((np.asarray(x_all, dtype=np.float64) - mean) / sd)
-    return SplitTest((one.bic(x) - two.bic(x)) / len(x), overlap, float(two.weights_.min()), parts)
+def split_test(features: np.ndarray, channel: np.ndarray | None, params: ClusterParams,
+               stream: int = 0, group_events: int = 0) -> SplitTest | None:
+    """One against two full-covariance Gaussians on a unit's features (all columns), started from
+    k-means and from its two main channels, exactly as the first pass tests its clusters and as
+    accepting a split suggestion (:class:`~rigside.core.units.operations.SplitInTwo`) parts it;
+    ``stream`` is the unit id, ``group_events`` the clustered events of its group (for the smallest
+    unit size). None when the events are too few or their features constant."""
+    test = unit_two_parts(features, channel, params, stream)
+    if test is None:
+        return None
+    m = test.mixture
+    overlap = bhattacharyya_coefficient(m.means_[0], m.covariances_[0], m.means_[1], m.covariances_[1])
+    least = smallest_unit(params, group_events)
+    return SplitTest(test.delta_bic_per_event, test.misclassification, overlap, test.smaller_part,
+                     test.second.astype(np.int64), test.splits(params, least))

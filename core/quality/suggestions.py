@@ -39,7 +39,7 @@ from rigside.core.signal.chunk_pool import single_threaded_pools
 from rigside.core.signal.snippets import event_snippets, spread_subsample
 from rigside.core.units.dismissals import DismissSuggestion, dismissed_keys, members_digest, suggestion_key
 from rigside.core.units.operation_base import Operation
-from rigside.core.units.operations import MergeUnits, ReclusterUnit
+from rigside.core.units.operations import MergeUnits, SplitInTwo
 from rigside.core.units.sorting import Sorting
 
 MERGE_EVIDENCE: dict[str, str] = {
@@ -55,9 +55,12 @@ MERGE_EVIDENCE: dict[str, str] = {
     "continuity": "1 - handover / whole-mean Mahalanobis distance: one unit's features carry on the other's",
 }
 SPLIT_EVIDENCE: dict[str, str] = {
-    "delta_bic_per_event": "(BIC of one Gaussian - BIC of two) / events fitted; positive favours two parts",
+    "delta_bic_per_event": "(BIC of one Gaussian - BIC of two) / events fitted, on all features as the first pass "
+                           "fits them; positive favours two parts",
     "part_overlap": "Bhattacharyya coefficient of the two fitted parts (0 apart, 1 same)",
-    "smaller_part": "weight of the smaller fitted part [fraction]",
+    "misclassification": "the parts' directly estimated misclassification probability (the first pass splits at "
+                         "most at merge_overlap)",
+    "smaller_part": "share of the unit's events in the smaller part, as accepting splits it [fraction]",
     "second_channel_share": "share of the unit's events detected on its second most frequent channel",
     "own_dip": "refractory_dip of the unit with itself (its autocorrelogram; low: refractory violations)",
     "parts_dip": "refractory_dip between the two fitted parts (low: the parts are not one neuron)",
@@ -67,6 +70,7 @@ SCORE_RULE: dict[str, str] = {
     "refractory_dip": "dip",
     "feature_overlap": "the larger of overlap and continuity (one part: both say the units share a cluster)",
     "delta_bic_per_event": "1 - 2 x part_overlap when two parts win BIC and the smaller holds at least 10%, else 0",
+    "misclassification": "not scored (shown: the first pass's own criterion)",
     "second_channel_share": "2 x share",
     "own_dip": "2 x (1 - dip)",
     "parts_dip": "2 x (1 - dip)",
@@ -109,6 +113,7 @@ class Suggestion:
     evidence: dict[str, float]
     members: str
     notes: tuple[str, ...] = field(default=())
+    cluster: ClusterParams | None = field(default=None, compare=False)
 
     @property
     def key(self) -> str:
@@ -120,11 +125,13 @@ class Suggestion:
             return f"Merge units {self.units[0]} and {self.units[1]}"
         return f"Split unit {self.units[0]} in two"
 
-    def operation(self, cluster: ClusterParams | None = None) -> Operation:
-        """The step that accepts this suggestion: a merge, or reclustering the unit into two."""
+    def operation(self) -> Operation:
+        """The step that accepts this suggestion: a merge, or the unit split into the two parts its
+        evidence was computed on (:class:`~rigside.core.units.operations.SplitInTwo` with the
+        clustering settings the suggestions were made with)."""
         if self.kind == "merge":
             return MergeUnits(list(self.units))
-        return ReclusterUnit(self.units[0], 2, cluster)
+        return SplitInTwo(self.units[0], self.cluster)
 
     def dismissal(self) -> DismissSuggestion:
         """The step that rejects this suggestion."""
@@ -197,10 +204,15 @@ def _merge(a: _Unit, b: _Unit, overlap: float, sorting: Sorting, metric: MetricP
     return Suggestion("merge", units, sorting.unit(a.id).group, score, ev, members_digest(sorting, units), tuple(notes))
 
 
-def _split(unit: _Unit, channels: np.ndarray, sorting: Sorting, metric: MetricParams, p: SuggestParams
-           ) -> Suggestion:
-    cols = pc_columns(sorting.data.feature_names)
-    test = split_test(unit.x, sorting.data.features[unit.rows][:, cols], p.seed + unit.id)
+def _split(unit: _Unit, channels: np.ndarray, sorting: Sorting, metric: MetricParams, p: SuggestParams,
+           cluster: ClusterParams) -> Suggestion | None:
+    data = sorting.data
+    channel = None if data.channel is None else data.channel[unit.rows]
+    group = sorting.unit(unit.id).group
+    clustered = int(np.sum((data.group == group) & ~data.artefact))
+    test = split_test(data.features[unit.rows], channel, cluster, unit.id, clustered)
+    if test is None:
+        return None
     windows = (metric.censored_ms / 1e3, metric.refractory_ms / 1e3, tuple(v / 1e3 for v in p.baseline_ms))
     own = refractory_dip(unit.times, unit.times, *windows)
     between = refractory_dip(unit.times[test.parts == 0], unit.times[test.parts == 1], *windows)
@@ -208,18 +220,17 @@ def _split(unit: _Unit, channels: np.ndarray, sorting: Sorting, metric: MetricPa
     share = float(counts[1] / counts.sum()) if len(counts) > 1 else 0.0
     two = test.delta_bic_per_event > 0 and test.smaller_part >= 0.1
     ev = {"delta_bic_per_event": test.delta_bic_per_event, "part_overlap": test.overlap,
-          "smaller_part": test.smaller_part, "second_channel_share": share, "own_dip": own.dip.value,
-          "parts_dip": between.dip.value}
+          "misclassification": test.misclassification, "smaller_part": test.smaller_part,
+          "second_channel_share": share, "own_dip": own.dip.value, "parts_dip": between.dip.value}
     score = _score([_part(1 - 2 * test.overlap) if two else 0.0, _part(2 * share), _part(2 - 2 * own.dip.value),
                     _part(2 - 2 * between.dip.value)])
     notes = tuple(f"{what}: {r}" for what, r in (("own", own.dip.reason), ("parts", between.dip.reason)) if r)
-    return Suggestion("split", (unit.id,), sorting.unit(unit.id).group, score, ev,
-                      members_digest(sorting, [unit.id]), notes)
+    return Suggestion("split", (unit.id,), group, score, ev, members_digest(sorting, [unit.id]), notes, cluster)
 
 
 def suggest(events: EventTable, sorting: Sorting, metric: MetricParams, waveforms: dict[int, np.ndarray] | None = None,
             params: SuggestParams | None = None, progress: ProgressFn = None,
-            cancel: CancelFn = None) -> list[Suggestion]:
+            cancel: CancelFn = None, cluster: ClusterParams | None = None) -> list[Suggestion]:
     """Ranked merge and split suggestions for a sorting, best first.
 
     Parameters
@@ -237,6 +248,9 @@ def suggest(events: EventTable, sorting: Sorting, metric: MetricParams, waveform
         (:func:`mean_waveforms`), or None to compare features only.
     params
         Suggestion settings.
+    cluster
+        Clustering settings of the split test, the first pass's (default :class:`ClusterParams`);
+        accepting a split uses the same.
 
     Returns
     -------
@@ -246,12 +260,14 @@ def suggest(events: EventTable, sorting: Sorting, metric: MetricParams, waveform
     p = params or SuggestParams()
     p.validate()
     metric.validate()
+    cluster = cluster or ClusterParams()
+    cluster.validate()
     with single_threaded_pools():      # small matrices: threaded BLAS only costs here (see cluster_features)
-        return _suggest(events, sorting, metric, waveforms, p, progress, cancel)
+        return _suggest(events, sorting, metric, waveforms, p, cluster, progress, cancel)
 
 
 def _suggest(events: EventTable, sorting: Sorting, metric: MetricParams, waveforms: dict | None, p: SuggestParams,
-             progress: ProgressFn, cancel: CancelFn) -> list[Suggestion]:
+             cluster: ClusterParams, progress: ProgressFn, cancel: CancelFn) -> list[Suggestion]:
     if len(events) != len(sorting.data):
         raise RigsideError(f"events must be the sorting's ({len(sorting.data)}), got a table of {len(events)}")
     cols = pc_columns(sorting.data.feature_names)
@@ -264,7 +280,7 @@ def _suggest(events: EventTable, sorting: Sorting, metric: MetricParams, wavefor
     out: list[Suggestion] = []
     for done, (group, units) in enumerate(sorted(by_group.items())):
         check(cancel)
-        out += [_split(unit, events.channel, sorting, metric, p) for unit in units]
+        out += [s for s in (_split(unit, events.channel, sorting, metric, p, cluster) for unit in units) if s]
         overlap = np.zeros((len(units), len(units)))
         for i in range(len(units)):
             for j in range(i + 1, len(units)):

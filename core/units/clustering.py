@@ -36,7 +36,7 @@ from rigside.core.progress import CancelFn, ProgressFn, check, report, run_bound
 from rigside.core.signal.chunk_pool import single_threaded_pools
 from rigside.core.units.em import Mixture, warm_up
 from rigside.core.units.mixture import fit_mixture, merge_components
-from rigside.core.units.refine import absorb_fragments, smallest_unit, split_clusters
+from rigside.core.units.refine import TwoPartTest, absorb_fragments, smallest_unit, split_clusters, two_part_test
 from rigside.core.units.sorting import NO_UNIT
 
 MIN_EVENTS_PER_COMPONENT = 10
@@ -133,6 +133,29 @@ def _cluster(features: np.ndarray, params: ClusterParams, stream: int, k: int | 
     dense = np.full(n, -1, dtype=np.int32)
     dense[used] = np.unique(labels[used], return_inverse=True)[1].ravel()
     return dense
+
+
+def unit_two_parts(features: np.ndarray, channel: np.ndarray | None, params: ClusterParams,
+                   stream: int = 0) -> TwoPartTest | None:
+    """The first pass's split test (:func:`rigside.core.units.refine.two_part_test`) on one unit's events.
+
+    The features are standardised as a group's are (z-scores of a seeded subsample); the
+    subsample and the fits' random state come from ``params.seed`` and ``stream`` (the unit id),
+    so the same unit gives the same parts every time. None when the events are fewer than two
+    or their features constant.
+    """
+    x = np.asarray(features)
+    n = len(x)
+    if n < 2:
+        return None
+    rng = np.random.default_rng([params.seed, stream])
+    fit_rows = np.sort(rng.choice(n, params.fit_events, replace=False)) if n > params.fit_events \
+        else np.arange(n)
+    scaling = _scaling(x, fit_rows)
+    if not scaling[2].any():
+        return None
+    with single_threaded_pools():
+        return two_part_test(_z(x, scaling), channel, params, rng)
 
 
 def _search(zf: np.ndarray, params: ClusterParams, random_state: int, forced: int | None) -> Mixture:

@@ -32,9 +32,8 @@ fused multiply-add; infinities and NaN keep their meaning."""
 
 
 @numba.njit(cache=True, nogil=True, fastmath=_FAST)
-def _e_step(xt, means, prec_chol, log_weight_det, resp):  # pragma: no cover - compiled
-    """Responsibilities into ``resp`` (components x events) from features ``xt`` (features x events);
-    returns the summed log-likelihood of the events."""
+def _log_densities(xt, means, prec_chol, log_weight_det, resp):  # pragma: no cover - compiled
+    """Weighted log density of every component at every event into ``resp`` (components x events)."""
     d, n = xt.shape
     k = means.shape[0]
     const = -0.5 * d * math.log(2.0 * math.pi)
@@ -54,6 +53,15 @@ def _e_step(xt, means, prec_chol, log_weight_det, resp):  # pragma: no cover - c
                 resp[c, i] += y[i] * y[i]
         for i in range(n):
             resp[c, i] = const - 0.5 * resp[c, i] + log_weight_det[c]
+
+
+@numba.njit(cache=True, nogil=True, fastmath=_FAST)
+def _e_step(xt, means, prec_chol, log_weight_det, resp):  # pragma: no cover - compiled
+    """Responsibilities into ``resp`` (components x events) from features ``xt`` (features x events);
+    returns the summed log-likelihood of the events."""
+    n = xt.shape[1]
+    k = means.shape[0]
+    _log_densities(xt, means, prec_chol, log_weight_det, resp)
     top = resp[0].copy()
     for c in range(1, k):
         for i in range(n):
@@ -123,6 +131,16 @@ class Mixture:
         out = np.empty((self.n_components, xt.shape[1]))
         return out, _e_step(xt, self.means_, self.precisions_cholesky_, _log_weight_det(self), out)
 
+    def log_densities(self, x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        """Weighted log density log(w_c N(x | mu_c, S_c)) and squared Mahalanobis distance of every
+        row of ``x`` to every component (both events x components), from the compiled E step."""
+        xt = np.ascontiguousarray(np.asarray(x, dtype=np.float64).T)
+        out = np.empty((self.n_components, xt.shape[1]))
+        lwd = _log_weight_det(self)
+        _log_densities(xt, self.means_, self.precisions_cholesky_, lwd, out)
+        const = -0.5 * xt.shape[0] * math.log(2.0 * math.pi)
+        return out.T, (-2.0 * (out - lwd[:, None] - const)).T
+
     def predict_proba(self, x: np.ndarray) -> np.ndarray:
         """Posterior probability of every component for every row of ``x`` (events x components)."""
         return self._resp(x)[0].T
@@ -155,6 +173,26 @@ def _precision_cholesky(covs: np.ndarray) -> np.ndarray:
                                "(too few distinct events); lower the number of clusters") from None
         out[c] = solve_triangular(lower, np.eye(d), lower=True).T
     return out
+
+
+def partition_mixture(x: np.ndarray, labels: np.ndarray, k: int, reg_covar: float = 1e-6) -> Mixture:
+    """The mixture of a hard partition: each of the ``k`` parts' share, mean and covariance (plus
+    ``reg_covar`` on the diagonal), by one M step on the parts as responsibilities.
+
+    Parameters
+    ----------
+    x
+        Events x features.
+    labels
+        Part (0..k-1) of every event (a part of one event gets the covariance ``reg_covar`` times
+        the identity).
+    """
+    x = np.ascontiguousarray(x, dtype=np.float64)
+    n, d = x.shape
+    resp = (np.arange(k)[:, None] == np.asarray(labels)[None, :]).astype(np.float64)
+    nk, means, covs = np.empty(k), np.empty((k, d)), np.empty((k, d, d))
+    _m_step(np.ascontiguousarray(x.T), resp, reg_covar, _EPS, nk, means, covs)
+    return Mixture(nk / n, means, covs, _precision_cholesky(covs), 0, False)
 
 
 def fit_em(x: np.ndarray, k: int, max_iter: int = 100, tol: float = 1e-3, reg_covar: float = 1e-6,
@@ -190,11 +228,11 @@ def fit_em(x: np.ndarray, k: int, max_iter: int = 100, tol: float = 1e-3, reg_co
         warnings.simplefilter("ignore", ConvergenceWarning)
         labels = KMeans(n_clusters=k, n_init=1, random_state=random_state).fit(x).labels_
     xt = np.ascontiguousarray(x.T)
-    resp = (np.arange(k)[:, None] == labels[None, :]).astype(np.float64)  # the k-means partition
+    m = partition_mixture(x, labels, k, reg_covar)      # the k-means partition
+    if means_init is not None:
+        m.means_ = np.ascontiguousarray(means_init, dtype=np.float64).copy()
+    resp = np.empty((k, n))
     nk, means, covs = np.empty(k), np.empty((k, d)), np.empty((k, d, d))
-    _m_step(xt, resp, reg_covar, _EPS, nk, means, covs)
-    start = means if means_init is None else np.ascontiguousarray(means_init, dtype=np.float64).copy()
-    m = Mixture(nk / n, start, covs.copy(), _precision_cholesky(covs), 0, False)
     lower = -np.inf
     for it in range(1, max_iter + 1):
         previous = lower

@@ -35,13 +35,7 @@ def merge_components(posterior: np.ndarray, threshold: float) -> list[list[int]]
     clusters = [[k] for k in range(posterior.shape[1])]
     tau = np.asarray(posterior, dtype=np.float64).copy()
     while tau.shape[1] > 1:
-        hard = tau.argmax(axis=1)
-        weight = tau.sum(axis=0)
-        # p[a, b]: posterior weight of cluster a on events classified as b, over a's weight
-        p = np.stack([np.bincount(hard, tau[:, a], tau.shape[1]) for a in range(tau.shape[1])])
-        p /= np.where(weight > 0, weight, 1.0)[:, None]
-        np.fill_diagonal(p, 0.0)
-        pair = np.maximum(p, p.T)
+        pair = misclassification(tau)
         a, b = np.unravel_index(np.argmax(pair), pair.shape)
         if pair[a, b] <= threshold:
             break
@@ -50,3 +44,19 @@ def merge_components(posterior: np.ndarray, threshold: float) -> list[list[int]]
         tau[:, a] += tau[:, b]
         tau = np.delete(tau, b, axis=1)
     return clusters
+
+
+def misclassification(posterior: np.ndarray) -> np.ndarray:
+    """Directly estimated misclassification probability of every pair of clusters (Hennig 2010).
+
+    ``posterior`` holds each cluster's posterior probability (events x clusters). Entry (a, b) of
+    the symmetric result is max(p(a->b), p(b->a)), p(a->b) being a's posterior weight on the
+    events classified as b over a's whole weight; the diagonal is 0.
+    """
+    tau = np.asarray(posterior, dtype=np.float64)
+    hard = tau.argmax(axis=1)
+    weight = tau.sum(axis=0)
+    p = np.stack([np.bincount(hard, tau[:, a], tau.shape[1]) for a in range(tau.shape[1])])
+    p /= np.where(weight > 0, weight, 1.0)[:, None]
+    np.fill_diagonal(p, 0.0)
+    return np.maximum(p, p.T)

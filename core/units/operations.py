@@ -18,7 +18,7 @@ import numpy as np
 from rigside.core.errors import CurationError, ParamError
 from rigside.core.progress import CancelFn, ProgressFn
 from rigside.core.units.assign_events import AssignEvents
-from rigside.core.units.clustering import ClusterParams, cluster_features, first_pass_assignments
+from rigside.core.units.clustering import ClusterParams, cluster_features, first_pass_assignments, unit_two_parts
 from rigside.core.units.dismissals import DismissSuggestion
 from rigside.core.units.operation_base import (
     MAX_NOTE_CHARS,
@@ -34,6 +34,8 @@ from rigside.core.units.sorting import LABELS, NO_UNIT, Delta, Sorting, Unit
 
 BEFORE_FRAGMENT_RULE = {"min_unit_events": 1, "min_unit_share": 0.0, "split_test": False}
 """Settings that replay a record written before the fragment rule and the split test as it ran then."""
+BEFORE_SPLIT_FRAGMENTS = {"split_fragments": False}
+"""... and one written before split parts too small to be units went by the fragment rule."""
 
 
 def _cluster_params(data: Any) -> ClusterParams:
@@ -41,6 +43,8 @@ def _cluster_params(data: Any) -> ClusterParams:
     try:
         if isinstance(data, dict) and "min_unit_events" not in data:
             data = {**BEFORE_FRAGMENT_RULE, **data}
+        if isinstance(data, dict) and "split_fragments" not in data:
+            data = {**BEFORE_SPLIT_FRAGMENTS, **data}
         return ClusterParams.from_dict(data)
     except ParamError as exc:
         raise CurationError(str(exc)) from None
@@ -217,6 +221,55 @@ class MoveEvents(Operation):
         return cls(None, target, encoded=encoded)
 
 
+def _parts_delta(sorting: Sorting, unit: int, idx: np.ndarray, labels: np.ndarray, n_parts: int) -> Delta:
+    """A unit's events ``idx`` in ``n_parts`` parts (``labels``): the part with the largest mean peak
+    magnitude keeps the unit's id, the others become new units of its group."""
+    group = sorting.unit(unit).group
+    mag = np.bincount(labels, np.abs(sorting.data.amplitude_uv[idx].astype(np.float64)), n_parts)
+    mag /= np.bincount(labels, minlength=n_parts)
+    rank = np.empty(n_parts, dtype=np.int64)
+    rank[np.argsort(-mag, kind="stable")] = np.arange(n_parts)
+    new_ids = sorting.next_id + np.arange(n_parts - 1)
+    ids = np.concatenate([[unit], new_ids]).astype(np.int32)
+    created = tuple(int(u) for u in new_ids)
+    return make_delta(sorting, idx, ids[rank[labels]], {u: Unit(group=group) for u in created}, created)
+
+
+class SplitInTwo(Operation):
+    """One unit's events in the two parts of the first pass's split test (:func:`unit_two_parts`,
+    seeded by the unit id), whatever the test's verdict: what accepting a split suggestion does,
+    so the parts are the ones its evidence was computed on. The part with the larger mean peak
+    magnitude keeps the unit's id."""
+
+    kind = "split_in_two"
+
+    def __init__(self, unit: int, params: ClusterParams | None = None) -> None:
+        super().__init__()
+        self.unit = as_int(unit, "unit")
+        self.params = ClusterParams.from_dict((params or ClusterParams()).to_dict())
+
+    @property
+    def text(self) -> str:
+        return f"Split unit {self.unit} in two"
+
+    def _compute(self, sorting: Sorting) -> Delta:
+        sorting.unit(self.unit)     # an unknown unit is refused by name
+        idx = sorting.events_of(self.unit)
+        channel = None if sorting.data.channel is None else sorting.data.channel[idx]
+        test = unit_two_parts(sorting.data.features[idx], channel, self.params, stream=self.unit)
+        k = 0 if test is None else int(test.second.sum())
+        if not 0 < k < len(idx):
+            raise CurationError(f"unit {self.unit} must fall into 2 parts to be split in two, got 1")
+        return _parts_delta(sorting, self.unit, idx, test.second.astype(np.int64), 2)
+
+    def _params(self) -> dict[str, Any]:
+        return {"unit": self.unit, "params": self.params.to_dict()}
+
+    @classmethod
+    def _from_params(cls, p: dict[str, Any]) -> "SplitInTwo":
+        return cls(params=_cluster_params(p.pop("params")), **p)
+
+
 class ReclusterUnit(Operation):
     """Cluster one unit's events again into ``k`` parts (``None``: chosen by BIC).
 
@@ -238,21 +291,14 @@ class ReclusterUnit(Operation):
         return f"Recluster unit {self.unit}" + (f" into {self.k}" if self.k else "")
 
     def _compute(self, sorting: Sorting) -> Delta:
-        rec = sorting.unit(self.unit)
+        sorting.unit(self.unit)     # an unknown unit is refused by name
         idx = sorting.events_of(self.unit)
         labels = cluster_features(sorting.data.features[idx], self.params, stream=self.unit, k=self.k)
         n_parts = int(labels.max()) + 1 if len(labels) else 0
         if n_parts < 2:
             raise CurationError(f"unit {self.unit} must fall into at least 2 parts to be reclustered, "
                                 f"got {n_parts}")
-        mag = np.bincount(labels, np.abs(sorting.data.amplitude_uv[idx].astype(np.float64)), n_parts)
-        mag /= np.bincount(labels, minlength=n_parts)
-        rank = np.empty(n_parts, dtype=np.int64)
-        rank[np.argsort(-mag, kind="stable")] = np.arange(n_parts)
-        new_ids = sorting.next_id + np.arange(n_parts - 1)
-        ids = np.concatenate([[self.unit], new_ids]).astype(np.int32)
-        created = tuple(int(u) for u in new_ids)
-        return make_delta(sorting, idx, ids[rank[labels]], {u: Unit(group=rec.group) for u in created}, created)
+        return _parts_delta(sorting, self.unit, idx, labels, n_parts)
 
     def _params(self) -> dict[str, Any]:
         return {"unit": self.unit, "k": self.k, "params": self.params.to_dict()}
@@ -321,8 +367,8 @@ class SetNote(Operation):
 
 
 OPERATIONS: dict[str, type[Operation]] = {c.kind: c for c in (
-    ClusterGroups, SplitByPolygon, MergeUnits, MoveEvents, ReclusterUnit, Relabel, SetNote, DismissSuggestion,
-    AssignEvents)}
+    ClusterGroups, SplitByPolygon, MergeUnits, MoveEvents, ReclusterUnit, SplitInTwo, Relabel, SetNote,
+    DismissSuggestion, AssignEvents)}
 
 
 def operation_from_record(rec: Any) -> Operation:

@@ -21,16 +21,22 @@ Two steps, in this order, on the standardised features of one channel group (see
    compared with one component by BIC (Schwarz 1978). The cluster is split when two components
    win, their estimated misclassification probability is at most ``merge_overlap`` (the same
    DEMP criterion that merged components, Hennig 2010, so a split is never one the merging
-   step would undo) and both parts keep at least the smallest unit size. Parts are tested again
-   while the group has fewer than ``k_max`` clusters.
+   step would undo). When both parts keep at least the smallest unit size, both are units and
+   are tested again while the group has fewer than ``k_max`` clusters; otherwise (with
+   ``split_fragments``) the small part is a fragment, and its events go by step 1's rule to the
+   Gaussian (mean and covariance of its events) of the cluster that fits them best, or stay
+   unassigned.
 """
 
 from __future__ import annotations
 
+from dataclasses import dataclass
+
 import numpy as np
 
 from rigside.core.params import ClusterParams
-from rigside.core.units.mixture import fit_mixture, merge_components
+from rigside.core.units.em import Mixture, partition_mixture
+from rigside.core.units.mixture import fit_mixture, misclassification
 
 SECOND_CHANNEL_SHARE = 0.1
 """Share of a cluster's events a second main channel must hold to start a split from the channels."""
@@ -41,22 +47,7 @@ def smallest_unit(params: ClusterParams, n_group: int) -> int:
     return max(params.min_unit_events, int(np.ceil(params.min_unit_share * n_group)))
 
 
-def component_fit(z: np.ndarray, mixture) -> tuple[np.ndarray, np.ndarray]:
-    """Weighted log density and squared Mahalanobis distance of every event to every component
-    of a full-covariance scikit-learn mixture (events x components)."""
-    n, d = z.shape
-    k = len(mixture.weights_)
-    logp, d2 = np.empty((n, k)), np.empty((n, k))
-    for c in range(k):
-        chol = mixture.precisions_cholesky_[c]
-        y = (z - mixture.means_[c]) @ chol
-        d2[:, c] = np.einsum("ij,ij->i", y, y)
-        logp[:, c] = (np.log(mixture.weights_[c]) - 0.5 * d2[:, c] + np.log(np.diag(chol)).sum()
-                      - 0.5 * d * np.log(2 * np.pi))
-    return logp, d2
-
-
-def absorb_fragments(z: np.ndarray, labels: np.ndarray, mixture, merged: list[list[int]],
+def absorb_fragments(z: np.ndarray, labels: np.ndarray, mixture: Mixture, merged: list[list[int]],
                      params: ClusterParams) -> np.ndarray:
     """Labels with the fragments' events moved to the best-fitting kept cluster or to -1.
 
@@ -65,7 +56,7 @@ def absorb_fragments(z: np.ndarray, labels: np.ndarray, mixture, merged: list[li
     z
         Standardised features of the group's clustered events.
     labels
-        Cluster (index into ``merged``) of every event.
+        Cluster (index into ``merged``) of every event; -1 (already unassigned) is left alone.
     mixture
         The fitted mixture; ``merged`` lists the components of each cluster.
     params
@@ -79,18 +70,19 @@ def absorb_fragments(z: np.ndarray, labels: np.ndarray, mixture, merged: list[li
     from scipy.stats import chi2
 
     labels = np.asarray(labels, dtype=np.int64).copy()
-    sizes = np.bincount(labels, minlength=len(merged))
+    inside = labels >= 0
+    sizes = np.bincount(labels[inside], minlength=len(merged))
     small = sizes < smallest_unit(params, len(labels))
     if not small.any():
         return labels
-    rows = np.flatnonzero(small[labels])
+    rows = np.flatnonzero(inside)[small[labels[inside]]]
     kept = [c for c in range(len(merged)) if not small[c]]
     if not kept:
         labels[rows] = -1
         return labels
     comps = np.asarray([comp for c in kept for comp in merged[c]])
     owner = np.asarray([c for c in kept for _ in merged[c]])
-    logp, d2 = component_fit(z[rows], mixture)
+    logp, d2 = mixture.log_densities(z[rows])
     best = logp[:, comps].argmax(axis=1)
     good = d2[:, comps][np.arange(len(rows)), best] <= chi2.ppf(params.fragment_fit, z.shape[1])
     labels[rows] = np.where(good, owner[best], -1)
@@ -118,29 +110,84 @@ def split_clusters(z: np.ndarray, labels: np.ndarray, channel: np.ndarray | None
     -------
     np.ndarray
         int64 labels; a split cluster keeps its index for one part, the other part is numbered
-        after the existing clusters.
+        after the existing clusters. A part too small to be a unit is a fragment: its events go by
+        the fragment rule (:func:`absorb_fragments`) to the best-fitting cluster's Gaussian or to -1.
     """
     labels = np.asarray(labels, dtype=np.int64).copy()
     least = smallest_unit(params, len(labels))
     todo = sorted(int(c) for c in np.unique(labels[labels >= 0]))
-    n_clusters = len(todo)
-    while todo and n_clusters < params.k_max:
+    n_clusters = n_units = len(todo)
+    while todo and n_units < params.k_max:
         c = todo.pop(0)
         idx = np.flatnonzero(labels == c)
-        part = two_parts(z[idx], None if channel is None else channel[idx], params, rng, least)
-        if part is not None:
-            labels[idx[part]] = n_clusters
+        if len(idx) < 2 * least:
+            continue
+        test = two_part_test(z[idx], None if channel is None else channel[idx], params, rng)
+        unit_split = test.splits(params, least)
+        if not (test.apart(params) and 0 < test.smaller_part and (unit_split or params.split_fragments)):
+            continue
+        labels[idx[test.second]] = n_clusters
+        if unit_split:
             todo += [c, n_clusters]
-            n_clusters += 1
-    return labels
+            n_units += 1
+        n_clusters += 1     # otherwise one part is a fragment, the other stays as tested
+    used = labels >= 0
+    if np.bincount(labels[used], minlength=n_clusters).min(initial=least) >= least:
+        return labels
+    parts = partition_mixture(z[used], labels[used], n_clusters)
+    return absorb_fragments(z, labels, parts, [[c] for c in range(n_clusters)], params)
 
 
-def two_parts(z: np.ndarray, channel: np.ndarray | None, params: ClusterParams, rng: np.random.Generator,
-              least: int) -> np.ndarray | None:
-    """Mask of the second part when one cluster's events clearly hold two (else None)."""
+@dataclass(frozen=True)
+class TwoPartTest:
+    """One cluster's events fitted by one and by two Gaussians (the split test's numbers).
+
+    ``delta_bic_per_event``: BIC(one) - BIC(two) over the fitted events, per event (positive
+    favours two; Schwarz 1978, Ann. Stat. 6:461-464); ``misclassification``: the two parts'
+    directly estimated misclassification probability (:func:`~rigside.core.units.mixture.misclassification`);
+    ``second``: mask of the events in the second part; ``mixture``: the two-part fit;
+    ``from_channels``: the fit kept was started from the two main channels.
+    """
+
+    delta_bic_per_event: float
+    misclassification: float
+    second: np.ndarray
+    mixture: Mixture
+    from_channels: bool
+
+    @property
+    def smaller_part(self) -> float:
+        """Share of the events in the smaller part."""
+        k = int(self.second.sum())
+        return min(k, len(self.second) - k) / max(1, len(self.second))
+
+    def apart(self, params: ClusterParams) -> bool:
+        """Two parts win BIC and do not overlap by more than ``merge_overlap``."""
+        return self.delta_bic_per_event > 0 and self.misclassification <= params.merge_overlap
+
+    def splits(self, params: ClusterParams, least: int) -> bool:
+        """True when the first pass splits on this test into two units: the parts are :meth:`apart`
+        and both hold at least ``least`` events."""
+        k = int(self.second.sum())
+        return self.apart(params) and min(k, len(self.second) - k) >= least
+
+
+def two_part_test(z: np.ndarray, channel: np.ndarray | None, params: ClusterParams,
+                   rng: np.random.Generator) -> TwoPartTest:
+    """Fit one and two Gaussians to one cluster's standardised features (see the module docstring).
+
+    Parameters
+    ----------
+    z
+        Standardised features of the cluster's events (at least two events).
+    channel
+        Main (detection) channel of every event, or None to start from k-means only.
+    params
+        ``fit_events`` (the seeded subsample fitted), ``min_unit_events`` and the EM limits.
+    rng
+        Source of the subsample and of the fits' random state.
+    """
     n = len(z)
-    if n < 2 * least:
-        return None
     fit = np.sort(rng.choice(n, params.fit_events, replace=False)) if n > params.fit_events else np.arange(n)
     zf = z[fit]
     state = int(rng.integers(0, 2**31 - 1))
@@ -151,10 +198,9 @@ def two_parts(z: np.ndarray, channel: np.ndarray | None, params: ClusterParams, 
         top = np.argsort(-counts, kind="stable")[:2]
         if len(top) == 2 and counts[top[1]] >= max(params.min_unit_events, SECOND_CHANNEL_SHARE * len(fit)):
             starts.append(np.stack([zf[channel[fit] == t].mean(axis=0) for t in top]))
-    two = min((fit_mixture(zf, 2, params, state, means_init=m) for m in starts), key=lambda gm: gm.bic(zf))
-    if two.bic(zf) >= one.bic(zf) or len(merge_components(two.predict_proba(zf), params.merge_overlap)) < 2:
-        return None
-    second = two.predict(z) == 1
-    if min(int(second.sum()), n - int(second.sum())) < least:
-        return None
-    return second
+    fits = [fit_mixture(zf, 2, params, state, means_init=m) for m in starts]
+    bics = [gm.bic(zf) for gm in fits]
+    best = int(np.argmin(bics))
+    two = fits[best]
+    return TwoPartTest((one.bic(zf) - bics[best]) / len(zf), float(misclassification(two.predict_proba(zf))[0, 1]),
+                       two.predict(z) == 1, two, best == 1)

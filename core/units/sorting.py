@@ -26,6 +26,9 @@ LABELS = ("unreviewed", "single unit", "multi-unit", "not neural")
 MAX_UNIT_ID = 2**31 - 2
 """Unit ids are int32 and positive."""
 
+POOL_BASE = -2
+"""Pool ids count down from here: :func:`pool_id` of group 0 is -2, of group 1 is -3, ..."""
+
 AXIS_TIME = "event:time_s"
 AXIS_AMPLITUDE = "event:amplitude_uv"
 FEATURE_AXIS_PREFIX = "feature:"
@@ -50,6 +53,20 @@ def groups_of(assignments: np.ndarray, ids: np.ndarray, groups: np.ndarray) -> n
         return np.where(a == NO_UNIT, -1, -2).astype(np.int32)
     pos = np.minimum(np.searchsorted(ids, a), len(ids) - 1)
     return np.where(ids[pos] == a, groups[pos], np.where(a == NO_UNIT, -1, -2)).astype(np.int32)
+
+
+def pool_id(group: int) -> int:
+    """The id naming a group's unassigned pool (its events in no unit, artefacts excluded).
+
+    Pool ids are negative and never stored in the assignments; :meth:`Sorting.events_of` and
+    :meth:`Sorting.group_of` accept them, so a view can show a pool as it shows a unit.
+    """
+    return POOL_BASE - int(group)
+
+
+def pool_group(unit_id: int) -> int | None:
+    """The group whose pool ``unit_id`` names, or None for a unit id (or :data:`NO_UNIT`)."""
+    return None if int(unit_id) > POOL_BASE else POOL_BASE - int(unit_id)
 
 
 @dataclass(frozen=True)
@@ -232,14 +249,29 @@ class Sorting:
         return sorted(self._units)
 
     def events_of(self, unit_id: int) -> np.ndarray:
-        """Sorted indices (int64) of the events in a unit (cached until the unit changes)."""
+        """Sorted indices (int64) of the events in a unit, or in a group's unassigned pool for a
+        :func:`pool_id` (cached until the unit or the pool changes)."""
         unit_id = int(unit_id)
         idx = self._members.get(unit_id)
         if idx is None:
-            idx = np.flatnonzero(self._assign == unit_id)
+            g = pool_group(unit_id)
+            idx = np.flatnonzero(self._assign == unit_id if g is None else
+                                 (self._assign == NO_UNIT) & (self.data.group == g) & ~self.data.artefact)
             idx.setflags(write=False)
             self._members[unit_id] = idx
         return idx
+
+    def group_of(self, unit_id: int) -> int:
+        """The channel group of a unit or of a pool (:class:`CurationError` if neither)."""
+        g = pool_group(unit_id)
+        return self.unit(unit_id).group if g is None else g
+
+    def pool_counts(self) -> dict[int, int]:
+        """Events in each group's unassigned pool (in no unit, artefacts excluded), for the groups
+        with some, by increasing group."""
+        free = self.data.group[(self._assign == NO_UNIT) & ~self.data.artefact]
+        c = np.bincount(free) if len(free) else np.zeros(0, dtype=np.int64)
+        return {int(g): int(n) for g, n in enumerate(c) if n}
 
     def counts(self) -> dict[int, int]:
         """Event count of every unit."""
@@ -317,6 +349,9 @@ class Sorting:
         members = frozenset(int(u) for u in np.unique(np.concatenate([values, old_values])))
         for u in members | set(units_new):
             self._members.pop(u, None)
+        if NO_UNIT in members:
+            for u in [u for u in self._members if pool_group(u) is not None]:
+                del self._members[u]
         added = frozenset(u for u in units_new if units_old.get(u) is None and units_new[u] is not None)
         removed = frozenset(u for u in units_new if units_old.get(u) is not None and units_new[u] is None)
         edited = frozenset(u for u in units_new if units_old.get(u) is not None

@@ -15,6 +15,7 @@ from PySide6.QtWidgets import QFileDialog
 from rigside.cli.main import main
 from rigside.core.units.session import load_session
 from rigside.gui import screenshot
+from rigside.gui.panels.units import POOL_LABEL
 from rigside.gui.screenshot import pixels
 from rigside.gui.workers import Runner
 from rigside.sample_data import demo_path
@@ -118,9 +119,10 @@ def test_the_screenshot_shows_the_unit_list(sorted_session, rendered, tmp_path):
     out = tmp_path / "session.png"
     assert main(["open", str(session), "--screenshot", str(out)]) == 0
     stored = load_session(session, check_recording=False).sorting
-    rows = rendered["rows"]
-    assert sorted(int(r[0]) for r in rows) == stored.unit_ids()
-    assert {r[2] for r in rows} == {stored.unit(u).label for u in stored.unit_ids()}
+    units = [r for r in rendered["rows"] if r[2] != POOL_LABEL]
+    assert sorted(int(r[0]) for r in units) == stored.unit_ids()
+    assert {r[2] for r in units} == {stored.unit(u).label for u in stored.unit_ids()}
+    assert len(rendered["rows"]) - len(units) == len(stored.pool_counts())   # one row per group's unassigned events
     assert rendered["table_visible"]
     box = rendered["table_box"]
     area = rendered["image"][box.top():box.bottom(), box.left():box.right()]

@@ -114,7 +114,7 @@ def test_save_then_reopen_the_session(demo_window, tmp_path):
     assert ctl.sorting.unit(unit).label == "single unit"
     assert ctl.files.path == path
     assert sorted(ctl.metrics) == sorted(u for u, n in ctl.sorting.counts().items() if n > 0)
-    assert win.unit_panels["list"].model.rowCount() == len(saved.units)
+    assert win.unit_panels["list"].model.rowCount() == len(saved.units) + len(saved.pool_counts())
     # the replayed journal gives the same units
     assert replay_matches(ctl.sorting)
 

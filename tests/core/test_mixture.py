@@ -55,3 +55,19 @@ def test_degenerate_component_is_one_clear_error():
     x = np.repeat(np.array([[0.0, 0.0], [1.0, 0.0], [0.0, 1.0]]), 50, axis=0)
     with pytest.raises(RigsideError, match="ill-defined covariance"):
         fit_em(x, 4, reg_covar=0.0, random_state=0)
+
+
+def test_log_densities_equal_scipys_normal_and_mahalanobis():
+    from scipy.spatial.distance import mahalanobis
+    from scipy.stats import multivariate_normal
+
+    rng = np.random.default_rng(3)
+    x = np.vstack([rng.normal(size=(200, 3)), rng.normal(4.0, 0.5, size=(100, 3))])
+    m = fit_em(x, 2, random_state=0)
+    logp, d2 = m.log_densities(x[:20])
+    for c in range(2):      # reference: scipy's Gaussian log density and Mahalanobis distance
+        ref = np.log(m.weights_[c]) + multivariate_normal(m.means_[c], m.covariances_[c]).logpdf(x[:20])
+        np.testing.assert_allclose(logp[:, c], ref, rtol=1e-9, atol=1e-9)
+        vi = np.linalg.inv(m.covariances_[c])
+        np.testing.assert_allclose(d2[:, c], [mahalanobis(r, m.means_[c], vi) ** 2 for r in x[:20]],
+                                   rtol=1e-7, atol=1e-9)

@@ -6,6 +6,7 @@ from sklearn.metrics import adjusted_rand_score
 
 from rigside.core.params import ClusterParams
 from rigside.core.units.em import fit_em
+from rigside.core.units.operations import _cluster_params
 from rigside.core.units.refine import absorb_fragments, smallest_unit, split_clusters
 
 
@@ -49,3 +50,28 @@ def test_split_test_leaves_one_gaussian_whole():
     z = np.random.default_rng(2).normal(size=(1200, 4))
     out = split_clusters(z, np.zeros(len(z), np.int64), None, ClusterParams(), np.random.default_rng(0))
     assert np.all(out == 0)
+
+
+def test_a_part_too_small_to_be_a_unit_goes_by_the_fragment_rule():
+    rng = np.random.default_rng(3)
+    a = rng.normal(size=(800, 3))
+    b = rng.normal(size=(800, 3)) + [12.0, 0.0, 0.0]
+    p = ClusterParams(min_unit_events=20, min_unit_share=0.0)
+    labels = np.r_[np.zeros(800, int), np.ones(800, int), np.zeros(12, int)]   # 12 more events in A's cluster
+    strays = rng.normal(scale=0.5, size=(12, 3)) + [12.0, 0.0, 0.0]      # B's events
+    lost = rng.normal(scale=0.3, size=(12, 3)) + [0.0, 40.0, 0.0]        # near nothing
+    for extra, goes_to in ((strays, 1), (lost, -1)):
+        z = np.vstack([a, b, extra])
+        out = split_clusters(z, labels, None, p, np.random.default_rng(0))
+        assert np.all(out[:800] == 0) and np.all(out[800:1600] == 1)
+        # reference: the chi-square bound (scipy) of B's own Gaussian
+        y = np.linalg.solve(np.linalg.cholesky(np.cov(b, rowvar=False, ddof=0)), (extra - b.mean(axis=0)).T)
+        inside = np.einsum("ij,ij->j", y, y) <= chi2.ppf(p.fragment_fit, 3)
+        assert inside.all() == (goes_to == 1)
+        assert np.all(out[1600:] == goes_to), (goes_to, out[1600:])
+    # switched off (as journal records written before it replay): no such split
+    off = split_clusters(np.vstack([a, b, strays]), labels, None, ClusterParams(min_unit_events=20, min_unit_share=0.0,
+                                                                                split_fragments=False),
+                         np.random.default_rng(0))
+    assert np.array_equal(off, labels)
+    assert not _cluster_params({"min_unit_events": 20}).split_fragments and ClusterParams().split_fragments

@@ -20,7 +20,7 @@ from rigside.core.units.operations import (
     operation_from_record,
 )
 from rigside.core.units.polygon import points_in_polygon
-from rigside.core.units.sorting import AXIS_AMPLITUDE, AXIS_TIME, NO_UNIT, Sorting, Unit
+from rigside.core.units.sorting import AXIS_AMPLITUDE, AXIS_TIME, NO_UNIT, Sorting, Unit, pool_group, pool_id
 
 from .sorting_data import make_events
 
@@ -334,3 +334,26 @@ def test_groups_of_agrees_with_a_dictionary_on_both_paths():
         assert got.dtype == np.int32 and got.tolist() == [group.get(int(v), -2) for v in values]
     assert groups_of(np.array([1, -1, 2]), np.zeros(0, np.int64), np.zeros(0, np.int64)).tolist() == [-2, -1, -2]
     assert groups_of(np.array([-7, 1]), np.array([1]), np.array([3])).tolist() == [-2, 3]
+
+
+def test_unassigned_pools_follow_moves_into_and_out_of_no_unit(base):
+    s, stack = fresh(base)
+    data = s.data
+
+    def by_hand(g):     # events of group g in no unit, artefacts excluded
+        return np.flatnonzero((s.assignments == NO_UNIT) & (data.group == g) & ~data.artefact)
+
+    assert [pool_group(pool_id(g)) for g in range(3)] == [0, 1, 2] and pool_group(NO_UNIT) is None
+    assert pool_group(1) is None
+    unit = s.unit_ids()[0]
+    g = s.unit(unit).group
+    before = s.events_of(pool_id(g)).copy()         # cached from here on
+    assert np.array_equal(before, by_hand(g)) and s.group_of(pool_id(g)) == g == s.group_of(unit)
+    out = s.events_of(unit)[:7]
+    stack.push(MoveEvents(out, NO_UNIT))
+    assert np.array_equal(s.events_of(pool_id(g)), np.union1d(before, out))
+    assert s.pool_counts()[g] == len(before) + 7
+    stack.undo()
+    assert np.array_equal(s.events_of(pool_id(g)), before)
+    assert s.pool_counts().get(g, 0) == len(before)
+    assert not np.any(data.artefact[s.events_of(pool_id(g))])

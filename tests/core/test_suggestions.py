@@ -10,7 +10,7 @@ from scipy.spatial.distance import cosine
 from sklearn.metrics import adjusted_rand_score
 
 from rigside.core.errors import CurationError
-from rigside.core.params import MetricParams
+from rigside.core.params import ClusterParams, MetricParams
 from rigside.core.quality.pair_evidence import (
     bhattacharyya_coefficient,
     continuity,
@@ -24,7 +24,7 @@ from rigside.core.quality.suggestions import CSV_COLUMNS, SuggestParams, suggest
 from rigside.core.units.dismissals import DismissSuggestion, dismissed_keys
 from rigside.core.units.history import UndoStack, rebuild_history
 from rigside.core.units.journal import Journal
-from rigside.core.units.operations import Relabel
+from rigside.core.units.operations import Relabel, operation_from_record
 from rigside.core.units.sorting import Sorting
 
 from .suggestion_data import suggestion_sorting
@@ -117,11 +117,39 @@ def test_split_test_prefers_two_parts_only_for_two_clusters():
     rng = np.random.default_rng(6)
     two = np.vstack([rng.normal(0, 1, (400, 3)), rng.normal([6, 0, 0], 1, (400, 3))])
     one = rng.normal(0, 1, (800, 3))
-    s2, s1 = split_test(two, two), split_test(one, one)
-    assert s2.delta_bic_per_event > 0 and s2.overlap < 0.05 and s2.smaller_part > 0.45
+    s2, s1 = split_test(two, None, ClusterParams()), split_test(one, None, ClusterParams())
+    assert s2.delta_bic_per_event > 0 and s2.overlap < 0.05 and s2.smaller_part > 0.45 and s2.first_pass_splits
     truth = np.repeat([0, 1], 400)
     assert adjusted_rand_score(truth, s2.parts) > 0.98          # scikit-learn's index as reference
-    assert s1.delta_bic_per_event < 0
+    assert s1.delta_bic_per_event < 0 and not s1.first_pass_splits
+    # reference: scikit-learn's GaussianMixture on the same z-scores (parts far apart: any start finds them)
+    from sklearn.mixture import GaussianMixture
+    z = (two - two.mean(axis=0)) / two.std(axis=0)
+    ref1 = GaussianMixture(1, covariance_type="full", reg_covar=1e-6).fit(z)
+    ref2 = GaussianMixture(2, covariance_type="full", reg_covar=1e-6, random_state=0).fit(z)
+    np.testing.assert_allclose(s2.delta_bic_per_event, (ref1.bic(z) - ref2.bic(z)) / len(z), rtol=1e-3)
+
+
+def test_accepting_a_split_makes_the_parts_its_evidence_was_computed_on():
+    events, sorting, who = suggestion_sorting()
+    split = next(s for s in suggest(events, sorting, METRIC) if s.kind == "split")
+    u = split.units[0]
+    rows = sorting.events_of(u).copy()
+    clustered = int(np.sum(sorting.data.group == sorting.unit(u).group))
+    test = split_test(sorting.data.features[rows], events.channel[rows], ClusterParams(), u, clustered)
+    assert split.evidence["smaller_part"] == test.smaller_part
+    assert split.evidence["delta_bic_per_event"] == test.delta_bic_per_event
+    twin = sorting.copy()
+    op = split.operation()
+    UndoStack(sorting).push(op)
+    # the journal record rebuilds the same step: replayed on a copy, the same parts and ids
+    again = operation_from_record(Journal.from_text(sorting.journal.to_text()).entries[-1]["op"])
+    UndoStack(twin).push(again)
+    assert twin.state_equal(sorting) and again.text == op.text == f"Split unit {u} in two"
+    new = max(sorting.units)
+    moved = sorting.assignments[rows] == new
+    assert np.array_equal(moved, test.parts == 1) or np.array_equal(moved, test.parts == 0)
+    assert adjusted_rand_score(who[rows], moved) > 0.95       # neurons D and E apart (scikit-learn's index)
 
 
 def test_gaussian_fit_is_numpys_mean_and_covariance():

@@ -47,7 +47,8 @@ def evidence_text(s: Suggestion) -> str:
             parts.append(f"continuity {_num(e['continuity'])}")
         return "\n".join(parts)
     return "\n".join([f"two parts {'win' if e['delta_bic_per_event'] > 0 else 'lose'} "
-                       f"(overlap {_num(e['part_overlap'])}, smaller {e['smaller_part']:.0%})",
+                       f"(overlap {_num(e['part_overlap'])}, misclassified {_num(e['misclassification'])}, "
+                       f"smaller {e['smaller_part']:.0%})",
                        f"own refractory dip {_num(e['own_dip'])}",
                        f"refractory dip between the parts {_num(e['parts_dip'])}",
                        f"on a 2nd channel {e['second_channel_share']:.0%}"])
@@ -85,7 +86,8 @@ class SuggestionsPanel(Panel):
         self.table.setAlternatingRowColors(True)
         self.table.itemSelectionChanged.connect(self._chosen)
         self.accept_button = QPushButton("Accept")
-        self.accept_button.setToolTip("Do the suggested step (merge the two units, or recluster the unit into two)")
+        self.accept_button.setToolTip("Do the suggested step (merge the two units, or split the unit into the "
+                                      "two parts of its evidence)")
         self.reject_button = QPushButton("Reject")
         self.reject_button.setToolTip("Not offered again while these units keep their events (undoable)")
         self.refresh_button = QPushButton("Weigh again")

@@ -53,7 +53,7 @@ class AmplitudeView(UnitView):
             self.thresholds_uv[u] = level
             for sign in signs:
                 pi.addItem(pg.InfiniteLine(sign * level, angle=0, pen=palette.pen(colour, 1.5, dash=True)))
-            parts.append(f"unit {u}: threshold {level:.0f} µV on channel {ch}")
+            parts.append(f"{self.ctl.unit_name(u)}: threshold {level:.0f} µV on channel {ch}")
         pi.setXRange(0, ev.duration_s, padding=0.01)
         self.status.setText("Peaks on each event's detection channel; dashed: the threshold on each unit's main "
                             "channel. " + "; ".join(parts))

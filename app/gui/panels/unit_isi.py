@@ -59,7 +59,8 @@ class IsiView(UnitView):
             self.violations[u] = v.n_violations
             c = v.contamination
             est = f"{100 * c:.1f} %" if c == c else f"undefined ({v.reason})"
-            parts.append(f"<span style='color:{palette.hex_colour(self.ctl.unit_colour(u))}'>■</span> unit {u}: "
+            colour = palette.hex_colour(self.ctl.unit_colour(u))
+            parts.append(f"<span style='color:{colour}'>■</span> {self.ctl.unit_name(u)}: "
                          f"{v.n_violations} violation{'s' if v.n_violations != 1 else ''}, contamination {est}")
         pi.setXRange(0, self.max_ms.value(), padding=0.01)
         self.status.setText(f"Shaded: refractory window {mp.censored_ms:g}–{mp.refractory_ms:g} ms "

@@ -13,7 +13,7 @@ import pyqtgraph as pg
 from PySide6.QtWidgets import QComboBox, QHBoxLayout, QLabel, QMenu, QPushButton, QToolButton, QVBoxLayout
 
 from rigside.core.units.polygon import points_in_polygon
-from rigside.core.units.sorting import AXIS_AMPLITUDE, AXIS_TIME, FEATURE_AXIS_PREFIX, NO_UNIT
+from rigside.core.units.sorting import AXIS_AMPLITUDE, AXIS_TIME, FEATURE_AXIS_PREFIX, NO_UNIT, pool_group, pool_id
 from rigside.gui import palette
 from rigside.gui.curation import PolygonTool
 from rigside.gui.panels.base import Panel
@@ -128,7 +128,7 @@ class ClusterPlanePanel(Panel):
         if s is None:
             return None
         if self.ctl.selection:
-            return s.unit(self.ctl.selection[0]).group
+            return s.group_of(self.ctl.selection[0])
         return int(self.bench.group)
 
     def redraw(self, *_) -> None:
@@ -144,10 +144,11 @@ class ClusterPlanePanel(Panel):
             return
         self.group = g = self.shown_group()
         xa, ya = self.axes
-        sel = set(self.ctl.selection)
         in_group = np.flatnonzero(s.data.group == g)
         assigned = s.assignments[in_group]
-        rest = _thin(in_group[~np.isin(assigned, list(sel))], BACKGROUND_LIMIT)
+        shown = [s.events_of(u) for u in self.ctl.selection]
+        rest = in_group[~np.isin(in_group, np.concatenate(shown))] if shown else in_group
+        rest = _thin(rest, BACKGROUND_LIMIT)
         self.background.setData(s.data.axis_values(xa, rest), s.data.axis_values(ya, rest))
         for u in self.ctl.selection:
             idx = _thin(s.events_of(u), UNIT_LIMIT)
@@ -157,11 +158,13 @@ class ClusterPlanePanel(Panel):
             self.unit_items.append(item)
         palette.style_plot(pi, axis_text(xa), axis_text(ya))
         self._show_chosen()
-        units = ", ".join(str(u) for u in self.ctl.selection) or "none (select units in the unit list)"
+        units = ", ".join(self.ctl.unit_name(u) for u in self.ctl.selection) or "none (select units in the unit list)"
         n_art = int(s.data.artefact[in_group].sum())
         n_free = int(np.sum((assigned == NO_UNIT) & ~s.data.artefact[in_group]))
         why = f" ({n_art:,} artefacts kept for sorting, in no unit)" if n_art else ""
-        why += f" ({n_free:,} unassigned: outline them to move them into a unit)" if n_free else ""
+        how = ("choose some by an outline and move them into a unit" if pool_id(g) in self.ctl.selection
+               else "select the group's unassigned row in the unit list to see them")
+        why += f" ({n_free:,} unassigned: {how})" if n_free else ""
         self.status.setText(f"{self.ctl.group_name(g)}: {len(in_group):,} events{why} (grey: not selected). "
                             f"Selected units: {units}.")
 
@@ -179,8 +182,9 @@ class ClusterPlanePanel(Panel):
         if s is None:
             self.status.setText("No units to outline yet.")
             return False
-        if purpose == "split" and len(self.ctl.selection) != 1:
-            self.status.setText("Select exactly one unit to split, then draw its outline.")
+        if purpose == "split" and (len(self.ctl.selection) != 1 or pool_group(self.ctl.selection[0]) is not None):
+            self.status.setText("Select exactly one unit to split, then draw its outline (unassigned events: "
+                                "choose them by an outline and move them).")
             return False
         self.tool.start(purpose)
         what = "the events that leave the unit" if purpose == "split" else "the events to choose"

@@ -10,6 +10,7 @@ import numpy as np
 import pyqtgraph as pg
 from PySide6.QtWidgets import QDoubleSpinBox, QHBoxLayout, QLabel, QVBoxLayout, QWidget
 
+from rigside.core.units.sorting import NO_UNIT, pool_group
 from rigside.gui import palette
 from rigside.gui.fields import double_spin
 
@@ -64,7 +65,9 @@ class UnitView(QWidget):
         self.layout_.addWidget(self.status)
 
     def _on_units_changed(self, change) -> None:
-        if set(change.touched) & set(self.ctl.selection) or change.removed:
+        sel = set(self.ctl.selection)
+        pools = NO_UNIT in change.members and any(pool_group(u) is not None for u in sel)
+        if set(change.touched) & sel or change.removed or pools:
             self.refresh()
 
     def shown_units(self) -> list[int]:
@@ -73,7 +76,7 @@ class UnitView(QWidget):
     def plot_key(self, view) -> str:
         """The colour of each unit shown (rich text), for saved pictures."""
         units = self.shown_units() if self.ctl.sorting is not None else []
-        return palette.key([("■", self.ctl.unit_colour(u), f"unit {u}") for u in units])
+        return palette.key([("■", self.ctl.unit_colour(u), self.ctl.unit_name(u)) for u in units])
 
     def unit_times(self, unit: int) -> np.ndarray:
         s = self.ctl.sorting

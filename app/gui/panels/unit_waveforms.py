@@ -98,7 +98,7 @@ class UnitWaveformView(UnitView):
                 lo, hi = min(lo, float((mean[:, j] - sd[:, j]).min())), max(hi, float((mean[:, j] + sd[:, j]).max()))
             pi.addItem(pg.PlotCurveItem(np.concatenate(xs), np.concatenate(ys), connect="finite",
                                         pen=palette.pen(colour, 2.2)))
-            parts.append(f"unit {u}: {len(snips)} events")
+            parts.append(f"{self.ctl.unit_name(u)}: {len(snips)} events")
         if not n_cols:
             return
         first = next(iter(groups))

@@ -1,5 +1,9 @@
 """The unit list: one row per unit with its label, counts and quality numbers, sortable.
 
+Below the units, one row per channel group with unassigned events (the pool of events in no unit,
+artefacts excluded: the fragment rule's leftovers and events moved out of every unit), in grey
+italics, selectable like a unit so its events can be seen and outlined into one.
+
 A number beyond its limit is marked three ways (a "!" before it, bold text and a tinted
 cell) so the mark never rests on colour alone; an undefined number shows "—" with its
 reason as a tooltip. Selected units carry their highlight colour in the id column.
@@ -24,7 +28,7 @@ from PySide6.QtWidgets import QAbstractItemView, QLabel, QTableView, QVBoxLayout
 from rigside.core.numbers import format_number
 from rigside.core.quality.unit_table import CAUTION, COLUMNS
 from rigside.core.quality.unit_table_io import reason_column
-from rigside.core.units.sorting import LABELS
+from rigside.core.units.sorting import LABELS, pool_group, pool_id
 from rigside.gui import palette
 from rigside.gui.panels.base import Panel
 from rigside.gui.panels.table_columns import fit_columns, table_width
@@ -39,6 +43,10 @@ def plain_tooltip(text: str) -> str:
     rich text, so user text is escaped inside a paragraph that keeps its line breaks)."""
     return f"<p style='white-space:pre-wrap'>{html.escape(text)}</p>"
 FLAG_TINT = QColor(*palette.VERMILLION, 45)
+POOL_LABEL = "unassigned"
+POOL_WHY = "unassigned events form no unit: no quality numbers"
+POOL_SORT_BASE = 1e12
+"""Sort value of a pool row's id column (plus its group), so pools follow the units."""
 
 # (header, table column or a fixed key, scale, format, header tooltip)
 COLUMN_SPECS = (
@@ -86,7 +94,18 @@ class UnitTableModel(QAbstractTableModel):
                 if m is not None:
                     row["amplitude_change_fraction:slope"] = float(m["amplitude_slope_uv_per_min"])
                 self.rows.append(row)
+            self.rows += [self._pool_row(g, n, duration) for g, n in sorting.pool_counts().items()]
         self.endResetModel()
+
+    def _pool_row(self, group: int, n: int, duration: float) -> dict:
+        row = {"unit": pool_id(group), "group": self.ctl.group_name(group), "group_id": group,
+               "label": POOL_LABEL, "note": "", "n_events": n, "rate_hz": n / duration}
+        for key in METRIC_KEYS:
+            row[key], row[key + ":why"] = math.nan, POOL_WHY
+        return row
+
+    def is_pool(self, row: int) -> bool:
+        return pool_group(self.rows[row]["unit"]) is not None
 
     def rowCount(self, parent=QModelIndex()) -> int:
         return 0 if parent.isValid() else len(self.rows)
@@ -115,6 +134,8 @@ class UnitTableModel(QAbstractTableModel):
     def text(self, row: int, col: int) -> str:
         _, key, scale, fmt, _ = COLUMN_SPECS[col]
         value = self.rows[row][key]
+        if key == "unit" and self.is_pool(row):
+            return "·"
         if isinstance(value, str):
             return value
         if isinstance(value, float) and not math.isfinite(value):
@@ -131,9 +152,21 @@ class UnitTableModel(QAbstractTableModel):
         r = self.rows[row]
         if role == Qt.ItemDataRole.DisplayRole:
             return self.text(row, col)
+        pool = self.is_pool(row)
         if role == SORT_ROLE:
+            if key == "unit" and pool:
+                return POOL_SORT_BASE + r["group_id"]
             v = r[key]
             return v if isinstance(v, str) else float(v)
+        if pool and role == Qt.ItemDataRole.ForegroundRole:
+            return QBrush(QColor(*palette.GREY))
+        if pool and role == Qt.ItemDataRole.FontRole:
+            f = QFont()
+            f.setItalic(True)
+            return f
+        if pool and role == Qt.ItemDataRole.ToolTipRole and key in ("unit", "label", "n_events"):
+            return (f"{r['n_events']} events of {r['group']} in no unit (artefacts excluded); select to see them, "
+                    f"outline some in the cluster plane and move them into a unit")
         if role == Qt.ItemDataRole.TextAlignmentRole and not isinstance(r[key], str):
             return int(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
         if role == Qt.ItemDataRole.DecorationRole and key == "unit":
@@ -244,8 +277,11 @@ class UnitListPanel(Panel):
         done = sum(1 for u in s.units if u in self.ctl.metrics)
         d = self.ctl.session.params.detect
         made_at = f"{d.threshold_sigma:g} σ" if d.threshold_uv is None else f"{d.threshold_uv:g} µV"
+        pools = s.pool_counts()
+        free = (f"; {sum(pools.values()):,} events unassigned in {len(pools)} group{'s' if len(pools) > 1 else ''} "
+                f"(grey rows)") if pools else ""
         self.summary.setText(f"{len(labels)} units from {len(s.data):,} events at {made_at} "
-                             f"({', '.join(f'{labels.count(name)} {name}' for name in LABELS)}); "
+                             f"({', '.join(f'{labels.count(name)} {name}' for name in LABELS)}){free}; "
                              f"quality numbers for {done}.")
 
     def _on_table_selection(self, *_) -> None:

@@ -1,0 +1,72 @@
+"""The whole sort (detection, features, first pass, overlap pass) on 20 s of the demo scenario, one
+seed, against its ground truth: a short version of ``bench/bench_sorting_truth.py``.
+
+Scoring (:func:`rigside.core.synthetic.sorting_score.score_sorting`): spikes matched one-to-one
+within 0.5 ms, true and found units paired by the Hungarian method (Kuhn 1955,
+``scipy.optimize.linear_sum_assignment``) on the Jaccard index of their spike sets (Jaccard 1912).
+The floors were measured on this seed (see each check) and leave a margin below the measurement.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from rigside.core.io.recording import open_recording
+from rigside.core.params import Params
+from rigside.core.quality.matching import shared_spike_matrix
+from rigside.core.quality.metric_settings import metric_settings
+from rigside.core.quality.suggestions import suggest
+from rigside.core.runs.sort import sort_recording
+from rigside.core.synthetic.settings import SynthSettings
+from rigside.core.synthetic.sorting_score import score_sorting
+from rigside.core.synthetic.synth import write_practice
+from rigside.core.synthetic.truth import load_truth
+
+SECONDS, SEED = 20.0, 0
+BIG = 100
+"""True units with at least this many spikes are held to the agreement floor (a mixture cannot
+resolve a cluster of a few dozen events among thousands)."""
+
+
+@pytest.fixture(scope="module")
+def sorted_short(tmp_path_factory):
+    path = tmp_path_factory.mktemp("truth20") / "demo20.bin"
+    write_practice(path, SynthSettings(seconds=SECONDS, seed=SEED))
+    rec = open_recording(path)
+    params = Params()
+    events, sorting = sort_recording(rec, params)
+    return params, events, sorting, load_truth(rec.truth_path())
+
+
+def test_per_unit_agreement_and_unit_count_against_the_truth(sorted_short):
+    _, events, sorting, truth = sorted_short
+    s = score_sorting(truth.sample, truth.unit, events.sample, sorting.assignments, events.rate_hz)
+    kinds = np.array([truth.unit_kind[int(u)] for u in s.true_ids])
+    big = s.true_spikes >= BIG
+    clear = big & (kinds != "look-alike")
+    # measured on this seed: 6 clearly distinct units with >= 100 spikes, agreements 0.907-0.984
+    assert clear.sum() == 6
+    assert np.all(s.agreement[clear] >= 0.85), dict(zip(s.true_ids[clear].tolist(), s.agreement[clear]))
+    # measured: 6 of the 8 units with >= 100 spikes at >= 0.9, median 0.94 (the look-alike pair is the miss)
+    good, n_big = s.share_at(0.9, BIG)
+    assert n_big == 8 and good >= 5
+    assert float(np.median(s.agreement[big])) >= 0.88
+    # measured: 11 units for 12 true ones, no false unit or fragment (the issue's targets: +-2, at most 1)
+    assert abs(s.found_units - len(s.true_ids)) <= 2
+    assert s.false_units + s.fragments <= 1
+
+
+def test_the_look_alike_pair_appears_among_the_suggestions(sorted_short):
+    params, events, sorting, truth = sorted_short
+    pair = sorted(u for u, kind in truth.unit_kind.items() if kind == "look-alike")
+    assert len(pair) == 2
+    a = sorting.assignments
+    kept = a >= 0
+    ids_t, ids_f, m = shared_spike_matrix(truth.sample, truth.unit, events.sample[kept], a[kept],
+                                          0.0005 * events.rate_hz)
+    holder = [int(ids_f[m[np.searchsorted(ids_t, u)].argmax()]) for u in pair]
+    found = {(x.kind, x.units) for x in suggest(events, sorting, metric_settings(params), cluster=params.cluster)}
+    # one unit holding both is a split to weigh; two units are a merge to weigh
+    wanted = ("split", (holder[0],)) if holder[0] == holder[1] else ("merge", tuple(sorted(holder)))
+    assert wanted in found, (holder, sorted(found))
