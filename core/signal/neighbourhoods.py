@@ -12,7 +12,6 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.spatial import cKDTree
 
 from rigside.core.errors import ParamError
 
@@ -57,6 +56,7 @@ def neighbourhoods(positions: np.ndarray, shank: np.ndarray, radius_um: float) -
         raise ParamError(f"neighbourhood radius must be above 0 um, got {radius_um!r}")
     positions = np.asarray(positions, dtype=np.float64)
     shank = np.asarray(shank)
+    from scipy.spatial import cKDTree  # imported on use: scipy is not loaded at start-up
     lists: list[np.ndarray] = [np.empty(0, np.int64)] * len(positions)
     for k in np.unique(shank):
         sites = np.flatnonzero(shank == k)
