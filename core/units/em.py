@@ -19,6 +19,7 @@ from dataclasses import dataclass
 
 import numba
 import numpy as np
+from scipy.linalg import LinAlgError, cholesky, solve_triangular
 
 from rigside.core.errors import RigsideError
 
@@ -144,7 +145,6 @@ def _log_weight_det(m: Mixture) -> np.ndarray:
 
 
 def _precision_cholesky(covs: np.ndarray) -> np.ndarray:
-    from scipy.linalg import LinAlgError, cholesky, solve_triangular  # imported on use: scipy is not loaded at start-up
     d = covs.shape[1]
     out = np.empty_like(covs)
     for c, cov in enumerate(covs):
