@@ -10,7 +10,10 @@ Prints, measured in the same run:
 - the redraw of the feature view with a million events in one group (density image),
   against drawing them as plain points.
 
-Run: python bench/bench_workbench.py [--seconds 60] [--events 1000000]
+With --probe, the threshold change alone on a 384-site synthetic probe recording (events with
+positions), against its re-detection.
+
+Run: python bench/bench_workbench.py [--seconds 60] [--events 1000000] [--probe]
 """
 
 from __future__ import annotations
@@ -36,9 +39,11 @@ from rigside.core.params import Params  # noqa: E402
 from rigside.core.signal.features import Features  # noqa: E402
 from rigside.core.signal.noise import estimate_noise  # noqa: E402
 from rigside.core.signal.pipeline import detect  # noqa: E402
+from rigside.core.synthetic.probe_synth import write_probe_synth  # noqa: E402
 
 RATE = 30000.0
 CHANNELS = 32
+PROBE_SITES = 384
 
 
 def write_recording(folder: Path, seconds: float) -> Path:
@@ -66,7 +71,12 @@ def synthetic_events(rec, sigma_uv: np.ndarray, n: int) -> EventTable:
     rng = np.random.default_rng(1)
     channel = rng.integers(0, rec.n_channels, n)
     k = 3.0 + rng.exponential(1.5, n)
-    return EventTable(sample=np.sort(rng.integers(0, rec.n_samples, n)), channel=channel,
+    where = {}
+    if rec.positions is not None:
+        jitter = rng.normal(0, 10, (n, 2)).astype(np.float32)
+        where = {"x_um": rec.positions[channel, 0].astype(np.float32) + jitter[:, 0],
+                 "y_um": rec.positions[channel, 1].astype(np.float32) + jitter[:, 1]}
+    return EventTable(**where, sample=np.sort(rng.integers(0, rec.n_samples, n)), channel=channel,
                       group=rec.channel_group[channel], amplitude_uv=(-k * sigma_uv[channel]).astype(np.float32),
                       amplitude_sigma=k.astype(np.float32), artefact=rng.random(n) < 0.005,
                       rate_hz=rec.rate_hz, n_samples=rec.n_samples, sigma_uv=sigma_uv, floor_sigma=3.0)
@@ -97,31 +107,39 @@ def main() -> int:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--seconds", type=float, default=60.0)
     ap.add_argument("--events", type=int, default=1_000_000)
+    ap.add_argument("--probe", action="store_true", help=f"threshold change only, on a {PROBE_SITES}-site probe")
     args = ap.parse_args()
     tmp = tempfile.TemporaryDirectory()
-    app, win, rec, noise = open_window(Path(tmp.name), args.seconds, args.events)
+    app, win, rec, noise = open_window(Path(tmp.name), args.seconds, args.events, args.probe)
     bench_threshold_change(app, win, rec, noise)
-    bench_scrolling(win)
-    bench_feature_view(win, rec, noise, args.events)
+    if not args.probe:
+        bench_scrolling(win)
+        bench_feature_view(win, rec, noise, args.events)
     win.close()
     rec.close()
     tmp.cleanup()
     return 0
 
 
-def open_window(folder: Path, seconds: float, n_events: int):
-    """A window showing every channel of a synthetic recording with ``n_events`` in its event table."""
+def open_window(folder: Path, seconds: float, n_events: int, probe: bool = False):
+    """A window showing the first 32 channels of a synthetic recording (bundles, or a probe) with
+    ``n_events`` in its event table."""
     QSettings.setDefaultFormat(QSettings.Format.IniFormat)
     QSettings.setPath(QSettings.Format.IniFormat, QSettings.Scope.UserScope, str(folder / "settings"))
     app = QApplication.instance() or QApplication([])
     from rigside.gui.window import MainWindow
 
-    path = write_recording(folder, seconds)
+    if probe:
+        path = folder / "probe.bin"
+        write_probe_synth(path, seconds=seconds, sites=PROBE_SITES, seed=1)
+    else:
+        path = write_recording(folder, seconds)
     rec = open_recording(path)
     params = Params()
     noise = estimate_noise(rec, params)
     events = synthetic_events(rec, noise.sigma_uv, n_events)
-    print(f"recording: {seconds:g} s x {CHANNELS} channels at {RATE:g} Hz; "
+    print(f"recording: {seconds:g} s x {rec.n_channels} channels at {RATE:g} Hz"
+          f"{' (probe, events with positions)' if probe else ''}; "
           f"{len(events):,} events in the table; load average {os.getloadavg()[0]:.1f} on "
           f"{os.cpu_count()} cores")
 
@@ -134,7 +152,8 @@ def open_window(folder: Path, seconds: float, n_events: int):
     bench.set_events(noise, events)
     win.runner.shutdown()
     bench.show_channels(range(CHANNELS), "all channels")
-    bench.set_view(10.0, 11.0)
+    start = min(10.0, seconds - 1.0)
+    bench.set_view(start, start + 1.0)
     app.processEvents()
     win.runner.shutdown()
     return app, win, rec, noise
@@ -154,7 +173,8 @@ def bench_threshold_change(app, win, rec, noise) -> None:
     p.detect.threshold_sigma = 4.5
     naive = timed(lambda i: detect(rec, p, noise=noise), 2)
     marks = len(win.traces.marker_times())
-    print("\nthreshold change (1e6 events; counts, table, markers, curve mark, rate strip)")
+    print(f"\nthreshold change ({len(bench.events):,} events on {rec.n_channels} channels; counts, table, markers, "
+          "curve mark, rate strip)")
     print(f"  preview during drag      {summary(preview)}")
     print(f"  preview + window repaint {summary(preview_paint)}   ({marks} markers visible)")
     print(f"  commit on release        {summary(commit)}   (waveform cut runs in the background)")

@@ -96,6 +96,15 @@ class EventColumns:
     artefact: np.ndarray
 
 
+def _channel_amplitude_keys(channel: np.ndarray, amplitude_sigma: np.ndarray) -> np.ndarray:
+    """One int64 per (channel, float32 amplitude) sorting as the pairs do: the channel in the high
+    32 bits, below it the amplitude's bits made order-preserving (negative floats' magnitude bits
+    flipped, the sign offset away); infinite thresholds sort above every finite amplitude."""
+    bits = np.asarray(amplitude_sigma, dtype=np.float32).view(np.int32).astype(np.int64)
+    ordered = np.where(bits < 0, bits ^ 0x7FFFFFFF, bits) + (1 << 31)
+    return (np.asarray(channel, dtype=np.int64) << 32) | ordered
+
+
 @dataclass
 class EventTable(EventColumns):
     """Detected events and the context needed to interpret them.
@@ -132,6 +141,8 @@ class EventTable(EventColumns):
     y_um: np.ndarray | None = None
     recovered: np.ndarray | None = None
     _by_channel: dict = field(default_factory=dict, repr=False, compare=False)
+    _keys: tuple | None = field(default=None, repr=False, compare=False)
+    _by_sample: tuple | None = field(default=None, repr=False, compare=False)
 
     def __post_init__(self) -> None:
         for name, dtype in COLUMNS.items():
@@ -213,14 +224,34 @@ class EventTable(EventColumns):
             self._by_channel = cache
         return cache[channel]
 
+    def rows_on(self, channels: np.ndarray, start: int, stop: int) -> np.ndarray:
+        """Rows of events on ``channels`` with sample in ``[start, stop)``, by channel, each in time order."""
+        found = self._by_sample
+        if found is None:
+            order = np.argsort(self.channel, kind="stable")
+            found = self._by_sample = (order, np.searchsorted(self.channel[order], np.arange(self.n_channels + 1)),
+                                       self.sample[order])
+        order, edges, samples = found
+        parts = [order[edges[c]:edges[c + 1]][slice(*np.searchsorted(samples[edges[c]:edges[c + 1]], [start, stop]))]
+                 for c in channels]
+        return np.concatenate(parts) if parts else np.empty(0, dtype=np.int64)
+
+    def _channel_keys(self) -> tuple[np.ndarray, np.ndarray]:
+        """Sorted keys of the non-artefact events and each channel's first index (built once, thread-safe)."""
+        found = self._keys
+        if found is None:
+            ok = ~self.artefact & self.detected
+            keys = np.sort(_channel_amplitude_keys(self.channel[ok], self.amplitude_sigma[ok]))
+            edges = np.searchsorted(keys, np.arange(self.n_channels + 1, dtype=np.int64) << 32)
+            found = self._keys = (keys, edges)
+        return found
+
     def counts(self, threshold_sigma=None, threshold_uv=None) -> np.ndarray:
-        """Non-artefact event count per channel at the threshold (sorted look-up)."""
+        """Non-artefact event count per channel at the threshold (one sorted look-up for all channels)."""
         thr = self.thresholds_sigma(threshold_sigma, threshold_uv).astype(np.float32)
-        out = np.empty(self.n_channels, dtype=np.int64)
-        for c in range(self.n_channels):
-            amps = self._sorted_amplitudes(c)
-            out[c] = len(amps) - np.searchsorted(amps, thr[c], side="left")
-        return out
+        keys, edges = self._channel_keys()
+        at = np.searchsorted(keys, _channel_amplitude_keys(np.arange(self.n_channels), thr), side="left")
+        return (edges[1:] - at).astype(np.int64)
 
     def count_curve(self, channel: int, thresholds_sigma: np.ndarray) -> np.ndarray:
         """Non-artefact event counts on one channel for many thresholds (sigma)."""

@@ -15,6 +15,7 @@ import h5py
 import numpy as np
 
 from rigside.core.errors import RecordingError
+from rigside.core.io.columns import take_channels
 from rigside.core.io.h5safe import stored_dataset
 from rigside.core.io.layout import Layout
 from rigside.core.io.nwb_series import (
@@ -99,7 +100,7 @@ class NWBRecording(Recording):
             block = block[:, None]
         if self._gains is not None:
             block = block.astype(np.float32) * self._gains
-        return block if channels is None else block[:, channels]
+        return take_channels(block, channels)
 
     def describe(self) -> dict:
         """The plain description, with the series (its name as NWB names it, and its path in the file),

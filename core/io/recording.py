@@ -39,6 +39,7 @@ import tomli_w
 from rigside.core.errors import RecordingError
 from rigside.core.io import positions as sites
 from rigside.core.io.atomic import atomic_write
+from rigside.core.io.columns import take_channels
 from rigside.core.io.h5safe import stored_dataset
 from rigside.core.io.hdf5_datasets import choose_dataset
 from rigside.core.io.layout import DTYPES, Layout, check_groups, groups_of_size, is_integer, is_number  # noqa: F401 (re-exported)
@@ -96,7 +97,7 @@ class RawRecording(Recording):
                 raise RecordingError(f"recording {str(self.path)!r} must keep its size while it is read, got an "
                                      f"early end at sample {start + done // self._frame} of {self.n_samples}")
             done += got
-        return block if channels is None else block[:, channels]
+        return take_channels(block, channels)
 
     def close(self) -> None:
         self._file.close()
@@ -165,7 +166,7 @@ class HDF5Recording(Recording):
             block = self._ds[start:stop]
         except (OSError, RuntimeError) as exc:
             raise RecordingError(f"HDF5 recording must be readable at samples {start}..{stop}, got {exc}") from None
-        return block if channels is None else block[:, channels]
+        return take_channels(block, channels)
 
     def close(self) -> None:
         self._file.close()

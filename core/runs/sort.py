@@ -25,16 +25,17 @@ from rigside.core.io.recording import Recording
 from rigside.core.params import Params
 from rigside.core.progress import CancelFn, ProgressFn, check, report
 from rigside.core.quality.stored_numbers import compute_numbers, numbers_to_store, table_rows
+from rigside.core.signal.event_pass import detect_with_features
 from rigside.core.signal.features import Basis, Features, compute_features, feature_names
 from rigside.core.signal.overlaps import recover_overlaps
-from rigside.core.signal.pipeline import detect, thresholds_sigma
 from rigside.core.textparse import parse_json
 from rigside.core.units.first_pass import first_pass
 from rigside.core.units.recovered import with_recovered
 from rigside.core.units.session import RecordingRef, Session, save_session
 from rigside.core.units.sorting import Sorting
 
-STAGE_SHARES = (0.42, 0.33, 0.15, 0.1)  # detection, features, clustering, overlaps: shares of the progress bar
+STAGE_SHARES = (0.6, 0.15, 0.15, 0.1)
+"""Shares of the progress bar: detection, features (one pass with detection), clustering, overlaps."""
 
 
 def checkpoint_path(session_path: str | Path) -> Path:
@@ -130,7 +131,8 @@ def _check_fits(events: EventTable, recording: Recording) -> None:
 def sort_recording(recording: Recording, params: Params, checkpoint: Path | None = None,
                    resume: bool = False, progress: ProgressFn = None,
                    cancel: CancelFn = None) -> tuple[EventTable, Sorting]:
-    """Detect, compute features and cluster every group, in memory.
+    """Detect and compute features (one pass, :mod:`rigside.core.signal.event_pass`), then cluster every
+    group, in memory.
 
     Parameters
     ----------
@@ -163,13 +165,11 @@ def sort_recording(recording: Recording, params: Params, checkpoint: Path | None
                                             lambda f, m: report(progress, a * f, m),
                                             cancel)
     if events is None:
-        table = detect(recording, params, progress=lambda f, m: report(progress, a * f, m), cancel=cancel)
-        events = table.subset(table.mask(threshold_sigma=thresholds_sigma(params, table.sigma_uv),
-                                         include_artefacts=True))
+        events, features = detect_with_features(recording, params, cancel=cancel,
+                                                progress=lambda f, m: report(progress, (a + b) * f, m))
         if checkpoint is not None:
-            _write_checkpoint(checkpoint, key, events, None, recording.content_hash)
-    report(progress, a, "events ready")
-    if features is None:
+            _write_checkpoint(checkpoint, key, events, features, recording.content_hash)
+    if features is None:  # a checkpoint of an earlier version, holding events only
         features = compute_features(recording, events, params, cancel=cancel,
                                     progress=lambda f, m: report(progress, a + b * f, m))
         if checkpoint is not None:

@@ -17,7 +17,6 @@ squared amplitude over the window and the group's channels, uV^2).
 from __future__ import annotations
 
 from dataclasses import dataclass
-from typing import TYPE_CHECKING
 
 import numpy as np
 
@@ -29,9 +28,6 @@ from rigside.core.signal.chunk_pool import single_threaded_pools
 from rigside.core.signal.filtering import BandPass
 from rigside.core.signal.snippet_pass import own_columns, snippet_pass
 from rigside.core.signal.snippets import snippet_window
-
-if TYPE_CHECKING:  # scikit-learn costs seconds to import: only the fit below needs it
-    from sklearn.decomposition import PCA
 
 
 @dataclass(frozen=True)
@@ -146,24 +142,31 @@ def compute_features(recording: Recording, events: EventTable, params: Params, p
         held[s][first:first + len(ev)] = flat
 
     cut(chosen, hold, 0.0, share)
+    bases: list[Basis | None] = []
+    for s, x in enumerate(held):
+        bases.append(fit_basis(x, sp.n_pcs, sp.seed))
+        put_scores(out, order[fit[s]], bases[s], x)
+        held[s] = None  # the group's subset is projected: free it
+
+    cut(rest, lambda s, ev, flat: put_scores(out, order[ev], bases[s], flat), share, 1.0)
+    report(progress, 1.0, "features done")
+    return Features(out, feature_names(sp.n_pcs), {int(g): b for g, b in zip(groups, bases) if b is not None})
+
+
+def fit_basis(x: np.ndarray, n_pcs: int, seed: int) -> Basis | None:
+    """PCA basis (scikit-learn ``PCA``, seeded) of flattened snippets ``x`` (rows); ``None`` when there
+    are too few rows or columns for one component."""
+    n_comp = min(n_pcs, x.shape[1], len(x))
+    if n_comp < 1 or len(x) <= n_comp:
+        return None
     from sklearn.decomposition import PCA
 
-    pcas: list[PCA | None] = []
     with single_threaded_pools():  # small matrices: one BLAS thread is faster here, and the same everywhere
-        for s, x in enumerate(held):
-            n_comp = min(sp.n_pcs, x.shape[1], len(x))
-            pcas.append(PCA(n_components=n_comp, random_state=sp.seed).fit(x)
-                        if n_comp >= 1 and len(x) > n_comp else None)
-            put_scores(out, order[fit[s]], pcas[s], x)
-            held[s] = None  # the group's subset is projected: free it
-
-    cut(rest, lambda s, ev, flat: put_scores(out, order[ev], pcas[s], flat), share, 1.0)
-    report(progress, 1.0, "features done")
-    return Features(out, feature_names(sp.n_pcs),
-                    {int(g): Basis(p.mean_, p.components_) for g, p in zip(groups, pcas) if p is not None})
+        pca = PCA(n_components=n_comp, random_state=seed).fit(x)
+    return Basis(pca.mean_, pca.components_)
 
 
-def put_scores(out: np.ndarray, rows: np.ndarray, pca: PCA | Basis | None, flat: np.ndarray) -> None:
+def put_scores(out: np.ndarray, rows: np.ndarray, pca: Basis | None, flat: np.ndarray) -> None:
     """Write the PCA scores of flattened snippets into the first columns of ``out`` (none without a fit).
 
     The projection is scikit-learn's ``PCA.transform`` (centre, then project on the components)

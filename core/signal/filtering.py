@@ -21,6 +21,7 @@ import numba
 import numpy as np
 
 from rigside.core.errors import RecordingError
+from rigside.core.io.columns import take_channels
 from rigside.core.io.recording import Recording
 from rigside.core.params import FilterParams
 from rigside.core.signal.butterworth import bandpass_sos
@@ -165,7 +166,7 @@ class BandPass:
         if use_all:
             y = common_median_reference(np.ascontiguousarray(y), rec.groups)
             if channels is not None:
-                y = y[:, channels]
+                y = take_channels(y, channels)
         return np.ascontiguousarray(y)
 
 

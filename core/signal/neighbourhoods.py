@@ -1,10 +1,11 @@
 """Spatial neighbourhoods of probe sites: the sites of the same shank within a radius.
 
 Neighbourhoods overlap (unlike channel groups) and are symmetric: site b is in the neighbourhood
-of site a exactly when a is in b's. They are found with a k-d tree per shank
-(``scipy.spatial.cKDTree.query_ball_point``), so building them costs about
-O(sites log sites + pairs), never a distance matrix of all site pairs; detection then visits each
-site's own list.
+of site a exactly when a is in b's. They are found per shank on a grid of square cells one radius
+wide (the classic cell-list method of short-range neighbour search): a site's neighbours can only lie
+in its own cell and the 8 around it, so building them costs O(sites x sites per 3 x 3 cells), never a
+distance matrix of all site pairs (and no k-d tree library to import at every start); detection then
+visits each site's own list.
 """
 
 from __future__ import annotations
@@ -56,15 +57,19 @@ def neighbourhoods(positions: np.ndarray, shank: np.ndarray, radius_um: float) -
         raise ParamError(f"neighbourhood radius must be above 0 um, got {radius_um!r}")
     positions = np.asarray(positions, dtype=np.float64)
     shank = np.asarray(shank)
-    from scipy.spatial import cKDTree  # imported on use: scipy is not loaded at start-up
     lists: list[np.ndarray] = [np.empty(0, np.int64)] * len(positions)
+    reach = radius_um * (1 + 1e-9)  # a hair above the radius: sites exactly at the radius count despite rounding
     for k in np.unique(shank):
         sites = np.flatnonzero(shank == k)
-        tree = cKDTree(positions[sites])
-        # a hair above the radius so that sites exactly at the radius count despite rounding
-        found = tree.query_ball_point(positions[sites], r=radius_um * (1 + 1e-9))
-        for site, near in zip(sites, found):
-            lists[site] = np.sort(sites[np.asarray(near, dtype=np.int64)])
+        cell = np.floor(positions[sites] / radius_um).astype(np.int64)
+        cells: dict[tuple[int, int], list[int]] = {}
+        for site, (cx, cy) in zip(sites, cell.tolist()):
+            cells.setdefault((cx, cy), []).append(int(site))
+        for site, (cx, cy) in zip(sites, cell.tolist()):
+            around = (cells.get((cx + dx, cy + dy), ()) for dx in (-1, 0, 1) for dy in (-1, 0, 1))
+            near = np.array(sorted(s for cell_sites in around for s in cell_sites), dtype=np.int64)
+            d = np.hypot(*(positions[near] - positions[site]).T)
+            lists[site] = near[d <= reach]
     sizes = np.array([len(m) for m in lists], dtype=np.int64)
     offsets = np.concatenate([[0], np.cumsum(sizes)]).astype(np.int64)
     members = np.concatenate(lists).astype(np.int64) if lists else np.empty(0, np.int64)

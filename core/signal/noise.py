@@ -8,11 +8,12 @@ from __future__ import annotations
 
 from dataclasses import dataclass, field
 
+import numba
 import numpy as np
 
 from rigside.core.io.recording import Recording
 from rigside.core.params import Params
-from rigside.core.progress import CancelFn, ProgressFn, check, report
+from rigside.core.progress import CancelFn, ProgressFn, report, run_bounded
 from rigside.core.signal.filtering import BandPass
 
 NORMAL_MAD = 0.6744897501960817  # Phi^-1(0.75)
@@ -102,21 +103,47 @@ def estimate_noise(recording: Recording, params: Params, progress: ProgressFn = 
     pooled = np.empty((recording.n_channels, len(starts) * w), dtype=np.float32)  # channel-major: fast medians
     per_window = np.empty((len(starts), recording.n_channels))
     clipped = np.zeros(recording.n_channels)
-    for i, s in enumerate(starts):
-        check(cancel)
-        raw = recording.read(int(s), int(s) + w)
-        clipped += _clip_fraction(raw)
+
+    def measure(i: int, s: int) -> tuple[int, np.ndarray, np.ndarray]:
+        stored = recording.read_stored(s, s + w)
         y = pooled[:, i * w:(i + 1) * w]
-        np.abs(bp.read(int(s), int(s) + w).T, out=y)
-        per_window[i] = fast_median(y, axis=1) / NORMAL_MAD
+        _abs_transposed(bp.read(s, s + w), y)
+        return i, _clip_fraction(stored), fast_median(y, axis=1) / NORMAL_MAD
+
+    def collect(found: tuple[int, np.ndarray, np.ndarray]) -> None:
+        nonlocal clipped
+        i, clip, window_sigma = found
+        clipped += clip
+        per_window[i] = window_sigma
         report(progress, (i + 1) / len(starts), "measuring noise")
-    sigma = fast_median(pooled, axis=1) / NORMAL_MAD
+
+    run_bounded(measure, ((i, int(s)) for i, s in enumerate(starts)), params.run.workers, collect, cancel)
+    sigma = np.empty(recording.n_channels)
+    halves = np.array_split(np.arange(recording.n_channels), max(1, params.run.workers))
+
+    def pooled_sigma(rows: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+        return rows, fast_median(pooled[rows[0]:rows[-1] + 1], axis=1) / NORMAL_MAD
+
+    run_bounded(pooled_sigma, ((h,) for h in halves if len(h)), params.run.workers,
+                lambda found: sigma.__setitem__(found[0], found[1]), cancel)
     return NoiseEstimate(sigma_uv=sigma, window_start_s=starts / recording.rate_hz,
                          window_sigma_uv=per_window, bad=flag_bad(sigma, clipped / len(starts)))
 
 
+@numba.njit(nogil=True, cache=True)
+def _abs_transposed(y, out):
+    """``out[c, t] = |y[t, c]|`` in tiles of 64 samples (a transposing copy that stays in cache)."""
+    n, nc = y.shape
+    for t0 in range(0, n, 64):
+        t1 = min(t0 + 64, n)
+        for c in range(nc):
+            for t in range(t0, t1):
+                out[c, t] = abs(y[t, c])
+
+
 def _clip_fraction(raw: np.ndarray) -> np.ndarray:
-    """Fraction of samples sitting at the channel's extreme value (a rail), per channel."""
+    """Fraction of samples sitting at the channel's extreme value (a rail), per channel; the stored
+    values serve as well as microvolts (the scale is linear, distinct values stay distinct)."""
     hi, lo = raw.max(axis=0), raw.min(axis=0)
     at_rail = np.maximum((raw == hi).sum(axis=0), (raw == lo).sum(axis=0)) / len(raw)
     return np.where(hi > lo, at_rail, 0.0)

@@ -111,12 +111,7 @@ def recover_overlaps(recording: Recording, events: EventTable, features: Feature
     Recovered
         The recovered events, their units and features.
     """
-    if features.bases is None:
-        raise RigsideError("the overlap pass needs the PCA basis of each group, got features without one")
-    assignments = np.asarray(assignments)
-    if len(assignments) != len(events) or len(features.values) != len(events):
-        raise RigsideError(f"assignments and features must have one row per event ({len(events)}), got "
-                           f"{len(assignments)} and {len(features.values)}")
+    assignments = _checked(events, features, assignments)
     rate = recording.rate_hz
     before, after = snippet_window(params.snippets, rate)
     dead = int(round(params.detect.dead_time_ms * rate / 1000))
@@ -128,6 +123,7 @@ def recover_overlaps(recording: Recording, events: EventTable, features: Feature
     at = np.searchsorted([b[0] for b in bounds], sample, "right") - 1
     busy = np.unique(np.clip(np.concatenate([at - 1, at, at + 1]), 0, len(bounds) - 1))  # finds may cross an edge
     bp = BandPass(recording, params.filter)
+    read, column = _read_channels(groups, recording.n_channels)
     thr = thresholds_sigma(params, events.sigma_uv)
     sigma = np.asarray(events.sigma_uv, dtype=np.float64)
     found: list[list] = [[] for _ in groups]
@@ -136,18 +132,19 @@ def recover_overlaps(recording: Recording, events: EventTable, features: Feature
     def work(i: int, _: int) -> list:
         start, stop = bounds[i]
         lo, hi = max(0, start - margin), min(recording.n_samples, stop + margin)
-        y = bp.read(lo, hi)
+        y = bp.read(lo, hi, read)
         a, b = np.searchsorted(sample, [lo, hi])
         pos, ev = sample[a:b] - lo, rows[a:b]
         inner = np.clip(pos, 1, len(y) - 2)
-        ch = events.channel[ev]
+        ch = column[events.channel[ev]]
         shift = peak_offset(y[inner - 1, ch], y[inner, ch], y[inner + 1, ch])
         out = []
         for gi, g in enumerate(groups):
             m = group[a:b] == gi
             if m.any():
                 r, col, env, near, win, snip = group_finds(
-                    y, lo, start, stop, g.channels, sigma[g.channels], thr[g.channels], pos[m], template[ev[m]],
+                    y, lo, start, stop, column[g.channels], sigma[g.channels], thr[g.channels], pos[m],
+                    template[ev[m]],
                     shift[m], events.amplitude_sigma[ev[m]], g.scaled.astype(np.float32),
                     g.slopes.astype(np.float32), before, after, dead, POLARITY_CODES[params.detect.polarity],
                     params.overlaps.min_share)
@@ -167,6 +164,24 @@ def recover_overlaps(recording: Recording, events: EventTable, features: Feature
     return _assemble(parts, n_features, dead, assignments)
 
 
+def _checked(events: EventTable, features: Features, assignments: np.ndarray) -> np.ndarray:
+    if features.bases is None:
+        raise RigsideError("the overlap pass needs the PCA basis of each group, got features without one")
+    assignments = np.asarray(assignments)
+    if len(assignments) != len(events) or len(features.values) != len(events):
+        raise RigsideError(f"assignments and features must have one row per event ({len(events)}), got "
+                           f"{len(assignments)} and {len(features.values)}")
+    return assignments
+
+
+def _read_channels(groups: list[_Group], n_channels: int) -> tuple[np.ndarray, np.ndarray]:
+    """The channels filtered (those of the groups taking part) and each channel's column among them."""
+    read = np.unique(np.concatenate([g.channels for g in groups])) if groups else np.zeros(0, np.int64)
+    column = np.full(n_channels, -1, np.int64)
+    column[read] = np.arange(len(read))
+    return read, column
+
+
 def _event_slots(events: EventTable, assignments: np.ndarray,
                  groups: list[_Group]) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Rows of the events of groups with units (time order), the index of their group in ``groups``,
@@ -183,17 +198,18 @@ def _event_slots(events: EventTable, assignments: np.ndarray,
 
 def _groups(recording: Recording, events: EventTable, features: Features, assignments: np.ndarray,
             length: int) -> list[_Group]:
-    """Templates of every group with units (from the PCA basis) and the samples of each unit."""
+    """Templates of every group with two units or more (from the PCA basis; a pair fit needs two) and
+    the samples of each unit."""
     out = []
     sigma = np.asarray(events.sigma_uv, dtype=np.float64)
     for g in np.unique(events.group):
         g = int(g)
         pca = features.bases.get(g)
         assigned = (events.group == g) & (assignments >= 0)
-        if pca is None or not assigned.any():
+        units, template_of = np.unique(assignments[assigned], return_inverse=True)
+        if pca is None or len(units) < 2:
             continue
         channels = usable_channels(recording.groups[g], events.excluded)
-        units, template_of = np.unique(assignments[assigned], return_inverse=True)
         k = pca.n_components_
         scores = np.zeros((len(units), k))
         np.add.at(scores, template_of, features.values[assigned, :k].astype(np.float64))

@@ -6,6 +6,10 @@ recordings with positions (probes) over overlapping neighbourhoods (:mod:`rigsid
 
 from __future__ import annotations
 
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import TypeVar
+
 import numpy as np
 
 from rigside.core.errors import ParamError, RigsideError
@@ -21,6 +25,8 @@ from rigside.core.signal.neighbourhoods import neighbourhoods
 from rigside.core.signal.noise import NoiseEstimate, estimate_noise
 from rigside.core.signal.overview import OverviewBuilder
 from rigside.core.signal.probe_detection import POSITION_WINDOW_MS, detect_probe_block
+
+R = TypeVar("R")
 
 NOISE_SHARE = 0.1
 """Fraction of a detection's progress bar given to the noise estimate; :func:`detect` reports
@@ -96,6 +102,96 @@ def lookup_floor(params: Params, sigma_uv: np.ndarray) -> float:
     return lowest if floor is None else min(float(floor), lowest)
 
 
+@dataclass
+class BlockDetector:
+    """What detection of one block needs, fixed for a whole pass (built by :func:`block_detector`)."""
+
+    recording: Recording
+    bandpass: BandPass
+    sigma: np.ndarray
+    excluded: dict[int, str]
+    floor: float
+    margin: int
+    params: Params
+
+    def __post_init__(self) -> None:
+        d, rate = self.params.detect, self.recording.rate_hz
+        self.live_sigma = self.sigma.copy()
+        self.live_sigma[list(self.excluded)] = 0.0  # a zero sigma keeps a channel out of detection
+        self.dead = int(round(d.dead_time_ms * rate / 1000))
+        self.art_w = int(round(d.artefact_window_ms * rate / 1000))
+        self.half = int(round(POSITION_WINDOW_MS * rate / 1000))
+        rec = self.recording
+        self.nbh = neighbourhoods(rec.positions, rec.shank, self.params.probe.radius_um) \
+            if rec.positions is not None else None
+
+    def events(self, y: np.ndarray, lo: int, start: int, stop: int) -> EventColumns:
+        """Events peaking in ``[start, stop)`` of a filtered block ``y`` holding samples from ``lo``
+        (with at least :attr:`margin` samples of context each side, except at the file's ends)."""
+        rec, d = self.recording, self.params.detect
+        if self.nbh is not None:
+            return detect_probe_block(y, lo, start - lo, stop - lo, self.live_sigma, self.nbh, rec.positions,
+                                      rec.channel_group, d.polarity, self.floor, self.dead, d.artefact_sigma,
+                                      d.artefact_channel_fraction, self.art_w, self.half)
+        return detect_block(y, lo, start - lo, stop - lo, self.live_sigma, rec.groups, d.polarity, self.floor,
+                            self.dead, d.artefact_sigma, d.artefact_channel_fraction, self.art_w)
+
+    def chunks(self) -> list[tuple[int, int]]:
+        """The ``[start, stop)`` chunks of the pass (``params.run.chunk_s``)."""
+        chunk = max(int(self.params.run.chunk_s * self.recording.rate_hz), 4 * self.margin)
+        return chunk_bounds(self.recording.n_samples, chunk)
+
+    def assemble(self, parts: list[EventColumns]) -> tuple[EventTable, np.ndarray]:
+        """The event table of the chunks' events (given in file order), sorted by time, and the
+        order that sorts their concatenation."""
+        rec = self.recording
+        names = (*COLUMNS, *POSITION_COLUMNS) if rec.positions is not None else tuple(COLUMNS)
+        cols = {name: np.concatenate([getattr(p, name) for p in parts]) if parts else np.empty(0)
+                for name in names}
+        order = np.lexsort((cols["group"], cols["sample"]))
+        cols = {k: v[order] for k, v in cols.items()}
+        table = EventTable(**cols, rate_hz=rec.rate_hz, n_samples=rec.n_samples, sigma_uv=self.sigma,
+                           floor_sigma=self.floor, polarity=self.params.detect.polarity, excluded=self.excluded)
+        return table, order
+
+
+def block_detector(recording: Recording, params: Params, progress: ProgressFn = None, cancel: CancelFn = None,
+                   noise: NoiseEstimate | None = None) -> BlockDetector:
+    """Validate the parameters, measure the noise (unless given) and fix what detection of a block needs.
+
+    Progress runs to :data:`NOISE_SHARE` (the noise estimate).
+    """
+    params.validate(recording.rate_hz)
+    params.check_memory(recording.rate_hz, recording.n_channels)
+    bp = BandPass(recording, params.filter)
+    if noise is None:
+        noise = estimate_noise(recording, params, cancel=cancel, bandpass=bp,
+                               progress=lambda f, m: report(progress, f * NOISE_SHARE, m))
+    sigma = np.asarray(noise.sigma_uv, dtype=np.float64)
+    d, rate = params.detect, recording.rate_hz
+    ctx = max(round(d.dead_time_ms * rate / 1000), round(d.artefact_window_ms * rate / 1000),
+              round(POSITION_WINDOW_MS * rate / 1000) if recording.positions is not None else 0) + 2
+    return BlockDetector(recording, bp, sigma, noise.excluded, lookup_floor(params, sigma), int(ctx), params)
+
+
+def stream_chunks(detector: BlockDetector, work: Callable[[int], R], items: list[int], on_result: Callable[[R], None],
+                  progress: ProgressFn, cancel: CancelFn, message: str) -> None:
+    """Run ``work(i)`` for the chunk indices ``items`` (two at a time per worker), hashing the whole file
+    alongside (``recording.content_hash``); ``on_result`` gets each result in item order."""
+    hasher = BackgroundHasher(detector.recording.path)
+    done = [0]
+
+    def collect(result: R) -> None:
+        on_result(result)
+        done[0] += 1
+        hasher.advance(done[0] / len(items))
+        report(progress, NOISE_SHARE + (1 - NOISE_SHARE) * done[0] / len(items), message)
+
+    with hasher:
+        run_bounded(work, [(i,) for i in items], detector.params.run.workers, collect, cancel)
+        detector.recording.content_hash = hasher.finish()
+
+
 def detect(recording: Recording, params: Params, progress: ProgressFn = None, cancel: CancelFn = None,
            noise: NoiseEstimate | None = None, overview: OverviewBuilder | None = None) -> EventTable:
     """Measure noise (unless given) and detect events over the whole recording.
@@ -123,60 +219,17 @@ def detect(recording: Recording, params: Params, progress: ProgressFn = None, ca
         The pass also hashes the whole file (``recording.content_hash``) and raises
         :class:`rigside.core.errors.RecordingError` if the file changes size meanwhile.
     """
-    params.validate(recording.rate_hz)
-    params.check_memory(recording.rate_hz, recording.n_channels)
-    bp = BandPass(recording, params.filter)
-    if noise is None:
-        noise = estimate_noise(recording, params, cancel=cancel, bandpass=bp,
-                               progress=lambda f, m: report(progress, f * NOISE_SHARE, m))
-    sigma = np.asarray(noise.sigma_uv, dtype=np.float64)
-    excluded = noise.excluded
-    live_sigma = sigma.copy()
-    live_sigma[list(excluded)] = 0.0  # a zero sigma keeps a channel out of detection
-    floor = lookup_floor(params, sigma)
-    d = params.detect
-    rate = recording.rate_hz
-    dead = int(round(d.dead_time_ms * rate / 1000))
-    art_w = int(round(d.artefact_window_ms * rate / 1000))
-    half = int(round(POSITION_WINDOW_MS * rate / 1000))
-    probe = recording.positions is not None
-    nbh = neighbourhoods(recording.positions, recording.shank, params.probe.radius_um) if probe else None
-    ctx = max(dead, art_w, half if probe else 0) + 2
-    chunk = max(int(params.run.chunk_s * rate), 4 * ctx)
-    bounds = chunk_bounds(recording.n_samples, chunk)
+    det = block_detector(recording, params, progress, cancel, noise)
+    bounds = det.chunks()
 
-    def work(start: int, stop: int) -> EventColumns:
-        lo, hi = max(0, start - ctx), min(recording.n_samples, stop + ctx)
-        y = bp.read(lo, hi)
+    def work(i: int) -> EventColumns:
+        start, stop = bounds[i]
+        lo, hi = max(0, start - det.margin), min(recording.n_samples, stop + det.margin)
+        y = det.bandpass.read(lo, hi)
         if overview is not None:
             overview.add(y, lo, start, stop)
-        if probe:
-            return detect_probe_block(y, lo, start - lo, stop - lo, live_sigma, nbh, recording.positions,
-                                      recording.channel_group, d.polarity, floor, dead, d.artefact_sigma,
-                                      d.artefact_channel_fraction, art_w, half)
-        return detect_block(y, lo, start - lo, stop - lo, live_sigma, recording.groups, d.polarity, floor,
-                            dead, d.artefact_sigma, d.artefact_channel_fraction, art_w)
+        return det.events(y, lo, start, stop)
 
     parts: list[EventColumns] = []
-    hasher = BackgroundHasher(recording.path)
-
-    def collect(part: EventColumns) -> None:
-        parts.append(part)
-        hasher.advance(len(parts) / len(bounds))
-        report(progress, NOISE_SHARE + (1 - NOISE_SHARE) * len(parts) / len(bounds), "detecting")
-
-    with hasher:
-        run_bounded(work, bounds, params.run.workers, collect, cancel)
-        recording.content_hash = hasher.finish()
-    return _assemble(parts, recording, sigma, floor, d.polarity, excluded)
-
-
-def _assemble(parts: list[EventColumns], recording: Recording, sigma: np.ndarray, floor: float,
-              polarity: str, excluded: dict[int, str]) -> EventTable:
-    names = (*COLUMNS, *POSITION_COLUMNS) if recording.positions is not None else tuple(COLUMNS)
-    cols = {name: np.concatenate([getattr(p, name) for p in parts]) if parts else np.empty(0)
-            for name in names}
-    order = np.lexsort((cols["group"], cols["sample"]))
-    cols = {k: v[order] for k, v in cols.items()}
-    return EventTable(**cols, rate_hz=recording.rate_hz, n_samples=recording.n_samples, sigma_uv=sigma,
-                      floor_sigma=floor, polarity=polarity, excluded=excluded)
+    stream_chunks(det, work, list(range(len(bounds))), parts.append, progress, cancel, "detecting")
+    return det.assemble(parts)[0]

@@ -30,16 +30,26 @@ POSITION_WINDOW_MS = 0.2
 
 
 @numba.njit(nogil=True, cache=True, fastmath=True)
-def _artefact_counts(y, inv_sigma, art_level, art_count):
-    """Running count of artefact samples (enough live sites beyond the level, either sign)."""
+def _row_counts(y, inv_sigma, polarity, floor, art_level, art_count):
+    """One vectorised pass over the block: per sample, the number of sites at or above the floor
+    (rows without any are never searched), and the running count of artefact samples (enough
+    live sites beyond the artefact level, either sign)."""
     n, nc = y.shape
+    above = np.empty(n, dtype=np.int32)
     art_cum = np.zeros(n + 1, dtype=np.int64)
+    sign = np.float32(-1.0) if polarity == 0 else np.float32(1.0)
     for t in range(n):
+        row = y[t]
         cnt = 0
+        k = 0
         for c in range(nc):
-            cnt += 1 if abs(y[t, c] * inv_sigma[c]) >= art_level and inv_sigma[c] > 0 else 0
+            v = row[c] * inv_sigma[c]
+            a = abs(v)
+            cnt += 1 if a >= art_level and inv_sigma[c] > 0 else 0
+            k += 1 if (a if polarity == 2 else v * sign) >= floor else 0
+        above[t] = k
         art_cum[t + 1] = art_cum[t] + (1 if cnt >= art_count else 0)
-    return art_cum
+    return above, art_cum
 
 
 @numba.njit(nogil=True, cache=True, inline="always")
@@ -54,20 +64,24 @@ def _z(y, inv_sigma, polarity, t, c):
 @numba.njit(nogil=True, cache=True)
 def _is_peak(y, inv_sigma, polarity, t, c, e, w, nb_off, nb_mem):
     """Whether ``z[t, c] = e`` beats every sample of its neighbourhood within +/- ``w`` (ties: earlier
-    sample, then lower channel). The own channel is checked first: it rejects most candidates."""
+    sample, then lower channel). The own channel is checked first, then the neighbours, each from
+    the nearest samples outward: a larger sample, if there is one, is almost always close by."""
     n = y.shape[0]
-    j0, j1 = max(0, t - w), min(n, t + w + 1)
-    for j in range(j0, j1):
-        v = _z(y, inv_sigma, polarity, j, c)
-        if v > e or (v == e and j < t):
+    for k in range(1, w + 1):
+        if t - k >= 0 and _z(y, inv_sigma, polarity, t - k, c) >= e:
             return False
-    for k in range(nb_off[c], nb_off[c + 1]):
-        d = nb_mem[k]
-        if d == c:
-            continue
-        for j in range(j0, j1):
-            v = _z(y, inv_sigma, polarity, j, d)
-            if v > e or (v == e and (j < t or (j == t and d < c))):
+        if t + k < n and _z(y, inv_sigma, polarity, t + k, c) > e:
+            return False
+    for k in range(0, w + 1):
+        for i in range(nb_off[c], nb_off[c + 1]):
+            d = nb_mem[i]
+            if d == c:
+                continue
+            if t - k >= 0:
+                v = _z(y, inv_sigma, polarity, t - k, d)
+                if v > e or (v == e and (k > 0 or d < c)):
+                    return False
+            if k > 0 and t + k < n and _z(y, inv_sigma, polarity, t + k, d) > e:
                 return False
     return True
 
@@ -101,7 +115,7 @@ def _centre(y, inv_sigma, polarity, t, c, half, nb_off, nb_mem, xs, ys):
 def _probe_block(y, inv_sigma, polarity, nb_off, nb_mem, xs, ys, floor, dead, lo, hi,
                  art_level, art_count, art_window, half):
     n, nc = y.shape
-    art_cum = _artefact_counts(y, inv_sigma, art_level, art_count)
+    above, art_cum = _row_counts(y, inv_sigma, polarity, floor, art_level, art_count)
     w = max(dead, 1)
     cap = 1024
     out_t = np.empty(cap, dtype=np.int64)
@@ -113,6 +127,8 @@ def _probe_block(y, inv_sigma, polarity, nb_off, nb_mem, xs, ys, floor, dead, lo
     out_y = np.empty(cap, dtype=np.float32)
     m = 0
     for t in range(lo, hi):
+        if above[t] == 0:
+            continue
         for c in range(nc):
             e = _z(y, inv_sigma, polarity, t, c)
             if e < floor or not _is_peak(y, inv_sigma, polarity, t, c, e, w, nb_off, nb_mem):

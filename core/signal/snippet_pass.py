@@ -84,27 +84,15 @@ def snippet_pass(bandpass: BandPass, samples: np.ndarray, slot: np.ndarray, own:
     cut_at = np.searchsorted(samples, [b[0] for b in bounds] + [rec.n_samples])
     work_list = [(i, i + 1) for i in range(len(bounds)) if cut_at[i + 1] > cut_at[i]]
 
-    width = np.array([len(c) for c in channels], dtype=np.int64)
-    table = np.zeros((len(channels), int(width.max()) if len(width) else 0), dtype=np.int64)
-    for k, ch in enumerate(channels):
-        table[k, :len(ch)] = ch
+    cutter = BlockCutter(channels, offsets, before)
 
     def work(i: int, _: int) -> None:
         a, b = int(cut_at[i]), int(cut_at[i + 1])
         start, stop = bounds[i]
         lo, hi = max(0, start - before - 1), min(rec.n_samples, stop + after + 1)
         block = bandpass.read(lo, hi)
-        order = a + np.lexsort((slot[a:b], width[slot[a:b]]))
-        by_slot = slot[order]
-        edges = np.r_[0, np.flatnonzero(np.diff(by_slot)) + 1, len(order)]
-        cuts = np.r_[0, np.flatnonzero(np.diff(width[by_slot])) + 1, len(order)]
-        for c0, c1 in zip(cuts[:-1], cuts[1:]):
-            pos = order[c0:c1]
-            chans = table[by_slot[c0:c1], :width[by_slot[c0]]]
-            aligned = align_subsample(cut_windows(block, lo, samples[pos], offsets, chans), own[pos], before)
-            runs = [(int(by_slot[e0]), int(e0 - c0), int(e1 - c0))
-                    for e0, e1 in zip(edges[:-1], edges[1:]) if c0 <= e0 < c1]
-            consume(pos, aligned, runs)
+        for pos, aligned, runs in cutter.cut(block, lo, samples[a:b], slot[a:b], own[a:b]):
+            consume(a + pos, aligned, runs)
 
     done = [0]
 
@@ -113,3 +101,44 @@ def snippet_pass(bandpass: BandPass, samples: np.ndarray, slot: np.ndarray, own:
         report(progress, done[0] / len(work_list), "cutting snippets")
 
     run_bounded(work, work_list, params.run.workers, collect, cancel)
+
+
+class BlockCutter:
+    """Cuts and aligns the snippets of events on their slots' channels from one filtered block.
+
+    Parameters
+    ----------
+    channels
+        Channels cut for each slot, in the order they appear in the snippet.
+    offsets
+        Window offsets around the peak, with one extra sample each side for the alignment.
+    before
+        Samples before the peak in the unpadded window.
+    """
+
+    def __init__(self, channels: list[np.ndarray], offsets: np.ndarray, before: int) -> None:
+        self.width = np.array([len(c) for c in channels], dtype=np.int64)
+        self.table = np.zeros((len(channels), int(self.width.max()) if len(self.width) else 0), dtype=np.int64)
+        for k, ch in enumerate(channels):
+            self.table[k, :len(ch)] = ch
+        self.offsets, self.before = offsets, before
+
+    def cut(self, block: np.ndarray, lo: int, samples: np.ndarray, slot: np.ndarray,
+            own: np.ndarray) -> list[tuple[np.ndarray, np.ndarray, list[tuple[int, int, int]]]]:
+        """``(positions, aligned, runs)`` for each channel count among the events (see :data:`Consumer`;
+        ``positions`` index the given events)."""
+        width = self.width
+        order = np.lexsort((slot, width[slot]))
+        by_slot = slot[order]
+        edges = np.r_[0, np.flatnonzero(np.diff(by_slot)) + 1, len(order)]
+        cuts = np.r_[0, np.flatnonzero(np.diff(width[by_slot])) + 1, len(order)]
+        out = []
+        for c0, c1 in zip(cuts[:-1], cuts[1:]):
+            pos = order[c0:c1]
+            chans = self.table[by_slot[c0:c1], :width[by_slot[c0]]]
+            aligned = align_subsample(cut_windows(block, lo, samples[pos], self.offsets, chans), own[pos],
+                                      self.before)
+            runs = [(int(by_slot[e0]), int(e0 - c0), int(e1 - c0))
+                    for e0, e1 in zip(edges[:-1], edges[1:]) if c0 <= e0 < c1]
+            out.append((pos, aligned, runs))
+        return out

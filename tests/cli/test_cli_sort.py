@@ -55,26 +55,38 @@ def test_metrics_table_has_one_row_per_unit(sorted_demo):
 def test_resume_reuses_the_checkpoint(sorted_demo, monkeypatch):
     d = sorted_demo
     import rigside.core.runs.sort as sr
-    calls = []
-    real = sr.compute_features
-
-    def stop_after_features(*a, **k):
-        calls.append(1)
-        out = real(*a, **k)
-        return out
 
     def broken_first_pass(*a, **k):
         raise KeyboardInterrupt
     monkeypatch.setattr(sr, "first_pass", broken_first_pass)
-    monkeypatch.setattr(sr, "compute_features", stop_after_features)
     assert main(["sort", str(d / "r.bin"), "--session", str(d / "again.h5"), "--quiet"]) == 130
     assert checkpoint_path(d / "again.h5").exists() and not (d / "again.h5").exists()
     monkeypatch.undo()
-    monkeypatch.setattr(sr, "detect", lambda *a, **k: pytest.fail("detection must not run again"))
+    monkeypatch.setattr(sr, "detect_with_features", lambda *a, **k: pytest.fail("detection must not run again"))
     monkeypatch.setattr(sr, "compute_features", lambda *a, **k: pytest.fail("features must not run again"))
     assert main(["sort", str(d / "r.bin"), "--session", str(d / "again.h5"), "--resume", "--quiet"]) == 0
     a, b = load_session(d / "again.h5"), load_session(d / "s.h5")
     np.testing.assert_array_equal(a.sorting.assignments, b.sorting.assignments)
+
+
+def test_resume_of_an_events_only_checkpoint_computes_the_features(sorted_demo, monkeypatch):
+    """A checkpoint written before detection and features shared one pass holds events only."""
+    d = sorted_demo
+    import rigside.core.runs.sort as sr
+    real = sr._write_checkpoint
+    monkeypatch.setattr(sr, "_write_checkpoint", lambda path, key, ev, feats, content: real(path, key, ev, None,
+                                                                                           content))
+    monkeypatch.setattr(sr, "first_pass", lambda *a, **k: (_ for _ in ()).throw(KeyboardInterrupt()))
+    assert main(["sort", str(d / "r.bin"), "--session", str(d / "old.h5"), "--quiet"]) == 130
+    monkeypatch.undo()
+    calls = []
+    real_features = sr.compute_features
+    monkeypatch.setattr(sr, "detect_with_features", lambda *a, **k: pytest.fail("detection must not run again"))
+    monkeypatch.setattr(sr, "compute_features", lambda *a, **k: calls.append(1) or real_features(*a, **k))
+    assert main(["sort", str(d / "r.bin"), "--session", str(d / "old.h5"), "--resume", "--quiet"]) == 0
+    assert calls == [1]
+    a, b = load_session(d / "old.h5"), load_session(d / "s.h5")
+    np.testing.assert_array_equal(a.events.sample, b.events.sample)
 
 
 def test_resume_ignores_a_checkpoint_of_other_parameters(sorted_demo, monkeypatch):

@@ -72,8 +72,8 @@ def test_resume_does_not_reuse_a_checkpoint_of_an_edited_file(rec_path, tmp_path
     sort_recording(rec, Params(), ckpt)
     rec.close()
     calls = []
-    real_detect = sort_run.detect
-    monkeypatch.setattr(sort_run, "detect", lambda *a, **k: calls.append(1) or real_detect(*a, **k))
+    real_detect = sort_run.detect_with_features
+    monkeypatch.setattr(sort_run, "detect_with_features", lambda *a, **k: calls.append(1) or real_detect(*a, **k))
     rec = open_recording(p)
     sort_recording(rec, Params(), ckpt, resume=True)
     assert calls == []                                    # same file: the checkpoint is reused

@@ -204,3 +204,24 @@ def test_channel_cache_is_never_seen_half_built_by_another_thread():
             for c in range(channels)]
     assert errors == [] and got.tolist() == want
     assert all(s == want[-1] for s in seen)
+
+
+def test_counts_for_all_channels_match_a_count_channel_by_channel():
+    # brute-force reference (common practice, no source): per channel, the non-artefact
+    # detected events whose float32 amplitude is at or above the channel's float32 threshold;
+    # thresholds sit exactly on stored amplitudes (ties count), below all, above all and infinite
+    rng = np.random.default_rng(3)
+    n, channels = 20000, 384
+    amp = np.round(3.0 + rng.exponential(1.5, n), 2).astype(np.float32)
+    table = EventTable(np.sort(rng.integers(0, 10**7, n)), rng.integers(0, channels - 1, n), np.zeros(n, np.int32),
+                       -amp, amp, rng.random(n) < 0.05, 30000.0, 10**7, np.full(channels, 10.0), 3.0,
+                       recovered=rng.random(n) < 0.05)
+    thr = np.round(rng.uniform(2.0, 9.0, channels), 2)
+    thr[:4] = [float(amp[table.channel == c][0]) for c in range(4)]
+    thr[4], thr[5], thr[6] = -1.0, 1e9, np.inf
+    got = table.counts(threshold_sigma=thr)
+    keep = ~table.artefact & ~table.recovered
+    want = [int(np.sum(keep & (table.channel == c) & (table.amplitude_sigma >= np.float32(thr[c]))))
+            for c in range(channels)]
+    assert got.tolist() == want
+    assert got[channels - 1] == 0 and got[4] == int(np.sum(keep & (table.channel == 4)))

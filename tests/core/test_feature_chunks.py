@@ -25,8 +25,8 @@ FS = 30000.0
 GROUPS = [[3, 0, 5], [4, 1, 2]]  # channel groups not in ascending order
 
 
-@pytest.fixture(scope="module")
-def rec_events(tmp_path_factory):
+def edge_recording(folder):
+    """1.5 s of 6 channels in two unordered groups, spikes near both file ends and everywhere."""
     rng = np.random.default_rng(5)
     x = gaussian(int(1.5 * FS), 6, sigma=6.0, seed=4)
     tt = np.arange(-30, 45) / FS * 1000
@@ -37,17 +37,23 @@ def rec_events(tmp_path_factory):
         g = GROUPS[int(rng.integers(0, 2))]
         lo, hi = max(0, t0 - 30), min(len(x), t0 + 45)
         x[lo:hi, g[int(rng.integers(0, 3))]] += (140 * wave[lo - (t0 - 30):hi - (t0 - 30)]).astype(np.float32)
-    rec = write_raw(tmp_path_factory.mktemp("chunks") / "c.bin", x, groups=GROUPS)
+    return write_raw(folder / "c.bin", x, groups=GROUPS)
+
+
+@pytest.fixture(scope="module")
+def rec_events(tmp_path_factory):
+    rec = edge_recording(tmp_path_factory.mktemp("chunks"))
     return rec, detect(rec, Params())
 
 
 def reference(rec, ev, p):
-    """Per-event snippets from the whole filtered file, the fit subset of each group, and features."""
+    """Features from the whole filtered file, the fit subset of each group, and each group's
+    ``(rows, flattened snippets)``."""
     y = BandPass(rec, p.filter).read(0, rec.n_samples)
     before, after = snippet_window(p.snippets, FS)
     rng = np.random.default_rng(p.snippets.seed)
     out = np.zeros((len(ev), p.snippets.n_pcs + 3), np.float32)
-    fit_inputs = []
+    fit_inputs, flats = [], {}
     for g in np.unique(ev.group):
         rows = np.flatnonzero(ev.group == g)
         rows = rows[np.argsort(ev.sample[rows], kind="stable")]
@@ -62,11 +68,12 @@ def reference(rec, ev, p):
         fit = np.sort(rng.choice(len(rows), size=min(len(rows), p.snippets.pca_fit_events), replace=False))
         flat = snips.reshape(len(rows), -1)
         fit_inputs.append(flat[fit])
+        flats[int(g)] = rows, flat
         with single_threaded_pools():
             pca = PCA(n_components=p.snippets.n_pcs, random_state=p.snippets.seed).fit(flat[fit])
         out[rows, :p.snippets.n_pcs] = pca.transform(flat)
         out[rows, p.snippets.n_pcs:] = shape_features(snips, own, before, FS)
-    return out, fit_inputs
+    return out, fit_inputs, flats
 
 
 def captured_fit_inputs(monkeypatch):
@@ -88,7 +95,7 @@ def test_one_chunk_equals_per_event_features_exactly(rec_events, monkeypatch, fi
     p.run.chunk_s = 10.0  # one chunk: the same filtered samples as the whole-file read
     seen = captured_fit_inputs(monkeypatch)
     f = compute_features(rec, ev, p)
-    ref, ref_fit = reference(rec, ev, p)
+    ref, ref_fit, _ = reference(rec, ev, p)
     assert len(seen) == 2 and len(ev) > 250
     for got, want in zip(seen, ref_fit):
         np.testing.assert_array_equal(got, want)  # same PCA input, bit for bit
@@ -105,7 +112,7 @@ def test_many_chunks_equal_per_event_features(rec_events, monkeypatch):
     p.run.workers = 2
     seen = captured_fit_inputs(monkeypatch)
     f = compute_features(rec, ev, p)
-    ref, ref_fit = reference(rec, ev, p)
+    ref, ref_fit, _ = reference(rec, ev, p)
     # chunks are filtered from their own margins: float32 filtering differs from the one
     # whole-file read by ~2e-5 of the signal SD (core.filtering), nothing more
     for got, want in zip(seen, ref_fit):

@@ -12,13 +12,13 @@ from rigside.core.synthetic.probe_synth import probe_layout
 
 
 def brute_force(positions, shank, radius):
-    """Every pair's distance (numpy), the O(sites^2) reference the k-d tree must agree with."""
+    """Every pair's distance (numpy), the O(sites^2) reference the cell grid must agree with."""
     d = np.hypot(*(positions[:, None, :] - positions[None, :, :]).transpose(2, 0, 1))
     return [np.flatnonzero((d[c] <= radius) & (shank == shank[c])) for c in range(len(positions))]
 
 
 @pytest.mark.parametrize("radius", [5.0, 20.0, 50.0, 75.0, 1000.0])
-def test_tree_neighbourhoods_equal_all_pair_distances(radius):
+def test_grid_neighbourhoods_equal_all_pair_distances(radius):
     # reference: direct distances in numpy (common practice, no source)
     rng = np.random.default_rng(1)
     positions = rng.uniform(0, 300, (120, 2)).round(1)

@@ -5,6 +5,7 @@ import numpy as np
 import pytest
 
 from rigside.core.errors import RecordingError
+from rigside.core.io.columns import take_channels
 from rigside.core.io.recording import Layout, RawRecording, metadata_path, open_recording, read_metadata, write_metadata
 
 from .helpers import write_raw
@@ -164,3 +165,14 @@ def test_truncated_and_hostile_hdf5(tmp_path):
         f.create_dataset("x", data=data).attrs["rate_hz"] = float("nan")
     with pytest.raises(RecordingError, match="sampling rate"):
         open_recording(tmp_path / "rate.h5")
+
+
+@pytest.mark.parametrize("channels", [[3, 0, 5], [1], [5, 5, 0], [-1, 2], []])
+def test_channel_selection_equals_numpy_fancy_indexing(channels):
+    # reference: numpy's own fancy indexing of columns
+    block = np.arange(7 * 6, dtype=np.int16).reshape(7, 6)
+    got = take_channels(block, np.array(channels, dtype=np.int64))
+    np.testing.assert_array_equal(got, block[:, channels])
+    assert got.flags.c_contiguous and got.dtype == block.dtype
+    with pytest.raises(IndexError, match="within the block's 6 channels"):
+        take_channels(block, np.array([6]))

@@ -51,18 +51,19 @@ class EventMarks:
             self.clear()
             return
         i0, i1 = np.searchsorted(ev.sample, [a, z])
-        ch = ev.channel[i0:i1]
+        rows = ev.rows_on(np.flatnonzero(lane >= 0), a, z)  # the shown channels only (a probe has hundreds)
+        ch = ev.channel[rows]
         lanes = lane[ch]
         thr = bench.thresholds_sigma.astype(np.float32)
-        passing = (lanes >= 0) & (ev.amplitude_sigma[i0:i1] >= thr[ch])
-        art = ev.artefact[i0:i1]
+        passing = ev.amplitude_sigma[rows] >= thr[ch]
+        art = ev.artefact[rows]
         self.dense = int(passing.sum()) > MARKER_LIMIT
         self.rug.setVisible(self.dense)
         if self.dense:
             self.events.setData([], [])
             self.artefacts.setData([], [])
             self.chosen.setData([], [])
-            self._draw_rug(ev.sample[i0:i1], lanes, passing & ~art, passing & art, offsets, spacing,
+            self._draw_rug(ev.sample[rows], lanes, passing & ~art, passing & art, offsets, spacing,
                            a, z, width, ev.rate_hz)
             return
         for item, keep in ((self.events, passing & ~art), (self.artefacts, passing & art)):
@@ -71,7 +72,7 @@ class EventMarks:
             y = np.empty(2 * len(idx))
             y[0::2] = top
             y[1::2] = top - MARK_LENGTH * spacing
-            item.setData(np.repeat(ev.sample[i0 + idx] / ev.rate_hz, 2), y, connect="pairs")
+            item.setData(np.repeat(ev.sample[rows[idx]] / ev.rate_hz, 2), y, connect="pairs")
         self._draw_chosen(ev, lane, offsets, spacing, i0, i1)
 
     def _draw_chosen(self, ev, lane, offsets, spacing, i0: int, i1: int) -> None:

@@ -30,6 +30,14 @@ COLUMN_TIPS = ("channel", "channel group", "robust noise sigma of the filtered s
                "Gaussian noise assumed)", "bad-channel flag (dead, saturated, noisy)")
 
 
+_DISPLAY = int(Qt.ItemDataRole.DisplayRole)
+_ALIGN = int(Qt.ItemDataRole.TextAlignmentRole)
+_FONT = int(Qt.ItemDataRole.FontRole)
+_BACKGROUND = int(Qt.ItemDataRole.BackgroundRole)
+_ROLES_USED = frozenset((_DISPLAY, _ALIGN, _FONT, _BACKGROUND))
+_RIGHT = int(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
+
+
 class ChannelTable(QAbstractTableModel):
     """One row per channel; numbers refreshed in place on every threshold change."""
 
@@ -38,6 +46,18 @@ class ChannelTable(QAbstractTableModel):
         self.bench = bench
         self.counts = np.zeros(0, dtype=np.int64)
         self.noise_rate = np.zeros(0)
+        self._bold = QFont()
+        self._bold.setBold(True)
+        self._shown = QColor(232, 242, 250)
+        self._shown_from: np.ndarray | None = None
+        self._shown_channels: frozenset[int] = frozenset()
+
+    def _shown_set(self) -> frozenset[int]:
+        """The shown channels as a set, remade whenever the workbench holds a new array of them."""
+        shown = self.bench.shown_channels
+        if shown is not self._shown_from:
+            self._shown_from, self._shown_channels = shown, frozenset(np.asarray(shown).tolist())
+        return self._shown_channels
 
     def rowCount(self, parent=QModelIndex()) -> int:
         rec = self.bench.recording
@@ -53,19 +73,19 @@ class ChannelTable(QAbstractTableModel):
             return COLUMN_TIPS[section]
         return None
 
-    def data(self, index, role=Qt.ItemDataRole.DisplayRole):
+    def data(self, index, role=_DISPLAY):
+        # called for every visible cell and role on each repaint: roles compared as plain ints
+        role = int(role)
+        if role not in _ROLES_USED:
+            return None
         b = self.bench
         c, col = index.row(), index.column()
-        if role == Qt.ItemDataRole.TextAlignmentRole and col < 8:
-            return int(Qt.AlignmentFlag.AlignRight | Qt.AlignmentFlag.AlignVCenter)
-        if role == Qt.ItemDataRole.FontRole and c == b.channel:
-            f = QFont()
-            f.setBold(True)
-            return f
-        if role == Qt.ItemDataRole.BackgroundRole and c in b.shown_channels:
-            return QColor(232, 242, 250)
-        if role != Qt.ItemDataRole.DisplayRole:
-            return None
+        if role == _ALIGN:
+            return _RIGHT if col < 8 else None
+        if role == _FONT:
+            return self._bold if c == b.channel else None
+        if role == _BACKGROUND:
+            return self._shown if c in self._shown_set() else None
         rec = b.recording
         sigma = b.sigma_uv
         k = float(b.thresholds_sigma[c])
