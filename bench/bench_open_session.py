@@ -5,6 +5,8 @@ Makes a synthetic recording in a temporary folder (``rigside synth``), sorts it 
 resident memory from ``os.wait4``):
 - ``rigside open SESSION --screenshot OUT.png``: the whole command, to a complete window with
   units and quality numbers (target: 3 s and 1 GB for 64 channels x 600 s);
+- the session in the window, from the start of the process: first paint, quality numbers shown, complete;
+  and the same for a copy saved without quality numbers (as older sessions are: they are computed);
 - the raw recording in the window: time from ``open_path`` to the first paint (traces and
   threshold; target 2 s) and to the complete window (detection and features done), against
   the time of ``rigside sort`` on it.
@@ -43,6 +45,45 @@ print(json.dumps({"first_paint_s": first, "complete_s": time.perf_counter() - t0
 win.close()
 """
 
+SESSION_OPEN = """
+import json, os, sys, time
+t0 = time.perf_counter()
+os.environ["QT_QPA_PLATFORM"] = "offscreen"
+from rigside.cli.window import _import_the_engine
+_import_the_engine()
+from PySide6.QtCore import QTimer
+from PySide6.QtWidgets import QApplication
+from rigside.core.signal.filtering import warm_up
+from rigside.gui.window import MainWindow
+app = QApplication([])
+win = MainWindow(interactive=False)
+win.units.files.check_content = False
+win.runner.submit("warm_up", "Preparing the filter", warm_up)
+win.resize(1600, 1000)
+win.show()
+app.processEvents()
+marks = {"window_s": time.perf_counter() - t0}
+def poll():
+    if "first_paint_s" not in marks and win.bench.events is not None:
+        win.repaint()
+        marks["first_paint_s"] = time.perf_counter() - t0
+    ctl = win.units
+    if "numbers_s" not in marks and ctl.sorting is not None and len(ctl.metrics) == len(ctl.sorting.units):
+        marks["numbers_s"] = time.perf_counter() - t0
+timer = QTimer(interval=5)
+timer.timeout.connect(poll)
+timer.start()
+assert win.open_path(sys.argv[1])
+assert win.wait_idle(600) and win.last_error is None, win.last_error
+poll()
+win.repaint()
+marks["complete_s"] = time.perf_counter() - t0
+print(json.dumps(marks))
+win.close()
+"""
+"""The session in the window, times from the start of the process: window shown, first paint (traces and
+threshold of the stored events), every unit's quality numbers, complete (no job left)."""
+
 
 BASELINE = """
 import os, sys
@@ -66,6 +107,16 @@ w.grab().save(sys.argv[5])
 """
 """The plain floor of opening a session, written the obvious way: start Qt and pyqtgraph, read every
 dataset of the session's two files with h5py, plot one second of every channel and save the PNG."""
+
+
+WITHOUT_NUMBERS = """
+import sys
+from rigside.core.units.session import load_session, save_session
+s = load_session(sys.argv[1])
+s.unit_numbers = None
+save_session(sys.argv[2], s)
+"""
+"""A copy of the session as sessions were saved before they kept their quality numbers."""
 
 
 def measured(cmd: list[str]) -> tuple[float, float, str]:
@@ -101,12 +152,22 @@ def main() -> None:
             print(f"sort: {sort_s:.1f} s, peak {sort_mb:.0f} MB  ({out.strip()})")
         print(f"recording: {a.channels} channels x {a.seconds:g} s, {rec.stat().st_size / 1e6:.0f} MB")
         static = next(work.glob(session.name + ".static-*.h5"))
+        old = work / "rec.no-numbers.h5"
+        if not old.exists():
+            measured([sys.executable, "-c", WITHOUT_NUMBERS, str(session), str(old)])
         base_s, base_mb, _ = measured([sys.executable, "-c", BASELINE, str(session), str(static), str(rec),
                                        str(a.channels), str(work / "baseline.png")])
         open_s, open_mb, _ = measured([*rigside, "open", str(session), "--screenshot", str(work / "s.png")])
         print(f"open SESSION --screenshot (whole command, complete window): {open_s:.1f} s, peak {open_mb:.0f} MB "
               f"(target 3 s, 1000 MB at 64 x 600 s); baseline (Qt + h5py read of both files + one plot) "
               f"{base_s:.1f} s, {base_mb:.0f} MB: ratio {open_s / base_s:.2f}")
+        for label, path in (("sorted session", session), ("session saved without quality numbers", old)):
+            in_s, in_mb, out = measured([sys.executable, "-c", SESSION_OPEN, str(path)])
+            r = json.loads(out.strip().splitlines()[-1])
+            print(f"{label} in the window (from process start): window {r['window_s']:.2f} s, first paint "
+                  f"{r['first_paint_s']:.2f} s, quality numbers {r['numbers_s']:.2f} s, complete "
+                  f"{r['complete_s']:.2f} s, process {in_s:.1f} s, peak {in_mb:.0f} MB; ratio to baseline "
+                  f"{in_s / base_s:.2f}")
         raw_s, raw_mb, out = measured([sys.executable, "-c", RAW_OPEN, str(rec)])
         r = json.loads(out.strip().splitlines()[-1])
         print(f"raw recording in the window: first paint {r['first_paint_s']:.2f} s (target 2 s), complete "

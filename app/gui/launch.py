@@ -10,6 +10,7 @@ from typing import Callable
 from PySide6.QtCore import QTimer
 from PySide6.QtWidgets import QApplication
 
+from rigside.core.signal.filtering import warm_up
 from rigside.gui.window import MainWindow
 from rigside.sample_data import demo_path
 
@@ -31,6 +32,7 @@ def run_window(path: str | None, *, screenshot: str | None = None, recording_opt
     app = QApplication.instance() or QApplication(sys.argv[:1])
     app.setApplicationName("rigside")
     win = MainWindow(interactive=not screenshot)
+    win.runner.submit("warm_up", "Preparing the filter", warm_up)   # while the file is read
     target = str(demo_path()) if demo else path
 
     def open_target() -> bool:

@@ -19,6 +19,7 @@ from shiboken6 import isValid
 
 from rigside.core.errors import RigsideError, SessionError
 from rigside.core.io.atomic import check_output
+from rigside.core.quality.stored_numbers import current_numbers, numbers_to_store
 from rigside.core.units.history import rebuild_history
 from rigside.core.units.session import (
     RecordingChanged,
@@ -39,14 +40,15 @@ SESSION_FILTER = "rigside sessions (*.h5);;All files (*)"
 
 
 def _load_job(path: Path, override, progress=None, cancel=None):
-    """Load a session (quick recording check) and rebuild the undo history from the journal, off
-    the GUI thread: ``(session, history)``; the expected refusals come back as values (their kind
-    matters). The whole-content check runs after the session is shown (:func:`_content_job`)."""
+    """Load a session (quick recording check), rebuild the undo history from the journal and take
+    its stored quality numbers still current, off the GUI thread: ``(session, history, numbers)``; the
+    expected refusals come back as values (their kind matters). The whole-content check runs after the
+    session is shown (:func:`_content_job`)."""
     try:
         session = load_session(path, recording_path_override=override)
     except (RecordingMoved, RecordingChanged, SessionError) as exc:
         return exc
-    return session, rebuild_history(session.sorting, progress, cancel)
+    return session, rebuild_history(session.sorting, progress, cancel), current_numbers(session)
 
 
 def _content_job(session, progress=None, cancel=None):
@@ -58,14 +60,16 @@ def _content_job(session, progress=None, cancel=None):
     return None
 
 
-def _save_job(path: Path, session, progress=None, cancel=None):
+def _save_job(path: Path, session, numbers: dict, progress=None, cancel=None):
+    session.unit_numbers = numbers_to_store(session, numbers)
     try:
         return save_session(path, session)
     except OSError as exc:
         raise SessionError(f"session file must be writable, got {exc}") from None
 
 
-def _autosave_job(autosaver: Autosaver, session, force: bool, progress=None, cancel=None):
+def _autosave_job(autosaver: Autosaver, session, numbers: dict, force: bool, progress=None, cancel=None):
+    session.unit_numbers = numbers_to_store(session, numbers)
     try:
         return autosaver.save_if_due(session, force=force)
     except OSError as exc:
@@ -187,7 +191,7 @@ class SessionFlow(QObject):
         self._last_autosave = now
         self._written = (s.sorting, s.sorting.revision)
         self._file_job = weakref.ref(self.window.runner.submit(
-            FILE_SLOT, "Autosaving", _autosave_job, saver, snapshot(s), True,
+            FILE_SLOT, "Autosaving", _autosave_job, saver, snapshot(s), self.ctl.current_metrics(), True,
             on_done=lambda out: self.window.statusBar().showMessage(f"Autosaved to {out.name}", 4000)))
         return True
 
@@ -205,7 +209,7 @@ class SessionFlow(QObject):
             self._remark(s, saver)
         if s is not None and saver is not None and saver.dirty:
             try:
-                _autosave_job(saver, snapshot(s), True)
+                _autosave_job(saver, snapshot(s), self.ctl.current_metrics(), True)
                 self._written = (s.sorting, s.sorting.revision)
             except RigsideError as exc:
                 self.window.show_error("Autosave failed", str(exc))
@@ -256,7 +260,7 @@ class SessionFlow(QObject):
         index, revision, old_autosave = self.ctl.undo_stack.index(), s.sorting.revision, self.autosave_file
         self._written = (s.sorting, revision)
         self._file_job = weakref.ref(self.window.runner.submit(
-            FILE_SLOT, "Saving the session", _save_job, path, snapshot(s),
+            FILE_SLOT, "Saving the session", _save_job, path, snapshot(s), self.ctl.current_metrics(),
             on_done=lambda out: self._saved(s, out, index, revision, old_autosave)))
         return True
 
@@ -341,7 +345,7 @@ class SessionFlow(QObject):
         if isinstance(result, SessionError):
             self.window.show_error("Cannot open the session", str(result))
             return
-        result, history = result
+        result, history, numbers = result
         self._pending_open = True
         try:
             if not self.window.open_path(result.recording.path, session=result):
@@ -349,7 +353,7 @@ class SessionFlow(QObject):
         finally:
             self._pending_open = False
         self._incoming_path = title_path
-        self.ctl.attach(result, history)
+        self.ctl.attach(result, history, numbers)
         self._apply_threshold(result)
         self.recovered = title_path is not None and Path(file) != title_path
         self.window.remember(str(Path(title_path or file).resolve()))

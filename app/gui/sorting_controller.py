@@ -169,10 +169,13 @@ class SortingController(QObject):
         return out
 
     # ---- the sorting ------------------------------------------------------------------------
-    def attach(self, session: Session | None, history: list | None = None) -> None:
+    def attach(self, session: Session | None, history: list | None = None,
+               numbers: tuple[dict, list] | None = None) -> None:
         """Hold ``session`` (or nothing) with fresh selection and quality numbers; the undo history
         is ``history`` (steps already in the sorting, oldest first, from
-        :func:`rigside.core.units.history.rebuild_history`) or empty."""
+        :func:`rigside.core.units.history.rebuild_history`) or empty. ``numbers`` are the stored quality
+        numbers still current and the units left to compute
+        (:func:`rigside.core.quality.stored_numbers.current_numbers`); without them every unit is computed."""
         old = self.sorting
         if old is not None:
             self.replacing.emit()
@@ -191,12 +194,20 @@ class SortingController(QObject):
             for op in history or []:
                 self.undo_stack.push(StepCommand(op, self._core_stack, applied=True))
             self.undo_stack.setClean()
-            self._stale = {u: session.sorting.revision for u in session.sorting.unit_ids()}
+            rows, stale = numbers if numbers is not None else ({}, session.sorting.unit_ids())
+            self.metrics = dict(rows)
+            self._stale = {u: session.sorting.revision for u in stale}
             self._refresh_metrics()
         self._update_rows()
         self.sorting_replaced.emit()
         self.selection_changed.emit()
         self.events_selected.emit()
+        if self.metrics:
+            self.metrics_changed.emit()
+
+    def current_metrics(self) -> dict[int, dict]:
+        """Quality numbers of the units whose numbers are current (none pending), for saving."""
+        return {u: row for u, row in self.metrics.items() if u not in self._stale}
 
     def current_detection(self) -> Detection:
         """Events at the workbench's threshold (:func:`rigside.core.units.event_rows.detection_at`), or

@@ -16,7 +16,6 @@ from dataclasses import dataclass
 from typing import Callable
 
 import numpy as np
-from scipy.special import log_ndtr, ndtr
 
 from rigside.core.errors import ParamError
 from rigside.core.quality.metric_inputs import MetricValue, float_1d, positive, same_length, spike_times, undefined
@@ -281,6 +280,7 @@ class MissedFraction(MetricValue):
 
 def _mills(a: float) -> float:
     """phi(a) / (1 - Phi(a)), computed in logs."""
+    from scipy.special import log_ndtr  # imported on use: scipy is not loaded at start-up
     return math.exp(-0.5 * a * a - 0.5 * math.log(2 * math.pi) - float(log_ndtr(-a)))
 
 
@@ -359,4 +359,5 @@ def missed_fraction(amplitudes: np.ndarray, threshold: float, min_events: int = 
     if mean <= 0:
         return MissedFraction(math.nan, f"the fitted Gaussian has a mean magnitude of {mean:.4g}, at "
                                         f"or below 0: the amplitudes show no Gaussian peak to fit")
+    from scipy.special import ndtr  # imported on use: scipy is not loaded at start-up
     return MissedFraction(float(ndtr(cut)), "", mean, sd)

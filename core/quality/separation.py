@@ -23,7 +23,6 @@ from dataclasses import dataclass
 
 import numba
 import numpy as np
-from scipy.special import chdtrc
 
 from rigside.core.errors import RigsideError
 from rigside.core.quality.metric_inputs import MetricValue, undefined
@@ -117,6 +116,7 @@ def separation_of_checked(x: np.ndarray, in_unit: np.ndarray) -> Separation:
         return both_undefined("no events lie outside the unit in its feature space")
     whiten = np.tril(np.linalg.inv(np.linalg.cholesky(cov)))
     d2 = _outside_distances(np.ascontiguousarray(x), mu, whiten, in_unit, n_out)
+    from scipy.special import chdtrc  # imported on use: scipy is not loaded at start-up
     lr = MetricValue(float(chdtrc(d, d2).sum()) / n_in)
     if n_out < n_in:
         iso = undefined(f"fewer events outside the unit ({n_out}) than inside ({n_in})")

@@ -269,10 +269,11 @@ def unit_metrics_table(times_s: np.ndarray, units: np.ndarray, duration_s: float
         for name, value in row.items():
             out[name][i] = value
         report(progress, (done + 1) / max(len(ids), 1), f"unit {ids[i]}")
-    return {name: np.array(values, dtype=_dtype(name)) for name, values in out.items()}
+    return {name: np.array(values, dtype=column_dtype(name)) for name, values in out.items()}
 
 
-def _dtype(column: str) -> type:
+def column_dtype(column: str) -> type:
+    """The dtype of a column of the table: text for reasons, int64 for counts and ids, else float64."""
     if column.endswith("_reason"):
         return str
     return np.int64 if column in INT_COLUMNS else np.float64

@@ -23,7 +23,8 @@ from rigside.core.io.h5image import write_h5
 from rigside.core.io.h5safe import read_verified
 from rigside.core.io.recording import Recording
 from rigside.core.params import Params
-from rigside.core.progress import CancelFn, ProgressFn, report
+from rigside.core.progress import CancelFn, ProgressFn, check, report
+from rigside.core.quality.stored_numbers import compute_numbers, numbers_to_store, table_rows
 from rigside.core.signal.event_pass import detect_with_features
 from rigside.core.signal.features import Basis, Features, compute_features, feature_names
 from rigside.core.signal.overlaps import recover_overlaps
@@ -210,6 +211,8 @@ def run_sort(recording: Recording, params: Params, session_path: str | Path, res
     check_not_input(ckpt, "checkpoint")
     events, sorting = sort_recording(recording, params, ckpt, resume, progress, cancel)
     session = Session(RecordingRef.from_recording(recording), params, events, sorting)
+    check(cancel)
+    session.unit_numbers = numbers_to_store(session, table_rows(compute_numbers(session)))
     backup = None
     if Path(session_path).exists():
         check_new_session(session_path, overwrite)

@@ -101,6 +101,15 @@ def filtfilt(x: np.ndarray, sos: np.ndarray, gain: float = 1.0, offset: float = 
                                    np.float32(gain), np.float32(offset))
 
 
+def warm_up(progress=None, cancel=None) -> None:
+    """Load the compiled filter kernel for the sample types traces are filtered in (int16 as stored,
+    float32 scaled at the file's ends) on a tiny block, so that the first drawing does not pay numba's
+    one-time set-up on the GUI thread (run it on a worker thread while the window is built)."""
+    sos = design_bandpass(FilterParams(), 30000.0)
+    for dtype in (np.int16, np.float32):
+        filtfilt(np.zeros((16, 1), dtype=dtype), sos)
+
+
 def common_median_reference(x: np.ndarray, groups: list[np.ndarray]) -> np.ndarray:
     """Subtract, per sample, the median across the channels of each group (in place)."""
     for g in groups:

@@ -9,14 +9,50 @@ as fs grows). For forward-backward filtering the power response is |H|^4.
 
 With equal levels the bivariate term has a closed form in Owen's T function (Owen 1956, Ann.
 Math. Stat. 27:1075-1090): Phi(-k) - Phi2(-k, -k; rho) = 2 T(k, sqrt((1 - rho) / (1 + rho))),
-so the module needs only ``scipy.special`` (``scipy.signal`` and ``scipy.stats`` cost seconds of
-import in a window that only opens a session).
+computed here by quadrature (:func:`owens_t`, checked against ``scipy.special.owens_t``), so the
+window that opens a session draws the noise-only curve without importing SciPy.
 """
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
-from scipy.special import owens_t
+
+_NODES, _WEIGHTS = np.polynomial.legendre.leggauss(48)
+_REACH = 12.0
+"""Beyond this many standard deviations of its Gaussian factor the integrand of T is below 1e-31 of its peak."""
+_upper_tail = np.frompyfunc(lambda x: 0.5 * math.erfc(x / math.sqrt(2.0)), 1, 1)
+
+
+def owens_t(h, a: float) -> np.ndarray:
+    """Owen's T function, T(h, a) = (1/2pi) int_0^a exp(-h^2 (1 + x^2) / 2) / (1 + x^2) dx (Owen 1956).
+
+    Parameters
+    ----------
+    h
+        Array of h (T is even in h).
+    a
+        One value of a.
+
+    Returns
+    -------
+    numpy.ndarray
+        T for each h: 48-point Gauss-Legendre quadrature over [0, min(a, 12 / h)] for ``|a| <= 1``;
+        for ``a > 1`` Owen's identity T(h, a) = Q(h)/2 + Q(ah)/2 - Q(h) Q(ah) - T(ah, 1/a), with Q the upper
+        normal tail (``math.erfc``).
+    """
+    h = np.abs(np.asarray(h, dtype=np.float64))
+    a = float(a)
+    if a < 0:
+        return -owens_t(h, -a)
+    if a > 1:
+        qh, qa = _upper_tail(h).astype(np.float64), _upper_tail(a * h).astype(np.float64)
+        return 0.5 * qh + 0.5 * qa - qh * qa - owens_t(a * h, 1.0 / a)
+    top = np.minimum(a, _REACH / np.maximum(h, 1e-300))
+    x = 0.5 * top[..., None] * (_NODES + 1.0)
+    f = np.exp(-0.5 * h[..., None] ** 2 * (1.0 + x * x)) / (1.0 + x * x)
+    return 0.5 * top * (f @ _WEIGHTS) / (2.0 * np.pi)
 
 
 def _power_response(sos: np.ndarray, rate_hz: float, zero_phase: bool, n: int = 1 << 16):

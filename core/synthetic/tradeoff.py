@@ -16,7 +16,6 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import numpy as np
-from scipy.special import ndtr, ndtri
 
 from rigside.core.events import EventTable
 from rigside.core.io.atomic import atomic_write
@@ -122,6 +121,7 @@ class MissOnset:
 
     def missed_at(self, threshold_sigma) -> np.ndarray:
         """Predicted missed share of this unit's spikes at a threshold."""
+        from scipy.special import ndtr  # imported on use: scipy is not loaded at start-up
         return ndtr((np.asarray(threshold_sigma, float) - self.mean_sigma) / self.sd_sigma)
 
 
@@ -149,6 +149,7 @@ def miss_onsets(events: EventTable, truth: Truth, channels, tolerance_ms: float 
         ia, ib = match_times(events.sample[sel], t_true, tol)
         amps = events.amplitude_sigma[sel][ia]
         for u in (u for u in unit_ids if truth.unit_group[u] == g):
+            from scipy.special import ndtri  # imported on use: scipy is not loaded at start-up
             mine = amps[u_true[ib] == u]
             fit = missed_fraction(mine, events.floor_sigma)
             onset = fit.mean + fit.sd * float(ndtri(MISS_ONSET_FRACTION))

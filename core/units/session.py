@@ -13,6 +13,7 @@ Layout (format version 3): two HDF5 files (see :mod:`rigside.core.units.session_
       /sorting/labels  UTF-8 JSON list of one label name per unit (uint8 dataset)
       /sorting/notes   UTF-8 JSON list of one note per unit (uint8 dataset); attrs next_id
       /journal/lines   UTF-8 JSON lines (uint8 dataset)
+      /unit_numbers    optional: the quality numbers at saving (see rigside.core.units.session_numbers)
     NAME.static-<digest>.h5  attrs format="rigside session static part", format_version, checksum
       /events          the event table (EventTable.to_h5_group, uncompressed)
       /features/values float32 events x features;   attrs names (JSON list)
@@ -20,14 +21,10 @@ Layout (format version 3): two HDF5 files (see :mod:`rigside.core.units.session_
 Formats 1 and 2 kept both parts in one file (one SHA-256 over everything); they are still read.
 Format 1 stored labels as codes instead of ``/sorting/labels``; it is still read (see
 :mod:`rigside.core.units.session_labels`). No pickled or executable content is written or accepted.
-Saving is atomic: a uniquely named temporary file beside ``NAME`` is written (the HDF5 library builds
-only the metadata and small datasets, in memory; each large array goes from memory straight to its
-reserved place in the file, hashed meanwhile on a worker thread, see
-:func:`rigside.core.io.h5image.h5_direct`), flushed, fsynced and renamed over ``NAME``; the previous
-``NAME`` (if it verifies) becomes ``NAME.bak`` first, by a hard link where possible. Only the state
-part is written on every save; the static part once. ``NAME.autosave.h5``, by :func:`save_autosave`,
-is a state part of the same static part; :mod:`rigside.core.units.session_recovery` finds the newest
-consistent state among the main file, the autosave and the backup.
+Saving is atomic: a temporary file beside ``NAME`` is written (:func:`rigside.core.io.h5image.h5_direct`),
+fsynced and renamed over ``NAME``; the previous ``NAME`` (if it verifies) becomes ``NAME.bak`` first.
+Only the state part is written on every save. ``NAME.autosave.h5`` (:func:`save_autosave`) is a state part
+of the same static part; :mod:`rigside.core.units.session_recovery` finds the newest consistent state.
 """
 
 from __future__ import annotations
@@ -51,6 +48,7 @@ from rigside.core.progress import CancelFn, ProgressFn
 from rigside.core.textparse import parse_json
 from rigside.core.units.journal import Journal, utc_now
 from rigside.core.units.session_labels import read_labels, upgrade_format1_journal
+from rigside.core.units.session_numbers import StoredTable, read_table
 from rigside.core.units.session_write import (
     FIRST_PASS,
     FORMAT,
@@ -113,6 +111,8 @@ class Session:
     static_cache: tuple | None = field(default=None, repr=False, compare=False)
     """(events, features, first-pass state, checksum) of the static part last written or read (set by
     saving and loading)."""
+    unit_numbers: StoredTable | None = field(default=None, repr=False, compare=False)
+    """The per-unit quality numbers stored with the state (see rigside.core.quality.stored_numbers)."""
 
 
 def snapshot(session: Session) -> Session:
@@ -297,7 +297,7 @@ def _interpret(f: h5py.File, fs: h5py.File, data: dict, path: Path) -> tuple[Rec
     if FIRST_PASS in fs:
         sorting.origin = Sorting.from_state(sorting_data, _read_state(fs, FIRST_PASS, data, version, events)).state()
     session = Session(ref, params, events, sorting, attr(f, "program_version", str, ""),
-                      attr(f, "saved_utc", str, ""), path)
+                      attr(f, "saved_utc", str, ""), path, unit_numbers=read_table(f, data))
     return ref, session
 
 

@@ -33,6 +33,7 @@ from rigside.core.io.atomic import atomic_write_named, safe_unlink
 from rigside.core.io.h5image import Store, h5_direct
 from rigside.core.io.h5safe import CHECKSUM_ATTR, dataset_digest, read_verified, write_text
 from rigside.core.units.session_labels import labels_to_text
+from rigside.core.units.session_numbers import write_table
 
 FORMAT = "rigside session"
 STATIC_FORMAT = "rigside session static part"
@@ -158,6 +159,8 @@ def write_state(tmp: Path, session: Any, saved_utc: str, static: tuple[str, str]
         f.create_group("params").attrs["json"] = json.dumps(session.params.to_dict(), allow_nan=False)
         _write_units(f.create_group("sorting"), sorting.assignments, sorting.units, sorting.next_id, store)
         write_text(f.create_group("journal"), "lines", sorting.journal.to_text(), store)
+        if session.unit_numbers is not None:
+            write_table(f, session.unit_numbers, store)
         store.seal()
 
 

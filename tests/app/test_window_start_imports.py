@@ -1,12 +1,12 @@
 """The window starts without the heavy parts of SciPy and scikit-learn (seconds of start-up each,
 measured with ``python -X importtime``): they are imported when first used (clustering, PCA fits,
-practice recordings), not when a session or recording is opened."""
+practice recordings, quality numbers, probe neighbourhoods), not when a session or recording is opened."""
 
 import os
 import subprocess
 import sys
 
-HEAVY = ("scipy.signal", "scipy.stats", "scipy.optimize", "sklearn")
+HEAVY = ("scipy.signal", "scipy.stats", "scipy.optimize", "scipy.special", "scipy.spatial", "sklearn")
 
 
 def test_opening_the_window_imports_no_heavy_modules():

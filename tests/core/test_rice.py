@@ -1,8 +1,15 @@
 import numpy as np
 import pytest
 from scipy import integrate, signal, stats
+from scipy.special import owens_t as reference_owens_t
 
-from rigside.core.signal.rice import crossing_frequency, neighbour_correlation, rice_rate, sampled_crossing_rate
+from rigside.core.signal.rice import (
+    crossing_frequency,
+    neighbour_correlation,
+    owens_t,
+    rice_rate,
+    sampled_crossing_rate,
+)
 
 FS = 30000.0
 SOS = signal.butter(3, [300, 6000], "bandpass", fs=FS, output="sos")
@@ -70,3 +77,12 @@ def test_bivariate_term_by_independent_integration():
     both, _ = integrate.dblquad(dens, -12, -k, -12, -k)
     want = FS * (stats.norm.cdf(-k) - both)
     assert float(sampled_crossing_rate(SOS, FS, k)) == pytest.approx(want, rel=1e-4)
+
+
+def test_owens_t_equals_scipy():
+    # reference implementation: scipy.special.owens_t (Owen 1956); h over both signs and far into the tail,
+    # a below, at and above 1 (the identity branch) and negative
+    h = np.concatenate([np.linspace(-5, 40, 451), [0.0, 1e-8, 1e-3]])
+    for a in (0.0, 0.01, 0.3, 0.9, 1.0, 1.5, 10.0, 1e4, -0.4, -2.0):
+        want, got = reference_owens_t(h, a), owens_t(h, a)
+        np.testing.assert_allclose(got, want, rtol=1e-11, atol=1e-300)

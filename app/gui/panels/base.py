@@ -6,6 +6,8 @@ The window places each panel in a dock named after ``panel_id``; later panels su
 
 from __future__ import annotations
 
+from typing import Callable
+
 from PySide6.QtWidgets import QWidget
 
 from rigside.gui.model import Workbench
@@ -23,3 +25,19 @@ class Panel(QWidget):
         self.setObjectName(self.panel_id)
         self.bench = bench
         self.runner = runner
+        self._pending_draw: Callable[[], None] | None = None
+
+    def when_shown(self, draw: Callable[[], None]) -> None:
+        """Run ``draw`` now while the panel is in view, else when it next comes into view (a panel in a
+        hidden tab draws nothing meanwhile; the latest drawing asked for is the one done)."""
+        if self.isVisible():
+            self._pending_draw = None
+            draw()
+        else:
+            self._pending_draw = draw
+
+    def showEvent(self, event) -> None:
+        super().showEvent(event)
+        draw, self._pending_draw = self._pending_draw, None
+        if draw is not None:
+            draw()

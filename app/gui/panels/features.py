@@ -107,6 +107,9 @@ class FeaturePanel(Panel):
         return self.bench.events.time_s if name == TIME else f.column(name)
 
     def _draw(self, *_: object) -> None:
+        self.when_shown(self._draw_now)
+
+    def _draw_now(self) -> None:
         b = self.bench
         f = b.analysis.features
         if f is None or b.events is None or len(f.values) != len(b.events) or not self.x_combo.count():
