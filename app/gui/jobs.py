@@ -10,11 +10,14 @@ from pathlib import Path
 from rigside.core.errors import RigsideError
 from rigside.core.io.atomic import WriteError
 from rigside.core.progress import report
+from rigside.core.quality.unit_table import unit_metrics_for_events
 from rigside.core.signal.features import compute_features
 from rigside.core.signal.noise import estimate_noise
 from rigside.core.signal.overview import OverviewBuilder, build_overview
 from rigside.core.signal.pipeline import NOISE_SHARE, detect
 from rigside.core.synthetic.truth import load_truth
+from rigside.core.units.first_pass import first_pass
+from rigside.core.units.operations import ClusterGroups
 
 LOOKUP_FLOOR_SIGMA = 3.0
 """Events are kept down to this many sigma so a threshold drag down to it is a look-up."""
@@ -60,3 +63,26 @@ def overview(recording, filter_params, progress=None, cancel=None) -> OverviewBu
 def features(recording, events, params, progress=None, cancel=None):
     """Features of every stored event (see :func:`rigside.core.signal.features.compute_features`)."""
     return compute_features(recording, events, params, progress=progress, cancel=cancel)
+
+
+def first_pass_job(events, features, cluster_params, progress=None, cancel=None):
+    """The first pass over every group (:func:`rigside.core.units.first_pass.first_pass`)."""
+    return first_pass(events, features, cluster_params, progress=progress, cancel=cancel)
+
+
+def prepare_step_job(op, sorting, progress=None, cancel=None):
+    """The slow part of a curation step (its clustering), run before the step is applied."""
+    if isinstance(op, ClusterGroups):
+        op.progress, op.cancel = progress, cancel
+    try:
+        op.prepare(sorting)
+    finally:
+        if isinstance(op, ClusterGroups):
+            op.progress = op.cancel = None
+    return op
+
+
+def unit_metrics_job(events, assignments, features, threshold, mp, units, progress=None, cancel=None):
+    """Quality numbers of the given units (:func:`rigside.core.quality.unit_table.unit_metrics_for_events`)."""
+    return unit_metrics_for_events(events, assignments, features, threshold, mp, progress=progress,
+                                   cancel=cancel, only_units=units)

@@ -14,12 +14,10 @@ from PySide6.QtGui import QUndoStack
 
 from rigside.core.errors import RigsideError
 from rigside.core.quality.metric_settings import metric_settings
-from rigside.core.quality.unit_table import unit_metrics_for_events
 from rigside.core.quality.unit_table_io import DEFAULT_LIMITS, flag_units
 from rigside.core.signal.features import Features
 from rigside.core.signal.pipeline import thresholds_sigma
 from rigside.core.units.event_rows import MISSING, Detection, detection_at, session_rows
-from rigside.core.units.first_pass import first_pass
 from rigside.core.units.history import UndoStack
 from rigside.core.units.operations import (
     ClusterGroups,
@@ -34,6 +32,7 @@ from rigside.core.units.session import RecordingRef, Session
 from rigside.core.units.sorting import NO_UNIT, pool_group, pool_id
 from rigside.gui import palette
 from rigside.gui.curation import StepCommand
+from rigside.gui.jobs import first_pass_job, prepare_step_job, unit_metrics_job
 
 SELECTION_COLOURS = (palette.GREEN, palette.ORANGE, palette.PURPLE, palette.SKY, palette.VERMILLION,
                      palette.YELLOW, palette.BLUE)
@@ -42,26 +41,6 @@ SELECTION_COLOURS = (palette.GREEN, palette.ORANGE, palette.PURPLE, palette.SKY,
 SLOW_STEPS = (ClusterGroups, ReclusterUnit)
 CURATION_SLOT = "curation"
 METRICS_SLOT = "unit_metrics"
-
-
-def _first_pass_job(events, features, cluster_params, progress=None, cancel=None):
-    return first_pass(events, features, cluster_params, progress=progress, cancel=cancel)
-
-
-def _prepare_job(op, sorting, progress=None, cancel=None):
-    if isinstance(op, ClusterGroups):
-        op.progress, op.cancel = progress, cancel
-    try:
-        op.prepare(sorting)
-    finally:
-        if isinstance(op, ClusterGroups):
-            op.progress = op.cancel = None
-    return op
-
-
-def _metrics_job(events, assignments, features, threshold, mp, units, progress=None, cancel=None):
-    return unit_metrics_for_events(events, assignments, features, threshold, mp, progress=progress,
-                                   cancel=cancel, only_units=units)
 
 
 class SortingController(QObject):
@@ -240,7 +219,7 @@ class SortingController(QObject):
         if self.holds_detection(detection):
             return self.run_step(ClusterGroups(params.cluster, groups))
         recording, events = self.bench.recording, detection.events
-        self.runner.submit("sorting", "Clustering", _first_pass_job, events, detection.features, params.cluster,
+        self.runner.submit("sorting", "Clustering", first_pass_job, events, detection.features, params.cluster,
                            on_done=lambda s: self._new_sorting(recording, params, events, s))
         return True
 
@@ -265,7 +244,7 @@ class SortingController(QObject):
             return False
         if isinstance(op, SLOW_STEPS):
             sorting = self.sorting
-            self.runner.submit(CURATION_SLOT, op.text, _prepare_job, op, sorting,
+            self.runner.submit(CURATION_SLOT, op.text, prepare_step_job, op, sorting,
                                on_done=lambda done: self._push(done) if sorting is self.sorting else None)
             return True
         try:
@@ -393,7 +372,7 @@ class SortingController(QObject):
         units = sorted(self._stale)
         revision = sorting.revision
         features = Features(sorting.data.features, list(sorting.data.feature_names))
-        self.runner.submit(METRICS_SLOT, "Quality numbers", _metrics_job, self.events,
+        self.runner.submit(METRICS_SLOT, "Quality numbers", unit_metrics_job, self.events,
                            sorting.assignments.copy(), features, self.thresholds(), self.metric_settings(),
                            units, on_done=lambda t: self._on_metrics(t, sorting, revision))
 
