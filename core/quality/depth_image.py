@@ -104,7 +104,8 @@ def depth_image(time_s: np.ndarray, depth_um: np.ndarray, amplitude_uv: np.ndarr
 
 def event_depth_image(events: EventTable, channels: np.ndarray, site_depth_um: np.ndarray, threshold_sigma,
                       time_range: tuple[float, float], time_bins: int = MAX_TIME_BINS,
-                      progress: ProgressFn = None, cancel: CancelFn = None) -> DepthImage:
+                      n_depth_bins: int | None = None, progress: ProgressFn = None,
+                      cancel: CancelFn = None) -> DepthImage:
     """The drift view's image of one shank: its events at the threshold (artefacts left out).
 
     Parameters
@@ -119,8 +120,9 @@ def event_depth_image(events: EventTable, channels: np.ndarray, site_depth_um: n
     time_range
         Time span shown (s); the colour scale comes from every event of the shank at the threshold,
         so that it stays put while the span changes.
-    time_bins
-        Time bins across the span.
+    time_bins, n_depth_bins
+        Time bins across the span and depth bins along the shank (default :func:`depth_bins`); a view
+        gives about one cell per two screen pixels, so that a lone event shows.
     progress, cancel
         Progress callback and cancel check.
     """
@@ -135,7 +137,7 @@ def event_depth_image(events: EventTable, channels: np.ndarray, site_depth_um: n
     check(cancel)
     span = (float(sites.min()) - MARGIN_UM, float(sites.max()) + MARGIN_UM)
     image = depth_image(events.time_s[keep], events.y_um[keep], events.amplitude_uv[keep], time_range, span,
-                        time_bins)
+                        time_bins, n_depth_bins)
     report(progress, 1.0, "depth image")
     return image
 

@@ -1,0 +1,50 @@
+"""The drift view in the window (real widgets, offscreen): a drifting synthetic probe opened in the
+window shows its events' depth against time, coloured by amplitude, with labelled axes and colour bar;
+zooming grids the shown span again; a bundle recording hides the view."""
+
+from __future__ import annotations
+
+import numpy as np
+import pytest
+
+from rigside.core.quality.depth_image import event_depth_image
+from rigside.core.synthetic.probe_synth import write_probe_synth
+from rigside.gui import jobs
+from rigside.gui.screenshot import capture, colour_share, pixels
+from tests.app.conftest import demo_analysis
+
+
+def test_probe_events_are_drawn_as_depth_against_time(window, qtbot, tmp_path, monkeypatch):
+    path = tmp_path / "drifting probe.bin"
+    write_probe_synth(path, seconds=4, sites=32, columns=2, pitch_um=20.0, drift_um=40.0, seed=2)
+    assert window.open_path(str(path)) and window.wait_idle(120)
+    win = window
+    dock, panel = win.docks["depth_time"], win.panels["depth_time"]
+    assert dock.isVisible() and panel.result is not None
+    ev, rec = win.bench.events, win.bench.recording
+    expected = event_depth_image(ev, np.arange(rec.n_channels), rec.positions[:, 1], win.bench.thresholds_sigma,
+                                 (0.0, rec.duration_s), *panel.result.values.shape)
+    np.testing.assert_array_equal(panel.result.values, expected.values)   # the view draws the core's grid
+    assert panel.result.n_events == int(ev.mask(threshold_sigma=win.bench.thresholds_sigma).sum())
+    assert panel.plot.getAxis("bottom").labelText == "time (s)"
+    assert panel.plot.getAxis("left").labelText == "depth (µm)"
+    assert panel.bar.getAxis("left").labelText == "peak (µV)"      # the colour bar, beside its scale
+    assert panel.bar.levels() == pytest.approx(panel.result.levels)
+    rgb = pixels(capture(panel, str(tmp_path / "depth_time.png")))
+    assert colour_share(rgb, (255, 255, 255), 10) > 0.3                   # white where no event lies
+    assert 1 - colour_share(rgb, (255, 255, 255), 10) > 0.05              # and coloured cells where they do
+
+    whole = panel.result.n_events
+    panel.plot.setXRange(1.0, 2.0, padding=0.0)                           # zoom in time
+    qtbot.waitUntil(lambda: panel.result.time_range[1] < 2.5 and not win.runner.busy(), timeout=20000)
+    t0, t1 = panel.result.time_range
+    assert t0 == pytest.approx(1.0, abs=0.05) and t1 == pytest.approx(2.0, abs=0.05)
+    assert 0 < panel.result.n_events < whole
+    assert panel.bar.levels() == pytest.approx(expected.levels)           # the colour scale stays the shank's
+
+    cache = demo_analysis()                      # a bundle recording (the demo's cached analysis) hides it
+    monkeypatch.setattr(jobs, "analyse", lambda rec, *a, progress=None, cancel=None:
+                        (cache["noise"], cache["events"], cache["truth"]))
+    monkeypatch.setattr(jobs, "features", lambda *a, progress=None, cancel=None: cache["features"])
+    assert win.open_demo() and win.wait_idle(120)
+    assert not dock.isVisible() and panel.result is None
