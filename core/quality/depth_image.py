@@ -104,8 +104,8 @@ def depth_image(time_s: np.ndarray, depth_um: np.ndarray, amplitude_uv: np.ndarr
 
 def event_depth_image(events: EventTable, channels: np.ndarray, site_depth_um: np.ndarray, threshold_sigma,
                       time_range: tuple[float, float], time_bins: int = MAX_TIME_BINS,
-                      n_depth_bins: int | None = None, progress: ProgressFn = None,
-                      cancel: CancelFn = None) -> DepthImage:
+                      n_depth_bins: int | None = None, depth_range: tuple[float, float] | None = None,
+                      progress: ProgressFn = None, cancel: CancelFn = None) -> DepthImage:
     """The drift view's image of one shank: its events at the threshold (artefacts left out).
 
     Parameters
@@ -123,6 +123,8 @@ def event_depth_image(events: EventTable, channels: np.ndarray, site_depth_um: n
     time_bins, n_depth_bins
         Time bins across the span and depth bins along the shank (default :func:`depth_bins`); a view
         gives about one cell per two screen pixels, so that a lone event shows.
+    depth_range
+        Depth span shown (um), cut to the shank's span; None (or no overlap): the shank's span.
     progress, cancel
         Progress callback and cancel check.
     """
@@ -136,6 +138,8 @@ def event_depth_image(events: EventTable, channels: np.ndarray, site_depth_um: n
     keep = events.mask(threshold_sigma=threshold_sigma) & on_shank[events.channel]
     check(cancel)
     span = (float(sites.min()) - MARGIN_UM, float(sites.max()) + MARGIN_UM)
+    if depth_range is not None and min(span[1], depth_range[1]) > max(span[0], depth_range[0]):
+        span = (max(span[0], float(depth_range[0])), min(span[1], float(depth_range[1])))
     image = depth_image(events.time_s[keep], events.y_um[keep], events.amplitude_uv[keep], time_range, span,
                         time_bins, n_depth_bins)
     report(progress, 1.0, "depth image")

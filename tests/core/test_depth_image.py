@@ -66,6 +66,10 @@ def test_event_image_keeps_one_shank_at_the_threshold():
     # channel 1 is below the threshold, channel 2 is on another shank, the last event is an artefact
     assert img.n_events == 1 and np.nanmax(img.values) == 50.0
     assert img.depth_range == (-MARGIN_UM, 20.0 + MARGIN_UM)
+    near = event_depth_image(ev, np.array([0, 1]), np.array([0.0, 20.0]), 4.0, (0.0, 1.0), 10, 5, (12.0, 99.0))
+    assert near.depth_range == (12.0, 20.0 + MARGIN_UM) and near.n_events == 1 and near.values.shape == (10, 5)
+    outside = event_depth_image(ev, np.array([0, 1]), np.array([0.0, 20.0]), 4.0, (0.0, 1.0), 10, 5, (100.0, 120.0))
+    assert outside.depth_range == img.depth_range              # no overlap: the shank's whole span
     bundle = ev.subset(np.ones(4, bool))
     bundle.x_um = bundle.y_um = None
     with pytest.raises(RigsideError, match="positions"):

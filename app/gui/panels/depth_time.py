@@ -3,8 +3,8 @@ of large events that slope. Shown only for recordings with site positions.
 
 The picture is an image of cells (``rigside.core.quality.depth_image``): each holds the largest
 amplitude among the events at the current threshold inside it, so millions of events draw as fast as
-a few. The shank is the one of the channel shown in the traces; zooming in time grids the shown span
-again, and the colour scale stays that of the whole shank.
+a few. The shank is the one of the channel shown in the traces; zooming (in time or depth) grids the
+shown span again, and the colour scale stays that of the whole shank.
 """
 
 from __future__ import annotations
@@ -37,7 +37,6 @@ class DepthTimePanel(Panel):
         self.plot = self.plot_widget.addPlot(row=0, col=0)
         self.plot.setMenuEnabled(False)
         self.plot.hideButtons()
-        self.plot.setMouseEnabled(x=True, y=False)
         palette.style_plot(self.plot, "time (s)", "depth (µm)")
         self.image = pg.ImageItem(axisOrder="col-major")       # values are (time, depth): x then y
         self.plot.addItem(self.image)
@@ -56,7 +55,8 @@ class DepthTimePanel(Panel):
         self._regrid = QTimer(self, singleShot=True, interval=REGRID_MS)
         self._regrid.timeout.connect(self._request)
         self._drawing = False
-        self.plot.getViewBox().sigXRangeChanged.connect(self._on_range)
+        self._whole = True                 # the next image spans the whole recording and shank
+        self.plot.getViewBox().sigRangeChanged.connect(self._on_range)
         bench.recording_changed.connect(self._clear)
         bench.events_changed.connect(self._on_events)
         bench.thresholds_changed.connect(lambda final: final and self._request())
@@ -72,24 +72,19 @@ class DepthTimePanel(Panel):
 
     def _clear(self) -> None:
         self._regrid.stop()
-        self.result, self._shank = None, None
+        self.result, self._shank, self._whole = None, None, True
         self.image.clear()
         rec = self.bench.recording
         self.note.setText("" if rec is None or rec.positions is not None
                           else "This recording has no site positions: there is no depth to show.")
 
     def _on_events(self) -> None:
-        rec = self.bench.recording
-        if rec is not None and rec.positions is not None:
-            self._drawing = True
-            try:
-                self.plot.setXRange(0.0, rec.duration_s, padding=0.0)
-            finally:
-                self._drawing = False
+        self._whole = True
         self._request()
 
     def _on_selection(self) -> None:
         if self.shown_shank() != self._shank:
+            self._whole = True
             self._request()
 
     def _on_range(self, *_: object) -> None:
@@ -109,16 +104,16 @@ class DepthTimePanel(Panel):
         rec = b.recording
         self._shank = shank
         channels = np.flatnonzero(rec.shank == shank)
-        t0, t1 = self.plot.getViewBox().viewRange()[0]
+        (t0, t1), depths = self.plot.getViewBox().viewRange()
         t0, t1 = max(0.0, t0), min(rec.duration_s, t1)
-        if not t1 > t0:
-            t0, t1 = 0.0, rec.duration_s
+        if self._whole or not t1 > t0:
+            (t0, t1), depths = (0.0, rec.duration_s), None
         box = self.plot.getViewBox().boundingRect()
         bins = (min(MAX_TIME_BINS, max(10, int(box.width()) // CELL_PX)),
                 min(MAX_DEPTH_BINS, max(10, int(box.height()) // CELL_PX)))
         self.runner.submit("depth_image", "Gridding event depths", event_depth_image, b.events, channels,
                            rec.positions[channels, 1], b.thresholds_sigma.copy(), (t0, t1), *bins,
-                           on_done=self._on_image)
+                           None if depths is None else tuple(depths), on_done=self._on_image)
 
     def _on_image(self, result) -> None:
         if self.bench.events is None:
@@ -130,11 +125,13 @@ class DepthTimePanel(Panel):
             self.image.setImage(result.values, autoLevels=False)
             self.image.setRect(QRectF(t0, d0, t1 - t0, d1 - d0))
             self.bar.setLevels(result.levels)
-            self.plot.setYRange(d0, d1, padding=0.0)
+            if self._whole:
+                self.plot.setRange(xRange=(t0, t1), yRange=(d0, d1), padding=0.0)
+                self._whole = False
         finally:
             self._drawing = False
         name = f"shank {self._shank}" if len(np.unique(self.bench.recording.shank)) > 1 else "the probe"
         cells = result.values.shape
         self.note.setText(f"{result.n_events} events at the threshold on {name}, {t0:.3g}–{t1:.3g} s, in "
                           f"{cells[0]} × {cells[1]} cells, each coloured by its largest peak. A drifting unit "
-                          "draws a sloping band; drag or zoom in time to look closer.")
+                          "draws a sloping band; drag or zoom (wheel) to look closer.")
