@@ -53,11 +53,9 @@ MIN_TRACE_SHARE = 0.4
 """A restored layout must leave the traces at least this share of the window's height."""
 ANALYSIS_LABEL = "Detecting events"
 log = logging.getLogger("rigside")
-
 OPEN_FILTER = "Recordings and sessions (*.bin *.dat *.raw *.h5 *.hdf5);;All files (*)"
 
-EXTENSIONS: tuple[Callable[..., object], ...] = (install_units, install_audit, install_export, install_practice,
-                                                 install_depth)
+EXTENSIONS: tuple[Callable, ...] = (install_units, install_audit, install_export, install_practice, install_depth)
 """Installers run on every new window: each adds its panels, menus and actions."""
 
 
