@@ -1,12 +1,15 @@
 """The drift view in the window (real widgets, offscreen): a drifting synthetic probe opened in the
 window shows its events' depth against time, coloured by amplitude, with labelled axes and colour bar;
-zooming grids the shown span again; a bundle recording hides the view."""
+zooming grids the shown span again; a bundle recording hides the view; a sorted probe session lists
+each unit's depth and drift."""
 
 from __future__ import annotations
 
 import numpy as np
 import pytest
+from PySide6.QtCore import Qt
 
+from rigside.core.numbers import format_number
 from rigside.core.quality.depth_image import event_depth_image
 from rigside.core.synthetic.probe_synth import write_probe_synth
 from rigside.gui import jobs
@@ -48,3 +51,31 @@ def test_probe_events_are_drawn_as_depth_against_time(window, qtbot, tmp_path, m
     monkeypatch.setattr(jobs, "features", lambda *a, progress=None, cancel=None: cache["features"])
     assert win.open_demo() and win.wait_idle(120)
     assert not dock.isVisible() and panel.result is None
+
+
+def test_a_sorted_probe_session_lists_each_units_depth_and_drift(window, tmp_path):
+    import shutil
+
+    from rigside.cli.main import main
+    from rigside.core.quality.unit_position import POSITION_COLUMNS
+    from rigside.sample_data import probe_demo_path
+
+    src = probe_demo_path()
+    for p in src.parent.glob(src.stem + ".*"):
+        shutil.copy(p, tmp_path / p.name)
+    session = tmp_path / "probe.rigside.h5"
+    assert main(["sort", str(tmp_path / src.name), "--session", str(session), "--quiet"]) == 0
+    window.units.files.timer.stop()
+    assert window.open_path(str(session)) and window.wait_idle(60)
+    panel, ctl = window.unit_panels["list"], window.units
+    model = panel.model
+    headers = [model.headerData(c, Qt.Orientation.Horizontal) for c in range(model.columnCount())]
+    assert headers[-3:] == ["depth\nµm", "drift\nµm/min", "note"]
+    depth, drift = headers.index("depth\nµm"), headers.index("drift\nµm/min")
+    assert model.headerData(depth, Qt.Orientation.Horizontal, Qt.ItemDataRole.ToolTipRole) == POSITION_COLUMNS["y_um"]
+    assert ctl.metrics and len(ctl.metrics) == model.rowCount()
+    for r in range(model.rowCount()):
+        m = ctl.metrics[model.unit_at(r)]
+        assert model.text(r, depth) == format_number(float(m["y_um"]))
+        assert model.text(r, drift) == format_number(float(m["drift_um_per_min"]), signed=True)
+    assert window.docks["depth_time"].isVisible()
