@@ -13,13 +13,14 @@ the median is the middle of the unit's path (half its events lie on either side)
 Drift is the unit's movement along the probe (``y_um``: probes move along their length) in
 micrometres per minute: the Theil–Sen slope (Theil 1950, Sen 1968; ``scipy.stats.theilslopes``, the
 reference implementation) of event ``y_um`` against event time. Theil–Sen is the median of the
-slopes of all event pairs, so up to about 29% of stray events leave it unchanged, where a
-least-squares line follows them. Its cost grows with the square of the events, so at most
-:data:`MAX_DRIFT_EVENTS` events spread evenly over the unit's train enter it. Caution: the centre of
-mass moves slower than the unit between two sites and jumps where the peak site changes, so over
-about a site pitch or more it follows the movement closely (30 um in 8 s at a 20 um pitch: within 12%
-of the truth on the synthetic probe, mostly a little below it), over less it may not; and it cannot
-follow a unit past the last sites of the probe (within one neighbourhood radius of an end it lags).
+slopes of all event pairs: stray events (another unit's, noise) move it much less than a
+least-squares line (its breakdown point is about 29%, Sen 1968). Its cost grows with the square
+of the events, so at most :data:`MAX_DRIFT_EVENTS` events spread evenly over the unit's train
+enter it. Caution: the centre of mass moves slower than the unit between two sites and jumps where
+the peak site changes, so over about a site pitch or more it follows the movement closely (30 um in
+8 s at a 20 um pitch: within 12% of the truth on the synthetic probe, mostly a little below it),
+over less it may not; and it cannot follow a unit past the last sites of the probe (within one
+neighbourhood radius of an end it lags).
 """
 
 from __future__ import annotations
@@ -40,8 +41,9 @@ POSITION_COLUMNS: dict[str, str] = {
     "drift_reason": "why drift_um_per_min is undefined",
 }
 """Columns of the unit table on recordings with site positions (absent on bundles)."""
-MAX_DRIFT_EVENTS = 1000
-"""Most events of one unit whose pairs enter the Theil–Sen slope (spread evenly over its train)."""
+MAX_DRIFT_EVENTS = 300
+"""Most events of one unit whose pairs enter the Theil–Sen slope, spread evenly over its train (choice:
+the slope's scatter falls as one over the square root of the events, its cost grows with their square)."""
 MIN_DRIFT_EVENTS = 10
 """Fewest events for a drift (choice, no source: fewer give slopes led by single events)."""
 

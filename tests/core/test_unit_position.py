@@ -22,7 +22,7 @@ from rigside.core.quality.unit_table_io import write_unit_table_csv
 RATE, SECONDS = 30000.0, 120.0
 
 
-def drifting_train(seed=0, n=400, slope_um_per_min=12.0, spread_um=3.0, strays=0):
+def drifting_train(seed=0, n=250, slope_um_per_min=12.0, spread_um=3.0, strays=0):
     """Invented: event times over two minutes, y moving linearly with Gaussian scatter, a few strays."""
     rng = np.random.default_rng(seed)
     t = np.sort(rng.uniform(0, SECONDS, n))
@@ -53,9 +53,9 @@ def test_drift_is_the_theil_sen_slope_in_um_per_minute():
 
 
 def test_drift_ignores_stray_events_a_least_squares_line_follows():
-    t, y = drifting_train(seed=1, strays=40)            # 10% of the events belong elsewhere
-    assert position_drift(t, y).value == pytest.approx(12.0, rel=0.1)
-    assert abs(np.polyfit(t / 60.0, y, 1)[0] - 12.0) > 6.0   # least squares (numpy polyfit) is pulled away
+    t, y = drifting_train(seed=1, strays=12)            # 5% of the events belong elsewhere, late and far
+    assert position_drift(t, y).value == pytest.approx(12.0, rel=0.15)
+    assert np.polyfit(t / 60.0, y, 1)[0] > 24.0         # least squares (numpy polyfit) is pulled to over twice
 
 
 def test_long_trains_enter_spread_evenly_and_keep_the_slope():
