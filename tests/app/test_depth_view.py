@@ -70,8 +70,8 @@ def test_a_sorted_probe_session_lists_each_units_depth_and_drift(window, tmp_pat
     panel, ctl = window.unit_panels["list"], window.units
     model = panel.model
     headers = [model.headerData(c, Qt.Orientation.Horizontal) for c in range(model.columnCount())]
-    assert headers[-3:] == ["depth\nµm", "drift\nµm/min", "note"]
-    depth, drift = headers.index("depth\nµm"), headers.index("drift\nµm/min")
+    assert headers[-3:] == ["depth\nµm", "moves\nµm/min", "note"]
+    depth, drift = headers.index("depth\nµm"), headers.index("moves\nµm/min")
     assert model.headerData(depth, Qt.Orientation.Horizontal, Qt.ItemDataRole.ToolTipRole) == POSITION_COLUMNS["y_um"]
     assert ctl.metrics and len(ctl.metrics) == model.rowCount()
     for r in range(model.rowCount()):

@@ -61,7 +61,7 @@ COLUMN_SPECS = (
 METRIC_KEYS = tuple(spec[1] for spec in COLUMN_SPECS[5:12])
 POSITION_SPECS = (
     ("depth\nµm", "y_um", 1, ".0f", POSITION_COLUMNS["y_um"]),
-    ("drift\nµm/min", "drift_um_per_min", 1, "+.1f", POSITION_COLUMNS["drift_um_per_min"]),
+    ("moves\nµm/min", "drift_um_per_min", 1, "+.1f", POSITION_COLUMNS["drift_um_per_min"]),
 )
 """Columns of a probe recording's units (before the note)."""
 POSITION_REASONS = {"y_um": None, "drift_um_per_min": "drift_reason"}
