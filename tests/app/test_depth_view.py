@@ -1,27 +1,40 @@
-"""The drift view in the window (real widgets, offscreen): a drifting synthetic probe opened in the
-window shows its events' depth against time, coloured by amplitude, with labelled axes and colour bar;
-zooming grids the shown span again; a bundle recording hides the view; a sorted probe session lists
-each unit's depth and drift."""
+"""The probe views in the window (real widgets, offscreen), on a sorted session of the bundled probe
+demo: the events' depth against time, coloured by amplitude, with labelled axes and colour bar;
+zooming grids the shown span again; the unit list gives each unit's depth and drift; a bundle
+recording hides the depth view."""
 
 from __future__ import annotations
+
+import shutil
 
 import numpy as np
 import pytest
 from PySide6.QtCore import Qt
 
+from rigside.cli.main import main
 from rigside.core.numbers import format_number
 from rigside.core.quality.depth_image import event_depth_image
-from rigside.core.synthetic.probe_synth import write_probe_synth
+from rigside.core.quality.unit_position import POSITION_COLUMNS
 from rigside.gui import jobs
 from rigside.gui.screenshot import capture, colour_share, pixels
+from rigside.sample_data import probe_demo_path
 from tests.app.conftest import demo_analysis
 
 
-def test_probe_events_are_drawn_as_depth_against_time(window, qtbot, tmp_path, monkeypatch):
-    path = tmp_path / "drifting probe.bin"
-    write_probe_synth(path, seconds=4, sites=32, columns=2, pitch_um=20.0, drift_um=40.0, seed=2)
-    assert window.open_path(str(path)) and window.wait_idle(120)
-    win = window
+@pytest.fixture
+def probe_session(window, tmp_path):
+    src = probe_demo_path()
+    for p in src.parent.glob(src.stem + ".*"):
+        shutil.copy(p, tmp_path / p.name)
+    session = tmp_path / "probe.rigside.h5"
+    assert main(["sort", str(tmp_path / src.name), "--session", str(session), "--quiet"]) == 0
+    window.units.files.timer.stop()
+    assert window.open_path(str(session)) and window.wait_idle(60)
+    return window
+
+
+def test_probe_events_are_drawn_as_depth_against_time(probe_session, qtbot, tmp_path, monkeypatch):
+    win = probe_session
     dock, panel = win.docks["depth_time"], win.panels["depth_time"]
     assert dock.isVisible() and panel.result is not None
     ev, rec = win.bench.events, win.bench.recording
@@ -38,37 +51,14 @@ def test_probe_events_are_drawn_as_depth_against_time(window, qtbot, tmp_path, m
     assert 1 - colour_share(rgb, (255, 255, 255), 10) > 0.05              # and coloured cells where they do
 
     whole = panel.result.n_events
-    panel.plot.setXRange(1.0, 2.0, padding=0.0)                           # zoom in time
-    qtbot.waitUntil(lambda: panel.result.time_range[1] < 2.5 and not win.runner.busy(), timeout=20000)
+    panel.plot.setXRange(0.5, 1.0, padding=0.0)                           # zoom in time
+    qtbot.waitUntil(lambda: panel.result.time_range[1] < 1.5 and not win.runner.busy(), timeout=20000)
     t0, t1 = panel.result.time_range
-    assert t0 == pytest.approx(1.0, abs=0.05) and t1 == pytest.approx(2.0, abs=0.05)
+    assert t0 == pytest.approx(0.5, abs=0.03) and t1 == pytest.approx(1.0, abs=0.03)
     assert 0 < panel.result.n_events < whole
     assert panel.bar.levels() == pytest.approx(expected.levels)           # the colour scale stays the shank's
 
-    cache = demo_analysis()                      # a bundle recording (the demo's cached analysis) hides it
-    monkeypatch.setattr(jobs, "analyse", lambda rec, *a, progress=None, cancel=None:
-                        (cache["noise"], cache["events"], cache["truth"]))
-    monkeypatch.setattr(jobs, "features", lambda *a, progress=None, cancel=None: cache["features"])
-    assert win.open_demo() and win.wait_idle(120)
-    assert not dock.isVisible() and panel.result is None
-
-
-def test_a_sorted_probe_session_lists_each_units_depth_and_drift(window, tmp_path):
-    import shutil
-
-    from rigside.cli.main import main
-    from rigside.core.quality.unit_position import POSITION_COLUMNS
-    from rigside.sample_data import probe_demo_path
-
-    src = probe_demo_path()
-    for p in src.parent.glob(src.stem + ".*"):
-        shutil.copy(p, tmp_path / p.name)
-    session = tmp_path / "probe.rigside.h5"
-    assert main(["sort", str(tmp_path / src.name), "--session", str(session), "--quiet"]) == 0
-    window.units.files.timer.stop()
-    assert window.open_path(str(session)) and window.wait_idle(60)
-    panel, ctl = window.unit_panels["list"], window.units
-    model = panel.model
+    model, ctl = win.unit_panels["list"].model, win.units                 # the unit list: depth and drift
     headers = [model.headerData(c, Qt.Orientation.Horizontal) for c in range(model.columnCount())]
     assert headers[-3:] == ["depth\nµm", "moves\nµm/min", "note"]
     depth, drift = headers.index("depth\nµm"), headers.index("moves\nµm/min")
@@ -78,4 +68,11 @@ def test_a_sorted_probe_session_lists_each_units_depth_and_drift(window, tmp_pat
         m = ctl.metrics[model.unit_at(r)]
         assert model.text(r, depth) == format_number(float(m["y_um"]))
         assert model.text(r, drift) == format_number(float(m["drift_um_per_min"]), signed=True)
-    assert window.docks["depth_time"].isVisible()
+
+    cache = demo_analysis()                      # a bundle recording (the demo's cached analysis) hides it
+    monkeypatch.setattr(jobs, "analyse", lambda rec, *a, progress=None, cancel=None:
+                        (cache["noise"], cache["events"], cache["truth"]))
+    monkeypatch.setattr(jobs, "features", lambda *a, progress=None, cancel=None: cache["features"])
+    assert win.open_demo() and win.wait_idle(120)
+    assert not dock.isVisible() and panel.result is None
+    assert "depth\nµm" not in [model.headerData(c, Qt.Orientation.Horizontal) for c in range(model.columnCount())]
