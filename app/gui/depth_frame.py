@@ -26,4 +26,7 @@ def install_depth(window):
         elif not probe:
             dock.hide()
     window.bench.recording_changed.connect(follow)
+    reset = window.actions_by_name.get("reset_layout")
+    if reset is not None:              # View > Reset shows every dock: this one again only on a probe
+        reset.triggered.connect(follow)
     return dock

@@ -75,4 +75,6 @@ def test_probe_events_are_drawn_as_depth_against_time(probe_session, qtbot, tmp_
     monkeypatch.setattr(jobs, "features", lambda *a, progress=None, cancel=None: cache["features"])
     assert win.open_demo() and win.wait_idle(120)
     assert not dock.isVisible() and panel.result is None
+    win.actions_by_name["reset_layout"].trigger()
+    assert not dock.isVisible() and win.docks["waveforms"].isVisible()
     assert "depth\nµm" not in [model.headerData(c, Qt.Orientation.Horizontal) for c in range(model.columnCount())]
