@@ -43,8 +43,7 @@ class DepthTimePanel(Panel):
         # small events pale on white, large ones dark; viridis's last yellows would vanish on white
         cmap = pg.colormap.get("viridis").getSubset(0.0, 0.85)
         cmap.reverse()
-        self.bar = pg.ColorBarItem(values=(0.0, 1.0), colorMap=cmap, label=AMPLITUDE_LABEL, interactive=False,
-                                   colorMapMenu=False)
+        self.bar = pg.ColorBarItem(values=(0.0, 1.0), colorMap=cmap, label=AMPLITUDE_LABEL, interactive=False)
         self.bar.setImageItem(self.image, insert_in=self.plot)
         self.note = QLabel("")
         self.note.setWordWrap(True)
