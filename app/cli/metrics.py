@@ -15,7 +15,8 @@ def register(sub: argparse._SubParsersAction) -> None:
     p = sub.add_parser("metrics", help="write the quality numbers of every unit of a session",
                        description="Compute per-unit quality numbers (rate, refractory violations and "
                                    "contamination, isolation distance, L-ratio, SNR, missed fraction, "
-                                   "presence ratio, amplitude drift) and write one CSV row per unit. "
+                                   "presence ratio, amplitude drift; on a probe also the unit's position "
+                                   "and its drift along the probe) and write one CSV row per unit. "
                                    + CAUTION)
     p.add_argument("session", help="session file (.h5) made by `rigside sort` or the window")
     p.add_argument("--out", required=True, metavar="METRICS.csv", help="CSV file to write")

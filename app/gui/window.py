@@ -29,6 +29,7 @@ from rigside.core.signal.overview import load_overview
 from rigside.core.units.session_open import file_kind, stored_noise
 from rigside.gui import jobs, overview_flow, palette
 from rigside.gui.audit_frame import install_audit
+from rigside.gui.depth_frame import install_depth
 from rigside.gui.export_menu import install_export
 from rigside.gui.model import Workbench
 from rigside.gui.opening import open_with_dialogs
@@ -52,10 +53,9 @@ MIN_TRACE_SHARE = 0.4
 """A restored layout must leave the traces at least this share of the window's height."""
 ANALYSIS_LABEL = "Detecting events"
 log = logging.getLogger("rigside")
-
 OPEN_FILTER = "Recordings and sessions (*.bin *.dat *.raw *.h5 *.hdf5);;All files (*)"
 
-EXTENSIONS: tuple[Callable[..., object], ...] = (install_units, install_audit, install_export, install_practice)
+EXTENSIONS: tuple[Callable, ...] = (install_units, install_audit, install_export, install_practice, install_depth)
 """Installers run on every new window: each adds its panels, menus and actions."""
 
 

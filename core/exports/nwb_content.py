@@ -23,7 +23,7 @@ from rigside.core.io.csv_text import fixed_values
 from rigside.core.params import MetricParams
 from rigside.core.progress import CancelFn, ProgressFn, check, report
 from rigside.core.quality.metric_settings import metric_settings
-from rigside.core.quality.unit_table import COLUMNS, sorting_unit_table
+from rigside.core.quality.unit_table import described_columns, sorting_unit_table
 from rigside.core.signal.filtering import BandPass
 from rigside.core.signal.pipeline import thresholds_sigma
 from rigside.core.signal.snippets import event_snippets, snippet_times_ms, spread_subsample
@@ -34,8 +34,6 @@ N_WAVEFORMS = 500
 """Events per unit averaged into its mean waveform (spread over the recording)."""
 LABEL_DESCRIPTION = f"curation label, one of: {', '.join(LABELS)}"
 NOTE_DESCRIPTION = "the curator's free-text note on the unit"
-QUALITY_COLUMNS = [c for c in COLUMNS if c != "unit"]
-"""Quality columns of the units table: the metrics CSV's columns (``unit`` is the table's id)."""
 PROVENANCE_COLUMNS: dict[str, str] = {
     "program": "program that wrote the units",
     "program_version": "its version",
@@ -67,7 +65,8 @@ class UnitsContent:
     labels, notes
         Curation label and note per row.
     columns
-        Quality column name -> values (one per row), as in the metrics CSV.
+        Quality column name -> values (one per row), as in the metrics CSV (``unit`` is the row id; a probe
+        recording's units add the position columns ``x_um``, ``y_um``, ``drift_um_per_min``, ``drift_reason``).
     descriptions
         Column name -> meaning and unit.
     waveform_mean, waveform_sd
@@ -175,15 +174,15 @@ def units_content(session, recording, metric_params: MetricParams | None = None,
     table = sorting_unit_table(ev, sorting, thresholds_sigma(session.params, ev.sigma_uv), mp, cancel=cancel)
     rows = {int(u): i for i, u in enumerate(table["unit"])}
     order = [rows[u] for u in ids]
-    columns = {c: [table[c][i] for i in order] for c in QUALITY_COLUMNS}
+    described = {c: d for c, d in described_columns(table).items() if c != "unit"}
+    columns = {c: [table[c][i] for i in order] for c in described}
     times = fixed_values(ev.time_s, TIME_DECIMALS)
     report(progress, 0.8, "units ready")
     return UnitsContent(
         ids=ids, groups=[sorting.unit(u).group for u in ids], main_channels=[int(v) for v in columns["main_channel"]],
         spike_times=[times[sorting.events_of(u)] for u in ids], labels=[sorting.unit(u).label for u in ids],
         notes=[sorting.unit(u).note for u in ids], columns=columns,
-        descriptions={c: COLUMNS[c] for c in QUALITY_COLUMNS} | {"label": LABEL_DESCRIPTION,
-                                                                  "note": NOTE_DESCRIPTION},
+        descriptions=described | {"label": LABEL_DESCRIPTION, "note": NOTE_DESCRIPTION},
         waveform_mean=mean, waveform_sd=sd, waveform_channels=channels,
         waveform_times_ms=snippet_times_ms(session.params.snippets, ev.rate_hz),
         provenance=provenance_row(session, mp, n_waveforms))

@@ -13,7 +13,9 @@ this one does not write are removed):
   ``k * bin_s <= time_s < (k + 1) * bin_s``; ``n_bins = ceil(duration_s / bin_s)``, so the
   last bin may reach past the end of the recording.
 - ``export.json``: what was written, from which session, with which program version;
-  ``complete`` (false while an export is under way or was interrupted) and ``files`` (name: bytes).
+  ``complete`` (false while an export is under way or was interrupted) and ``files`` (name: bytes);
+  ``units`` lists each unit (id, label, group, spike count, file) and, on a recording with site
+  positions, its position ``x_um``, ``y_um`` (micrometres, the unit table's: the medians of its events').
 """
 
 from __future__ import annotations
@@ -33,6 +35,7 @@ from rigside.core.io.atomic import atomic_write
 from rigside.core.io.csv_text import write_rows
 from rigside.core.io.h5image import h5_in_memory
 from rigside.core.progress import CancelFn, ProgressFn, check, report
+from rigside.core.quality.unit_position import unit_position
 from rigside.core.units.journal import utc_now
 from rigside.core.units.sorting import LABELS, Sorting
 
@@ -159,12 +162,16 @@ def export_sorting(events: EventTable, sorting: Sorting, out_dir: str | Path, bi
     folder = ExportFolder(out_dir, [f"unit_{u}.npy" for u in units] + [CSV_NAME, BINNED_NAME])
     times = events.time_s
     written: dict[str, list[Path]] = {"csv": [], "npy": [], "binned": [], "manifest": []}
-    trains = {}
+    trains, places = {}, {}
     for i, u in enumerate(units):
         check(cancel)
         report(progress, 0.5 * i / max(1, len(units)), f"spike times of unit {u}")
-        t = times[sorting.events_of(u)]
+        idx = sorting.events_of(u)
+        t = times[idx]
         trains[u] = t
+        if events.x_um is not None and len(idx):
+            x, y = unit_position(events.x_um[idx], events.y_um[idx])
+            places[u] = {"x_um": round(x, 2), "y_um": round(y, 2)}
         written["npy"].append(_write_npy(folder.path(f"unit_{u}.npy"), t))
 
     written["csv"].append(write_unit_times(folder.path(CSV_NAME), trains,
@@ -189,7 +196,7 @@ def export_sorting(events: EventTable, sorting: Sorting, out_dir: str | Path, bi
     manifest = {"program_version": __version__, "exported_utc": utc_now(), "source": source,
                 "bin_s": bin_s, "n_bins": n_bins, "duration_s": events.duration_s,
                 "units": [{"unit": u, "label": r.label, "group": r.group, "count": len(trains[u]),
-                           "file": f"unit_{u}.npy"} for u, r in units.items()]}
+                           "file": f"unit_{u}.npy"} | places.get(u, {}) for u, r in units.items()]}
     written["manifest"].append(folder.finish(manifest))
     report(progress, 1.0, "export done")
     return written

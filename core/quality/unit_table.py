@@ -2,8 +2,10 @@
 
 The table is a dict of equal-length column arrays, rows sorted by unit id. Metrics that are
 undefined for a unit are NaN, with the reason in the matching ``*_reason`` column.
-:data:`COLUMNS` describes every column; :mod:`rigside.core.quality.unit_table_io` writes the table to CSV and
-flags units against limits.
+:data:`COLUMNS` describes every column; recordings with site positions add the columns of
+:data:`~rigside.core.quality.unit_position.POSITION_COLUMNS` (position and drift), absent otherwise
+(:func:`described_columns` lists those of a table); :mod:`rigside.core.quality.unit_table_io`
+writes the table to CSV and flags units against limits.
 """
 
 from __future__ import annotations
@@ -21,6 +23,7 @@ from rigside.core.quality.caution import CAUTION  # noqa: F401 (re-exported)
 from rigside.core.quality.metric_inputs import positive, same_length, spike_times
 from rigside.core.quality.metrics import amplitude_drift, cv_isi, isi_violations, missed_fraction, presence_ratio, snr
 from rigside.core.quality.separation import separation_of_checked
+from rigside.core.quality.unit_position import POSITION_COLUMNS, position_drift, unit_position
 from rigside.core.units.sorting import NO_UNIT
 
 if TYPE_CHECKING:  # annotations only: importing features would load scikit-learn
@@ -60,6 +63,12 @@ COLUMNS: dict[str, str] = {
 INT_COLUMNS = frozenset({"unit", "group", "main_channel", "n_events", "isi_violations"})
 
 
+def described_columns(table: dict) -> dict[str, str]:
+    """The described columns ``table`` holds, in order: :data:`COLUMNS`, then the position columns
+    when it has them."""
+    return COLUMNS | (POSITION_COLUMNS if all(c in table for c in POSITION_COLUMNS) else {})
+
+
 def _int_column(x, name: str, n: int) -> np.ndarray:
     a = np.asarray(x)
     if a.ndim != 1 or not np.issubdtype(a.dtype, np.integer):
@@ -80,7 +89,7 @@ class _Inputs:
     """The checked event columns of one table computation."""
 
     def __init__(self, times_s, units, duration_s, amplitudes_uv, amplitude_sigma, channel, sigma_uv,
-                 threshold_sigma, features, groups):
+                 threshold_sigma, features, groups, positions=None):
         self.duration = positive("recording duration", duration_s)
         self.times = spike_times(times_s, self.duration, name="event times")
         n = len(self.times)
@@ -112,6 +121,13 @@ class _Inputs:
             if not np.all(np.isfinite(f)):
                 raise RigsideError("features must hold finite numbers, got NaN or infinite values")
             self.features = f
+        self.positions = None
+        if positions is not None:
+            p = np.asarray(positions, dtype=np.float64)
+            if p.shape != (n, 2) or not np.all(np.isfinite(p)):
+                raise RigsideError(f"event positions must be events x 2 (x_um, y_um) finite numbers with {n} rows, "
+                                   f"got shape {p.shape}")
+            self.positions = p
 
 
 @numba.njit(cache=True, nogil=True)
@@ -210,7 +226,7 @@ def unit_metrics_table(times_s: np.ndarray, units: np.ndarray, duration_s: float
                        sigma_uv: np.ndarray, threshold_sigma, features: np.ndarray | None,
                        event_groups: np.ndarray | None = None, params: MetricParams | None = None,
                        progress: ProgressFn = None, cancel: CancelFn = None,
-                       only_units=None) -> dict[str, np.ndarray]:
+                       only_units=None, event_positions: np.ndarray | None = None) -> dict[str, np.ndarray]:
     """Quality metrics of every unit, one row per unit id (sorted).
 
     Parameters
@@ -245,24 +261,28 @@ def unit_metrics_table(times_s: np.ndarray, units: np.ndarray, duration_s: float
         Progress callback and cancel check (see :mod:`rigside.core.progress`).
     only_units
         Compute only these unit ids (e.g. after one unit changed); None for all.
+    event_positions
+        Events x 2 estimated positions (``x_um``, ``y_um``) on a probe, or None: the position and
+        drift columns (:data:`~rigside.core.quality.unit_position.POSITION_COLUMNS`) are then absent.
 
     Returns
     -------
     dict of str to numpy.ndarray
-        Columns named in :data:`COLUMNS`. Main-channel metrics (SNR, missed fraction,
-        amplitude drift) use the unit's events detected on its main channel.
+        Columns named in :data:`COLUMNS` (and the position columns). Main-channel metrics (SNR,
+        missed fraction, amplitude drift) use the unit's events detected on its main channel.
     """
     params = params or MetricParams()
     params.validate()
     inp = _Inputs(times_s, units, duration_s, amplitudes_uv, amplitude_sigma, channel, sigma_uv,
-                  threshold_sigma, features, event_groups)
+                  threshold_sigma, features, event_groups, event_positions)
     ids, rows = _unit_rows(inp, only_units)
     unit_groups = [_mode(inp.groups[r]) for r in rows]
     ordered = sorted(range(len(ids)), key=lambda i: unit_groups[i])
     space = None
     if inp.features is not None:
         space = _GroupSpace(inp, None if only_units is None else set(unit_groups))
-    out: dict[str, list] = {name: [None] * len(ids) for name in COLUMNS}
+    names = COLUMNS if inp.positions is None else COLUMNS | POSITION_COLUMNS
+    out: dict[str, list] = {name: [None] * len(ids) for name in names}
     for done, i in enumerate(ordered):
         check(cancel)
         row = _one_unit(inp, params, int(ids[i]), rows[i], unit_groups[i], space)
@@ -297,7 +317,7 @@ def _one_unit(inp: _Inputs, params: MetricParams, unit: int, rows: np.ndarray, g
     miss = missed_fraction(inp.amp_sigma[on_main], inp.threshold[main], params.missed_min_events)
     drift = amplitude_drift(inp.times[on_main], inp.amp_uv[on_main])
     cv = cv_isi(t)
-    return {
+    return _position_row(inp, rows) | {
         "unit": unit, "group": group, "main_channel": main, "n_events": len(rows),
         "rate_hz": len(rows) / inp.duration, "cv_isi": cv.value, "cv_isi_reason": cv.reason,
         "isi_violations": isi.n_violations,
@@ -316,6 +336,15 @@ def _one_unit(inp: _Inputs, params: MetricParams, unit: int, rows: np.ndarray, g
     }
 
 
+def _position_row(inp: _Inputs, rows: np.ndarray) -> dict:
+    """The position columns of one unit (none without event positions)."""
+    if inp.positions is None:
+        return {}
+    x, y = unit_position(inp.positions[rows, 0], inp.positions[rows, 1])
+    drift = position_drift(inp.times[rows], inp.positions[rows, 1])
+    return {"x_um": x, "y_um": y, "drift_um_per_min": drift.value, "drift_reason": drift.reason}
+
+
 def unit_metrics_for_events(events: EventTable, units: np.ndarray, features: Features | None,
                             threshold_sigma, params: MetricParams | None = None,
                             progress: ProgressFn = None, cancel: CancelFn = None,
@@ -326,7 +355,7 @@ def unit_metrics_for_events(events: EventTable, units: np.ndarray, features: Fea
     feature space of isolation distance and L-ratio: shape measures such as a width counted
     in whole samples often take one value across a unit and make its covariance singular.
     ``threshold_sigma`` is the detection threshold in sigma (one number or one per channel,
-    e.g. ``events.thresholds_sigma(...)``).
+    e.g. ``events.thresholds_sigma(...)``). Events with positions (a probe) add the position columns.
     """
     pcs = None
     if features is not None:
@@ -335,10 +364,11 @@ def unit_metrics_for_events(events: EventTable, units: np.ndarray, features: Fea
             raise RigsideError(f"features must hold principal components (PC1, ...), got "
                                f"{', '.join(features.names)}")
         pcs = features.values[:, cols]
+    positions = None if events.x_um is None else np.column_stack([events.x_um, events.y_um])
     return unit_metrics_table(events.time_s, units, events.duration_s, events.amplitude_uv,
                               events.amplitude_sigma, events.channel, events.sigma_uv,
                               threshold_sigma, pcs, events.group, params, progress, cancel,
-                              only_units)
+                              only_units, positions)
 
 
 def sorting_unit_table(events: EventTable, sorting, threshold_sigma, params: MetricParams | None = None,

@@ -20,7 +20,8 @@ import numpy as np
 from rigside.core.errors import ParamError, RigsideError
 from rigside.core.io.atomic import atomic_write
 from rigside.core.quality.metric_settings import censored_note
-from rigside.core.quality.unit_table import CAUTION, COLUMNS, INT_COLUMNS, MetricParams
+from rigside.core.quality.unit_position import POSITION_COLUMNS
+from rigside.core.quality.unit_table import CAUTION, COLUMNS, INT_COLUMNS, MetricParams, described_columns
 
 
 @dataclass(frozen=True)
@@ -126,7 +127,7 @@ def comment_text(line: str) -> str:
 
 
 def _cell(column: str, value) -> str:
-    if column.endswith("_reason") or column not in COLUMNS:
+    if column.endswith("_reason") or (column not in COLUMNS and column not in POSITION_COLUMNS):
         return str(value)
     if column in INT_COLUMNS:
         return str(int(value))
@@ -140,8 +141,9 @@ def write_unit_table_csv(table: dict[str, np.ndarray], path: str | Path,
     Parameters
     ----------
     table
-        A table from :func:`rigside.core.quality.unit_table.unit_metrics_table`; columns beyond
-        :data:`~rigside.core.quality.unit_table.COLUMNS` (e.g. ``label``) are written after them as text.
+        A table from :func:`rigside.core.quality.unit_table.unit_metrics_table`; its position columns
+        (a probe) follow :data:`~rigside.core.quality.unit_table.COLUMNS`, and further columns (e.g.
+        ``label``) are written after them as text.
     path
         Target CSV file.
     params
@@ -156,13 +158,14 @@ def write_unit_table_csv(table: dict[str, np.ndarray], path: str | Path,
     if missing:
         raise RigsideError(f"unit table must hold every column, got none for {', '.join(missing)}")
     n = len(table["unit"])
-    if any(len(table[c]) != n for c in COLUMNS):
+    described = described_columns(table)
+    if any(len(table[c]) != n for c in described):
         raise RigsideError("unit table columns must all have one row per unit, got differing lengths")
     settings = ", ".join(f"{k} = {v:g}" for k, v in asdict(params or MetricParams()).items())
-    columns = list(COLUMNS) + [c for c in table if c not in COLUMNS]
-    text = [c for c in columns if c.endswith("_reason") or c not in COLUMNS]
+    columns = list(described) + [c for c in table if c not in described]
+    text = [c for c in columns if c.endswith("_reason") or c not in described]
     header = ["rigside unit quality table", CAUTION, f"settings: {settings}", censored_note(params or MetricParams())]
-    return write_described_csv(path, header, COLUMNS, columns, table, _cell, text)
+    return write_described_csv(path, header, described, columns, table, _cell, text)
 
 
 def write_described_csv(path: str | Path, header: list[str], meanings: dict[str, str], columns: list[str],

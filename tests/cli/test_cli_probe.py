@@ -92,3 +92,31 @@ def test_every_recording_command_takes_positions(command):
             "open": ["open", "r.bin"]}[command]
     parsed = build_parser(command).parse_args([*args, "--positions", "sites.csv"])
     assert parsed.positions == "sites.csv"
+
+
+def test_sorted_probe_units_carry_position_and_drift_into_metrics_and_exports(probe):
+    """The probe's units through sort, metrics and both exports: the position columns (after the
+    bundle columns in the metrics CSV; described extra columns of the NWB units table, checked by the
+    standard's validator, pynwb.validate) hold the same numbers everywhere."""
+    from rigside.core.quality.unit_position import POSITION_COLUMNS
+    from rigside.core.quality.unit_table import COLUMNS
+
+    session, metrics = probe / "s.rigside.h5", probe / "m.csv"
+    assert main(["sort", str(probe / "p.bin"), "--session", str(session), "--quiet"]) == 0
+    assert main(["metrics", str(session), "--out", str(metrics), "--quiet"]) == 0
+    lines = metrics.read_text().splitlines()
+    rows = list(csv.DictReader(ln for ln in lines if not ln.startswith("#")))
+    assert rows and list(rows[0])[:len(COLUMNS) + len(POSITION_COLUMNS)] == [*COLUMNS, *POSITION_COLUMNS]
+    assert all(0 <= float(r["y_um"]) <= 175 and r["drift_um_per_min"] != "" for r in rows)   # 8 rows of 25 um
+    assert main(["export", str(session), "--out", str(probe / "folder"), "--quiet"]) == 0
+    listed = json.loads((probe / "folder" / "export.json").read_text())["units"]
+    assert [e["y_um"] for e in listed] == pytest.approx([float(r["y_um"]) for r in rows], abs=0.006)
+    pynwb = pytest.importorskip("pynwb")
+    assert main(["export", str(session), "--nwb", str(probe / "u.nwb"), "--quiet"]) == 0
+    assert pynwb.validate(path=str(probe / "u.nwb")) == []
+    with pynwb.NWBHDF5IO(str(probe / "u.nwb"), "r") as io:
+        units = io.read().units
+        for c, meaning in POSITION_COLUMNS.items():
+            assert units[c].description == meaning
+        np.testing.assert_allclose(units["y_um"][:], [float(r["y_um"]) for r in rows], rtol=1e-5)
+        assert list(units["drift_reason"][:]) == [r["drift_reason"] for r in rows]

@@ -84,6 +84,7 @@ def test_export_passes_the_validator_and_reads_back_as_the_session(sorted_sessio
         for c in COLUMNS:
             if c != "unit":
                 assert units[c].description == COLUMNS[c]
+        assert "y_um" not in units.colnames and "drift_um_per_min" not in units.colnames   # no positions: as before
         assert len(nwb.electrodes) == rec.n_channels
         assert list(nwb.electrodes["group_name"][:]) == [rec.group_names[g] for g in rec.channel_group]
         first = units["electrodes"][0]

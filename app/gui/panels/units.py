@@ -6,7 +6,8 @@ italics, selectable like a unit so its events can be seen and outlined into one.
 
 A number beyond its limit is marked three ways (a "!" before it, bold text and a tinted
 cell) so the mark never rests on colour alone; an undefined number shows "—" with its
-reason as a tooltip. Selected units carry their highlight colour in the id column.
+reason as a tooltip. Selected units carry their highlight colour in the id column. On a recording
+with site positions two columns join before the note: the unit's depth and its drift along the probe.
 """
 
 from __future__ import annotations
@@ -26,6 +27,7 @@ from PySide6.QtGui import QBrush, QColor, QFont
 from PySide6.QtWidgets import QAbstractItemView, QLabel, QTableView, QVBoxLayout
 
 from rigside.core.numbers import format_number
+from rigside.core.quality.unit_position import POSITION_COLUMNS
 from rigside.core.quality.unit_table import CAUTION, COLUMNS
 from rigside.core.quality.unit_table_io import reason_column
 from rigside.core.units.sorting import LABELS, pool_group, pool_id
@@ -65,6 +67,13 @@ COLUMN_SPECS = (
     ("note", "note", 1, "", "free-text note"),
 )
 METRIC_KEYS = tuple(spec[1] for spec in COLUMN_SPECS[5:12])
+POSITION_SPECS = (
+    ("depth\nµm", "y_um", 1, ".0f", POSITION_COLUMNS["y_um"]),
+    ("moves\nµm/min", "drift_um_per_min", 1, "+.1f", POSITION_COLUMNS["drift_um_per_min"]),
+)
+"""Columns of a probe recording's units (before the note)."""
+POSITION_REASONS = {"y_um": None, "drift_um_per_min": "drift_reason"}
+MEANINGS = COLUMNS | POSITION_COLUMNS
 
 
 class UnitTableModel(QAbstractTableModel):
@@ -75,11 +84,14 @@ class UnitTableModel(QAbstractTableModel):
         self.ctl = controller
         self.rows: list[dict] = []
         self.flags_by_unit: dict[int, set[str]] = {}
+        self.specs = COLUMN_SPECS
 
     def rebuild(self) -> None:
         self.beginResetModel()
         sorting, self.rows = self.ctl.sorting, []
         self.flags_by_unit = self.ctl.flags()
+        probe = sorting is not None and self.ctl.events.y_um is not None
+        self.specs = COLUMN_SPECS[:-1] + POSITION_SPECS + COLUMN_SPECS[-1:] if probe else COLUMN_SPECS
         if sorting is not None:
             counts, duration = sorting.counts(), self.ctl.events.duration_s
             for u, rec in sorting.units.items():
@@ -87,9 +99,9 @@ class UnitTableModel(QAbstractTableModel):
                        "label": rec.label, "note": rec.note, "n_events": counts.get(u, 0),
                        "rate_hz": counts.get(u, 0) / duration}
                 m = self.ctl.metrics.get(u)
-                for key in METRIC_KEYS:
+                for key in METRIC_KEYS + (tuple(POSITION_REASONS) if probe else ()):
                     row[key] = float(m[key]) if m is not None else math.nan
-                    rc = reason_column(key)
+                    rc = POSITION_REASONS[key] if key in POSITION_REASONS else reason_column(key)
                     row[key + ":why"] = (str(m[rc]) if rc else "") if m is not None else "not computed yet"
                 if m is not None:
                     row["amplitude_change_fraction:slope"] = float(m["amplitude_slope_uv_per_min"])
@@ -111,15 +123,15 @@ class UnitTableModel(QAbstractTableModel):
         return 0 if parent.isValid() else len(self.rows)
 
     def columnCount(self, parent=QModelIndex()) -> int:
-        return 0 if parent.isValid() else len(COLUMN_SPECS)
+        return 0 if parent.isValid() else len(self.specs)
 
     def headerData(self, section, orientation, role=Qt.ItemDataRole.DisplayRole):
         if orientation != Qt.Orientation.Horizontal:
             return None
         if role == Qt.ItemDataRole.DisplayRole:
-            return COLUMN_SPECS[section][0]
+            return self.specs[section][0]
         if role == Qt.ItemDataRole.ToolTipRole:
-            return COLUMN_SPECS[section][4]
+            return self.specs[section][4]
         return None
 
     def unit_at(self, row: int) -> int:
@@ -132,7 +144,7 @@ class UnitTableModel(QAbstractTableModel):
         return key in self.flags_by_unit.get(self.rows[row]["unit"], set())
 
     def text(self, row: int, col: int) -> str:
-        _, key, scale, fmt, _ = COLUMN_SPECS[col]
+        _, key, scale, fmt, _ = self.specs[col]
         value = self.rows[row][key]
         if key == "unit" and self.is_pool(row):
             return "·"
@@ -148,7 +160,7 @@ class UnitTableModel(QAbstractTableModel):
         if not index.isValid():
             return None
         row, col = index.row(), index.column()
-        key = COLUMN_SPECS[col][1]
+        key = self.specs[col][1]
         r = self.rows[row]
         if role == Qt.ItemDataRole.DisplayRole:
             return self.text(row, col)
@@ -172,7 +184,7 @@ class UnitTableModel(QAbstractTableModel):
         if role == Qt.ItemDataRole.DecorationRole and key == "unit":
             c = self.ctl.unit_colour(r["unit"])
             return QColor(*c) if c is not None else None
-        if key in METRIC_KEYS:
+        if key in METRIC_KEYS or key in POSITION_REASONS:
             if role == Qt.ItemDataRole.BackgroundRole and self.flagged(row, key):
                 return QBrush(FLAG_TINT)
             if role == Qt.ItemDataRole.FontRole and self.flagged(row, key):
@@ -187,7 +199,7 @@ class UnitTableModel(QAbstractTableModel):
 
     def _tooltip(self, row: int, key: str) -> str:
         r = self.rows[row]
-        lines = [COLUMNS[key]]
+        lines = [MEANINGS[key]]
         if key == "amplitude_change_fraction" and "amplitude_change_fraction:slope" in r:
             lines.append(f"slope: {r['amplitude_change_fraction:slope']:.3g} µV/min")
         if not math.isfinite(r[key]) and r[key + ":why"]:
@@ -313,7 +325,7 @@ class UnitListPanel(Panel):
         self.table.viewport().update()
 
     def _fit_columns(self, *_) -> None:
-        fit_columns(self.table, {len(COLUMN_SPECS) - 1: NOTE_WIDTH})
+        fit_columns(self.table, {len(self.model.specs) - 1: NOTE_WIDTH})
 
     def wanted_width(self) -> int:
         """Width (pixels) showing every column without a horizontal scrollbar."""
