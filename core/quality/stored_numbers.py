@@ -19,6 +19,7 @@ import numpy as np
 from rigside.core import __version__
 from rigside.core.progress import CancelFn, ProgressFn
 from rigside.core.quality.metric_settings import metric_settings
+from rigside.core.quality.unit_position import POSITION_COLUMNS
 from rigside.core.quality.unit_table import COLUMNS, column_dtype, unit_metrics_for_events
 from rigside.core.signal.features import Features
 from rigside.core.signal.pipeline import thresholds_sigma
@@ -28,6 +29,12 @@ from rigside.core.units.session_numbers import StoredTable
 
 MEMBERS = "members"
 """Stored column: digest of each unit's events when its numbers were computed."""
+
+
+def stored_columns(session: Session) -> dict[str, str]:
+    """The columns of the session's quality table: :data:`COLUMNS`, and the position columns when its
+    events carry positions (a probe)."""
+    return COLUMNS | (POSITION_COLUMNS if session.events.x_um is not None else {})
 
 
 def numbers_key(session: Session) -> str:
@@ -65,11 +72,11 @@ def numbers_to_store(session: Session, rows: dict[int, dict]) -> StoredTable:
     session
         The session being saved (its sorting as saved).
     rows
-        ``{unit: {column: value}}`` with every column of :data:`rigside.core.quality.unit_table.COLUMNS`.
+        ``{unit: {column: value}}`` with every column of :func:`stored_columns`.
     """
     s = session.sorting
     units = sorted(u for u in rows if u in s.units)
-    columns = {c: np.array([rows[u][c] for u in units], dtype=column_dtype(c)) for c in COLUMNS}
+    columns = {c: np.array([rows[u][c] for u in units], dtype=column_dtype(c)) for c in stored_columns(session)}
     columns[MEMBERS] = np.array([members_digest(s, [u]) for u in units], dtype=str)
     return StoredTable(numbers_key(session), columns)
 
@@ -86,7 +93,8 @@ def current_numbers(session: Session) -> tuple[dict[int, dict], list[int]]:
     s = session.sorting
     table = session.unit_numbers
     units = s.unit_ids()
-    if table is None or table.key != numbers_key(session) or not set(COLUMNS) | {MEMBERS} <= set(table.columns):
+    names = stored_columns(session)
+    if table is None or table.key != numbers_key(session) or not set(names) | {MEMBERS} <= set(table.columns):
         return {}, units
     stored = table.columns
     index = {int(u): i for i, u in enumerate(stored["unit"].tolist())}
@@ -94,5 +102,5 @@ def current_numbers(session: Session) -> tuple[dict[int, dict], list[int]]:
     for u in units:
         i = index.get(u)
         if i is not None and str(stored[MEMBERS][i]) == members_digest(s, [u]):
-            rows[u] = {c: stored[c][i] for c in COLUMNS}
+            rows[u] = {c: stored[c][i] for c in names}
     return rows, [u for u in units if u not in rows]

@@ -21,19 +21,26 @@ from rigside.core.units.session import RecordingRef, Session, file_fingerprint, 
 from .sorting_data import make_events
 
 
-@pytest.fixture(scope="module")
-def saved(tmp_path_factory):
-    """A session with two groups, saved with its quality numbers."""
-    d = tmp_path_factory.mktemp("numbers")
+def _saved(d, positions: bool):
     raw = d / "rec.bin"
     raw.write_bytes(np.random.default_rng(0).integers(0, 255, 1 << 16, dtype=np.uint8).tobytes())
     events, x, _, _ = make_events(n=1500, n_groups=2, clusters=3, seed=5)
+    if positions:  # a probe's events carry positions: the table gains the position and drift columns
+        rng = np.random.default_rng(2)
+        events.x_um = rng.uniform(0, 40, len(events)).astype(np.float32)
+        events.y_um = rng.uniform(0, 600, len(events)).astype(np.float32)
     names = [f"PC{i + 1}" for i in range(x.shape[1])]
     sorting = first_pass(events, x, seed=1, feature_names=names)
     ref = RecordingRef(str(raw), raw.stat().st_size, file_fingerprint(raw), {"channels": 8})
     session = Session(ref, Params(), events, sorting)
     session.unit_numbers = numbers_to_store(session, table_rows(compute_numbers(session)))
     return save_session(d / "s.h5", session)
+
+
+@pytest.fixture(scope="module")
+def saved(tmp_path_factory):
+    """A session with two groups, saved with its quality numbers."""
+    return _saved(tmp_path_factory.mktemp("numbers"), positions=False)
 
 
 def _same(a: dict, b: dict) -> bool:
@@ -50,6 +57,14 @@ def test_stored_numbers_come_back_equal_to_a_fresh_computation(saved):
     fresh = table_rows(compute_numbers(s))
     assert all(_same(rows[u], fresh[u]) for u in fresh)
     assert all(type(rows[u][c]) is type(fresh[u][c]) for u in fresh for c in fresh[u])
+
+
+def test_a_probe_session_keeps_its_position_columns(tmp_path):
+    s = load_session(_saved(tmp_path, positions=True))
+    rows, stale = current_numbers(s)
+    fresh = table_rows(compute_numbers(s))
+    assert stale == [] and all("y_um" in r and "drift_um_per_min" in r for r in rows.values())
+    assert all(_same(rows[u], fresh[u]) for u in fresh)
 
 
 def test_a_changed_unit_is_recomputed_and_only_it(saved, tmp_path):
