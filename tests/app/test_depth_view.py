@@ -21,13 +21,22 @@ from rigside.sample_data import probe_demo_path
 from tests.app.conftest import demo_analysis
 
 
-@pytest.fixture
-def probe_session(window, tmp_path):
+@pytest.fixture(scope="module")
+def probe_session_file(tmp_path_factory):
+    """A copy of the probe demo and the session `rigside sort` wrote of it (sorted once, as the other
+    window tests sort theirs, before each test's thread count is taken)."""
+    base = tmp_path_factory.mktemp("probe")
     src = probe_demo_path()
     for p in src.parent.glob(src.stem + ".*"):
-        shutil.copy(p, tmp_path / p.name)
-    session = tmp_path / "probe.rigside.h5"
-    assert main(["sort", str(tmp_path / src.name), "--session", str(session), "--quiet"]) == 0
+        shutil.copy(p, base / p.name)
+    session = base / "probe.rigside.h5"
+    assert main(["sort", str(base / src.name), "--session", str(session), "--quiet"]) == 0
+    return session
+
+
+@pytest.fixture
+def probe_session(window, probe_session_file):
+    session = probe_session_file
     window.units.files.timer.stop()
     assert window.open_path(str(session)) and window.wait_idle(60)
     return window
