@@ -3,8 +3,10 @@
 from __future__ import annotations
 
 import gc
+import shutil
 import threading
 import time
+from pathlib import Path
 
 import numpy as np
 import psutil
@@ -12,6 +14,7 @@ import pytest
 from PySide6.QtCore import QSettings
 from PySide6.QtWidgets import QApplication, QWidget
 
+from rigside.cli.main import main
 from rigside.core.io.recording import open_recording
 from rigside.core.params import Params
 from rigside.gui import jobs
@@ -147,3 +150,18 @@ def visible_passing_times(win, thresholds_sigma) -> np.ndarray:
     keep = ev.mask(threshold_sigma=thresholds_sigma)
     keep &= (ev.sample >= a) & (ev.sample < z) & np.isin(ev.channel, win.bench.shown_channels)
     return ev.sample[keep] / ev.rate_hz
+
+
+def copy_sample(src: Path, folder: Path) -> Path:
+    """A copy of a bundled recording and its side files in ``folder`` (made if missing); its path."""
+    folder.mkdir(parents=True, exist_ok=True)
+    for p in src.parent.glob(src.stem + ".*"):
+        shutil.copy(p, folder / p.name)
+    return folder / src.name
+
+
+def sorted_copy(src: Path, folder: Path, session_name: str) -> tuple[Path, Path]:
+    """A copy of a bundled recording and the session `rigside sort` wrote of it, both in ``folder``."""
+    rec, session = copy_sample(src, folder), folder / session_name
+    assert main(["sort", str(rec), "--session", str(session), "--quiet"]) == 0
+    return rec, session

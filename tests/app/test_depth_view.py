@@ -5,33 +5,24 @@ recording hides the depth view."""
 
 from __future__ import annotations
 
-import shutil
-
 import numpy as np
 import pytest
 from PySide6.QtCore import Qt
 
-from rigside.cli.main import main
 from rigside.core.numbers import format_number
 from rigside.core.quality.depth_image import event_depth_image
 from rigside.core.quality.unit_position import POSITION_COLUMNS
 from rigside.gui import jobs
 from rigside.gui.screenshot import capture, colour_share, pixels
 from rigside.sample_data import probe_demo_path
-from tests.app.conftest import demo_analysis
+from tests.app.conftest import demo_analysis, sorted_copy
 
 
 @pytest.fixture(scope="module")
 def probe_session_file(tmp_path_factory):
     """A copy of the probe demo and the session `rigside sort` wrote of it (sorted once, as the other
     window tests sort theirs, before each test's thread count is taken)."""
-    base = tmp_path_factory.mktemp("probe")
-    src = probe_demo_path()
-    for p in src.parent.glob(src.stem + ".*"):
-        shutil.copy(p, base / p.name)
-    session = base / "probe.rigside.h5"
-    assert main(["sort", str(base / src.name), "--session", str(session), "--quiet"]) == 0
-    return session
+    return sorted_copy(probe_demo_path(), tmp_path_factory.mktemp("probe"), "probe.rigside.h5")[1]
 
 
 @pytest.fixture

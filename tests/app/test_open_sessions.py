@@ -19,26 +19,15 @@ from rigside.gui.panels.units import POOL_LABEL
 from rigside.gui.screenshot import pixels
 from rigside.gui.workers import Runner
 from rigside.sample_data import demo_path
+from tests.app.conftest import copy_sample, sorted_copy
 
 DETECTION_SLOTS = {"analysis", "features"}
-
-
-def _copy_demo(folder):
-    folder.mkdir(parents=True)
-    src = demo_path()
-    for p in src.parent.glob(src.stem + ".*"):
-        shutil.copy(p, folder / p.name)
-    return folder / src.name
 
 
 @pytest.fixture(scope="module")
 def sorted_session(tmp_path_factory):
     """A copy of the demo and the session `rigside sort` wrote of it (once for the module)."""
-    base = tmp_path_factory.mktemp("sorted")
-    rec = _copy_demo(base / "rec")
-    session = base / "demo-sorted.h5"
-    assert main(["sort", str(rec), "--session", str(session), "--quiet"]) == 0
-    return rec, session
+    return sorted_copy(demo_path(), tmp_path_factory.mktemp("sorted"), "demo-sorted.h5")
 
 
 @pytest.fixture
@@ -131,7 +120,7 @@ def test_the_screenshot_shows_the_unit_list(sorted_session, rendered, tmp_path):
 
 def test_a_session_whose_recording_moved_opens_with_session(sorted_session, rendered, tmp_path, capsys):
     rec, session = sorted_session
-    moved = _copy_demo(tmp_path / "moved")
+    moved = copy_sample(demo_path(), tmp_path / "moved")
     s2 = tmp_path / "s.h5"
     shutil.copy(session, s2)
     for part in session.parent.glob(session.name + ".static-*"):   # a session is copied with its static part

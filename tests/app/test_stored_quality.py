@@ -4,29 +4,21 @@ reference), a changed unit is computed again alone, and a session saved without 
 
 from __future__ import annotations
 
-import shutil
-
 import numpy as np
 import pytest
 
-from rigside.cli.main import main
 from rigside.core.quality.stored_numbers import compute_numbers, table_rows
 from rigside.core.units.session import load_session, save_session
 from rigside.gui.sorting_controller import METRICS_SLOT
 from rigside.gui.workers import Runner
 from rigside.sample_data import demo_path
+from tests.app.conftest import sorted_copy
 
 
 @pytest.fixture(scope="module")
 def sorted_demo(tmp_path_factory):
     """A copy of the demo and the session `rigside sort` wrote of it (with its quality numbers)."""
-    base = tmp_path_factory.mktemp("stored")
-    src = demo_path()
-    for p in src.parent.glob(src.stem + ".*"):
-        shutil.copy(p, base / p.name)
-    session = base / "demo.session.h5"
-    assert main(["sort", str(base / src.name), "--session", str(session), "--quiet"]) == 0
-    return session
+    return sorted_copy(demo_path(), tmp_path_factory.mktemp("stored"), "demo.session.h5")[1]
 
 
 @pytest.fixture

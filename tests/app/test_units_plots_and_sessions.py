@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import shutil
 from pathlib import Path
 
 import h5py
@@ -17,6 +16,7 @@ from rigside.gui.settings_store import settings
 from rigside.gui.sorting_controller import SELECTION_COLOURS
 from rigside.gui.window import MainWindow
 from rigside.sample_data import demo_path
+from tests.app.conftest import copy_sample
 from tests.app.units_helpers import biggest_unit, cluster_demo, select_biggest_pair
 
 
@@ -151,19 +151,10 @@ def test_a_corrupted_session_is_refused_with_a_message(window, tmp_path):
     assert window.units.sorting is None
 
 
-def _copied_demo(tmp_path):
-    src = demo_path()
-    folder = tmp_path / "rec"
-    folder.mkdir()
-    for p in src.parent.glob(src.stem + ".*"):
-        shutil.copy(p, folder / p.name)
-    return folder / src.name
-
-
 def test_moved_recording_is_asked_for_and_changed_one_is_refused(demo_window, tmp_path):
     win = demo_window
     ctl = win.units
-    rec = _copied_demo(tmp_path)
+    rec = copy_sample(demo_path(), tmp_path / "rec")
     assert win.open_path(str(rec))
     assert win.wait_idle(60)
     cluster_demo(win)
