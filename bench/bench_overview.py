@@ -11,6 +11,7 @@ Prints, measured in the same run:
   read replaces the overview's bins is printed too.
 
 Run: python bench/bench_overview.py [--seconds 3600] [--channels 64] [--baseline-max 600]
+     [--recording PATH]   (an existing recording, read only, instead of a synthesised one)
 """
 
 from __future__ import annotations
@@ -107,6 +108,7 @@ def main() -> int:
     ap.add_argument("--repeats", type=int, default=1, help="detection runs of each kind")
     ap.add_argument("--baseline-max", type=float, default=600.0,
                     help="longest span (s) the baseline reads (it filters the whole slice)")
+    ap.add_argument("--recording", type=Path, help="time this recording (read only) instead of a synthetic one")
     args = ap.parse_args()
     tmp = tempfile.TemporaryDirectory()
     folder = Path(tmp.name)
@@ -117,11 +119,12 @@ def main() -> int:
     from rigside.gui.window import MainWindow
 
     t = time.perf_counter()
-    path = synth(folder, args.seconds, args.channels)
-    print(f"recording: {args.seconds:g} s x {args.channels} channels, int16, {path.stat().st_size / 1e9:.2f} GB "
-          f"(synthesised in {time.perf_counter() - t:.0f} s); load average {os.getloadavg()[0]:.1f} on "
-          f"{os.cpu_count()} cores (shared machine: figures vary between runs)")
+    path = args.recording or synth(folder, args.seconds, args.channels)
     rec = open_recording(path)
+    made = "given" if args.recording else f"synthesised in {time.perf_counter() - t:.0f} s"
+    print(f"recording: {rec.n_samples / rec.rate_hz:g} s x {rec.n_channels} channels, "
+          f"{path.stat().st_size / 1e9:.2f} GB ({made}); load average {os.getloadavg()[0]:.1f} on "
+          f"{os.cpu_count()} cores (shared machine: figures vary between runs)")
     params = Params()
     noise = estimate_noise(rec, params)
     plain, with_ov, builder, events = detection_times(rec, params, noise, args.repeats)

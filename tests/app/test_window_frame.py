@@ -189,6 +189,27 @@ def test_dense_features_draw_as_a_density_image(demo_window):
     win.wait_idle(30)
 
 
+def test_dense_event_marks_draw_one_pixel_per_lane_and_column(demo_window, monkeypatch):
+    from rigside.core.event_pixels import event_pixels
+    from rigside.gui.panels import event_marks
+    win = demo_window
+    b, traces = win.bench, win.traces
+    monkeypatch.setattr(event_marks, "MARKER_LIMIT", 10)    # the demo holds too few events to be dense
+    b.set_view(0.0, b.recording.duration_s)
+    marks = traces.marks
+    assert marks.dense and marks.rug.isVisible()
+    a, z = 0, b.recording.n_samples
+    width = marks.rug_pixels.shape[1]
+    flags, _ = event_pixels(b.events, traces.lane, b.thresholds_sigma, a, z, width)
+    n = len(traces.offsets)
+    drawn = marks.rug_pixels[event_marks.RUG_ROWS - 1::event_marks.RUG_ROWS][::-1]   # lane 0 at the top
+    np.testing.assert_array_equal(drawn[:len(flags)], flags > 0)
+    assert drawn.shape[0] == n and marks.rug_pixels.sum() == (flags > 0).sum() > 0
+    monkeypatch.undo()
+    b.set_view(0.0, 1.0)
+    assert not marks.dense and len(marks.times()) > 0
+
+
 def test_screenshot_of_the_demo_has_content(demo_window, tmp_path):
     win = demo_window
     win.resize(1600, 1000)

@@ -5,6 +5,7 @@ from __future__ import annotations
 import numpy as np
 import pyqtgraph as pg
 
+from rigside.core.event_pixels import ARTEFACT, EVENT, event_pixels
 from rigside.gui import palette
 
 MARKER_LIMIT = 4000       # more events in view than this: one mark per pixel and channel
@@ -50,22 +51,21 @@ class EventMarks:
         if ev is None or bench.recording is None or not len(offsets):
             self.clear()
             return
-        i0, i1 = np.searchsorted(ev.sample, [a, z])
-        rows = ev.rows_on(np.flatnonzero(lane >= 0), a, z)  # the shown channels only (a probe has hundreds)
-        ch = ev.channel[rows]
-        lanes = lane[ch]
         thr = bench.thresholds_sigma.astype(np.float32)
-        passing = ev.amplitude_sigma[rows] >= thr[ch]
-        art = ev.artefact[rows]
-        self.dense = int(passing.sum()) > MARKER_LIMIT
+        flags, passing = event_pixels(ev, lane, thr, a, z, width)
+        self.dense = passing > MARKER_LIMIT
         self.rug.setVisible(self.dense)
         if self.dense:
             self.events.setData([], [])
             self.artefacts.setData([], [])
             self.chosen.setData([], [])
-            self._draw_rug(ev.sample[rows], lanes, passing & ~art, passing & art, offsets, spacing,
-                           a, z, width, ev.rate_hz)
+            self._draw_rug(flags, offsets, spacing, a, z, ev.rate_hz)
             return
+        i0, i1 = np.searchsorted(ev.sample, [a, z])
+        rows = ev.rows_on(np.flatnonzero(lane >= 0), a, z)  # the shown channels only (a probe has hundreds)
+        lanes = lane[ev.channel[rows]]
+        passing = ev.amplitude_sigma[rows] >= thr[ev.channel[rows]]
+        art = ev.artefact[rows]
         for item, keep in ((self.events, passing & ~art), (self.artefacts, passing & art)):
             idx = np.flatnonzero(keep)
             top = offsets[lanes[idx]] + MARK_TOP * spacing
@@ -89,15 +89,17 @@ class EventMarks:
         else:
             self.chosen.setData([], [])
 
-    def _draw_rug(self, samples, lanes, events, artefacts, offsets, spacing, a, z, width, rate) -> None:
-        n = len(offsets)
+    def _draw_rug(self, flags: np.ndarray, offsets, spacing, a, z, rate) -> None:
+        n, width = len(offsets), flags.shape[1]
         rgba = np.zeros((RUG_ROWS * n, width, 4), dtype=np.uint8)
-        for keep, colour in ((artefacts, palette.ARTEFACT), (events, palette.EVENT)):
-            px = np.minimum(((samples[keep] - a) * (width / max(1, z - a))).astype(np.int64), width - 1)
-            # lane 0 is at the top; image row 0 is at the bottom of the rug's rectangle
-            row = (n - 1 - lanes[keep]) * RUG_ROWS + RUG_ROWS - 1
-            rgba[row, px, :3] = colour
-            rgba[row, px, 3] = 255
+        # lane 0 is at the top; image row 0 is at the bottom of the rug's rectangle
+        marks = rgba[RUG_ROWS - 1::RUG_ROWS][::-1]
+        lanes = np.zeros((n, width), dtype=np.uint8)
+        lanes[:len(flags)] = flags
+        for bit, colour in ((ARTEFACT, palette.ARTEFACT), (EVENT, palette.EVENT)):
+            on = (lanes & bit) > 0
+            marks[on, :3] = colour
+            marks[on, 3] = 255
         self.rug_pixels = rgba[..., 3] > 0
         self.rug.setImage(rgba, autoLevels=False)
         bottom = offsets[-1] - 0.5 * spacing
