@@ -11,7 +11,12 @@ resident memory from ``os.wait4``):
   threshold; target 2 s) and to the complete window (detection and features done), against
   the time of ``rigside sort`` on it.
 
-Run: python bench/bench_open_session.py [--channels 64] [--seconds 600] [--keep DIR]
+Each measurement is repeated (``--repeat``, default 3; the machine is shared) and given as min / median;
+the ratios to the baseline are taken within each repeat. Compiled Python files are kept in a folder of the
+run (``PYTHONPYCACHEPREFIX``), as an installed program has them, after one warm-up run of each command.
+
+Run: python bench/bench_open_session.py [--channels 64] [--seconds 600] [--keep DIR] [--repeat 3]
+     python bench/bench_open_session.py --session S.h5 [--recording REC]   (a session sorted before)
 """
 
 from __future__ import annotations
@@ -19,6 +24,7 @@ from __future__ import annotations
 import argparse
 import json
 import os
+import statistics
 import subprocess
 import sys
 import tempfile
@@ -73,7 +79,7 @@ def poll():
 timer = QTimer(interval=5)
 timer.timeout.connect(poll)
 timer.start()
-assert win.open_path(sys.argv[1])
+assert win.open_session(sys.argv[1], recording=sys.argv[2]) if len(sys.argv) > 2 else win.open_path(sys.argv[1])
 assert win.wait_idle(600) and win.last_error is None, win.last_error
 poll()
 win.repaint()
@@ -132,42 +138,86 @@ def measured(cmd: list[str]) -> tuple[float, float, str]:
     return wall, usage.ru_maxrss / 1024, out
 
 
+def spread(values: list[float], digits: int = 2) -> str:
+    """``min / median`` of repeated measurements."""
+    return f"{min(values):.{digits}f} / {statistics.median(values):.{digits}f}"
+
+
+def prepared(a: argparse.Namespace, work: Path, rigside: list[str]) -> tuple[Path, Path, Path | None, float]:
+    """Recording, session, recording given beside the session (or None) and the sort time (nan if not run)."""
+    if a.session:
+        moved = Path(a.recording) if a.recording else None
+        return moved, Path(a.session), moved, float("nan")
+    rec, session = work / "rec.bin", work / "rec.session.h5"
+    if not rec.exists():
+        measured([*rigside, "synth", str(rec), "--channels", str(a.channels), "--seconds", str(a.seconds),
+                  "--quiet"])
+    sort_s = float("nan")
+    if not session.exists():
+        sort_s, sort_mb, out = measured([*rigside, "sort", str(rec), "--session", str(session), "--quiet"])
+        print(f"sort: {sort_s:.1f} s, peak {sort_mb:.0f} MB  ({out.strip()})")
+    return rec, session, None, sort_s
+
+
+def session_runs(a, work: Path, rigside: list[str], rec: Path, session: Path, moved: Path | None) -> None:
+    """The whole open command and the session in the window, each ``--repeat`` times with its baseline."""
+    import h5py
+    with h5py.File(session, "r") as f:
+        static = session.parent / f.attrs["static_part"]
+        n_channels = json.loads(f["recording"].attrs["description"])["n_channels"]
+        recording = moved or Path(f["recording"].attrs["path"])
+    old = work / "rec.no-numbers.h5"
+    if not old.exists():
+        measured([sys.executable, "-c", WITHOUT_NUMBERS, str(session), str(old)])
+    on = [str(moved), "--session"] if moved else []
+    baseline = [sys.executable, "-c", BASELINE, str(session), str(static), str(recording), str(n_channels),
+                str(work / "baseline.png")]
+    command = [*rigside, "open", *on, str(session), "--screenshot", str(work / "s.png")]
+    windows = {label: [sys.executable, "-c", SESSION_OPEN, str(path), *([str(moved)] if moved else [])]
+               for label, path in (("sorted session", session), ("session saved without quality numbers", old))}
+    for cmd in (baseline, command):     # warm-up: compiled files written, files in the page cache
+        measured(cmd)
+    base, opened, inside = [], [], {label: [] for label in windows}
+    for _ in range(a.repeat):
+        base.append(measured(baseline))
+        opened.append(measured(command))
+        for label, cmd in windows.items():
+            wall, mb, out = measured(cmd)
+            inside[label].append((wall, mb, json.loads(out.strip().splitlines()[-1])))
+    print(f"baseline (Qt + h5py read of both files + one plot), min / median of {a.repeat}: "
+          f"{spread([b[0] for b in base])} s, {spread([b[1] for b in base], 0)} MB")
+    print(f"open SESSION --screenshot (whole command, complete window): {spread([o[0] for o in opened])} s, "
+          f"peak {spread([o[1] for o in opened], 0)} MB (target 3 s, 1000 MB at 64 x 600 s); ratio to baseline "
+          f"{spread([o[0] / b[0] for o, b in zip(opened, base)])}")
+    for label, runs in inside.items():
+        marks = {k: spread([r[2][k] for r in runs]) for k in ("window_s", "first_paint_s", "numbers_s", "complete_s")}
+        print(f"{label} in the window (from process start): window {marks['window_s']} s, first paint "
+              f"{marks['first_paint_s']} s, quality numbers {marks['numbers_s']} s, complete {marks['complete_s']} s, "
+              f"process {spread([r[0] for r in runs])} s, peak {spread([r[1] for r in runs], 0)} MB; ratio to "
+              f"baseline {spread([r[0] / b[0] for r, b in zip(runs, base)])}")
+
+
 def main() -> None:
     ap = argparse.ArgumentParser(description=__doc__.splitlines()[0])
     ap.add_argument("--channels", type=int, default=64)
     ap.add_argument("--seconds", type=float, default=600.0)
     ap.add_argument("--keep", metavar="DIR", help="work in DIR (reused when it holds the files)")
+    ap.add_argument("--repeat", type=int, default=3, help="measurements of each kind (min and median given)")
+    ap.add_argument("--session", metavar="S.h5", help="measure this sorted session (no synth, sort or raw open)")
+    ap.add_argument("--recording", metavar="REC", help="with --session: its recording at a new place")
     a = ap.parse_args()
     rigside = [sys.executable, "-m", "rigside"]
     with tempfile.TemporaryDirectory() as tmp:
         work = Path(a.keep or tmp)
         work.mkdir(parents=True, exist_ok=True)
-        rec, session = work / "rec.bin", work / "rec.session.h5"
-        if not rec.exists():
-            measured([*rigside, "synth", str(rec), "--channels", str(a.channels), "--seconds", str(a.seconds),
-                      "--quiet"])
-        sort_s = float("nan")
-        if not session.exists():
-            sort_s, sort_mb, out = measured([*rigside, "sort", str(rec), "--session", str(session), "--quiet"])
-            print(f"sort: {sort_s:.1f} s, peak {sort_mb:.0f} MB  ({out.strip()})")
-        print(f"recording: {a.channels} channels x {a.seconds:g} s, {rec.stat().st_size / 1e6:.0f} MB")
-        static = next(work.glob(session.name + ".static-*.h5"))
-        old = work / "rec.no-numbers.h5"
-        if not old.exists():
-            measured([sys.executable, "-c", WITHOUT_NUMBERS, str(session), str(old)])
-        base_s, base_mb, _ = measured([sys.executable, "-c", BASELINE, str(session), str(static), str(rec),
-                                       str(a.channels), str(work / "baseline.png")])
-        open_s, open_mb, _ = measured([*rigside, "open", str(session), "--screenshot", str(work / "s.png")])
-        print(f"open SESSION --screenshot (whole command, complete window): {open_s:.1f} s, peak {open_mb:.0f} MB "
-              f"(target 3 s, 1000 MB at 64 x 600 s); baseline (Qt + h5py read of both files + one plot) "
-              f"{base_s:.1f} s, {base_mb:.0f} MB: ratio {open_s / base_s:.2f}")
-        for label, path in (("sorted session", session), ("session saved without quality numbers", old)):
-            in_s, in_mb, out = measured([sys.executable, "-c", SESSION_OPEN, str(path)])
-            r = json.loads(out.strip().splitlines()[-1])
-            print(f"{label} in the window (from process start): window {r['window_s']:.2f} s, first paint "
-                  f"{r['first_paint_s']:.2f} s, quality numbers {r['numbers_s']:.2f} s, complete "
-                  f"{r['complete_s']:.2f} s, process {in_s:.1f} s, peak {in_mb:.0f} MB; ratio to baseline "
-                  f"{in_s / base_s:.2f}")
+        os.environ["PYTHONPYCACHEPREFIX"] = str(work / "pycache")
+        os.environ.pop("PYTHONDONTWRITEBYTECODE", None)
+        rec, session, moved, sort_s = prepared(a, work, rigside)
+        if rec is not None:
+            print(f"recording: {rec.stat().st_size / 1e6:.0f} MB")
+        session_runs(a, work, rigside, rec, session, moved)
+        if a.session:
+            return
         raw_s, raw_mb, out = measured([sys.executable, "-c", RAW_OPEN, str(rec)])
         r = json.loads(out.strip().splitlines()[-1])
         print(f"raw recording in the window: first paint {r['first_paint_s']:.2f} s (target 2 s), complete "

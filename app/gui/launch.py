@@ -70,6 +70,8 @@ def _render(win: MainWindow, target: str | None, open_target: Callable[[], bool]
     win.units.files.check_content = False
     win.resize(1600, 1000)
     win.show()
+    QApplication.processEvents()    # the window exposed once with its backing store
+    win.setUpdatesEnabled(False)    # no picture wanted until the window is complete: painted once, at capture
     code = 0
     if target is not None:
         if not open_target():
@@ -81,6 +83,7 @@ def _render(win: MainWindow, target: str | None, open_target: Callable[[], bool]
             code = 1
     if code == 0:
         _show_a_unit(win)
+        win.setUpdatesEnabled(True)
         capture(win, screenshot)
     win.close()
     return code

@@ -178,11 +178,9 @@ class SortingController(QObject):
             self._stale = {u: session.sorting.revision for u in stale}
             self._refresh_metrics()
         self._update_rows()
-        self.sorting_replaced.emit()
+        self.sorting_replaced.emit()     # stored quality numbers are in place: no metrics_changed for them
         self.selection_changed.emit()
         self.events_selected.emit()
-        if self.metrics:
-            self.metrics_changed.emit()
 
     def current_metrics(self) -> dict[int, dict]:
         """Quality numbers of the units whose numbers are current (none pending), for saving."""

@@ -72,7 +72,7 @@ def install_units(window) -> SortingController:
             d.show()
             d.raise_()
         if "docks" not in sized:
-            sized.add("docks")
+            sized.update(("docks", "numbers") if ctl.metrics else ("docks",))   # stored numbers: fitted to them
             fit_unit_list()
             window.resizeDocks([docks[1]], [UNIT_PLOTS_HEIGHT], Qt.Orientation.Vertical)
 

@@ -11,6 +11,7 @@ from pathlib import Path
 import numpy as np
 import psutil
 import pytest
+import scipy.linalg.blas as scipy_blas
 from PySide6.QtCore import QSettings
 from PySide6.QtWidgets import QApplication, QWidget
 
@@ -81,9 +82,23 @@ def _extra_python(before: set) -> list[str]:
             if t.ident not in before and not isinstance(t, threading._DummyThread)]
 
 
+def _wake_blas_pools() -> None:
+    """Bring the BLAS thread pools of NumPy and SciPy (each wheel ships its own OpenBLAS) to their full size.
+
+    Setting a limit of one thread (``core/signal/chunk_pool.single_threaded_pools``, as an in-process
+    sort does) ends a pool's worker threads, and restoring the limit starts them again only at the
+    next large enough BLAS call. Without this, a test after an in-process sort that made such a call on
+    the main thread was charged with the library's own workers coming back (seen as one extra thread
+    named like the main thread); with it, the baseline holds the pools as they stand at rest."""
+    a = np.ones((256, 256))
+    a @ a
+    scipy_blas.dgemm(1.0, a, a)
+
+
 @pytest.fixture(autouse=True)
 def no_leaks(qapp, qt_started):
     """Fail a test that leaves a visible window, a running job or another thread behind."""
+    _wake_blas_pools()
     before = _threads()
     python_before = {t.ident for t in threading.enumerate()}
     yield

@@ -250,10 +250,11 @@ def test_selected_units_are_coloured_in_the_feature_and_trace_views(demo_window)
     # the highlighted points are the unit's events shown in the panel (its group, at the threshold)
     ev = win.bench.events
     visible = rows[(ev.group[rows] == shown_group) & win.bench.mask()[rows]]
-    x, y = feats.chosen.getData()
+    (chosen,) = feats.chosen            # one item for the one selected unit, in its colour
+    x, y = chosen.getData()
     assert len(x) == len(visible) > 0
     np.testing.assert_allclose(np.sort(x), np.sort(feats.column(feats.x_combo.currentText())[visible]))
-    colour = feats.chosen.data["brush"][0].color()
+    colour = chosen.opts["brush"].color()
     assert (colour.red(), colour.green(), colour.blue()) == tuple(ctl.unit_colour(u)[:3])
     # the trace view marks the unit's events inside the visible window, in the same colour
     marks = win.traces.marks
@@ -265,7 +266,7 @@ def test_selected_units_are_coloured_in_the_feature_and_trace_views(demo_window)
     c = marks.chosen.data["brush"][0].color()
     assert (c.red(), c.green(), c.blue()) == tuple(ctl.unit_colour(u)[:3])
     ctl.set_selection([])
-    assert len(feats.chosen.getData()[0]) == 0 and len(marks.chosen.getData()[0]) == 0
+    assert feats.chosen == [] and len(marks.chosen.getData()[0]) == 0
 
 
 def test_number_keys_label_the_selected_units_while_the_unit_list_has_focus(demo_window, qtbot):

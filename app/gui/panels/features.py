@@ -9,6 +9,7 @@ from PySide6.QtWidgets import QComboBox, QHBoxLayout, QLabel, QVBoxLayout
 
 from rigside.gui import palette
 from rigside.gui.panels.base import Panel
+from rigside.gui.panels.scatter import OneStyleScatter
 
 POINT_LIMIT = 20_000
 DENSITY_BINS = 256
@@ -52,16 +53,15 @@ class FeaturePanel(Panel):
         top.addWidget(self.y_combo, 1)
         self.plot = palette.make_plot()
         pi = self.plot.getPlotItem()
-        self.scatter = pg.ScatterPlotItem(size=3, pen=None, brush=pg.mkBrush(*palette.BLUE, 110))
+        self.scatter = OneStyleScatter(size=3, pen=None, brush=pg.mkBrush(*palette.BLUE, 110))
         self.image = pg.ImageItem(axisOrder="row-major")
         cmap = pg.colormap.get("cividis")
         cmap.reverse()
         self.image.setLookupTable(cmap.getLookupTable(nPts=256))
-        self.chosen = pg.ScatterPlotItem(size=5, pen=None)
+        self.chosen: list[OneStyleScatter] = []     # one item per highlighted set, in its colour
         self.highlights: list[tuple[np.ndarray, tuple]] = []
         pi.addItem(self.image)
         pi.addItem(self.scatter)
-        pi.addItem(self.chosen)
         self.status = QLabel("Features appear when they have been computed.")
         self.status.setWordWrap(True)
         lay = QVBoxLayout(self)
@@ -81,7 +81,7 @@ class FeaturePanel(Panel):
         self._draw()
 
     def _clear(self) -> None:
-        self.chosen.setData([], [])
+        self._set_chosen([])
         self.scatter.setData([], [])
         self.image.clear()
         self.mode = "none"
@@ -147,16 +147,21 @@ class FeaturePanel(Panel):
 
 
     def _draw_highlights(self, xn: str, yn: str, shown: np.ndarray) -> None:
-        xs, ys, brushes = [], [], []
+        sets = []
         for rows, colour in self.highlights:
             rows = rows[np.isin(rows, shown)]
-            xs.append(self.column(xn)[rows])
-            ys.append(self.column(yn)[rows])
-            brushes += [pg.mkBrush(*colour[:3], 230)] * len(rows)
-        if brushes:
-            self.chosen.setData(np.concatenate(xs), np.concatenate(ys), brush=brushes)
-        else:
-            self.chosen.setData([], [])
+            sets.append((self.column(xn)[rows], self.column(yn)[rows], colour))
+        self._set_chosen(sets)
+
+    def _set_chosen(self, sets: list[tuple[np.ndarray, np.ndarray, tuple]]) -> None:
+        """One scatter item per highlighted set, drawn in the set's colour above the events."""
+        pi = self.plot.getPlotItem()
+        for item in self.chosen:
+            pi.removeItem(item)
+        self.chosen = [OneStyleScatter(x, y, size=5, pen=None, brush=pg.mkBrush(*colour[:3], 230))
+                       for x, y, colour in sets if len(x)]
+        for item in self.chosen:
+            pi.addItem(item)
 
 
 def _label(name: str) -> str:

@@ -7,6 +7,7 @@ import pyqtgraph as pg
 
 from rigside.core.quality.unit_table import main_channel
 from rigside.gui import palette
+from rigside.gui.panels.scatter import OneStyleScatter
 from rigside.gui.panels.unit_view_base import UnitView
 
 POINT_LIMIT = 30_000
@@ -44,8 +45,8 @@ class AmplitudeView(UnitView):
             if len(idx) > POINT_LIMIT:
                 idx = idx[np.linspace(0, len(idx) - 1, POINT_LIMIT).astype(np.int64)]
             colour = self.ctl.unit_colour(u)
-            item = pg.ScatterPlotItem(s.data.time_s[idx], s.data.amplitude_uv[idx], size=4, pen=None,
-                                      brush=pg.mkBrush(*colour, 160))
+            item = OneStyleScatter(s.data.time_s[idx], s.data.amplitude_uv[idx], size=4, pen=None,
+                                   brush=pg.mkBrush(*colour, 160))
             pi.addItem(item)
             self.n_points += len(idx)
             ch = self.main_channel(u)

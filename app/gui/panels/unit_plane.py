@@ -17,6 +17,7 @@ from rigside.core.units.sorting import AXIS_AMPLITUDE, AXIS_TIME, FEATURE_AXIS_P
 from rigside.gui import palette
 from rigside.gui.curation import PolygonTool
 from rigside.gui.panels.base import Panel
+from rigside.gui.panels.scatter import OneStyleScatter
 
 BACKGROUND_LIMIT = 20_000
 UNIT_LIMIT = 40_000
@@ -71,7 +72,7 @@ class ClusterPlanePanel(Panel):
         tools.addStretch(1)
         self.plot = palette.make_plot()
         pi = self.plot.getPlotItem()
-        self.background = pg.ScatterPlotItem(size=3, pen=None, brush=pg.mkBrush(*palette.GREY, 70))
+        self.background = OneStyleScatter(size=3, pen=None, brush=pg.mkBrush(*palette.GREY, 70))
         self.chosen = pg.ScatterPlotItem(size=9, pen=palette.pen(palette.BLACK, 1.2), brush=None, symbol="o")
         self.chosen.setZValue(20)
         pi.addItem(self.background)
@@ -132,6 +133,10 @@ class ClusterPlanePanel(Panel):
         return int(self.bench.group)
 
     def redraw(self, *_) -> None:
+        """Draw the shown group's events now, or when the panel next comes into view."""
+        self.when_shown(self._redraw_now)
+
+    def _redraw_now(self) -> None:
         pi = self.plot.getPlotItem()
         for item in self.unit_items:
             pi.removeItem(item)
@@ -152,8 +157,8 @@ class ClusterPlanePanel(Panel):
         self.background.setData(s.data.axis_values(xa, rest), s.data.axis_values(ya, rest))
         for u in self.ctl.selection:
             idx = _thin(s.events_of(u), UNIT_LIMIT)
-            item = pg.ScatterPlotItem(s.data.axis_values(xa, idx), s.data.axis_values(ya, idx), size=4, pen=None,
-                                      brush=pg.mkBrush(*self.ctl.unit_colour(u), 170))
+            item = OneStyleScatter(s.data.axis_values(xa, idx), s.data.axis_values(ya, idx), size=4, pen=None,
+                                   brush=pg.mkBrush(*self.ctl.unit_colour(u), 170))
             pi.addItem(item)
             self.unit_items.append(item)
         palette.style_plot(pi, axis_text(xa), axis_text(ya))
