@@ -6,7 +6,7 @@ import threading
 from contextlib import contextmanager
 from typing import TypeVar
 
-from threadpoolctl import threadpool_limits
+from threadpoolctl import ThreadpoolController
 
 T = TypeVar("T")
 
@@ -19,6 +19,7 @@ def chunk_bounds(n_samples: int, chunk: int) -> list[tuple[int, int]]:
 _POOLS_LOCK = threading.Lock()
 _pool_users = 0
 _pool_limiter = None
+_controller: ThreadpoolController | None = None
 
 
 @contextmanager
@@ -31,13 +32,20 @@ def single_threaded_pools():
     It restores the limits it found on exit, so two overlapping uses from different threads
     would restore in the wrong order (and leave the process at one thread); here the first
     caller in sets the limits and the last one out restores them. threadpoolctl also lets only
-    one Python thread control OpenBLAS (the first that set a limit, while it lives): called from
-    another thread, the OpenBLAS limit is left as it is.
+    one Python thread control OpenBLAS (the first that set a limit), so the first caller in takes
+    that control over from any earlier caller (all of them are out): an earlier caller may be a
+    thread Python did not start (a Qt worker) whose record threadpoolctl cannot test for life,
+    above all in a process forked from this one.
     """
-    global _pool_users, _pool_limiter
+    global _pool_users, _pool_limiter, _controller
     with _POOLS_LOCK:
         if _pool_users == 0:
-            _pool_limiter = threadpool_limits(limits=1)
+            _controller = _controller or ThreadpoolController()
+            for lib in _controller.lib_controllers:
+                clear = getattr(type(lib), "clear_controlling_thread", None)
+                if clear is not None:
+                    clear(force=True)
+            _pool_limiter = _controller.limit(limits=1)
         _pool_users += 1
     try:
         yield
