@@ -198,6 +198,12 @@ class ClusterParams:
         every unit (see :mod:`rigside.core.units.refine`).
     split_fragments
         A split test part too small to be a unit goes by the fragment rule (off: no such split).
+    split_overlap, split_gap_p, gap_censored_ms, gap_refractory_ms
+        The split test splits when its two parts overlap by at most ``split_overlap``
+        (misclassification probability) and do not share a refractory gap: the Poisson p-value of
+        their cross-correlogram pairs with ``gap_censored_ms`` <= |lag| < ``gap_refractory_ms`` is
+        not below ``split_gap_p`` (see :mod:`rigside.core.units.refine`; ``gap_censored_ms`` is
+        best the detection dead time).
     """
 
     k: int | None = None
@@ -214,6 +220,10 @@ class ClusterParams:
     fragment_fit: float = 0.99
     split_test: bool = True
     split_fragments: bool = True
+    split_overlap: float = 0.04
+    split_gap_p: float = 0.001
+    gap_censored_ms: float = 1.0
+    gap_refractory_ms: float = 2.0
 
     def validate(self) -> None:
         """Raise :class:`ParamError` for any value out of range."""
@@ -237,6 +247,13 @@ class ClusterParams:
             raise ParamError(f"split test must be true or false, got {self.split_test!r}")
         if not isinstance(self.split_fragments, bool):
             raise ParamError(f"split fragments must be true or false, got {self.split_fragments!r}")
+        for what, v in (("split overlap", self.split_overlap), ("split gap p-value", self.split_gap_p)):
+            if not (isinstance(v, (int, float)) and not isinstance(v, bool) and 0 <= v <= 1):
+                raise ParamError(f"{what} must be a number from 0 to 1, got {v!r}")
+        gap = (self.gap_censored_ms, self.gap_refractory_ms)
+        if not (all(isinstance(v, (int, float)) and not isinstance(v, bool) for v in gap)
+                and 0 <= gap[0] < gap[1] <= 5):
+            raise ParamError(f"refractory gap window must be 0 <= start < end <= 5 ms, got {gap[0]!r} to {gap[1]!r} ms")
 
     def to_dict(self) -> dict[str, Any]:
         """Plain dict (``k`` omitted when ``None``)."""
@@ -253,7 +270,8 @@ class ClusterParams:
             raise ParamError(f"clustering parameter must be one of {', '.join(sorted(known))}, "
                              f"got {', '.join(unknown)}")
         out = cls(**data)
-        for name in ("tol", "merge_overlap", "min_unit_share", "fragment_fit"):
+        for name in ("tol", "merge_overlap", "min_unit_share", "fragment_fit", "split_overlap", "split_gap_p",
+                     "gap_censored_ms", "gap_refractory_ms"):
             value = getattr(out, name)
             if isinstance(value, int) and not isinstance(value, bool):
                 setattr(out, name, float(value))

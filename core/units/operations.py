@@ -75,7 +75,8 @@ class ClusterGroups(Operation):
         # recovered events take no part: the clusters of the detected events stay what they were
         new, unit_group = first_pass_assignments(d.group, d.artefact | d.recovered, d.features, d.amplitude_uv,
                                                  self.params, self.groups, sorting.next_id,
-                                                 self.progress, self.cancel, self.workers, d.channel)
+                                                 self.progress, self.cancel, self.workers, d.channel,
+                                                 d.time_s)
         todo = np.unique(d.group) if self.groups is None else np.asarray(self.groups)
         rows = np.flatnonzero(np.isin(d.group, todo))
         units_after: dict[int, Unit | None] = {u: None for u, rec in sorting.units.items()
