@@ -200,8 +200,8 @@ def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np
                            amplitude_uv: np.ndarray, params: ClusterParams,
                            groups: list[int] | None = None, first_id: int = 1,
                            progress: ProgressFn = None, cancel: CancelFn = None, workers: int = 1,
-                           channel: np.ndarray | None = None,
-                           time_s: np.ndarray | None = None) -> tuple[np.ndarray, dict[int, int]]:
+                           channel: np.ndarray | None = None, time_s: np.ndarray | None = None
+                           ) -> tuple[np.ndarray, dict[int, int]]:
     """Cluster every channel group, keep the clusters fit to be units (:mod:`.refine`), number them.
 
     Parameters
@@ -215,18 +215,14 @@ def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np
     groups
         Groups to cluster (default: every group present); events of other groups get
         :data:`NO_UNIT` in the returned array.
-    first_id
-        Id of the first new unit.
-    progress, cancel
-        Progress callback and cancel check (one step per group).
+    first_id, progress, cancel
+        Id of the first new unit; progress callback and cancel check (one step per group).
     workers
         Groups clustered at the same time, each in its own process (see :data:`WORKER_START`;
         threads ran the mixture fits slower: ``bench/bench_sort_path.py --threads``). The result
         does not depend on it: every group's clustering depends only on its own events and seed.
-    channel
-        Main (detection) channel of every event, for the split test (None: features alone).
-    time_s
-        Time of every event (s), for the split test's refractory gap (None: no gap test).
+    channel, time_s
+        Main (detection) channel and time (s) of every event, for the split test (None: not used).
 
     Returns
     -------
