@@ -45,6 +45,8 @@ def _cluster_params(data: Any) -> ClusterParams:
             data = {**BEFORE_FRAGMENT_RULE, **data}
         if isinstance(data, dict) and "split_fragments" not in data:
             data = {**BEFORE_SPLIT_FRAGMENTS, **data}
+        if isinstance(data, dict) and "split_gap_p" not in data:   # before the gap test: no veto, one limit
+            data = {"split_gap_p": 0.0, "split_overlap": data.get("merge_overlap", ClusterParams.merge_overlap), **data}
         return ClusterParams.from_dict(data)
     except ParamError as exc:
         raise CurationError(str(exc)) from None
