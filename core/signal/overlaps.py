@@ -271,10 +271,8 @@ def _pair_fit(x: np.ndarray, offset: np.ndarray, g: _Group, dead: int, max_misfi
     holds the sub-sample peak positions of the event and the find, and the template subtracted at the
     event. Every pair of templates (i at the event, j at the find, i != j), each shifted to its sub-sample
     peak, is fitted with least-squares amplitudes (clipped to :data:`SCALE_RANGE`). Returns the best pair
-    and whether it is accepted: its mean squared misfit is at most ``max_misfit``, it explains at least
-    ``min_gain`` (noise variances) more than the best single template at the event, and it fits better
-    than one template at both places (else the find is a spike no other unit explains, e.g. of a unit
-    that looks like the event's and shares its cluster: given to another unit it would be misplaced).
+    and whether it is accepted: its mean squared misfit is at most ``max_misfit`` and it explains at least
+    ``min_gain`` (noise variances) more than the best single template at the event.
     """
     n, (k, length, _) = len(x), g.scaled.shape
     if n == 0 or k < 2:
@@ -297,15 +295,14 @@ def _pair_fit(x: np.ndarray, offset: np.ndarray, g: _Group, dead: int, max_misfi
         sb = np.clip((xb[:, None, :] * aa[:, :, None] - xa[:, :, None] * ab) / det, *SCALE_RANGE)
     err = (xx[:, None, None] - 2 * sa * xa[:, :, None] - 2 * sb * xb[:, None, :] + sa ** 2 * aa[:, :, None]
            + sb ** 2 * bb[:, None, :] + 2 * sa * sb * ab)
-    err[~np.isfinite(err)] = np.inf
-    twice = np.min(err[:, np.arange(k), np.arange(k)], axis=1)   # one unit's template at both places
     err[:, np.arange(k), np.arange(k)] = np.inf
+    err[~np.isfinite(err)] = np.inf
     best = np.argmin(err.reshape(n, -1), axis=1)
     i, j = np.divmod(best, k)
     pair = err.reshape(n, -1)[np.arange(n), best]
     single_scale = np.clip(xa / aa, *SCALE_RANGE)
     single = np.min(xx[:, None] - 2 * single_scale * xa + single_scale ** 2 * aa, axis=1)
-    ok = (pair / (x.shape[1] * x.shape[2]) <= max_misfit) & (single - pair >= min_gain) & (pair < twice)
+    ok = (pair / (x.shape[1] * x.shape[2]) <= max_misfit) & (single - pair >= min_gain)
     return i, j, ok
 
 
