@@ -184,20 +184,20 @@ class ClusterParams:
     Attributes
     ----------
     k, k_min, k_max, patience
-        Forced number of clusters per group (``None``: chosen by BIC over ``k_min..k_max``, the
-        search stopped after ``patience`` successive k without a lower BIC).
+        Forced clusters per group (``None``: by BIC over ``k_min..k_max``, stopped after ``patience`` worse k).
     fit_events, max_iter, tol, seed
-        Largest fit subsample of one group; EM limits (scikit-learn meaning); seed of the
-        subsample and of the mixture initialisation.
+        Largest fit subsample of a group; EM limits (scikit-learn meaning); seed of subsample and fit.
     merge_overlap
-        Components merge while their misclassification probability exceeds this (1: never).
+        Components merge while their misclassification probability is above this (1: never).
     min_unit_events, min_unit_share, fragment_fit, split_test
         Fragments (clusters under max(``min_unit_events``, ``min_unit_share`` x the group's
         events)) are not units; their events join the best-fitting unit within the
         ``fragment_fit`` chi-square quantile, else stay unassigned; ``split_test`` re-examines
         every unit (see :mod:`rigside.core.units.refine`).
-    split_fragments
-        A split test part too small to be a unit goes by the fragment rule (off: no such split).
+    split_fragments, split_overlap, split_gap_p, gap_censored_ms, gap_refractory_ms
+        A split part too small to be a unit is a fragment (off: no such split); the overlap of parts
+        whose refractory gap (lags ``gap_censored_ms`` to ``gap_refractory_ms``, best from the dead
+        time) was judged; the gap p-value joining the parts.
     """
 
     k: int | None = None
@@ -214,6 +214,10 @@ class ClusterParams:
     fragment_fit: float = 0.99
     split_test: bool = True
     split_fragments: bool = True
+    split_overlap: float = 0.04
+    split_gap_p: float = 0.001
+    gap_censored_ms: float = 1.0
+    gap_refractory_ms: float = 2.0
 
     def validate(self) -> None:
         """Raise :class:`ParamError` for any value out of range."""
@@ -237,6 +241,11 @@ class ClusterParams:
             raise ParamError(f"split test must be true or false, got {self.split_test!r}")
         if not isinstance(self.split_fragments, bool):
             raise ParamError(f"split fragments must be true or false, got {self.split_fragments!r}")
+        _between("split overlap", self.split_overlap, 0, 1, "")
+        _between("split gap p-value", self.split_gap_p, 0, 1, "")
+        _between("refractory gap start", self.gap_censored_ms, 0, 5, "ms")
+        _between("refractory gap end", self.gap_refractory_ms, 0, 5, "ms")
+        _require(self.gap_censored_ms < self.gap_refractory_ms, "refractory gap start must be before its end")
 
     def to_dict(self) -> dict[str, Any]:
         """Plain dict (``k`` omitted when ``None``)."""
@@ -253,7 +262,7 @@ class ClusterParams:
             raise ParamError(f"clustering parameter must be one of {', '.join(sorted(known))}, "
                              f"got {', '.join(unknown)}")
         out = cls(**data)
-        for name in ("tol", "merge_overlap", "min_unit_share", "fragment_fit"):
+        for name in (f.name for f in fields(cls) if f.type == "float"):
             value = getattr(out, name)
             if isinstance(value, int) and not isinstance(value, bool):
                 setattr(out, name, float(value))

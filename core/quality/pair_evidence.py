@@ -17,26 +17,11 @@ from rigside.core.params import ClusterParams
 from rigside.core.quality.metric_inputs import MetricValue, undefined
 from rigside.core.units.clustering import unit_two_parts
 from rigside.core.units.refine import smallest_unit
+from rigside.core.units.refractory import MIN_EXPECTED_PAIRS, refractory_gap
 
-MIN_EXPECTED_PAIRS = 5.0
-"""Fewest pairs expected in the refractory window by chance for its dip to be given."""
 SHARED_CHANNEL_SHARE = 0.25
 """A channel takes part in the waveform comparison when either unit's peak-to-peak there is at
 least this share of that unit's largest (common practice, no source)."""
-
-
-def pairs_within(a: np.ndarray, b: np.ndarray, lo: float, hi: float) -> int:
-    """Number of pairs (a_i, b_j) of two sorted trains with ``lo <= |b_j - a_i| < hi`` (s).
-
-    Both signs of the lag count; a lag of exactly 0 counts once. Cost O((n_a + n_b) log n_b).
-    """
-    a, b = np.asarray(a, dtype=np.float64), np.asarray(b, dtype=np.float64)
-    after = np.searchsorted(b, a + hi, "left") - np.searchsorted(b, a + lo, "left")
-    if lo > 0:
-        before = np.searchsorted(b, a - lo, "right") - np.searchsorted(b, a - hi, "right")
-    else:
-        before = np.searchsorted(b, a, "left") - np.searchsorted(b, a - hi, "right")
-    return int(after.sum() + before.sum())
 
 
 @dataclass(frozen=True)
@@ -57,39 +42,14 @@ class RefractoryDip:
 
 def refractory_dip(times_a: np.ndarray, times_b: np.ndarray, censored_s: float, refractory_s: float,
                    baseline_s: tuple[float, float] = (0.005, 0.025)) -> RefractoryDip:
-    """The cross-correlogram's refractory gap of two spike trains.
-
-    Two pieces of one neuron share its refractory period, so their cross-correlogram is empty
-    near lag 0 like its autocorrelogram; two neurons give pairs there at the baseline rate
-    (common practice in merging clusters, e.g. Harris et al. 2000, J. Neurophysiol. 84:401-414
-    [memory]). Lags below ``censored_s`` (the detection dead time: two events of one channel
-    group that close are one event) are left out of the window, and the baseline is taken
-    from the correlogram's own flanks so that units active at different times are compared fairly.
-
-    Parameters
-    ----------
-    times_a, times_b
-        Sorted spike times (s); the same array for one train's own gap (its autocorrelogram).
-    censored_s, refractory_s
-        The refractory window is ``censored_s <= |lag| < refractory_s``.
-    baseline_s
-        The baseline window, ``lo <= |lag| < hi``.
-    """
-    from scipy.stats import poisson
-
-    lo, hi = baseline_s
-    if not 0 <= censored_s < refractory_s <= lo < hi:
-        raise RigsideError(f"correlogram windows must be ordered censored < refractory <= baseline start < end, got "
-                           f"{censored_s}, {refractory_s}, {lo}, {hi} s")
-    observed = pairs_within(times_a, times_b, censored_s, refractory_s)
-    if times_a is times_b and censored_s == 0:
-        observed -= len(times_a)        # a spike is not paired with itself
-    expected = pairs_within(times_a, times_b, lo, hi) * (refractory_s - censored_s) / (hi - lo)
-    if expected < MIN_EXPECTED_PAIRS:
+    """The cross-correlogram's refractory gap of two spike trains, as evidence
+    (:func:`rigside.core.units.refractory.refractory_gap`; same arguments), its dip undefined when
+    too few pairs are expected by chance."""
+    observed, expected, p_value = refractory_gap(times_a, times_b, censored_s, refractory_s, baseline_s)
+    if math.isnan(p_value):
         return RefractoryDip(observed, expected, undefined(f"fewer than {MIN_EXPECTED_PAIRS:g} pairs expected by "
                                                            f"chance in the refractory window"), math.nan)
-    return RefractoryDip(observed, expected, MetricValue(1.0 - observed / expected),
-                         float(poisson.cdf(observed, expected)))
+    return RefractoryDip(observed, expected, MetricValue(1.0 - observed / expected), p_value)
 
 
 def gaussian_fit(x: np.ndarray) -> tuple[np.ndarray, np.ndarray]:

@@ -100,7 +100,7 @@ def cluster_features(features: np.ndarray, params: ClusterParams, stream: int = 
 
 
 def _cluster(features: np.ndarray, params: ClusterParams, stream: int, k: int | None,
-             channel: np.ndarray | None = None, refine: bool = False) -> np.ndarray:
+             channel: np.ndarray | None = None, refine: bool = False, time_s: np.ndarray | None = None) -> np.ndarray:
     x = np.asarray(features)
     n = len(x)
     if n == 0:
@@ -128,7 +128,7 @@ def _cluster(features: np.ndarray, params: ClusterParams, stream: int, k: int | 
         z = _z(x, scaling)
         labels = absorb_fragments(z, labels, best, merged, params)
         if params.split_test:
-            labels = split_clusters(z, labels, channel, params, rng)
+            labels = split_clusters(z, labels, channel, params, rng, time_s)
     used = labels >= 0
     dense = np.full(n, -1, dtype=np.int32)
     dense[used] = np.unique(labels[used], return_inverse=True)[1].ravel()
@@ -190,17 +190,18 @@ def _assign(x: np.ndarray, scaling, mixture: Mixture, merged: list[list[int]]) -
 
 
 def _cluster_group(i: int, features: np.ndarray, channel: np.ndarray | None, params: ClusterParams,
-                   g: int) -> tuple[int, np.ndarray]:
+                   g: int, time_s: np.ndarray | None = None) -> tuple[int, np.ndarray]:
     """One group's labels (-1: unassigned), tagged with its position (runs in worker processes)."""
     with single_threaded_pools():
-        return i, _cluster(features, params, g, None, channel, refine=True)
+        return i, _cluster(features, params, g, None, channel, refine=True, time_s=time_s)
 
 
 def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np.ndarray,
                            amplitude_uv: np.ndarray, params: ClusterParams,
                            groups: list[int] | None = None, first_id: int = 1,
                            progress: ProgressFn = None, cancel: CancelFn = None, workers: int = 1,
-                           channel: np.ndarray | None = None) -> tuple[np.ndarray, dict[int, int]]:
+                           channel: np.ndarray | None = None, time_s: np.ndarray | None = None
+                           ) -> tuple[np.ndarray, dict[int, int]]:
     """Cluster every channel group, keep the clusters fit to be units (:mod:`.refine`), number them.
 
     Parameters
@@ -214,16 +215,14 @@ def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np
     groups
         Groups to cluster (default: every group present); events of other groups get
         :data:`NO_UNIT` in the returned array.
-    first_id
-        Id of the first new unit.
-    progress, cancel
-        Progress callback and cancel check (one step per group).
+    first_id, progress, cancel
+        Id of the first new unit; progress callback and cancel check (one step per group).
     workers
         Groups clustered at the same time, each in its own process (see :data:`WORKER_START`;
         threads ran the mixture fits slower: ``bench/bench_sort_path.py --threads``). The result
         does not depend on it: every group's clustering depends only on its own events and seed.
-    channel
-        Main (detection) channel of every event, for the split test (None: features alone).
+    channel, time_s
+        Main (detection) channel and time (s) of every event, for the split test (None: not used).
 
     Returns
     -------
@@ -235,7 +234,7 @@ def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np
     warm_up()
     group = np.asarray(group)
     n = len(group)
-    lengths = {len(features), len(artefact), len(amplitude_uv)} | ({len(channel)} if channel is not None else set())
+    lengths = {len(features), len(artefact), len(amplitude_uv)} | {len(c) for c in (channel, time_s) if c is not None}
     if features.ndim != 2 or lengths != {n}:
         raise RigsideError(f"features and event columns must have one row per event ({n}), got features "
                            f"{features.shape}, artefact {len(artefact)}, amplitude {len(amplitude_uv)}")
@@ -265,8 +264,8 @@ def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np
         report(progress, state["done"] / max(1, len(busy)), f"clustered group {g}")
 
     report(progress, 0.0, "clustering groups")
-    tasks = ((i, features[rows_of[i]], None if channel is None else np.asarray(channel)[rows_of[i]], params, todo[i])
-             for i in busy)
+    pick = (lambda col, i: None if col is None else np.asarray(col)[rows_of[i]])
+    tasks = ((i, features[rows_of[i]], pick(channel, i), params, todo[i], pick(time_s, i)) for i in busy)
     if workers > 1 and len(busy) > 1:
         processes = ProcessPoolExecutor(min(workers, len(busy)), mp_context=get_context(WORKER_START))
         run_bounded(_cluster_group, tasks, workers, number, cancel, pool=processes)

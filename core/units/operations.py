@@ -45,6 +45,8 @@ def _cluster_params(data: Any) -> ClusterParams:
             data = {**BEFORE_FRAGMENT_RULE, **data}
         if isinstance(data, dict) and "split_fragments" not in data:
             data = {**BEFORE_SPLIT_FRAGMENTS, **data}
+        if isinstance(data, dict) and "split_gap_p" not in data:   # before the gap test: no veto, one limit
+            data = {"split_gap_p": 0.0, "split_overlap": data.get("merge_overlap", ClusterParams.merge_overlap), **data}
         return ClusterParams.from_dict(data)
     except ParamError as exc:
         raise CurationError(str(exc)) from None
@@ -75,7 +77,8 @@ class ClusterGroups(Operation):
         # recovered events take no part: the clusters of the detected events stay what they were
         new, unit_group = first_pass_assignments(d.group, d.artefact | d.recovered, d.features, d.amplitude_uv,
                                                  self.params, self.groups, sorting.next_id,
-                                                 self.progress, self.cancel, self.workers, d.channel)
+                                                 self.progress, self.cancel, self.workers, d.channel,
+                                                 d.time_s)
         todo = np.unique(d.group) if self.groups is None else np.asarray(self.groups)
         rows = np.flatnonzero(np.isin(d.group, todo))
         units_after: dict[int, Unit | None] = {u: None for u, rec in sorting.units.items()

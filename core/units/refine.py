@@ -19,9 +19,17 @@ Two steps, in this order, on the standardised features of one channel group (see
    k-means and, when a second main channel holds at least ``min_unit_events`` events and a
    tenth of the cluster, once from the means of the events of its two main channels) is
    compared with one component by BIC (Schwarz 1978). The cluster is split when two components
-   win, their estimated misclassification probability is at most ``merge_overlap`` (the same
-   DEMP criterion that merged components, Hennig 2010, so a split is never one the merging
-   step would undo). When both parts keep at least the smallest unit size, both are units and
+   win and the two parts do not share a refractory gap, and their estimated misclassification
+   probability (the DEMP criterion that merged components, Hennig 2010) is small enough. The
+   gap: two pieces of one neuron (e.g. the large and small spikes of its bursts) keep its
+   refractory period between them, two neurons do not (:mod:`rigside.core.units.refractory`);
+   when chance would put at least five pairs of the parts' spikes at lags from
+   ``gap_censored_ms`` to ``gap_refractory_ms`` and the Poisson probability of as few pairs as
+   seen is below ``split_gap_p``, the cluster is not split. When the gap could be judged (and
+   did not join the parts), the misclassification limit is ``split_overlap``, otherwise
+   ``merge_overlap`` (so an unguarded split is never one the merging step would undo):
+   ``split_overlap`` is looser because a small unit beside a large one has a larger share of
+   its events misclassified. When both parts keep at least the smallest unit size, both are units and
    are tested again while the group has fewer than ``k_max`` clusters; otherwise (with
    ``split_fragments``) the small part is a fragment, and its events go by step 1's rule to the
    Gaussian (mean and covariance of its events) of the cluster that fits them best, or stay
@@ -30,6 +38,7 @@ Two steps, in this order, on the standardised features of one channel group (see
 
 from __future__ import annotations
 
+import math
 from dataclasses import dataclass
 
 import numpy as np
@@ -37,6 +46,7 @@ import numpy as np
 from rigside.core.params import ClusterParams
 from rigside.core.units.em import Mixture, partition_mixture
 from rigside.core.units.mixture import fit_mixture, misclassification
+from rigside.core.units.refractory import refractory_gap
 
 SECOND_CHANNEL_SHARE = 0.1
 """Share of a cluster's events a second main channel must hold to start a split from the channels."""
@@ -90,7 +100,7 @@ def absorb_fragments(z: np.ndarray, labels: np.ndarray, mixture: Mixture, merged
 
 
 def split_clusters(z: np.ndarray, labels: np.ndarray, channel: np.ndarray | None, params: ClusterParams,
-                   rng: np.random.Generator) -> np.ndarray:
+                   rng: np.random.Generator, time_s: np.ndarray | None = None) -> np.ndarray:
     """Labels after the split test (see the module docstring); -1 labels are left alone.
 
     Parameters
@@ -102,9 +112,11 @@ def split_clusters(z: np.ndarray, labels: np.ndarray, channel: np.ndarray | None
     channel
         Main (detection) channel of every event, or None to use the features alone.
     params
-        ``fit_events``, ``merge_overlap``, ``k_max`` and the smallest unit size.
+        ``fit_events``, ``split_overlap``, the gap settings, ``k_max`` and the smallest unit size.
     rng
         Source of the subsamples and of the fits' random states.
+    time_s
+        Time of every event (s), for the refractory gap between the parts (None: no gap test).
 
     Returns
     -------
@@ -123,8 +135,12 @@ def split_clusters(z: np.ndarray, labels: np.ndarray, channel: np.ndarray | None
         if len(idx) < 2 * least:
             continue
         test = two_part_test(z[idx], None if channel is None else channel[idx], params, rng)
-        unit_split = test.splits(params, least)
-        if not (test.apart(params) and 0 < test.smaller_part and (unit_split or params.split_fragments)):
+        gap_p = math.nan if time_s is None else gap_p_value(time_s[idx], test.second, params)
+        if gap_p < params.split_gap_p:
+            continue        # the parts keep one refractory period: pieces of one neuron
+        loose = not math.isnan(gap_p)
+        unit_split = test.splits(params, least, loose)
+        if not (test.apart(params, loose) and 0 < test.smaller_part and (unit_split or params.split_fragments)):
             continue
         labels[idx[test.second]] = n_clusters
         if unit_split:
@@ -136,6 +152,14 @@ def split_clusters(z: np.ndarray, labels: np.ndarray, channel: np.ndarray | None
         return labels
     parts = partition_mixture(z[used], labels[used], n_clusters)
     return absorb_fragments(z, labels, parts, [[c] for c in range(n_clusters)], params)
+
+
+def gap_p_value(time_s: np.ndarray, second: np.ndarray, params: ClusterParams) -> float:
+    """Poisson p-value of the refractory gap between the two parts of a cluster (``second`` marks
+    one; window from the gap settings): small when the parts keep one refractory period, NaN when
+    chance would put too few pairs in the window to judge."""
+    a, b = np.sort(time_s[~second]), np.sort(time_s[second])
+    return refractory_gap(a, b, params.gap_censored_ms / 1e3, params.gap_refractory_ms / 1e3)[2]
 
 
 @dataclass(frozen=True)
@@ -161,15 +185,17 @@ class TwoPartTest:
         k = int(self.second.sum())
         return min(k, len(self.second) - k) / max(1, len(self.second))
 
-    def apart(self, params: ClusterParams) -> bool:
-        """Two parts win BIC and do not overlap by more than ``merge_overlap``."""
-        return self.delta_bic_per_event > 0 and self.misclassification <= params.merge_overlap
+    def apart(self, params: ClusterParams, loose: bool = False) -> bool:
+        """Two parts win BIC and do not overlap by more than ``merge_overlap`` (``loose``, when the
+        refractory gap could be judged and did not join them: ``split_overlap``)."""
+        limit = params.split_overlap if loose else params.merge_overlap
+        return self.delta_bic_per_event > 0 and self.misclassification <= limit
 
-    def splits(self, params: ClusterParams, least: int) -> bool:
+    def splits(self, params: ClusterParams, least: int, loose: bool = False) -> bool:
         """True when the first pass splits on this test into two units: the parts are :meth:`apart`
         and both hold at least ``least`` events."""
         k = int(self.second.sum())
-        return self.apart(params) and min(k, len(self.second) - k) >= least
+        return self.apart(params, loose) and min(k, len(self.second) - k) >= least
 
 
 def two_part_test(z: np.ndarray, channel: np.ndarray | None, params: ClusterParams,

@@ -1,13 +1,14 @@
 """The first pass's fragment rule and split test on invented clusters with known membership."""
 
 import numpy as np
+import pytest
 from scipy.stats import chi2
 from sklearn.metrics import adjusted_rand_score
 
 from rigside.core.params import ClusterParams
 from rigside.core.units.em import fit_em
 from rigside.core.units.operations import _cluster_params
-from rigside.core.units.refine import absorb_fragments, smallest_unit, split_clusters
+from rigside.core.units.refine import absorb_fragments, gap_p_value, smallest_unit, split_clusters
 
 
 def test_smallest_unit_is_the_larger_of_count_and_share():
@@ -75,3 +76,38 @@ def test_a_part_too_small_to_be_a_unit_goes_by_the_fragment_rule():
                          np.random.default_rng(0))
     assert np.array_equal(off, labels)
     assert not _cluster_params({"min_unit_events": 20}).split_fragments and ClusterParams().split_fragments
+    old = _cluster_params({"min_unit_events": 20, "merge_overlap": 0.03})   # a record from before the gap test
+    assert (old.split_gap_p, old.split_overlap) == (0.0, 0.03)
+
+
+def _refractory_train(rng: np.random.Generator, n: int, seconds: float, dead_s: float = 0.0025) -> np.ndarray:
+    """Poisson spike times with an absolute refractory period (exponential gaps plus ``dead_s``)."""
+    gaps = dead_s + rng.exponential(seconds / n - dead_s, n)
+    return np.cumsum(gaps)
+
+
+def _brute_gap_p(a: np.ndarray, b: np.ndarray, p: ClusterParams) -> float:
+    from scipy.stats import poisson
+
+    lag = np.abs(b[None, :] - a[:, None])
+    lo, hi = p.gap_censored_ms / 1e3, p.gap_refractory_ms / 1e3
+    observed = int(((lag >= lo) & (lag < hi)).sum())
+    expected = ((lag >= 0.005) & (lag < 0.025)).sum() * (hi - lo) / 0.02
+    return float(poisson.cdf(observed, expected))
+
+
+def test_two_parts_that_keep_one_refractory_period_are_not_split():
+    rng = np.random.default_rng(4)
+    z = np.vstack([rng.normal(size=(600, 4)) + [4, 0, 0, 0], rng.normal(size=(600, 4)) - [4, 0, 0, 0]])
+    second = np.r_[np.zeros(600, bool), np.ones(600, bool)]
+    p = ClusterParams(min_unit_events=20, min_unit_share=0.02)
+    one = _refractory_train(rng, 1200, 60.0)                   # one neuron's spikes shared by the two blobs
+    one_neuron = rng.permutation(one)                           # blob of each spike: at random
+    two_neurons = np.r_[_refractory_train(rng, 600, 60.0), _refractory_train(rng, 600, 60.0)]
+    for times, parts in ((one_neuron, 1), (two_neurons, 2)):
+        # reference: brute-force pair counts and scipy's Poisson distribution
+        expect = _brute_gap_p(np.sort(times[~second]), np.sort(times[second]), p)
+        assert gap_p_value(times, second, p) == pytest.approx(expect, rel=1e-9)
+        assert (expect < p.split_gap_p) == (parts == 1)
+        out = split_clusters(z, np.zeros(len(z), np.int64), None, p, np.random.default_rng(0), times)
+        assert len(np.unique(out)) == parts

@@ -15,7 +15,6 @@ from rigside.core.quality.pair_evidence import (
     bhattacharyya_coefficient,
     continuity,
     gaussian_fit,
-    pairs_within,
     refractory_dip,
     split_test,
     waveform_likeness,
@@ -25,6 +24,7 @@ from rigside.core.units.dismissals import DismissSuggestion, dismissed_keys
 from rigside.core.units.history import UndoStack, rebuild_history
 from rigside.core.units.journal import Journal
 from rigside.core.units.operations import Relabel, operation_from_record
+from rigside.core.units.refractory import pairs_within
 from rigside.core.units.sorting import Sorting
 
 from .suggestion_data import suggestion_sorting
