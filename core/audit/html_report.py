@@ -8,13 +8,14 @@ ISI histograms and amplitude over time.
 
 from __future__ import annotations
 
+from concurrent.futures import ProcessPoolExecutor
 from html import escape
+from multiprocessing import get_context
 from pathlib import Path
 
 import numpy as np
 
 from rigside.core import __version__
-from rigside.core.audit.imported import WaveformSummary
 from rigside.core.audit.report_figures import (
     FRESH,
     IMPORTED,
@@ -26,9 +27,11 @@ from rigside.core.audit.report_figures import (
 from rigside.core.audit.run import CAUTION, AuditResult
 from rigside.core.io.atomic import atomic_write
 from rigside.core.numbers import format_number
+from rigside.core.progress import run_bounded
 from rigside.core.quality.correlograms import isi_histogram
 from rigside.core.quality.metric_settings import censored_note, metric_settings
 from rigside.core.quality.unit_table import CAUTION as QUALITY_CAUTION
+from rigside.core.units.clustering import WORKER_START
 from rigside.core.units.journal import utc_now
 
 MAX_POINTS = 400          # amplitude points drawn per side (spread subsample)
@@ -85,20 +88,16 @@ def _matrix(result: AuditResult) -> str:
     note = "" if len(keep) == a.shape[1] else (f"<p>Showing the {len(keep)} of {a.shape[1]} fresh units "
                                                f"overlapping (Jaccard) at least 0.05 with some imported unit.</p>")
     return note + overlap_figure(a[:, keep], [result.unit_name(u) for u in result.imported_ids],
-                                 result.fresh_ids[keep])
+                                 result.fresh_ids[keep], salt="matrix")
 
 
-def _waveforms(imp: WaveformSummary, fresh: WaveformSummary | None) -> str:
-    return waveform_figure([(imp, IMPORTED)] + ([(fresh, FRESH)] if fresh is not None else []))
-
-
-def _isi(t_imp: np.ndarray, t_fresh: np.ndarray | None, refractory_ms: float) -> str:
+def _isi(t_imp: np.ndarray, t_fresh: np.ndarray | None) -> list:
     sides = [(t_imp, IMPORTED)] + ([(t_fresh, FRESH)] if t_fresh is not None else [])
     hists = []
     for t, color in sides:
         counts, edges = isi_histogram(t, 0.001, 0.05)
         hists.append((counts, edges * 1000, color))
-    return isi_figure(hists, refractory_ms)
+    return hists
 
 
 def _spread(times: np.ndarray, amps: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -108,14 +107,38 @@ def _spread(times: np.ndarray, amps: np.ndarray) -> tuple[np.ndarray, np.ndarray
     return times[k], amps[k]
 
 
-def _amplitudes(result: AuditResult, unit: int, best: int | None) -> str:
-    sides = [(*_spread(*result.imported_train(unit)), IMPORTED)]
+def _plot_inputs(result: AuditResult, i: int) -> tuple:
+    """What the three plots of imported unit ``i`` draw (small arrays only, so it can go to another process)."""
+    unit = int(result.imported_ids[i])
+    best = _best(result, i)
+    fresh = result.fresh_waveforms.get(best)
+    waves = [(result.placements[unit].waveform, IMPORTED)] + ([(fresh, FRESH)] if fresh is not None else [])
+    t_fresh = result.fresh.train(best)[0] if best is not None else None
+    amps = [(*_spread(*result.imported_train(unit)), IMPORTED)]
     if best is not None:
-        sides.append((*_spread(*result.fresh.train(best)), FRESH))
-    return amplitude_figure(sides, result.fresh.events.duration_s)
+        amps.append((*_spread(*result.fresh.train(best)), FRESH))
+    return (unit, waves, _isi(result.imported_train(unit)[0], t_fresh), result.fresh.params.metrics.refractory_ms,
+            amps, result.fresh.events.duration_s)
 
 
-def _unit_section(result: AuditResult, i: int) -> str:
+def _draw_plots(unit: int, waves: list, hists: list, refractory_ms: float, amps: list, duration_s: float) -> str:
+    """The waveform, ISI and amplitude figures of one imported unit (SVG ids salted by the unit)."""
+    return (waveform_figure(waves, salt=f"u{unit}-w") + isi_figure(hists, refractory_ms, salt=f"u{unit}-i")
+            + amplitude_figure(amps, duration_s, salt=f"u{unit}-a"))
+
+
+def _all_plots(result: AuditResult, workers: int) -> list[str]:
+    """Every unit's plots, drawn in ``workers`` processes when more than one (matplotlib drawing holds the GIL)."""
+    tasks = [_plot_inputs(result, i) for i in range(len(result.imported_ids))]
+    if workers < 2 or len(tasks) < 2:
+        return [_draw_plots(*t) for t in tasks]
+    out: list[str] = []
+    pool = ProcessPoolExecutor(min(workers, len(tasks)), mp_context=get_context(WORKER_START))
+    run_bounded(_draw_plots, tasks, workers, out.append, pool=pool)
+    return out
+
+
+def _unit_section(result: AuditResult, i: int, plots: str) -> str:
     unit = int(result.imported_ids[i])
     best = _best(result, i)
     row = result.row(unit)
@@ -123,17 +146,17 @@ def _unit_section(result: AuditResult, i: int) -> str:
     facts = "<tr><th></th><th>imported unit</th><th>closest fresh unit</th></tr>" + "".join(
         f"<tr><th>{escape(c)}</th><td class='t'>{_value(row[c])}</td>"
         f"<td class='t'>{_value(other[c]) if c in other else ''}</td></tr>" for c in DETAIL)
-    t_fresh = result.fresh.train(best)[0] if best is not None else None
-    plots = _waveforms(result.placements[unit].waveform, result.fresh_waveforms.get(best))
-    plots += _isi(result.imported_train(unit)[0], t_fresh, result.fresh.params.metrics.refractory_ms)
-    plots += _amplitudes(result, unit, best)
     match = f"closest fresh unit {best}" if best is not None else "no fresh unit shares its spikes"
     return (f'<div class="unit" id="u{unit}"><h3>Imported unit {escape(result.unit_name(unit))} ({match})</h3>'
             f'<p>{escape(str(row["notes"]))}</p><div>{plots}</div><table>{facts}</table></div>')
 
 
-def audit_report_html(result: AuditResult, title: str = "Audit of an imported sorting") -> str:
-    """The report as one HTML string (no external files, scripts or fonts)."""
+def audit_report_html(result: AuditResult, title: str = "Audit of an imported sorting",
+                      workers: int | None = None) -> str:
+    """The report as one HTML string (no external files, scripts or fonts).
+
+    The per-unit figures are drawn in ``workers`` processes (default: the fresh session's
+    ``run.workers``); the page is the same for any number."""
     s = result.settings
     key = (f'<p class="key"><span style="background:{IMPORTED}"></span>imported unit'
            f'<span style="background:{FRESH}"></span>closest fresh unit</p>')
@@ -147,14 +170,16 @@ def audit_report_html(result: AuditResult, title: str = "Audit of an imported so
              f'<p class="caution">{escape(CAUTION)}<br>{escape(QUALITY_CAUTION)}</p>',
              "<h2>Summary</h2>", _summary(result), "<h2>Overlap (Jaccard) matrix</h2>", _matrix(result),
              "<h2>Units</h2>", key]
-    parts += [_unit_section(result, i) for i in range(len(result.imported_ids))]
+    plots = _all_plots(result, result.fresh.params.run.workers if workers is None else workers)
+    parts += [_unit_section(result, i, p) for i, p in enumerate(plots)]
     parts.append("</body></html>")
     return "".join(parts)
 
 
-def write_audit_report(result: AuditResult, path: str | Path, title: str = "Audit of an imported sorting") -> Path:
+def write_audit_report(result: AuditResult, path: str | Path, title: str = "Audit of an imported sorting",
+                       workers: int | None = None) -> Path:
     """Write :func:`audit_report_html` to ``path`` atomically."""
-    html = audit_report_html(result, title)
+    html = audit_report_html(result, title, workers)
 
     def write(tmp: Path) -> None:
         with open(tmp, "w", encoding="utf-8", newline="\n") as fh:

@@ -42,12 +42,16 @@ def _figure(width_in: float, height_in: float, constrained: bool = False, top_in
     return fig
 
 
-def svg_of(fig) -> str:
-    """``fig`` rendered as one inline ``<svg>`` element (no prolog, no metadata, text as text)."""
+def svg_of(fig, salt: str | None = None) -> str:
+    """``fig`` rendered as one inline ``<svg>`` element (no prolog, no metadata, text as text).
+
+    ``salt`` seeds the SVG ids; figures of one page need different salts (default: a counter of this
+    process; figures drawn in other processes pass their own, e.g. the unit and the figure's name)."""
     import matplotlib
 
     buf = io.StringIO()
-    with matplotlib.rc_context({"svg.fonttype": "none", "svg.hashsalt": f"rigside-{next(_SALTS)}"}):
+    with matplotlib.rc_context({"svg.fonttype": "none",
+                                "svg.hashsalt": f"rigside-{next(_SALTS) if salt is None else salt}"}):
         fig.savefig(buf, format="svg", metadata={"Creator": None, "Date": None, "Format": None, "Type": None})
     return _GROUP_ID.sub("<g", _PROLOG.sub("", buf.getvalue(), count=1))
 
@@ -59,9 +63,9 @@ def _small_text(ax) -> None:
     ax.title.set_size(9)
 
 
-def overlap_figure(matrix: np.ndarray, row_ids, col_ids: np.ndarray) -> str:
+def overlap_figure(matrix: np.ndarray, row_ids, col_ids: np.ndarray, salt: str | None = None) -> str:
     """Overlap (Jaccard index, 0 to 1) of imported units (rows: ids or names) with fresh units (columns),
-    with a colour bar."""
+    with a colour bar (``salt`` as in :func:`svg_of`)."""
     m = np.asarray(matrix, float)
     fig = _figure(min(12.0, 2.4 + 0.16 * m.shape[1]), min(12.0, 1.6 + 0.16 * m.shape[0]), constrained=True)
     ax = fig.add_subplot()
@@ -79,14 +83,14 @@ def overlap_figure(matrix: np.ndarray, row_ids, col_ids: np.ndarray) -> str:
     bar = fig.colorbar(cells, ax=ax, shrink=0.9)
     bar.set_label("overlap (Jaccard index)", size=8)
     bar.ax.tick_params(labelsize=7)
-    return svg_of(fig)
+    return svg_of(fig, salt)
 
 
-def waveform_figure(sides: list[tuple[WaveformSummary, str]]) -> str:
+def waveform_figure(sides: list[tuple[WaveformSummary, str]], salt: str | None = None) -> str:
     """Mean waveform +-1 SD per channel, one panel per channel of the first side's group.
 
     ``sides`` holds (summary, colour) pairs; channels of a later side missing from the first
-    side's group are not drawn.
+    side's group are not drawn; ``salt`` as in :func:`svg_of` (so for the figures below).
     """
     first = sides[0][0]
     channels = [int(c) for c in first.channels]
@@ -107,10 +111,10 @@ def waveform_figure(sides: list[tuple[WaveformSummary, str]]) -> str:
         _small_text(ax)
     axes[0].set_ylabel("voltage (µV)")
     fig.suptitle("mean waveform ±1 SD", size=9)
-    return svg_of(fig)
+    return svg_of(fig, salt)
 
 
-def isi_figure(hists: list[tuple[np.ndarray, np.ndarray, str]], refractory_ms: float) -> str:
+def isi_figure(hists: list[tuple[np.ndarray, np.ndarray, str]], refractory_ms: float, salt: str | None = None) -> str:
     """Inter-spike-interval histograms (counts, edges in ms, colour) with the refractory period."""
     fig = _figure(3.2, 2.3)
     ax = fig.add_subplot()
@@ -125,10 +129,11 @@ def isi_figure(hists: list[tuple[np.ndarray, np.ndarray, str]], refractory_ms: f
     ax.set_title("ISI histogram")
     ax.legend(fontsize=6, frameon=False)
     _small_text(ax)
-    return svg_of(fig)
+    return svg_of(fig, salt)
 
 
-def amplitude_figure(sides: list[tuple[np.ndarray, np.ndarray, str]], duration_s: float) -> str:
+def amplitude_figure(sides: list[tuple[np.ndarray, np.ndarray, str]], duration_s: float,
+                     salt: str | None = None) -> str:
     """Spike amplitude over the recording: (times in s, amplitudes in uV, colour) per side."""
     fig = _figure(3.8, 2.3)
     ax = fig.add_subplot()
@@ -143,4 +148,4 @@ def amplitude_figure(sides: list[tuple[np.ndarray, np.ndarray, str]], duration_s
     ax.set_title("amplitude over time" + (f" (every {step}th spike)" if step > 1 else ""))
     ax.legend(fontsize=6, frameon=False, markerscale=3)
     _small_text(ax)
-    return svg_of(fig)
+    return svg_of(fig, salt)

@@ -32,6 +32,7 @@ from rigside.core.signal.features import (
     Features,
     feature_names,
     fit_basis,
+    fit_subset,
     put_scores,
     shape_features,
     usable_channels,
@@ -82,8 +83,7 @@ class _Bases:
         if not held:
             return
         x = np.concatenate([h[3] for h in held])
-        rng = np.random.default_rng([self.seed, slot])
-        pick = np.sort(rng.choice(len(x), size=min(len(x), self.size), replace=False))
+        pick = fit_subset(len(x), self.size, self.seed, slot)
         self.basis[slot] = basis = fit_basis(x[pick], self.n_pcs, self.seed)
         for _, feats, rows, flat in held:
             put_scores(feats, rows, basis, flat)

@@ -116,7 +116,7 @@ def compute_features(recording: Recording, events: EventTable, params: Params, p
     slot = np.searchsorted(groups, group)
     channels = [usable_channels(recording.groups[int(g)], events.excluded) for g in groups]
     own = own_columns(events.channel[idx_all][order], slot, channels, recording.n_channels)
-    fit = _fit_subsets(slot, len(groups), sp.pca_fit_events, sp.seed)
+    fit = _fit_subsets(slot, groups, sp.pca_fit_events, sp.seed)
     chosen = np.sort(np.concatenate(fit)) if len(fit) else np.zeros(0, dtype=np.int64)
     rest = np.setdiff1d(np.arange(len(sample)), chosen, assume_unique=True)
     share = len(chosen) / max(1, len(sample))
@@ -178,11 +178,18 @@ def put_scores(out: np.ndarray, rows: np.ndarray, pca: Basis | None, flat: np.nd
         out[rows, :pca.n_components_] = scores
 
 
-def _fit_subsets(slot: np.ndarray, n_slots: int, size: int, seed: int) -> list[np.ndarray]:
-    """Per slot, the positions (in time order) of a seeded random subset of at most ``size`` events."""
-    rng = np.random.default_rng(seed)
+def fit_subset(n: int, size: int, seed: int, group: int) -> np.ndarray:
+    """Sorted positions of a seeded random subset of at most ``size`` of a group's ``n`` events.
+
+    The generator is seeded with ``(seed, group)``, so a group's subset depends on its own events only."""
+    rng = np.random.default_rng([seed, group])
+    return np.sort(rng.choice(n, size=min(n, size), replace=False))
+
+
+def _fit_subsets(slot: np.ndarray, groups: np.ndarray, size: int, seed: int) -> list[np.ndarray]:
+    """Per slot (group ``groups[slot]``), the positions (in time order) of its fit subset (:func:`fit_subset`)."""
     out = []
-    for s in range(n_slots):
+    for s, g in enumerate(groups):
         rows = np.flatnonzero(slot == s)
-        out.append(rows[np.sort(rng.choice(len(rows), size=min(len(rows), size), replace=False))])
+        out.append(rows[fit_subset(len(rows), size, seed, int(g))])
     return out

@@ -111,7 +111,6 @@ class BlockDetector:
     sigma: np.ndarray
     excluded: dict[int, str]
     floor: float
-    margin: int
     params: Params
 
     def __post_init__(self) -> None:
@@ -122,6 +121,8 @@ class BlockDetector:
         self.art_w = int(round(d.artefact_window_ms * rate / 1000))
         self.half = int(round(POSITION_WINDOW_MS * rate / 1000))
         rec = self.recording
+        # context each side of a block: the dead time, the artefact window and (probes) the position window
+        self.margin = max(self.dead, self.art_w, self.half if rec.positions is not None else 0) + 2
         self.nbh = neighbourhoods(rec.positions, rec.shank, self.params.probe.radius_um) \
             if rec.positions is not None else None
 
@@ -168,10 +169,7 @@ def block_detector(recording: Recording, params: Params, progress: ProgressFn = 
         noise = estimate_noise(recording, params, cancel=cancel, bandpass=bp,
                                progress=lambda f, m: report(progress, f * NOISE_SHARE, m))
     sigma = np.asarray(noise.sigma_uv, dtype=np.float64)
-    d, rate = params.detect, recording.rate_hz
-    ctx = max(round(d.dead_time_ms * rate / 1000), round(d.artefact_window_ms * rate / 1000),
-              round(POSITION_WINDOW_MS * rate / 1000) if recording.positions is not None else 0) + 2
-    return BlockDetector(recording, bp, sigma, noise.excluded, lookup_floor(params, sigma), int(ctx), params)
+    return BlockDetector(recording, bp, sigma, noise.excluded, lookup_floor(params, sigma), params)
 
 
 def stream_chunks(detector: BlockDetector, work: Callable[[int], R], items: list[int], on_result: Callable[[R], None],

@@ -176,6 +176,18 @@ def test_pair_view_report_and_csv(world, audited, tmp_path):
     assert not re.search(r"\bagreement|best match", described, re.IGNORECASE)
 
 
+def test_report_drawn_in_processes_is_the_page_drawn_in_one(world):
+    rec, truth, fresh, trains = world
+    three = sorted(trains)[:3]
+    t = np.concatenate([trains[u] for u in three])
+    res = run_audit(rec, checked_trains(t, np.concatenate([np.full(len(trains[u]), u) for u in three]), "x"), fresh)
+    written = re.compile(r"Written [^<]* by rigside")     # the clock is the only difference allowed
+    one, two = (written.sub("", audit_report_html(res, workers=w)) for w in (1, 2))
+    assert one.count("<svg") == 1 + 3 * len(res.imported_ids) and one == two
+    ids = re.findall(r'\bid="([^"]+)"', one)
+    assert len(ids) == len(set(ids))                      # figures of one page never share an id
+
+
 def test_separation_from_time_windows_matches_all_events(world, audited):
     rec, truth, fresh, trains = world
     spikes, full = audited

@@ -51,7 +51,6 @@ def reference(rec, ev, p):
     ``(rows, flattened snippets)``."""
     y = BandPass(rec, p.filter).read(0, rec.n_samples)
     before, after = snippet_window(p.snippets, FS)
-    rng = np.random.default_rng(p.snippets.seed)
     out = np.zeros((len(ev), p.snippets.n_pcs + 3), np.float32)
     fit_inputs, flats = [], {}
     for g in np.unique(ev.group):
@@ -65,6 +64,7 @@ def reference(rec, ev, p):
             piece = y[max(0, lo):min(rec.n_samples, hi)][:, channels]
             padded[i, max(0, -lo):max(0, -lo) + len(piece)] = piece
         snips = align_subsample(padded, own, before)
+        rng = np.random.default_rng([p.snippets.seed, int(g)])    # one generator per group, seeded by its id
         fit = np.sort(rng.choice(len(rows), size=min(len(rows), p.snippets.pca_fit_events), replace=False))
         flat = snips.reshape(len(rows), -1)
         fit_inputs.append(flat[fit])
