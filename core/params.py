@@ -198,6 +198,9 @@ class ClusterParams:
         every unit (see :mod:`rigside.core.units.refine`).
     split_fragments
         A split test part too small to be a unit goes by the fragment rule (off: no such split).
+    region_um
+        Length of the overlapping regions a probe shank is clustered by (see
+        :mod:`rigside.core.units.regions`; unused without event positions).
     """
 
     k: int | None = None
@@ -214,6 +217,7 @@ class ClusterParams:
     fragment_fit: float = 0.99
     split_test: bool = True
     split_fragments: bool = True
+    region_um: float = 100.0
 
     def validate(self) -> None:
         """Raise :class:`ParamError` for any value out of range."""
@@ -237,6 +241,7 @@ class ClusterParams:
             raise ParamError(f"split test must be true or false, got {self.split_test!r}")
         if not isinstance(self.split_fragments, bool):
             raise ParamError(f"split fragments must be true or false, got {self.split_fragments!r}")
+        _positive("probe region length", self.region_um, "um")
 
     def to_dict(self) -> dict[str, Any]:
         """Plain dict (``k`` omitted when ``None``)."""
