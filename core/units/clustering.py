@@ -200,6 +200,45 @@ def _cluster_group(key: tuple[int, int], features: np.ndarray, channel: np.ndarr
         return key, _cluster(features, params, stream, None, channel, refine=True)
 
 
+def _checked_rows(group: np.ndarray, artefact: np.ndarray, features: np.ndarray, amplitude_uv: np.ndarray,
+                  channel: np.ndarray | None) -> int:
+    """The event count, once every column has one row per event (:class:`RigsideError` otherwise)."""
+    n = len(group)
+    lengths = {len(features), len(artefact), len(amplitude_uv)} | ({len(channel)} if channel is not None else set())
+    if features.ndim != 2 or lengths != {n}:
+        raise RigsideError(f"features and event columns must have one row per event ({n}), got features "
+                           f"{features.shape}, artefact {len(artefact)}, amplitude {len(amplitude_uv)}")
+    return n
+
+
+def _group_rows(group: np.ndarray, artefact: np.ndarray, todo: list[int]) -> list[np.ndarray]:
+    """The rows of each group in ``todo`` that are not artefacts."""
+    order = np.argsort(group, kind="stable")
+    bounds = np.searchsorted(group[order], [todo, np.add(todo, 1)]) if todo else np.zeros((2, 0), int)
+    return [r[~artefact[r]] for r in (order[bounds[0, i]:bounds[1, i]] for i in range(len(todo)))]
+
+
+def _tasks(busy: list[int], cut: dict, rows_of: list[np.ndarray], todo: list[int], features: np.ndarray,
+           channel: np.ndarray | None, params: ClusterParams) -> list[tuple]:
+    """The :func:`_cluster_group` arguments of every region of every busy group; a group of one region
+    draws the group's own seed stream, the regions of a probe group ``group * REGION_STREAMS + k``."""
+    chan = None if channel is None else np.asarray(channel)
+    return [((i, k), features[rows_of[i][r]], None if chan is None else chan[rows_of[i][r]], params,
+             todo[i] if cut[i][1] is None else todo[i] * REGION_STREAMS + k)
+            for i in busy for k, r in enumerate(cut[i][0])]
+
+
+def _run_tasks(tasks: list, workers: int, on_result, cancel: CancelFn) -> None:
+    """Cluster the tasks (:func:`_cluster_group` arguments) in worker processes, results in order."""
+    if workers > 1 and len(tasks) > 1:
+        processes = ProcessPoolExecutor(min(workers, len(tasks)), mp_context=get_context(WORKER_START))
+        run_bounded(_cluster_group, iter(tasks), workers, on_result, cancel, pool=processes)
+    else:
+        for task in tasks:
+            check(cancel)
+            on_result(_cluster_group(*task))
+
+
 def _regions(rows: np.ndarray, features: np.ndarray, y_column: int | None, region_um: float):
     """A group's regions: its rows in one region without positions, else cut along the probe
     (:mod:`rigside.core.units.regions`); with the core boundaries (None for one region)."""
@@ -240,9 +279,8 @@ def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np
     channel
         Main (detection) channel of every event, for the split test (None: features alone).
     y_column
-        Feature column of the events' position along the probe: given, each group is clustered by
-        overlapping regions along it (:mod:`rigside.core.units.regions`, ``params.region_um``), the
-        regions spread over the workers like groups.
+        Feature column of the events' position along a probe: given, groups are clustered by regions
+        along it (:mod:`rigside.core.units.regions`), the regions spread over the workers as groups are.
 
     Returns
     -------
@@ -253,17 +291,11 @@ def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np
     params.validate()
     warm_up()
     group = np.asarray(group)
-    n = len(group)
-    lengths = {len(features), len(artefact), len(amplitude_uv)} | ({len(channel)} if channel is not None else set())
-    if features.ndim != 2 or lengths != {n}:
-        raise RigsideError(f"features and event columns must have one row per event ({n}), got features "
-                           f"{features.shape}, artefact {len(artefact)}, amplitude {len(amplitude_uv)}")
+    n = _checked_rows(group, artefact, features, amplitude_uv, channel)
     todo = sorted(int(g) for g in np.unique(group)) if groups is None else sorted(set(groups))
     out = np.full(n, NO_UNIT, dtype=np.int32)
     unit_group: dict[int, int] = {}
-    order = np.argsort(group, kind="stable")
-    bounds = np.searchsorted(group[order], [todo, np.add(todo, 1)]) if todo else np.zeros((2, 0), int)
-    rows_of = [r[~artefact[r]] for r in (order[bounds[0, i]:bounds[1, i]] for i in range(len(todo)))]
+    rows_of = _group_rows(group, artefact, todo)
     busy = [i for i in range(len(todo)) if len(rows_of[i])]
     state = {"next": first_id, "done": 0}
     cut = {i: _regions(rows_of[i], features, y_column, params.region_um) for i in busy}
@@ -274,8 +306,7 @@ def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np
         pending[i][k] = labels
         regions, edges = cut[i]
         if len(pending[i]) == len(regions):
-            done = pending.pop(i)
-            parts = [done[j] for j in range(len(regions))]
+            parts = [pending[i].pop(j) for j in range(len(regions))]
             number(i, parts[0] if edges is None else
                    join_regions(features[rows_of[i], y_column], regions, parts, edges, params))
 
@@ -295,16 +326,6 @@ def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np
         report(progress, state["done"] / max(1, len(busy)), f"clustered group {g}")
 
     report(progress, 0.0, "clustering groups")
-    chan = None if channel is None else np.asarray(channel)
-    tasks = [((i, k), features[rows_of[i][r]], None if chan is None else chan[rows_of[i][r]], params,
-              todo[i] if cut[i][1] is None else todo[i] * REGION_STREAMS + k)
-             for i in busy for k, r in enumerate(cut[i][0])]
-    if workers > 1 and len(tasks) > 1:
-        processes = ProcessPoolExecutor(min(workers, len(tasks)), mp_context=get_context(WORKER_START))
-        run_bounded(_cluster_group, iter(tasks), workers, region_done, cancel, pool=processes)
-    else:
-        for task in tasks:
-            check(cancel)
-            region_done(_cluster_group(*task))
+    _run_tasks(_tasks(busy, cut, rows_of, todo, features, channel, params), workers, region_done, cancel)
     report(progress, 1.0, "clustering done")
     return out, unit_group

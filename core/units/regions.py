@@ -17,8 +17,9 @@ Then every cluster is kept once (our own rule, no source):
 3. An event claimed by two kept clusters goes to the one whose median position is nearer to its
    own; an event claimed by none goes to the kept cluster holding most of the events of its cluster
    in its own core's region (when that cluster is dropped), or stays unassigned.
-4. A kept cluster left with fewer than the smallest unit size (``refine.smallest_unit`` of the
-   shank's clustered events) is a fragment: its events are unassigned.
+4. A kept cluster left with fewer than ``min_unit_events`` events is a fragment: its events are
+   unassigned (the share rule of :mod:`rigside.core.units.refine` applies within each region, to the
+   region's events: a shank-wide share would drop the sparse units of a long probe).
 
 A unit whose spikes peak on two adjacent sites thus stays one unit as long as both sites lie in one
 region, which the overlap guarantees for units narrower than a quarter of ``region_um``.
@@ -29,7 +30,6 @@ from __future__ import annotations
 import numpy as np
 
 from rigside.core.params import ClusterParams
-from rigside.core.units.refine import smallest_unit
 
 
 def region_cores(y_um: np.ndarray, region_um: float) -> np.ndarray:
@@ -65,7 +65,7 @@ def join_regions(y_um: np.ndarray, rows: list[np.ndarray], labels: list[np.ndarr
     edges
         Core boundaries (:func:`region_cores`).
     params
-        The smallest unit size (``min_unit_events``, ``min_unit_share``).
+        The smallest unit size (``min_unit_events``).
     """
     y = np.asarray(y_um, dtype=np.float64)
     n = len(y)
@@ -92,7 +92,7 @@ def join_regions(y_um: np.ndarray, rows: list[np.ndarray], labels: list[np.ndarr
     out = np.where(both, kept_claim[np.arange(n), dist.argmin(axis=1)], kept_claim.max(axis=1))
     out = _inherit(out, claim[:, 0], keep, first)
     sizes = np.bincount(out[out >= 0], minlength=first)
-    out[(out >= 0) & (sizes[np.maximum(out, 0)] < smallest_unit(params, n))] = -1
+    out[(out >= 0) & (sizes[np.maximum(out, 0)] < params.min_unit_events)] = -1
     used = out >= 0
     dense = np.full(n, -1, dtype=np.int32)
     dense[used] = np.unique(out[used], return_inverse=True)[1].ravel()
