@@ -150,14 +150,15 @@ def detect_with_features(recording: Recording, params: Params, progress: Progres
         slot = cols.group[rows].astype(np.int64)
         own = own_columns(cols.channel[rows], slot, channels, recording.n_channels)
         chunk = _Chunk(i, cols, keep, np.zeros((len(rows), n_feats), dtype=np.float32))
-        where = (cols.y_um[rows],) if local else ()
+        centred = cols.y_um[rows].astype(np.float64) if local else None
+        where = (centred, centred) if local else ()  # the frame-centred positions replace the estimates
         peak_column = np.zeros_like(own) if local else own  # a local frame's column 0 is the peak site
-        if local:  # the position follows the shape features
-            chunk.feats[:, sp.n_pcs + 3:] = np.column_stack([cols.x_um[rows], cols.y_um[rows]])
         for pos, aligned, runs in cutter.cut(y, lo, cols.sample[rows], slot, own, *where):
             chunk.feats[pos, sp.n_pcs:sp.n_pcs + 3] = shape_features(aligned, peak_column[pos], before, rate)
             flat = aligned.reshape(len(pos), -1)
             chunk.runs += [(s, pos[a:b], flat[a:b]) for s, a, b in runs]
+        if local:  # the position follows the shape features
+            chunk.feats[:, sp.n_pcs + 3:] = np.column_stack([cols.x_um[rows], centred])
         return chunk
 
     bases = _Bases(len(channels), sp.pca_fit_events, sp.n_pcs, sp.seed)

@@ -135,8 +135,7 @@ def compute_features(recording: Recording, events: EventTable, params: Params, p
     share = len(chosen) / max(1, len(sample))
     names = feature_names(sp.n_pcs, local)
     out = np.zeros((len(idx_all), len(names)), dtype=np.float32)
-    if local:
-        out[:, sp.n_pcs + 3:] = np.column_stack([events.x_um[idx_all], events.y_um[idx_all]])
+    centred = np.zeros(len(sample)) if local else None  # the frame-centred positions, in time order
     row_of = np.zeros(len(sample), dtype=np.int64)
     for f in fit:
         row_of[f] = np.arange(len(f))
@@ -151,9 +150,12 @@ def compute_features(recording: Recording, events: EventTable, params: Params, p
             flat = aligned.reshape(len(pos), -1)
             for s, a, b in runs:
                 put(s, ev[a:b], flat[a:b])
+        moved = None if centred is None else np.zeros(len(which))
         snippet_pass(bp, sample[which], slot[which], own[which], channels, params, consume,
                      lambda f, m: report(progress, share0 + (share1 - share0) * f, m), cancel,
-                     None if y_um is None else y_um[which])
+                     None if y_um is None else y_um[which], moved)
+        if moved is not None:
+            centred[which] = moved
 
     def hold(s: int, ev: np.ndarray, flat: np.ndarray) -> None:
         # a chunk brings all fit events of a group between two times, in time order: one slice
@@ -168,6 +170,8 @@ def compute_features(recording: Recording, events: EventTable, params: Params, p
         held[s] = None  # the group's subset is projected: free it
 
     cut(rest, lambda s, ev, flat: put_scores(out, order[ev], bases[s], flat), share, 1.0)
+    if local:  # the position follows the shape features
+        out[order, sp.n_pcs + 3:] = np.column_stack([events.x_um[idx_all][order], centred])
     report(progress, 1.0, "features done")
     return Features(out, names, {int(g): b for g, b in zip(groups, bases) if b is not None})
 

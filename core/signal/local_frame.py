@@ -27,6 +27,13 @@ import numpy as np
 
 from rigside.core.signal.snippets import align_subsample, cut_windows, slot_runs
 
+CENTRE_STEPS = 3
+"""Times each event's frame is moved to the centre of mass of its own peak amplitudes before it is
+kept. The detection's position is a centre of mass over the peak site's neighbourhood, so the
+events of one unit between two sites sit at two positions, each biased toward the site it peaked on
+(see DEVELOPERS.md); over a frame centred on the event the bias is symmetric, and a few steps bring
+the events of one unit to one position whichever site they peaked on."""
+
 
 @dataclass(frozen=True)
 class _Columns:
@@ -130,23 +137,48 @@ class LocalFrameCutter:
         self.offsets, self.before = offsets, before
 
     def cut(self, block: np.ndarray, lo: int, samples: np.ndarray, slot: np.ndarray, own: np.ndarray,
-            y_um: np.ndarray) -> list[tuple[np.ndarray, np.ndarray, list[tuple[int, int, int]]]]:
+            y_um: np.ndarray, centred: np.ndarray | None = None
+            ) -> list[tuple[np.ndarray, np.ndarray, list[tuple[int, int, int]]]]:
         """``(positions, snippets, runs)`` per frame width among the events, as ``BlockCutter.cut``;
-        ``snippets`` are float32 ``(n, samples, 1 + frame sites)``, column 0 the peak site."""
+        ``snippets`` are float32 ``(n, samples, 1 + frame sites)``, column 0 the peak site, each frame
+        centred on the event's frame-centred position (:data:`CENTRE_STEPS`), written to ``centred``
+        (one value per event) when given."""
         out = []
-        for pos, by_slot, runs in slot_runs(slot, self.width):
-            n, f = len(pos), int(self.width[by_slot[0]]) - 1
-            src = np.empty((n, f, 2), dtype=np.int64)
-            wts = np.empty((n, f, 2), dtype=np.float32)
-            peak = np.empty(n, dtype=np.int64)
-            for s, a, b in runs:
-                rows = pos[a:b]
-                src[a:b], wts[a:b] = self.frame.sources(s, y_um[rows])
-                peak[a:b] = self.channels[s][own[rows]]
-            chans = np.concatenate([peak[:, None], src.reshape(n, 2 * f)], axis=1)
-            aligned = align_subsample(cut_windows(block, lo, samples[pos], self.offsets, chans),
-                                      np.zeros(n, dtype=np.int64), self.before)
-            pairs = aligned[:, :, 1:].reshape(n, aligned.shape[1], f, 2)
-            sites = np.einsum("ntfk,nfk->ntf", pairs, wts, optimize=True)
-            out.append((pos, np.concatenate([aligned[:, :, :1], sites], axis=2).astype(np.float32), runs))
+        for pos, _, runs in slot_runs(slot, self.width):
+            y = np.asarray(y_um, dtype=np.float64)[pos]
+            for step in range(CENTRE_STEPS + 1):
+                snips = self._frames(block, lo, samples[pos], runs, pos, own, y)
+                if step < CENTRE_STEPS:
+                    y = y + self._shift(snips, runs)
+            if centred is not None:
+                centred[pos] = y
+            out.append((pos, snips, runs))
+        return out
+
+    def _frames(self, block: np.ndarray, lo: int, samples: np.ndarray, runs: list[tuple[int, int, int]],
+                pos: np.ndarray, own: np.ndarray, y: np.ndarray) -> np.ndarray:
+        n, f = len(pos), int(self.width[runs[0][0]]) - 1
+        src = np.empty((n, f, 2), dtype=np.int64)
+        wts = np.empty((n, f, 2), dtype=np.float32)
+        peak = np.empty(n, dtype=np.int64)
+        for s, a, b in runs:
+            src[a:b], wts[a:b] = self.frame.sources(s, y[a:b])
+            peak[a:b] = self.channels[s][own[pos[a:b]]]
+        chans = np.concatenate([peak[:, None], src.reshape(n, 2 * f)], axis=1)
+        aligned = align_subsample(cut_windows(block, lo, samples, self.offsets, chans),
+                                  np.zeros(n, dtype=np.int64), self.before)
+        pairs = aligned[:, :, 1:].reshape(n, aligned.shape[1], f, 2)
+        sites = np.einsum("ntfk,nfk->ntf", pairs, wts, optimize=True)
+        return np.concatenate([aligned[:, :, :1], sites], axis=2).astype(np.float32)
+
+    def _shift(self, snips: np.ndarray, runs: list[tuple[int, int, int]]) -> np.ndarray:
+        """Move of each event's position to the centre of mass of its frame's peak amplitudes (the
+        frame's values at the peak sample, of the peak's sign, negative parts left out)."""
+        at = snips[:, self.before, :]
+        amp = np.maximum(at[:, 1:] * np.sign(at[:, :1]), 0.0).astype(np.float64)
+        out = np.zeros(len(snips))
+        for s, a, b in runs:
+            dy = np.tile(self.frame.slots[s].dy, len(self.frame.slots[s].y))
+            total = amp[a:b].sum(axis=1)
+            out[a:b] = np.where(total > 0, amp[a:b] @ dy / np.where(total > 0, total, 1.0), 0.0)
         return out

@@ -50,7 +50,8 @@ def own_columns(channel: np.ndarray, slot: np.ndarray, channels: list[np.ndarray
 
 def snippet_pass(bandpass: BandPass, samples: np.ndarray, slot: np.ndarray, own: np.ndarray,
                  channels: list[np.ndarray], params: Params, consume: Consumer,
-                 progress: ProgressFn = None, cancel: CancelFn = None, y_um: np.ndarray | None = None) -> None:
+                 progress: ProgressFn = None, cancel: CancelFn = None, y_um: np.ndarray | None = None,
+                 centred: np.ndarray | None = None) -> None:
     """Cut, align and hand over the snippet of every event, chunk by chunk.
 
     Parameters
@@ -74,7 +75,8 @@ def snippet_pass(bandpass: BandPass, samples: np.ndarray, slot: np.ndarray, own:
     y_um
         Position of each event along the probe: given, snippets are cut in the probe's local frame
         (:mod:`rigside.core.signal.local_frame`; column 0 the event's own site) instead of on the
-        slot's channels.
+        slot's channels; ``centred`` (as long as ``y_um``) then receives each event's frame-centred
+        position (:data:`rigside.core.signal.local_frame.CENTRE_STEPS`).
     """
     samples = np.asarray(samples, dtype=np.int64)
     rec = bandpass.recording
@@ -97,7 +99,7 @@ def snippet_pass(bandpass: BandPass, samples: np.ndarray, slot: np.ndarray, own:
         start, stop = bounds[i]
         lo, hi = max(0, start - before - 1), min(rec.n_samples, stop + after + 1)
         block = bandpass.read(lo, hi)
-        where = () if y_um is None else (y_um[a:b],)
+        where = () if y_um is None else (y_um[a:b], None if centred is None else centred[a:b])
         for pos, aligned, runs in cutter.cut(block, lo, samples[a:b], slot[a:b], own[a:b], *where):
             consume(a + pos, aligned, runs)
 
