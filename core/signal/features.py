@@ -135,13 +135,12 @@ def compute_features(recording: Recording, events: EventTable, params: Params, p
     share = len(chosen) / max(1, len(sample))
     names = feature_names(sp.n_pcs, local)
     out = np.zeros((len(idx_all), len(names)), dtype=np.float32)
-    centred = np.zeros(len(sample)) if local else None  # the frame-centred positions, in time order
+    centred = np.zeros(len(sample))  # probes: the frame-centred positions, in time order
     row_of = np.zeros(len(sample), dtype=np.int64)
     for f in fit:
         row_of[f] = np.arange(len(f))
-    width = local_cutter(recording, channels, params, np.zeros(0), before).width if local else \
-        np.array([len(ch) for ch in channels])
-    held = [np.empty((len(f), (before + after) * w), dtype=np.float32) for f, w in zip(fit, width)]
+    held = [np.empty((len(f), (before + after) * w), dtype=np.float32)
+            for f, w in zip(fit, _widths(recording, channels, params, before, local))]
 
     def cut(which: np.ndarray, put, share0: float, share1: float) -> None:
         def consume(pos: np.ndarray, aligned: np.ndarray, runs: list[tuple[int, int, int]]) -> None:
@@ -150,12 +149,11 @@ def compute_features(recording: Recording, events: EventTable, params: Params, p
             flat = aligned.reshape(len(pos), -1)
             for s, a, b in runs:
                 put(s, ev[a:b], flat[a:b])
-        moved = None if centred is None else np.zeros(len(which))
+        moved = np.zeros(len(which))
         snippet_pass(bp, sample[which], slot[which], own[which], channels, params, consume,
                      lambda f, m: report(progress, share0 + (share1 - share0) * f, m), cancel,
-                     None if y_um is None else y_um[which], moved)
-        if moved is not None:
-            centred[which] = moved
+                     None if y_um is None else y_um[which], moved if local else None)
+        centred[which] = moved
 
     def hold(s: int, ev: np.ndarray, flat: np.ndarray) -> None:
         # a chunk brings all fit events of a group between two times, in time order: one slice
@@ -174,6 +172,14 @@ def compute_features(recording: Recording, events: EventTable, params: Params, p
         out[order, sp.n_pcs + 3:] = np.column_stack([events.x_um[idx_all][order], centred])
     report(progress, 1.0, "features done")
     return Features(out, names, {int(g): b for g, b in zip(groups, bases) if b is not None})
+
+
+def _widths(recording: Recording, channels: list[np.ndarray], params: Params, before: int,
+            local: bool) -> np.ndarray:
+    """Columns of each slot's snippets: its usable channels, or its local frame's sites."""
+    if local:
+        return local_cutter(recording, channels, params, np.zeros(0), before).width
+    return np.array([len(ch) for ch in channels], dtype=np.int64)
 
 
 def fit_basis(x: np.ndarray, n_pcs: int, seed: int) -> Basis | None:

@@ -82,12 +82,13 @@ def test_first_pass_agreement_and_no_split_units(sorted_probe):
     good, big = s.share_at(0.9, 100)
     assert big >= 12
     median = float(np.median(s.agreement[s.true_spikes >= 100]))
-    # measured here: see DEVELOPERS.md (probe first pass); the target is every unit >= 0.9
-    assert good >= 0.4 * big, (good, big)
-    assert median >= 0.85, median
+    # measured here 12 of 15 at >= 0.9, median 0.95, one split unit; the target is every unit
+    # at >= 0.9 and none split, not reached yet (README, probe first pass)
+    assert good >= 0.65 * big, (good, big)
+    assert median >= 0.9, median
     split = split_true_units(truth.sample, truth.unit, events.sample, sorting.assignments, events.rate_hz,
                              min_spikes=100)
-    assert len(split) <= 4, split
+    assert len(split) <= 2, split
 
 
 def test_merge_and_split_across_neighbourhoods(sorted_probe):
