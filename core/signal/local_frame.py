@@ -168,7 +168,7 @@ class LocalFrameCutter:
         aligned = align_subsample(cut_windows(block, lo, samples, self.offsets, chans),
                                   np.zeros(n, dtype=np.int64), self.before)
         pairs = aligned[:, :, 1:].reshape(n, aligned.shape[1], f, 2)
-        sites = np.einsum("ntfk,nfk->ntf", pairs, wts, optimize=True)
+        sites = pairs[..., 0] * wts[:, None, :, 0] + pairs[..., 1] * wts[:, None, :, 1]
         return np.concatenate([aligned[:, :, :1], sites], axis=2).astype(np.float32)
 
     def _shift(self, snips: np.ndarray, runs: list[tuple[int, int, int]]) -> np.ndarray:
@@ -180,5 +180,5 @@ class LocalFrameCutter:
         for s, a, b in runs:
             dy = np.tile(self.frame.slots[s].dy, len(self.frame.slots[s].y))
             total = amp[a:b].sum(axis=1)
-            out[a:b] = np.where(total > 0, amp[a:b] @ dy / np.where(total > 0, total, 1.0), 0.0)
+            out[a:b] = np.where(total > 0, (amp[a:b] * dy).sum(axis=1) / np.where(total > 0, total, 1.0), 0.0)
         return out

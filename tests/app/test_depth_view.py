@@ -63,8 +63,10 @@ def test_probe_events_are_drawn_as_depth_against_time(probe_session, qtbot, tmp_
     assert headers[-3:] == ["depth\nµm", "moves\nµm/min", "note"]
     depth, drift = headers.index("depth\nµm"), headers.index("moves\nµm/min")
     assert model.headerData(depth, Qt.Orientation.Horizontal, Qt.ItemDataRole.ToolTipRole) == POSITION_COLUMNS["y_um"]
-    assert ctl.metrics and len(ctl.metrics) == model.rowCount()
-    for r in range(model.rowCount()):
+    units = [r for r in range(model.rowCount()) if not model.is_pool(r)]
+    assert ctl.metrics and len(ctl.metrics) == len(units)
+    assert model.rowCount() == len(units) + len(ctl.sorting.pool_counts())    # pools: no depth, no drift
+    for r in units:
         m = ctl.metrics[model.unit_at(r)]
         assert model.text(r, depth) == format_number(float(m["y_um"]))
         assert model.text(r, drift) == format_number(float(m["drift_um_per_min"]), signed=True)
