@@ -194,10 +194,10 @@ class ClusterParams:
         events)) are not units; their events join the best-fitting unit within the
         ``fragment_fit`` chi-square quantile, else stay unassigned; ``split_test`` re-examines
         every unit (see :mod:`rigside.core.units.refine`).
-    split_fragments, split_overlap, split_gap_p, gap_censored_ms, gap_refractory_ms
+    split_fragments, split_overlap, split_gap_p, gap_censored_ms, gap_refractory_ms, region_um
         A split part too small to be a unit is a fragment (off: no such split); the overlap of parts
-        whose refractory gap (lags ``gap_censored_ms`` to ``gap_refractory_ms``, best from the dead
-        time) was judged; the gap p-value joining the parts.
+        whose refractory gap (lags ``gap_censored_ms`` to ``gap_refractory_ms``) was judged; the gap
+        p-value joining the parts; the length of a probe shank's overlapping regions (:mod:`.units.regions`).
     """
 
     k: int | None = None
@@ -218,6 +218,7 @@ class ClusterParams:
     split_gap_p: float = 0.001
     gap_censored_ms: float = 1.0
     gap_refractory_ms: float = 2.0
+    region_um: float = 100.0
 
     def validate(self) -> None:
         """Raise :class:`ParamError` for any value out of range."""
@@ -237,15 +238,14 @@ class ClusterParams:
         for what, v in (("smallest unit share", self.min_unit_share), ("fragment fit quantile", self.fragment_fit)):
             if not (isinstance(v, (int, float)) and not isinstance(v, bool) and 0 <= v < 1):
                 raise ParamError(f"{what} must be a number from 0 to below 1, got {v!r}")
-        if not isinstance(self.split_test, bool):
-            raise ParamError(f"split test must be true or false, got {self.split_test!r}")
-        if not isinstance(self.split_fragments, bool):
-            raise ParamError(f"split fragments must be true or false, got {self.split_fragments!r}")
+        for what, v in (("split test", self.split_test), ("split fragments", self.split_fragments)):
+            _require(isinstance(v, bool), f"{what} must be true or false, got {v!r}")
         _between("split overlap", self.split_overlap, 0, 1, "")
         _between("split gap p-value", self.split_gap_p, 0, 1, "")
-        _between("refractory gap start", self.gap_censored_ms, 0, 5, "ms")
-        _between("refractory gap end", self.gap_refractory_ms, 0, 5, "ms")
+        for what, v in (("refractory gap start", self.gap_censored_ms), ("refractory gap end", self.gap_refractory_ms)):
+            _between(what, v, 0, 5, "ms")
         _require(self.gap_censored_ms < self.gap_refractory_ms, "refractory gap start must be before its end")
+        _positive("probe region length", self.region_um, "um")
 
     def to_dict(self) -> dict[str, Any]:
         """Plain dict (``k`` omitted when ``None``)."""

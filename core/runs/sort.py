@@ -93,11 +93,12 @@ def _read_checkpoint(path: Path, key: str, recording: Recording, params: Params,
                 return events, None
             values = data["features"]
             names = parse_json(str(f.attrs["feature_names"]), "checkpoint feature names")
-            if names != feature_names(params.snippets.n_pcs) or values.dtype != np.float32 \
+            expected = feature_names(params.snippets.n_pcs, recording.positions is not None)
+            if names != expected or values.dtype != np.float32 \
                     or values.shape != (len(events), len(names)) or not np.isfinite(values).all():
                 raise RigsideError(f"features must be finite float32 of shape ({len(events)}, {len(names)}) "
                                    f"named as the parameters say, got {values.dtype} {values.shape}")
-            return events, Features(values, names, _bases(data, values.shape[1] - 3))
+            return events, Features(values, names, _bases(data, params.snippets.n_pcs))
         except (RigsideError, OSError, KeyError, ValueError, TypeError) as exc:
             raise RigsideError(f"checkpoint {str(path)!r} must hold this recording's events and features, "
                                f"got {exc}; delete it or run without --resume") from None

@@ -13,6 +13,8 @@ seeded) on a seeded random subset of that size, the held snippets are projected 
 and the group's later events are projected as they come. A group that never holds that many
 is fitted on all its events at the end, as :func:`rigside.core.signal.features.compute_features`
 does. Memory stays bounded by ``pca_fit_events`` snippets per group whatever the file length.
+On a probe the snippets are cut in the local frame (:mod:`rigside.core.signal.local_frame`) and the
+events' positions are two more features, as in ``compute_features``.
 The fit subset differs from ``compute_features`` (which draws it from all events of the group),
 so on long files the two bases differ slightly; both are random subsets of the same events.
 """
@@ -39,7 +41,7 @@ from rigside.core.signal.features import (
 )
 from rigside.core.signal.noise import NoiseEstimate
 from rigside.core.signal.pipeline import BlockDetector, block_detector, stream_chunks, thresholds_sigma
-from rigside.core.signal.snippet_pass import BlockCutter, own_columns
+from rigside.core.signal.snippet_pass import BlockCutter, local_cutter, own_columns
 from rigside.core.signal.snippets import snippet_window
 
 
@@ -130,7 +132,11 @@ def detect_with_features(recording: Recording, params: Params, progress: Progres
     margin = max(det.margin, before + 1, after + 1)
     thr = thresholds_sigma(params, det.sigma).astype(np.float32)  # as EventTable.mask compares them
     channels = [usable_channels(g, det.excluded) for g in recording.groups]
-    cutter = BlockCutter(channels, np.arange(-before - 1, after + 1), before)
+    local = recording.positions is not None
+    offsets = np.arange(-before - 1, after + 1)
+    cutter = local_cutter(recording, channels, params, offsets, before) if local else \
+        BlockCutter(channels, offsets, before)
+    n_feats = len(feature_names(sp.n_pcs, local))
     bounds = det.chunks()
 
     def work(i: int) -> _Chunk:
@@ -143,11 +149,16 @@ def detect_with_features(recording: Recording, params: Params, progress: Progres
         rows = np.flatnonzero(keep)
         slot = cols.group[rows].astype(np.int64)
         own = own_columns(cols.channel[rows], slot, channels, recording.n_channels)
-        chunk = _Chunk(i, cols, keep, np.zeros((len(rows), sp.n_pcs + 3), dtype=np.float32))
-        for pos, aligned, runs in cutter.cut(y, lo, cols.sample[rows], slot, own):
-            chunk.feats[pos, sp.n_pcs:] = shape_features(aligned, own[pos], before, rate)
+        chunk = _Chunk(i, cols, keep, np.zeros((len(rows), n_feats), dtype=np.float32))
+        centred = cols.y_um[rows].astype(np.float64) if local else None
+        where = (centred, centred) if local else ()  # the frame-centred positions replace the estimates
+        peak_column = np.zeros_like(own) if local else own  # a local frame's column 0 is the peak site
+        for pos, aligned, runs in cutter.cut(y, lo, cols.sample[rows], slot, own, *where):
+            chunk.feats[pos, sp.n_pcs:sp.n_pcs + 3] = shape_features(aligned, peak_column[pos], before, rate)
             flat = aligned.reshape(len(pos), -1)
             chunk.runs += [(s, pos[a:b], flat[a:b]) for s, a, b in runs]
+        if local:  # the position follows the shape features
+            chunk.feats[:, sp.n_pcs + 3:] = np.column_stack([cols.x_um[rows], centred])
         return chunk
 
     bases = _Bases(len(channels), sp.pca_fit_events, sp.n_pcs, sp.seed)
@@ -159,15 +170,16 @@ def detect_with_features(recording: Recording, params: Params, progress: Progres
 
     stream_chunks(det, work, spread_order(len(bounds)), collect, progress, cancel, "detecting and cutting")
     bases.finish()
-    return _assemble(det, sorted(done, key=lambda c: c.index), sp.n_pcs, bases)
+    return _assemble(det, sorted(done, key=lambda c: c.index), feature_names(sp.n_pcs, local), bases)
 
 
-def _assemble(det: BlockDetector, chunks: list[_Chunk], n_pcs: int, bases: _Bases) -> tuple[EventTable, Features]:
+def _assemble(det: BlockDetector, chunks: list[_Chunk], names: list[str],
+              bases: _Bases) -> tuple[EventTable, Features]:
     table, order = det.assemble([c.cols for c in chunks])
     keep = np.concatenate([c.keep for c in chunks]) if chunks else np.zeros(0, dtype=bool)
-    feats = np.concatenate([c.feats for c in chunks]) if chunks else np.zeros((0, n_pcs + 3), dtype=np.float32)
+    feats = np.concatenate([c.feats for c in chunks]) if chunks else np.zeros((0, len(names)), dtype=np.float32)
     row_of = np.cumsum(keep) - 1
     kept = keep[order]
     events = table.subset(kept)
-    return events, Features(feats[row_of[order][kept]], feature_names(n_pcs),
+    return events, Features(feats[row_of[order][kept]], names,
                             {g: b for g, b in enumerate(bases.basis) if b is not None})

@@ -12,6 +12,10 @@ in its fit subset, the second pass reads nothing.
 Shape features, on the event's own channel: signed peak (uV), trough-to-peak width (ms:
 from the peak to the largest excursion of the opposite sign after it) and energy (mean
 squared amplitude over the window and the group's channels, uV^2).
+On a probe (site positions and event positions known) the snippets are cut in the local frame of
+:mod:`rigside.core.signal.local_frame` instead of on all the shank's sites, PCA is fitted per shank
+on those, the energy is taken over the frame, and the event's ``x_um``, ``y_um`` follow as two more
+features (:data:`POSITION_FEATURES`).
 """
 
 from __future__ import annotations
@@ -26,7 +30,7 @@ from rigside.core.params import Params
 from rigside.core.progress import CancelFn, ProgressFn, report
 from rigside.core.signal.chunk_pool import single_threaded_pools
 from rigside.core.signal.filtering import BandPass
-from rigside.core.signal.snippet_pass import own_columns, snippet_pass
+from rigside.core.signal.snippet_pass import local_cutter, own_columns, snippet_pass
 from rigside.core.signal.snippets import snippet_window
 
 
@@ -55,8 +59,14 @@ class Features:
         return self.values[:, self.names.index(name)]
 
 
-def feature_names(n_pcs: int) -> list[str]:
-    return [f"PC{i + 1}" for i in range(n_pcs)] + ["peak_uv", "width_ms", "energy_uv2"]
+POSITION_FEATURES = ("x_um", "y_um")
+"""Feature columns a probe's events add after the shape features: their position estimate (um)."""
+
+
+def feature_names(n_pcs: int, positions: bool = False) -> list[str]:
+    """Names of the feature columns: PCs, shape features, and on probes the event position."""
+    return [f"PC{i + 1}" for i in range(n_pcs)] + ["peak_uv", "width_ms", "energy_uv2"] + \
+        (list(POSITION_FEATURES) if positions else [])
 
 
 def shape_features(snips: np.ndarray, own: np.ndarray, before: int, rate_hz: float) -> np.ndarray:
@@ -116,25 +126,34 @@ def compute_features(recording: Recording, events: EventTable, params: Params, p
     slot = np.searchsorted(groups, group)
     channels = [usable_channels(recording.groups[int(g)], events.excluded) for g in groups]
     own = own_columns(events.channel[idx_all][order], slot, channels, recording.n_channels)
+    local = recording.positions is not None and events.y_um is not None
+    y_um = events.y_um[idx_all][order].astype(np.float64) if local else None
+    peak_column = np.zeros_like(own) if local else own  # a local frame's column 0 is the peak site
     fit = _fit_subsets(slot, groups, sp.pca_fit_events, sp.seed)
     chosen = np.sort(np.concatenate(fit)) if len(fit) else np.zeros(0, dtype=np.int64)
     rest = np.setdiff1d(np.arange(len(sample)), chosen, assume_unique=True)
     share = len(chosen) / max(1, len(sample))
-    out = np.zeros((len(idx_all), sp.n_pcs + 3), dtype=np.float32)
+    names = feature_names(sp.n_pcs, local)
+    out = np.zeros((len(idx_all), len(names)), dtype=np.float32)
+    centred = np.zeros(len(sample))  # probes: the frame-centred positions, in time order
     row_of = np.zeros(len(sample), dtype=np.int64)
     for f in fit:
         row_of[f] = np.arange(len(f))
-    held = [np.empty((len(f), (before + after) * len(ch)), dtype=np.float32) for f, ch in zip(fit, channels)]
+    held = [np.empty((len(f), (before + after) * w), dtype=np.float32)
+            for f, w in zip(fit, _widths(recording, channels, params, before, local))]
 
     def cut(which: np.ndarray, put, share0: float, share1: float) -> None:
         def consume(pos: np.ndarray, aligned: np.ndarray, runs: list[tuple[int, int, int]]) -> None:
             ev = which[pos]
-            out[order[ev], sp.n_pcs:] = shape_features(aligned, own[ev], before, recording.rate_hz)
+            out[order[ev], sp.n_pcs:sp.n_pcs + 3] = shape_features(aligned, peak_column[ev], before, recording.rate_hz)
             flat = aligned.reshape(len(pos), -1)
             for s, a, b in runs:
                 put(s, ev[a:b], flat[a:b])
+        moved = np.zeros(len(which))
         snippet_pass(bp, sample[which], slot[which], own[which], channels, params, consume,
-                     lambda f, m: report(progress, share0 + (share1 - share0) * f, m), cancel)
+                     lambda f, m: report(progress, share0 + (share1 - share0) * f, m), cancel,
+                     None if y_um is None else y_um[which], moved if local else None)
+        centred[which] = moved
 
     def hold(s: int, ev: np.ndarray, flat: np.ndarray) -> None:
         # a chunk brings all fit events of a group between two times, in time order: one slice
@@ -149,8 +168,18 @@ def compute_features(recording: Recording, events: EventTable, params: Params, p
         held[s] = None  # the group's subset is projected: free it
 
     cut(rest, lambda s, ev, flat: put_scores(out, order[ev], bases[s], flat), share, 1.0)
+    if local:  # the position follows the shape features
+        out[order, sp.n_pcs + 3:] = np.column_stack([events.x_um[idx_all][order], centred])
     report(progress, 1.0, "features done")
-    return Features(out, feature_names(sp.n_pcs), {int(g): b for g, b in zip(groups, bases) if b is not None})
+    return Features(out, names, {int(g): b for g, b in zip(groups, bases) if b is not None})
+
+
+def _widths(recording: Recording, channels: list[np.ndarray], params: Params, before: int,
+            local: bool) -> np.ndarray:
+    """Columns of each slot's snippets: its usable channels, or its local frame's sites."""
+    if local:
+        return local_cutter(recording, channels, params, np.zeros(0), before).width
+    return np.array([len(ch) for ch in channels], dtype=np.int64)
 
 
 def fit_basis(x: np.ndarray, n_pcs: int, seed: int) -> Basis | None:

@@ -19,7 +19,8 @@ from rigside.core.params import Params
 from rigside.core.progress import CancelFn, ProgressFn, report, run_bounded
 from rigside.core.signal.chunk_pool import chunk_bounds
 from rigside.core.signal.filtering import BandPass
-from rigside.core.signal.snippets import align_subsample, cut_windows, snippet_window
+from rigside.core.signal.local_frame import LocalFrame, LocalFrameCutter
+from rigside.core.signal.snippets import align_subsample, cut_windows, slot_runs, snippet_window
 
 Consumer = Callable[[np.ndarray, np.ndarray, list[tuple[int, int, int]]], None]
 """``consume(positions, aligned, runs)``: ``positions`` index the pass's events, ``aligned`` is
@@ -49,7 +50,8 @@ def own_columns(channel: np.ndarray, slot: np.ndarray, channels: list[np.ndarray
 
 def snippet_pass(bandpass: BandPass, samples: np.ndarray, slot: np.ndarray, own: np.ndarray,
                  channels: list[np.ndarray], params: Params, consume: Consumer,
-                 progress: ProgressFn = None, cancel: CancelFn = None) -> None:
+                 progress: ProgressFn = None, cancel: CancelFn = None, y_um: np.ndarray | None = None,
+                 centred: np.ndarray | None = None) -> None:
     """Cut, align and hand over the snippet of every event, chunk by chunk.
 
     Parameters
@@ -70,6 +72,11 @@ def snippet_pass(bandpass: BandPass, samples: np.ndarray, slot: np.ndarray, own:
         Receives each chunk's aligned snippets, one call per slot present in the chunk.
     progress, cancel
         Progress callback (fraction of chunks done) and cancel check.
+    y_um
+        Position of each event along the probe: given, snippets are cut in the probe's local frame
+        (:mod:`rigside.core.signal.local_frame`; column 0 the event's own site) instead of on the
+        slot's channels; ``centred`` (as long as ``y_um``) then receives each event's frame-centred
+        position (:data:`rigside.core.signal.local_frame.CENTRE_STEPS`).
     """
     samples = np.asarray(samples, dtype=np.int64)
     rec = bandpass.recording
@@ -84,14 +91,16 @@ def snippet_pass(bandpass: BandPass, samples: np.ndarray, slot: np.ndarray, own:
     cut_at = np.searchsorted(samples, [b[0] for b in bounds] + [rec.n_samples])
     work_list = [(i, i + 1) for i in range(len(bounds)) if cut_at[i + 1] > cut_at[i]]
 
-    cutter = BlockCutter(channels, offsets, before)
+    cutter = BlockCutter(channels, offsets, before) if y_um is None else \
+        local_cutter(rec, channels, params, offsets, before)
 
     def work(i: int, _: int) -> None:
         a, b = int(cut_at[i]), int(cut_at[i + 1])
         start, stop = bounds[i]
         lo, hi = max(0, start - before - 1), min(rec.n_samples, stop + after + 1)
         block = bandpass.read(lo, hi)
-        for pos, aligned, runs in cutter.cut(block, lo, samples[a:b], slot[a:b], own[a:b]):
+        where = () if y_um is None else (y_um[a:b], None if centred is None else centred[a:b])
+        for pos, aligned, runs in cutter.cut(block, lo, samples[a:b], slot[a:b], own[a:b], *where):
             consume(a + pos, aligned, runs)
 
     done = [0]
@@ -101,6 +110,12 @@ def snippet_pass(bandpass: BandPass, samples: np.ndarray, slot: np.ndarray, own:
         report(progress, done[0] / len(work_list), "cutting snippets")
 
     run_bounded(work, work_list, params.run.workers, collect, cancel)
+
+
+def local_cutter(recording, channels: list[np.ndarray], params: Params, offsets: np.ndarray, before: int):
+    """The local-frame cutter of a probe recording (:mod:`rigside.core.signal.local_frame`)."""
+    frame = LocalFrame(recording.positions, channels, params.probe.radius_um)
+    return LocalFrameCutter(frame, channels, offsets, before)
 
 
 class BlockCutter:
@@ -127,18 +142,10 @@ class BlockCutter:
             own: np.ndarray) -> list[tuple[np.ndarray, np.ndarray, list[tuple[int, int, int]]]]:
         """``(positions, aligned, runs)`` for each channel count among the events (see :data:`Consumer`;
         ``positions`` index the given events)."""
-        width = self.width
-        order = np.lexsort((slot, width[slot]))
-        by_slot = slot[order]
-        edges = np.r_[0, np.flatnonzero(np.diff(by_slot)) + 1, len(order)]
-        cuts = np.r_[0, np.flatnonzero(np.diff(width[by_slot])) + 1, len(order)]
         out = []
-        for c0, c1 in zip(cuts[:-1], cuts[1:]):
-            pos = order[c0:c1]
-            chans = self.table[by_slot[c0:c1], :width[by_slot[c0]]]
+        for pos, by_slot, runs in slot_runs(slot, self.width):
+            chans = self.table[by_slot, :self.width[by_slot[0]]]
             aligned = align_subsample(cut_windows(block, lo, samples[pos], self.offsets, chans), own[pos],
                                       self.before)
-            runs = [(int(by_slot[e0]), int(e0 - c0), int(e1 - c0))
-                    for e0, e1 in zip(edges[:-1], edges[1:]) if c0 <= e0 < c1]
             out.append((pos, aligned, runs))
         return out

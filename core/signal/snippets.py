@@ -194,3 +194,18 @@ def cut_windows(block: np.ndarray, start: int, samples: np.ndarray, offsets: np.
     if not inside.all():
         cut = np.where(inside[..., None], cut, np.float32(0))
     return cut.astype(np.float32, copy=False)
+
+
+def slot_runs(slot: np.ndarray, width: np.ndarray) -> list[tuple[np.ndarray, np.ndarray, list[tuple[int, int, int]]]]:
+    """Events grouped by the snippet width of their slot: per width, the event positions (by slot),
+    their slots and the runs ``(slot, a, b)`` (rows ``a:b`` of the group belong to ``slot``)."""
+    order = np.lexsort((slot, width[slot]))
+    by_slot = slot[order]
+    edges = np.r_[0, np.flatnonzero(np.diff(by_slot)) + 1, len(order)]
+    cuts = np.r_[0, np.flatnonzero(np.diff(width[by_slot])) + 1, len(order)]
+    out = []
+    for c0, c1 in zip(cuts[:-1], cuts[1:]):
+        runs = [(int(by_slot[e0]), int(e0 - c0), int(e1 - c0))
+                for e0, e1 in zip(edges[:-1], edges[1:]) if c0 <= e0 < c1]
+        out.append((order[c0:c1], by_slot[c0:c1], runs))
+    return out

@@ -93,3 +93,24 @@ def score_sorting(true_sample: np.ndarray, true_unit: np.ndarray, found_sample: 
     return SortingScore(true_ids=ids_t, true_spikes=n_t, agreement=agreement, precision=precision, recall=recall,
                         found_units=len(ids_f), false_units=int((~owned).sum()), fragments=int(fragment.sum()),
                         over_split=len(np.unique(owner[fragment])), merged=merged)
+
+
+def split_true_units(true_sample: np.ndarray, true_unit: np.ndarray, found_sample: np.ndarray,
+                     found_unit: np.ndarray, rate_hz: float, share: float = 0.2, min_spikes: int = 0,
+                     tolerance_ms: float = 0.5) -> list[int]:
+    """True units split in two: at least two found units each holding more than ``share`` of the true
+    unit's spikes (spikes matched as in :func:`score_sorting`; our own definition, no source).
+
+    Returns
+    -------
+    list of int
+        Ids of the split true units among those with at least ``min_spikes`` spikes.
+    """
+    keep = np.asarray(found_unit) >= 0
+    ids_t, _, m = shared_spike_matrix(true_sample, true_unit, np.asarray(found_sample)[keep],
+                                      np.asarray(found_unit)[keep], tolerance_ms * 1e-3 * rate_hz)
+    n_t = np.bincount(np.searchsorted(ids_t, true_unit), minlength=len(ids_t))
+    if m.size == 0:
+        return []
+    split = ((m > share * n_t[:, None]).sum(axis=1) >= 2) & (n_t >= min_spikes)
+    return [int(u) for u in ids_t[split]]

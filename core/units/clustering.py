@@ -37,6 +37,7 @@ from rigside.core.signal.chunk_pool import single_threaded_pools
 from rigside.core.units.em import Mixture, warm_up
 from rigside.core.units.mixture import fit_mixture, merge_components
 from rigside.core.units.refine import TwoPartTest, absorb_fragments, smallest_unit, split_clusters, two_part_test
+from rigside.core.units.regions import join_regions, region_cores, region_rows
 from rigside.core.units.sorting import NO_UNIT
 
 MIN_EVENTS_PER_COMPONENT = 10
@@ -46,6 +47,9 @@ WORKER_START = "fork" if "fork" in get_all_start_methods() else "spawn"
 """How worker processes start: forked where the system can (a few ms; a fresh interpreter
 importing scikit-learn took 1.5-10 s here), so the caller must hold no lock in another thread
 (the command-line sort runs it from its only thread)."""
+
+REGION_STREAMS = 1 << 16
+"""Seed streams of a probe group's regions: ``group * REGION_STREAMS + region``."""
 
 ASSIGN_BLOCK = 1 << 16
 """Events assigned to the fitted mixture at a time (bounds the memory of the assignment)."""
@@ -189,19 +193,69 @@ def _assign(x: np.ndarray, scaling, mixture: Mixture, merged: list[list[int]]) -
     return labels
 
 
-def _cluster_group(i: int, features: np.ndarray, channel: np.ndarray | None, params: ClusterParams,
-                   g: int, time_s: np.ndarray | None = None) -> tuple[int, np.ndarray]:
-    """One group's labels (-1: unassigned), tagged with its position (runs in worker processes)."""
+def _cluster_group(key: tuple[int, int], features: np.ndarray, channel: np.ndarray | None, params: ClusterParams,
+                   stream: int, time_s: np.ndarray | None = None) -> tuple[tuple[int, int], np.ndarray]:
+    """One group's (or probe region's) labels (-1: unassigned), tagged with its key (runs in worker processes)."""
     with single_threaded_pools():
-        return i, _cluster(features, params, g, None, channel, refine=True, time_s=time_s)
+        return key, _cluster(features, params, stream, None, channel, refine=True, time_s=time_s)
+
+
+def _checked_rows(group: np.ndarray, artefact: np.ndarray, features: np.ndarray, amplitude_uv: np.ndarray,
+                  channel: np.ndarray | None, time_s: np.ndarray | None) -> int:
+    """The event count, once every column has one row per event (:class:`RigsideError` otherwise)."""
+    n = len(group)
+    lengths = {len(features), len(artefact), len(amplitude_uv)} | {len(c) for c in (channel, time_s) if c is not None}
+    if features.ndim != 2 or lengths != {n}:
+        raise RigsideError(f"features and event columns must have one row per event ({n}), got features "
+                           f"{features.shape}, artefact {len(artefact)}, amplitude {len(amplitude_uv)}")
+    return n
+
+
+def _group_rows(group: np.ndarray, artefact: np.ndarray, todo: list[int]) -> list[np.ndarray]:
+    """The rows of each group in ``todo`` that are not artefacts."""
+    order = np.argsort(group, kind="stable")
+    bounds = np.searchsorted(group[order], [todo, np.add(todo, 1)]) if todo else np.zeros((2, 0), int)
+    return [r[~artefact[r]] for r in (order[bounds[0, i]:bounds[1, i]] for i in range(len(todo)))]
+
+
+def _tasks(busy: list[int], cut: dict, rows_of: list[np.ndarray], todo: list[int], features: np.ndarray,
+           channel: np.ndarray | None, time_s: np.ndarray | None, params: ClusterParams) -> list[tuple]:
+    """The :func:`_cluster_group` arguments of every region of every busy group; a group of one region
+    draws the group's own seed stream, the regions of a probe group ``group * REGION_STREAMS + k``."""
+    def pick(col, rows):
+        return None if col is None else np.asarray(col)[rows]
+    return [((i, k), features[rows_of[i][r]], pick(channel, rows_of[i][r]), params,
+             todo[i] if cut[i][1] is None else todo[i] * REGION_STREAMS + k, pick(time_s, rows_of[i][r]))
+            for i in busy for k, r in enumerate(cut[i][0])]
+
+
+def _run_tasks(tasks: list, workers: int, on_result, cancel: CancelFn) -> None:
+    """Cluster the tasks (:func:`_cluster_group` arguments) in worker processes, results in order."""
+    if workers > 1 and len(tasks) > 1:
+        processes = ProcessPoolExecutor(min(workers, len(tasks)), mp_context=get_context(WORKER_START))
+        run_bounded(_cluster_group, iter(tasks), workers, on_result, cancel, pool=processes)
+    else:
+        for task in tasks:
+            check(cancel)
+            on_result(_cluster_group(*task))
+
+
+def _regions(rows: np.ndarray, features: np.ndarray, y_column: int | None, region_um: float):
+    """A group's regions: its rows in one region without positions, else cut along the probe
+    (:mod:`rigside.core.units.regions`); with the core boundaries (None for one region)."""
+    if y_column is None:
+        return [np.arange(len(rows))], None
+    y = features[rows, y_column]
+    edges = region_cores(y, region_um)
+    return region_rows(y, edges, region_um), edges
 
 
 def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np.ndarray,
                            amplitude_uv: np.ndarray, params: ClusterParams,
                            groups: list[int] | None = None, first_id: int = 1,
                            progress: ProgressFn = None, cancel: CancelFn = None, workers: int = 1,
-                           channel: np.ndarray | None = None, time_s: np.ndarray | None = None
-                           ) -> tuple[np.ndarray, dict[int, int]]:
+                           channel: np.ndarray | None = None, time_s: np.ndarray | None = None,
+                           y_column: int | None = None) -> tuple[np.ndarray, dict[int, int]]:
     """Cluster every channel group, keep the clusters fit to be units (:mod:`.refine`), number them.
 
     Parameters
@@ -223,6 +277,9 @@ def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np
         does not depend on it: every group's clustering depends only on its own events and seed.
     channel, time_s
         Main (detection) channel and time (s) of every event, for the split test (None: not used).
+    y_column
+        Feature column of the events' position along a probe: given, groups are clustered by regions
+        along it (:mod:`rigside.core.units.regions`), the regions spread over the workers as groups are.
 
     Returns
     -------
@@ -233,22 +290,26 @@ def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np
     params.validate()
     warm_up()
     group = np.asarray(group)
-    n = len(group)
-    lengths = {len(features), len(artefact), len(amplitude_uv)} | {len(c) for c in (channel, time_s) if c is not None}
-    if features.ndim != 2 or lengths != {n}:
-        raise RigsideError(f"features and event columns must have one row per event ({n}), got features "
-                           f"{features.shape}, artefact {len(artefact)}, amplitude {len(amplitude_uv)}")
+    n = _checked_rows(group, artefact, features, amplitude_uv, channel, time_s)
     todo = sorted(int(g) for g in np.unique(group)) if groups is None else sorted(set(groups))
     out = np.full(n, NO_UNIT, dtype=np.int32)
     unit_group: dict[int, int] = {}
-    order = np.argsort(group, kind="stable")
-    bounds = np.searchsorted(group[order], [todo, np.add(todo, 1)]) if todo else np.zeros((2, 0), int)
-    rows_of = [r[~artefact[r]] for r in (order[bounds[0, i]:bounds[1, i]] for i in range(len(todo)))]
+    rows_of = _group_rows(group, artefact, todo)
     busy = [i for i in range(len(todo)) if len(rows_of[i])]
     state = {"next": first_id, "done": 0}
+    cut = {i: _regions(rows_of[i], features, y_column, params.region_um) for i in busy}
+    pending: dict[int, dict[int, np.ndarray]] = {i: {} for i in busy}
 
-    def number(result: tuple[int, np.ndarray]) -> None:
-        i, labels = result
+    def region_done(result: tuple[tuple[int, int], np.ndarray]) -> None:
+        (i, k), labels = result
+        pending[i][k] = labels
+        regions, edges = cut[i]
+        if len(pending[i]) == len(regions):
+            parts = [pending[i].pop(j) for j in range(len(regions))]
+            number(i, parts[0] if edges is None else
+                   join_regions(features[rows_of[i], y_column], regions, parts, edges, params))
+
+    def number(i: int, labels: np.ndarray) -> None:
         used = labels >= 0
         rows, g, labels = rows_of[i][used], todo[i], labels[used]
         n_clusters = int(labels.max()) + 1 if len(labels) else 0
@@ -264,14 +325,6 @@ def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np
         report(progress, state["done"] / max(1, len(busy)), f"clustered group {g}")
 
     report(progress, 0.0, "clustering groups")
-    pick = (lambda col, i: None if col is None else np.asarray(col)[rows_of[i]])
-    tasks = ((i, features[rows_of[i]], pick(channel, i), params, todo[i], pick(time_s, i)) for i in busy)
-    if workers > 1 and len(busy) > 1:
-        processes = ProcessPoolExecutor(min(workers, len(busy)), mp_context=get_context(WORKER_START))
-        run_bounded(_cluster_group, tasks, workers, number, cancel, pool=processes)
-    else:
-        for task in tasks:
-            check(cancel)
-            number(_cluster_group(*task))
+    _run_tasks(_tasks(busy, cut, rows_of, todo, features, channel, time_s, params), workers, region_done, cancel)
     report(progress, 1.0, "clustering done")
     return out, unit_group

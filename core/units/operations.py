@@ -75,10 +75,11 @@ class ClusterGroups(Operation):
     def _compute(self, sorting: Sorting) -> Delta:
         d = sorting.data
         # recovered events take no part: the clusters of the detected events stay what they were
+        y_column = d.feature_names.index("y_um") if "y_um" in d.feature_names else None  # probes: by region
         new, unit_group = first_pass_assignments(d.group, d.artefact | d.recovered, d.features, d.amplitude_uv,
                                                  self.params, self.groups, sorting.next_id,
                                                  self.progress, self.cancel, self.workers, d.channel,
-                                                 d.time_s)
+                                                 d.time_s, y_column)
         todo = np.unique(d.group) if self.groups is None else np.asarray(self.groups)
         rows = np.flatnonzero(np.isin(d.group, todo))
         units_after: dict[int, Unit | None] = {u: None for u, rec in sorting.units.items()

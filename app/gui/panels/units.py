@@ -106,13 +106,13 @@ class UnitTableModel(QAbstractTableModel):
                 if m is not None:
                     row["amplitude_change_fraction:slope"] = float(m["amplitude_slope_uv_per_min"])
                 self.rows.append(row)
-            self.rows += [self._pool_row(g, n, duration) for g, n in sorting.pool_counts().items()]
+            self.rows += [self._pool_row(g, n, duration, probe) for g, n in sorting.pool_counts().items()]
         self.endResetModel()
 
-    def _pool_row(self, group: int, n: int, duration: float) -> dict:
+    def _pool_row(self, group: int, n: int, duration: float, probe: bool) -> dict:
         row = {"unit": pool_id(group), "group": self.ctl.group_name(group), "group_id": group,
                "label": POOL_LABEL, "note": "", "n_events": n, "rate_hz": n / duration}
-        for key in METRIC_KEYS:
+        for key in METRIC_KEYS + (tuple(POSITION_REASONS) if probe else ()):  # a pool has no position either
             row[key], row[key + ":why"] = math.nan, POOL_WHY
         return row
 
