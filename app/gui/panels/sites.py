@@ -168,7 +168,7 @@ class SitesPanel(Panel):
     def to_widget(self, x_um: float, y_um: float):
         """A point of the probe (µm) in the plot widget's coordinates."""
         vb = self.plot.getPlotItem().getViewBox()
-        return self.plot.mapFromScene(vb.mapViewToScene(pg.Point(x_um, y_um))).toPoint()
+        return self.plot.mapFromScene(vb.mapViewToScene(pg.Point(x_um, y_um)))
 
     # ---- footprint ------------------------------------------------------------------------
     def _clear_footprint(self) -> None:
