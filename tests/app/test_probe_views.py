@@ -5,8 +5,10 @@ footprint) and thresholds set over a site's neighbourhood; a bundle recording ke
 from __future__ import annotations
 
 import numpy as np
+import pyqtgraph as pg
 import pytest
 from PySide6.QtCore import Qt
+from PySide6.QtGui import QFontMetrics
 from scipy.spatial.distance import cdist
 
 from rigside.core.quality.footprint import unit_footprint
@@ -14,8 +16,12 @@ from rigside.gui.screenshot import capture, colour_share, pixels
 from tests.app.test_threshold_workbench import drag_handle
 
 
+def lane_ticks(win) -> list[tuple[float, str]]:
+    return list(win.traces.plot.getPlotItem().getAxis("left")._tickLevels[0])
+
+
 def lane_labels(win) -> list[str]:
-    return [text for _, text in win.traces.plot.getPlotItem().getAxis("left")._tickLevels[0]]
+    return [text for _, text in lane_ticks(win)]
 
 
 def test_probe_traces_stack_from_the_top_of_the_probe_down_with_depths(probe_session):
@@ -25,8 +31,15 @@ def test_probe_traces_stack_from_the_top_of_the_probe_down_with_depths(probe_ses
     assert sorted(shown.tolist()) == list(range(rec.n_channels))
     assert np.all(np.diff(y) <= 0)                                   # the tip (y 0) at the bottom
     assert np.all(np.diff(win.traces.offsets) < 0)                   # lanes go down the screen in that order
-    for c, label in zip(shown, lane_labels(win)):
+    ticks = lane_ticks(win)
+    assert len(ticks) > 3
+    for offset, label in ticks:                                      # dense lanes: every k-th one is named
+        c = shown[int(round(-offset / win.traces.spacing))]
         assert label == f"ch {c} · {rec.positions[c, 1]:g} µm"
+    font = win.traces.plot.getPlotItem().getAxis("left").style["tickFont"]
+    vb = win.traces.vb
+    gaps_px = np.abs(np.diff([vb.mapViewToScene(pg.Point(0, o)).y() for o, _ in ticks]))
+    assert gaps_px.min() >= QFontMetrics(font or win.font()).height() - 0.5   # names do not overlap
     win.bench.select_channel(int(shown[0]))
     win.bench.step_channel(1)                                        # one lane down: the next site down
     assert win.bench.channel == int(shown[1])

@@ -61,6 +61,10 @@ class SitesPanel(Panel):
         self.names: list[pg.TextItem] = []
         self.status = QLabel("")
         self.status.setWordWrap(True)
+        self.setToolTip("The probe's sites (grey squares) at their positions; click one to select its trace. Dots: "
+                        "units at their positions (selected ones larger, in their colour); click one to select it. "
+                        "The first selected unit's mean waveform is drawn at each site of its neighbourhood, with a "
+                        "scale bar in µV. Wheel: zoom; drag: move.")
         lay = QVBoxLayout(self)
         lay.setContentsMargins(2, 2, 2, 2)
         lay.addWidget(self.plot, 1)
@@ -212,7 +216,7 @@ class SitesPanel(Panel):
         self.waves.setData(np.vstack([xs, gap]).T.ravel(), np.vstack([ys, gap]).T.ravel())
         colour = self.ctl.unit_colour(fp.unit) or palette.GREY
         self.waves.setPen(palette.pen(colour, 2.0))
-        uv = float(NICE[max(0, np.searchsorted(NICE, 0.5 * peak) - 1)])
+        uv = float(NICE[max(0, np.searchsorted(NICE, peak) - 1)])
         x = float(pos[:, 0].max()) + 0.8 * pitch
         y0 = float(pos[:, 1].min())
         self.bar.setData([x, x], [y0, y0 + uv * um_per_uv])
@@ -227,12 +231,10 @@ class SitesPanel(Panel):
             return
         c = self.bench.channel
         x, y = rec.positions[c]
-        text = f"{rec.n_channels} sites; ch {c} (outlined) at x {x:g}, y {y:g} µm. Click a site to show its trace."
-        if len(self.unit_ids):
-            text += " Dots: units at their positions (selected larger, in their colour); click one to select it."
+        text = f"ch {c} (outlined): x {x:g}, y {y:g} µm."
         fp = self.footprint
         if fp is not None:
             span = fp.times_ms[-1] - fp.times_ms[0]
-            text += (f" {self.ctl.unit_name(fp.unit)}: mean of {fp.n_events} events on the {len(fp.channels)} sites "
-                     f"around ch {fp.peak_channel}, each {span:.2g} ms wide; bar = µV.")
+            text += (f" {self.ctl.unit_name(fp.unit)}: mean of {fp.n_events} events, {len(fp.channels)} sites around "
+                     f"ch {fp.peak_channel}, {span:.2g} ms each.")
         self.status.setText(text)

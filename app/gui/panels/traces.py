@@ -207,8 +207,10 @@ class TracePanel(Panel):
         out = {} if b.events is None else b.events.excluded
         names = [(float(o), lane_name(b.recording, int(c)) + (f" · {out[int(c)]}, left out" if int(c) in out else ""))
                  for o, c in zip(self.offsets, shown)]
-        axis.setTicks([names + self.rows.ticks(), []])
         font = axis.style["tickFont"] or axis.font()
+        lane_px = self.vb.height() * self.spacing / max(1e-9, hi + band - lo)
+        every = max(1, int(np.ceil(QFontMetrics(font).height() / max(1.0, lane_px))))   # labels that do not overlap
+        axis.setTicks([names[::every] + self.rows.ticks(), []])
         wide = max([QFontMetrics(font).horizontalAdvance(n) for _, n in names] + [self.rows.label_width(font)])
         axis.setWidth(max(AXIS_WIDTH, wide + 12))
         self._draw_bands()
@@ -367,8 +369,8 @@ class TracePanel(Panel):
             self.rows.draw(*self.bench.view)
 
     def _on_resized(self) -> None:
-        if self.rows.count() and self.bench.recording is not None and len(self.offsets):
-            self._layout_lanes()       # the rows keep their height on screen
+        if self.bench.recording is not None and len(self.offsets):
+            self._layout_lanes()       # the rows keep their height on screen, lane labels their spacing
         self.refresh()
 
     def marker_times(self) -> np.ndarray:
