@@ -31,3 +31,12 @@ def parse_channels(text: str, n_channels: int) -> list[int]:
     if not out:
         raise ValueError(f"channels must name at least one channel, got {text!r}")
     return out
+
+
+def lane_name(recording, channel: int) -> str:
+    """A trace's label: "ch 5", and on a probe the site's depth along it too ("ch 5 · 40 µm", with
+    the shank when there are several: "ch 5 · s1 40 µm")."""
+    if recording.positions is None:
+        return f"ch {channel}"
+    shank = f"s{int(recording.shank[channel])} " if len(set(recording.shank.tolist())) > 1 else ""
+    return f"ch {channel} · {shank}{recording.positions[channel, 1]:g} µm"

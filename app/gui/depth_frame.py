@@ -1,7 +1,9 @@
-"""Adds the drift view to the window: the depth-against-time panel, tabbed with the waveforms and
-shown only while the open recording has site positions.
+"""Adds the probe views to the window, each shown only while the open recording has site positions:
+the depth-against-time panel (tabbed with the waveforms) and the probe map ("Sites", left of the traces:
+sites, unit positions, the selected unit's footprint).
 
-``install_depth(window)`` is the only entry point; it returns the panel's dock.
+``install_depth(window)`` is the only entry point; it returns the depth panel's dock (the map's is
+``window.docks["sites"]``).
 """
 
 from __future__ import annotations
@@ -9,24 +11,33 @@ from __future__ import annotations
 from PySide6.QtCore import Qt
 
 from rigside.gui.panels.depth_time import DepthTimePanel
+from rigside.gui.panels.sites import SitesPanel
+
+SITES_WIDTH = 260
+"""Width (pixels) the probe map is first shown at."""
 
 
 def install_depth(window):
-    """Create the depth-against-time panel on ``window``; its dock follows the recording's positions."""
+    """Create the probe panels on ``window``; their docks follow the recording's positions."""
     panel = DepthTimePanel(window.bench, window.runner)
     dock = window.add_panel(panel, Qt.DockWidgetArea.BottomDockWidgetArea, tab_with=window.docks.get("waveforms"))
-    dock.hide()
+    sites = window.add_panel(SitesPanel(window.bench, window.runner, window.units),
+                             Qt.DockWidgetArea.LeftDockWidgetArea)
+    window.resizeDocks([sites], [SITES_WIDTH], Qt.Orientation.Horizontal)
+    for d in (dock, sites):
+        d.hide()
 
     def follow() -> None:
         rec = window.bench.recording
         probe = rec is not None and rec.positions is not None
-        if probe and not dock.isVisible():
-            dock.show()
-            dock.raise_()
-        elif not probe:
-            dock.hide()
+        for d in (dock, sites):
+            if probe and not d.isVisible():
+                d.show()
+                d.raise_()
+            elif not probe:
+                d.hide()
     window.bench.recording_changed.connect(follow)
     reset = window.actions_by_name.get("reset_layout")
-    if reset is not None:              # View > Reset shows every dock: this one again only on a probe
+    if reset is not None:              # View > Reset shows every dock: these again only on a probe
         reset.triggered.connect(follow)
     return dock

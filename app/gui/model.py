@@ -14,7 +14,9 @@ from typing import TYPE_CHECKING
 import numpy as np
 
 from rigside.core.events import uv_to_sigma
+from rigside.core.io.positions import site_order
 from rigside.core.notify import Signal
+from rigside.core.signal.neighbourhoods import neighbourhoods
 from rigside.core.signal.rice import sampled_crossing_rate
 
 if TYPE_CHECKING:   # the types of Analysis only: no import at run time
@@ -22,12 +24,13 @@ if TYPE_CHECKING:   # the types of Analysis only: no import at run time
     from rigside.core.io.recording import Recording
     from rigside.core.params import Params
     from rigside.core.signal.features import Features
+    from rigside.core.signal.neighbourhoods import Neighbourhoods
     from rigside.core.signal.noise import NoiseEstimate
     from rigside.core.signal.overview import Overview
     from rigside.core.synthetic.truth import Truth
 
 SCALES = ("sigma", "uv")
-SCOPES = ("all", "channel")
+SCOPES = ("all", "channel", "neighbourhood")
 
 
 @dataclass
@@ -42,6 +45,7 @@ class Analysis:
     truth: Truth | None = None
     sos: np.ndarray | None = None
     overview: Overview | None = None        # of the filtered signal, once one exists
+    neighbours: Neighbourhoods | None = None  # of the probe's sites, found on first use
     noise_grid: tuple[np.ndarray, np.ndarray] | None = None
 
 
@@ -105,7 +109,7 @@ class Workbench:
         self.thresholds_sigma = np.full(recording.n_channels, float(default))
         self.view = (0.0, min(1.0, recording.duration_s))
         self.group = 0
-        self.shown_channels = np.asarray(recording.groups[0], dtype=np.int64)
+        self.shown_channels = self.in_lane_order(recording.groups[0])
         self.shown_label = recording.group_names[0]
         self.channel = int(self.shown_channels[0])
         self.recording_changed.emit()
@@ -156,7 +160,7 @@ class Workbench:
             return
         index = int(index) % len(rec.groups)
         self.group = index
-        self.shown_channels = np.asarray(rec.groups[index], dtype=np.int64)
+        self.shown_channels = self.in_lane_order(rec.groups[index])
         self.shown_label = rec.group_names[index]
         self.channel = int(self.shown_channels[0])
         self.selection_changed.emit()
@@ -167,11 +171,20 @@ class Workbench:
         chans = np.asarray(sorted(set(int(c) for c in channels)), dtype=np.int64)
         if rec is None or len(chans) == 0:
             return
+        chans = self.in_lane_order(chans)
         self.shown_channels = chans
         self.shown_label = label
         self.channel = int(chans[0])
         self.group = int(rec.channel_group[self.channel])
         self.selection_changed.emit()
+
+    def in_lane_order(self, channels) -> np.ndarray:
+        """Channels in the order the traces stack them: on a probe as the sites lie on it (by shank,
+        largest ``y_um`` at the top, the tip at the bottom; :func:`site_order`), else as given."""
+        rec = self.recording
+        if rec is None or rec.positions is None:
+            return np.asarray(channels, dtype=np.int64)
+        return site_order(channels, rec.positions, rec.shank)
 
     def select_channel(self, channel: int) -> None:
         channel = int(channel)
@@ -231,18 +244,32 @@ class Workbench:
         sigma = self.sigma_uv
         return float("nan") if sigma is None else k * float(sigma[c])
 
+    def neighbourhood(self, channel: int | None = None) -> np.ndarray:
+        """The sites of the probe within ``probe.radius_um`` of a site (default: the selected one), itself
+        included; on a recording without positions, only the channel."""
+        c = self.channel if channel is None else int(channel)
+        rec, a = self.recording, self.analysis
+        if rec is None or rec.positions is None:
+            return np.array([c], dtype=np.int64)
+        if a.neighbours is None:
+            a.neighbours = neighbourhoods(rec.positions, rec.shank, a.params.probe.radius_um)
+        return a.neighbours.of(c)
+
     def set_threshold(self, value: float, final: bool = True, scale: str | None = None) -> None:
         """Set the threshold from a value in ``scale`` (default: the current scale).
 
         With scope "all", every channel gets the value (the same sigma multiple, or the
-        same microvolts); with scope "channel", only the selected channel changes.
+        same microvolts); with scope "channel", only the selected channel changes; with scope
+        "neighbourhood", the selected site and its neighbours on the probe (:meth:`neighbourhood`).
         """
         scale = scale or self.scale
         value = float(value)
         if not np.isfinite(value) or value <= 0:
             return
         new = self.thresholds_sigma.copy()
-        targets = np.arange(len(new)) if self.scope == "all" else np.array([self.channel])
+        targets = {"all": np.arange(len(new)), "channel": np.array([self.channel])}.get(self.scope)
+        if targets is None:
+            targets = self.neighbourhood()
         if scale == "sigma":
             new[targets] = value
         else:

@@ -30,6 +30,29 @@ def site_arrays(x_um, y_um, shank, n_channels: int):
     return positions, np.zeros(n_channels, np.int64) if shank is None else np.asarray(shank, np.int64)
 
 
+def site_order(channels, positions, shank):
+    """Channels ordered as their sites lie on the probe, for stacking traces top to bottom: by shank,
+    then from the largest ``y_um`` (farthest from the tip) down to the tip, then by ``x_um``.
+
+    Parameters
+    ----------
+    channels
+        Channel indices to order.
+    positions, shank
+        ``(channels, 2)`` site positions (um) and shank of every channel of the recording.
+
+    Returns
+    -------
+    numpy.ndarray
+        The same channels (int64) in probe order.
+    """
+    import numpy as np
+
+    chans = np.asarray(channels, dtype=np.int64)
+    pos, sh = np.asarray(positions, dtype=np.float64)[chans], np.asarray(shank)[chans]
+    return chans[np.lexsort((chans, pos[:, 0], -pos[:, 1], sh))]
+
+
 def probe_from_table(table, source: str) -> tuple[list, list, list | None]:
     """``(x_um, y_um, shank)`` from a metadata ``[probe]`` table (``shank`` None when absent)."""
     if not isinstance(table, dict):

@@ -17,11 +17,12 @@ from PySide6.QtWidgets import QApplication, QWidget
 
 from rigside.cli.main import main
 from rigside.core.io.recording import open_recording
-from rigside.core.params import Params
+from rigside.core.params import ClusterParams, Params
+from rigside.core.units.clustering import cluster_features
 from rigside.gui import jobs
 from rigside.gui.window import MainWindow
 from rigside.gui.workers import running_jobs
-from rigside.sample_data import demo_path
+from rigside.sample_data import demo_path, probe_demo_path
 
 _CACHE: dict = {}
 
@@ -180,3 +181,23 @@ def sorted_copy(src: Path, folder: Path, session_name: str) -> tuple[Path, Path]
     rec, session = copy_sample(src, folder), folder / session_name
     assert main(["sort", str(rec), "--session", str(session), "--quiet"]) == 0
     return rec, session
+
+
+@pytest.fixture(scope="session")
+def probe_session_file(tmp_path_factory):
+    """A copy of the probe demo and the session `rigside sort` wrote of it (sorted once for every probe
+    window test, before any test's thread count is taken)."""
+    session = sorted_copy(probe_demo_path(), tmp_path_factory.mktemp("probe"), "probe.rigside.h5")[1]
+    # the probe's regions are clustered in worker processes, so the numeric libraries' thread pools of
+    # this process would start in the test (the window's first fits) and count as left behind: one small
+    # clustering here starts them, as the sorts of one group in this process do for the other tests
+    cluster_features(np.random.default_rng(0).normal(size=(400, 3)), ClusterParams())
+    return session
+
+
+@pytest.fixture
+def probe_session(window, probe_session_file):
+    """The window with the sorted probe demo's session open (its autosave timer stopped)."""
+    window.units.files.timer.stop()
+    assert window.open_path(str(probe_session_file)) and window.wait_idle(60)
+    return window

@@ -10,35 +10,11 @@ import pytest
 from PySide6.QtCore import Qt
 
 from rigside.core.numbers import format_number
-from rigside.core.params import ClusterParams
 from rigside.core.quality.depth_image import event_depth_image
 from rigside.core.quality.unit_position import POSITION_COLUMNS
-from rigside.core.units.clustering import cluster_features
 from rigside.gui import jobs
 from rigside.gui.screenshot import capture, colour_share, pixels
-from rigside.sample_data import probe_demo_path
-from tests.app.conftest import demo_analysis, sorted_copy
-
-
-@pytest.fixture(scope="module")
-def probe_session_file(tmp_path_factory):
-    """A copy of the probe demo and the session `rigside sort` wrote of it (sorted once, as the other
-    window tests sort theirs, before each test's thread count is taken)."""
-    session = sorted_copy(probe_demo_path(), tmp_path_factory.mktemp("probe"), "probe.rigside.h5")[1]
-    # the probe's regions are clustered in worker processes, so the numeric libraries' thread pools of
-    # this process would start in the test (the window's first fits) and count as left behind: one small
-    # clustering here starts them, as the sorts of one group in this process do for the other tests
-    cluster_features(np.random.default_rng(0).normal(size=(400, 3)), ClusterParams())
-    np.ones((256, 256)) @ np.ones((256, 256))
-    return session
-
-
-@pytest.fixture
-def probe_session(window, probe_session_file):
-    session = probe_session_file
-    window.units.files.timer.stop()
-    assert window.open_path(str(session)) and window.wait_idle(60)
-    return window
+from tests.app.conftest import demo_analysis
 
 
 def test_probe_events_are_drawn_as_depth_against_time(probe_session, qtbot, tmp_path, monkeypatch):

@@ -151,7 +151,8 @@ class ThresholdPanel(Panel):
         self.scope = QComboBox()
         self.scope.addItem("all channels", "all")
         self.scope.addItem("selected channel only", "channel")
-        self.scope.setToolTip("Apply a new threshold to every channel or only to the selected one")
+        self.scope.setToolTip("Apply a new threshold to every channel, only to the selected one, or (probes) to "
+                              "the selected site and the sites within the neighbourhood radius of it")
         SpinBinding(self.value, b.threshold_value, lambda v: b.set_threshold(v, final=True),
                     [b.thresholds_changed, b.scale_changed, b.selection_changed, b.events_changed])
         ComboBinding(self.scale, lambda: b.scale, b.set_scale, [b.scale_changed])
@@ -193,6 +194,14 @@ class ThresholdPanel(Panel):
 
     def _on_recording(self) -> None:
         self.table_model.reset()
+        probe = self.bench.recording.positions is not None
+        at = self.scope.findData("neighbourhood")
+        if probe and at < 0:
+            self.scope.addItem("selected site's neighbourhood", "neighbourhood")
+        elif not probe and at >= 0:
+            if self.bench.scope == "neighbourhood":
+                self.bench.set_scope("channel")
+            self.scope.removeItem(at)
         self._on_scale()
         self.summary.setTextFormat(Qt.TextFormat.RichText)
         self.summary.setText("Measuring noise and detecting events…")
@@ -261,6 +270,12 @@ class ThresholdPanel(Panel):
         uv = k * float(b.sigma_uv[c])
         name = rec.group_names[int(rec.channel_group[c])]
         note = " <b>(below the stored floor: counts are incomplete)</b>" if b.below_floor() else ""
+        near = ""
+        if rec.positions is not None:
+            sites = b.neighbourhood()
+            n_n = int(counts[sites].sum())
+            near = (f"<br>its neighbourhood ({len(sites)} sites within {b.analysis.params.probe.radius_um:g} µm): "
+                    f"{n_n:,} events, {n_n / dur:.2f} /s")
         return (f"<b>ch {c}</b> at {k:.2f} σ ({uv:.1f} µV): <b>{n_c:,}</b> events, "
-                f"{n_c / dur:.2f} /s<br>{name}: {n_g:,} events, {n_g / dur:.2f} /s · "
+                f"{n_c / dur:.2f} /s{near}<br>{name}: {n_g:,} events, {n_g / dur:.2f} /s · "
                 f"shown channels: {n_s:,} events, {n_s / dur:.2f} /s{note}")

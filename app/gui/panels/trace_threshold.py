@@ -75,7 +75,8 @@ class ThresholdHandle:
         finally:
             self._placing = False
         self.handle.setVisible(True)
-        self.handle.label.setFormat(f"ch {b.channel}: {k:.2f} σ = {k * s:.1f} µV  (drag)")
+        near = f", {len(b.neighbourhood())} sites around" if b.scope == "neighbourhood" else ""
+        self.handle.label.setFormat(f"ch {b.channel}{near}: {k:.2f} σ = {k * s:.1f} µV  (drag)")
 
     def handle_y(self, k_sigma: float) -> float:
         """Where the handle sits for ``k_sigma`` on the selected channel."""

@@ -5,12 +5,13 @@ from __future__ import annotations
 import numpy as np
 import pyqtgraph as pg
 from PySide6.QtCore import Qt, QTimer
+from PySide6.QtGui import QFontMetrics
 from PySide6.QtWidgets import QCheckBox, QComboBox, QGraphicsRectItem, QHBoxLayout, QInputDialog, QLabel, QVBoxLayout
 
 from rigside.core.signal.filtering import BandPass
 from rigside.gui import palette
 from rigside.gui.bindings import CheckBinding
-from rigside.gui.channel_text import channel_list, parse_channels
+from rigside.gui.channel_text import channel_list, lane_name, parse_channels
 from rigside.gui.panels.base import Panel
 from rigside.gui.panels.event_marks import EventMarks
 from rigside.gui.panels.spike_rows import SpikeRows
@@ -204,10 +205,14 @@ class TracePanel(Panel):
         band = self.rows.layout(hi, hi - lo, self.vb.height())
         self.vb.setYRange(lo, hi + band, padding=0)
         out = {} if b.events is None else b.events.excluded
-        names = [(float(o), f"ch {c}" + (f" · {out[int(c)]}, left out" if int(c) in out else ""))
+        names = [(float(o), lane_name(b.recording, int(c)) + (f" · {out[int(c)]}, left out" if int(c) in out else ""))
                  for o, c in zip(self.offsets, shown)]
-        axis.setTicks([names + self.rows.ticks(), []])
-        axis.setWidth(max(AXIS_WIDTH, self.rows.label_width(axis.style["tickFont"] or axis.font()) + 12))
+        font = axis.style["tickFont"] or axis.font()
+        lane_px = self.vb.height() * self.spacing / max(1e-9, hi + band - lo)
+        every = max(1, int(np.ceil(QFontMetrics(font).height() / max(1.0, lane_px))))   # labels that do not overlap
+        axis.setTicks([names[::every] + self.rows.ticks(), []])
+        wide = max([QFontMetrics(font).horizontalAdvance(n) for _, n in names] + [self.rows.label_width(font)])
+        axis.setWidth(max(AXIS_WIDTH, wide + 12))
         self._draw_bands()
         self.threshold.draw_lines()
         self.threshold.update_handle()
@@ -364,8 +369,8 @@ class TracePanel(Panel):
             self.rows.draw(*self.bench.view)
 
     def _on_resized(self) -> None:
-        if self.rows.count() and self.bench.recording is not None and len(self.offsets):
-            self._layout_lanes()       # the rows keep their height on screen
+        if self.bench.recording is not None and len(self.offsets):
+            self._layout_lanes()       # the rows keep their height on screen, lane labels their spacing
         self.refresh()
 
     def marker_times(self) -> np.ndarray:
