@@ -46,6 +46,9 @@ MAX_DRIFT_EVENTS = 300
 the slope's scatter falls as one over the square root of the events, its cost grows with their square)."""
 MIN_DRIFT_EVENTS = 10
 """Fewest events for a drift (choice, no source: fewer give slopes led by single events)."""
+MIN_DRIFT_SPAN_S = 5.0
+"""Shortest span of a unit's events for a drift (choice, no source: over a few seconds the slope per
+minute extrapolates the scatter of single positions, e.g. hundreds of um/min on a 2 s demo)."""
 
 
 def unit_position(x_um: np.ndarray, y_um: np.ndarray) -> tuple[float, float]:
@@ -84,7 +87,7 @@ def position_drift(times_s: np.ndarray, y_um: np.ndarray, max_events: int = MAX_
     -------
     MetricValue
         Micrometres per minute (positive: toward higher ``y_um``); NaN with a reason below
-        :data:`MIN_DRIFT_EVENTS` events or when the events do not span two distinct times.
+        :data:`MIN_DRIFT_EVENTS` events or when the events span less than :data:`MIN_DRIFT_SPAN_S`.
     """
     t = spike_times(times_s, name="event times")
     y = float_1d(y_um, "event y positions")
@@ -93,6 +96,8 @@ def position_drift(times_s: np.ndarray, y_um: np.ndarray, max_events: int = MAX_
         return undefined(f"needs at least {MIN_DRIFT_EVENTS} events, got {len(t)}")
     if t[-1] == t[0]:
         return undefined("all events share one time")
+    if t[-1] - t[0] < MIN_DRIFT_SPAN_S:
+        return undefined(f"needs events over at least {MIN_DRIFT_SPAN_S:g} s, got {t[-1] - t[0]:.3g} s")
     from scipy.stats import theilslopes  # imported on first use: scipy.stats is slow to import
 
     keep = spread_subsample(len(t), max_events)

@@ -12,6 +12,7 @@ from rigside.core.errors import RigsideError
 from rigside.core.events import EventTable
 from rigside.core.quality.unit_position import (
     MIN_DRIFT_EVENTS,
+    MIN_DRIFT_SPAN_S,
     POSITION_COLUMNS,
     position_drift,
     unit_position,
@@ -71,6 +72,9 @@ def test_drift_is_undefined_with_a_reason():
     assert f"at least {MIN_DRIFT_EVENTS}" in position_drift(t, y).reason
     same = position_drift(np.full(20, 3.0), np.arange(20.0))
     assert np.isnan(same.value) and same.reason == "all events share one time"
+    brief = position_drift(np.linspace(0.0, MIN_DRIFT_SPAN_S * 0.9, 50), np.arange(50.0))
+    assert np.isnan(brief.value) and f"at least {MIN_DRIFT_SPAN_S:g} s" in brief.reason
+    assert np.isfinite(position_drift(np.linspace(0.0, MIN_DRIFT_SPAN_S, 50), np.arange(50.0)).value)
     with pytest.raises(RigsideError, match="sorted"):
         position_drift(np.arange(20.0)[::-1], np.arange(20.0))
 
