@@ -21,7 +21,7 @@ so on long files the two bases differ slightly; both are random subsets of the s
 
 from __future__ import annotations
 
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, fields
 
 import numpy as np
 
@@ -47,12 +47,12 @@ from rigside.core.signal.snippets import snippet_window
 
 @dataclass
 class _Chunk:
-    """One chunk's events (to the floor), which of them are kept, their feature rows and the
-    flattened snippets not projected yet: ``(slot, rows of feats, snippets)``."""
+    """One chunk's events at the threshold (those under it are dropped as the chunk is done, so they
+    are never all held at once), their feature rows and the flattened snippets not projected yet:
+    ``(slot, rows of feats, snippets)``."""
 
     index: int
     cols: EventColumns
-    keep: np.ndarray
     feats: np.ndarray
     runs: list[tuple[int, np.ndarray, np.ndarray]] = field(default_factory=list)
 
@@ -145,11 +145,10 @@ def detect_with_features(recording: Recording, params: Params, progress: Progres
         y = det.bandpass.read(lo, hi)
         d_lo, d_hi = max(0, start - det.margin), min(recording.n_samples, stop + det.margin)
         cols = det.events(y[d_lo - lo:d_hi - lo], d_lo, start, stop)  # detection's own block, as in detect
-        keep = cols.amplitude_sigma >= thr[cols.channel]
-        rows = np.flatnonzero(keep)
+        rows = np.flatnonzero(cols.amplitude_sigma >= thr[cols.channel])
         slot = cols.group[rows].astype(np.int64)
         own = own_columns(cols.channel[rows], slot, channels, recording.n_channels)
-        chunk = _Chunk(i, cols, keep, np.zeros((len(rows), n_feats), dtype=np.float32))
+        chunk = _Chunk(i, _rows(cols, rows), np.zeros((len(rows), n_feats), dtype=np.float32))
         centred = cols.y_um[rows].astype(np.float64) if local else None
         where = (centred, centred) if local else ()  # the frame-centred positions replace the estimates
         peak_column = np.zeros_like(own) if local else own  # a local frame's column 0 is the peak site
@@ -176,10 +175,11 @@ def detect_with_features(recording: Recording, params: Params, progress: Progres
 def _assemble(det: BlockDetector, chunks: list[_Chunk], names: list[str],
               bases: _Bases) -> tuple[EventTable, Features]:
     table, order = det.assemble([c.cols for c in chunks])
-    keep = np.concatenate([c.keep for c in chunks]) if chunks else np.zeros(0, dtype=bool)
     feats = np.concatenate([c.feats for c in chunks]) if chunks else np.zeros((0, len(names)), dtype=np.float32)
-    row_of = np.cumsum(keep) - 1
-    kept = keep[order]
-    events = table.subset(kept)
-    return events, Features(feats[row_of[order][kept]], names,
-                            {g: b for g, b in enumerate(bases.basis) if b is not None})
+    return table, Features(feats[order], names, {g: b for g, b in enumerate(bases.basis) if b is not None})
+
+
+def _rows(cols: EventColumns, rows: np.ndarray) -> EventColumns:
+    """The chosen rows of a block's event columns (positions too, when it has them)."""
+    return type(cols)(**{f.name: None if getattr(cols, f.name) is None else getattr(cols, f.name)[rows]
+                         for f in fields(cols)})
