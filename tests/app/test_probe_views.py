@@ -118,3 +118,22 @@ def test_threshold_drag_over_a_sites_neighbourhood(probe_session):
     assert f"its neighbourhood ({len(near)} sites within" in thr.summary.text()
     assert f"{n:,} events" in thr.summary.text()
     assert f"{len(near)} sites around" in win.traces.handle.label.format
+
+
+def test_unit_waveforms_on_a_probe_show_the_units_own_sites(probe_session):
+    win = probe_session
+    ctl, wf = win.units, win.unit_panels["plots"].waveforms
+    rec = win.bench.recording
+    u = max((v for v in ctl.metrics if v > 0), key=lambda v: ctl.metrics[v]["y_um"])   # the highest unit
+    ctl.set_selection([u])
+    assert win.wait_idle(60)
+    snips, channels = wf.snippets[u]
+    assert len(channels) > 8 and len(wf.columns) == 8               # a shank: 8 of its sites are drawn
+    mean = snips.mean(axis=0)
+    ptp = mean.max(axis=0) - mean.min(axis=0)                        # peak to peak (numpy, by hand)
+    assert sorted(wf.columns) == wf.columns
+    assert set(wf.columns) == set(np.argsort(-ptp)[:8].tolist())
+    main = int(ctl.metrics[u]["main_channel"])
+    assert main in {int(channels[c]) for c in wf.columns}            # the unit's own channel is among them
+    drawn_y = rec.positions[[int(channels[c]) for c in wf.columns], 1]
+    assert abs(np.median(drawn_y) - ctl.metrics[u]["y_um"]) < 60     # near the unit, not the shank's first sites

@@ -32,6 +32,7 @@ class UnitWaveformView(UnitView):
 
     def __init__(self, controller, parent=None):
         super().__init__(controller, parent)
+        self.columns: list[int] | None = None   # columns of the first shown unit's group drawn now
         self.per_unit = QSpinBox()
         self.per_unit.setRange(10, 2000)
         self.per_unit.setValue(200)
@@ -76,26 +77,32 @@ class UnitWaveformView(UnitView):
         step = span * (1 + GAP_FRACTION)
         lo, hi, n_cols, parts = 0.0, 0.0, 0, []
         groups = set()
+        self.columns, first_group = None, None
         for u in units:
             snips, channels = result[u]
             if not len(snips):
                 continue
             colour = self.ctl.unit_colour(u) or palette.GREY
-            cols = range(min(len(channels), MAX_CHANNELS))
-            n_cols = max(n_cols, len(cols))
-            groups.add(tuple(int(c) for c in channels))
             mean, sd = snips.mean(axis=0), snips.std(axis=0)
+            if self.columns is None or tuple(channels) != first_group:   # the first unit's own channels,
+                cols = _own_columns(mean)                                  # kept for others of its group
+                if self.columns is None:
+                    self.columns, first_group = cols, tuple(channels)
+            else:
+                cols = self.columns
+            n_cols = max(n_cols, len(cols))
+            groups.add(tuple(int(channels[c]) for c in cols))
             xs, ys = [], []
-            for j in cols:
+            for j, c in enumerate(cols):
                 x = t + j * step
-                lower = pg.PlotCurveItem(x, mean[:, j] - sd[:, j], pen=pg.mkPen(None))
-                upper = pg.PlotCurveItem(x, mean[:, j] + sd[:, j], pen=pg.mkPen(None))
+                lower = pg.PlotCurveItem(x, mean[:, c] - sd[:, c], pen=pg.mkPen(None))
+                upper = pg.PlotCurveItem(x, mean[:, c] + sd[:, c], pen=pg.mkPen(None))
                 pi.addItem(lower)
                 pi.addItem(upper)
                 pi.addItem(pg.FillBetweenItem(lower, upper, brush=(*colour, 45)))
                 xs.append(np.append(x, np.nan))
-                ys.append(np.append(mean[:, j], np.nan))
-                lo, hi = min(lo, float((mean[:, j] - sd[:, j]).min())), max(hi, float((mean[:, j] + sd[:, j]).max()))
+                ys.append(np.append(mean[:, c], np.nan))
+                lo, hi = min(lo, float((mean[:, c] - sd[:, c]).min())), max(hi, float((mean[:, c] + sd[:, c]).max()))
             pi.addItem(pg.PlotCurveItem(np.concatenate(xs), np.concatenate(ys), connect="finite",
                                         pen=palette.pen(colour, 2.2)))
             parts.append(f"{self.ctl.unit_name(u)}: {len(snips)} events")
@@ -113,3 +120,11 @@ class UnitWaveformView(UnitView):
         pi.setXRange(t[0], t[0] + step * n_cols - span * GAP_FRACTION, padding=0.02)
         mixed = "" if len(groups) == 1 else " Units of different groups: blocks are channel positions in each group."
         self.status.setText("Mean (line) ± 1 SD (band) of a random subset; " + "; ".join(parts) + "." + mixed)
+
+
+def _own_columns(mean: np.ndarray) -> list[int]:
+    """Columns of a group to draw: all of a small group; on a larger one (a probe shank) the
+    :data:`MAX_CHANNELS` where the unit's mean waveform is largest peak to peak, in the group's order."""
+    if mean.shape[1] <= MAX_CHANNELS:
+        return list(range(mean.shape[1]))
+    return sorted(int(c) for c in np.argsort(-np.ptp(mean, axis=0), kind="stable")[:MAX_CHANNELS])
