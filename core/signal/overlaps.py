@@ -34,6 +34,7 @@ import numpy as np
 
 from rigside.core.errors import RigsideError
 from rigside.core.events import EventColumns, EventTable
+from rigside.core.heap import give_back
 from rigside.core.io.recording import Recording
 from rigside.core.params import Params
 from rigside.core.progress import CancelFn, ProgressFn, report, run_bounded
@@ -41,7 +42,7 @@ from rigside.core.signal.chunk_pool import chunk_bounds
 from rigside.core.signal.features import Features, put_scores, shape_features, usable_channels
 from rigside.core.signal.filtering import BandPass
 from rigside.core.signal.overlap_kernel import POLARITY_CODES, group_finds
-from rigside.core.signal.pipeline import thresholds_sigma
+from rigside.core.signal.pipeline import GIVE_BACK_EVERY, thresholds_sigma
 from rigside.core.signal.snippets import align_subsample, peak_offset, snippet_window
 
 SCALE_RANGE = (0.6, 1.6)
@@ -155,6 +156,8 @@ def recover_overlaps(recording: Recording, events: EventTable, features: Feature
         for item in part:
             found[item[0]].append(item[1:])
         done[0] += 1
+        if done[0] % GIVE_BACK_EVERY == 0:
+            give_back()
         report(progress, done[0] / len(busy), "looking for overlapping spikes")
 
     run_bounded(work, [(int(i), 0) for i in busy], params.run.workers, collect, cancel)

@@ -14,6 +14,7 @@ import numpy as np
 
 from rigside.core.errors import ParamError, RigsideError
 from rigside.core.events import COLUMNS, POSITION_COLUMNS, EventColumns, EventTable, uv_to_sigma
+from rigside.core.heap import give_back
 from rigside.core.io.content import BackgroundHasher
 from rigside.core.io.recording import Recording
 from rigside.core.params import Params
@@ -172,6 +173,11 @@ def block_detector(recording: Recording, params: Params, progress: ProgressFn = 
     return BlockDetector(recording, bp, sigma, noise.excluded, lookup_floor(params, sigma), params)
 
 
+GIVE_BACK_EVERY = 4
+"""Chunks between two returns of free heap memory to the system (:mod:`rigside.core.heap`; measured at
+64 ch x 600 s: peak RSS of the one detection-and-features pass 554 against 628 MB, 0.3 s in all)."""
+
+
 def stream_chunks(detector: BlockDetector, work: Callable[[int], R], items: list[int], on_result: Callable[[R], None],
                   progress: ProgressFn, cancel: CancelFn, message: str) -> None:
     """Run ``work(i)`` for the chunk indices ``items`` (two at a time per worker), hashing the whole file
@@ -182,6 +188,8 @@ def stream_chunks(detector: BlockDetector, work: Callable[[int], R], items: list
     def collect(result: R) -> None:
         on_result(result)
         done[0] += 1
+        if done[0] % GIVE_BACK_EVERY == 0:
+            give_back()
         hasher.advance(done[0] / len(items))
         report(progress, NOISE_SHARE + (1 - NOISE_SHARE) * done[0] / len(items), message)
 
