@@ -24,6 +24,12 @@ class TaskStatus(QWidget):
         lay.addWidget(self.label)
         lay.addWidget(self.bar)
         lay.addWidget(self.cancel_button)
+        for w in (self.bar, self.cancel_button):
+            # Keep their room while hidden: a status bar that grew when work starts would
+            # move every panel and repaint the whole window.
+            policy = w.sizePolicy()
+            policy.setRetainSizeWhenHidden(True)
+            w.setSizePolicy(policy)
         runner.started.connect(self._on_started)
         runner.progressed.connect(self._on_progress)
         runner.idle.connect(self._on_idle)

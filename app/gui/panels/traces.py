@@ -76,7 +76,7 @@ class TracePanel(Panel):
         self.vb.setDefaultPadding(0.0)
         self.vb.disableAutoRange()
         self.bands: list[QGraphicsRectItem] = []
-        self.curve = pg.PlotCurveItem(pen=palette.pen(palette.TRACE), skipFiniteCheck=True)
+        self.curve = pg.PlotCurveItem(pen=palette.pen(palette.TRACE))
         self.selected_curve = pg.PlotCurveItem(pen=palette.pen(palette.TRACE_SELECTED), skipFiniteCheck=True)
         self.marks = EventMarks()
         self.rows = SpikeRows(pi)
@@ -167,6 +167,9 @@ class TracePanel(Panel):
         self._setting_range = True
         try:
             self.vb.setXRange(t0, t1, padding=0)
+            # Apply the new range to the items now: left to the paint, the items' geometry
+            # change would ask for a second paint of the whole view.
+            self.vb.updateMatrix()
         finally:
             self._setting_range = False
         self.refresh()
@@ -324,11 +327,12 @@ class TracePanel(Panel):
             return
         t = pos / b.recording.rate_hz
         shown = values - (np.median(values, axis=0) if b.show_raw else 0.0) + self.offsets[None, :]
-        y = np.ascontiguousarray(shown.T).ravel()
-        x = np.tile(t, nc)
-        connect = np.ones(n * nc, dtype=bool)
-        connect[n - 1::n] = False
-        self.curve.setData(x, y, connect=connect)
+        # One polyline for all lanes, a gap point between lanes: this path is built about
+        # twice as fast as one with an explicit connection array (bench/bench_overview.py).
+        y = np.full((nc, n + 1), np.nan, dtype=np.float32)
+        y[:, :n] = shown.T
+        x = np.append(t, np.nan)
+        self.curve.setData(np.tile(x, nc), y.ravel(), connect="finite")
         lane = int(self.lane[b.channel])
         if lane >= 0:
             self.selected_curve.setData(t, shown[:, lane])
