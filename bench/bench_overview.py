@@ -7,8 +7,9 @@ Prints, measured in the same run:
   every panel the change made dirty; offscreen, all channels shown) at several zoom levels
   from the whole file down to 50 ms, against a baseline that reads and filters the visible
   slice and reduces it to one min/max pair per pixel column with numpy, drawn on the same
-  curve (target: every zoom under 100 ms once the overview exists). Where the view is too long for samples at once, the time until the background
-  read replaces the overview's bins is printed too.
+  curve (target: every zoom under 100 ms once the overview exists). Where the view is too
+  long for samples at once, the time until the background read replaces the overview's bins
+  is printed too.
 
 Run: python bench/bench_overview.py [--seconds 3600] [--channels 64] [--baseline-max 600]
      [--recording PATH]   (an existing recording, read only, instead of a synthesised one)
