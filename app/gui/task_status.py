@@ -24,9 +24,12 @@ class TaskStatus(QWidget):
         lay.addWidget(self.label)
         lay.addWidget(self.bar)
         lay.addWidget(self.cancel_button)
+        # The status bar keeps one height whether work runs or not (one that grew when work
+        # starts would move every panel and repaint the whole window): the bar and the button
+        # are no taller than a line of text, and keep their room while hidden.
+        line = self.label.sizeHint().height() + 3
         for w in (self.bar, self.cancel_button):
-            # Keep their room while hidden: a status bar that grew when work starts would
-            # move every panel and repaint the whole window.
+            w.setMaximumHeight(line)
             policy = w.sizePolicy()
             policy.setRetainSizeWhenHidden(True)
             w.setSizePolicy(policy)
