@@ -57,9 +57,14 @@ def style_plot(plot: pg.PlotItem, x_label: str, y_label: str) -> None:
     for name in ("bottom", "left"):
         axis = plot.getAxis(name)
         axis.setTextPen(FOREGROUND)
-        # painted once into a pixmap until its range changes: a moving line elsewhere in the
-        # plot then costs a blit, not a redraw of every tick label
-        axis.setCacheMode(QGraphicsItem.CacheMode.DeviceCoordinateCache)
+        painted_once(axis)
+
+
+def painted_once(*items: QGraphicsItem) -> None:
+    """Paint these items into a pixmap kept until their content or the view changes: a line moving elsewhere in
+    the plot (a threshold being dragged) then costs a blit of them, not a redraw of every label or segment."""
+    for item in items:
+        item.setCacheMode(QGraphicsItem.CacheMode.DeviceCoordinateCache)
 
 
 def make_plot(x_label: str = "", y_label: str = "") -> pg.PlotWidget:

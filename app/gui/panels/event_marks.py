@@ -29,6 +29,7 @@ class EventMarks:
         self.dense = False
         self.chosen = pg.ScatterPlotItem(size=9, symbol="t", pen=pg.mkPen(palette.BLACK, width=0.5))
         self.highlights: list[tuple[np.ndarray, tuple]] = []
+        self._rows: tuple | None = None
 
     def items(self) -> tuple:
         return self.artefacts, self.events, self.rug, self.chosen
@@ -62,7 +63,7 @@ class EventMarks:
             self._draw_rug(flags, offsets, spacing, a, z, ev.rate_hz)
             return
         i0, i1 = np.searchsorted(ev.sample, [a, z])
-        rows = ev.rows_on(np.flatnonzero(lane >= 0), a, z)  # the shown channels only (a probe has hundreds)
+        rows = self._rows_in_view(ev, lane, a, z)
         lanes = lane[ev.channel[rows]]
         passing = ev.amplitude_sigma[rows] >= thr[ev.channel[rows]]
         art = ev.artefact[rows]
@@ -74,6 +75,14 @@ class EventMarks:
             y[1::2] = top - MARK_LENGTH * spacing
             item.setData(np.repeat(ev.sample[rows[idx]] / ev.rate_hz, 2), y, connect="pairs")
         self._draw_chosen(ev, lane, offsets, spacing, i0, i1)
+
+    def _rows_in_view(self, ev, lane: np.ndarray, a: int, z: int) -> np.ndarray:
+        """Rows of the events on the shown channels in samples ``[a, z)`` (a probe has hundreds of channels), kept
+        while the view and the table stay: a threshold drag asks for them on every move."""
+        key = (a, z, lane.tobytes())
+        if self._rows is None or self._rows[0] is not ev or self._rows[1] != key:
+            self._rows = (ev, key, ev.rows_on(np.flatnonzero(lane >= 0), a, z))
+        return self._rows[2]
 
     def _draw_chosen(self, ev, lane, offsets, spacing, i0: int, i1: int) -> None:
         """A marker in the unit's colour under the tick of each event of a selected unit."""
