@@ -44,7 +44,7 @@ class CountCurvePanel(Panel):
                                            name="noise only (sampled data)")
         self.continuous = self.rate_plot.plot([], [], pen=palette.pen(palette.GREY, 1.5, dot=True),
                                               name="noise only (Rice, continuous)")
-        palette.painted_once(self.observed, self.sampled, self.continuous)
+        palette.painted_once(self.observed.curve, self.sampled.curve, self.continuous.curve)
         self.line = pg.InfiniteLine(angle=90, movable=True, pen=palette.pen(palette.THRESHOLD, 2.5),
                                     hoverPen=palette.pen(palette.VERMILLION, 3.5), label="",
                                     labelOpts={"position": 0.92, "color": palette.FOREGROUND,
