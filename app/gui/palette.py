@@ -7,6 +7,9 @@ or dash).
 
 from __future__ import annotations
 
+from contextlib import contextmanager
+from typing import Iterator
+
 import pyqtgraph as pg
 from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QGraphicsItem
@@ -58,6 +61,21 @@ def style_plot(plot: pg.PlotItem, x_label: str, y_label: str) -> None:
         axis = plot.getAxis(name)
         axis.setTextPen(FOREGROUND)
         painted_once(axis)
+
+
+@contextmanager
+def drawn_afresh(scene) -> Iterator[None]:
+    """Every item of ``scene`` drawn by its own paint while the block runs: a picture saved at another size or as
+    vectors must not reuse the pixmaps kept for the screen (:func:`painted_once`)."""
+    kept = [(item, item.cacheMode()) for item in scene.items()
+            if item.cacheMode() != QGraphicsItem.CacheMode.NoCache]
+    for item, _ in kept:
+        item.setCacheMode(QGraphicsItem.CacheMode.NoCache)
+    try:
+        yield
+    finally:
+        for item, mode in kept:
+            item.setCacheMode(mode)
 
 
 def painted_once(*items: QGraphicsItem) -> None:
