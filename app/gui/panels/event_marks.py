@@ -11,6 +11,10 @@ from rigside.gui import palette
 MARKER_LIMIT = 4000       # more events in view than this: one mark per pixel and channel
 MARK_TOP, MARK_LENGTH = 0.48, 0.14  # tick row at the top of a lane (fractions of the lane)
 RUG_ROWS = 10             # image rows per trace lane for the dense marks
+RUG_COLOURS = np.zeros((4, 4), dtype=np.uint8)
+"""RGBA of a dense mark pixel by its bits: none, an event, an artefact, both (drawn as an event)."""
+RUG_COLOURS[ARTEFACT] = (*palette.ARTEFACT, 255)
+RUG_COLOURS[EVENT] = RUG_COLOURS[EVENT | ARTEFACT] = (*palette.EVENT, 255)
 
 
 class EventMarks:
@@ -25,7 +29,7 @@ class EventMarks:
         self.artefacts = pg.PlotCurveItem(pen=palette.pen(palette.ARTEFACT, 2), connect="pairs")
         self.rug = pg.ImageItem(axisOrder="row-major")
         self.rug.setVisible(False)
-        self.rug_pixels = np.zeros((0, 0), dtype=bool)
+        self._rug_rgba: np.ndarray | None = None
         self.dense = False
         self.chosen = pg.ScatterPlotItem(size=9, symbol="t", pen=pg.mkPen(palette.BLACK, width=0.5))
         self.highlights: list[tuple[np.ndarray, tuple]] = []
@@ -98,18 +102,23 @@ class EventMarks:
         else:
             self.chosen.setData([], [])
 
+    @property
+    def rug_pixels(self) -> np.ndarray:
+        """Which pixels of the dense marks' image are drawn (rows bottom-up, as the image lies)."""
+        rgba = self._rug_rgba
+        return np.zeros((0, 0), dtype=bool) if rgba is None else rgba[..., 3] > 0
+
     def _draw_rug(self, flags: np.ndarray, offsets, spacing, a, z, rate) -> None:
         n, width = len(offsets), flags.shape[1]
-        rgba = np.zeros((RUG_ROWS * n, width, 4), dtype=np.uint8)
+        shape = (RUG_ROWS * n, width, 4)
+        if self._rug_rgba is None or self._rug_rgba.shape != shape:
+            self._rug_rgba = np.zeros(shape, dtype=np.uint8)   # kept: only the mark rows change from move to move
+        rgba = self._rug_rgba
         # lane 0 is at the top; image row 0 is at the bottom of the rug's rectangle
         marks = rgba[RUG_ROWS - 1::RUG_ROWS][::-1]
         lanes = np.zeros((n, width), dtype=np.uint8)
         lanes[:len(flags)] = flags
-        for bit, colour in ((ARTEFACT, palette.ARTEFACT), (EVENT, palette.EVENT)):
-            on = (lanes & bit) > 0
-            marks[on, :3] = colour
-            marks[on, 3] = 255
-        self.rug_pixels = rgba[..., 3] > 0
+        marks[...] = RUG_COLOURS[lanes]
         self.rug.setImage(rgba, autoLevels=False)
         bottom = offsets[-1] - 0.5 * spacing
         self.rug.setRect(a / rate, bottom, (z - a) / rate, n * spacing)
