@@ -13,7 +13,9 @@ Prints, measured in the same run:
 With --probe, the threshold change alone on a 384-site synthetic probe recording (events with
 positions), against its re-detection.
 
-Run: python bench/bench_workbench.py [--seconds 60] [--events 1000000] [--probe]
+With --shown N, N traces are shown (default 32; a probe's whole shank is 384).
+
+Run: python bench/bench_workbench.py [--seconds 60] [--events 1000000] [--probe] [--shown 384]
 """
 
 from __future__ import annotations
@@ -108,9 +110,10 @@ def main() -> int:
     ap.add_argument("--seconds", type=float, default=60.0)
     ap.add_argument("--events", type=int, default=1_000_000)
     ap.add_argument("--probe", action="store_true", help=f"threshold change only, on a {PROBE_SITES}-site probe")
+    ap.add_argument("--shown", type=int, default=CHANNELS, help="traces shown (at most the recording's channels)")
     args = ap.parse_args()
     tmp = tempfile.TemporaryDirectory()
-    app, win, rec, noise = open_window(Path(tmp.name), args.seconds, args.events, args.probe)
+    app, win, rec, noise = open_window(Path(tmp.name), args.seconds, args.events, args.probe, args.shown)
     bench_threshold_change(app, win, rec, noise)
     if not args.probe:
         bench_scrolling(win)
@@ -121,8 +124,8 @@ def main() -> int:
     return 0
 
 
-def open_window(folder: Path, seconds: float, n_events: int, probe: bool = False):
-    """A window showing the first 32 channels of a synthetic recording (bundles, or a probe) with
+def open_window(folder: Path, seconds: float, n_events: int, probe: bool = False, shown: int = CHANNELS):
+    """A window showing the first ``shown`` channels of a synthetic recording (bundles, or a probe) with
     ``n_events`` in its event table."""
     QSettings.setDefaultFormat(QSettings.Format.IniFormat)
     QSettings.setPath(QSettings.Format.IniFormat, QSettings.Scope.UserScope, str(folder / "settings"))
@@ -151,7 +154,7 @@ def open_window(folder: Path, seconds: float, n_events: int, probe: bool = False
     bench = win.bench
     bench.set_events(noise, events)
     win.runner.shutdown()
-    bench.show_channels(range(CHANNELS), "all channels")
+    bench.show_channels(range(min(shown, rec.n_channels)), "all channels")
     start = min(10.0, seconds - 1.0)
     bench.set_view(start, start + 1.0)
     app.processEvents()
@@ -173,7 +176,8 @@ def bench_threshold_change(app, win, rec, noise) -> None:
     p.detect.threshold_sigma = 4.5
     naive = timed(lambda i: detect(rec, p, noise=noise), 2)
     marks = len(win.traces.marker_times())
-    print(f"\nthreshold change ({len(bench.events):,} events on {rec.n_channels} channels; counts, table, markers, "
+    print(f"\nthreshold change ({len(bench.events):,} events on {rec.n_channels} channels, "
+          f"{len(bench.shown_channels)} traces shown; counts, table, markers, "
           "curve mark, rate strip)")
     print(f"  preview during drag      {summary(preview)}")
     print(f"  preview + window repaint {summary(preview_paint)}   ({marks} markers visible)")

@@ -15,6 +15,11 @@ from rigside.gui.panels.sites import SitesPanel
 
 SITES_WIDTH = 260
 """Width (pixels) the probe map is first shown at."""
+SESSION_SITES_SHARE = 0.18
+"""Share of the window's width the probe map takes when a probe session's units are first shown."""
+SESSION_PLOTS_SHARE = 0.47
+"""Share of the window's height the unit plots then take (less than on bundles: the map and the traces above
+them get the room a probe's many sites need)."""
 
 
 def install_depth(window):
@@ -37,6 +42,18 @@ def install_depth(window):
             elif not probe:
                 d.hide()
     window.bench.recording_changed.connect(follow)
+    arranged: set[str] = set()
+
+    def room_for_the_map() -> None:
+        """The first time a probe session's units are shown (after the unit docks took their sizes)."""
+        rec = window.bench.recording
+        if "done" in arranged or window.units.sorting is None or rec is None or rec.positions is None:
+            return
+        arranged.add("done")
+        window.resizeDocks([sites], [int(SESSION_SITES_SHARE * window.width())], Qt.Orientation.Horizontal)
+        window.resizeDocks([window.docks["unit_plots"]], [int(SESSION_PLOTS_SHARE * window.height())],
+                           Qt.Orientation.Vertical)
+    window.units.sorting_replaced.connect(room_for_the_map)
     reset = window.actions_by_name.get("reset_layout")
     if reset is not None:              # View > Reset shows every dock: these again only on a probe
         reset.triggered.connect(follow)

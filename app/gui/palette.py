@@ -7,6 +7,9 @@ or dash).
 
 from __future__ import annotations
 
+from contextlib import contextmanager
+from typing import Iterator
+
 import pyqtgraph as pg
 from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QGraphicsItem
@@ -57,9 +60,29 @@ def style_plot(plot: pg.PlotItem, x_label: str, y_label: str) -> None:
     for name in ("bottom", "left"):
         axis = plot.getAxis(name)
         axis.setTextPen(FOREGROUND)
-        # painted once into a pixmap until its range changes: a moving line elsewhere in the
-        # plot then costs a blit, not a redraw of every tick label
-        axis.setCacheMode(QGraphicsItem.CacheMode.DeviceCoordinateCache)
+        painted_once(axis)
+
+
+@contextmanager
+def drawn_afresh(scene) -> Iterator[None]:
+    """Every item of ``scene`` drawn by its own paint while the block runs: a picture saved at another size or as
+    vectors must not reuse the pixmaps kept for the screen (:func:`painted_once`)."""
+    kept = [(item, item.cacheMode()) for item in scene.items()
+            if item.cacheMode() != QGraphicsItem.CacheMode.NoCache]
+    for item, _ in kept:
+        item.setCacheMode(QGraphicsItem.CacheMode.NoCache)
+    try:
+        yield
+    finally:
+        for item, mode in kept:
+            item.setCacheMode(mode)
+
+
+def painted_once(*items: QGraphicsItem) -> None:
+    """Paint these items into a pixmap kept until their content or the view changes: a line moving elsewhere in
+    the plot (a threshold being dragged) then costs a blit of them, not a redraw of every label or segment."""
+    for item in items:
+        item.setCacheMode(QGraphicsItem.CacheMode.DeviceCoordinateCache)
 
 
 def make_plot(x_label: str = "", y_label: str = "") -> pg.PlotWidget:

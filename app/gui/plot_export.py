@@ -23,6 +23,7 @@ from PySide6.QtWidgets import QApplication, QWidget
 
 from rigside.core.io.atomic import atomic_write
 from rigside.core.quality.unit_table_io import write_described_csv
+from rigside.gui import palette
 
 IMAGE_FILTER = "PNG image (*.png);;SVG drawing (*.svg)"
 PNG_SCALE = 2
@@ -110,7 +111,8 @@ def png_bytes(view: pg.GraphicsView, caption: str = "") -> bytes:
     exporter = pg_exporters.ImageExporter(view.scene())
     width = max(1, view.viewport().width())
     exporter.parameters()["width"] = width * PNG_SCALE
-    plot = exporter.export(toBytes=True)
+    with palette.drawn_afresh(view.scene()):
+        plot = exporter.export(toBytes=True)
     doc = _caption(caption, width)
     top = math.ceil(doc.size().height() * PNG_SCALE) if caption else 0
     image = QImage(plot.width(), top + plot.height(), QImage.Format.Format_ARGB32)
@@ -151,7 +153,8 @@ def svg_bytes(view: pg.GraphicsView, title: str, caption: str = "") -> bytes:
     try:
         if caption:
             doc.drawContents(painter)
-        view.scene().render(painter, QRectF(0, top, source.width(), source.height()), source)
+        with palette.drawn_afresh(view.scene()):
+            view.scene().render(painter, QRectF(0, top, source.width(), source.height()), source)
     finally:
         painter.end()
     buffer.close()

@@ -12,7 +12,7 @@ from typing import Callable
 
 from PySide6.QtCore import Qt
 from PySide6.QtGui import QAction, QKeySequence
-from PySide6.QtWidgets import QDialog, QMenu
+from PySide6.QtWidgets import QDialog, QMenu, QStyle
 
 from rigside.core.errors import RigsideError
 from rigside.core.units.sorting import LABELS, pool_group
@@ -61,8 +61,12 @@ def install_units(window) -> SortingController:
     sized: set[str] = set()   # room for the units the first time there are some; later the user's layout stays
 
     def fit_unit_list() -> None:
-        """Every column of the unit list in view (within a share of the window's width)."""
-        want = min(max(UNIT_LIST_WIDTH, unit_list.wanted_width()), int(UNIT_LIST_SHARE * window.width()))
+        """Every column of the unit list in view, within a share of the window's width and leaving the unit plots
+        and the cluster plane below it their least widths (docks squeezed below those are drawn over each other)."""
+        gap = window.style().pixelMetric(QStyle.PixelMetric.PM_DockWidgetSeparatorExtent)
+        below = plots.minimumSizeHint().width() + plane.minimumSizeHint().width() + 3 * gap
+        want = min(max(UNIT_LIST_WIDTH, unit_list.wanted_width()), int(UNIT_LIST_SHARE * window.width()),
+                   window.width() - below)
         window.resizeDocks([docks[0]], [want], Qt.Orientation.Horizontal)
 
     def show_unit_docks() -> None:

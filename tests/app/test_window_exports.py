@@ -101,6 +101,9 @@ def test_plots_saved_as_png_and_svg(demo_window, tmp_path):
     assert root.tag.endswith("svg")
     words = " ".join(t.text or "" for t in root.iter() if t.tag.endswith("text"))
     assert "threshold" in words and "events" in words                       # the axis labels are text
+    # curves and axes kept as pixmaps for the screen (palette.painted_once) are saved as vectors
+    assert not [e for e in root.iter() if e.tag.endswith("image")]
+    assert curve.observed.curve.cacheMode() != curve.observed.curve.CacheMode.NoCache
     # the plot clicked last comes first
     win.traces.plot.setFocus()
     assert win.exporter.last_view is win.traces.plot

@@ -44,6 +44,7 @@ class CountCurvePanel(Panel):
                                            name="noise only (sampled data)")
         self.continuous = self.rate_plot.plot([], [], pen=palette.pen(palette.GREY, 1.5, dot=True),
                                               name="noise only (Rice, continuous)")
+        palette.painted_once(self.observed.curve, self.sampled.curve, self.continuous.curve)
         self.line = pg.InfiniteLine(angle=90, movable=True, pen=palette.pen(palette.THRESHOLD, 2.5),
                                     hoverPen=palette.pen(palette.VERMILLION, 3.5), label="",
                                     labelOpts={"position": 0.92, "color": palette.FOREGROUND,
@@ -158,17 +159,19 @@ class CountCurvePanel(Panel):
         if b.events is None:
             return
         k = float(b.thresholds_sigma[b.channel])
+        dur = b.events.duration_s
+        n = int(b.events.count_curve(b.channel, np.array([k]))[0])
+        noise = float(b.noise_rates(np.array([k]))[0])
+        self.line.label.format = f"{k:.2f} σ: {n / dur:.2f} /s (noise ≈ {noise:.2g} /s)"
         self._placing = True
         try:
             if not self.line.moving:
                 self.line.setValue(float(self._x(np.array([k]))[0]))
         finally:
             self._placing = False
-        dur = b.events.duration_s
-        n = int(b.events.count_curve(b.channel, np.array([k]))[0])
-        noise = float(b.noise_rates(np.array([k]))[0])
-        self.line.label.setFormat(f"{k:.2f} σ: {n / dur:.2f} /s (noise ≈ {noise:.2g} /s)")
-        self.truth_line.setValue(k)
+        self.line.label.valueChanged()
+        if self.truth_plot.isVisible():
+            self.truth_line.setValue(k)
 
     def _on_line(self, final: bool) -> None:
         b = self.bench
@@ -200,6 +203,7 @@ class CountCurvePanel(Panel):
             return
         self.truth_plot.setVisible(True)
         self.truth_key.setVisible(True)
+        self.truth_line.setValue(float(self.bench.thresholds_sigma[self.bench.channel]))
         self.hits.setData(s.thresholds_sigma, s.hits)
         self.misses.setData(s.thresholds_sigma, s.misses)
         self.false_alarms.setData(s.thresholds_sigma, s.false_alarms)

@@ -11,6 +11,10 @@ from rigside.gui import palette
 MARKER_LIMIT = 4000       # more events in view than this: one mark per pixel and channel
 MARK_TOP, MARK_LENGTH = 0.48, 0.14  # tick row at the top of a lane (fractions of the lane)
 RUG_ROWS = 10             # image rows per trace lane for the dense marks
+RUG_COLOURS = np.zeros((4, 4), dtype=np.uint8)
+"""RGBA of a dense mark pixel by its bits: none, an event, an artefact, both (drawn as an event)."""
+RUG_COLOURS[ARTEFACT] = (*palette.ARTEFACT, 255)
+RUG_COLOURS[EVENT] = RUG_COLOURS[EVENT | ARTEFACT] = (*palette.EVENT, 255)
 
 
 class EventMarks:
@@ -25,10 +29,11 @@ class EventMarks:
         self.artefacts = pg.PlotCurveItem(pen=palette.pen(palette.ARTEFACT, 2), connect="pairs")
         self.rug = pg.ImageItem(axisOrder="row-major")
         self.rug.setVisible(False)
-        self.rug_pixels = np.zeros((0, 0), dtype=bool)
+        self._rug_rgba: np.ndarray | None = None
         self.dense = False
         self.chosen = pg.ScatterPlotItem(size=9, symbol="t", pen=pg.mkPen(palette.BLACK, width=0.5))
         self.highlights: list[tuple[np.ndarray, tuple]] = []
+        self._rows: tuple | None = None
 
     def items(self) -> tuple:
         return self.artefacts, self.events, self.rug, self.chosen
@@ -62,7 +67,7 @@ class EventMarks:
             self._draw_rug(flags, offsets, spacing, a, z, ev.rate_hz)
             return
         i0, i1 = np.searchsorted(ev.sample, [a, z])
-        rows = ev.rows_on(np.flatnonzero(lane >= 0), a, z)  # the shown channels only (a probe has hundreds)
+        rows = self._rows_in_view(ev, lane, a, z)
         lanes = lane[ev.channel[rows]]
         passing = ev.amplitude_sigma[rows] >= thr[ev.channel[rows]]
         art = ev.artefact[rows]
@@ -74,6 +79,14 @@ class EventMarks:
             y[1::2] = top - MARK_LENGTH * spacing
             item.setData(np.repeat(ev.sample[rows[idx]] / ev.rate_hz, 2), y, connect="pairs")
         self._draw_chosen(ev, lane, offsets, spacing, i0, i1)
+
+    def _rows_in_view(self, ev, lane: np.ndarray, a: int, z: int) -> np.ndarray:
+        """Rows of the events on the shown channels in samples ``[a, z)`` (a probe has hundreds of channels), kept
+        while the view and the table stay: a threshold drag asks for them on every move."""
+        key = (a, z, lane.tobytes())
+        if self._rows is None or self._rows[0] is not ev or self._rows[1] != key:
+            self._rows = (ev, key, ev.rows_on(np.flatnonzero(lane >= 0), a, z))
+        return self._rows[2]
 
     def _draw_chosen(self, ev, lane, offsets, spacing, i0: int, i1: int) -> None:
         """A marker in the unit's colour under the tick of each event of a selected unit."""
@@ -89,18 +102,23 @@ class EventMarks:
         else:
             self.chosen.setData([], [])
 
+    @property
+    def rug_pixels(self) -> np.ndarray:
+        """Which pixels of the dense marks' image are drawn (rows bottom-up, as the image lies)."""
+        rgba = self._rug_rgba
+        return np.zeros((0, 0), dtype=bool) if rgba is None else rgba[..., 3] > 0
+
     def _draw_rug(self, flags: np.ndarray, offsets, spacing, a, z, rate) -> None:
         n, width = len(offsets), flags.shape[1]
-        rgba = np.zeros((RUG_ROWS * n, width, 4), dtype=np.uint8)
+        shape = (RUG_ROWS * n, width, 4)
+        if self._rug_rgba is None or self._rug_rgba.shape != shape:
+            self._rug_rgba = np.zeros(shape, dtype=np.uint8)   # kept: only the mark rows change from move to move
+        rgba = self._rug_rgba
         # lane 0 is at the top; image row 0 is at the bottom of the rug's rectangle
         marks = rgba[RUG_ROWS - 1::RUG_ROWS][::-1]
         lanes = np.zeros((n, width), dtype=np.uint8)
         lanes[:len(flags)] = flags
-        for bit, colour in ((ARTEFACT, palette.ARTEFACT), (EVENT, palette.EVENT)):
-            on = (lanes & bit) > 0
-            marks[on, :3] = colour
-            marks[on, 3] = 255
-        self.rug_pixels = rgba[..., 3] > 0
+        marks[...] = RUG_COLOURS[lanes]
         self.rug.setImage(rgba, autoLevels=False)
         bottom = offsets[-1] - 0.5 * spacing
         self.rug.setRect(a / rate, bottom, (z - a) / rate, n * spacing)

@@ -20,6 +20,7 @@ from PySide6.QtWidgets import (
 
 from rigside.gui.bindings import ComboBinding, SpinBinding
 from rigside.gui.panels.base import Panel
+from rigside.gui.steady_label import SteadyLabel
 
 TABLE_INTERVAL_MS = 50
 COLUMNS = ("ch", "group", "σ (µV)", "thr (σ)", "thr (µV)", "events", "events/s", "noise/s", "flag")
@@ -162,8 +163,8 @@ class ThresholdPanel(Panel):
                                  "detect again down to it")
         self.redetect.setVisible(False)
         self.redetect.clicked.connect(lambda: self.window().start_detection())
-        self.summary = QLabel("Open a recording to see counts.")
-        self.summary.setWordWrap(True)
+        self.summary_box = SteadyLabel("Open a recording to see counts.")   # new text on every move of a drag
+        self.summary = self.summary_box.label
         self.summary.setTextFormat(Qt.TextFormat.RichText)
         self.floor_note = QLabel("")
         self.floor_note.setWordWrap(True)
@@ -187,7 +188,7 @@ class ThresholdPanel(Panel):
         lay = QVBoxLayout(self)
         lay.setContentsMargins(4, 4, 4, 4)
         lay.addLayout(form)
-        lay.addWidget(self.summary)
+        lay.addWidget(self.summary_box)
         lay.addWidget(self.redetect)
         lay.addWidget(self.floor_note)
         lay.addWidget(self.table, 1)

@@ -65,18 +65,21 @@ class ThresholdHandle:
         s = float(sigma[b.channel])
         k = float(b.thresholds_sigma[b.channel])
         sign = self.signs()[0]
+        near = f", {len(b.neighbourhood())} sites around" if b.scope == "neighbourhood" else ""
+        label = self.handle.label
+        label.format = f"ch {b.channel}{near}: {k:.2f} σ = {k * s:.1f} µV  (drag)"
         self._placing = True
         try:
             off = p.offsets[lane]
-            lo, hi = sorted((off + sign * 0.5 * s, off + sign * min(60 * s, 2.0 * p.spacing)))
-            self.handle.setBounds((lo, hi))
+            bounds = sorted((off + sign * 0.5 * s, off + sign * min(60 * s, 2.0 * p.spacing)))
+            if list(self.handle.bounds()) != bounds:     # each call moves the line and redraws its label
+                self.handle.setBounds(bounds)
             if not self.handle.moving:
                 self.handle.setValue(off + sign * k * s)
         finally:
             self._placing = False
         self.handle.setVisible(True)
-        near = f", {len(b.neighbourhood())} sites around" if b.scope == "neighbourhood" else ""
-        self.handle.label.setFormat(f"ch {b.channel}{near}: {k:.2f} σ = {k * s:.1f} µV  (drag)")
+        label.valueChanged()
 
     def handle_y(self, k_sigma: float) -> float:
         """Where the handle sits for ``k_sigma`` on the selected channel."""

@@ -78,6 +78,7 @@ class TracePanel(Panel):
         self.bands: list[QGraphicsRectItem] = []
         self.curve = pg.PlotCurveItem(pen=palette.pen(palette.TRACE))
         self.selected_curve = pg.PlotCurveItem(pen=palette.pen(palette.TRACE_SELECTED), skipFiniteCheck=True)
+        palette.painted_once(self.curve, self.selected_curve)
         self.marks = EventMarks()
         self.rows = SpikeRows(pi)
         self.scale_bar = pg.PlotCurveItem(pen=palette.pen(palette.BLACK, 3))
