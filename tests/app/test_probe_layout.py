@@ -81,6 +81,8 @@ def test_threshold_drag_redoes_only_what_a_move_changes(probe_session, monkeypat
     ev, traces = win.bench.events, win.traces
     drag_handle(win, 5.0, finish=True)
     assert win.wait_idle(60)            # the waveforms cut on release are drawn before the drag
+    for _ in range(3):                  # and the layouts their drawing asked for are done
+        QApplication.processEvents()
     calls = {"rows_on": 0, "curve": 0}
     rows_on, set_data = ev.rows_on, traces.curve.setData
 
