@@ -5,7 +5,8 @@ metrics, export, and the audit of 100 imported units (made from the session's ow
 some spikes dropped and some added); detection also runs in process. For every stage it prints
 the wall time, its multiple of real time, the ratio to a plain baseline measured in the same run
 (scipy / numpy / scikit-learn written the obvious way) and the peak memory of the command (the
-child's own VmHWM), at each file length given.
+child's own VmHWM), at each file length given; with two lengths or more, how much the peak of
+``sort`` grows per 10^6 events from the shortest to the longest (flat memory: close to zero).
 
     python bench/bench_rig_session.py [--seconds 150 600] [--hour] [--channels 64] [--workdir DIR]
 
@@ -192,47 +193,59 @@ def in_process_detect(path: Path) -> float:
 
 def one_length(work: Path, seconds: float, channels: int):
     """Every stage at one file length, yielded as it ends: (stage, command s, in-process s or None,
-    baseline s, peak MB)."""
+    baseline s, peak MB, events detected or None)."""
     rec = work / f"rec_{seconds:g}s.bin"
     write_synth(rec, seconds=seconds, channels=channels, seed=1)
     ev, session, exp = work / "ev.h5", work / "s.h5", work / "export"
     wall, rss = run_command("detect", rec, "--out", ev, "--quiet")
     inproc = in_process_detect(rec)
     base, _ = timed(baseline_detect, rec, seconds)
-    yield ("detect", wall, inproc, base, rss)
+    yield ("detect", wall, inproc, base, rss, None)
 
     wall, rss = run_command("sort", rec, "--session", session, "--quiet", "--overwrite")
     events = EventTable.read_h5(ev)
     groups = [np.asarray(g) for g in open_recording(rec).groups]
     base, _ = timed(baseline_sort, rec, seconds, events, groups)
-    yield ("sort", wall, None, base, rss)
+    yield ("sort", wall, None, base, rss, len(events))
 
     wall, rss = run_command("metrics", session, "--out", work / "m.csv", "--quiet")
     rss_metrics = rss
     wall_export, rss_export = run_command("export", session, "--out", exp, "--quiet")
     units = unit_times(exp)
     base, _ = timed(baseline_metrics, units, seconds)
-    yield ("metrics", wall, None, base, rss_metrics)
+    yield ("metrics", wall, None, base, rss_metrics, None)
     base, _ = timed(baseline_export, units, work / "plain_export")
-    yield ("export", wall_export, None, base, rss_export)
+    yield ("export", wall_export, None, base, rss_export, None)
 
     imported = imported_units(units, seconds)
     write_imported(imported, work / "imported.csv")
     wall, rss = run_command("audit", rec, "--sorted", work / "imported.csv", "--session", session,
                             "--out", work / "audit.html", "--table", work / "audit.csv", "--quiet")
     base, _ = timed(baseline_audit, imported, units)
-    yield (f"audit ({N_IMPORTED} units)", wall, None, base, rss)
+    yield (f"audit ({N_IMPORTED} units)", wall, None, base, rss, None)
     for p in work.glob(f"{rec.stem}*"):
         p.unlink()
 
 
-def report(seconds: float, channels: int, rows) -> None:
+def report(seconds: float, channels: int, rows) -> tuple[int, float]:
+    """Print one length's table; return its event count and the peak MB of ``sort``."""
     print(f"\n{channels} ch x {seconds:g} s (int16, 30 kHz, {channels * seconds * 30000 * 2 / 1e9:.2f} GB)")
     print(f"{'stage':<18}{'command s':>10}{'x real':>8}{'in-proc s':>10}{'x real':>8}"
           f"{'plain s':>9}{'plain/cmd':>10}{'peak MB':>9}", flush=True)
-    for stage, wall, inproc, base, rss in rows:
+    sort = (0, 0.0)
+    for stage, wall, inproc, base, rss, events in rows:
         ip = f"{inproc:10.2f}{seconds / inproc:8.0f}" if inproc else f"{'-':>10}{'-':>8}"
         print(f"{stage:<18}{wall:10.2f}{seconds / wall:8.1f}{ip}{base:9.2f}{base / wall:10.2f}{rss:9.0f}", flush=True)
+        sort = (events, rss) if events is not None else sort
+    return sort
+
+
+def report_growth(sorts: list[tuple[int, float]]) -> None:
+    """Peak memory of ``sort`` against the event count: flat when it does not grow with the file."""
+    (n0, m0), (n1, m1) = min(sorts), max(sorts)
+    if n1 > n0:
+        print(f"\nsort peak MB: {m0:.0f} at {n0:,} events, {m1:.0f} at {n1:,}: "
+              f"{(m1 - m0) / (n1 - n0) * 1e6:+.0f} MB per 10^6 events ({m1 / m0:.2f}x for {n1 / n0:.1f}x the events)")
 
 
 def main() -> None:
@@ -247,8 +260,9 @@ def main() -> None:
           f"{platform.processor() or platform.machine()}, {os.cpu_count()} cores, "
           f"load average {os.getloadavg()[0]:.1f}", flush=True)
     with tempfile.TemporaryDirectory(dir=args.workdir) as tmp:
-        for seconds in lengths:
-            report(seconds, args.channels, one_length(Path(tmp), seconds, args.channels))
+        sorts = [report(seconds, args.channels, one_length(Path(tmp), seconds, args.channels)) for seconds in lengths]
+    if len(sorts) > 1:
+        report_growth(sorts)
     print("\nplain/cmd > 1: the command is faster than the plain baseline; peak MB: max RSS of the command.")
 
 

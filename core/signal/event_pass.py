@@ -169,14 +169,20 @@ def detect_with_features(recording: Recording, params: Params, progress: Progres
 
     stream_chunks(det, work, spread_order(len(bounds)), collect, progress, cancel, "detecting and cutting")
     bases.finish()
-    return _assemble(det, sorted(done, key=lambda c: c.index), feature_names(sp.n_pcs, local), bases)
+    chunks = sorted(done, key=lambda c: c.index)
+    done.clear()
+    return _assemble(det, chunks, feature_names(sp.n_pcs, local), bases)
 
 
 def _assemble(det: BlockDetector, chunks: list[_Chunk], names: list[str],
               bases: _Bases) -> tuple[EventTable, Features]:
+    """The event table and features of the chunks (file order); ``chunks`` is emptied on the way, so
+    that their arrays are freed before the features are put in time order."""
     table, order = det.assemble([c.cols for c in chunks])
     feats = np.concatenate([c.feats for c in chunks]) if chunks else np.zeros((0, len(names)), dtype=np.float32)
-    return table, Features(feats[order], names, {g: b for g, b in enumerate(bases.basis) if b is not None})
+    chunks.clear()
+    bases_of = {g: b for g, b in enumerate(bases.basis) if b is not None}
+    return table, Features(feats if order is None else feats[order], names, bases_of)
 
 
 def _rows(cols: EventColumns, rows: np.ndarray) -> EventColumns:

@@ -48,6 +48,11 @@ from rigside.core.signal.snippets import align_subsample, peak_offset, snippet_w
 SCALE_RANGE = (0.6, 1.6)
 """Amplitude scale a template may take when fitted to a found spike (common practice, no source)."""
 
+FIT_BATCH = 2048
+"""Finds of a group held (with their residual windows and snippets) until they are fitted together:
+bounds the pass's memory whatever the file length, and is large enough that the fit's cost per call
+does not count."""
+
 
 @dataclass
 class Recovered:
@@ -64,7 +69,7 @@ class Recovered:
 
 @dataclass
 class _Found:
-    """One chunk's finds in one group (fields as in :class:`Recovered`, ``moved_unit`` for every find)."""
+    """One batch of fitted finds of one group (fields as in :class:`Recovered`, ``moved_unit`` for every find)."""
 
     events: EventColumns
     unit: np.ndarray
@@ -127,7 +132,9 @@ def recover_overlaps(recording: Recording, events: EventTable, features: Feature
     read, column = _read_channels(groups, recording.n_channels)
     thr = thresholds_sigma(params, events.sigma_uv)
     sigma = np.asarray(events.sigma_uv, dtype=np.float64)
-    found: list[list] = [[] for _ in groups]
+    n_features = features.values.shape[1]
+    batches = _Batches(len(groups), lambda gi, finds: _fit_group(
+        groups[gi], finds, events, template, dead, (before, after), params, n_features, rate))
     done = [0]
 
     def work(i: int, _: int) -> list:
@@ -149,22 +156,46 @@ def recover_overlaps(recording: Recording, events: EventTable, features: Feature
                     shift[m], events.amplitude_sigma[ev[m]], g.scaled.astype(np.float32),
                     g.slopes.astype(np.float32), before, after, dead, POLARITY_CODES[params.detect.polarity],
                     params.overlaps.min_share)
-                out.append((gi, lo + r, col, env, ev[m][near], shift[m][near], win, snip))
+                out.append((gi, (lo + r, col, env, ev[m][near], shift[m][near], win, snip)))
         return out
 
     def collect(part: list) -> None:
-        for item in part:
-            found[item[0]].append(item[1:])
+        for gi, finds in part:
+            batches.add(gi, finds)
         done[0] += 1
         if done[0] % GIVE_BACK_EVERY == 0:
             give_back()
         report(progress, done[0] / len(busy), "looking for overlapping spikes")
 
     run_bounded(work, [(int(i), 0) for i in busy], params.run.workers, collect, cancel)
-    n_features = features.values.shape[1]
-    parts = [_fit_group(g, [np.concatenate(x) for x in zip(*found[gi])], events, template, dead, (before, after),
-                        params, n_features, rate) for gi, g in enumerate(groups) if found[gi]]
-    return _assemble(parts, n_features, dead, assignments)
+    return _assemble(batches.finish(), n_features, dead, assignments)
+
+
+class _Batches:
+    """Per group, the candidate finds (with their residual windows and snippets) held until
+    :data:`FIT_BATCH` of them are, then fitted together by ``fit(group index, finds)``; only the
+    fitted finds (event columns, units, features) are kept."""
+
+    def __init__(self, n_groups: int, fit) -> None:
+        self.pending: list[list[tuple]] = [[] for _ in range(n_groups)]
+        self.held = np.zeros(n_groups, np.int64)
+        self.fit, self.parts = fit, []
+
+    def add(self, gi: int, finds: tuple) -> None:
+        self.pending[gi].append(finds)
+        self.held[gi] += len(finds[0])
+        if self.held[gi] >= FIT_BATCH:
+            self._fit(gi)
+
+    def _fit(self, gi: int) -> None:
+        finds = tuple(np.concatenate(x) for x in zip(*self.pending[gi]))
+        self.pending[gi], self.held[gi] = [], 0
+        self.parts.append(self.fit(gi, finds))
+
+    def finish(self) -> list[_Found]:
+        for gi in np.flatnonzero(self.held):
+            self._fit(int(gi))
+        return self.parts
 
 
 def _checked(events: EventTable, features: Features, assignments: np.ndarray) -> np.ndarray:
@@ -225,9 +256,10 @@ def _groups(recording: Recording, events: EventTable, features: Features, assign
     return out
 
 
-def _fit_group(g: _Group, finds: list[np.ndarray], events: EventTable, template: np.ndarray, dead: int,
+def _fit_group(g: _Group, finds: tuple[np.ndarray, ...], events: EventTable, template: np.ndarray, dead: int,
                window: tuple[int, int], params: Params, n_features: int, rate: float) -> _Found:
-    """Pair fits, the one-spike-per-dead-time rule and features of one group's candidate finds."""
+    """Pair fits, the one-spike-per-dead-time rule and features of candidate finds of one group (each
+    find on its own: the finds of one chunk give the same rows as those of the whole file at once)."""
     sample, col, env, partner, shift_e, x, snip = finds
     before, after = window
     mid = before + dead

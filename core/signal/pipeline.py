@@ -143,15 +143,23 @@ class BlockDetector:
         chunk = max(int(self.params.run.chunk_s * self.recording.rate_hz), 4 * self.margin)
         return chunk_bounds(self.recording.n_samples, chunk)
 
-    def assemble(self, parts: list[EventColumns]) -> tuple[EventTable, np.ndarray]:
+    def assemble(self, parts: list[EventColumns]) -> tuple[EventTable, np.ndarray | None]:
         """The event table of the chunks' events (given in file order), sorted by time, and the
-        order that sorts their concatenation."""
+        order that sorts their concatenation (``None`` when it is already sorted). Each column is
+        joined and sorted on its own, so the table is never held twice."""
         rec = self.recording
         names = (*COLUMNS, *POSITION_COLUMNS) if rec.positions is not None else tuple(COLUMNS)
-        cols = {name: np.concatenate([getattr(p, name) for p in parts]) if parts else np.empty(0)
-                for name in names}
+
+        def joined(name: str) -> np.ndarray:
+            return np.concatenate([getattr(p, name) for p in parts]) if parts else np.empty(0)
+
+        cols = {"sample": joined("sample"), "group": joined("group")}
         order = np.lexsort((cols["group"], cols["sample"]))
-        cols = {k: v[order] for k, v in cols.items()}
+        if np.all(order[1:] > order[:-1]):
+            order = None
+        for name in names:
+            v = cols[name] if name in cols else joined(name)
+            cols[name] = v if order is None else v[order]
         table = EventTable(**cols, rate_hz=rec.rate_hz, n_samples=rec.n_samples, sigma_uv=self.sigma,
                            floor_sigma=self.floor, polarity=self.params.detect.polarity, excluded=self.excluded)
         return table, order

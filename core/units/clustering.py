@@ -25,6 +25,7 @@ group, clusters are numbered by decreasing mean peak magnitude.
 
 from __future__ import annotations
 
+from collections.abc import Iterator
 from concurrent.futures import ProcessPoolExecutor
 from multiprocessing import get_all_start_methods, get_context
 
@@ -219,21 +220,22 @@ def _group_rows(group: np.ndarray, artefact: np.ndarray, todo: list[int]) -> lis
 
 
 def _tasks(busy: list[int], cut: dict, rows_of: list[np.ndarray], todo: list[int], features: np.ndarray,
-           channel: np.ndarray | None, time_s: np.ndarray | None, params: ClusterParams) -> list[tuple]:
-    """The :func:`_cluster_group` arguments of every region of every busy group; a group of one region
-    draws the group's own seed stream, the regions of a probe group ``group * REGION_STREAMS + k``."""
+           channel: np.ndarray | None, time_s: np.ndarray | None, params: ClusterParams) -> Iterator[tuple]:
+    """The :func:`_cluster_group` arguments of every region of every busy group, each cut out only when
+    it is taken (the pool holds a few at a time, not a copy of every event's features); a group of one
+    region draws the group's own seed stream, the regions of a probe group ``group * REGION_STREAMS + k``."""
     def pick(col, rows):
         return None if col is None else np.asarray(col)[rows]
-    return [((i, k), features[rows_of[i][r]], pick(channel, rows_of[i][r]), params,
+    return (((i, k), features[rows_of[i][r]], pick(channel, rows_of[i][r]), params,
              todo[i] if cut[i][1] is None else todo[i] * REGION_STREAMS + k, pick(time_s, rows_of[i][r]))
-            for i in busy for k, r in enumerate(cut[i][0])]
+            for i in busy for k, r in enumerate(cut[i][0]))
 
 
-def _run_tasks(tasks: list, workers: int, on_result, cancel: CancelFn) -> None:
-    """Cluster the tasks (:func:`_cluster_group` arguments) in worker processes, results in order."""
-    if workers > 1 and len(tasks) > 1:
-        processes = ProcessPoolExecutor(min(workers, len(tasks)), mp_context=get_context(WORKER_START))
-        run_bounded(_cluster_group, iter(tasks), workers, on_result, cancel, pool=processes)
+def _run_tasks(tasks: Iterator[tuple], n_tasks: int, workers: int, on_result, cancel: CancelFn) -> None:
+    """Cluster the ``n_tasks`` tasks (:func:`_cluster_group` arguments) in worker processes, results in order."""
+    if workers > 1 and n_tasks > 1:
+        processes = ProcessPoolExecutor(min(workers, n_tasks), mp_context=get_context(WORKER_START))
+        run_bounded(_cluster_group, tasks, workers, on_result, cancel, pool=processes)
     else:
         for task in tasks:
             check(cancel)
@@ -325,6 +327,7 @@ def first_pass_assignments(group: np.ndarray, artefact: np.ndarray, features: np
         report(progress, state["done"] / max(1, len(busy)), f"clustered group {g}")
 
     report(progress, 0.0, "clustering groups")
-    _run_tasks(_tasks(busy, cut, rows_of, todo, features, channel, time_s, params), workers, region_done, cancel)
+    _run_tasks(_tasks(busy, cut, rows_of, todo, features, channel, time_s, params),
+               sum(len(cut[i][0]) for i in busy), workers, region_done, cancel)
     report(progress, 1.0, "clustering done")
     return out, unit_group

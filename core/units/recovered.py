@@ -45,10 +45,14 @@ def with_recovered(events: EventTable, features: Features, sorting: Sorting,
         raise RigsideError("recovered events join a first pass of detected events without positions, got "
                            "a table with positions or recovered events, or a curated sorting")
     n, m = len(events), len(found.unit)
-    cols = {c: np.concatenate([getattr(events, c), getattr(found.events, c)]) for c in COLUMNS}
-    order = np.lexsort((cols["group"], cols["sample"]))          # stable: detected rows keep their order
+
+    def joined(c: str) -> np.ndarray:
+        return np.concatenate([getattr(events, c), getattr(found.events, c)])
+
+    order = np.lexsort((joined("group"), joined("sample")))      # stable: detected rows keep their order
+    cols = {c: joined(c)[order] for c in COLUMNS}                # one column at a time: one copy of the table
     flag = np.r_[np.zeros(n, bool), np.ones(m, bool)]
-    table = EventTable(**{c: v[order] for c, v in cols.items()}, recovered=flag[order], rate_hz=events.rate_hz,
+    table = EventTable(**cols, recovered=flag[order], rate_hz=events.rate_hz,
                        n_samples=events.n_samples, sigma_uv=events.sigma_uv.copy(), floor_sigma=events.floor_sigma,
                        polarity=events.polarity, excluded=dict(events.excluded))
     table.check()
