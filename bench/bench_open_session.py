@@ -84,11 +84,14 @@ assert win.wait_idle(600) and win.last_error is None, win.last_error
 poll()
 win.repaint()
 marks["complete_s"] = time.perf_counter() - t0
-print(json.dumps(marks))
+print(json.dumps(marks), flush=True)
 win.close()
+from rigside.cli.process_end import end_process
+end_process(0)
 """
 """The session in the window, times from the start of the process: window shown, first paint (traces and
-threshold of the stored events), every unit's quality numbers, complete (no job left)."""
+threshold of the stored events), every unit's quality numbers, complete (no job left); then the process
+ends as the ``rigside`` program ends it (the "end" figure: process time after complete)."""
 
 
 BASELINE = """
@@ -193,7 +196,8 @@ def session_runs(a, work: Path, rigside: list[str], rec: Path, session: Path, mo
         marks = {k: spread([r[2][k] for r in runs]) for k in ("window_s", "first_paint_s", "numbers_s", "complete_s")}
         print(f"{label} in the window (from process start): window {marks['window_s']} s, first paint "
               f"{marks['first_paint_s']} s, quality numbers {marks['numbers_s']} s, complete {marks['complete_s']} s, "
-              f"process {spread([r[0] for r in runs])} s, peak {spread([r[1] for r in runs], 0)} MB; ratio to "
+              f"end {spread([r[0] - r[2]['complete_s'] for r in runs])} s, process {spread([r[0] for r in runs])} s, "
+              f"peak {spread([r[1] for r in runs], 0)} MB; ratio to "
               f"baseline {spread([r[0] / b[0] for r, b in zip(runs, base)])}")
 
 

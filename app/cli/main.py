@@ -55,5 +55,13 @@ def main(argv: list[str] | None = None) -> int:
         return EXIT_CANCELLED
 
 
+def run() -> None:
+    """The ``rigside`` program (its console script and ``python -m rigside``): :func:`main`, then the
+    end of the process (quick after a window, :mod:`rigside.cli.process_end`)."""
+    code = main()
+    from rigside.cli.process_end import end_process
+    end_process(code)
+
+
 if __name__ == "__main__":
-    sys.exit(main())
+    run()

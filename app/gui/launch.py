@@ -69,9 +69,9 @@ def _render(win: MainWindow, target: str | None, open_target: Callable[[], bool]
     from rigside.gui.screenshot import capture
     win.units.files.check_content = False
     win.resize(1600, 1000)
-    win.show()
-    QApplication.processEvents()    # the window exposed once with its backing store
     win.setUpdatesEnabled(False)    # no picture wanted until the window is complete: painted once, at capture
+    win.show()
+    QApplication.processEvents()    # the window exposed and laid out once (not painted)
     code = 0
     if target is not None:
         if not open_target():
