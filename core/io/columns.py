@@ -25,7 +25,8 @@ def _take_columns(block, columns):
 
 
 def take_channels(block: np.ndarray, channels: np.ndarray | None) -> np.ndarray:
-    """``block[:, channels]`` as a new C-contiguous array (``block`` itself when ``channels`` is None).
+    """``block[:, channels]`` as a C-contiguous array (``block`` itself when ``channels`` is None or
+    names every column in order, a new array otherwise).
 
     Parameters
     ----------
@@ -41,4 +42,6 @@ def take_channels(block: np.ndarray, channels: np.ndarray | None) -> np.ndarray:
         raise IndexError(f"channel index must lie within the block's {block.shape[1]} channels, "
                          f"got {int(cols.min())}..{int(cols.max())}")
     cols = cols % max(1, block.shape[1])
+    if len(cols) == block.shape[1] and np.array_equal(cols, np.arange(len(cols))):
+        return np.ascontiguousarray(block)  # every column in order: nothing to select
     return _take_columns(np.ascontiguousarray(block), cols)

@@ -23,6 +23,7 @@ from rigside.core.io.h5image import write_h5
 from rigside.core.io.h5safe import read_verified
 from rigside.core.io.recording import Recording
 from rigside.core.params import Params
+from rigside.core.preload import preload
 from rigside.core.progress import CancelFn, ProgressFn, check, report
 from rigside.core.quality.stored_numbers import compute_numbers, numbers_to_store, table_rows
 from rigside.core.signal.event_pass import detect_with_features
@@ -160,6 +161,7 @@ def sort_recording(recording: Recording, params: Params, checkpoint: Path | None
     params.validate(recording.rate_hz)
     key = _key(recording, params) if checkpoint is not None else ""
     a, b, c, _ = STAGE_SHARES
+    loading = preload("sklearn.decomposition", "sklearn.cluster")  # PCA fits and k-means, later in the run
     events, features = (None, None)
     if checkpoint is not None and resume:
         events, features = _read_checkpoint(checkpoint, key, recording, params,
@@ -176,6 +178,7 @@ def sort_recording(recording: Recording, params: Params, checkpoint: Path | None
         if checkpoint is not None:
             _write_checkpoint(checkpoint, key, events, features, recording.content_hash)
     report(progress, a + b, "features ready")
+    loading.join()  # before the clustering workers fork
     sorting = first_pass(events, features, params.cluster, cancel=cancel, workers=params.run.workers,
                          progress=lambda f, m: report(progress, a + b + c * f, m))
     if params.overlaps.enabled and recording.positions is None:

@@ -167,7 +167,7 @@ def test_truncated_and_hostile_hdf5(tmp_path):
         open_recording(tmp_path / "rate.h5")
 
 
-@pytest.mark.parametrize("channels", [[3, 0, 5], [1], [5, 5, 0], [-1, 2], []])
+@pytest.mark.parametrize("channels", [[3, 0, 5], [1], [5, 5, 0], [-1, 2], [], [0, 1, 2, 3, 4, 5], [-6, 1, 2, 3, 4, 5]])
 def test_channel_selection_equals_numpy_fancy_indexing(channels):
     # reference: numpy's own fancy indexing of columns
     block = np.arange(7 * 6, dtype=np.int16).reshape(7, 6)
