@@ -19,7 +19,7 @@ from rigside.core.errors import RigsideError, SessionError
 from rigside.core.events import EventTable
 from rigside.core.io.atomic import atomic_copy_bytes, atomic_write, check_not_input, free_backup_path, safe_unlink
 from rigside.core.io.content import content_hash
-from rigside.core.io.h5image import write_h5
+from rigside.core.io.h5image import h5_direct
 from rigside.core.io.h5safe import read_verified
 from rigside.core.io.recording import Recording
 from rigside.core.params import Params
@@ -52,17 +52,19 @@ def _key(recording: Recording, params: Params) -> str:
 
 def _write_checkpoint(path: Path, key: str, events: EventTable, features: Features | None,
                       content: str | None) -> None:
-    def fill(f: h5py.File) -> None:
-        f.attrs["key"] = key
-        f.attrs["content_hash"] = content or ""
-        events.to_h5_group(f.create_group("events"))
-        if features is not None:
-            f.create_dataset("features", data=features.values)
-            f.attrs["feature_names"] = json.dumps(features.names)
-            for g, basis in (features.bases or {}).items():   # the overlap pass of a resumed run needs them
-                f.create_dataset(f"bases/{g}/mean", data=basis.mean_)
-                f.create_dataset(f"bases/{g}/components", data=basis.components_)
-    atomic_write(path, lambda tmp: write_h5(tmp, fill))
+    """The checkpoint, its arrays written uncompressed straight to the file (no copy of them in memory)."""
+    def fill(tmp: Path) -> None:
+        with h5_direct(tmp) as (f, store):
+            f.attrs["key"] = key
+            f.attrs["content_hash"] = content or ""
+            events.to_h5_group(f.create_group("events"), store=store)
+            if features is not None:
+                store(f, "features", features.values)
+                f.attrs["feature_names"] = json.dumps(features.names)
+                for g, basis in (features.bases or {}).items():   # the overlap pass of a resumed run needs them
+                    f.create_dataset(f"bases/{g}/mean", data=basis.mean_)
+                    f.create_dataset(f"bases/{g}/components", data=basis.components_)
+    atomic_write(path, fill)
 
 
 def _read_checkpoint(path: Path, key: str, recording: Recording, params: Params,
