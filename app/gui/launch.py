@@ -71,11 +71,12 @@ def _render(win: MainWindow, target: str | None, open_target: Callable[[], bool]
     win.units.sorting_replaced.connect(lambda: QTimer.singleShot(0, lambda: _show_a_unit(win)))
     win.resize(1600, 1000)
     win.setUpdatesEnabled(False)    # no picture wanted until the window is complete: painted once, at capture
+    opened = target is None or open_target()    # a session is read on a worker while the window is laid out
     win.show()
     QApplication.processEvents()    # the window exposed and laid out once (not painted)
     code = 0
     if target is not None:
-        if not open_target():
+        if not opened:
             print(f"rigside: {win.last_error[1]}", file=sys.stderr)
             code = 2
         elif not win.wait_idle() or win.analysis_outcome != "done" or win.last_error:
