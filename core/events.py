@@ -140,7 +140,6 @@ class EventTable(EventColumns):
     x_um: np.ndarray | None = None
     y_um: np.ndarray | None = None
     recovered: np.ndarray | None = None
-    _by_channel: dict = field(default_factory=dict, repr=False, compare=False)
     _keys: tuple | None = field(default=None, repr=False, compare=False)
     _by_sample: tuple | None = field(default=None, repr=False, compare=False)
 
@@ -206,24 +205,6 @@ class EventTable(EventColumns):
             keep &= ~self.artefact
         return keep
 
-    def _sorted_amplitudes(self, channel: int) -> np.ndarray:
-        """Sorted non-artefact amplitudes of one channel, from a cache built on first use.
-
-        Thread-safe: the cache is built complete in a local dict and then published by one
-        attribute assignment, so another thread sees either no cache or all of it (two threads
-        arriving together may both build it, with equal results).
-        """
-        cache = self._by_channel
-        if not cache:
-            ok = ~self.artefact & self.detected
-            order = np.lexsort((self.amplitude_sigma[ok], self.channel[ok]))
-            ch = self.channel[ok][order]
-            amp = self.amplitude_sigma[ok][order]
-            edges = np.searchsorted(ch, np.arange(self.n_channels + 1))
-            cache = {c: amp[edges[c]:edges[c + 1]] for c in range(self.n_channels)}
-            self._by_channel = cache
-        return cache[channel]
-
     def rows_on(self, channels: np.ndarray, start: int, stop: int) -> np.ndarray:
         """Rows of events on ``channels`` with sample in ``[start, stop)``, by channel, each in time order."""
         found = self._by_sample
@@ -255,9 +236,10 @@ class EventTable(EventColumns):
 
     def count_curve(self, channel: int, thresholds_sigma: np.ndarray) -> np.ndarray:
         """Non-artefact event counts on one channel for many thresholds (sigma)."""
-        amps = self._sorted_amplitudes(channel)
+        keys, edges = self._channel_keys()
+        mine = keys[edges[channel]:edges[channel + 1]]
         t = np.asarray(thresholds_sigma, dtype=np.float32)
-        return len(amps) - np.searchsorted(amps, t, side="left")
+        return len(mine) - np.searchsorted(mine, _channel_amplitude_keys(np.full(t.shape, channel), t), side="left")
 
     def subset(self, keep: np.ndarray) -> "EventTable":
         """A new table holding the rows selected by a mask or index array."""

@@ -52,16 +52,22 @@ def run_window_command(path: str | None, screenshot: str | None = None, options:
     elif headless:
         raise RigsideError("the window needs a display, got none (no DISPLAY or WAYLAND_DISPLAY): run it in a "
                            "desktop session, under `xvfb-run`, or with --screenshot OUT.png")
-    _import_the_engine()
+    _import_the_engine(load_kernels=path is not None or demo)
     from rigside.gui.launch import run_window
     return run_window(path, screenshot=screenshot, recording_options=options, demo=demo, session=session)
 
 
-def _import_the_engine() -> None:
+def _import_the_engine(load_kernels: bool = True) -> None:
     """Import the numeric modules the window uses before Qt: PySide6 hooks the import of every module
     imported after it (it inspects the module for its own feature switches), which cost about a fifth of
-    the window's start-up when numpy, numba, scipy and h5py came after it."""
+    the window's start-up when numpy, numba, scipy and h5py came after it. With ``load_kernels`` (a file is
+    to be opened) numba's one-time set-up is done here too, by loading the filter kernel: that set-up imports
+    some 300 more modules (numba's typing registries, scipy.linalg for BLAS), about 0.1-0.2 s of CPU cheaper
+    before Qt than on the window's worker thread after it, and the first drawing needs it anyway."""
     import rigside.core.audit.run  # noqa: F401
     import rigside.core.quality.unit_table  # noqa: F401
     import rigside.core.signal.features  # noqa: F401
     import rigside.core.units.session_open  # noqa: F401
+    if load_kernels:
+        from rigside.core.signal.filtering import warm_up
+        warm_up()

@@ -51,7 +51,7 @@ def run_window(path: str | None, *, screenshot: str | None = None, recording_opt
 
 def _show_a_unit(win: MainWindow) -> None:
     """In a rendered session, select the unit with the most events among the shown channels, so
-    its quality plots are drawn beside the unit list."""
+    its quality plots are drawn beside the unit list (nothing when a unit is selected already)."""
     ctl = getattr(win, "units", None)
     if ctl is None or ctl.sorting is None or ctl.selection:
         return
@@ -59,7 +59,6 @@ def _show_a_unit(win: MainWindow) -> None:
     shown = [u for u in counts if ctl.sorting.unit(u).group == win.bench.group] or list(counts)
     if shown:
         ctl.set_selection([max(shown, key=counts.get)])
-        win.wait_idle()
 
 
 def _render(win: MainWindow, target: str | None, open_target: Callable[[], bool], screenshot: str) -> int:
@@ -68,13 +67,16 @@ def _render(win: MainWindow, target: str | None, open_target: Callable[[], bool]
     longer than the rest (its content hash is checked when the session is opened to work on)."""
     from rigside.gui.screenshot import capture
     win.units.files.check_content = False
+    # the unit is chosen as soon as the units are in (its waveforms are read while the rest loads)
+    win.units.sorting_replaced.connect(lambda: QTimer.singleShot(0, lambda: _show_a_unit(win)))
     win.resize(1600, 1000)
     win.setUpdatesEnabled(False)    # no picture wanted until the window is complete: painted once, at capture
+    opened = target is None or open_target()    # a session is read on a worker while the window is laid out
     win.show()
     QApplication.processEvents()    # the window exposed and laid out once (not painted)
     code = 0
     if target is not None:
-        if not open_target():
+        if not opened:
             print(f"rigside: {win.last_error[1]}", file=sys.stderr)
             code = 2
         elif not win.wait_idle() or win.analysis_outcome != "done" or win.last_error:
@@ -83,6 +85,7 @@ def _render(win: MainWindow, target: str | None, open_target: Callable[[], bool]
             code = 1
     if code == 0:
         _show_a_unit(win)
+        win.wait_idle()
         win.setUpdatesEnabled(True)
         capture(win, screenshot)
     win.close()

@@ -137,7 +137,7 @@ class AuditPanel(Panel):
         self.table.setSortingEnabled(True)
         self.table.horizontalHeader().sortIndicatorChanged.connect(self._fit_columns)
         self.table.itemSelectionChanged.connect(self._on_row)
-        self.plots = AuditPairPlots(bench)
+        self._plots: AuditPairPlots | None = None   # built when first shown or asked for: see ``plots``
 
         buttons = QHBoxLayout()
         for w in (self.import_button, self.report_button, self.table_button):
@@ -156,7 +156,7 @@ class AuditPanel(Panel):
         lay.addWidget(self.table, 1)
         self.splitter = QSplitter(Qt.Orientation.Horizontal)
         self.splitter.addWidget(left)
-        self.splitter.addWidget(self.plots)
+        self.splitter.addWidget(QWidget())     # the plots' place
         self.splitter.setStretchFactor(0, 4)
         self.splitter.setStretchFactor(1, 5)
         self.splitter.setSizes([800, 1000])
@@ -172,6 +172,23 @@ class AuditPanel(Panel):
         runner.progressed.connect(self._on_progress)
         self._running(AUDIT_LABEL, False)
         self._fill()
+
+    @property
+    def plots(self) -> AuditPairPlots:
+        """The pair plots, built the first time the view is shown or they are asked for (most windows never
+        show an audit, and three plots cost a noticeable part of the window's start)."""
+        if self._plots is None:
+            self._plots = AuditPairPlots(self.bench)
+            sizes = self.splitter.sizes()
+            self.splitter.replaceWidget(1, self._plots).deleteLater()
+            self.splitter.setStretchFactor(1, 5)
+            self.splitter.setSizes(sizes)
+            self._draw_pair()
+        return self._plots
+
+    def showEvent(self, event) -> None:
+        self.plots  # noqa: B018 - built before the view is first drawn
+        super().showEvent(event)
 
     # ---- state ----------------------------------------------------------------------------
     def _on_state(self, text: str) -> None:
@@ -217,8 +234,8 @@ class AuditPanel(Panel):
         self._fit_columns()
         if len(ids):
             self.select_unit(int(ids[0]))
-        else:
-            self.plots.show_pair(None)
+        elif self._plots is not None:
+            self._plots.show_pair(None)
 
     def _fit_columns(self, *_) -> None:
         fit_columns(self.table, {len(TABLE_SPECS) - 1: NOTES_WIDTH})
@@ -239,7 +256,8 @@ class AuditPanel(Panel):
     def _draw_pair(self) -> None:
         pv, r = self.ctl.pair, self.ctl.result
         if pv is None or r is None:
-            self.plots.show_pair(None)
+            if self._plots is not None:     # plots built later start empty
+                self._plots.show_pair(None)
             return
         mp = r.fresh.params.metrics
         self.plots.show_pair(pv, (mp.censored_ms, mp.refractory_ms), self._header(pv, r), int(pv.row["group"]))

@@ -8,6 +8,7 @@ from __future__ import annotations
 
 from typing import Callable
 
+import numpy as np
 from PySide6.QtWidgets import QWidget
 
 from rigside.gui.model import Workbench
@@ -41,3 +42,13 @@ class Panel(QWidget):
         draw, self._pending_draw = self._pending_draw, None
         if draw is not None:
             draw()
+
+
+def highlight_sets(rows_and_colours) -> list[tuple[np.ndarray, tuple]]:
+    """Highlighted event sets as panels keep them: ``(rows as int64, colour)`` per set."""
+    return [(np.asarray(r, dtype=np.int64), c) for r, c in rows_and_colours]
+
+
+def same_highlights(a: list[tuple[np.ndarray, tuple]], b: list[tuple[np.ndarray, tuple]]) -> bool:
+    """True when two lists of highlighted sets hold the same rows in the same colours (nothing to redraw)."""
+    return len(a) == len(b) and all(ca == cb and np.array_equal(ra, rb) for (ra, ca), (rb, cb) in zip(a, b))

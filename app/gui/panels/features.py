@@ -8,7 +8,7 @@ from PySide6.QtGui import QTransform
 from PySide6.QtWidgets import QComboBox, QHBoxLayout, QLabel, QVBoxLayout
 
 from rigside.gui import palette
-from rigside.gui.panels.base import Panel
+from rigside.gui.panels.base import Panel, highlight_sets, same_highlights
 from rigside.gui.panels.scatter import OneStyleScatter
 
 POINT_LIMIT = 20_000
@@ -77,7 +77,10 @@ class FeaturePanel(Panel):
     def highlight(self, rows_and_colours: list[tuple[np.ndarray, tuple]]) -> None:
         """Draw these events (rows of the workbench's event table) on top, one colour per set
         (used to show selected units in one colour each)."""
-        self.highlights = [(np.asarray(r, dtype=np.int64), c) for r, c in rows_and_colours]
+        sets = highlight_sets(rows_and_colours)
+        if same_highlights(sets, self.highlights):
+            return
+        self.highlights = sets
         self._draw()
 
     def _clear(self) -> None:

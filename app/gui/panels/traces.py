@@ -12,7 +12,7 @@ from rigside.core.signal.filtering import BandPass
 from rigside.gui import palette
 from rigside.gui.bindings import CheckBinding
 from rigside.gui.channel_text import channel_list, lane_name, parse_channels
-from rigside.gui.panels.base import Panel
+from rigside.gui.panels.base import Panel, highlight_sets, same_highlights
 from rigside.gui.panels.event_marks import EventMarks
 from rigside.gui.panels.spike_rows import SpikeRows
 from rigside.gui.panels.trace_source import TraceSource
@@ -351,7 +351,10 @@ class TracePanel(Panel):
 
     def highlight(self, rows_and_colours) -> None:
         """Mark these events (rows of the event table) in one colour per set (selected units)."""
-        self.marks.highlights = [(np.asarray(r, dtype=np.int64), c) for r, c in rows_and_colours]
+        sets = highlight_sets(rows_and_colours)
+        if same_highlights(sets, self.marks.highlights):
+            return
+        self.marks.highlights = sets
         self._draw_markers()
 
     def set_spike_rows(self, key: str, rows) -> None:
