@@ -170,7 +170,9 @@ class SplitTest:
     parts' directly estimated misclassification probability (Hennig 2010); ``overlap``:
     Bhattacharyya coefficient of the two fitted parts; ``smaller_part``: the smaller part's share
     of the events; ``parts``: the part (0 or 1) of every event, as accepting the split makes them;
-    ``first_pass_splits``: the first pass would split on these numbers.
+    ``first_pass_splits``: the first pass would split on these numbers; ``outliers``: events left
+    out of the fits (the first fit's smaller part was under
+    :data:`~rigside.core.units.refine.OUTLIER_PART`; the first pass does not refit so).
     """
 
     delta_bic_per_event: float
@@ -179,13 +181,16 @@ class SplitTest:
     smaller_part: float
     parts: np.ndarray
     first_pass_splits: bool
+    outliers: int = 0
 
 
 def split_test(features: np.ndarray, channel: np.ndarray | None, params: ClusterParams,
                stream: int = 0, group_events: int = 0) -> SplitTest | None:
     """One against two full-covariance Gaussians on a unit's features (all columns), started from
-    k-means and from its two main channels, exactly as the first pass tests its clusters and as
-    accepting a split suggestion (:class:`~rigside.core.units.operations.SplitInTwo`) parts it;
+    k-means and from its two main channels, as the first pass tests its clusters (but refitted
+    without the far events when the first fit's smaller part is only those, see
+    :func:`~rigside.core.units.clustering.unit_two_parts`), and exactly as accepting a split
+    suggestion (:class:`~rigside.core.units.operations.SplitInTwo`) parts it;
     ``stream`` is the unit id, ``group_events`` the clustered events of its group (for the smallest
     unit size). None when the events are too few or their features constant."""
     test = unit_two_parts(features, channel, params, stream)
@@ -195,4 +200,4 @@ def split_test(features: np.ndarray, channel: np.ndarray | None, params: Cluster
     overlap = bhattacharyya_coefficient(m.means_[0], m.covariances_[0], m.means_[1], m.covariances_[1])
     least = smallest_unit(params, group_events)
     return SplitTest(test.delta_bic_per_event, test.misclassification, overlap, test.smaller_part,
-                     test.second.astype(np.int64), test.splits(params, least))
+                     test.second.astype(np.int64), test.splits(params, least) and not test.outliers, test.outliers)

@@ -40,6 +40,7 @@ from rigside.core.signal.snippets import event_snippets, spread_subsample
 from rigside.core.units.dismissals import DismissSuggestion, dismissed_keys, members_digest, suggestion_key
 from rigside.core.units.operation_base import Operation
 from rigside.core.units.operations import MergeUnits, SplitInTwo
+from rigside.core.units.refine import OUTLIER_PART
 from rigside.core.units.sorting import Sorting
 
 MERGE_EVIDENCE: dict[str, str] = {
@@ -64,6 +65,8 @@ SPLIT_EVIDENCE: dict[str, str] = {
     "second_channel_share": "share of the unit's events detected on its second most frequent channel",
     "own_dip": "refractory_dip of the unit with itself (its autocorrelogram; low: refractory violations)",
     "parts_dip": "refractory_dip between the two fitted parts (low: the parts are not one neuron)",
+    "outliers": "events left out of the fits as far from the unit's one Gaussian, when the first fit's smaller "
+                "part held under 10% (they are assigned all the same) [events]",
 }
 SCORE_RULE: dict[str, str] = {
     "waveform_similarity": "(similarity - 0.8) / 0.2",
@@ -218,10 +221,11 @@ def _split(unit: _Unit, channels: np.ndarray, sorting: Sorting, metric: MetricPa
     between = refractory_dip(unit.times[test.parts == 0], unit.times[test.parts == 1], *windows)
     counts = np.sort(np.bincount(channels[unit.rows]))[::-1]
     share = float(counts[1] / counts.sum()) if len(counts) > 1 else 0.0
-    two = test.delta_bic_per_event > 0 and test.smaller_part >= 0.1
+    two = test.delta_bic_per_event > 0 and test.smaller_part >= OUTLIER_PART
     ev = {"delta_bic_per_event": test.delta_bic_per_event, "part_overlap": test.overlap,
           "misclassification": test.misclassification, "smaller_part": test.smaller_part,
-          "second_channel_share": share, "own_dip": own.dip.value, "parts_dip": between.dip.value}
+          "second_channel_share": share, "own_dip": own.dip.value, "parts_dip": between.dip.value,
+          "outliers": float(test.outliers)}
     score = _score([_part(1 - 2 * test.overlap) if two else 0.0, _part(2 * share), _part(2 - 2 * own.dip.value),
                     _part(2 - 2 * between.dip.value)])
     notes = tuple(f"{what}: {r}" for what, r in (("own", own.dip.reason), ("parts", between.dip.reason)) if r)

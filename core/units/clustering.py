@@ -37,7 +37,15 @@ from rigside.core.progress import CancelFn, ProgressFn, check, report, run_bound
 from rigside.core.signal.chunk_pool import single_threaded_pools
 from rigside.core.units.em import Mixture, warm_up
 from rigside.core.units.mixture import fit_mixture, merge_components
-from rigside.core.units.refine import TwoPartTest, absorb_fragments, smallest_unit, split_clusters, two_part_test
+from rigside.core.units.refine import (
+    OUTLIER_PART,
+    TwoPartTest,
+    absorb_fragments,
+    smallest_unit,
+    split_clusters,
+    trimmed_two_part_test,
+    two_part_test,
+)
 from rigside.core.units.regions import join_regions, region_cores, region_rows
 from rigside.core.units.sorting import NO_UNIT
 
@@ -146,8 +154,12 @@ def unit_two_parts(features: np.ndarray, channel: np.ndarray | None, params: Clu
 
     The features are standardised as a group's are (z-scores of a seeded subsample); the
     subsample and the fits' random state come from ``params.seed`` and ``stream`` (the unit id),
-    so the same unit gives the same parts every time. None when the events are fewer than two
-    or their features constant.
+    so the same unit gives the same parts every time. When the smaller part holds less than
+    :data:`~rigside.core.units.refine.OUTLIER_PART` of the events (a few far events rather than a
+    second unit), the test is run again without the outlying events
+    (:func:`~rigside.core.units.refine.trimmed_two_part_test`), and that result is kept when two
+    parts win it and the smaller holds at least that share. None when the events are fewer than
+    two or their features constant.
     """
     x = np.asarray(features)
     n = len(x)
@@ -159,8 +171,14 @@ def unit_two_parts(features: np.ndarray, channel: np.ndarray | None, params: Clu
     scaling = _scaling(x, fit_rows)
     if not scaling[2].any():
         return None
+    z = _z(x, scaling)
     with single_threaded_pools():
-        return two_part_test(_z(x, scaling), channel, params, rng)
+        test = two_part_test(z, channel, params, rng)
+        if test.smaller_part >= OUTLIER_PART:
+            return test
+        retry = trimmed_two_part_test(z, channel, params, rng)
+    return retry if retry is not None and retry.delta_bic_per_event > 0 and retry.smaller_part >= OUTLIER_PART \
+        else test
 
 
 def _search(zf: np.ndarray, params: ClusterParams, random_state: int, forced: int | None) -> Mixture:

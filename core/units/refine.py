@@ -51,6 +51,10 @@ from rigside.core.units.refractory import refractory_gap
 SECOND_CHANNEL_SHARE = 0.1
 """Share of a cluster's events a second main channel must hold to start a split from the channels."""
 
+OUTLIER_PART = 0.1
+"""A part of a split test holding less than this share of a unit's events is taken for its outliers
+when the unit is weighed for a split in curation (:func:`trimmed_two_part_test`)."""
+
 
 def smallest_unit(params: ClusterParams, n_group: int) -> int:
     """Fewest events a first-pass unit of a group of ``n_group`` clustered events may have."""
@@ -170,7 +174,8 @@ class TwoPartTest:
     favours two; Schwarz 1978, Ann. Stat. 6:461-464); ``misclassification``: the two parts'
     directly estimated misclassification probability (:func:`~rigside.core.units.mixture.misclassification`);
     ``second``: mask of the events in the second part; ``mixture``: the two-part fit;
-    ``from_channels``: the fit kept was started from the two main channels.
+    ``from_channels``: the fit kept was started from the two main channels; ``outliers``: events
+    left out of the fits (:func:`trimmed_two_part_test`), assigned by the two-part fit all the same.
     """
 
     delta_bic_per_event: float
@@ -178,6 +183,7 @@ class TwoPartTest:
     second: np.ndarray
     mixture: Mixture
     from_channels: bool
+    outliers: int = 0
 
     @property
     def smaller_part(self) -> float:
@@ -230,3 +236,26 @@ def two_part_test(z: np.ndarray, channel: np.ndarray | None, params: ClusterPara
     two = fits[best]
     return TwoPartTest((one.bic(zf) - bics[best]) / len(zf), float(misclassification(two.predict_proba(zf))[0, 1]),
                        two.predict(z) == 1, two, best == 1)
+
+
+def trimmed_two_part_test(z: np.ndarray, channel: np.ndarray | None, params: ClusterParams,
+                          rng: np.random.Generator) -> TwoPartTest | None:
+    """:func:`two_part_test` on the events one Gaussian explains, every event assigned by its fit.
+
+    The events whose squared Mahalanobis distance to the mean and covariance of all of them is
+    beyond the ``fragment_fit`` quantile of the chi-square distribution (as many degrees of
+    freedom as features; the rule of :func:`absorb_fragments`) are left out of the fits: a few
+    far events otherwise draw the second component to themselves, and two units that look alike
+    stay one. None when fewer than two events are left.
+    """
+    from scipy.stats import chi2
+
+    d = z - z.mean(axis=0)
+    cov = np.atleast_2d(np.cov(d, rowvar=False)) + 1e-6 * np.eye(z.shape[1])
+    d2 = np.einsum("ij,ij->i", d, np.linalg.solve(cov, d.T).T)
+    keep = d2 <= chi2.ppf(params.fragment_fit, z.shape[1])
+    if keep.sum() < 2:
+        return None
+    test = two_part_test(z[keep], None if channel is None else channel[keep], params, rng)
+    return TwoPartTest(test.delta_bic_per_event, test.misclassification, test.mixture.predict(z) == 1,
+                       test.mixture, test.from_channels, int((~keep).sum()))

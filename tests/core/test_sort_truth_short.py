@@ -14,9 +14,6 @@ import pytest
 
 from rigside.core.io.recording import open_recording
 from rigside.core.params import Params
-from rigside.core.quality.matching import shared_spike_matrix
-from rigside.core.quality.metric_settings import metric_settings
-from rigside.core.quality.suggestions import suggest
 from rigside.core.runs.sort import sort_recording
 from rigside.core.synthetic.settings import SynthSettings
 from rigside.core.synthetic.sorting_score import score_sorting
@@ -55,18 +52,3 @@ def test_per_unit_agreement_and_unit_count_against_the_truth(sorted_short):
     # measured: 11 units for 12 true ones, no false unit or fragment (the targets: +-2, at most 1)
     assert abs(s.found_units - len(s.true_ids)) <= 2
     assert s.false_units + s.fragments <= 1
-
-
-def test_the_look_alike_pair_appears_among_the_suggestions(sorted_short):
-    params, events, sorting, truth = sorted_short
-    pair = sorted(u for u, kind in truth.unit_kind.items() if kind == "look-alike")
-    assert len(pair) == 2
-    a = sorting.assignments
-    kept = a >= 0
-    ids_t, ids_f, m = shared_spike_matrix(truth.sample, truth.unit, events.sample[kept], a[kept],
-                                          0.0005 * events.rate_hz)
-    holder = [int(ids_f[m[np.searchsorted(ids_t, u)].argmax()]) for u in pair]
-    found = {(x.kind, x.units) for x in suggest(events, sorting, metric_settings(params), cluster=params.cluster)}
-    # one unit holding both is a split to weigh; two units are a merge to weigh
-    wanted = ("split", (holder[0],)) if holder[0] == holder[1] else ("merge", tuple(sorted(holder)))
-    assert wanted in found, (holder, sorted(found))
