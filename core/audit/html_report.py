@@ -41,6 +41,8 @@ SUMMARY = ("unit", "n_spikes", "matched_fraction", "closest_fresh_unit", "overla
 DETAIL = ("group", "main_channel", "peak_offset_ms", "closest_fresh_label", "closest_fresh_spikes",
           "shared_spikes", "spread_over", "rate_hz", "isi_violations", "contamination_poisson",
           "l_ratio", "missed_fraction", "presence_ratio", "amplitude_slope_uv_per_min", "quality_flags")
+PLACE = ("x_um", "y_um", "drift_um_per_min")
+"""Detail rows on a probe (the table has positions there)."""
 STYLE = """body{font-family:sans-serif;margin:24px;color:#222;max-width:1200px}
 table{border-collapse:collapse;font-size:12px}td,th{border:1px solid #ccc;padding:2px 6px;text-align:right}
 th{background:#f0f0f0}td.t{text-align:left}.caution{background:#fff6e0;border:1px solid #e0c080;padding:8px}
@@ -145,7 +147,8 @@ def _unit_section(result: AuditResult, i: int, plots: str) -> str:
     other = result.fresh_quality(best) if best is not None else {}
     facts = "<tr><th></th><th>imported unit</th><th>closest fresh unit</th></tr>" + "".join(
         f"<tr><th>{escape(c)}</th><td class='t'>{_value(row[c])}</td>"
-        f"<td class='t'>{_value(other[c]) if c in other else ''}</td></tr>" for c in DETAIL)
+        f"<td class='t'>{_value(other[c]) if c in other else ''}</td></tr>"
+        for c in (*DETAIL, *(k for k in PLACE if k in row)))
     match = f"closest fresh unit {best}" if best is not None else "no fresh unit shares its spikes"
     return (f'<div class="unit" id="u{unit}"><h3>Imported unit {escape(result.unit_name(unit))} ({match})</h3>'
             f'<p>{escape(str(row["notes"]))}</p><div>{plots}</div><table>{facts}</table></div>')

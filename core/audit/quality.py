@@ -90,7 +90,8 @@ def imported_quality(recording: Recording, params: Params, spikes: SpikeTrains,
                      placements: dict[int, Placement], events: EventTable, free: np.ndarray,
                      metric_params: MetricParams | None = None, progress: ProgressFn = None,
                      cancel: CancelFn = None,
-                     separation_events: int = SEPARATION_EVENTS) -> tuple[dict[str, np.ndarray], np.ndarray]:
+                     separation_events: int = SEPARATION_EVENTS,
+                     matched: np.ndarray | None = None) -> tuple[dict[str, np.ndarray], np.ndarray]:
     """Quality table of the imported units and the amplitude of every imported spike.
 
     Parameters
@@ -107,6 +108,11 @@ def imported_quality(recording: Recording, params: Params, spikes: SpikeTrains,
         Settings of the quality metrics.
     separation_events
         Most events per group for isolation distance and L-ratio.
+    matched
+        On a probe (events with positions), the re-detected event each imported spike is matched
+        to (-1: none, in the order of ``spikes``): a matched spike takes that event's estimated
+        position, the others the position of their unit's main site. The table then has the
+        position and drift columns (:data:`~rigside.core.quality.unit_position.POSITION_COLUMNS`).
 
     Returns
     -------
@@ -138,9 +144,11 @@ def imported_quality(recording: Recording, params: Params, spikes: SpikeTrains,
     sigma = events.sigma_uv[channel]
     amp_sigma = np.where(sigma > 0, np.abs(amp) / np.where(sigma > 0, sigma, 1.0), 0.0)
     thr = metric_thresholds(params, events.sigma_uv)
+    where = _positions(recording, events, main[code], free, matched)
     rows = unit_metrics_table(sample / recording.rate_hz, unit, recording.duration_s, amp, amp_sigma, channel,
                               events.sigma_uv, thr, None, grp, metric_params, cancel=cancel,
-                              progress=lambda f, m: report(progress, 0.4 + 0.2 * f, m))
+                              progress=lambda f, m: report(progress, 0.4 + 0.2 * f, m),
+                              event_positions=None if where is None else where[order])
     keep = window_mask(sample, grp, recording.n_samples, separation_events)
     sub = EventTable(sample[keep], channel[keep], grp[keep], amp[keep], amp_sigma[keep],
                      np.zeros(int(keep.sum()), bool), rate_hz=recording.rate_hz, n_samples=recording.n_samples,
@@ -160,3 +168,16 @@ def imported_quality(recording: Recording, params: Params, spikes: SpikeTrains,
     rows["unit"] = ids[rows["unit"]]
     report(progress, 1.0, "quality numbers")
     return rows, amp_imp
+
+
+def _positions(recording: Recording, events: EventTable, main: np.ndarray, free: np.ndarray,
+               matched: np.ndarray | None) -> np.ndarray | None:
+    """Position (x_um, y_um) of every imported spike (its matched event's, else its main site's)
+    followed by the free events' own; None off a probe."""
+    if events.x_um is None or recording.positions is None or matched is None:
+        return None
+    own = np.column_stack([events.x_um, events.y_um]).astype(np.float64)
+    imp = recording.positions[main].astype(np.float64)
+    hit = matched >= 0
+    imp[hit] = own[matched[hit]]
+    return np.vstack([imp, own[free]])

@@ -207,21 +207,23 @@ def _check_inputs(recording: Recording, spikes: SpikeTrains, fresh: FreshUnits) 
 
 
 def _detected_support(spikes: SpikeTrains, placements: dict[int, Placement], events: EventTable,
-                      params: Params, tol_samples: float) -> tuple[np.ndarray, np.ndarray]:
-    """Share of each unit's spikes with a detected event of its group nearby, and the
-    indices of detected events no imported spike claims."""
+                      params: Params, tol_samples: float) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Share of each unit's spikes with a detected event of its group nearby, the indices of
+    detected events no imported spike claims, and the event each spike is matched to (-1: none)."""
     det = np.flatnonzero(events.mask(threshold_sigma=thresholds_sigma(params, events.sigma_uv)))
     by_group = {int(g): det[events.group[det] == g] for g in np.unique(events.group[det])}
     claimed = np.zeros(len(events), dtype=bool)
     ids, starts = spikes.bounds()
     share = np.zeros(len(ids))
+    matched = np.full(len(spikes), -1, dtype=np.int64)
     for k, u in enumerate(ids):
         cand = by_group.get(placements[int(u)].group, det[:0])
         a = spikes.times_s[starts[k]:starts[k + 1]] * events.rate_hz
         ia, ib = match_times(a, events.sample[cand], tol_samples)
         share[k] = len(ia) / len(a)
         claimed[cand[ib]] = True
-    return share, det[~claimed[det]]
+        matched[starts[k] + ia] = cand[ib]
+    return share, det[~claimed[det]], matched
 
 
 def run_audit(recording: Recording, spikes: SpikeTrains, fresh: FreshUnits,
@@ -256,7 +258,7 @@ def run_audit(recording: Recording, spikes: SpikeTrains, fresh: FreshUnits,
     bp = BandPass(recording, params.filter)
     placements = place_units(recording, bp, params, spikes, tol_s, settings.waveform_spikes, cancel=cancel,
                              progress=lambda f, m: report(progress, 0.15 * f, m))
-    support, free = _detected_support(spikes, placements, events, params, tol_s * recording.rate_hz)
+    support, free, matched = _detected_support(spikes, placements, events, params, tol_s * recording.rate_hz)
     check(cancel)
     assigned = np.flatnonzero(sorting.assignments != NO_UNIT)
     imp_ids, fresh_ids, matches = shared_spike_matrix(spikes.times_s, spikes.units, events.time_s[assigned],
@@ -268,7 +270,7 @@ def run_audit(recording: Recording, spikes: SpikeTrains, fresh: FreshUnits,
     quality, amplitude = imported_quality(recording, params, spikes, placements, events, free,
                                           metric_settings(params), cancel=cancel,
                                           progress=lambda f, m: report(progress, 0.2 + 0.65 * f, m),
-                                          separation_events=settings.separation_events)
+                                          separation_events=settings.separation_events, matched=matched)
     best = np.full(len(imp_ids), -1)                # column of the closest fresh unit, -1: none shares a spike
     if len(fresh_ids):
         best = np.where(matches.max(axis=1) > 0, overlap.argmax(axis=1), -1)

@@ -3,6 +3,7 @@
 CSV layout (our own, like the unit quality table): ``#`` comment lines first (title, the
 cautions, settings, one line per column with its meaning), then a header row and one row per
 imported unit. Undefined numbers are written ``nan``; an absent closest fresh unit is left empty.
+On a probe the position and drift columns (:data:`PROBE_COLUMNS`) follow.
 """
 
 from __future__ import annotations
@@ -14,6 +15,7 @@ from pathlib import Path
 import numpy as np
 
 from rigside.core.quality.metric_settings import censored_note, metric_settings
+from rigside.core.quality.unit_position import POSITION_COLUMNS
 from rigside.core.quality.unit_table import CAUTION as QUALITY_CAUTION
 from rigside.core.quality.unit_table import COLUMNS as QUALITY_COLUMNS
 from rigside.core.quality.unit_table_io import quality_flag_text, write_described_csv
@@ -52,6 +54,9 @@ QUALITY_PART.update({
     "l_ratio": QUALITY_COLUMNS["l_ratio"] + "; from time windows when the group holds many events",
 })
 ALL_COLUMNS = {**AUDIT_COLUMNS, **QUALITY_PART}
+SPIKE_PLACE = "; a spike's position is that of the re-detected event it matches, else its main site's"
+PROBE_COLUMNS = {k: v + SPIKE_PLACE if k in ("x_um", "y_um") else v for k, v in POSITION_COLUMNS.items()}
+"""Columns after :data:`ALL_COLUMNS` on a recording with site positions (absent on bundles)."""
 TEXT_COLUMNS = frozenset({"closest_fresh_label", "miss_estimate_reason", "spread_over", "notes", "quality_flags"})
 
 
@@ -99,7 +104,7 @@ def audit_rows(imp_ids, fresh_ids, matches, overlap, best, n_imp, n_fresh, suppo
     t["spread_over"] = np.array(spread, dtype=object)
     t["notes"] = np.array(notes, dtype=object)
     t["quality_flags"] = np.array(quality_flag_text(quality), dtype=object)
-    for k in QUALITY_PART:
+    for k in (*QUALITY_PART, *(c for c in PROBE_COLUMNS if c in quality)):
         t[k] = quality[k]
     return t
 
@@ -155,7 +160,8 @@ def write_audit_csv(result, path: str | Path, caution: str) -> Path:
     header = ["rigside audit of an imported sorting",
               f"imported: {result.spikes.source}; compared with: {result.fresh.source}",
               caution, QUALITY_CAUTION, f"settings: {settings}", censored_note(mp)]
-    text = TEXT_COLUMNS | {c for c in ALL_COLUMNS if c.endswith("_reason")}
+    meanings = ALL_COLUMNS | {k: v for k, v in PROBE_COLUMNS.items() if k in t}
+    text = TEXT_COLUMNS | {c for c in meanings if c.endswith("_reason")}
     if result.spikes.names:
         text = text | {"unit"}                     # names as given, guarded like every text cell
-    return write_described_csv(path, header, ALL_COLUMNS, list(ALL_COLUMNS), t, _cell, text)
+    return write_described_csv(path, header, meanings, list(meanings), t, _cell, text)

@@ -18,7 +18,7 @@ from rigside.core.synthetic.truth import write_imperfect_sorting
 from rigside.gui.audit_controller import AUDIT_LABEL
 from rigside.gui.dialogs.audit_import import AuditImportDialog
 from rigside.gui.panels.audit_pair import FRESH, IMPORTED, TRACE_KEY, shown_channels
-from rigside.gui.panels.audit_view import TABLE_SPECS
+from rigside.gui.panels.audit_view import DEPTH_COLUMN, TABLE_SPECS
 from rigside.gui.screenshot import capture, colour_share, pixels
 from rigside.sample_data import demo_path
 from tests.app.units_helpers import cluster_demo
@@ -123,6 +123,7 @@ def check_audit_table(win, panel, counts: dict) -> None:
     headers = [panel.table.horizontalHeaderItem(i).text() for i in range(panel.table.columnCount())]
     assert "closest\nfresh unit" in headers and "overlap\n(Jaccard)" in headers
     assert not any("agree" in h or "best" in h for h in headers)
+    assert panel.table.isColumnHidden(DEPTH_COLUMN)           # no site positions on the demo's bundles
 
 
 def check_stepping_to_a_lone_spike(win, qtbot, panel, r) -> int:

@@ -232,3 +232,67 @@ def test_unit_without_any_match(world):
     assert row["miss_estimate_reason"] and "no fresh unit shares its spikes" in row["notes"]
     html = audit_report_html(res)
     assert "no fresh unit shares" in html and "No fresh unit overlaps (Jaccard) at least 0.05" in html
+
+
+@pytest.fixture(scope="module")
+def probe_world(tmp_path_factory):
+    from rigside.core.synthetic.probe_synth import write_probe_synth
+
+    path = tmp_path_factory.mktemp("audit_probe") / "probe.bin"
+    sc = write_probe_synth(path, seconds=20, sites=64, columns=2, pitch_um=20.0, seed=0)
+    rec = open_recording(path)
+    return sc, rec, first_pass_units(rec, Params())
+
+
+def test_probe_audit_places_imported_units_on_the_probe(probe_world, tmp_path):
+    """On a probe the audit table holds each imported unit's position and drift. Fresh units
+    imported back: every spike matches an event at its time, so the position is the fresh unit
+    table's (median of the events' positions) to a small fraction of the pitch. True units imported
+    from the scenario: along the probe within half the 20 um pitch of the truth where the peak site's
+    neighbourhood is whole (the
+    bound of the unit table's own position test, tests/core/test_probe_ground_truth.py)."""
+    from rigside.core.quality.unit_table import unit_metrics_for_events
+
+    sc, rec, fresh = probe_world
+    ids = [u for u in fresh.sorting.unit_ids() if len(fresh.sorting.events_of(u)) >= 30]
+    times = np.concatenate([fresh.train(u)[0] for u in ids])
+    units = np.concatenate([np.full(len(fresh.train(u)[0]), u) for u in ids])
+    t = run_audit(rec, checked_trains(times, units, "copy"), fresh).table
+    own = unit_metrics_for_events(fresh.events, fresh.sorting.assignments, None, 4.5)
+    at = np.searchsorted(own["unit"], ids)
+    # matching is one-to-one by time within the group, so a spike of a unit within 0.5 ms of another
+    # unit's may take that event's position: measured at most 0.65 um off, a 30th of the pitch
+    np.testing.assert_allclose(t["y_um"], own["y_um"][at], atol=2.0)
+    np.testing.assert_allclose(t["x_um"], own["x_um"][at], atol=2.0)
+
+    noise = float(np.median(fresh.events.sigma_uv))
+    strong = [u for u in range(len(sc.units)) if sc.units[u].amplitude_uv >= 8 * noise]      # SNR >= 8
+    inside = sc.spike_sample < rec.n_samples
+    pick = inside & np.isin(sc.spike_unit, strong)
+    res = run_audit(rec, checked_trains(sc.spike_sample[pick] / rec.rate_hz, sc.spike_unit[pick], "truth"), fresh)
+    ends = rec.positions[:, 1].min() + 50.0, rec.positions[:, 1].max() - 50.0
+    checked = 0
+    for u in strong:
+        true_y = sc.units[u].y_um
+        if ends[0] <= true_y <= ends[1]:
+            assert abs(res.row(u)["y_um"] - true_y) <= 10.0, (u, true_y, res.row(u)["y_um"])
+            checked += 1
+    assert checked >= 8
+    out = write_audit_csv(res, tmp_path / "probe_audit.csv", CAUTION)
+    header = next(line for line in out.read_text().splitlines() if not line.startswith("#")).split(",")
+    assert header[-4:] == ["x_um", "y_um", "drift_um_per_min", "drift_reason"]
+
+
+def test_bundle_audit_has_no_position_columns(audited):
+    _, res = audited
+    assert "y_um" not in res.table and set(res.table) == set(ALL_COLUMNS)
+
+
+def test_probe_audit_report_and_view_show_positions(probe_world):
+    """The report's per-unit facts and the window's audit table carry the position on a probe."""
+    sc, rec, fresh = probe_world
+    u = max(fresh.sorting.unit_ids(), key=lambda k: len(fresh.sorting.events_of(k)))
+    t = fresh.train(u)[0]
+    res = run_audit(rec, checked_trains(t, np.full(len(t), u), "one"), fresh)
+    html = audit_report_html(res)
+    assert "<th>y_um</th>" in html and "<th>drift_um_per_min</th>" in html

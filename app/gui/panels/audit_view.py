@@ -27,7 +27,7 @@ from PySide6.QtWidgets import (
 )
 
 from rigside.core.audit.run import CAUTION
-from rigside.core.audit.table import ALL_COLUMNS
+from rigside.core.audit.table import ALL_COLUMNS, PROBE_COLUMNS
 from rigside.core.numbers import format_number
 from rigside.core.quality.unit_table import CAUTION as QUALITY_CAUTION
 from rigside.gui import palette
@@ -50,8 +50,11 @@ TABLE_SPECS = (
     ("L-ratio", "l_ratio", 1, ".3g"),
     ("SNR", "snr", 1, ".1f"),
     ("presence\n(%)", "presence_ratio", 100, ".0f"),
+    ("depth\nµm", "y_um", 1, ".0f"),
     ("notes", "notes", 1, ""),
 )
+DEPTH_COLUMN = [s[1] for s in TABLE_SPECS].index("y_um")
+"""Shown on a probe only (the audit table has positions there)."""
 UNIT_ROLE = Qt.ItemDataRole.UserRole + 1
 NOTES_WIDTH = 320
 """Widest the notes column is fitted to its notes (pixels); the whole text is in its tooltip."""
@@ -78,7 +81,7 @@ def reason_of(row: dict, key: str) -> str:
 
 def cell(row: dict, key: str, scale: float, fmt: str) -> SortItem:
     """The table cell of one value (text, sort key, tooltip)."""
-    v = row[key]
+    v = row.get(key, math.nan)
     if key == "closest_fresh_unit":
         text = "none" if row["closest_fresh_label"] == "" else f"{int(v)} ({row['closest_fresh_label']})"
         item = SortItem(text, float(v) if text != "none" else math.nan)
@@ -128,7 +131,7 @@ class AuditPanel(Panel):
         self.table = QTableWidget(0, len(TABLE_SPECS))
         self.table.setHorizontalHeaderLabels([s[0] for s in TABLE_SPECS])
         for j, (_, key, _, _) in enumerate(TABLE_SPECS):
-            self.table.horizontalHeaderItem(j).setToolTip(ALL_COLUMNS[key])
+            self.table.horizontalHeaderItem(j).setToolTip((ALL_COLUMNS | PROBE_COLUMNS)[key])
         self.table.verticalHeader().setVisible(False)
         self.table.verticalHeader().setDefaultSectionSize(22)
         self.table.setEditTriggers(QAbstractItemView.EditTrigger.NoEditTriggers)
@@ -219,6 +222,7 @@ class AuditPanel(Panel):
         self.table.clearContents()
         ids = r.imported_ids if r is not None else np.zeros(0, dtype=np.int64)
         self.table.setRowCount(len(ids))
+        self.table.setColumnHidden(DEPTH_COLUMN, r is None or "y_um" not in r.table)
         for i, u in enumerate(ids):
             row = r.row(int(u))
             for j, (_, key, scale, fmt) in enumerate(TABLE_SPECS):
