@@ -109,10 +109,8 @@ def imported_quality(recording: Recording, params: Params, spikes: SpikeTrains,
     separation_events
         Most events per group for isolation distance and L-ratio.
     matched
-        On a probe (events with positions), the re-detected event each imported spike is matched
-        to (-1: none, in the order of ``spikes``): a matched spike takes that event's estimated
-        position, the others the position of their unit's main site. The table then has the
-        position and drift columns (:data:`~rigside.core.quality.unit_position.POSITION_COLUMNS`).
+        On a probe, the event each imported spike is matched to (-1: none; order of ``spikes``): it
+        takes that event's position, else its main site's; the table then has the position columns.
 
     Returns
     -------
