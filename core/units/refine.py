@@ -250,10 +250,8 @@ def trimmed_two_part_test(z: np.ndarray, channel: np.ndarray | None, params: Clu
     """
     from scipy.stats import chi2
 
-    d = z - z.mean(axis=0)
-    cov = np.atleast_2d(np.cov(d, rowvar=False)) + 1e-6 * np.eye(z.shape[1])
-    d2 = np.einsum("ij,ij->i", d, np.linalg.solve(cov, d.T).T)
-    keep = d2 <= chi2.ppf(params.fragment_fit, z.shape[1])
+    _, d2 = partition_mixture(z, np.zeros(len(z), dtype=np.int64), 1).log_densities(z)
+    keep = d2[:, 0] <= chi2.ppf(params.fragment_fit, z.shape[1])
     if keep.sum() < 2:
         return None
     test = two_part_test(z[keep], None if channel is None else channel[keep], params, rng)

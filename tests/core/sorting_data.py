@@ -34,3 +34,26 @@ def make_events(n: int = 6000, n_groups: int = 3, clusters: int = 3, d: int = 5,
                         n_samples=n_samples, sigma_uv=np.full(4 * n_groups, 10.0), floor_sigma=4.0)
     names = [f"f{i}" for i in range(d)]
     return events, features, names, truth
+
+
+def sorted_demo(folder, seconds: float, seed: int):
+    """The demo scenario written to ``folder`` for ``seconds`` with ``seed``, sorted with the default
+    parameters (detection, features, first pass, overlap pass).
+
+    Returns
+    -------
+    params, events, sorting, truth
+    """
+    from rigside.core.io.recording import open_recording
+    from rigside.core.params import Params
+    from rigside.core.runs.sort import sort_recording
+    from rigside.core.synthetic.settings import SynthSettings
+    from rigside.core.synthetic.synth import write_practice
+    from rigside.core.synthetic.truth import load_truth
+
+    path = folder / f"demo{seconds:g}.bin"
+    write_practice(path, SynthSettings(seconds=seconds, seed=seed))
+    rec = open_recording(path)
+    params = Params()
+    events, sorting = sort_recording(rec, params)
+    return params, events, sorting, load_truth(rec.truth_path())

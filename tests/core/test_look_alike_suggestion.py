@@ -12,28 +12,19 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from rigside.core.io.recording import open_recording
-from rigside.core.params import Params
 from rigside.core.quality.matching import shared_spike_matrix
 from rigside.core.quality.metric_settings import metric_settings
 from rigside.core.quality.suggestions import suggest
-from rigside.core.runs.sort import sort_recording
-from rigside.core.synthetic.settings import SynthSettings
-from rigside.core.synthetic.synth import write_practice
-from rigside.core.synthetic.truth import load_truth
 from rigside.core.units.clustering import unit_two_parts
+
+from .sorting_data import sorted_demo
 
 SECONDS, SEED = 60.0, 0
 
 
 @pytest.fixture(scope="module")
 def sorted_minute(tmp_path_factory):
-    path = tmp_path_factory.mktemp("lookalike") / "demo60.bin"
-    write_practice(path, SynthSettings(seconds=SECONDS, seed=SEED))
-    rec = open_recording(path)
-    params = Params()
-    events, sorting = sort_recording(rec, params)
-    return params, events, sorting, load_truth(rec.truth_path())
+    return sorted_demo(tmp_path_factory.mktemp("lookalike"), SECONDS, SEED)
 
 
 def _true_unit_of(events_sample: np.ndarray, truth, units, tol: float) -> np.ndarray:

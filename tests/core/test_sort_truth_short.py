@@ -12,13 +12,9 @@ from __future__ import annotations
 import numpy as np
 import pytest
 
-from rigside.core.io.recording import open_recording
-from rigside.core.params import Params
-from rigside.core.runs.sort import sort_recording
-from rigside.core.synthetic.settings import SynthSettings
 from rigside.core.synthetic.sorting_score import score_sorting
-from rigside.core.synthetic.synth import write_practice
-from rigside.core.synthetic.truth import load_truth
+
+from .sorting_data import sorted_demo
 
 SECONDS, SEED = 20.0, 0
 BIG = 100
@@ -28,12 +24,7 @@ resolve a cluster of a few dozen events among thousands)."""
 
 @pytest.fixture(scope="module")
 def sorted_short(tmp_path_factory):
-    path = tmp_path_factory.mktemp("truth20") / "demo20.bin"
-    write_practice(path, SynthSettings(seconds=SECONDS, seed=SEED))
-    rec = open_recording(path)
-    params = Params()
-    events, sorting = sort_recording(rec, params)
-    return params, events, sorting, load_truth(rec.truth_path())
+    return sorted_demo(tmp_path_factory.mktemp("truth20"), SECONDS, SEED)
 
 
 def test_per_unit_agreement_and_unit_count_against_the_truth(sorted_short):
