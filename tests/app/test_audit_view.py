@@ -14,13 +14,14 @@ from PySide6.QtCore import Qt
 from PySide6.QtWidgets import QDialog, QFileDialog, QTabBar
 
 from rigside.core.audit.views import PairView, UnitView, pair_view
+from rigside.core.numbers import format_number
 from rigside.core.synthetic.truth import write_imperfect_sorting
 from rigside.gui.audit_controller import AUDIT_LABEL
 from rigside.gui.dialogs.audit_import import AuditImportDialog
 from rigside.gui.panels.audit_pair import FRESH, IMPORTED, TRACE_KEY, shown_channels
-from rigside.gui.panels.audit_view import DEPTH_COLUMN, TABLE_SPECS
+from rigside.gui.panels.audit_view import DEPTH_COLUMN, TABLE_SPECS, UNIT_ROLE
 from rigside.gui.screenshot import capture, colour_share, pixels
-from rigside.sample_data import demo_path
+from rigside.sample_data import demo_path, probe_demo_path
 from tests.app.units_helpers import cluster_demo
 
 
@@ -183,7 +184,7 @@ def check_exports(win, tmp_path, path, counts: dict) -> None:
     assert "must" in win.last_error[1]
 
 
-def check_screenshot(win, panel, tmp_path) -> None:
+def check_screenshot(win, panel, tmp_path, name: str = "audit.png") -> None:
     """The audit view across the window's width shows both sides' colours."""
     right = [d for d in win.docks.values()
              if win.dockWidgetArea(d) == Qt.DockWidgetArea.RightDockWidgetArea and d.isVisible()]
@@ -192,7 +193,7 @@ def check_screenshot(win, panel, tmp_path) -> None:
     win.resize(1700, 1250)
     win.resizeDocks([win.docks["audit"]], [820], Qt.Orientation.Vertical)
     try:
-        image = capture(panel, str(tmp_path / "audit.png"))
+        image = capture(panel, str(tmp_path / name))
     finally:
         for d in right:
             d.show()
@@ -200,7 +201,7 @@ def check_screenshot(win, panel, tmp_path) -> None:
     assert colour_share(rgb, IMPORTED, 30) > 0.001 and colour_share(rgb, FRESH, 30) > 0.001
     out = os.environ.get("RIGSIDE_SCREENSHOT_DIR")
     if out:
-        shutil.copy(tmp_path / "audit.png", os.path.join(out, "audit.png"))
+        shutil.copy(tmp_path / name, os.path.join(out, name))
 
 
 def test_bad_spike_files_show_a_message_and_a_first_pass_audit_still_works(demo_window, qtbot, tmp_path):
@@ -287,3 +288,26 @@ def test_wide_groups_show_the_channels_with_the_largest_waveforms():
     pv = PairView(side, None, {})
     # the 8 largest, in recording order (sizes 3, 2, 1 and 0.5 are left out)
     assert list(shown_channels(pv)) == [1, 3, 5, 6, 7, 8, 9, 11]
+
+
+def test_a_probe_audit_shows_each_units_depth(probe_session, qtbot, tmp_path):
+    """On a probe the audit table's depth column is shown and holds the core's unit positions (y_um)."""
+    win = probe_session
+    truth = probe_demo_path().with_name("probe_demo.truth.csv")
+    path = tmp_path / "old_probe.csv"
+    counts = write_imperfect_sorting(truth, path, 0.1, 1)
+    assert win.audit.start(path)
+    wait_audit(win, qtbot)
+    r, panel = win.audit.result, win.audit_panel
+    assert r is not None, win.last_error
+    assert not panel.table.isColumnHidden(DEPTH_COLUMN)
+    assert panel.table.horizontalHeaderItem(DEPTH_COLUMN).text() == "depth\nµm"
+    y_top = float(win.bench.recording.positions[:, 1].max())
+    shown = {int(panel.table.item(i, 0).data(UNIT_ROLE)): panel.table.item(i, DEPTH_COLUMN).text()
+             for i in range(panel.table.rowCount())}
+    assert sorted(shown) == sorted(counts)
+    for u, text in shown.items():
+        y = r.row(u)["y_um"]
+        assert text == (format_number(y) if np.isfinite(y) else "—")
+    assert all(0 <= float(t) <= y_top for t in shown.values() if t != "—")   # on the probe's sites
+    check_screenshot(win, panel, tmp_path, "audit_probe.png")

@@ -40,6 +40,7 @@ from rigside.gui.panels.table_columns import fit_columns
 TABLE_SPECS = (
     ("imported\nunit", "unit", 1, ""),
     ("spikes", "n_spikes", 1, "d"),
+    ("depth\nµm", "y_um", 1, ".0f"),   # beside the unit: on a probe its place is how it is known
     ("backed by\nevents (%)", "matched_fraction", 100, ".1f"),
     ("closest\nfresh unit", "closest_fresh_unit", 1, ""),
     ("overlap\n(Jaccard)", "overlap_jaccard", 1, ".2f"),
@@ -50,7 +51,6 @@ TABLE_SPECS = (
     ("L-ratio", "l_ratio", 1, ".3g"),
     ("SNR", "snr", 1, ".1f"),
     ("presence\n(%)", "presence_ratio", 100, ".0f"),
-    ("depth\nµm", "y_um", 1, ".0f"),
     ("notes", "notes", 1, ""),
 )
 DEPTH_COLUMN = [s[1] for s in TABLE_SPECS].index("y_um")
