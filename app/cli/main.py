@@ -57,7 +57,7 @@ def main(argv: list[str] | None = None) -> int:
 
 def run() -> None:
     """The ``rigside`` program (its console script and ``python -m rigside``): :func:`main`, then the
-    end of the process (quick after a window, :mod:`rigside.cli.process_end`)."""
+    end of the process (quick when nothing can be lost, :mod:`rigside.cli.process_end`)."""
     code = main()
     from rigside.cli.process_end import end_process
     end_process(code)

@@ -1,17 +1,12 @@
-"""The quick end of the process after a window: exit functions run, streams flushed, the exit code kept;
-the normal exit whenever something could still be lost (a running thread, an HDF5 file open for writing)."""
+"""The quick end of the process: exit functions run, streams flushed, the exit code kept (after a window
+and after a headless command); the normal exit whenever something could still be lost (a running thread,
+an HDF5 file or a Python file open for writing)."""
 
 from __future__ import annotations
 
 import os
 import subprocess
 import sys
-import threading
-
-import h5py
-import numpy as np
-
-from rigside.cli.process_end import quick_end_is_safe, window_ran
 
 AFTER_A_WINDOW = """
 import atexit, sys
@@ -34,29 +29,51 @@ def test_the_quick_end_runs_exit_functions_flushes_and_keeps_the_code(tmp_path):
     assert marker.read_text() == "exit functions ran"
 
 
-def test_a_window_ran_only_with_an_application_object(qapp):
-    assert window_ran()
-    probe = "import sys; from rigside.cli.process_end import window_ran; print(window_ran())"
-    out = subprocess.run([sys.executable, "-c", probe], capture_output=True, text=True, check=True, timeout=120)
-    assert out.stdout.strip() == "False"
+def test_a_headless_command_ends_quickly_with_its_output_complete(tmp_path):
+    """`rigside synth` (no window) leaves by the quick end; its files are whole and its code kept."""
+    out_path = tmp_path / "s.bin"
+    out = subprocess.run([sys.executable, "-m", "rigside", "synth", str(out_path), "--seconds", "1", "--channels", "4",
+                          "--seed", "0"], capture_output=True, text=True, timeout=300,
+                         env=dict(os.environ, PYTHONFAULTHANDLER="1"))
+    assert out.returncode == 0, out.stderr
+    assert "->" in out.stdout                                   # its summary line reached the pipe
+    assert out_path.stat().st_size == 30000 * 4 * 2             # 1 s x 4 channels of int16 at 30 kHz
+    bad = subprocess.run([sys.executable, "-m", "rigside", "synth", str(out_path), "--seconds", "-1"],
+                         capture_output=True, text=True, timeout=300)
+    assert bad.returncode == 2 and bad.stderr.count("\n") == 1   # one line, the input error's code
 
 
-def test_an_hdf5_file_open_for_writing_keeps_the_normal_exit(tmp_path):
-    assert quick_end_is_safe()
-    with h5py.File(tmp_path / "w.h5", "w") as f:
-        f["x"] = np.arange(3)
-        assert not quick_end_is_safe()
-    with h5py.File(tmp_path / "w.h5", "r"):   # open for reading only: nothing to lose
-        assert quick_end_is_safe()
+SCENARIOS = """
+import io, sys, threading
+import h5py, numpy as np
+from rigside.cli.process_end import quick_end_is_safe
+seen = [quick_end_is_safe()]
+with h5py.File(sys.argv[1] + "/w.h5", "w") as f:
+    f["x"] = np.arange(3)
+    seen.append(quick_end_is_safe())
+with h5py.File(sys.argv[1] + "/w.h5", "r"):   # open for reading only: nothing to lose
+    seen.append(quick_end_is_safe())
+with open(sys.argv[1] + "/w.txt", "w") as f:
+    f.write("buffered")
+    seen.append(quick_end_is_safe())
+with open(sys.argv[1] + "/w.txt") as f, io.StringIO() as mem:   # read only, or in memory
+    mem.write(f.read())
+    seen.append(quick_end_is_safe())
+release = threading.Event()
+worker = threading.Thread(target=release.wait)
+worker.start()
+seen.append(quick_end_is_safe())
+release.set()
+worker.join()
+seen.append(quick_end_is_safe())
+print(seen)
+"""
 
 
-def test_a_running_thread_keeps_the_normal_exit():
-    release = threading.Event()
-    worker = threading.Thread(target=release.wait)
-    worker.start()
-    try:
-        assert not quick_end_is_safe()
-    finally:
-        release.set()
-        worker.join()
-    assert quick_end_is_safe()
+def test_the_quick_end_waits_for_writers_and_threads(tmp_path):
+    """In a fresh process (a test runner holds files of its own open): an HDF5 file or a Python file open
+    for writing, or a running thread, keeps the normal exit; readers and in-memory streams do not."""
+    out = subprocess.run([sys.executable, "-c", SCENARIOS, str(tmp_path)], capture_output=True, text=True,
+                         timeout=120)
+    assert out.returncode == 0, out.stderr
+    assert out.stdout.strip() == str([True, False, True, False, True, False, True])
