@@ -44,13 +44,13 @@ MARGIN = 3000            # samples each side of a baseline chunk for the filter 
 SNIPPET = (-10, 22)      # samples around an event cut by the baseline sort
 
 
-CHILD = ("import runpy, sys\n"
+CHILD = ("import atexit, runpy, sys\n"
          "sys.argv = ['rigside'] + sys.argv[1:]\n"
-         "try:\n"
-         "    runpy.run_module('rigside', run_name='__main__')\n"
-         "finally:\n"
+         "def peak():\n"
          "    hwm = [x for x in open('/proc/self/status') if x.startswith('VmHWM')]\n"
-         "    print('VMHWM', hwm[0].split()[1] if hwm else 0, file=sys.stderr)\n")
+         "    print('VMHWM', hwm[0].split()[1] if hwm else 0, file=sys.stderr, flush=True)\n"
+         "atexit.register(peak)   # the quick end of the process runs the exit functions\n"
+         "runpy.run_module('rigside', run_name='__main__')\n")
 """The command, reporting its own peak RSS (VmHWM, kB): the wait4 figure of a child starts from the
 parent's peak at fork on Linux, so it would carry the benchmark's own memory."""
 
