@@ -38,8 +38,8 @@ def quick_end_is_safe() -> bool:
 
 def _open_for_writing() -> bool:
     """A Python file object other than the standard streams is open for writing (its buffer would be lost)."""
-    standard = {id(s) for s in (sys.stdout, sys.stderr, sys.__stdout__, sys.__stderr__)}
-    standard |= {id(getattr(s, "buffer", None)) for s in (sys.stdout, sys.stderr, sys.__stdout__, sys.__stderr__)}
+    standard = {id(x) for s in (sys.stdout, sys.stderr, sys.__stdout__, sys.__stderr__)
+                for x in (s, getattr(s, "buffer", None))}
     for o in gc.get_objects():
         if not isinstance(o, io.IOBase) or id(o) in standard or o.closed:
             continue
