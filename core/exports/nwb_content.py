@@ -43,7 +43,8 @@ PROVENANCE_COLUMNS: dict[str, str] = {
     "recording_path": "the recording the session was sorted from",
     "recording_size": "its size in bytes",
     "recording_fingerprint": "its quick fingerprint (size and SHA-256 of three sampled blocks)",
-    "recording_content_hash": "SHA-256 of its whole content, computed during detection (empty if not computed)",
+    "recording_content_hash": "XXH3-128 hash of its whole content (older files: SHA-256), computed during "
+                              "detection (empty if not computed)",
     "parameters": "every pipeline parameter of the session (JSON: filter, noise, detect, snippets, cluster, "
                   "metrics, run)",
     "metric_settings": "the settings the quality columns were computed with (JSON)",

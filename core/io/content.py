@@ -1,11 +1,16 @@
 """A hash of a recording's whole content, computed while another pass streams the file.
 
 The quick fingerprint (:meth:`rigside.core.io.recording.Recording.fingerprint`: size and three sampled
-blocks) answers at once whether a file is plausibly the same; the content hash (SHA-256 of
-every byte) settles it. Detection feeds a :class:`BackgroundHasher` as it goes (its own thread
-follows the pass; SHA-256 releases the GIL on large blocks, so hashing overlaps the workers and
-the loop feeding them), so the full hash costs no extra pass; :func:`content_hash` computes it on
-its own (before reusing a checkpoint or computing from a session's recording).
+blocks) answers at once whether a file is plausibly the same; the content hash (of every byte)
+settles it. Detection feeds a :class:`BackgroundHasher` as it goes (its own thread follows the pass;
+the hash releases the GIL on large blocks, so hashing overlaps the workers and the loop feeding
+them), so the full hash costs no extra pass; :func:`content_hash` computes it on its own (before
+reusing a checkpoint or computing from a session's recording).
+
+The hash is XXH3-128 (``"xxh3-128:<32 hex digits>"``, the ``xxhash`` package): it guards against a
+changed or swapped file, not against forgery, and runs at ~36 GB/s here against ~2 GB/s for SHA-256,
+which had been half of the CPU time of detection at 384 sites. Files written before carry
+``"sha256:<hex>"`` and are checked with SHA-256: a stored value names its algorithm.
 """
 
 from __future__ import annotations
@@ -14,22 +19,46 @@ import hashlib
 import threading
 from pathlib import Path
 
+import xxhash
+
 from rigside.core.errors import RecordingError
 from rigside.core.io.positional import PositionalFile
 from rigside.core.progress import CancelFn, ProgressFn, check, report
 
 BLOCK = 4 << 20
-PREFIX = "sha256:"
+PREFIX = "xxh3-128:"
+"""Prefix of the content hashes written now."""
+ALGORITHMS = {PREFIX: xxhash.xxh3_128, "sha256:": hashlib.sha256}
+"""Hash constructor of each prefix a stored content hash may carry."""
+
+
+def prefix_of(stored: str | None) -> str:
+    """The algorithm prefix of a stored content hash (:data:`PREFIX` for None or an empty one).
+
+    Raises
+    ------
+    RecordingError
+        When the stored value names an algorithm this program does not know.
+    """
+    if not stored:
+        return PREFIX
+    for prefix in ALGORITHMS:
+        if stored.startswith(prefix):
+            return prefix
+    raise RecordingError(f"stored content hash must start with one of {', '.join(ALGORITHMS)}, "
+                         f"got {stored[:24]!r}")
 
 
 class ContentHasher:
-    """Hash ``path`` from start to end in step with a pass over it (see :meth:`advance`)."""
+    """Hash ``path`` from start to end in step with a pass over it (see :meth:`advance`), with the
+    algorithm of ``prefix`` (:data:`ALGORITHMS`)."""
 
-    def __init__(self, path: str | Path) -> None:
+    def __init__(self, path: str | Path, prefix: str = PREFIX) -> None:
         self.path = Path(path)
+        self._prefix = prefix
         self._file = PositionalFile(self.path)
         self.size = self._file.size()
-        self._hash = hashlib.sha256()
+        self._hash = ALGORITHMS[prefix]()
         self._done = 0
 
     def _check_size(self) -> None:
@@ -52,13 +81,13 @@ class ContentHasher:
             self._done += len(block)
 
     def finish(self) -> str:
-        """Hash the rest and return ``"sha256:<hex>"``; the file is closed."""
+        """Hash the rest and return ``"<prefix><hex>"``; the file is closed."""
         try:
             self.advance(1.0)
             if self._file.read(1, self.size):
                 raise RecordingError(f"recording {str(self.path)!r} must keep its size while it is read, "
                                      f"got more than {self.size} bytes (file grew)")
-            return PREFIX + self._hash.hexdigest()
+            return self._prefix + self._hash.hexdigest()
         finally:
             self.close()
 
@@ -118,7 +147,7 @@ class BackgroundHasher:
         self._signal(_target=max(self._target, min(max(fraction, 0.0), 1.0)))
 
     def finish(self) -> str:
-        """Wait for the whole file and return ``"sha256:<hex>"``; the file is closed."""
+        """Wait for the whole file and return ``"xxh3-128:<hex>"``; the file is closed."""
         try:
             self._signal(_target=1.0, _drain=True)
             self._thread.join()
@@ -140,8 +169,9 @@ class BackgroundHasher:
         self._hasher.close()
 
 
-def content_hash(path: str | Path, progress: ProgressFn = None, cancel: CancelFn = None) -> str:
-    """SHA-256 of the whole file as ``"sha256:<hex>"`` (what :class:`ContentHasher` gives).
+def content_hash(path: str | Path, progress: ProgressFn = None, cancel: CancelFn = None,
+                 like: str | None = None) -> str:
+    """Hash of the whole file as ``"<prefix><hex>"`` (what :class:`ContentHasher` gives).
 
     Parameters
     ----------
@@ -149,9 +179,13 @@ def content_hash(path: str | Path, progress: ProgressFn = None, cancel: CancelFn
         File to hash (read-only).
     progress, cancel
         Progress callback and cancel check (one step per 4 MiB block).
+    like
+        A stored content hash to compare with: the file is hashed with its algorithm
+        (:func:`prefix_of`); XXH3-128 when not given.
     """
+    prefix = prefix_of(like)
     try:
-        hasher = ContentHasher(path)
+        hasher = ContentHasher(path, prefix)
     except OSError as exc:
         raise RecordingError(f"recording must be readable, got {str(path)!r}: {exc.strerror}") from None
     with hasher:

@@ -23,7 +23,7 @@ class Recording:
     groups: list[np.ndarray]
     group_names: list[str]
     float_data: bool = False
-    content_hash: str | None = None   # "sha256:<hex>" of the whole file once a full pass computed it
+    content_hash: str | None = None   # "xxh3-128:<hex>" of the whole file once a full pass computed it
     positions: np.ndarray | None = None   # (channels, 2) float64 x_um, y_um of each site, or None
     shank: np.ndarray | None = None       # shank of each site (int64) when positions are known
     groups_given: bool = False

@@ -18,7 +18,7 @@ import numpy as np
 from rigside.core.errors import RigsideError, SessionError
 from rigside.core.events import EventTable
 from rigside.core.io.atomic import atomic_copy_bytes, atomic_write, check_not_input, free_backup_path, safe_unlink
-from rigside.core.io.content import content_hash
+from rigside.core.io.content import ALGORITHMS, content_hash
 from rigside.core.io.h5image import h5_direct
 from rigside.core.io.h5safe import read_verified
 from rigside.core.io.recording import Recording
@@ -83,9 +83,10 @@ def _read_checkpoint(path: Path, key: str, recording: Recording, params: Params,
         return None, None  # not an HDF5 file any more: only costs recomputation
     with f:
         found, stored = f.attrs.get("key"), f.attrs.get("content_hash")
-        if not isinstance(found, str) or found != key or not isinstance(stored, str) or not stored:
+        if not isinstance(found, str) or found != key or not isinstance(stored, str) or \
+                not stored.startswith(tuple(ALGORITHMS)):
             return None, None
-        recording.content_hash = content_hash(recording.path, progress, cancel)
+        recording.content_hash = content_hash(recording.path, progress, cancel, like=stored)
         if recording.content_hash != stored:
             return None, None
         try:

@@ -11,6 +11,19 @@ from threadpoolctl import ThreadpoolController
 T = TypeVar("T")
 
 
+CHUNK_VALUES = 1 << 21
+"""Most samples x channels in one chunk of a streaming pass (8 MiB as float32). A chunk's filtered
+block is written forward and read back by the zero-phase filter, so it must stay in cache: on this
+kind of machine (32 MiB shared L3, 2 workers) filtering 384 channels in 1 s chunks took 19.5 ms per
+recorded second against 4.5 ms in chunks of 5,000 samples; 64 channels keep their 1 s chunks."""
+
+
+def chunk_samples(chunk_s: float, rate_hz: float, n_channels: int, least: int = 1) -> int:
+    """Samples per chunk of a streaming pass: ``chunk_s`` seconds, shortened on wide recordings to
+    hold at most :data:`CHUNK_VALUES` samples x channels, and at least ``least`` samples."""
+    return max(least, min(int(chunk_s * rate_hz), CHUNK_VALUES // max(1, n_channels)))
+
+
 def chunk_bounds(n_samples: int, chunk: int) -> list[tuple[int, int]]:
     """Consecutive ``[start, stop)`` ranges of at most ``chunk`` samples covering the file."""
     return [(s, min(s + chunk, n_samples)) for s in range(0, n_samples, chunk)]

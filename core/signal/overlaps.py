@@ -39,7 +39,7 @@ from rigside.core.heap import give_back
 from rigside.core.io.recording import Recording
 from rigside.core.params import Params
 from rigside.core.progress import CancelFn, ProgressFn, report, run_bounded
-from rigside.core.signal.chunk_pool import chunk_bounds
+from rigside.core.signal.chunk_pool import chunk_bounds, chunk_samples
 from rigside.core.signal.features import Features, put_scores, shape_features, usable_channels
 from rigside.core.signal.filtering import BandPass
 from rigside.core.signal.overlap_kernel import POLARITY_CODES, group_finds
@@ -128,7 +128,7 @@ def recover_overlaps(recording: Recording, events: EventTable, features: Feature
     rows, group, template = _event_slots(events, assignments, groups)
     sample = events.sample[rows]
     margin = 2 * (before + after + dead) + 2
-    bounds = chunk_bounds(recording.n_samples, max(int(params.run.chunk_s * rate), margin))
+    bounds = chunk_bounds(recording.n_samples, chunk_samples(params.run.chunk_s, rate, recording.n_channels, margin))
     at = np.searchsorted([b[0] for b in bounds], sample, "right") - 1
     busy = np.unique(np.clip(np.concatenate([at - 1, at, at + 1]), 0, len(bounds) - 1))  # finds may cross an edge
     bp = BandPass(recording, params.filter)

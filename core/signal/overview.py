@@ -34,6 +34,7 @@ from rigside.core.io.h5image import write_h5
 from rigside.core.io.recording import Recording
 from rigside.core.params import FilterParams
 from rigside.core.progress import CancelFn, ProgressFn, check, report
+from rigside.core.signal.chunk_pool import CHUNK_VALUES
 from rigside.core.signal.filtering import BandPass
 
 FORMAT = "rigside-overview"
@@ -41,7 +42,6 @@ VERSION = 1
 MIN_BIN = 256             # shorter spans are drawn from samples; finer bins cost more to write than to read
 FINE_VALUES = 1 << 23      # bins x channels of the finest level, per array (32 MiB of float32)
 TOP_BINS = 256
-CHUNK_VALUES = 1 << 22     # samples x channels filtered at once by :func:`build_overview`
 
 
 def finest_bin(n_samples: int, n_channels: int) -> int:
@@ -195,8 +195,12 @@ class Overview:
         return i0, lo, hi
 
     def matches_content(self, content_hash: str | None) -> bool:
-        """False only when both this file and the recording know a whole-content hash and they differ."""
-        return content_hash is None or self.content_hash is None or content_hash == self.content_hash
+        """False only when both this file and the recording know a whole-content hash of one algorithm
+        (its prefix, :mod:`rigside.core.io.content`) and they differ."""
+        if content_hash is None or self.content_hash is None:
+            return True
+        same_kind = content_hash.split(":", 1)[0] == self.content_hash.split(":", 1)[0]
+        return not same_kind or content_hash == self.content_hash
 
     def close(self) -> None:
         """Release the file."""

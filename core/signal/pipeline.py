@@ -19,7 +19,7 @@ from rigside.core.io.content import BackgroundHasher
 from rigside.core.io.recording import Recording
 from rigside.core.params import Params
 from rigside.core.progress import CancelFn, ProgressFn, report, run_bounded
-from rigside.core.signal.chunk_pool import chunk_bounds
+from rigside.core.signal.chunk_pool import chunk_bounds, chunk_samples
 from rigside.core.signal.detection import detect_block
 from rigside.core.signal.filtering import BandPass
 from rigside.core.signal.neighbourhoods import neighbourhoods
@@ -139,9 +139,11 @@ class BlockDetector:
                             self.dead, d.artefact_sigma, d.artefact_channel_fraction, self.art_w)
 
     def chunks(self) -> list[tuple[int, int]]:
-        """The ``[start, stop)`` chunks of the pass (``params.run.chunk_s``)."""
-        chunk = max(int(self.params.run.chunk_s * self.recording.rate_hz), 4 * self.margin)
-        return chunk_bounds(self.recording.n_samples, chunk)
+        """The ``[start, stop)`` chunks of the pass (``params.run.chunk_s``, shorter on wide recordings:
+        :func:`rigside.core.signal.chunk_pool.chunk_samples`)."""
+        rec = self.recording
+        return chunk_bounds(rec.n_samples, chunk_samples(self.params.run.chunk_s, rec.rate_hz, rec.n_channels,
+                                                         4 * self.margin))
 
     def assemble(self, parts: list[EventColumns]) -> tuple[EventTable, np.ndarray | None]:
         """The event table of the chunks' events (given in file order), sorted by time, and the

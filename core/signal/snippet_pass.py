@@ -17,7 +17,7 @@ import numpy as np
 from rigside.core.errors import RigsideError
 from rigside.core.params import Params
 from rigside.core.progress import CancelFn, ProgressFn, report, run_bounded
-from rigside.core.signal.chunk_pool import chunk_bounds
+from rigside.core.signal.chunk_pool import chunk_bounds, chunk_samples
 from rigside.core.signal.filtering import BandPass
 from rigside.core.signal.local_frame import LocalFrame, LocalFrameCutter
 from rigside.core.signal.snippets import align_subsample, cut_windows, slot_runs, snippet_window
@@ -87,7 +87,7 @@ def snippet_pass(bandpass: BandPass, samples: np.ndarray, slot: np.ndarray, own:
                            f"got {int(samples[0])}..{int(samples[-1])}")
     before, after = snippet_window(params.snippets, rec.rate_hz)
     offsets = np.arange(-before - 1, after + 1)  # one extra sample each side for the alignment
-    bounds = chunk_bounds(rec.n_samples, max(int(params.run.chunk_s * rec.rate_hz), len(offsets)))
+    bounds = chunk_bounds(rec.n_samples, chunk_samples(params.run.chunk_s, rec.rate_hz, rec.n_channels, len(offsets)))
     cut_at = np.searchsorted(samples, [b[0] for b in bounds] + [rec.n_samples])
     work_list = [(i, i + 1) for i in range(len(bounds)) if cut_at[i + 1] > cut_at[i]]
 

@@ -6,7 +6,7 @@ Layout (format version 3): two HDF5 files (see :mod:`rigside.core.units.session_
                        static_part (file name of the static part beside NAME), static_checksum,
                        checksum (see rigside.core.io.h5safe.read_verified, per_dataset)
       /recording       attrs path, size, fingerprint, description (JSON), content_hash
-                       ("sha256:<hex>" of the whole file, see rigside.core.io.content; may be empty)
+                       ("xxh3-128:<hex>", older "sha256:<hex>", of the whole file: core.io.content; may be empty)
       /params          attrs json (Params.to_dict() as JSON)
       /sorting/assignments  int32 unit id per event (-1: in no unit)
       /sorting/unit_id, unit_group (int32)
@@ -387,7 +387,7 @@ def check_recording_content(session: Session, progress: ProgressFn = None, cance
     stored = session.recording.content_hash
     if not stored:
         return
-    found = content_hash(session.recording.path, progress, cancel)
+    found = content_hash(session.recording.path, progress, cancel, like=stored)
     if found != stored:
         raise RecordingChanged(f"recording {session.recording.path!r} must be the file this session was made "
                                f"from (content {stored[:23]}...), got content {found[:23]}... (changed)")

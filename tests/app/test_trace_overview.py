@@ -102,7 +102,7 @@ def test_the_rebuild_job_replaces_an_overview_the_content_hash_refutes(window, t
 
     def edited_content(rec, *args, progress=None, cancel=None):
         result = real(rec, *args, progress=progress, cancel=cancel)
-        rec.content_hash = "sha256:" + "1" * 64     # as if a byte the quick fingerprint skips had changed
+        rec.content_hash = "xxh3-128:" + "1" * 32   # as if a byte the quick fingerprint skips had changed
         return result
 
     monkeypatch.setattr(jobs, "analyse", edited_content)

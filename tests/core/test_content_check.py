@@ -1,12 +1,17 @@
 """A changed recording is detected even where the quick fingerprint does not look.
 
-Reference for the hash: hashlib.sha256 over the file's bytes (Python standard library).
+References for the hash: xxhash.xxh3_128 over the file's bytes (the xxhash package, bindings of the
+XXH3 reference implementation); for files written with the former hash, hashlib.sha256 (Python
+standard library).
 """
 
+import dataclasses
 import hashlib
 
 import pytest
+import xxhash
 
+from rigside.core.errors import RecordingError
 from rigside.core.io.content import content_hash
 from rigside.core.io.recording import open_recording
 from rigside.core.params import Params
@@ -42,9 +47,33 @@ def edit_in_the_gap(path):
 def test_detection_hashes_the_whole_content(rec_path):
     rec = open_recording(rec_path)
     detect(rec, Params())
-    expected = "sha256:" + hashlib.sha256(rec_path.read_bytes()).hexdigest()
+    expected = "xxh3-128:" + xxhash.xxh3_128(rec_path.read_bytes()).hexdigest()
     assert rec.content_hash == expected == content_hash(rec_path)
     rec.close()
+
+
+def test_a_stored_hash_is_checked_with_its_own_algorithm(rec_path):
+    legacy = "sha256:" + hashlib.sha256(rec_path.read_bytes()).hexdigest()
+    assert content_hash(rec_path, like=legacy) == legacy
+    assert content_hash(rec_path, like="xxh3-128:" + "0" * 32).startswith("xxh3-128:")
+    with pytest.raises(RecordingError, match="must start with one of xxh3-128:, sha256:"):
+        content_hash(rec_path, like="md5:0123")
+
+
+def test_a_session_written_with_the_former_hash_is_checked_with_it(rec_path, tmp_path):
+    p = tmp_path / "r.bin"
+    p.write_bytes(rec_path.read_bytes())
+    (tmp_path / "r.rigside.toml").write_text((rec_path.parent / "r.rigside.toml").read_text())
+    rec = open_recording(p)
+    run_sort(rec, Params(), tmp_path / "s.h5")
+    rec.close()
+    session = load_session(tmp_path / "s.h5")            # as a session of the former version holds it:
+    session.recording = dataclasses.replace(
+        session.recording, content_hash="sha256:" + hashlib.sha256(p.read_bytes()).hexdigest())
+    check_recording_content(session)                     # unchanged: passes
+    edit_in_the_gap(p)
+    with pytest.raises(RecordingChanged, match="changed"):
+        check_recording_content(session)
 
 
 def test_a_session_made_from_a_file_edited_since_is_refused(rec_path, tmp_path):
@@ -55,7 +84,7 @@ def test_a_session_made_from_a_file_edited_since_is_refused(rec_path, tmp_path):
     run_sort(rec, Params(), tmp_path / "s.h5")
     rec.close()
     session = load_session(tmp_path / "s.h5")
-    assert session.recording.content_hash.startswith("sha256:")
+    assert session.recording.content_hash.startswith("xxh3-128:")
     check_recording_content(session)                     # unchanged: passes
     edit_in_the_gap(p)
     session = load_session(tmp_path / "s.h5")            # the quick check cannot see the edit

@@ -104,8 +104,10 @@ def test_cache_is_reused_while_the_recording_is_unchanged_and_rebuilt_when_it_ch
     assert again is not None and again.path == first
     again.close()
     assert load_overview(rec, FilterParams(low_hz=500.0)) is None          # another filter
-    rec.content_hash = "sha256:" + "0" * 64                              # the whole content differs
+    rec.content_hash = "xxh3-128:" + "0" * 32                            # the whole content differs
     assert load_overview(rec, params) is None
+    rec.content_hash = "sha256:" + "0" * 64           # of another algorithm: not comparable, the key decides
+    assert load_overview(rec, params) is not None
     # the file changes (same size): the old cache no longer applies, the rebuilt one replaces it
     _data(1).tofile(rec.path)
     changed = open_recording(rec.path)

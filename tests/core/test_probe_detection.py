@@ -177,3 +177,11 @@ def test_event_tables_refuse_half_or_bad_positions():
         EventTable(**base, x_um=[1.0, 2.0], y_um=[1.0, 2.0])
     with pytest.raises(RigsideError, match="positions must be finite"):
         EventTable(**base, x_um=[np.nan], y_um=[1.0]).check()
+
+
+def test_wide_recordings_are_streamed_in_chunks_that_stay_in_cache():
+    from rigside.core.signal.chunk_pool import CHUNK_VALUES, chunk_samples
+    assert chunk_samples(1.0, 30000.0, 64) == 30000                    # 64 channels keep 1 s chunks
+    assert chunk_samples(1.0, 30000.0, 384) == CHUNK_VALUES // 384 == 5461
+    assert chunk_samples(0.1, 30000.0, 384) == 3000                     # a shorter chunk asked for is kept
+    assert chunk_samples(1.0, 30000.0, 1 << 20, least=128) == 128      # never below the pass's least length
